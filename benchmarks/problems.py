@@ -1,0 +1,84 @@
+"""Benchmark problems: data, the lintools call, the peers, and a reference answer.
+
+Each contender returns its coefficient vector with the intercept first, so "digits" can
+compare them all with the same reference.  Peers are called the way a user would call
+them to get the same things lintools returns (coefficients and standard errors).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Callable
+
+import numpy as np
+import sklearn.linear_model
+import statsmodels.api as sm
+
+import lintools as lt
+
+
+@dataclass
+class Problem:
+    name: str
+    make: Callable[[], dict]
+    ours: Callable[[dict], np.ndarray]
+    reference: Callable[[dict], np.ndarray]
+    peers: dict[str, Callable[[dict], np.ndarray]] = field(default_factory=dict)
+
+
+def _regression_data(n: int, p: int, seed: int = 1) -> Callable[[], dict]:
+    def make() -> dict:
+        rng = np.random.default_rng(seed)
+        mix = np.eye(p) + 0.3 * rng.normal(size=(p, p))
+        X = rng.normal(size=(n, p)) @ mix + rng.uniform(-2, 2, size=p)
+        y = 1.5 + X @ rng.normal(size=p) + rng.normal(size=n)
+        return {"X": X, "y": y}
+
+    return make
+
+
+def _with_ones(X: np.ndarray) -> np.ndarray:
+    return np.column_stack([np.ones(X.shape[0]), X])
+
+
+def _ls_ours(d: dict) -> np.ndarray:
+    fit = lt.least_squares(d["X"], d["y"])
+    return np.r_[fit.intercept, fit.coefficients]
+
+
+def _ls_householder(d: dict) -> np.ndarray:
+    # Householder QR (LAPACK dgeqrf via numpy.linalg.qr) of [1, X]: the reference.
+    Q, R = np.linalg.qr(_with_ones(d["X"]))
+    return np.linalg.solve(R, Q.T @ d["y"])
+
+
+def _ls_numpy(d: dict) -> np.ndarray:
+    return np.linalg.lstsq(_with_ones(d["X"]), d["y"], rcond=None)[0]
+
+
+def _ls_sklearn(d: dict) -> np.ndarray:
+    m = sklearn.linear_model.LinearRegression().fit(d["X"], d["y"])
+    return np.r_[m.intercept_, m.coef_]
+
+
+def _ls_statsmodels(d: dict) -> np.ndarray:
+    r = sm.OLS(d["y"], sm.add_constant(d["X"], has_constant="add")).fit()
+    _ = r.bse  # standard errors, as lintools returns them
+    return np.asarray(r.params)
+
+
+def PROBLEMS(quick: bool) -> list[Problem]:
+    n_ls, p_ls = (2000, 5) if quick else (1_000_000, 50)
+    return [
+        Problem(
+            name=f"least squares n={n_ls:g} p={p_ls}",
+            make=_regression_data(n_ls, p_ls),
+            ours=_ls_ours,
+            reference=_ls_householder,
+            peers={
+                "numpy.linalg.lstsq": _ls_numpy,
+                "sklearn LinearRegression": _ls_sklearn,
+                "statsmodels OLS": _ls_statsmodels,
+            },
+        ),
+    ]

@@ -1,0 +1,290 @@
+"""Frozen result records shared by the fits, and the text report.
+
+A fit returns a frozen dataclass that holds NumPy arrays (never views of the caller's
+data).  The records know how to evaluate the fitted model on new rows
+(``linear_predictor``, ``mean``, ``labels``), how to build the coefficient table
+(estimate, standard error, statistic, two-sided p-value, interval) and how to render it
+as text (``report``).  ``to_dict`` gives a JSON-ready dictionary; :mod:`lintools.io`
+writes and reads model files from it.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from . import _distributions as dist
+from ._errors import InputError
+from ._validate import as_matrix
+
+__all__ = ["Convergence", "CoefficientTable", "LinearFit"]
+
+INTERCEPT_NAME = "(intercept)"
+
+
+@dataclass(frozen=True)
+class Convergence:
+    """How a fit ended.
+
+    Attributes
+    ----------
+    converged : bool
+        True only when the stopping rule was met.
+    iterations : int
+        Iterations (for direct solvers: 1 plus refinement steps).
+    gradient_norm : float
+        Max-abs gradient of the objective at the returned answer.
+    objective : float
+        Value of the minimised objective at the answer.
+    solver : str
+        Solver that produced the answer.
+    message : str
+        Plain-language account of how the fit ended.
+    """
+
+    converged: bool
+    iterations: int
+    gradient_norm: float
+    objective: float
+    solver: str
+    message: str
+
+
+@dataclass(frozen=True)
+class CoefficientTable:
+    """Per-parameter inference: one entry per term (intercept first when fitted).
+
+    ``statistic = estimate / standard_error``; ``p_value`` is two-sided against the
+    reference distribution named by ``distribution`` (``"normal"`` or ``"t(df)"``);
+    ``lower`` and ``upper`` bound the Wald interval at ``level``.
+    """
+
+    terms: tuple[str, ...]
+    estimate: np.ndarray
+    standard_error: np.ndarray
+    statistic: np.ndarray
+    p_value: np.ndarray
+    lower: np.ndarray
+    upper: np.ndarray
+    level: float
+    distribution: str
+
+
+def _fmt(value: float, width: int = 13) -> str:
+    if value is None or not np.isfinite(value):
+        text = "nan" if value is None or np.isnan(value) else ("inf" if value > 0 else "-inf")
+    else:
+        text = f"{value:.7g}"
+    return text.rjust(width)
+
+
+def _fmt_p(value: float) -> str:
+    if not np.isfinite(value):
+        return "nan".rjust(10)
+    if value < 1e-300:
+        return "<1e-300".rjust(10)
+    if value < 1e-4:
+        return f"{value:.2e}".rjust(10)
+    return f"{value:.4f}".rjust(10)
+
+
+def _wald_table(
+    terms: tuple[str, ...],
+    estimate: np.ndarray,
+    se: np.ndarray,
+    level: float,
+    df: float | None,
+) -> CoefficientTable:
+    if not (0.0 < level < 1.0):
+        raise InputError(f"level must lie strictly between 0 and 1; got {level!r}")
+    estimate = np.asarray(estimate, dtype=float)
+    se = np.asarray(se, dtype=float)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        stat = estimate / se
+    tail = 0.5 + level / 2.0
+    if df is None:
+        p = 2.0 * dist.normal_sf(np.abs(stat))
+        q = float(dist.normal_quantile(tail))
+        name = "normal"
+    else:
+        p = 2.0 * dist.t_sf(np.abs(stat), df)
+        q = float(dist.t_quantile(tail, df))
+        name = f"t({df:g})"
+    p = np.where(np.isnan(stat), np.nan, np.minimum(p, 1.0))
+    return CoefficientTable(
+        terms=terms,
+        estimate=estimate,
+        standard_error=se,
+        statistic=stat,
+        p_value=p,
+        lower=estimate - q * se,
+        upper=estimate + q * se,
+        level=level,
+        distribution=name,
+    )
+
+
+def render_table(table: CoefficientTable, stat_label: str) -> str:
+    """Render a :class:`CoefficientTable` as fixed-width text."""
+    width = max([len(t) for t in table.terms] + [4])
+    pct = f"{100 * table.level:g}%"
+    head = (
+        "term".ljust(width)
+        + "estimate".rjust(13)
+        + "std error".rjust(13)
+        + stat_label.rjust(10)
+        + "p (2-sided)".rjust(12)
+        + f"{pct} from".rjust(13)
+        + f"{pct} to".rjust(13)
+    )
+    lines = [head, "-" * len(head)]
+    for i, term in enumerate(table.terms):
+        stat = table.statistic[i]
+        stat_text = f"{stat:.3f}" if np.isfinite(stat) else ("nan" if np.isnan(stat) else str(stat))
+        lines.append(
+            term.ljust(width)
+            + _fmt(table.estimate[i])
+            + _fmt(table.standard_error[i])
+            + stat_text.rjust(10)
+            + _fmt_p(table.p_value[i]).rjust(12)
+            + _fmt(table.lower[i])
+            + _fmt(table.upper[i])
+        )
+    return "\n".join(lines)
+
+
+def _to_jsonable(value: Any) -> Any:
+    if isinstance(value, np.ndarray):
+        return value.tolist()
+    if isinstance(value, (np.floating, np.integer, np.bool_)):
+        return value.item()
+    if dataclasses.is_dataclass(value) and not isinstance(value, type):
+        return {f.name: _to_jsonable(getattr(value, f.name)) for f in dataclasses.fields(value)}
+    if isinstance(value, tuple):
+        return [_to_jsonable(v) for v in value]
+    return value
+
+
+@dataclass(frozen=True)
+class _FitBase:
+    """Fields and methods shared by every fit record."""
+
+    coefficients: np.ndarray
+    intercept: Any
+    standard_errors: np.ndarray
+    intercept_standard_error: Any
+    covariance: np.ndarray
+    log_likelihood: float
+    deviance: float
+    aic: float
+    bic: float
+    n_observations: float
+    names: tuple[str, ...]
+    convergence: Convergence
+    with_intercept: bool
+    l2: float
+
+    kind = "fit"
+
+    # ----- evaluation on new rows -------------------------------------------------
+    def _design(self, X: Any) -> np.ndarray:
+        arr, _ = as_matrix(X, "X")
+        p = self.coefficients.shape[0]
+        if arr.shape[1] != p:
+            raise InputError(
+                f"X has {arr.shape[1]} columns but the model has {p} coefficients "
+                f"({', '.join(self.names)}); pass the same columns in the same order"
+            )
+        return arr
+
+    def linear_predictor(self, X: Any) -> np.ndarray:
+        """Return ``intercept + X @ coefficients`` for new rows ``X``."""
+        arr = self._design(X)
+        return arr @ self.coefficients + self.intercept
+
+    def to_dict(self) -> dict[str, Any]:
+        """Return the record as a dictionary of plain Python values (lists for arrays)."""
+        out = {f.name: _to_jsonable(getattr(self, f.name)) for f in dataclasses.fields(self)}
+        out["kind"] = self.kind
+        return out
+
+    # ----- inference ----------------------------------------------------------------
+    def _reference_df(self) -> float | None:
+        return None
+
+    def coefficient_table(self, level: float = 0.95) -> CoefficientTable:
+        """Return estimates, standard errors, Wald statistics, p-values and intervals.
+
+        The intercept comes first when it was fitted.  Intervals are Wald intervals
+        ``estimate +- q * standard_error`` with ``q`` the ``(1 + level) / 2`` quantile of
+        the reference distribution (Student t with the residual degrees of freedom for
+        least squares, the standard normal otherwise).
+        """
+        terms = list(self.names)
+        est = list(np.ravel(self.coefficients))
+        se = list(np.ravel(self.standard_errors))
+        if self.with_intercept:
+            terms.insert(0, INTERCEPT_NAME)
+            est.insert(0, float(self.intercept))
+            se.insert(0, float(self.intercept_standard_error))
+        return _wald_table(tuple(terms), np.array(est), np.array(se), level, self._reference_df())
+
+
+@dataclass(frozen=True)
+class LinearFit(_FitBase):
+    """Result of :func:`lintools.least_squares`.
+
+    Besides the shared fields it holds the residual standard error, R-squared (centred
+    when an intercept is fitted, uncentred otherwise), the adjusted R-squared, the
+    overall F statistic (a Wald F with the chosen covariance; for ``"classical"`` this is
+    the usual ANOVA F) and its p-value, the residual degrees of freedom, the numerical
+    rank, the covariance type, and, when asked for, leverage and Cook's distance.
+    """
+
+    residual_standard_error: float = float("nan")
+    r_squared: float = float("nan")
+    adjusted_r_squared: float = float("nan")
+    f_statistic: float = float("nan")
+    f_p_value: float = float("nan")
+    f_degrees_of_freedom: tuple[float, float] = (float("nan"), float("nan"))
+    degrees_of_freedom: float = float("nan")
+    #: numerical rank of the design including the intercept column
+    rank: int = 0
+    covariance_type: str = "classical"
+    weight_type: str = "case"
+    condition_number: float = float("nan")
+    aliased: tuple[str, ...] = ()
+    leverage: np.ndarray | None = None
+    cooks_distance: np.ndarray | None = None
+    target: str = "y"
+
+    kind = "least_squares"
+
+    def _reference_df(self) -> float | None:
+        return float(self.degrees_of_freedom)
+
+    def mean(self, X: Any) -> np.ndarray:
+        """Expected response for new rows: the linear predictor."""
+        return self.linear_predictor(X)
+
+    def report(self, level: float = 0.95) -> str:
+        """Return a plain-text report: the fit's facts, then the coefficient table."""
+        table = self.coefficient_table(level)
+        fdf = self.f_degrees_of_freedom
+        facts = [
+            f"lintools least squares fit of '{self.target}'",
+            f"  observations {self.n_observations:g} ({self.weight_type} weights)   "
+            f"parameters {len(table.terms)}   rank {self.rank}   residual df {self.degrees_of_freedom:g}",
+            f"  residual std error {self.residual_standard_error:.7g}   "
+            f"R-squared {self.r_squared:.6f}   adjusted {self.adjusted_r_squared:.6f}",
+            f"  F {self.f_statistic:.6g} on ({fdf[0]:g}, {fdf[1]:g}) df, p {_fmt_p(self.f_p_value).strip()}"
+            f"   log-likelihood {self.log_likelihood:.8g}   AIC {self.aic:.8g}   BIC {self.bic:.8g}",
+            f"  covariance {self.covariance_type}   l2 {self.l2:g}   scaled condition number {self.condition_number:.3g}",
+            f"  {self.convergence.message}",
+        ]
+        if self.aliased:
+            facts.append(f"  aliased columns (minimum-norm solution): {', '.join(self.aliased)}")
+        return "\n".join(facts) + "\n\n" + render_table(table, "t") + "\n"

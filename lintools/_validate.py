@@ -1,0 +1,318 @@
+"""Input checking: array-likes to float arrays, with messages that name the problem.
+
+Every public function of lintools passes its arguments through the helpers here, so
+the wording of errors is uniform: the argument, the position (row, column or label),
+and what to do about it.  Nothing here modifies its input; conversions copy when the
+input is not already a float64 array, and never write to the caller's array.
+
+Accepted array-likes: NumPy arrays, nested lists and tuples, objects that implement
+``__array__`` and DataFrame-like objects (anything with a ``columns`` attribute and a
+``to_numpy`` method or ``__array__``), whose column labels become coefficient names.
+pandas is never imported.
+"""
+
+from __future__ import annotations
+
+import math
+import numbers
+from typing import Any, Sequence
+
+import numpy as np
+
+from ._errors import InputError
+
+__all__ = [
+    "as_matrix",
+    "as_vector",
+    "as_labels",
+    "as_weights",
+    "as_offset",
+    "check_names",
+    "check_nonnegative",
+    "check_choice",
+    "check_positive_int",
+    "check_probabilities",
+]
+
+
+def _column_names(obj: Any) -> tuple[str, ...] | None:
+    cols = getattr(obj, "columns", None)
+    if cols is None or isinstance(obj, np.ndarray):
+        return None
+    try:
+        return tuple(str(c) for c in list(cols))
+    except TypeError:
+        return None
+
+
+def _to_numpy(obj: Any) -> Any:
+    if hasattr(obj, "to_numpy") and not isinstance(obj, np.ndarray):
+        try:
+            return obj.to_numpy()
+        except Exception:  # pragma: no cover - exotic objects fall back to asarray
+            return obj
+    return obj
+
+
+def _first_nonnumeric(arr: np.ndarray) -> tuple[tuple[int, ...], Any] | None:
+    for index in np.ndindex(arr.shape):
+        value = arr[index]
+        if isinstance(value, (bool, np.bool_)):
+            continue
+        if isinstance(value, numbers.Real):
+            continue
+        if isinstance(value, str):
+            try:
+                float(value)
+                continue
+            except ValueError:
+                return index, value
+        return index, value
+    return None
+
+
+def _position(index: tuple[int, ...], names: Sequence[str] | None) -> str:
+    if len(index) == 1:
+        return f"row {index[0]}"
+    row, col = index[0], index[1]
+    label = f"column {col}"
+    if names is not None and col < len(names):
+        label = f"column {col} ('{names[col]}')"
+    return f"row {row}, {label}"
+
+
+def _as_float(obj: Any, name: str, names: Sequence[str] | None = None) -> np.ndarray:
+    raw = _to_numpy(obj)
+    try:
+        arr = np.asarray(raw)
+    except Exception as exc:  # ragged lists and the like
+        raise InputError(
+            f"{name} could not be read as an array ({exc}); pass a rectangular array or "
+            "nested list of numbers"
+        ) from None
+    if arr.dtype == object or arr.dtype.kind in "USV":
+        bad = _first_nonnumeric(arr) if arr.dtype.kind != "V" else ((0,), "structured")
+        if bad is not None:
+            index, value = bad
+            value = value.item() if isinstance(value, np.generic) else value
+            raise InputError(
+                f"{name} has a value that is not a number at {_position(index, names)}: "
+                f"{value!r}; convert text columns to numbers (or to indicator columns) "
+                "before fitting"
+            )
+    if arr.dtype.kind == "c":
+        raise InputError(f"{name} is complex; pass real numbers")
+    try:
+        out = np.array(arr, dtype=np.float64, copy=True)
+    except (TypeError, ValueError) as exc:
+        raise InputError(f"{name} could not be converted to float64 ({exc}); pass numbers") from None
+    return out
+
+
+def _check_finite(arr: np.ndarray, name: str, names: Sequence[str] | None = None) -> None:
+    finite = np.isfinite(arr)
+    if not finite.all():
+        index = tuple(int(i) for i in np.argwhere(~finite)[0])
+        value = arr[index]
+        raise InputError(
+            f"{name} has a non-finite value ({value}) at {_position(index, names)}; "
+            "remove or impute the missing or infinite values first"
+        )
+
+
+def as_matrix(
+    X: Any, name: str = "X", *, min_rows: int = 1, allow_empty_columns: bool = False
+) -> tuple[np.ndarray, tuple[str, ...] | None]:
+    """Return ``X`` as a new 2-D float64 array and its column names (or None).
+
+    Raises
+    ------
+    InputError
+        If ``X`` is not 2-D, is empty, holds text that is not a number, or holds NaN or
+        infinite values (the message names the first bad row and column).
+    """
+    if X is None:
+        raise InputError(f"{name} is None; pass a 2-D array of shape (rows, columns)")
+    names = _column_names(X)
+    arr = _as_float(X, name, names)
+    if arr.ndim == 1:
+        raise InputError(
+            f"{name} is 1-D with shape {arr.shape}; pass a 2-D array "
+            f"(for a single feature use {name}.reshape(-1, 1))"
+        )
+    if arr.ndim != 2:
+        raise InputError(f"{name} must be 2-D (rows, columns); got shape {arr.shape}")
+    if arr.shape[0] < min_rows:
+        raise InputError(
+            f"{name} has {arr.shape[0]} rows; at least {min_rows} needed"
+        )
+    if arr.shape[1] == 0 and not allow_empty_columns:
+        raise InputError(f"{name} has no columns; pass at least one feature column")
+    _check_finite(arr, name, names)
+    return arr, names
+
+
+def as_vector(y: Any, name: str = "y", n: int | None = None) -> np.ndarray:
+    """Return ``y`` as a new 1-D float64 array of length ``n`` with finite values."""
+    if y is None:
+        raise InputError(f"{name} is None; pass a 1-D array of numbers")
+    arr = _as_float(y, name)
+    if arr.ndim == 2 and 1 in arr.shape and arr.size > 0:
+        raise InputError(
+            f"{name} has shape {arr.shape}; pass a 1-D array ({name}.ravel() if it is "
+            "a single column)"
+        )
+    if arr.ndim != 1:
+        raise InputError(f"{name} must be 1-D; got shape {arr.shape}")
+    if n is not None and arr.shape[0] != n:
+        raise InputError(
+            f"{name} has {arr.shape[0]} entries but X has {n} rows; pass one value per row"
+        )
+    if arr.shape[0] == 0:
+        raise InputError(f"{name} is empty; pass at least one value")
+    _check_finite(arr, name)
+    return arr
+
+
+def _is_missing(value: Any) -> bool:
+    if value is None:
+        return True
+    if isinstance(value, (float, np.floating)):
+        return math.isnan(float(value))
+    return False
+
+
+def as_labels(y: Any, name: str = "y", n: int | None = None) -> tuple[tuple, np.ndarray]:
+    """Return the sorted distinct labels of ``y`` and the code (index into them) of each row.
+
+    Labels may be of any hashable, mutually comparable type (bool, int, float, str).
+    Missing values (None, NaN) are an error naming the row.
+    """
+    if y is None:
+        raise InputError(f"{name} is None; pass one label per row")
+    raw = _to_numpy(y)
+    arr = np.asarray(raw)
+    if arr.ndim == 2 and 1 in arr.shape and arr.size > 0:
+        raise InputError(
+            f"{name} has shape {arr.shape}; pass a 1-D array of labels ({name}.ravel())"
+        )
+    if arr.ndim != 1:
+        raise InputError(f"{name} must be 1-D (one label per row); got shape {arr.shape}")
+    if n is not None and arr.shape[0] != n:
+        raise InputError(
+            f"{name} has {arr.shape[0]} labels but X has {n} rows; pass one label per row"
+        )
+    if arr.shape[0] == 0:
+        raise InputError(f"{name} is empty; pass at least one label")
+    values = arr.tolist()
+    for i, v in enumerate(values):
+        if _is_missing(v):
+            raise InputError(
+                f"{name} has a missing label at row {i}; drop or label that row first"
+            )
+        if isinstance(v, float) and not math.isfinite(v):
+            raise InputError(f"{name} has an infinite label at row {i}; labels must be finite")
+    try:
+        classes = tuple(sorted(set(values)))
+    except TypeError:
+        raise InputError(
+            f"{name} mixes label types that cannot be ordered (for example numbers and "
+            "text); use one type for every label"
+        ) from None
+    lookup = {c: k for k, c in enumerate(classes)}
+    codes = np.fromiter((lookup[v] for v in values), dtype=np.intp, count=len(values))
+    return classes, codes
+
+
+def as_weights(weights: Any, n: int, name: str = "weights") -> np.ndarray:
+    """Return case weights as a new float64 array: ones when None; else checked.
+
+    Weights must be finite and non-negative with a positive total.
+    """
+    if weights is None:
+        return np.ones(n)
+    w = as_vector(weights, name, n)
+    if (w < 0).any():
+        i = int(np.argmax(w < 0))
+        raise InputError(
+            f"{name} has a negative value ({w[i]}) at row {i}; weights must be >= 0"
+        )
+    if not w.sum() > 0:
+        raise InputError(f"{name} are all zero; at least one row needs a positive weight")
+    return w
+
+
+def as_offset(offset: Any, n: int, k: int | None = None, name: str = "offset") -> np.ndarray:
+    """Return an offset of shape (n,) (or (n, k) when ``k`` is given); zeros when None."""
+    if offset is None:
+        return np.zeros(n) if k is None else np.zeros((n, k))
+    if k is None:
+        return as_vector(offset, name, n)
+    arr = _as_float(offset, name)
+    if arr.shape != (n, k):
+        raise InputError(
+            f"{name} has shape {arr.shape}; pass an array of shape ({n}, {k}) "
+            "(one column per class)"
+        )
+    _check_finite(arr, name)
+    return arr
+
+
+def check_names(names: Any, p: int, found: tuple[str, ...] | None, prefix: str = "x") -> tuple[str, ...]:
+    """Return coefficient names: ``names`` if given, else the column names found, else x1..xp."""
+    if names is None:
+        return found if found is not None else tuple(f"{prefix}{j + 1}" for j in range(p))
+    if isinstance(names, str):
+        raise InputError("names is a single string; pass a sequence with one name per column")
+    out = tuple(str(v) for v in names)
+    if len(out) != p:
+        raise InputError(f"names has {len(out)} entries but X has {p} columns; pass one name per column")
+    if len(set(out)) != len(out):
+        dup = next(v for v in out if out.count(v) > 1)
+        raise InputError(f"names has the name '{dup}' more than once; names must be distinct")
+    return out
+
+
+def check_nonnegative(value: Any, name: str) -> float:
+    """Return ``value`` as a float, checking it is finite and >= 0."""
+    if isinstance(value, bool) or not isinstance(value, numbers.Real):
+        raise InputError(f"{name} must be a real number >= 0; got {value!r}")
+    v = float(value)
+    if not math.isfinite(v) or v < 0:
+        raise InputError(f"{name} must be a finite number >= 0; got {value!r}")
+    return v
+
+
+def check_choice(value: Any, name: str, options: Sequence[Any]) -> Any:
+    """Check that ``value`` is one of ``options``."""
+    if value not in options:
+        shown = ", ".join(repr(o) for o in options)
+        raise InputError(f"{name}={value!r} is not one of {shown}")
+    return value
+
+
+def check_positive_int(value: Any, name: str, minimum: int = 1) -> int:
+    """Check that ``value`` is an integer >= ``minimum``."""
+    if isinstance(value, bool) or not isinstance(value, numbers.Integral):
+        raise InputError(f"{name} must be an integer >= {minimum}; got {value!r}")
+    if value < minimum:
+        raise InputError(f"{name} must be >= {minimum}; got {value}")
+    return int(value)
+
+
+def check_probabilities(p: Any, name: str = "p", n: int | None = None) -> np.ndarray:
+    """Return probabilities as a new float64 array (1-D, or 2-D with rows summing to 1)."""
+    arr = _as_float(p, name)
+    if arr.ndim not in (1, 2) or arr.size == 0:
+        raise InputError(f"{name} must be a non-empty 1-D array or (rows, classes) matrix; got shape {arr.shape}")
+    if n is not None and arr.shape[0] != n:
+        raise InputError(f"{name} has {arr.shape[0]} rows but the labels have {n}; pass one row per label")
+    _check_finite(arr, name)
+    bad = (arr < 0) | (arr > 1)
+    if bad.any():
+        index = tuple(int(i) for i in np.argwhere(bad)[0])
+        raise InputError(
+            f"{name} has a value outside [0, 1] ({arr[index]}) at {_position(index, None)}; "
+            "pass probabilities, not scores or logits"
+        )
+    return arr

@@ -1,0 +1,73 @@
+"""Dense linear-algebra helpers built on NumPy's LAPACK bindings.
+
+NumPy exposes Householder QR, Cholesky and SVD but no triangular solver, so the
+triangular solves live here.  Rank detection works on the R factor of a column-scaled
+matrix (see :func:`aliased_columns`).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+__all__ = [
+    "solve_upper",
+    "solve_lower",
+    "inverse_upper",
+    "aliased_columns",
+    "condition_number",
+    "default_rank_tolerance",
+]
+
+
+def solve_upper(R: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """Solve ``R x = b`` by back substitution for upper-triangular ``R`` (b 1-D or 2-D)."""
+    R = np.asarray(R, dtype=float)
+    x = np.array(b, dtype=float, copy=True)
+    p = R.shape[0]
+    for j in range(p - 1, -1, -1):
+        x[j] = x[j] / R[j, j]
+        if j:
+            x[:j] -= np.multiply.outer(R[:j, j], x[j]) if x.ndim > 1 else R[:j, j] * x[j]
+    return x
+
+
+def solve_lower(L: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """Solve ``L x = b`` by forward substitution for lower-triangular ``L``."""
+    L = np.asarray(L, dtype=float)
+    x = np.array(b, dtype=float, copy=True)
+    p = L.shape[0]
+    for j in range(p):
+        x[j] = x[j] / L[j, j]
+        if j < p - 1:
+            x[j + 1 :] -= np.multiply.outer(L[j + 1 :, j], x[j]) if x.ndim > 1 else L[j + 1 :, j] * x[j]
+    return x
+
+
+def inverse_upper(R: np.ndarray) -> np.ndarray:
+    """Return ``R^{-1}`` for a non-singular upper-triangular ``R``."""
+    return solve_upper(R, np.eye(R.shape[0]))
+
+
+def default_rank_tolerance(n: int, p: int) -> float:
+    """The documented rank tolerance: ``max(n, p) * eps`` (LAPACK's customary choice)."""
+    return max(n, p) * np.finfo(float).eps
+
+
+def aliased_columns(R: np.ndarray, column_norms: np.ndarray, tol: float) -> np.ndarray:
+    """Indices of columns that are numerically in the span of the columns before them.
+
+    For a QR factorisation without pivoting, ``|R[j, j]|`` is the length of the part of
+    column ``j`` orthogonal to columns ``0..j-1``.  Column ``j`` is declared aliased
+    when that length is at most ``tol`` times the column's own length, so the earliest
+    columns of a dependent set are kept (the "first come" rule).
+    """
+    d = np.abs(np.diag(R))
+    return np.flatnonzero(d <= tol * np.maximum(column_norms, np.finfo(float).tiny))
+
+
+def condition_number(R: np.ndarray) -> float:
+    """2-norm condition number of a square triangular factor, from its singular values."""
+    if R.shape[0] == 0:
+        return 1.0
+    s = np.linalg.svd(R, compute_uv=False)
+    return float(s[0] / s[-1]) if s[-1] > 0 else float("inf")
