@@ -14,6 +14,15 @@ from ._errors import (
 from ._records import CoefficientTable, Convergence, LinearFit
 from .io import load, save
 from .least_squares import least_squares
+from .splitting import (
+    SmallClassWarning,
+    SplitBalance,
+    repeated_stratified_folds,
+    split_balance,
+    stratified_bootstrap,
+    stratified_folds,
+    stratified_holdout,
+)
 
 __version__ = "0.1.0"
 
@@ -30,4 +39,11 @@ __all__ = [
     "least_squares",
     "load",
     "save",
+    "SmallClassWarning",
+    "SplitBalance",
+    "repeated_stratified_folds",
+    "split_balance",
+    "stratified_bootstrap",
+    "stratified_folds",
+    "stratified_holdout",
 ]
