@@ -1,16 +1,31 @@
-"""The command line.
+"""The command line: ``lintools <command>`` or ``python -m lintools <command>``.
 
-``lintools demo``  fits the inspection-station demo and prints its reports.
+Commands
+--------
+demo         fit the built-in inspection-station demo and print its reports
+fit          fit a model to a CSV file, print the report, optionally write the model file
+folds        write a CSV file with a stratified fold-id column added
 
-Exit codes: 0 success, 1 a check failed, 2 bad input.
+Exit codes: 0 success, 1 a check failed (or a fit did not converge), 2 bad input.
+``--json`` prints one machine-readable JSON document on standard output instead of text
+(non-finite numbers become ``null``).  Per-iteration progress goes to standard error for
+fits that take longer than a second, unless ``--quiet``.
 """
 
 from __future__ import annotations
 
 import argparse
+import csv
+import json
+import math
 import sys
+import time
+import warnings
+from typing import Any
 
-from ._errors import InputError, LintoolsError
+import numpy as np
+
+from ._errors import InputError, IterationLimitWarning, LintoolsError
 
 CAUTION = (
     "Caution: statistical agreement is not model validation. Where these results feed "
@@ -19,12 +34,150 @@ CAUTION = (
 )
 
 
-def _demo(args: argparse.Namespace) -> int:
+def _clean(value: Any) -> Any:
+    """Make a value strict-JSON: arrays to lists, non-finite floats to None."""
+    if isinstance(value, dict):
+        return {str(k): _clean(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_clean(v) for v in value]
+    if isinstance(value, np.ndarray):
+        return _clean(value.tolist())
+    if isinstance(value, (np.floating, float)):
+        v = float(value)
+        return v if math.isfinite(v) else None
+    if isinstance(value, (np.integer,)):
+        return int(value)
+    if isinstance(value, np.bool_):
+        return bool(value)
+    return value
+
+
+def _emit_json(doc: dict) -> None:
+    print(json.dumps(_clean(doc), allow_nan=False, indent=1))
+
+
+class _Progress:
+    """``on_iteration`` callback: prints to stderr once a fit has run for a second."""
+
+    def __init__(self, quiet: bool) -> None:
+        self.quiet = quiet
+        self.start = time.perf_counter()
+
+    def __call__(self, record: Any) -> None:
+        if self.quiet or time.perf_counter() - self.start < 1.0:
+            return
+        print(
+            f"  iteration {record.iteration}: objective {record.objective:.12g}, "
+            f"max |gradient| {record.gradient_norm:.3g}",
+            file=sys.stderr,
+            flush=True,
+        )
+
+
+def _features(text: str | None) -> list[str] | None:
+    if text is None:
+        return None
+    names = [t.strip() for t in text.split(",") if t.strip()]
+    if not names:
+        raise InputError("--features is empty; pass column names separated by commas")
+    return names
+
+
+def _fit_table(table: Any, args: argparse.Namespace, progress: _Progress) -> Any:
+    from . import least_squares
+
+    if args.model == "linear":
+        if not all(isinstance(v, (int, float)) for v in table.target):
+            raise InputError(f"target column '{args.target}' holds text; a linear model needs numbers")
+        return least_squares(
+            table.X, np.array(table.target, dtype=float), weights=table.weights, l2=args.l2,
+            covariance=args.covariance, names=table.names,
+        )
+    import lintools
+
+    kind = {"logistic": "logistic", "softmax": "softmax"}[args.model]
+    if not hasattr(lintools, kind):
+        raise InputError(f"--model {args.model} is not available in this build of lintools")
+    fn = getattr(lintools, kind)
+    return fn(
+        table.X, list(table.target), weights=table.weights, l2=args.l2, solver=args.solver,
+        names=table.names, on_iteration=progress,
+    )
+
+
+def _cmd_fit(args: argparse.Namespace) -> int:
+    from .io import save
+    from .table import read_table
+
+    table = read_table(
+        args.csv, target=args.target, features=_features(args.features), weights=args.weights,
+        drop_missing=args.drop_missing,
+    )
+    progress = _Progress(args.quiet or args.json)
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        fit = _fit_table(table, args, progress)
+    if args.save:
+        save(fit, args.save)
+    converged = bool(fit.convergence.converged)
+    if args.json:
+        _emit_json({"fit": fit.to_dict(), "warnings": [str(w.message) for w in caught],
+                    "dropped_rows": table.dropped, "reference_levels": table.reference_levels})
+    else:
+        for w in caught:
+            print(f"warning: {w.message}", file=sys.stderr)
+        if table.dropped:
+            print(f"{table.dropped} line(s) with missing values dropped", file=sys.stderr)
+        print(fit.report())
+        if table.reference_levels:
+            refs = ", ".join(f"{k}={v}" for k, v in table.reference_levels.items())
+            print(f"reference levels of text columns: {refs}")
+        if args.save:
+            print(f"model written to {args.save}")
+        print(CAUTION)
+    if not converged or any(issubclass(w.category, IterationLimitWarning) for w in caught):
+        print("lintools: the fit did not converge; its numbers are not an optimum", file=sys.stderr)
+        return 1
+    return 0
+
+
+def _cmd_folds(args: argparse.Namespace) -> int:
+    from .splitting import stratified_folds
+    from .table import read_table
+
+    extra = [args.label] + ([args.groups] if args.groups else [])
+    table = read_table(args.csv, target=None, features=[], extra=extra)
+    groups = table.extra[args.groups] if args.groups else None
+    folds = stratified_folds(list(table.extra[args.label]), k=args.k, seed=args.seed, groups=groups)
+    with open(args.csv, newline="", encoding="utf-8-sig") as fh:
+        rows = list(csv.reader(fh))
+    header = rows[0]
+    if args.column in [h.strip() for h in header]:
+        raise InputError(f"the file already has a column named '{args.column}'; pass another --column")
+    by_line = dict(zip(table.lines.tolist(), folds.tolist()))
+    with open(args.out, "w", newline="", encoding="utf-8") as fh:
+        writer = csv.writer(fh)
+        writer.writerow(header + [args.column])
+        for lineno, row in enumerate(rows[1:], start=2):
+            if lineno in by_line:
+                writer.writerow(row + [by_line[lineno]])
+    counts = np.bincount(folds, minlength=args.k).tolist()
+    if args.json:
+        _emit_json({"folds": args.k, "rows_per_fold": counts, "written": args.out})
+    else:
+        print(f"{len(folds)} rows in {args.k} folds (rows per fold: {counts}); written to {args.out}")
+    return 0
+
+
+def _cmd_demo(args: argparse.Namespace) -> int:
     from .demo import inspection_data
     from .least_squares import least_squares
 
     data = inspection_data(n=args.rows, seed=args.seed)
     fit = least_squares(data.X, data.fill_deviation, names=data.names)
+    if args.json:
+        _emit_json({"fill_deviation": fit.to_dict()})
+        return 0
     print("Fill-volume deviation (ml) at the inspection station, by least squares\n")
     print(fit.report())
     print(CAUTION)
@@ -34,16 +187,50 @@ def _demo(args: argparse.Namespace) -> int:
 def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(prog="lintools", description="Fit and audit linear and logistic models.")
     sub = parser.add_subparsers(dest="command", required=True)
+
+    def common(p: argparse.ArgumentParser) -> None:
+        p.add_argument("--json", action="store_true", help="print one JSON document instead of text")
+        p.add_argument("--quiet", action="store_true", help="no progress lines on standard error")
+
     demo = sub.add_parser("demo", help="fit the built-in inspection-station demo and print the reports")
     demo.add_argument("--rows", type=int, default=2000, help="number of inspection records (default 2000)")
     demo.add_argument("--seed", type=int, default=20261201, help="seed of the data generator")
-    demo.set_defaults(run=_demo)
+    common(demo)
+    demo.set_defaults(run=_cmd_demo)
+
+    fit = sub.add_parser("fit", help="fit a model to a CSV file and print the report")
+    fit.add_argument("csv", help="CSV file with a header line")
+    fit.add_argument("--target", required=True, help="the response column")
+    fit.add_argument("--features", help="feature columns, comma-separated (default: all others)")
+    fit.add_argument("--model", choices=["linear", "logistic", "softmax"], default="linear")
+    fit.add_argument("--l2", type=float, default=0.0, help="ridge strength on the slopes (default 0)")
+    fit.add_argument("--weights", help="column of case weights")
+    fit.add_argument("--covariance", default="classical", help="linear model: classical, HC0, HC1, HC2 or HC3")
+    fit.add_argument("--solver", default="newton", help="logistic and softmax: newton, lbfgs or gradient")
+    fit.add_argument("--drop-missing", action="store_true", help="drop lines with missing values instead of stopping")
+    fit.add_argument("--save", help="write the fitted model to this JSON model file")
+    common(fit)
+    fit.set_defaults(run=_cmd_fit)
+
+    folds = sub.add_parser("folds", help="add a stratified fold-id column to a CSV file")
+    folds.add_argument("csv", help="CSV file with a header line")
+    folds.add_argument("--label", required=True, help="the class-label column to stratify on")
+    folds.add_argument("--k", type=int, default=5, help="number of folds (default 5)")
+    folds.add_argument("--seed", type=int, default=0)
+    folds.add_argument("--groups", help="column of group labels; a group is never split")
+    folds.add_argument("--column", default="fold", help="name of the new column (default 'fold')")
+    folds.add_argument("--out", required=True, help="the CSV file to write")
+    common(folds)
+    folds.set_defaults(run=_cmd_folds)
     return parser
 
 
 def main(argv: list[str] | None = None) -> int:
     parser = build_parser()
-    args = parser.parse_args(argv)
+    try:
+        args = parser.parse_args(argv)
+    except SystemExit as exc:  # argparse: 2 on bad usage, 0 on --help
+        return int(exc.code or 0)
     try:
         return args.run(args)
     except InputError as exc:
@@ -52,3 +239,6 @@ def main(argv: list[str] | None = None) -> int:
     except LintoolsError as exc:
         print(f"lintools: {exc}", file=sys.stderr)
         return 1
+    except OSError as exc:
+        print(f"lintools: {exc}", file=sys.stderr)
+        return 2

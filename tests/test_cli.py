@@ -1,0 +1,86 @@
+"""The command line, end to end by subprocess: exit codes, text and --json output."""
+
+import csv
+import json
+import subprocess
+import sys
+
+import numpy as np
+import statsmodels.api as sm
+
+import lintools as lt
+
+
+def run(*args, cwd=None):
+    return subprocess.run([sys.executable, "-m", "lintools", *args], capture_output=True, text=True, timeout=120, cwd=cwd)
+
+
+def _stackloss_csv(tmp_path):
+    # Brownlee's stack-loss data as shipped by statsmodels' datasets.
+    d = sm.datasets.stackloss.load_pandas().data
+    path = tmp_path / "stackloss.csv"
+    d.to_csv(path, index=False)
+    return path, d
+
+
+def test_fit_linear_json_matches_the_library_and_writes_a_model_file(tmp_path):
+    path, d = _stackloss_csv(tmp_path)
+    model = tmp_path / "m.json"
+    proc = run("fit", str(path), "--target", "STACKLOSS", "--covariance", "HC1", "--save", str(model), "--json")
+    assert proc.returncode == 0, proc.stderr
+    doc = json.loads(proc.stdout)
+    ref = lt.least_squares(d[["AIRFLOW", "WATERTEMP", "ACIDCONC"]], d["STACKLOSS"], covariance="HC1")
+    assert np.allclose(doc["fit"]["coefficients"], ref.coefficients, rtol=1e-13, atol=0)
+    assert doc["fit"]["names"] == ["AIRFLOW", "WATERTEMP", "ACIDCONC"]
+    back = lt.load(model)
+    assert np.array_equal(back.coefficients, ref.coefficients)
+
+
+def test_fit_text_report_and_caution(tmp_path):
+    path, _ = _stackloss_csv(tmp_path)
+    proc = run("fit", str(path), "--target", "STACKLOSS", "--features", "AIRFLOW,WATERTEMP")
+    assert proc.returncode == 0, proc.stderr
+    assert "AIRFLOW" in proc.stdout and "ACIDCONC" not in proc.stdout
+    assert "statistical agreement is not model validation" in proc.stdout
+
+
+def test_bad_input_exits_2_with_a_message(tmp_path):
+    path, _ = _stackloss_csv(tmp_path)
+    proc = run("fit", str(path), "--target", "NOPE")
+    assert proc.returncode == 2
+    assert "target column 'NOPE' is not in" in proc.stderr or "the column 'NOPE' is not in" in proc.stderr
+    proc = run("fit", str(tmp_path / "missing.csv"), "--target", "y")
+    assert proc.returncode == 2 and "cannot read" in proc.stderr
+    proc = run("fit")
+    assert proc.returncode == 2
+
+
+def test_missing_values_stop_or_are_dropped(tmp_path):
+    path = tmp_path / "gaps.csv"
+    path.write_text("a,b,y\n1,2,3.5\n2,,4.1\n3,1,5.2\n4,3,7.9\n5,5,8.8\n6,2,9.1\n")
+    proc = run("fit", str(path), "--target", "y")
+    assert proc.returncode == 2 and "line 3, column 'b': missing value" in proc.stderr
+    proc = run("fit", str(path), "--target", "y", "--drop-missing", "--json")
+    assert proc.returncode == 0, proc.stderr
+    assert json.loads(proc.stdout)["dropped_rows"] == 1
+
+
+def test_folds_writes_a_balanced_fold_column(tmp_path):
+    path = tmp_path / "labels.csv"
+    labels = ["leak"] * 10 + ["ok"] * 25
+    path.write_text("id,label\n" + "".join(f"{i},{c}\n" for i, c in enumerate(labels)))
+    out = tmp_path / "folds.csv"
+    proc = run("folds", str(path), "--label", "label", "--k", "5", "--out", str(out), "--json")
+    assert proc.returncode == 0, proc.stderr
+    assert json.loads(proc.stdout)["rows_per_fold"] == [7] * 5
+    with open(out, newline="") as fh:
+        rows = list(csv.DictReader(fh))
+    assert [r["id"] for r in rows] == [str(i) for i in range(35)]
+    for fold in range(5):
+        assert sum(r["label"] == "leak" and r["fold"] == str(fold) for r in rows) == 2
+
+
+def test_demo_runs(tmp_path):
+    proc = run("demo", cwd=tmp_path)
+    assert proc.returncode == 0, proc.stderr
+    assert "fill_temperature" in proc.stdout and "Caution" in proc.stdout
