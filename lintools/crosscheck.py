@@ -1,0 +1,310 @@
+"""Comparing delivered coefficients with a refit, and the ridge strength they imply.
+
+A validator holds a model someone else fitted (its coefficients) and the development
+data.  Two questions have statistical answers:
+
+1. *Are the delivered coefficients the refit's, up to sampling noise?*  With the refit
+   :math:`\\hat\\theta`, its covariance :math:`V` and the delivered :math:`\\theta_0`,
+   the Wald statistic :math:`W = d' V^{-1} d`, :math:`d = \\theta_0 - \\hat\\theta`, is
+   referred to :math:`\\chi^2_q`.  With the data, the score (Lagrange-multiplier) test at
+   :math:`\\theta_0`, :math:`S = U(\\theta_0)' I(\\theta_0)^{-1} U(\\theta_0)`, asks whether
+   the delivered coefficients solve the objective on these data (Rao 1948).
+2. *Do they solve a ridge-penalised objective?*  At a penalised optimum the gradient of
+   the unpenalised loss satisfies :math:`g_\\beta + \\lambda \\beta = 0` and
+   :math:`g_b = 0`; :func:`implied_l2` returns the least-squares :math:`\\lambda` and the
+   relative residual that says whether any :math:`\\lambda` does.
+
+References
+----------
+Rao, C. R. (1948). Large sample tests of statistical hypotheses concerning several
+parameters with applications to problems of estimation. Proc. Cambridge Phil. Soc. 44.
+Wald, A. (1943). Tests of statistical hypotheses concerning several parameters when the
+number of observations is large. Trans. AMS 54, 426-482.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any, Mapping
+
+import numpy as np
+
+from . import _distributions as dist
+from ._errors import InputError
+from ._records import INTERCEPT_NAME
+from ._validate import as_matrix, as_vector, as_weights, check_choice
+
+__all__ = ["CoefficientComparison", "compare_coefficients", "ImpliedPenalty", "implied_l2"]
+
+
+@dataclass(frozen=True)
+class CoefficientComparison:
+    """Result of :func:`compare_coefficients`; parameter order = the refit's, intercept first."""
+
+    terms: tuple[str, ...]
+    delivered: np.ndarray
+    refit: np.ndarray
+    difference: np.ndarray
+    difference_in_se: np.ndarray
+    wald_statistic: float
+    wald_degrees_of_freedom: int
+    wald_p_value: float
+    score_statistic: float | None
+    score_p_value: float | None
+    max_abs_prediction_difference: float | None
+    mean_abs_prediction_difference: float | None
+
+    def report(self) -> str:
+        """A text table of the per-term differences and the two tests."""
+        w = max(len(t) for t in self.terms + ("term",))
+        lines = [
+            "term".ljust(w) + "delivered".rjust(15) + "refit".rjust(15) + "difference".rjust(14) + "in SEs".rjust(9),
+        ]
+        lines.append("-" * len(lines[0]))
+        for i, t in enumerate(self.terms):
+            lines.append(
+                t.ljust(w) + f"{self.delivered[i]:15.7g}{self.refit[i]:15.7g}{self.difference[i]:14.4g}"
+                f"{self.difference_in_se[i]:9.2f}"
+            )
+        lines.append("")
+        lines.append(
+            f"Wald test that the delivered coefficients equal the refit: chi2 {self.wald_statistic:.4g} "
+            f"on {self.wald_degrees_of_freedom} df, p {self.wald_p_value:.4g}"
+        )
+        if self.score_statistic is not None:
+            lines.append(
+                f"Score test that the delivered coefficients solve the objective on these data: "
+                f"chi2 {self.score_statistic:.4g} on {self.wald_degrees_of_freedom} df, p {self.score_p_value:.4g}"
+            )
+        if self.max_abs_prediction_difference is not None:
+            lines.append(
+                f"Predictions: largest absolute difference {self.max_abs_prediction_difference:.4g}, "
+                f"mean {self.mean_abs_prediction_difference:.4g}"
+            )
+        return "\n".join(lines)
+
+
+def _align(fit: Any, coefficients: Any, intercept: Any, names: Any) -> tuple[np.ndarray, np.ndarray]:
+    """Delivered (p,) or (p, K) slopes in the refit's order, and the delivered intercept."""
+    shape = np.shape(fit.coefficients)
+    if isinstance(coefficients, Mapping) or names is not None:
+        if isinstance(coefficients, Mapping):
+            given = {str(k): v for k, v in coefficients.items()}
+        else:
+            arr = np.asarray(coefficients, dtype=float)
+            if len(names) != arr.shape[0]:
+                raise InputError(f"names has {len(names)} entries but coefficients has {arr.shape[0]} rows")
+            given = {str(n): arr[i] for i, n in enumerate(names)}
+        if INTERCEPT_NAME in given:
+            if intercept is not None:
+                raise InputError(f"the intercept is given twice: as '{INTERCEPT_NAME}' and as intercept=")
+            intercept = given.pop(INTERCEPT_NAME)
+        missing = [n for n in fit.names if n not in given]
+        extra = [n for n in given if n not in fit.names]
+        if missing or extra:
+            raise InputError(
+                "the delivered coefficient names do not match the refit: "
+                + (f"missing {missing}" if missing else "")
+                + ("; " if missing and extra else "")
+                + (f"not in the refit {extra}" if extra else "")
+                + "; rename or refit with the same columns"
+            )
+        coef = np.array([np.asarray(given[n], dtype=float) for n in fit.names])
+    else:
+        coef = np.asarray(coefficients, dtype=float)
+    if coef.shape != shape:
+        raise InputError(f"coefficients has shape {coef.shape} but the refit's is {shape}; pass one per refit coefficient ({', '.join(fit.names)})")
+    if not np.all(np.isfinite(coef)):
+        raise InputError("coefficients holds a non-finite value; a delivered model must be finite")
+    if intercept is not None:
+        intercept = np.asarray(intercept, dtype=float)
+        if intercept.shape != np.shape(fit.intercept):
+            raise InputError(f"intercept has shape {intercept.shape} but the refit's is {np.shape(fit.intercept)}")
+        if not fit.with_intercept:
+            raise InputError("an intercept was delivered but the refit has none; refit with intercept=True")
+    return coef, intercept
+
+
+def _free_vector(fit: Any, coef: np.ndarray, intercept: Any) -> tuple[np.ndarray, np.ndarray]:
+    """Parameter vector in the order of ``fit.covariance`` and the index of the compared ones."""
+    if fit.kind == "softmax":
+        return fit._free_parameters(coef, intercept)
+    with_b = fit.with_intercept
+    b = float(fit.intercept) if intercept is None else float(intercept)
+    theta = np.concatenate([[b] if with_b else [], np.ravel(coef)])
+    idx = np.arange(theta.size)
+    if with_b and intercept is None:
+        idx = idx[1:]
+    return theta, idx
+
+
+def compare_coefficients(
+    fit: Any,
+    coefficients: Any,
+    intercept: Any = None,
+    *,
+    X: Any = None,
+    y: Any = None,
+    weights: Any = None,
+    names: Any = None,
+) -> CoefficientComparison:
+    """Compare delivered coefficients with a lintools refit.
+
+    Parameters
+    ----------
+    fit : LinearFit, LogisticFit or SoftmaxFit
+        The refit on the development data.
+    coefficients : array-like or mapping
+        Delivered slopes in the refit's column order, or a mapping name -> value (the
+        key ``"(intercept)"`` may carry the intercept).  With ``names`` an array is
+        matched by name.
+    intercept : float or array-like, optional
+        Delivered intercept; when omitted it is not compared.
+    X : array-like, optional
+        Rows on which to compare predictions (the mean response) and, with ``y``, to run
+        the score test.
+    y, weights : array-like, optional
+        The development responses (and case weights) for the score test.
+
+    Returns
+    -------
+    CoefficientComparison
+    """
+    coef, b_deliv = _align(fit, coefficients, intercept, names)
+    theta0, idx = _free_vector(fit, coef, b_deliv)
+    theta_hat, _ = _free_vector(fit, np.asarray(fit.coefficients), None if b_deliv is None else fit.intercept)
+    d = (theta0 - theta_hat)[idx]
+    V = np.asarray(fit.covariance)[np.ix_(idx, idx)]
+    se = np.sqrt(np.diag(V))
+    try:
+        L = np.linalg.cholesky(V)
+    except np.linalg.LinAlgError:
+        raise InputError("the refit's covariance is not positive definite; the Wald comparison is undefined") from None
+    u = np.linalg.solve(L, d)
+    wald = float(u @ u)
+    q = int(idx.size)
+    terms = fit._parameter_terms() if hasattr(fit, "_parameter_terms") else (
+        ((INTERCEPT_NAME,) if fit.with_intercept else ()) + tuple(fit.names)
+    )
+    terms = tuple(np.array(terms, dtype=object)[idx])
+
+    score = score_p = None
+    max_d = mean_d = None
+    if X is not None:
+        Xa = fit._design(X)
+        b_used = fit.intercept if b_deliv is None else b_deliv
+        delivered_mean = _mean(fit, Xa, coef, b_used)
+        diff = np.abs(delivered_mean - fit.mean(Xa))
+        max_d, mean_d = float(diff.max()), float(diff.mean())
+        if y is not None:
+            score = _score_statistic(fit, Xa, y, weights, coef, b_used, idx)
+            score_p = float(dist.chi2_sf(score, q))
+    elif y is not None:
+        raise InputError("y was given without X; the score test needs both")
+    return CoefficientComparison(
+        terms=terms,
+        delivered=theta0[idx],
+        refit=theta_hat[idx],
+        difference=d,
+        difference_in_se=d / se,
+        wald_statistic=wald,
+        wald_degrees_of_freedom=q,
+        wald_p_value=float(dist.chi2_sf(wald, q)),
+        score_statistic=score,
+        score_p_value=score_p,
+        max_abs_prediction_difference=max_d,
+        mean_abs_prediction_difference=mean_d,
+    )
+
+
+def _mean(fit: Any, Xa: np.ndarray, coef: np.ndarray, b: Any) -> np.ndarray:
+    if fit.kind == "least_squares":
+        return Xa @ coef + float(b)
+    return fit._mean_from(Xa @ coef + b)
+
+
+def _score_statistic(fit, Xa, y, weights, coef, b, idx) -> float:
+    """``U' I^{-1} U`` at the delivered coefficients (penalised objective when l2 > 0)."""
+    n = Xa.shape[0]
+    free_intercept = fit.with_intercept and 0 not in idx
+    if fit.kind != "least_squares":
+        U, info = fit._score_and_information(Xa, y, weights, coef, b, free_intercept)
+    else:
+        ya = as_vector(y, "y", n)
+        w = as_weights(weights, n)
+        if free_intercept:  # constrained estimate of the nuisance intercept
+            b = float(w @ (ya - Xa @ coef)) / float(w.sum())
+        Z = np.column_stack([np.ones(n), Xa]) if fit.with_intercept else Xa
+        r = ya - Z @ np.concatenate([[float(b)] if fit.with_intercept else [], coef])
+        off = int(fit.with_intercept)
+        pen = np.zeros(Z.shape[1])
+        pen[off:] = fit.l2
+        n_obs = w.sum() if fit.weight_type == "case" else float((w > 0).sum())
+        sigma2 = float(w @ (r * r)) / n_obs  # restricted (score-test) variance estimate
+        U = (Z.T @ (w * r) - pen * np.concatenate([[0.0] * off, coef])) / sigma2
+        info = (Z.T @ (Z * w[:, None]) + np.diag(pen)) / sigma2
+    # efficient score for the compared parameters: the nuisance intercept, when not
+    # delivered, sits at its constrained estimate (its score is zero there)
+    Uq = U[idx]
+    Vq = np.linalg.inv(info)[np.ix_(idx, idx)]
+    return float(Uq @ Vq @ Uq)
+
+
+@dataclass(frozen=True)
+class ImpliedPenalty:
+    """Result of :func:`implied_l2`.
+
+    ``l2`` is the least-squares solution of ``g_beta + l2 * beta = 0``; ``residual`` is
+    ``|g_beta + l2 beta| / |g_beta|`` (0 when the coefficients are exactly a ridge
+    optimum for some l2; near 1 when no l2 explains them); ``intercept_gradient`` is the
+    unpenalised intercept's gradient, which must also vanish.
+    """
+
+    l2: float
+    residual: float
+    intercept_gradient: float
+    gradient_norm: float
+
+
+def implied_l2(
+    X: Any,
+    y: Any,
+    coefficients: Any,
+    intercept: Any = None,
+    *,
+    model: str = "logistic",
+    weights: Any = None,
+) -> ImpliedPenalty:
+    r"""The ridge strength that makes delivered coefficients a penalised optimum.
+
+    At a minimum of ``loss(b, beta) + l2/2 |beta|^2`` the slopes satisfy
+    :math:`\nabla_\beta \text{loss} + \lambda\beta = 0`.  Given :math:`\beta`, the
+    least-squares :math:`\lambda = -g'\beta / \beta'\beta` is returned with the relative
+    residual of that equation.  ``model`` is ``"least_squares"``, ``"logistic"`` or
+    ``"softmax"``; the losses are this library's (half the weighted residual sum of
+    squares, or the negative weighted log-likelihood).
+    """
+    check_choice(model, "model", ("least_squares", "logistic", "softmax"))
+    Xa, _ = as_matrix(X, "X")
+    n = Xa.shape[0]
+    w = as_weights(weights, n)
+    beta = np.asarray(coefficients, dtype=float)
+    if beta.shape[0] != Xa.shape[1]:
+        raise InputError(f"coefficients has {beta.shape[0]} rows but X has {Xa.shape[1]} columns")
+    if not np.any(beta):
+        raise InputError("coefficients are all zero; no l2 is identified by them")
+    if model == "least_squares":
+        ya = as_vector(y, "y", n)
+        b = 0.0 if intercept is None else float(intercept)
+        r = ya - Xa @ beta - b
+        g = -(Xa.T @ (w * r))
+        g0 = -float(w @ r) if intercept is not None else 0.0
+    else:
+        from .losses import unpenalised_gradient  # binomial and multinomial losses
+
+        g, g0 = unpenalised_gradient(model, Xa, y, w, beta, intercept)
+    gb, bb = np.ravel(g), np.ravel(beta)
+    lam = -float(gb @ bb) / float(bb @ bb)
+    gnorm = float(np.linalg.norm(gb))
+    resid = float(np.linalg.norm(gb + lam * bb)) / gnorm if gnorm > 0 else 0.0
+    return ImpliedPenalty(l2=lam, residual=resid, intercept_gradient=float(np.max(np.abs(g0))), gradient_norm=gnorm)
