@@ -3,7 +3,10 @@
 Every bottle that passes the inspection station is recorded with the conditions it was
 filled under: fill temperature (deg C), line speed (bottles per minute), cap torque (N m),
 nozzle age (days since the nozzle was replaced) and hall humidity (% relative). The
-station measures the fill-volume deviation from the nominal volume in millilitres.
+station measures the fill-volume deviation from the nominal volume in millilitres, tests
+the seal for a leak (yes/no), and sorts visible defects into none, underfill, cap
+misaligned and label skew.  A supplier delivered a leak-risk model for the line; the demo
+refits it and finds where it disagrees.
 
 The data are generated here, deterministically from a seed, from known true coefficients
 (``TRUE_FILL_DEVIATION``), so a fit can be checked against the truth that made them.
@@ -16,7 +19,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["FEATURES", "TRUE_FILL_DEVIATION", "InspectionData", "inspection_data"]
+__all__ = ["FEATURES", "TRUE_FILL_DEVIATION", "TRUE_LEAK", "TRUE_DEFECT", "DEFECT_CLASSES", "InspectionData", "inspection_data", "supplier_leak_model"]
 
 FEATURES = ("fill_temperature", "line_speed", "cap_torque", "nozzle_age", "humidity")
 
@@ -31,6 +34,38 @@ TRUE_FILL_DEVIATION = {
 }
 FILL_NOISE_SD = 0.8
 
+#: Centres used by the true leak and defect models (so intercepts read as baseline risks).
+CENTRES = {"fill_temperature": 18.0, "line_speed": 450.0, "cap_torque": 2.2, "nozzle_age": 60.0, "humidity": 55.0}
+
+#: True leak model: logit P(leak) = intercept + sum slope_j * (x_j - centre_j).
+TRUE_LEAK = {
+    "intercept": -3.0,
+    "fill_temperature": 0.12,
+    "line_speed": 0.004,
+    "cap_torque": -2.5,
+    "nozzle_age": 0.012,
+    "humidity": 0.0,
+}
+
+#: Defect classes; "none" is the reference class of the true softmax model.
+DEFECT_CLASSES = ("none", "underfill", "cap misaligned", "label skew")
+TRUE_DEFECT = {
+    "underfill": {"intercept": -2.2, "fill_temperature": -0.10, "line_speed": 0.006, "cap_torque": 0.0, "nozzle_age": 0.02, "humidity": 0.0},
+    "cap misaligned": {"intercept": -2.6, "fill_temperature": 0.0, "line_speed": 0.002, "cap_torque": -3.0, "nozzle_age": 0.0, "humidity": 0.0},
+    "label skew": {"intercept": -2.4, "fill_temperature": 0.0, "line_speed": 0.003, "cap_torque": 0.0, "nozzle_age": 0.0, "humidity": 0.05},
+}
+
+#: The supplier's leak-risk model (on the raw, uncentred features): it agrees with the
+#: truth except that it understates the cap-torque effect and overstates nozzle wear,
+#: as a model fitted on an older line would.
+SUPPLIER_LEAK_SLOPES = {
+    "fill_temperature": 0.12,
+    "line_speed": 0.004,
+    "cap_torque": -1.5,
+    "nozzle_age": 0.025,
+    "humidity": 0.0,
+}
+
 
 @dataclass(frozen=True)
 class InspectionData:
@@ -39,6 +74,8 @@ class InspectionData:
     X: np.ndarray
     names: tuple[str, ...]
     fill_deviation: np.ndarray
+    leak: np.ndarray
+    defect: np.ndarray
 
 
 def inspection_data(n: int = 2000, seed: int = 20261201) -> InspectionData:
@@ -56,4 +93,22 @@ def inspection_data(n: int = 2000, seed: int = 20261201) -> InspectionData:
     X = np.column_stack([temperature, speed, torque, age, humidity])
     beta = np.array([TRUE_FILL_DEVIATION[f] for f in FEATURES])
     deviation = TRUE_FILL_DEVIATION["intercept"] + X @ beta + rng.normal(0.0, FILL_NOISE_SD, n)
-    return InspectionData(X=X, names=FEATURES, fill_deviation=deviation)
+    Xc = X - np.array([CENTRES[f] for f in FEATURES])
+    leak_eta = TRUE_LEAK["intercept"] + Xc @ np.array([TRUE_LEAK[f] for f in FEATURES])
+    leak = rng.uniform(size=n) < 1.0 / (1.0 + np.exp(-leak_eta))
+    eta = np.zeros((n, len(DEFECT_CLASSES)))
+    for k, name in enumerate(DEFECT_CLASSES[1:], start=1):
+        m = TRUE_DEFECT[name]
+        eta[:, k] = m["intercept"] + Xc @ np.array([m[f] for f in FEATURES])
+    prob = np.exp(eta - eta.max(axis=1, keepdims=True))
+    prob /= prob.sum(axis=1, keepdims=True)
+    u = rng.uniform(size=n)[:, None]
+    code = (u > np.cumsum(prob, axis=1)).sum(axis=1)
+    defect = np.array(DEFECT_CLASSES, dtype=object)[np.minimum(code, len(DEFECT_CLASSES) - 1)]
+    return InspectionData(X=X, names=FEATURES, fill_deviation=deviation, leak=leak, defect=defect)
+
+
+def supplier_leak_model() -> tuple[dict, float]:
+    """The supplier's delivered leak-risk slopes (raw features) and intercept."""
+    centre_shift = sum(SUPPLIER_LEAK_SLOPES[f] * CENTRES[f] for f in FEATURES)
+    return dict(SUPPLIER_LEAK_SLOPES), TRUE_LEAK["intercept"] - centre_shift
