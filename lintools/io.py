@@ -121,11 +121,46 @@ def _decode(value: Any, where: str, types: dict[str, type]) -> Any:
                 f"unknown fields {sorted(extra)}; the file is damaged or from another schema"
             )
         kwargs = {k: _decode(v, f"{where}.{k}", types) for k, v in fields.items()}
+        for f in dataclasses.fields(cls):
+            _check_type(kwargs[f.name], f.type, f"{where}.{f.name}")
         try:
             return cls(**kwargs)
         except (TypeError, ValueError) as exc:
             raise InputError(f"model file: {where} ({name}) could not be built: {exc}") from None
     raise InputError(f"model file: {where} is an object of unknown kind")
+
+
+def _is_number(v: Any) -> bool:
+    return isinstance(v, (int, float)) and not isinstance(v, bool)
+
+
+_SIMPLE = {
+    "float": _is_number,
+    "int": lambda v: isinstance(v, int) and not isinstance(v, bool),
+    "bool": lambda v: isinstance(v, bool),
+    "str": lambda v: isinstance(v, str),
+    "np.ndarray": lambda v: isinstance(v, np.ndarray),
+    "tuple[str, ...]": lambda v: isinstance(v, tuple) and all(isinstance(x, str) for x in v),
+    "tuple[float, float]": lambda v: isinstance(v, tuple) and len(v) == 2 and all(_is_number(x) for x in v),
+    "tuple": lambda v: isinstance(v, tuple) and all(isinstance(x, (str, int, float, bool)) for x in v),
+}
+
+
+def _check_type(value: Any, annotation: Any, where: str) -> None:
+    """Refuse a decoded field whose type does not match the record's annotation."""
+    text = annotation if isinstance(annotation, str) else getattr(annotation, "__name__", str(annotation))
+    options = [t.strip() for t in text.split("|")]
+    for option in options:
+        if option == "None" and value is None:
+            return
+        if option == "Any":
+            return
+        test = _SIMPLE.get(option)
+        if test is not None and test(value):
+            return
+        if test is None and option not in ("None",) and type(value).__name__ == option:
+            return
+    raise InputError(f"model file: {where} holds a {type(value).__name__} where {text} was expected")
 
 
 def _decode_array(value: dict, where: str) -> np.ndarray:

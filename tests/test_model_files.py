@@ -1,0 +1,103 @@
+"""Hostile and damaged JSON model files give clear errors, never a crash or a wrong model."""
+
+import json
+
+import numpy as np
+import pytest
+import statsmodels.api as sm
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+
+import lintools as lt
+from lintools import InputError
+
+
+@pytest.fixture(scope="module")
+def saved(tmp_path_factory):
+    d = sm.datasets.stackloss.load_pandas()  # statsmodels' stack-loss data
+    fit = lt.least_squares(d.exog, d.endog, diagnostics=True)
+    path = tmp_path_factory.mktemp("m") / "model.json"
+    lt.save(fit, path)
+    return path, json.loads(path.read_text())
+
+
+def _write(tmp_path, doc):
+    path = tmp_path / "m.json"
+    path.write_text(doc if isinstance(doc, str) else json.dumps(doc))
+    return path
+
+
+def test_wrong_schema_version_is_refused(tmp_path, saved):
+    _, doc = saved
+    for version in (2, 0, "1", None, True):
+        bad = dict(doc, schema_version=version)
+        with pytest.raises(InputError, match="schema version"):
+            lt.load(_write(tmp_path, bad))
+
+
+@pytest.mark.parametrize(
+    "mutate, fragment",
+    [
+        (lambda d: {"hello": 1}, "not a lintools model file"),
+        (lambda d: [1, 2], "not a lintools model file"),
+        (lambda d: dict(d, record={"$record": "Popen", "fields": {}}), "unknown record type"),
+        (lambda d: dict(d, record={"$record": "LinearFit", "fields": {}}), "missing fields"),
+        (lambda d: dict(d, kind="softmax"), "does not match kind"),
+        (lambda d: {**d, "record": {**d["record"], "fields": {**d["record"]["fields"], "coefficients": {"$array": [1, "x", 3], "shape": [3], "dtype": "float64"}}}}, "where a number was expected"),
+        (lambda d: {**d, "record": {**d["record"], "fields": {**d["record"]["fields"], "coefficients": {"$array": [1, 2], "shape": [3], "dtype": "float64"}}}}, "2 values for shape"),
+        (lambda d: {**d, "record": {**d["record"], "fields": {**d["record"]["fields"], "coefficients": {"$array": [1], "shape": [1], "dtype": "object"}}}}, "malformed array"),
+        (lambda d: {**d, "record": {**d["record"], "fields": {**d["record"]["fields"], "extra": 1}}}, "unknown fields"),
+    ],
+)
+def test_damaged_files_are_refused(tmp_path, saved, mutate, fragment):
+    _, doc = saved
+    with pytest.raises(InputError, match=fragment):
+        lt.load(_write(tmp_path, mutate(json.loads(json.dumps(doc)))))
+
+
+def test_non_json_and_bare_constants_are_refused(tmp_path):
+    with pytest.raises(InputError, match="not valid JSON"):
+        lt.load(_write(tmp_path, "{not json"))
+    with pytest.raises(InputError, match="bare constant NaN"):
+        lt.load(_write(tmp_path, '{"format": NaN}'))
+    with pytest.raises(InputError, match="nested too deeply|not valid JSON"):
+        lt.load(_write(tmp_path, "[" * 100000 + "]" * 100000))
+    with pytest.raises(InputError, match="cannot be read"):
+        lt.load(tmp_path / "absent.json")
+
+
+@settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(st.binary(max_size=400))
+def test_random_bytes_never_crash(tmp_path, blob):
+    # Fuzzing (hypothesis): any bytes either load as a model or raise InputError.
+    path = tmp_path / "fuzz.json"
+    path.write_bytes(blob)
+    with pytest.raises(InputError):
+        lt.load(path)
+
+
+json_values = st.recursive(
+    st.none() | st.booleans() | st.integers() | st.floats(allow_nan=False) | st.text(max_size=8),
+    lambda inner: st.lists(inner, max_size=4) | st.dictionaries(st.sampled_from(["$array", "$float", "$tuple", "$record", "shape", "dtype", "fields", "x"]), inner, max_size=4),
+    max_leaves=20,
+)
+
+
+@settings(max_examples=80, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(json_values, st.sampled_from(["coefficients", "covariance", "names", "convergence", "rank"]))
+def test_random_field_values_are_refused_or_typed(tmp_path, saved, value, field):
+    # Fuzzing (hypothesis): a field replaced by arbitrary JSON loads only as an InputError
+    # or as a record whose field has the annotated type; never another exception.
+    _, doc = saved
+    bad = json.loads(json.dumps(doc))
+    bad["record"]["fields"][field] = value
+    path = tmp_path / "f.json"
+    path.write_text(json.dumps(bad))
+    try:
+        back = lt.load(path)
+    except InputError:
+        return
+    # Only a value of the right type may load, for example an equal array.
+    ref = lt.load(saved[0])
+    got, want = getattr(back, field), getattr(ref, field)
+    assert type(got) is type(want) or (want is None or got is None)
