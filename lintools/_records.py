@@ -288,3 +288,105 @@ class LinearFit(_FitBase):
         if self.aliased:
             facts.append(f"  aliased columns (minimum-norm solution): {', '.join(self.aliased)}")
         return "\n".join(facts) + "\n\n" + render_table(table, "t") + "\n"
+
+
+@dataclass(frozen=True)
+class LogisticFit(_FitBase):
+    """Result of :func:`lintools.logistic` (binary or grouped binomial, logit link).
+
+    Besides the shared fields: ``classes`` (the two sorted labels; ``(0, 1)`` for grouped
+    data, where 1 means a success), ``positive_class`` (the label whose probability the
+    model gives), the ``null_deviance`` of the intercept-only model (offset and weights
+    kept; without an intercept the null model is ``eta = offset``), the likelihood-ratio
+    test against it (``lr_statistic``, ``lr_p_value``, ``lr_degrees_of_freedom``; NaN
+    under an l2 penalty, penalised-likelihood ratio for Firth fits), ``firth``,
+    ``penalised_log_likelihood`` (the maximised objective with its sign flipped), and
+    ``profile_intervals`` ((k, 2), intercept first; None unless requested) at
+    ``profile_level``.  ``n_observations`` is ``sum(w * m)``: the number of Bernoulli
+    trials the rows stand for.
+    """
+
+    classes: tuple = ()
+    positive_class: Any = None
+    null_deviance: float = float("nan")
+    lr_statistic: float = float("nan")
+    lr_p_value: float = float("nan")
+    lr_degrees_of_freedom: int = 0
+    firth: bool = False
+    penalised_log_likelihood: float = float("nan")
+    profile_intervals: np.ndarray | None = None
+    profile_level: float = float("nan")
+    grouped: bool = False
+    has_offset: bool = False
+    target: str = "y"
+
+    kind = "logistic"
+
+    def linear_predictor(self, X: Any, offset: Any = None) -> np.ndarray:
+        """``intercept + X @ coefficients (+ offset)`` for new rows ``X``."""
+        eta = super().linear_predictor(X)
+        if offset is not None:
+            from ._validate import as_offset
+
+            eta = eta + as_offset(offset, eta.shape[0])
+        return eta
+
+    def _mean_from(self, eta: np.ndarray) -> np.ndarray:
+        from .losses import sigmoid
+
+        return sigmoid(eta)
+
+    def mean(self, X: Any, offset: Any = None) -> np.ndarray:
+        """Probability of ``positive_class`` for new rows (overflow-safe logistic function)."""
+        return self._mean_from(self.linear_predictor(X, offset))
+
+    def labels(self, X: Any, offset: Any = None) -> np.ndarray:
+        """Predicted labels (the original label values): the positive class where its probability > 1/2."""
+        eta = self.linear_predictor(X, offset)
+        pos = self.classes.index(self.positive_class)
+        return np.asarray(self.classes)[np.where(eta > 0, pos, 1 - pos)]
+
+    def _score_and_information(self, X, y, weights, coef, b, free_intercept):
+        """Score (gradient of the penalised log-likelihood) and information at given parameters.
+
+        Order: intercept first when fitted.  With ``free_intercept`` the intercept is first
+        set to its constrained maximum-likelihood value given ``coef``.  Used by
+        :func:`lintools.crosscheck.compare_coefficients` (score test).
+        """
+        from .logistic import score_and_information
+
+        return score_and_information(self, X, y, weights, coef, b, free_intercept)
+
+    def report(self, level: float = 0.95) -> str:
+        """Return a plain-text report: the fit's facts, then the coefficient table."""
+        table = self.coefficient_table(level)
+        other = ", ".join(str(c) for c in self.classes)
+        method = "Firth bias-reduced (penalised) likelihood" if self.firth else (
+            f"maximum likelihood, l2 {self.l2:g}" if self.l2 else "maximum likelihood")
+        facts = [
+            f"lintools logistic fit of '{self.target}': probability of {self.positive_class!s} "
+            f"(classes {other}){'; grouped successes out of trials' if self.grouped else ''}",
+            f"  observations {self.n_observations:g}   parameters {len(table.terms)}   {method}"
+            f"{'   offset used' if self.has_offset else ''}",
+            f"  log-likelihood {self.log_likelihood:.10g}   deviance {self.deviance:.10g}   "
+            f"null deviance {self.null_deviance:.10g}",
+            f"  AIC {self.aic:.10g}   BIC {self.bic:.10g}"
+            + (f"   penalised log-likelihood {self.penalised_log_likelihood:.10g}" if self.firth or self.l2 else ""),
+        ]
+        if np.isfinite(self.lr_statistic):
+            what = "penalised likelihood ratio" if self.firth else "likelihood ratio"
+            facts.append(
+                f"  {what} against the null model: {self.lr_statistic:.6g} on "
+                f"{self.lr_degrees_of_freedom} df, p {_fmt_p(self.lr_p_value).strip()}"
+            )
+        facts.append(f"  {self.convergence.message}")
+        text = "\n".join(facts) + "\n\n" + render_table(table, "z") + "\n"
+        if self.profile_intervals is not None:
+            pct = f"{100 * self.profile_level:g}%"
+            width = max(len(t) for t in table.terms)
+            lines = [f"\nprofile-{'penalised-' if self.firth else ''}likelihood {pct} intervals",
+                     "term".ljust(width) + "from".rjust(15) + "to".rjust(15)]
+            for term, (lo, hi) in zip(table.terms, self.profile_intervals):
+                lines.append(term.ljust(width) + _fmt(lo, 15) + _fmt(hi, 15))
+            text += "\n".join(lines) + "\n"
+        return text

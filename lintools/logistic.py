@@ -1,0 +1,568 @@
+r"""Binary and grouped-binomial logistic regression: validate, solve, package the record.
+
+Objective (``w`` case weights, ``m`` trials, ``l2 >= 0``; the intercept is never penalised)
+
+.. math::
+
+    \min_{b,\beta}\; -\sum_i w_i\,\ell_i(b + x_i'\beta + o_i) + \tfrac{\lambda}{2}\lVert\beta\rVert^2,
+    \qquad \ell_i(\eta) = y_i \log\mu + (m_i - y_i)\log(1-\mu),\ \mu = 1/(1+e^{-\eta}),
+
+or, with ``firth=True`` (Firth 1993), the bias-reduced estimate that maximises
+:math:`\ell(\theta) + \tfrac12\log\det I(\theta)` (no ridge).  The fit never returns the
+huge coefficients of a separated data set: signs of divergence trigger the exact check
+of :mod:`lintools.separation`, and separation raises :class:`lintools.SeparationError`.
+
+References
+----------
+Albert, A. & Anderson, J. A. (1984). On the existence of maximum likelihood estimates in
+logistic regression models. Biometrika 71, 1-10.
+Firth, D. (1993). Bias reduction of maximum likelihood estimates. Biometrika 80, 27-38.
+Heinze, G. & Schemper, M. (2002). A solution to the problem of separation in logistic
+regression. Statistics in Medicine 21, 2409-2419.
+McCullagh, P. & Nelder, J. A. (1989). Generalized Linear Models, 2nd ed. Chapman & Hall.
+"""
+
+from __future__ import annotations
+
+import math
+import numbers
+import warnings
+from typing import Any, Callable, Sequence
+
+import numpy as np
+
+from ._errors import InputError, IterationLimitWarning, LintoolsError, LintoolsWarning, SeparationError
+from ._records import Convergence, LogisticFit
+from ._validate import (
+    as_labels,
+    as_matrix,
+    as_offset,
+    as_vector,
+    as_weights,
+    check_choice,
+    check_names,
+    check_nonnegative,
+    check_positive_int,
+)
+from .inference import covariance, likelihood_ratio, null_objective, profile_bounds
+from .linalg import aliased_columns, default_rank_tolerance, solve_upper
+from .losses import BinomialLoss
+from .solvers import (
+    SOLVERS,
+    Evaluation,
+    IterationRecord,
+    LinearModelProblem,
+    SingularMatrixError,
+    SolverResult,
+    solve,
+)
+from .solvers.newton import converged_message, limit_message, newton
+
+__all__ = ["logistic"]
+
+#: |linear predictor| beyond which a row on the side of its outcome is a sign of divergence.
+ETA_LIMIT = 30.0
+#: At the answer, rows beyond this |eta| plus a large remaining Newton move call for the check.
+ETA_SUSPECT = 15.0
+#: Remaining Newton move of the linear predictor that, with such rows, signals divergence.
+MOVE_SUSPECT = 0.1
+#: Designs up to this many entries get the exact check whenever a fit ends unfinished.
+SMALL_PROBLEM = 10**6
+
+REMEDIES = (
+    "Remedies: firth=True (Firth's bias-reduced estimates, finite under separation) or "
+    "l2 > 0 (a ridge penalty on the slopes)"
+)
+
+
+def _target_name(y: Any) -> str:
+    name = getattr(y, "name", None)
+    return str(name) if isinstance(name, str) and name else "y"
+
+
+def _whole(values: np.ndarray) -> np.ndarray:
+    return values == np.round(values)
+
+
+def _labels(y: Any, n: int) -> tuple[tuple, np.ndarray]:
+    """``as_labels``, vectorised for plain numeric or boolean arrays of the right length."""
+    arr = y if isinstance(y, np.ndarray) else None
+    if arr is not None and arr.ndim == 1 and arr.shape[0] == n and arr.dtype.kind in "biuf":
+        if arr.dtype.kind != "f" or np.all(np.isfinite(arr)):
+            uniq, codes = np.unique(arr, return_inverse=True)
+            return tuple(uniq.tolist()), codes.astype(np.intp)
+    return as_labels(y, "y", n)  # everything else, and the error messages
+
+
+def _response(y: Any, trials: Any, positive: Any, n: int) -> tuple[np.ndarray, np.ndarray, tuple, Any]:
+    """Successes, trials, classes and positive class, checked."""
+    if trials is None:
+        classes, codes = _labels(y, n)
+        if len(classes) == 1:
+            raise InputError(
+                f"y has only one class ({classes[0]!r}); a logistic model needs both outcomes: "
+                "check the target column or the rows selected"
+            )
+        if len(classes) > 2:
+            shown = ", ".join(repr(c) for c in classes[:5]) + (", ..." if len(classes) > 5 else "")
+            raise InputError(
+                f"y has {len(classes)} distinct labels ({shown}); a binary logistic model needs "
+                "exactly two: use lintools.softmax for more classes, recode y, or pass success "
+                "counts with trials="
+            )
+        if positive is None:
+            positive = classes[1]
+        elif positive not in classes:
+            raise InputError(
+                f"positive={positive!r} is not one of the labels of y ({classes[0]!r}, {classes[1]!r}); "
+                "name one of them"
+            )
+        else:
+            positive = classes[classes.index(positive)]
+        yy = (codes == classes.index(positive)).astype(float)
+        return yy, np.ones(n), classes, positive
+    if positive is not None:
+        raise InputError(
+            "positive= names a label, but with trials= y holds success counts (the positive "
+            "class is a success); leave positive unset"
+        )
+    yy = as_vector(y, "y", n)
+    m = as_vector(trials, "trials", n)
+    for arr, name, what in ((m, "trials", "the number of trials"), (yy, "y", "the number of successes")):
+        bad = arr < 0
+        if bad.any():
+            i = int(np.argmax(bad))
+            raise InputError(f"{name} is negative ({arr[i]:g}) at row {i}; {name} must count {what} (>= 0)")
+        bad = ~_whole(arr)
+        if bad.any():
+            i = int(np.argmax(bad))
+            raise InputError(
+                f"{name} is not a whole number ({arr[i]:g}) at row {i}; with trials= y counts "
+                "successes out of trials, both whole numbers (for fractional outcomes split each "
+                "row into a success row and a failure row with case weights)"
+            )
+    bad = yy > m
+    if bad.any():
+        i = int(np.argmax(bad))
+        raise InputError(
+            f"y ({yy[i]:g} successes) exceeds trials ({m[i]:g}) at row {i}; successes cannot "
+            "outnumber trials: check the two columns"
+        )
+    return yy, m, (0, 1), 1
+
+
+def _check_tol(tol: Any) -> float:
+    if isinstance(tol, bool) or not isinstance(tol, numbers.Real) or not math.isfinite(float(tol)) or tol <= 0:
+        raise InputError(f"tol must be a finite number > 0 (the max-abs gradient at which to stop); got {tol!r}")
+    return float(tol)
+
+
+def _check_flag(value: Any, name: str) -> bool:
+    if not isinstance(value, (bool, np.bool_)):
+        raise InputError(f"{name} must be True or False; got {value!r}")
+    return bool(value)
+
+
+def _constant_columns(Xa: np.ndarray, use: np.ndarray, names: tuple[str, ...]) -> None:
+    rows = Xa if use.all() else Xa[use]
+    const = np.flatnonzero(np.max(rows, axis=0) == np.min(rows, axis=0))
+    if const.size:
+        j = int(const[0])
+        raise InputError(
+            f"X column {j} ('{names[j]}') is constant on the rows used; it is aliased with the "
+            "intercept: drop it, or pass intercept=False"
+        )
+
+
+def _rank_message(Xa: np.ndarray, v: np.ndarray, intercept: bool, names: tuple[str, ...]) -> str | None:
+    """A sentence naming linearly dependent columns on the rows used, or None (full rank)."""
+    use = v > 0
+    sw = np.sqrt(v[use])
+    Xp = Xa[use]
+    c = (v[use] @ Xp) / v[use].sum() if intercept else np.zeros(Xa.shape[1])
+    A = (Xp - c) * sw[:, None]
+    norms = np.linalg.norm(A, axis=0)
+    A /= np.where(norms > 0, norms, 1.0)
+    R = np.linalg.qr(A, mode="r")
+    tol = default_rank_tolerance(*A.shape)
+    alias = np.union1d(np.flatnonzero(norms == 0), aliased_columns(R, np.ones(A.shape[1]), tol)).astype(int)
+    if not alias.size:
+        return None
+    j = int(alias[0])
+    before = [i for i in range(j) if i not in set(alias)]
+    involved = []
+    if before:
+        coef = solve_upper(R[np.ix_(before, before)], R[before, j])
+        big = np.abs(coef) > 1e-8 * max(float(np.abs(coef).max()), 1e-300)
+        involved = [f"'{names[before[t]]}'" for t in np.flatnonzero(big)]
+    also = " (plus a constant)" if intercept else ""
+    return (
+        f"X is rank deficient on the rows used: column {j} ('{names[j]}') is a linear combination "
+        f"of {', '.join(involved) if involved else 'nothing (it is zero)'}{also}; drop one of the "
+        "dependent columns, or set l2 > 0"
+    )
+
+
+class _Watch:
+    """Divergence monitor: rows whose linear predictor runs off on the side of their outcome."""
+
+    def __init__(self, loss: BinomialLoss, offset: np.ndarray | None) -> None:
+        self.loss, self.offset = loss, offset
+        self.live = loss.row_weights() > 0
+
+    def runaway(self, eta: np.ndarray, limit: float) -> tuple[int, float]:
+        lin = eta if self.offset is None else eta - self.offset
+        y, m = self.loss.y, self.loss.trials
+        hit = self.live & (((lin > limit) & (y == m)) | ((lin < -limit) & (y == 0)))
+        return int(hit.sum()), float(np.max(np.abs(lin[hit]))) if hit.any() else 0.0
+
+    def __call__(self, z: np.ndarray, ev: Evaluation) -> str | None:
+        count, top = self.runaway(ev.eta, ETA_LIMIT)
+        if count:
+            return (f"{count} row(s) have a linear predictor beyond +-{ETA_LIMIT:g} (up to {top:.3g}) "
+                    "on the side of their outcome")
+        return None
+
+
+def _exact_check(Xa, loss, intercept, names):
+    """Run the linear programme; return the diagnosis, or None when SciPy is missing."""
+    from .separation import separation_from_arrays
+
+    try:
+        return separation_from_arrays(Xa, loss.y, loss.trials, loss.weights, intercept, names)
+    except LintoolsError as exc:
+        if "SciPy" in str(exc):
+            return None
+        raise
+
+
+def _raise_separation(diag) -> None:
+    raise SeparationError(f"{diag.describe()}. {REMEDIES}.", diagnosis=diag)
+
+
+def logistic(
+    X: Any,
+    y: Any,
+    *,
+    weights: Any = None,
+    offset: Any = None,
+    trials: Any = None,
+    intercept: bool = True,
+    l2: float = 0.0,
+    firth: bool = False,
+    solver: str = "newton",
+    tol: float = 1e-10,
+    max_iter: int = 100,
+    names: Sequence[str] | None = None,
+    on_iteration: Callable[[IterationRecord], Any] | None = None,
+    positive: Any = None,
+    profile: bool = False,
+    profile_level: float = 0.95,
+) -> LogisticFit:
+    r"""Fit a logistic regression by (penalised) maximum likelihood, or Firth's method.
+
+    .. math::
+
+        \min_{b,\beta}\; -\sum_i w_i\,[\,y_i\log\mu_i + (m_i - y_i)\log(1-\mu_i)\,]
+        + \tfrac{\lambda}{2}\lVert\beta\rVert_2^2,\qquad
+        \mu_i = \frac{1}{1 + e^{-(b + x_i'\beta + o_i)}},\quad \lambda = \texttt{l2}.
+
+    With ``firth=True`` the objective is :math:`-\ell(\theta) - \tfrac12\log\det I(\theta)`
+    (Firth 1993; Heinze & Schemper 2002), whose minimiser is finite even under separation.
+
+    Parameters
+    ----------
+    X : array-like (n, p)
+        Design without the intercept column; DataFrame-like column labels become names.
+    y : array-like (n,)
+        Two labels of any one type (bool, 0/1, numbers, strings); or, with ``trials``,
+        success counts (whole numbers ``0 <= y <= trials``).
+    weights : array-like (n,), optional
+        Case weights ``w >= 0``: a row of weight 2 counts as two identical rows.
+    offset : array-like (n,), optional
+        Known part ``o`` of the linear predictor.
+    trials : array-like (n,), optional
+        Trials per row (whole numbers >= 0): grouped binomial data.
+    intercept : bool
+        Fit an unpenalised intercept (default True).
+    l2 : float
+        Ridge strength on the slopes (``l2 = 1/C`` maps scikit-learn's ``C``).
+    firth : bool
+        Firth's bias-reduced estimates; cannot be combined with ``l2 > 0`` (they are two
+        different remedies; choose one).
+    solver : {"newton", "lbfgs", "gradient"}
+        Newton / IRLS with step halving (default), L-BFGS with a strong-Wolfe line
+        search, or accelerated gradient with backtracking and restarts.  All stop on the
+        same rule; first-order solvers usually need a larger ``max_iter``.
+    tol : float
+        Stop when the max-abs gradient of the objective (caller's coordinates) is <= tol.
+    max_iter : int
+        Iteration limit; a fit that reaches it is marked ``converged=False`` and an
+        :class:`lintools.IterationLimitWarning` is issued.
+    names : sequence of str, optional
+        Coefficient names (default: DataFrame column labels, else x1..xp).
+    on_iteration : callable, optional
+        Called with an :class:`lintools.solvers.IterationRecord` after each iteration.
+    positive : label, optional
+        The class whose probability is modelled (default: the larger label).
+    profile : bool
+        Also compute profile-likelihood intervals (penalised profile for Firth) at
+        ``profile_level``; stored in ``profile_intervals``.
+    profile_level : float
+        Coverage of the profile intervals (default 0.95).
+
+    Returns
+    -------
+    LogisticFit
+
+    Raises
+    ------
+    InputError
+        Bad input (the message names the argument, the row or column, and the remedy),
+        including a rank-deficient design when ``l2 == 0``.
+    SeparationError
+        The classes are (quasi-)completely separated, so the unpenalised estimate does not
+        exist; the error carries the diagnosis of :func:`lintools.check_separation`.
+
+    Notes
+    -----
+    ``log_likelihood`` is the full binomial log-likelihood, including
+    :math:`\sum_i w_i \log\binom{m_i}{y_i}` for grouped data (zero for binary data), as
+    statsmodels' GLM reports it; ``deviance`` is twice the distance to the saturated
+    model, so it does not depend on that constant.  ``n_observations = sum(w * m)``.
+    AIC and BIC count ``p + intercept`` parameters and use the log-likelihood.  Under
+    ``l2 > 0`` the covariance is the inverse penalised information, and the
+    likelihood-ratio fields are NaN.  Separation is checked only when the iterations show
+    signs of divergence (rows whose linear predictor passes +-30 on the side of their
+    outcome, or a fit that ends with such rows beyond +-15 while a further Newton step
+    would still move them, or a fit that ends unfinished with such rows or a design of at
+    most a million entries); the check needs SciPy, and without it the divergence itself
+    is reported in the :class:`SeparationError`.
+    """
+    Xa, found = as_matrix(X, "X")
+    n, p = Xa.shape
+    names_t = check_names(names, p, found)
+    w = as_weights(weights, n)
+    off = None if offset is None else as_offset(offset, n)
+    yy, m, classes, positive_class = _response(y, trials, positive, n)
+    intercept = _check_flag(intercept, "intercept")
+    firth = _check_flag(firth, "firth")
+    profile = _check_flag(profile, "profile")
+    lam = check_nonnegative(l2, "l2")
+    check_choice(solver, "solver", SOLVERS)
+    tol = _check_tol(tol)
+    max_iter = check_positive_int(max_iter, "max_iter")
+    if on_iteration is not None and not callable(on_iteration):
+        raise InputError(f"on_iteration must be a callable taking one record; got {type(on_iteration).__name__}")
+    if profile and not (isinstance(profile_level, numbers.Real) and 0.0 < float(profile_level) < 1.0):
+        raise InputError(f"profile_level must lie strictly between 0 and 1; got {profile_level!r}")
+    if firth and lam > 0:
+        raise InputError(
+            "firth=True together with l2 > 0: both are remedies for separation and combining "
+            "them defines neither estimate; pass one of them (firth=True with l2=0, or l2 > 0)"
+        )
+    v = w * m
+    total, successes = float(v.sum()), float(w @ yy)
+    if total <= 0:
+        raise InputError("trials (times weights) are zero on every row; there is nothing to fit")
+    if successes <= 0 or successes >= total:
+        which = "no successes" if successes <= 0 else "no failures"
+        raise InputError(f"y has {which} on the rows with positive weight; a logistic model needs both outcomes")
+    if intercept and p and lam == 0:
+        _constant_columns(Xa, v > 0, names_t)
+
+    loss = BinomialLoss(yy, m if trials is not None else None, w)
+    problem = LinearModelProblem(Xa, loss, intercept=intercept, l2=lam, offset=off, jeffreys=firth)
+    watch = _Watch(loss, off) if (lam == 0 and not firth) else None
+    try:
+        res, checked = _run(problem, solver, tol, max_iter, on_iteration, watch, Xa, loss, intercept, names_t)
+    except SingularMatrixError as exc:
+        _diagnose_singular(Xa, loss, intercept, names_t, lam, firth, watch, False, f"the information matrix is singular ({exc})")
+
+    if res.status == "singular":
+        _diagnose_singular(Xa, loss, intercept, names_t, lam, firth, watch, checked, res.message)
+    z = res.z
+    try:
+        V = covariance(problem, z)
+    except SingularMatrixError:
+        _diagnose_singular(Xa, loss, intercept, names_t, lam, firth, watch, checked,
+                           "the information matrix is singular at the answer")
+    ev = problem.evaluate(z)
+    if watch is not None and not checked:
+        _final_check(res, ev, V, problem, watch, Xa, loss, intercept, names_t)
+    return _package(problem, loss, res, ev, V, z, Xa, off, names_t, classes, positive_class, lam, firth,
+                    trials is not None, intercept, solver, tol, max_iter, profile, float(profile_level), y)
+
+
+def _run(problem, solver, tol, max_iter, on_iteration, watch, Xa, loss, intercept, names):
+    """Solve; on a divergence alarm run the exact check, raise if separated, else go on."""
+    res = solve(problem, solver, tol=tol, max_iter=max_iter, on_iteration=on_iteration, monitor=watch)
+    if res.status != "diverging":
+        return res, False
+    diag = _exact_check(Xa, loss, intercept, names)
+    if diag is not None and diag.separated:
+        _raise_separation(diag)
+    done = res.iterations
+
+    def shifted(record):
+        on_iteration(IterationRecord(record.iteration + done, record.objective, record.gradient_norm, record.step))
+
+    more = solve(problem, solver, tol=tol, max_iter=max(max_iter - done, 0),
+                 on_iteration=shifted if on_iteration is not None else None, start=res.z)
+    total = more.iterations + done
+    if more.status == "converged":
+        message = converged_message(more.solver, total, more.gradient_norm, tol)
+    elif more.status == "iteration_limit":
+        message = limit_message(more.solver, total, more.gradient_norm, tol)
+    else:
+        message = more.message
+    merged = SolverResult(z=more.z, converged=more.converged, iterations=total, objective=more.objective,
+                          gradient_norm=more.gradient_norm, status=more.status, message=message,
+                          solver=more.solver)
+    return merged, diag is not None
+
+
+def _diagnose_singular(Xa, loss, intercept, names, lam, firth, watch, checked, why):
+    msg = _rank_message(Xa, loss.row_weights(), intercept, names) if lam == 0 else None
+    if msg:
+        raise InputError(msg)
+    if watch is not None and not checked:
+        diag = _exact_check(Xa, loss, intercept, names)
+        if diag is not None and diag.separated:
+            _raise_separation(diag)
+    raise LintoolsError(
+        f"{why}: the design is full rank but too ill-conditioned for the fitted weights; "
+        "rescale or drop nearly collinear columns, or set l2 > 0"
+    )
+
+
+def _final_check(res, ev, V, problem, watch, Xa, loss, intercept, names):
+    """At the answer: a remaining Newton move on runaway rows means divergence."""
+    count, top = watch.runaway(ev.eta, ETA_SUSPECT)
+    # an unfinished fit is checked when rows ran away or when the programme is cheap
+    suspicious = res.status in ("iteration_limit", "stalled") and (count > 0 or Xa.size <= SMALL_PROBLEM)
+    move = 0.0
+    if count:
+        d = -(V @ ev.original_gradient)
+        db = d[0] if intercept else 0.0
+        move = float(np.max(np.abs(Xa @ d[int(intercept):] + db)))
+        suspicious = suspicious or move > MOVE_SUSPECT
+    if not suspicious:
+        return
+    diag = _exact_check(Xa, loss, intercept, names)
+    if diag is not None:
+        if diag.separated:
+            _raise_separation(diag)
+        return
+    if count and move > MOVE_SUSPECT:
+        raise SeparationError(
+            f"the fit diverges: after {res.iterations} iteration(s) {count} row(s) have a linear "
+            f"predictor beyond +-{ETA_SUSPECT:g} (up to {top:.3g}) on the side of their outcome and "
+            f"a further Newton step would move it by {move:.3g}: the classes appear "
+            "(quasi-)completely separated, so the maximum-likelihood estimate does not exist "
+            "(Albert & Anderson 1984). The exact check needs SciPy (scipy.optimize.linprog), "
+            f"which is not installed. {REMEDIES}."
+        )
+
+
+def _package(problem, loss, res, ev, V, z, Xa, off, names, classes, positive_class, lam, firth,
+             grouped, intercept, solver, tol, max_iter, profile, level, y):
+    n, p = Xa.shape
+    theta = problem.to_original(z)
+    k = theta.size
+    b = float(theta[0]) if intercept else 0.0
+    beta = theta[int(intercept):].copy()
+    se = np.sqrt(np.clip(np.diag(V), 0.0, None))
+    eta = ev.eta
+    loglik = loss.log_likelihood(eta)
+    dev = loss.deviance(eta)
+    n_obs = float(loss.row_weights().sum())
+    f0, eta0 = null_objective(loss, n, off, intercept, firth, tol, max_iter)
+    null_dev = loss.deviance(eta0)
+    lr_df = p
+    if firth:
+        lr = 2.0 * (f0 - ev.value)
+    elif lam == 0:
+        lr = null_dev - dev
+    else:
+        lr = float("nan")
+    lr = max(lr, 0.0) if math.isfinite(lr) else lr
+    message = res.message
+    if res.status == "stalled":
+        level = problem.gradient_rounding(z)
+        message += f" (worst-case rounding level of this gradient {level:.1e}: tol = {10 * level:.0e} is attainable)"
+    conv = Convergence(
+        converged=bool(res.converged), iterations=int(res.iterations), gradient_norm=ev.gradient_norm,
+        objective=ev.value, solver=solver, message=message,
+    )
+    if res.status == "iteration_limit":
+        warnings.warn(message, IterationLimitWarning, stacklevel=3)
+    elif not res.converged:
+        warnings.warn(message, LintoolsWarning, stacklevel=3)
+    bounds = profile_bounds(problem, z, ev.value, se, level, tol, max_iter) if profile else None
+    return LogisticFit(
+        coefficients=beta,
+        intercept=b if intercept else 0.0,
+        standard_errors=se[int(intercept):],
+        intercept_standard_error=float(se[0]) if intercept else None,
+        covariance=V,
+        log_likelihood=loglik,
+        deviance=dev,
+        aic=-2.0 * loglik + 2.0 * k,
+        bic=-2.0 * loglik + math.log(n_obs) * k,
+        n_observations=n_obs,
+        names=names,
+        convergence=conv,
+        with_intercept=bool(intercept),
+        l2=lam,
+        classes=tuple(classes),
+        positive_class=positive_class,
+        null_deviance=null_dev,
+        lr_statistic=lr,
+        lr_p_value=likelihood_ratio(lr, lr_df) if math.isfinite(lr) else float("nan"),
+        lr_degrees_of_freedom=int(lr_df),
+        firth=bool(firth),
+        penalised_log_likelihood=loss.log_binomial_total() - ev.value,
+        profile_intervals=bounds,
+        profile_level=level if profile else float("nan"),
+        grouped=bool(grouped),
+        has_offset=off is not None,
+        target=_target_name(y),
+    )
+
+
+def score_and_information(fit: LogisticFit, X: Any, y: Any, weights: Any, coef: Any, b: Any,
+                          free_intercept: bool) -> tuple[np.ndarray, np.ndarray]:
+    """Score of the penalised log-likelihood and the information at ``(b, coef)``.
+
+    Order: intercept first when the fit has one.  With ``free_intercept`` the intercept
+    is first set to its maximum-likelihood value given ``coef``.  The plain (not Firth)
+    likelihood is used.  ``y`` holds the fit's two labels, one per row.
+    """
+    if fit.grouped:
+        raise InputError("the score test needs one outcome per row; this fit used grouped data (trials=)")
+    Xa = fit._design(X)
+    n = Xa.shape[0]
+    yy, _, classes, _ = _response(y, None, fit.positive_class, n)
+    if tuple(classes) != tuple(fit.classes):
+        raise InputError(f"y has the labels {classes} but the fit was made on {fit.classes}; pass the same labels")
+    w = as_weights(weights, n)
+    loss = BinomialLoss(yy, None, w)
+    coef = np.asarray(coef, dtype=float)
+    eta = Xa @ coef
+    if fit.with_intercept:
+        if free_intercept:
+            P = LinearModelProblem(np.zeros((n, 0)), loss, intercept=True, offset=eta)
+            b = float(P.to_original(newton(P, tol=1e-10, max_iter=100).z)[0])
+        eta = eta + float(b)
+        A = np.column_stack([np.ones(n), Xa])
+        theta = np.concatenate([[float(b)], coef])
+    else:
+        A, theta = Xa, coef
+    r, W = loss.gradient(eta), loss.curvature(eta)
+    pen = np.full(theta.size, fit.l2)
+    if fit.with_intercept:
+        pen[0] = 0.0
+    U = -(A.T @ r + pen * theta)
+    info = A.T @ (A * W[:, None]) + np.diag(pen)
+    return U, info

@@ -1,0 +1,259 @@
+r"""Losses in the linear predictor: value, gradient and curvature as functions of ``eta``.
+
+A loss knows only the linear predictor ``eta`` and the response.  It never sees the
+design, the coefficients or the penalty; :mod:`lintools.solvers` combines a loss with a
+design and a penalty into a problem in a flat parameter vector.
+
+The loss interface (any object with these members can be handed to the solvers)::
+
+    outputs                 number of columns of eta: 1 (eta has shape (n,)) or K (n, K)
+    row_weights()           (n,) total case weight of each row (centring, observation count)
+    start_intercept(offset) starting intercept(s): the best constant linear predictor
+    value(eta)              float, sum over rows of the weighted loss
+    value_change(eta, dl)   value(eta + dl) - value(eta), accurate to rounding of the
+                            change itself (line searches compare changes, never values)
+    gradient(eta)           d value / d eta, the shape of eta
+    curvature(eta)          the per-row second derivative: (n,) IRLS weights when
+                            outputs == 1, (n, K, K) Hessian blocks otherwise
+
+Firth's penalty (one output only) also needs ``curvature_slope``, ``curvature_second``
+(first and second derivatives of the weights in eta) and ``curvature_change``.
+    hessian_vector(eta, u)  per-row Hessian times u (the shape of eta)
+
+Binomial loss (binary labels, or ``y`` successes out of ``m`` trials), case weights ``w``:
+
+.. math::
+
+    \ell(\eta) = \sum_i w_i\,[\,y_i \log(1 + e^{-\eta_i}) + (m_i - y_i)\log(1 + e^{\eta_i})\,]
+               = -\sum_i w_i\,[\,y_i \log\mu_i + (m_i - y_i)\log(1 - \mu_i)\,],
+    \qquad \mu_i = 1/(1 + e^{-\eta_i}).
+
+Every term is evaluated as a sum of non-negative parts with ``numpy.logaddexp``
+(``log(1 + e^x) = max(x, 0) + log1p(e^{-|x|})``), so there is no overflow and no
+cancellation for any finite ``eta`` (|eta| up to the largest double).  The gradient
+``w [(m - y) mu - y (1 - mu)]`` and the weights ``w m mu (1 - mu)`` use ``mu`` and
+``1 - mu`` each computed directly from ``exp(-|eta|)``, never as ``1 - mu``.
+
+References
+----------
+McCullagh, P. & Nelder, J. A. (1989). Generalized Linear Models, 2nd ed., ch. 4.
+Chapman & Hall.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Any
+
+import numpy as np
+
+from ._errors import InputError
+from ._validate import as_labels, as_matrix, as_weights
+
+__all__ = ["BinomialLoss", "log1pexp", "sigmoid", "unpenalised_gradient"]
+
+
+def log1pexp(x: np.ndarray) -> np.ndarray:
+    r"""Return :math:`\log(1 + e^x)` without overflow or cancellation for any finite x."""
+    return np.logaddexp(0.0, x)
+
+
+def _halves(eta: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """``(mu, 1 - mu)`` with ``mu = 1 / (1 + exp(-eta))``, each to full relative accuracy."""
+    e = np.exp(-np.abs(eta))  # in (0, 1]; underflows harmlessly to 0
+    big = 1.0 / (1.0 + e)
+    small = e * big
+    pos = eta >= 0
+    return np.where(pos, big, small), np.where(pos, small, big)
+
+
+def sigmoid(eta: Any) -> np.ndarray:
+    r"""The logistic function :math:`1 / (1 + e^{-\eta})`, overflow-safe."""
+    return _halves(np.asarray(eta, dtype=float))[0]
+
+
+def _softplus_changes(eta: np.ndarray, delta: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Per entry ``log1pexp(eta + delta) - log1pexp(eta)`` and the same at ``-eta, -delta``."""
+    mu, nu = _halves(eta)
+    small = np.abs(delta) <= 1.0
+    d = np.where(small, delta, 0.0)
+    up = np.log1p(mu * np.expm1(d))
+    down = np.log1p(nu * np.expm1(-d))
+    if not small.all():  # large moves: the plain difference is accurate relative to them
+        far = ~small
+        e, t = eta[far], eta[far] + delta[far]
+        up[far] = log1pexp(t) - log1pexp(e)
+        down[far] = log1pexp(-t) - log1pexp(-e)
+    return up, down
+
+
+def _log_binomial(m: np.ndarray, y: np.ndarray) -> np.ndarray:
+    """``log C(m, y)`` row by row, through ``math.lgamma`` on the distinct values only."""
+    def lg(values: np.ndarray) -> np.ndarray:
+        uniq, inv = np.unique(values, return_inverse=True)
+        return np.array([math.lgamma(float(v) + 1.0) for v in uniq])[inv]
+
+    return lg(m) - lg(y) - lg(m - y)
+
+
+class BinomialLoss:
+    r"""Negative weighted binomial log-likelihood in the linear predictor (logit link).
+
+    Parameters
+    ----------
+    y : ndarray, shape (n,)
+        Successes: 0/1 for binary data, counts ``0 <= y <= m`` for grouped data.
+    trials : ndarray, shape (n,), optional
+        Trials ``m`` per row (default 1).
+    weights : ndarray, shape (n,), optional
+        Case weights ``w >= 0`` (default 1).
+
+    The arrays are assumed checked (the fronts check them); they are not copied or
+    modified.  ``value`` is :math:`\ell(\eta)` of the module docstring.
+    """
+
+    outputs = 1
+
+    def __init__(self, y: np.ndarray, trials: np.ndarray | None = None, weights: np.ndarray | None = None) -> None:
+        n = y.shape[0]
+        self.y = y
+        self.trials = np.ones(n) if trials is None else trials
+        self.weights = np.ones(n) if weights is None else weights
+        self.grouped = trials is not None
+        self._wy = self.weights * y
+        self._wf = self.weights * (self.trials - y)  # weighted failures
+        self._wm = self.weights * self.trials
+
+    # ---- interface -------------------------------------------------------------
+    def row_weights(self) -> np.ndarray:
+        """``w * m``: the number of Bernoulli observations each row stands for."""
+        return self._wm
+
+    def start_intercept(self, offset: np.ndarray | None = None) -> float:
+        """The logit of the weighted success rate, less the weighted mean offset."""
+        total = float(self._wm.sum())
+        rate = float(self._wy.sum()) / total
+        rate = min(max(rate, 1e-12), 1.0 - 1e-12)
+        b = math.log(rate) - math.log1p(-rate)
+        if offset is not None:
+            b -= float(self._wm @ offset) / total
+        return b
+
+    def value(self, eta: np.ndarray) -> float:
+        """Sum of the weighted negative log-likelihood terms (without the binomial coefficient)."""
+        return float(self._wy @ log1pexp(-eta) + self._wf @ log1pexp(eta))
+
+    def value_change(self, eta: np.ndarray, delta: np.ndarray) -> float:
+        r"""``value(eta + delta) - value(eta)``, accurate even when it is far below ``eps * value``.
+
+        Row by row, :math:`\log(1+e^{a+\delta}) - \log(1+e^a) = \log1p(\mu_a\,\mathrm{expm1}(\delta))`
+        for :math:`|\delta| \le 1` (the argument stays above -0.64, so log1p is exact to
+        rounding); larger moves use the plain difference, which is then accurate relative
+        to the change.
+        """
+        up, down = _softplus_changes(eta, delta)
+        return float(self._wy @ down + self._wf @ up)
+
+    def gradient(self, eta: np.ndarray) -> np.ndarray:
+        """``d value / d eta = w [(m - y) mu - y (1 - mu)] = w (m mu - y)``."""
+        mu, nu = _halves(eta)
+        return self._wf * mu - self._wy * nu
+
+    def value_and_gradient(self, eta: np.ndarray) -> tuple[float, np.ndarray]:
+        """``(value(eta), gradient(eta))`` sharing one evaluation of ``mu``."""
+        mu, nu = _halves(eta)
+        return self.value(eta), self._wf * mu - self._wy * nu
+
+    def curvature(self, eta: np.ndarray) -> np.ndarray:
+        """IRLS weights ``w m mu (1 - mu)`` (the second derivative of each term)."""
+        mu, nu = _halves(eta)
+        return self._wm * mu * nu
+
+    def curvature_slope(self, eta: np.ndarray) -> np.ndarray:
+        """Derivative of the IRLS weights in eta: ``w m mu (1 - mu) (1 - 2 mu)`` (Firth's correction).
+
+        ``1 - 2 mu = -tanh(eta / 2)`` exactly, which keeps full accuracy near eta = 0.
+        """
+        mu, nu = _halves(eta)
+        return -self._wm * mu * nu * np.tanh(0.5 * eta)
+
+    def curvature_change(self, eta: np.ndarray, delta: np.ndarray) -> np.ndarray:
+        r"""``curvature(eta + delta) - curvature(eta)`` without cancellation.
+
+        With :math:`\mu\nu = 1 / (4\cosh^2(\eta/2))` and
+        :math:`\cosh^2 x - \cosh^2 y = \sinh(x + y)\sinh(x - y)`:
+        :math:`\Delta(\mu\nu) = -4\sinh(\eta + \delta/2)\sinh(\delta/2)\,(\mu\nu)(\eta+\delta)\,(\mu\nu)(\eta)`.
+        Far out (|eta| > 300) the weights are below 1e-130 and the plain difference is used.
+        """
+        a = eta + delta
+        mu_a, nu_a = _halves(a)
+        mu_b, nu_b = _halves(eta)
+        near = (np.abs(a) < 300) & (np.abs(eta) < 300)
+        mid = np.where(near, eta + 0.5 * delta, 0.0)
+        half = np.where(near, 0.5 * delta, 0.0)
+        prod = -4.0 * np.sinh(mid) * np.sinh(half) * (mu_a * nu_a) * (mu_b * nu_b)
+        return self._wm * np.where(near, prod, mu_a * nu_a - mu_b * nu_b)
+
+    def curvature_second(self, eta: np.ndarray) -> np.ndarray:
+        """Second derivative of the IRLS weights in eta: ``w m mu (1 - mu) (1 - 6 mu (1 - mu))``."""
+        mu, nu = _halves(eta)
+        v = mu * nu
+        return self._wm * v * (1.0 - 6.0 * v)
+
+    def hessian_vector(self, eta: np.ndarray, u: np.ndarray) -> np.ndarray:
+        """Per-row second derivative times ``u``."""
+        return self.curvature(eta) * u
+
+    # ---- binomial facts --------------------------------------------------------------
+    def mean(self, eta: np.ndarray) -> np.ndarray:
+        """Success probability ``mu`` per row."""
+        return _halves(eta)[0]
+
+    def log_binomial_total(self) -> float:
+        r"""``sum_i w_i log C(m_i, y_i)`` (zero for binary data)."""
+        if not self.grouped:
+            return 0.0
+        return float(self.weights @ _log_binomial(self.trials, self.y))
+
+    def log_likelihood(self, eta: np.ndarray) -> float:
+        r"""Full binomial log-likelihood :math:`\sum_i w_i[\log\binom{m_i}{y_i} + y_i\log\mu_i + (m_i-y_i)\log(1-\mu_i)]`."""
+        return self.log_binomial_total() - self.value(eta)
+
+    def deviance(self, eta: np.ndarray) -> float:
+        r"""Twice the log-likelihood ratio against the saturated model (``mu_i = y_i / m_i``)."""
+        m, y = self.trials, self.y
+        f = m - y
+        with np.errstate(divide="ignore", invalid="ignore"):
+            ly = np.where(y > 0, np.log(np.where(y > 0, y, 1.0) / np.where(m > 0, m, 1.0)), 0.0)
+            lf = np.where(f > 0, np.log(np.where(f > 0, f, 1.0) / np.where(m > 0, m, 1.0)), 0.0)
+        # y log(y / (m mu)) + f log(f / (m (1 - mu))), with -log mu = log1pexp(-eta)
+        terms = self._wy * (ly + log1pexp(-eta)) + self._wf * (lf + log1pexp(eta))
+        return float(2.0 * np.maximum(terms, 0.0).sum())
+
+
+def unpenalised_gradient(
+    model: str, X: np.ndarray, y: Any, weights: np.ndarray, beta: Any, intercept: Any
+) -> tuple[np.ndarray, float]:
+    r"""Gradient of the negative log-likelihood at given coefficients (no penalty).
+
+    For ``model="logistic"``: ``y`` holds two labels, the larger one is the positive
+    class; ``eta = intercept + X beta`` (``intercept=None``: no intercept).  Returns
+    ``(X' g, sum(g))`` with ``g = w (mu - y)``; the second entry is 0 without intercept.
+    Used by :func:`lintools.crosscheck.implied_l2`.
+    """
+    if model != "logistic":
+        raise InputError(
+            f"model={model!r}: only the binomial loss ('logistic') is available in this module; "
+            "the multinomial loss arrives with the softmax fit"
+        )
+    Xa, _ = as_matrix(X, "X")
+    n = Xa.shape[0]
+    classes, codes = as_labels(y, "y", n)
+    if len(classes) != 2:
+        raise InputError(f"y has {len(classes)} distinct labels; a logistic model needs exactly two")
+    w = as_weights(weights, n)
+    b = np.asarray(beta, dtype=float)
+    eta = Xa @ b + (0.0 if intercept is None else float(intercept))
+    loss = BinomialLoss(codes.astype(float), weights=w)
+    g = loss.gradient(eta)
+    return Xa.T @ g, (float(g.sum()) if intercept is not None else 0.0)

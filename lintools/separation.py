@@ -1,0 +1,240 @@
+r"""Exact detection of complete and quasi-complete separation by a linear programme.
+
+Albert & Anderson (1984): the maximum-likelihood estimate of a logistic regression exists
+(is finite) exactly when no direction :math:`\theta \ne 0` (intercept included) has
+:math:`z_i a_i'\theta \ge 0` for every observation, with :math:`a_i = (1, x_i)` and
+:math:`z_i = +1` for a success, :math:`-1` for a failure, unless :math:`a_i'\theta = 0`
+for all of them (a direction in the null space of the design, which is rank deficiency,
+not separation).  With strict inequality everywhere the separation is *complete*;
+otherwise *quasi-complete*.
+
+Following Konis (2007), the linear programme
+
+.. math::
+
+    \max_{\theta,\,t}\ \sum_i t_i \quad\text{s.t.}\quad z_i a_i'\theta \ge t_i,\quad
+    0 \le t_i \le 1,\quad \theta \text{ free}
+
+has optimum :math:`t_i = 1` exactly on the largest set of observations that some
+separating direction predicts strictly (the cone of separating directions is convex and
+closed under scaling), and :math:`t_i = 0` elsewhere.  Separation is present iff that set
+is non-empty; it is complete iff the set holds every observation.  A grouped row with
+``0 < y < m`` contributes a success and a failure, so it can never be predicted
+perfectly.  The columns are standardised before the programme is solved; the direction
+is reported in the caller's coordinates, scaled to max-abs 1.
+
+SciPy's ``linprog`` (HiGHS) solves the programme; it is imported inside
+:func:`check_separation` only.
+
+References
+----------
+Albert, A. & Anderson, J. A. (1984). On the existence of maximum likelihood estimates in
+logistic regression models. Biometrika 71, 1-10.
+Konis, K. (2007). Linear programming algorithms for detecting separated data in binary
+logistic regression models. DPhil thesis, University of Oxford.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from ._errors import LintoolsError
+from ._records import INTERCEPT_NAME
+from ._validate import as_matrix, as_weights, check_names
+
+__all__ = ["SeparationCheck", "check_separation", "separation_lp"]
+
+#: A row counts as perfectly predicted when its LP slack variable exceeds this.
+ROW_THRESHOLD = 0.5
+#: Direction components below this (relative, standardised coordinates) are not "involved".
+COLUMN_THRESHOLD = 1e-7
+
+
+@dataclass(frozen=True)
+class SeparationCheck:
+    """Result of :func:`check_separation`.
+
+    Attributes
+    ----------
+    kind : str
+        ``"none"``, ``"quasi-complete"`` or ``"complete"``.
+    direction : ndarray
+        A separating direction for the slopes (caller's coordinates; zeros when none).
+    intercept_direction : float
+        Its intercept component (0 without intercept or separation).
+    columns : tuple of str
+        Terms with a non-zero component in the direction (the intercept included).
+    rows : ndarray of int
+        Rows predicted perfectly (their fitted probability goes to 0 or 1).
+    names : tuple of str
+        Names of the columns of X.
+    """
+
+    kind: str
+    direction: np.ndarray
+    intercept_direction: float
+    columns: tuple[str, ...]
+    rows: np.ndarray
+    names: tuple[str, ...]
+
+    @property
+    def separated(self) -> bool:
+        """True for complete or quasi-complete separation."""
+        return self.kind != "none"
+
+    def describe(self, max_rows: int = 10) -> str:
+        """One paragraph in plain words."""
+        if not self.separated:
+            return "no separation: the maximum-likelihood estimate exists (Albert & Anderson 1984)"
+        terms = []
+        if self.intercept_direction != 0:
+            terms.append(f"{self.intercept_direction:+.6g}*{INTERCEPT_NAME}")
+        terms += [f"{v:+.6g}*{n}" for v, n in zip(self.direction, self.names) if v != 0]
+        shown = ", ".join(str(int(r)) for r in self.rows[:max_rows])
+        more = f" and {self.rows.size - max_rows} more" if self.rows.size > max_rows else ""
+        return (
+            f"{self.kind} separation (Albert & Anderson 1984): along the direction "
+            f"{' '.join(terms)} (columns involved: {', '.join(self.columns)}) the linear predictor "
+            f"orders the classes perfectly on {self.rows.size} row(s) ({shown}{more}), so the "
+            "log-likelihood keeps increasing as the coefficients grow without bound and the "
+            "maximum-likelihood estimate does not exist"
+        )
+
+
+def separation_lp(A: np.ndarray, sign: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Solve Konis's programme for the rows ``sign_i * A_i``; return (theta, t).
+
+    Raises :class:`lintools.LintoolsError` when SciPy is not installed.
+    """
+    try:
+        from scipy import sparse
+        from scipy.optimize import linprog
+    except ImportError:
+        raise LintoolsError(
+            "the exact separation check needs SciPy (scipy.optimize.linprog); install it with "
+            "pip install scipy (or the lintools[scipy] extra)"
+        ) from None
+    r, k = A.shape
+    M = sparse.hstack([sparse.csr_matrix(-(A * sign[:, None])), sparse.identity(r, format="csr")], format="csr")
+    cost = np.concatenate([np.zeros(k), -np.ones(r)])
+    bounds = [(None, None)] * k + [(0.0, 1.0)] * r
+    res = linprog(cost, A_ub=M, b_ub=np.zeros(r), bounds=bounds, method="highs")
+    if res.status != 0:
+        raise LintoolsError(f"the separation linear programme failed: {res.message}")
+    return res.x[:k], res.x[k:]
+
+
+def _expanded(y: np.ndarray, m: np.ndarray, w: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Observation rows (index into the data) and signs: +1 success, -1 failure."""
+    use = (w > 0) & (m > 0)
+    succ = np.flatnonzero(use & (y > 0))
+    fail = np.flatnonzero(use & (y < m))
+    return np.concatenate([succ, fail]), np.concatenate([np.ones(succ.size), -np.ones(fail.size)])
+
+
+def separation_from_arrays(
+    X: np.ndarray,
+    y: np.ndarray,
+    m: np.ndarray,
+    w: np.ndarray,
+    intercept: bool,
+    names: tuple[str, ...],
+) -> SeparationCheck:
+    """:func:`check_separation` on checked arrays (successes ``y`` out of ``m``)."""
+    n, p = X.shape
+    rows, sign = _expanded(y, m, w)
+    use = rows
+    v = (w * m)[np.unique(use)]
+    Xu = X[np.unique(use)]
+    c = (v @ Xu) / v.sum() if intercept else np.zeros(p)
+    s = np.sqrt(v @ (Xu - c) ** 2 / v.sum()) if p else np.zeros(0)
+    s = np.where(s > 0, s, 1.0)
+    A = (X[rows] - c) / s
+    if intercept:
+        A = np.column_stack([np.ones(rows.size), A])
+    theta, t = separation_lp(A, sign)
+    strict = t > ROW_THRESHOLD
+    perfect = np.unique(rows[strict])
+    if not strict.any():
+        kind = "none"
+    elif strict.all():
+        kind = "complete"
+    else:
+        kind = "quasi-complete"
+    if kind == "none":
+        return SeparationCheck(kind, np.zeros(p), 0.0, (), np.zeros(0, dtype=int), names)
+    off = int(intercept)
+    g = theta[off:]
+    big = max(float(np.max(np.abs(theta))), 1e-300)
+    beta = np.where(np.abs(g) > COLUMN_THRESHOLD * big, g / s, 0.0)
+    b = 0.0
+    if intercept:
+        shift = float(c @ beta)
+        b = float(theta[0]) - shift
+        if abs(b) <= COLUMN_THRESHOLD * (abs(float(theta[0])) + float(np.abs(c * beta).sum())):
+            b = 0.0
+    scale = max(float(np.max(np.abs(beta))) if p else 0.0, abs(b), 1e-300)
+    beta, b = beta / scale, b / scale
+    columns = ((INTERCEPT_NAME,) if b != 0 else ()) + tuple(names[j] for j in range(p) if beta[j] != 0)
+    return SeparationCheck(kind, beta, b, columns, perfect.astype(int), names)
+
+
+def check_separation(
+    X: Any,
+    y: Any,
+    *,
+    intercept: bool = True,
+    trials: Any = None,
+    weights: Any = None,
+    positive: Any = None,
+    names: Any = None,
+) -> SeparationCheck:
+    r"""Decide exactly whether the classes are (quasi-)completely separated.
+
+    Solves Konis's (2007) linear programme (see the module docstring); a separated data
+    set has no finite maximum-likelihood estimate (Albert & Anderson 1984).
+
+    Parameters
+    ----------
+    X : array-like (n, p)
+        Design without the intercept column.
+    y : array-like (n,)
+        Two labels (the positive class is the larger, or ``positive``), or with
+        ``trials`` the success counts.
+    intercept : bool
+        Whether the model has an intercept (default True).
+    trials : array-like (n,), optional
+        Trials per row for grouped data.
+    weights : array-like (n,), optional
+        Case weights; rows of weight 0 are left out.
+    positive : label, optional
+        The positive class (binary labels only).
+    names : sequence of str, optional
+        Column names for the report.
+
+    Returns
+    -------
+    SeparationCheck
+
+    Raises
+    ------
+    lintools.LintoolsError
+        When SciPy is not installed (the programme needs ``scipy.optimize.linprog``).
+    lintools.InputError
+        For bad input (the same checks as :func:`lintools.logistic`).
+    """
+    from .logistic import _response
+
+    Xa, found = as_matrix(X, "X")
+    n, p = Xa.shape
+    names_t = check_names(names, p, found)
+    w = as_weights(weights, n)
+    yy, m, _, _ = _response(y, trials, positive, n)
+    if not isinstance(intercept, (bool, np.bool_)):
+        from ._errors import InputError
+
+        raise InputError(f"intercept must be True or False; got {intercept!r}")
+    return separation_from_arrays(Xa, yy, m, w, bool(intercept), names_t)

@@ -1,0 +1,651 @@
+r"""Solvers for smooth convex problems in a flat parameter vector, generic over a loss.
+
+A **problem** couples a loss in the linear predictor (:mod:`lintools.losses`), a design
+and a penalty.  The solvers (:func:`newton`, :func:`lbfgs`, :func:`accelerated_gradient`)
+see only this interface::
+
+    size                 length of the parameter vector z (solver coordinates)
+    start()              starting z
+    evaluate(z)          Evaluation(value, gradient in z, original_gradient, eta)
+    hessian(z)           (size, size) Hessian in z (for Firth: the Fisher information)
+    line(z, d)           object with change(t) = F(z + t d) - F(z) and change_and_slope(t)
+                         (adding d/dt F(z + t d)); it reuses X d, so trial steps cost no
+                         pass over the design, and changes are computed directly, so
+                         decreases far below the rounding of F are still resolved
+    to_original(z)       the parameters in the caller's coordinates (a linear map)
+
+The stopping rule is ``max |original_gradient| <= tol``: the gradient of the objective in
+the caller's coordinates at the returned answer (what ``Convergence.gradient_norm``
+reports), whatever coordinates the solver worked in.
+
+:class:`LinearModelProblem` is the problem for ``eta = offset + b + X beta`` (or, for a
+loss with ``K`` outputs, ``eta = offset + 1 b' + X B`` with ``z`` the (p+1, K) array
+flattened row by row)::
+
+    F(b, beta) = loss(eta) + l2/2 |beta|^2                      (jeffreys=False)
+    F(b, beta) = loss(eta) - 1/2 log det I(b, beta)             (jeffreys=True, Firth 1993)
+
+with ``I = [1 X]' W [1 X]`` the Fisher information.  It works in standardised
+coordinates: with centres ``c`` (weighted column means when there is an intercept) and
+scales ``s`` (weighted standard deviations),
+``z = (a, g)`` with ``beta = g / s`` and ``b = a - c' beta``.  The design is never copied
+whole: products with ``X`` go straight to BLAS, and the Hessian is accumulated over
+blocks of rows as ``B' B`` with ``B = sqrt(W) [1, (X - c) / s]``.
+
+References
+----------
+Firth, D. (1993). Bias reduction of maximum likelihood estimates. Biometrika 80, 27-38.
+Nocedal, J. & Wright, S. J. (2006). Numerical Optimization, 2nd ed. Springer.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Any, Callable
+
+import numpy as np
+
+from ..linalg import solve_lower, solve_upper
+
+__all__ = [
+    "IterationRecord",
+    "SolverResult",
+    "Evaluation",
+    "LinearModelProblem",
+    "RestrictedProblem",
+    "SingularMatrixError",
+    "cholesky",
+    "solve_spd",
+    "inverse_spd",
+    "solve",
+    "SOLVERS",
+]
+
+EPS = float(np.finfo(float).eps)
+#: A Jacobi-scaled Cholesky pivot at or below this counts as singular.
+PIVOT_TOLERANCE = 1e3 * EPS
+_BLOCK_BYTES = 1 << 25
+
+
+@dataclass(frozen=True)
+class IterationRecord:
+    """What ``on_iteration`` receives after each iteration.
+
+    Attributes
+    ----------
+    iteration : int
+        Iterations completed so far (1 after the first).
+    objective : float
+        Objective at the new point.
+    gradient_norm : float
+        Max-abs gradient of the objective (caller's coordinates) at the new point.
+    step : float
+        Max-abs change of the parameters (caller's coordinates) in this iteration.
+    """
+
+    iteration: int
+    objective: float
+    gradient_norm: float
+    step: float
+
+
+@dataclass(frozen=True)
+class SolverResult:
+    """How a solver ended: the answer ``z`` (solver coordinates) and its account.
+
+    ``status`` is one of ``"converged"``, ``"iteration_limit"``, ``"stalled"``,
+    ``"singular"``, ``"diverging"``.
+    """
+
+    z: np.ndarray
+    converged: bool
+    iterations: int
+    objective: float
+    gradient_norm: float
+    status: str
+    message: str
+    solver: str
+
+
+@dataclass(frozen=True)
+class Evaluation:
+    """Objective, gradient in solver coordinates, gradient in the caller's, and eta."""
+
+    value: float
+    gradient: np.ndarray
+    original_gradient: np.ndarray
+    eta: Any
+
+    @property
+    def gradient_norm(self) -> float:
+        g = self.original_gradient
+        return float(np.max(np.abs(g))) if g.size else 0.0
+
+
+class SingularMatrixError(ArithmeticError):
+    """A matrix that should be positive definite is numerically singular."""
+
+
+def cholesky(H: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Jacobi-scaled Cholesky: ``H = D L L' D`` with ``D = sqrt(diag H)``; returns (L, d).
+
+    Raises :class:`SingularMatrixError` when a scaled pivot is <= ``PIVOT_TOLERANCE``.
+    """
+    d = np.sqrt(np.diag(H))
+    if H.shape[0] == 0:
+        return np.zeros((0, 0)), d
+    if not np.all(np.isfinite(H)) or not np.all(d > 0):
+        raise SingularMatrixError("zero or non-finite diagonal")
+    Hs = H / d[:, None] / d[None, :]
+    try:
+        L = np.linalg.cholesky(Hs)
+    except np.linalg.LinAlgError:
+        raise SingularMatrixError("not positive definite") from None
+    if np.min(np.diag(L)) ** 2 <= PIVOT_TOLERANCE:
+        raise SingularMatrixError("numerically singular")
+    return L, d
+
+
+def solve_spd(H: np.ndarray, g: np.ndarray) -> np.ndarray:
+    """Solve ``H x = g`` for symmetric positive definite ``H`` (scaled Cholesky)."""
+    L, d = cholesky(H)
+    return solve_upper(L.T, solve_lower(L, g / d)) / d
+
+
+def inverse_spd(H: np.ndarray) -> np.ndarray:
+    """``H^{-1}`` for symmetric positive definite ``H``, symmetric to the last bit."""
+    L, d = cholesky(H)
+    Li = solve_lower(L, np.eye(H.shape[0]))
+    V = (Li.T @ Li) / d[:, None] / d[None, :]
+    return 0.5 * (V + V.T)
+
+
+class _Line:
+    """Changes ``F(z + t d) - F(z)`` and slopes ``d/dt F(z + t d)``; reuses ``eta(z)`` and ``X d``.
+
+    Changes are computed directly (``loss.value_change``), so line searches resolve
+    decreases far below the rounding of ``F`` itself.
+    """
+
+    def __init__(self, problem: "LinearModelProblem", z: np.ndarray, d: np.ndarray) -> None:
+        self.p, self.z, self.d = problem, z, d
+        self.eta0 = problem.eta(z)
+        self.deta = problem.eta(d, with_offset=False)
+        self.root0 = problem._inverse_root(self.eta0) if problem.jeffreys else None
+        self._cache: tuple[float, float, float] | None = None
+
+    def change(self, t: float) -> float:
+        return self.p._change(self, t, need_slope=False)[0]
+
+    def change_and_slope(self, t: float) -> tuple[float, float]:
+        if self._cache is not None and self._cache[0] == t:
+            return self._cache[1], self._cache[2]
+        c, slope = self.p._change(self, t, need_slope=True)
+        self._cache = (t, c, slope)
+        return c, slope
+
+
+class LinearModelProblem:
+    """Loss + linear predictor + penalty, in standardised coordinates (see module doc).
+
+    Parameters
+    ----------
+    X : ndarray (n, p)
+        Design without the intercept column (not copied, not modified).
+    loss : loss object (see :mod:`lintools.losses`)
+    intercept : bool
+        Fit an unpenalised intercept.
+    l2 : float
+        Ridge strength on the slopes.
+    offset : ndarray or None
+        Known part of the linear predictor.
+    jeffreys : bool
+        Firth's penalty ``-1/2 log det I`` instead of the ridge (``l2`` must be 0).
+    centre : bool
+        Centre the columns at their weighted means (with an intercept; default True).
+    """
+
+    def __init__(
+        self,
+        X: np.ndarray,
+        loss: Any,
+        *,
+        intercept: bool = True,
+        l2: float = 0.0,
+        offset: np.ndarray | None = None,
+        jeffreys: bool = False,
+        centre: bool = True,
+    ) -> None:
+        self.X, self.loss, self.intercept = X, loss, bool(intercept)
+        self.l2, self.offset, self.jeffreys = float(l2), offset, bool(jeffreys)
+        if self.jeffreys and (self.l2 != 0 or loss.outputs != 1):
+            raise ValueError("the Jeffreys (Firth) penalty is implemented for one output and l2 = 0")
+        n, p = X.shape
+        self.n, self.p, self.K = n, p, int(loss.outputs)
+        self.off = int(self.intercept)
+        self.p1 = p + self.off
+        self.size = self.p1 * self.K
+        self.block = max(256, _BLOCK_BYTES // (8 * max(self.p1, 1)))
+        v = loss.row_weights()
+        total = float(v.sum())
+        self.c = (v @ X) / total if (self.intercept and centre and p) else np.zeros(p)
+        ss = np.zeros(p)
+        for lo in range(0, n, self.block):
+            D = X[lo : lo + self.block] - self.c
+            ss += v[lo : lo + self.block] @ (D * D)
+        s = np.sqrt(ss / total)
+        # a column whose spread is rounding noise around its centre is treated as constant
+        self.s = np.where((s > 1e-13 * np.abs(self.c)) & (s > 0) & np.isfinite(s), s, 1.0)
+        self.log_det_T = -self.K * float(np.sum(np.log(self.s)))  # log |d theta / d z|
+        self._last: tuple[Any, Any] | None = None  # (z, eta) of the last evaluation
+
+    # ---- coordinates ----------------------------------------------------------------
+    def _parts(self, z: np.ndarray) -> tuple[Any, np.ndarray]:
+        Z = z.reshape(self.p1, self.K) if self.K > 1 else z
+        a = Z[0] if self.intercept else (np.zeros(self.K) if self.K > 1 else 0.0)
+        return a, Z[self.off :]
+
+    def coefficients(self, z: np.ndarray) -> tuple[Any, np.ndarray]:
+        """``(b, beta)`` in the caller's coordinates."""
+        a, g = self._parts(z)
+        beta = g / (self.s[:, None] if self.K > 1 else self.s)
+        return a - self.c @ beta, beta
+
+    def to_original(self, z: np.ndarray) -> np.ndarray:
+        """Parameter vector ``(b, beta)`` in the caller's coordinates (intercept first)."""
+        b, beta = self.coefficients(z)
+        if not self.intercept:
+            return np.array(beta, dtype=float).ravel()
+        return np.concatenate([np.atleast_1d(b), np.ravel(beta)]) if self.K == 1 else np.vstack([b, beta]).ravel()
+
+    def from_original(self, theta: np.ndarray) -> np.ndarray:
+        """Inverse of :meth:`to_original`."""
+        T = theta.reshape(self.p1, self.K) if self.K > 1 else np.asarray(theta, dtype=float)
+        beta = T[self.off :]
+        g = beta * (self.s[:, None] if self.K > 1 else self.s)
+        if not self.intercept:
+            return np.array(g, dtype=float).ravel()
+        a = T[0] + self.c @ beta
+        return np.concatenate([np.atleast_1d(a), g]) if self.K == 1 else np.vstack([a, g]).ravel()
+
+    def start(self) -> np.ndarray:
+        """Intercept at the best constant (e.g. the logit of the mean), slopes at zero."""
+        z = np.zeros(self.size)
+        if self.intercept:
+            a0 = self.loss.start_intercept(self.offset)
+            if self.K > 1:
+                z.reshape(self.p1, self.K)[0] = a0
+            else:
+                z[0] = a0
+        return z
+
+    def eta(self, z: np.ndarray, with_offset: bool = True) -> Any:
+        """Linear predictor at ``z`` (one product with X; the last one is remembered)."""
+        key = (z.tobytes(), with_offset)
+        if self._last is not None and self._last[0] == key:
+            return self._last[1]
+        b, beta = self.coefficients(z)
+        e = self.X @ beta + b
+        if with_offset and self.offset is not None:
+            e = e + self.offset
+        if with_offset:
+            self._last = (key, e)
+        return e
+
+    # ---- objective --------------------------------------------------------------------
+    def _ridge(self, z: np.ndarray) -> float:
+        if self.l2 == 0:
+            return 0.0
+        _, beta = self.coefficients(z)
+        return 0.5 * self.l2 * float(np.sum(beta * beta))
+
+    def _penalty_slope(self, z: np.ndarray, d: np.ndarray) -> float:
+        if self.l2 == 0:
+            return 0.0
+        _, beta = self.coefficients(z)
+        _, dbeta = self.coefficients(d)
+        return self.l2 * float(np.sum(beta * dbeta))
+
+    def _log_det_information(self, eta: Any) -> tuple[float, Any, Any]:
+        """``log det I`` in the caller's coordinates, with the scaled Cholesky factors."""
+        L, d = cholesky(self._information(self.loss.curvature(eta)))
+        logdet = 2.0 * float(np.sum(np.log(np.diag(L))) + np.sum(np.log(d)))
+        return logdet - 2.0 * self.log_det_T, L, d
+
+    def _inverse_root(self, eta: Any) -> np.ndarray | None:
+        """``Li`` with ``I^{-1} = Li' Li`` at ``eta`` (None when I is singular)."""
+        try:
+            L, d = cholesky(self._information(self.loss.curvature(eta)))
+        except SingularMatrixError:
+            return None
+        return solve_lower(L, np.diag(1.0 / d))
+
+    def _information_signed(self, dW: np.ndarray) -> np.ndarray:
+        """``A' diag(dW) A`` for weights of any sign (one output)."""
+        H = np.zeros((self.p1, self.p1))
+        for lo, A in self._blocks():
+            H += A.T @ (A * dW[lo : lo + A.shape[0], None])
+        return 0.5 * (H + H.T)
+
+    def _residual(self, eta: Any, factors: Any = None) -> Any:
+        """Derivative of the objective in eta (Firth adds ``-1/2 q dW/deta``)."""
+        r = self.loss.gradient(eta)
+        if self.jeffreys:
+            L, d = factors
+            r = r - 0.5 * self._leverage_factor(L, d) * self.loss.curvature_slope(eta)
+        return r
+
+    def _value_at(self, z: np.ndarray, eta: Any) -> tuple[float, Any]:
+        """Objective at ``z`` (with linear predictor ``eta``) and its derivative in eta."""
+        f = self.loss.value(eta) + self._ridge(z)
+        factors = None
+        if self.jeffreys:
+            logdet, L, d = self._log_det_information(eta)
+            f -= 0.5 * logdet
+            factors = (L, d)
+        return f, self._residual(eta, factors)
+
+    def _change(self, line: _Line, t: float, need_slope: bool) -> tuple[float, float]:
+        delta = t * line.deta
+        eta = line.eta0 + delta
+        if not np.all(np.isfinite(eta)):
+            return math.inf, math.nan
+        c = self.loss.value_change(line.eta0, delta)
+        if self.l2:
+            _, beta = self.coefficients(line.z)
+            _, db = self.coefficients(line.d)
+            c += self.l2 * (t * float(np.sum(beta * db)) + 0.5 * t * t * float(np.sum(db * db)))
+        factors = None
+        if self.jeffreys:
+            if line.root0 is None:
+                return math.inf, math.nan
+            # log det I(t) - log det I(0) = sum log1p(eig(Li dI Li')), dI = A' diag(dW) A
+            dI = self._information_signed(self.loss.curvature_change(line.eta0, delta))
+            lam = np.linalg.eigvalsh(line.root0 @ dI @ line.root0.T)
+            if lam.size and lam.min() <= -1.0:
+                return math.inf, math.nan
+            c -= 0.5 * float(np.sum(np.log1p(lam)))
+            if need_slope:
+                try:
+                    factors = cholesky(self._information(self.loss.curvature(eta)))
+                except SingularMatrixError:
+                    return math.inf, math.nan
+        if not need_slope:
+            return float(c), math.nan
+        slope = float(np.sum(self._residual(eta, factors) * line.deta))
+        if self.l2:
+            slope += self._penalty_slope(line.z + t * line.d, line.d)
+        return float(c), slope
+
+    def evaluate(self, z: np.ndarray) -> Evaluation:
+        """Objective, gradient in z and in the caller's coordinates (two passes over X)."""
+        eta = self.eta(z)
+        f, r = self._value_at(z, eta)
+        b, beta = self.coefficients(z)
+        Gb = r.sum(axis=0)
+        Gbeta = self.X.T @ r
+        if self.l2:
+            Gbeta = Gbeta + self.l2 * beta
+        sc = self.s[:, None] if self.K > 1 else self.s
+        gz_slopes = (Gbeta - np.multiply.outer(self.c, Gb)) / sc
+        if self.intercept:
+            original = np.concatenate([np.atleast_1d(Gb), np.ravel(Gbeta)]) if self.K == 1 else np.vstack([Gb, Gbeta]).ravel()
+            gz = np.concatenate([np.atleast_1d(Gb), np.ravel(gz_slopes)]) if self.K == 1 else np.vstack([Gb, gz_slopes]).ravel()
+        else:
+            original, gz = np.ravel(Gbeta).astype(float), np.ravel(gz_slopes).astype(float)
+        return Evaluation(float(f), gz, original, eta)
+
+    # ---- curvature ----------------------------------------------------------------------
+    def _blocks(self):
+        """Rows of the standardised design ``[1, (X - c) / s]`` in blocks (one reused buffer)."""
+        buf = np.empty((min(self.block, self.n), self.p1))
+        for lo in range(0, self.n, self.block):
+            Xb = self.X[lo : lo + self.block]
+            A = buf[: Xb.shape[0]]
+            if self.intercept:
+                A[:, 0] = 1.0
+            np.subtract(Xb, self.c, out=A[:, self.off :])
+            A[:, self.off :] /= self.s
+            yield lo, A
+
+    def _unit_scale(self) -> np.ndarray:
+        return np.concatenate([np.ones(self.off), 1.0 / self.s])
+
+    def _information(self, W: np.ndarray) -> np.ndarray:
+        """``A' W A`` in z coordinates (no penalty): one BLAS product per block of rows.
+
+        For one output each block is ``B = sqrt(W) [1, X - c]`` written into one reused
+        buffer, ``B'B`` goes to BLAS, and the column scales ``1/s`` are applied once to the
+        (p+1) x (p+1) result.
+        """
+        if self.K == 1:
+            H = np.zeros((self.p1, self.p1))
+            buf = np.empty((min(self.block, self.n), self.p1))
+            for lo in range(0, self.n, self.block):
+                Xb = self.X[lo : lo + self.block]
+                B = buf[: Xb.shape[0]]
+                sw = np.sqrt(W[lo : lo + Xb.shape[0]])
+                if self.intercept:
+                    B[:, 0] = sw
+                np.subtract(Xb, self.c, out=B[:, self.off :])
+                B[:, self.off :] *= sw[:, None]
+                H += B.T @ B
+            u = self._unit_scale()
+            H *= np.multiply.outer(u, u)
+            return 0.5 * (H + H.T)
+        K = self.K
+        H = np.zeros((self.p1, K, self.p1, K))
+        for lo, A in self._blocks():
+            Wb = W[lo : lo + A.shape[0]]
+            for k in range(K):
+                for m in range(k, K):
+                    blk = A.T @ (A * Wb[:, k, m][:, None])
+                    H[:, k, :, m] += blk
+                    if m != k:
+                        H[:, m, :, k] += blk.T
+        H = H.reshape(self.size, self.size)
+        return 0.5 * (H + H.T)
+
+    def _leverage_factor(self, L: np.ndarray, d: np.ndarray) -> np.ndarray:
+        """``q_i = a_i' I^{-1} a_i`` for the standardised rows ``a_i`` (Firth's hat values / W)."""
+        Li = solve_lower(L, np.diag(1.0 / d))  # I^{-1} = Li' Li
+        q = np.empty(self.n)
+        for lo, A in self._blocks():
+            Y = A @ Li.T
+            q[lo : lo + A.shape[0]] = np.einsum("ij,ij->i", Y, Y)
+        return q
+
+    def _penalty_diagonal(self) -> np.ndarray:
+        pen = np.zeros((self.p1, self.K))
+        pen[self.off :] = (self.l2 / self.s**2)[:, None]
+        return pen.ravel()
+
+    def gradient_rounding(self, z: np.ndarray) -> float:
+        """Estimated float64 rounding level of the max-abs original gradient at ``z``.
+
+        ``eps * max_j sum_i |a_ij| (|r_i| + W_i e_i)`` with ``a_i = (1, x_i)``, ``r`` the
+        derivative in eta, ``W`` the curvature and ``e_i = |x_i||beta| + |b| + |o_i|`` the
+        size of the terms summed into eta (one output; NaN otherwise).  Blocked: no copy of X.
+        """
+        if self.K != 1:
+            return math.nan
+        eta = self.eta(z)
+        r, W = np.abs(self.loss.gradient(eta)), self.loss.curvature(eta)
+        b, beta = self.coefficients(z)
+        e = np.full(self.n, abs(float(b)))
+        if self.offset is not None:
+            e += np.abs(self.offset)
+        out = np.zeros(self.p)
+        for lo in range(0, self.n, self.block):
+            Ab = np.abs(self.X[lo : lo + self.block])
+            sl = slice(lo, lo + Ab.shape[0])
+            e[sl] += Ab @ np.abs(beta)
+            out += Ab.T @ (r[sl] + W[sl] * e[sl])
+        first = float(np.sum(r + W * e)) if self.intercept else 0.0
+        return EPS * max(first, float(out.max()) if out.size else 0.0)
+
+    def fisher_information(self, z: np.ndarray) -> np.ndarray:
+        """Penalised Fisher information ``A'WA + l2 D`` in z (the covariance uses its inverse)."""
+        H = self._information(self.loss.curvature(self.eta(z)))
+        if self.l2:
+            H[np.diag_indices_from(H)] += self._penalty_diagonal()
+        return H
+
+    def hessian(self, z: np.ndarray, E: np.ndarray | None = None) -> np.ndarray:
+        """Penalised Hessian in z (projected to ``E' H E`` when ``E`` is given).
+
+        For the Jeffreys (Firth) penalty this is the exact Hessian of
+        ``loss - 1/2 log det I`` when it (projected) is positive definite, else the Fisher
+        information (the Fisher-scoring step of Heinze & Schemper 2002).
+        """
+        if not self.jeffreys:
+            H = self.fisher_information(z)
+            return H if E is None else E.T @ H @ E
+        eta = self.eta(z)
+        info = self._information(self.loss.curvature(eta))
+        exact = self._jeffreys_hessian(eta, info)
+        if E is not None:
+            info, exact = E.T @ info @ E, E.T @ exact @ E
+        try:
+            cholesky(exact)
+        except SingularMatrixError:
+            return info
+        return exact
+
+    def _jeffreys_hessian(self, eta: Any, info: np.ndarray) -> np.ndarray:
+        r"""Exact Hessian of ``loss - 1/2 log det I`` with ``I = A' W A``.
+
+        :math:`\nabla^2 = I - \tfrac12 A'\,\mathrm{diag}(q W'')\,A + \tfrac12 N N'`, with
+        :math:`q_i = a_i' I^{-1} a_i`, :math:`N = \sum_i W'_i a_i\,\mathrm{vec}(y_i y_i')'` and
+        :math:`y_i = L^{-1} a_i` (``I = L L'``); the last term is
+        :math:`\mathrm{tr}(I^{-1}\partial_j I\, I^{-1}\partial_k I)`.  Cost: ``n p^3``.
+        """
+        L, d = cholesky(info)
+        Li = solve_lower(L, np.diag(1.0 / d))
+        W1, W2 = self.loss.curvature_slope(eta), self.loss.curvature_second(eta)
+        k = self.p1
+        T1 = np.zeros((k, k))
+        N = np.zeros((k, k * k))
+        rows = max(64, _BLOCK_BYTES // (8 * max(k * k, 1)))
+        for lo in range(0, self.n, rows):
+            hi = min(self.n, lo + rows)
+            A = np.empty((hi - lo, k))
+            if self.intercept:
+                A[:, 0] = 1.0
+            np.subtract(self.X[lo:hi], self.c, out=A[:, self.off :])
+            A[:, self.off :] /= self.s
+            Y = A @ Li.T
+            q = np.einsum("ij,ij->i", Y, Y)
+            T1 += A.T @ (A * (q * W2[lo:hi])[:, None])
+            N += (A * W1[lo:hi, None]).T @ np.einsum("ij,ik->ijk", Y, Y).reshape(hi - lo, k * k)
+        H = info - 0.5 * T1 + 0.5 * (N @ N.T)
+        return 0.5 * (H + H.T)
+
+    def hessian_vector(self, z: np.ndarray, v: np.ndarray) -> np.ndarray:
+        """Penalised Hessian (Firth: Fisher information) times ``v``, without forming it."""
+        eta = self.eta(z)
+        u = self.loss.hessian_vector(eta, self.eta(v, with_offset=False))
+        Gb = u.sum(axis=0)
+        sc = self.s[:, None] if self.K > 1 else self.s
+        Gs = (self.X.T @ u - np.multiply.outer(self.c, Gb)) / sc
+        out = np.concatenate([np.atleast_1d(Gb), np.ravel(Gs)]) if self.K == 1 else np.vstack([Gb, Gs]).ravel()
+        if not self.intercept:
+            out = np.ravel(Gs)
+        return out + self._penalty_diagonal() * v
+
+    def line(self, z: np.ndarray, d: np.ndarray) -> _Line:
+        """The objective along ``z + t d``."""
+        return _Line(self, z, d)
+
+    def information_original(self, z: np.ndarray) -> np.ndarray:
+        """Penalised information (Hessian) in the caller's coordinates, intercept first."""
+        Hz = self.hessian(z)
+        Tinv = self.z_from_theta_matrix()
+        return Tinv.T @ Hz @ Tinv
+
+    def z_from_theta_matrix(self) -> np.ndarray:
+        """The matrix M with ``z = M theta`` (theta in the caller's coordinates)."""
+        M = np.zeros((self.p1, self.p1))
+        M[self.off :, self.off :] = np.diag(self.s)
+        if self.intercept:
+            M[0, 0] = 1.0
+            M[0, 1:] = self.c
+        return np.kron(M, np.eye(self.K)) if self.K > 1 else M
+
+    def theta_from_z_matrix(self) -> np.ndarray:
+        """The matrix T with ``theta = T z``."""
+        T = np.zeros((self.p1, self.p1))
+        T[self.off :, self.off :] = np.diag(1.0 / self.s)
+        if self.intercept:
+            T[0, 0] = 1.0
+            T[0, 1:] = -self.c / self.s
+        return np.kron(T, np.eye(self.K)) if self.K > 1 else T
+
+
+class RestrictedProblem:
+    """A problem with some caller's-coordinate parameters held at fixed values.
+
+    The free parameters ``u`` enter as ``z = z0 + E u`` (an affine map); the gradient is
+    ``E' grad`` and the stopping rule uses the free entries of the original gradient.
+    Used for profile likelihoods (each parameter in turn held fixed).
+    """
+
+    def __init__(self, problem: LinearModelProblem, fixed: dict[int, float]) -> None:
+        self.base = problem
+        size = problem.size
+        T, M = problem.theta_from_z_matrix(), problem.z_from_theta_matrix()
+        self.free = np.array([j for j in range(size) if j not in fixed], dtype=int)
+        theta0 = np.zeros(size)
+        for j, v in fixed.items():
+            theta0[j] = v
+        self.z0 = M @ theta0
+        self.E = M[:, self.free]
+        self.T = T
+        self.size = self.free.size
+
+    def embed(self, u: np.ndarray) -> np.ndarray:
+        return self.z0 + self.E @ u
+
+    def project(self, z: np.ndarray) -> np.ndarray:
+        """Free parameters of a full z (its caller's-coordinate entries)."""
+        return (self.T @ z)[self.free]
+
+    def start(self) -> np.ndarray:
+        return np.zeros(self.size)
+
+    def evaluate(self, u: np.ndarray) -> Evaluation:
+        ev = self.base.evaluate(self.embed(u))
+        return Evaluation(ev.value, self.E.T @ ev.gradient, ev.original_gradient[self.free], ev.eta)
+
+    def hessian(self, u: np.ndarray) -> np.ndarray:
+        return self.base.hessian(self.embed(u), E=self.E)
+
+    def line(self, u: np.ndarray, d: np.ndarray) -> _Line:
+        line = self.base.line(self.embed(u), self.E @ d)
+        return line
+
+    def to_original(self, u: np.ndarray) -> np.ndarray:
+        return self.base.to_original(self.embed(u))[self.free]
+
+
+def solve(
+    problem: Any,
+    method: str,
+    *,
+    tol: float,
+    max_iter: int,
+    on_iteration: Callable[[IterationRecord], Any] | None = None,
+    monitor: Callable[[np.ndarray, Evaluation], str | None] | None = None,
+    start: np.ndarray | None = None,
+) -> SolverResult:
+    """Run the named solver (``"newton"``, ``"lbfgs"`` or ``"gradient"``) on ``problem``."""
+    from .gradient import accelerated_gradient
+    from .lbfgs import lbfgs
+    from .newton import newton
+
+    fn = {"newton": newton, "lbfgs": lbfgs, "gradient": accelerated_gradient}[method]
+    return fn(problem, tol=tol, max_iter=max_iter, on_iteration=on_iteration, monitor=monitor, start=start)
+
+
+SOLVERS = ("newton", "lbfgs", "gradient")

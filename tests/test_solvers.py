@@ -1,0 +1,201 @@
+"""The generic solvers: problem derivatives, stopping rule, line search, (n, K) outputs.
+
+Sources: central finite differences (common practice) for derivatives; statsmodels' Logit
+and multinomial logit (its anes96 data) as oracles for the optima; the strong Wolfe
+conditions as stated by Nocedal & Wright (2006), eq. 3.7.
+"""
+
+
+import numpy as np
+import pytest
+import statsmodels.api as sm
+
+from lintools import IterationLimitWarning, logistic
+from lintools.losses import BinomialLoss
+from lintools.solvers import IterationRecord, LinearModelProblem, SOLVERS, solve
+from lintools.solvers.lbfgs import C1, C2, wolfe_search
+
+
+def _fd_check(P, z, h=1e-6):
+    ev = P.evaluate(z)
+    g = np.zeros(P.size)
+    Hn = np.zeros((P.size, P.size))
+    for j in range(P.size):
+        e = np.zeros(P.size)
+        e[j] = h
+        up, dn = P.evaluate(z + e), P.evaluate(z - e)
+        g[j] = (up.value - dn.value) / (2 * h)
+        Hn[:, j] = (up.gradient - dn.gradient) / (2 * h)
+    return ev, g, Hn
+
+
+@pytest.mark.parametrize("intercept,l2,jeffreys", [(True, 0.0, False), (False, 0.3, False), (True, 1.5, False), (True, 0.0, True)])
+def test_gradient_and_hessian_match_finite_differences(intercept, l2, jeffreys):
+    # source: central finite differences (common practice)
+    rng = np.random.default_rng(2)
+    X = rng.normal(size=(40, 3)) * [1.0, 8.0, 0.2] + [0.0, 3.0, -1.0]
+    m = rng.integers(1, 6, 40).astype(float)
+    y = np.floor(rng.random(40) * (m + 1))
+    P = LinearModelProblem(X, BinomialLoss(y, m, rng.random(40) + 0.5), intercept=intercept, l2=l2,
+                           offset=rng.normal(size=40) * 0.3, jeffreys=jeffreys)
+    z = rng.normal(size=P.size) * 0.3
+    ev, g, Hn = _fd_check(P, z)
+    np.testing.assert_allclose(ev.gradient, g, rtol=1e-6, atol=1e-6)
+    np.testing.assert_allclose(P.hessian(z), Hn, rtol=1e-5, atol=1e-5)
+    # the original-coordinate gradient is the chain rule of the z gradient: g_z = T' g_theta
+    T = P.theta_from_z_matrix()
+    np.testing.assert_allclose(T.T @ ev.original_gradient, ev.gradient, rtol=1e-12, atol=1e-12)
+    if not jeffreys:
+        v = rng.normal(size=P.size)
+        np.testing.assert_allclose(P.hessian_vector(z, v), P.hessian(z) @ v, rtol=1e-11, atol=1e-11)
+    # line changes and slopes agree with differences of evaluations
+    d = -ev.gradient
+    line = P.line(z, d)
+    for t in (1e-3, 0.2):
+        c, s = line.change_and_slope(t)
+        at = P.evaluate(z + t * d)
+        assert c == pytest.approx(at.value - ev.value, rel=1e-9, abs=1e-12)
+        assert s == pytest.approx(float(at.gradient @ d), rel=1e-9, abs=1e-12)
+
+
+def _spector():
+    d = sm.datasets.spector.load_pandas()
+    return d.exog.to_numpy(float), d.endog.to_numpy(float)
+
+
+@pytest.mark.parametrize("method", SOLVERS)
+def test_stopping_rule_is_on_the_original_gradient_at_the_answer(method):
+    # source: statsmodels Logit for the optimum; the gradient is recomputed here with NumPy
+    X, y = _spector()
+    records = []
+    fit = logistic(X, y, solver=method, tol=1e-9, max_iter=5000, on_iteration=records.append)
+    ref = sm.Logit(y, sm.add_constant(X)).fit(disp=0, tol=1e-13, method="newton")
+    eta = fit.intercept + X @ fit.coefficients
+    mu = 1 / (1 + np.exp(-eta))
+    grad = np.concatenate([[np.sum(mu - y)], X.T @ (mu - y)])
+    assert fit.convergence.converged
+    # equal up to the rounding of the sums (about 1e-14 here, common practice)
+    assert fit.convergence.gradient_norm == pytest.approx(np.max(np.abs(grad)), abs=1e-13)
+    assert fit.convergence.gradient_norm <= 1e-9
+    np.testing.assert_allclose(np.r_[fit.intercept, fit.coefficients], ref.params, rtol=1e-7)
+    assert [r.iteration for r in records] == list(range(1, fit.convergence.iterations + 1))
+    assert all(isinstance(r, IterationRecord) for r in records)
+    assert records[-1].gradient_norm == pytest.approx(fit.convergence.gradient_norm)
+    with pytest.raises(AttributeError):
+        records[0].objective = 0.0  # frozen
+    if method == "newton":  # step halving never lets the objective rise
+        assert all(b.objective <= a.objective + 1e-12 for a, b in zip(records, records[1:]))
+
+
+@pytest.mark.parametrize("method", SOLVERS)
+def test_iteration_limit_is_never_presented_as_converged(method):
+    # source: common practice (an honest convergence record)
+    X, y = _spector()
+    with pytest.warns(IterationLimitWarning, match="NOT converged"):
+        fit = logistic(X, y, solver=method, max_iter=2)
+    assert not fit.convergence.converged and fit.convergence.iterations == 2
+    assert fit.convergence.gradient_norm > 1e-10
+    assert "iteration limit" in fit.convergence.message
+
+
+def test_strong_wolfe_conditions_hold_at_the_accepted_step():
+    # source: Nocedal & Wright (2006) eq. 3.7, checked with direct evaluations
+    X, y = _spector()
+    P = LinearModelProblem(X, BinomialLoss(y))
+    rng = np.random.default_rng(0)
+    for _ in range(10):
+        z = rng.normal(size=P.size)
+        ev = P.evaluate(z)
+        d = -ev.gradient * rng.uniform(0.01, 3)
+        g0 = float(ev.gradient @ d)
+        t, change, ok = wolfe_search(P.line(z, d), g0, 1.0)
+        at = P.evaluate(z + t * d)
+        assert ok
+        assert at.value - ev.value <= C1 * t * g0 + 1e-12 * abs(ev.value)
+        assert abs(float(at.gradient @ d)) <= C2 * abs(g0) * (1 + 1e-9)
+        assert change == pytest.approx(at.value - ev.value, rel=1e-8, abs=1e-12)
+
+
+@pytest.mark.parametrize("method", SOLVERS)
+def test_badly_scaled_columns_give_the_same_model(method):
+    # source: common practice (equivariance: scaling a column divides its coefficient)
+    X, y = _spector()
+    scale = np.array([1e4, 1e-3, 1.0])
+    a = logistic(X, y, solver=method, tol=1e-8, max_iter=20000)
+    b = logistic(X * scale, y, solver=method, tol=1e-8, max_iter=20000)
+    assert b.convergence.converged
+    np.testing.assert_allclose(b.coefficients * scale, a.coefficients, rtol=1e-6)
+    assert b.intercept == pytest.approx(a.intercept, rel=1e-6)
+
+
+class _Multinomial:
+    """Test-only multinomial loss (first class as reference): exercises the (n, K) path."""
+
+    def __init__(self, codes, K):
+        self.Y = np.eye(K)[codes][:, 1:]
+        self.outputs = K - 1
+        self.w = np.ones(codes.size)
+
+    def row_weights(self):
+        return self.w
+
+    def start_intercept(self, offset=None):
+        freq = self.Y.mean(0)
+        return np.log(freq / (1 - self.Y.sum(1)).mean())
+
+    def _probs(self, eta):
+        full = np.column_stack([np.zeros(eta.shape[0]), eta])
+        full -= full.max(1, keepdims=True)
+        e = np.exp(full)
+        return (e / e.sum(1, keepdims=True))[:, 1:]
+
+    def value(self, eta):
+        full = np.column_stack([np.zeros(eta.shape[0]), eta])
+        mx = full.max(1)
+        lse = mx + np.log(np.exp(full - mx[:, None]).sum(1))
+        return float(np.sum(lse - np.sum(self.Y * eta, 1)))
+
+    def value_change(self, eta, delta):
+        # lse(a + d) - lse(a) = log1p(sum_k softmax(a)_k expm1(d_k)), reference class d_0 = 0
+        P = self._probs(eta)
+        return float(np.sum(np.log1p(np.sum(P * np.expm1(delta), 1)) - np.sum(self.Y * delta, 1)))
+
+    def gradient(self, eta):
+        return self._probs(eta) - self.Y
+
+    def value_and_gradient(self, eta):
+        return self.value(eta), self.gradient(eta)
+
+    def curvature(self, eta):
+        P = self._probs(eta)
+        return P[:, :, None] * np.eye(P.shape[1])[None] - P[:, :, None] * P[:, None, :]
+
+    def hessian_vector(self, eta, u):
+        P = self._probs(eta)
+        Pu = P * u
+        return Pu - P * Pu.sum(1, keepdims=True)
+
+
+def test_multioutput_problem_derivatives_and_all_solvers_match_statsmodels_multinomial():
+    # source: statsmodels multinomial logit (MNLogit) on its shipped anes96 data; central
+    # finite differences (common practice) for the (n, K) gradient and Hessian
+    d = sm.datasets.anes96.load_pandas()
+    X = d.exog.to_numpy(float)
+    codes = d.endog.to_numpy().astype(int)
+    loss = _Multinomial(codes, 7)
+    P = LinearModelProblem(X, loss)
+    z = np.random.default_rng(1).normal(size=P.size) * 0.05
+    ev, g, Hn = _fd_check(P, z, h=1e-5)
+    np.testing.assert_allclose(ev.gradient, g, rtol=1e-5, atol=1e-5)
+    np.testing.assert_allclose(P.hessian(z), Hn, rtol=1e-4, atol=1e-4)
+    v = np.arange(P.size, dtype=float)
+    np.testing.assert_allclose(P.hessian_vector(z, v), P.hessian(z) @ v, rtol=1e-10, atol=1e-9)
+    ref = sm.MNLogit(codes, sm.add_constant(X)).fit(disp=0, method="newton", tol=1e-12, maxiter=100)
+    expected = np.asarray(ref.params)  # (p + 1, K - 1), intercept row first
+    for method, tol, iters in (("newton", 1e-8, 100), ("lbfgs", 1e-6, 20000), ("gradient", 1e-5, 200000)):
+        res = solve(P, method, tol=tol, max_iter=iters)
+        assert res.converged, res.message
+        got = P.to_original(res.z).reshape(6, 6)
+        np.testing.assert_allclose(got, expected, rtol=1e-5, atol=1e-6)
+    res = solve(P, "newton", tol=1e-8, max_iter=100)
+    np.testing.assert_allclose(P.to_original(res.z).reshape(6, 6), expected, rtol=1e-8, atol=1e-10)
