@@ -14,6 +14,29 @@ from ._errors import (
 from ._records import CoefficientTable, Convergence, LinearFit
 from .io import load, save
 from .least_squares import least_squares
+from ._records import LogisticFit
+from .logistic import logistic
+from .separation import SeparationCheck, check_separation
+from .calibration import BrierScore, brier, cross_entropy
+from .calibration_bins import ReliabilityTable, calibration_error, reliability
+from .calibration_checks import (
+    CalibrationLine,
+    HosmerLemeshow,
+    SpiegelhalterTest,
+    calibration_line,
+    hosmer_lemeshow,
+    spiegelhalter,
+)
+from .crosscheck import CoefficientComparison, ImpliedPenalty, compare_coefficients, implied_l2
+from .discrimination import ROCArea, ROCAreaDifference, roc_auc, roc_auc_difference
+from .recalibration import (
+    IsotonicMap,
+    PlattMap,
+    TemperatureMap,
+    isotonic_calibration,
+    platt_scaling,
+    temperature_scaling,
+)
 from .splitting import (
     SmallClassWarning,
     SplitBalance,
@@ -37,6 +60,10 @@ __all__ = [
     "LintoolsWarning",
     "SeparationError",
     "least_squares",
+    "LogisticFit",
+    "logistic",
+    "SeparationCheck",
+    "check_separation",
     "load",
     "save",
     "SmallClassWarning",
@@ -46,4 +73,30 @@ __all__ = [
     "stratified_bootstrap",
     "stratified_folds",
     "stratified_holdout",
+    "BrierScore",
+    "brier",
+    "cross_entropy",
+    "ReliabilityTable",
+    "calibration_error",
+    "reliability",
+    "CalibrationLine",
+    "HosmerLemeshow",
+    "SpiegelhalterTest",
+    "calibration_line",
+    "hosmer_lemeshow",
+    "spiegelhalter",
+    "CoefficientComparison",
+    "ImpliedPenalty",
+    "compare_coefficients",
+    "implied_l2",
+    "ROCArea",
+    "ROCAreaDifference",
+    "roc_auc",
+    "roc_auc_difference",
+    "IsotonicMap",
+    "PlattMap",
+    "TemperatureMap",
+    "isotonic_calibration",
+    "platt_scaling",
+    "temperature_scaling",
 ]

@@ -1,0 +1,265 @@
+"""Statistical checks of calibration for binary probability forecasts: the
+Hosmer-Lemeshow test, Spiegelhalter's z test and Cox's calibration line.
+
+Labels and forecasts are read as in :mod:`lintools.calibration`; case weights act as
+frequency weights.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from . import _distributions as dist
+from ._errors import InputError
+from ._outcomes import binary_forecast, binary_outcome, case_weights, fmt_number, fmt_p, two_sided
+from ._validate import check_positive_int
+from ._calibration_line import CalibrationLine, calibration_line
+
+__all__ = [
+    "HosmerLemeshow",
+    "SpiegelhalterTest",
+    "CalibrationLine",
+    "hosmer_lemeshow",
+    "spiegelhalter",
+    "calibration_line",
+]
+
+
+# ------------------------------------------------------------------ Hosmer-Lemeshow
+@dataclass(frozen=True)
+class HosmerLemeshow:
+    """Result of :func:`hosmer_lemeshow`: the statistic and its observed/expected table.
+
+    Attributes
+    ----------
+    statistic : float
+        :math:`\\sum_g [(O_g - E_g)^2 / E_g + (O'_g - E'_g)^2 / E'_g]`.
+    degrees_of_freedom : int
+        Number of groups formed minus 2.
+    p_value : float
+        Upper tail of chi-square(``degrees_of_freedom``).
+    lower, upper : ndarray
+        Smallest and largest forecast in each group.
+    count : ndarray of int
+        Rows in each group.
+    weight : ndarray
+        Total case weight of each group.
+    observed, expected : ndarray
+        Weighted number of positives and sum of forecasts in each group.
+    observed_negative, expected_negative : ndarray
+        The same for the negative class.
+    """
+
+    statistic: float
+    degrees_of_freedom: int
+    p_value: float
+    lower: np.ndarray
+    upper: np.ndarray
+    count: np.ndarray
+    weight: np.ndarray
+    observed: np.ndarray
+    expected: np.ndarray
+    observed_negative: np.ndarray
+    expected_negative: np.ndarray
+
+    def report(self) -> str:
+        """Return the observed/expected table and the test as text."""
+        head = ("group".rjust(5) + "p from".rjust(11) + "p to".rjust(11) + "rows".rjust(8) + "weight".rjust(11)
+                + "obs pos".rjust(11) + "exp pos".rjust(11) + "obs neg".rjust(11) + "exp neg".rjust(11))
+        lines = ["Hosmer-Lemeshow test", head, "-" * len(head)]
+        for g in range(len(self.count)):
+            lines.append(
+                str(g + 1).rjust(5) + fmt_number(self.lower[g]) + fmt_number(self.upper[g]) + str(int(self.count[g])).rjust(8)
+                + fmt_number(self.weight[g]) + fmt_number(self.observed[g]) + fmt_number(self.expected[g])
+                + fmt_number(self.observed_negative[g]) + fmt_number(self.expected_negative[g])
+            )
+        lines.append(f"statistic {self.statistic:.6g} on {self.degrees_of_freedom} df, p {fmt_p(self.p_value)}")
+        return "\n".join(lines) + "\n"
+
+
+def _risk_groups(f: np.ndarray, w: np.ndarray, groups: int) -> np.ndarray:
+    """Group number of each row: deciles (or ``groups``-iles) of risk, ties kept together."""
+    values, index = np.unique(f, return_inverse=True)
+    cum = np.cumsum(np.bincount(index, weights=w, minlength=values.shape[0]))
+    total = cum[-1]
+    # cut point j (1..groups-1): the smallest distinct forecast whose cumulative weight
+    # share reaches j / groups; compared as cum * groups >= j * total (exact for counts)
+    cuts = [values[int(np.argmax(cum * groups >= j * total))] for j in range(1, groups)]
+    group_of_value = np.searchsorted(np.asarray(cuts), values, side="left")
+    return group_of_value[index]
+
+
+def hosmer_lemeshow(
+    y: Any, p: Any, *, groups: int = 10, weights: Any = None, positive: Any = None
+) -> HosmerLemeshow:
+    r"""Hosmer-Lemeshow goodness-of-fit test over groups of risk.
+
+    The rows are ordered by forecast and cut into ``groups`` groups of (nearly) equal
+    total weight, the "deciles of risk" for ``groups=10``.  Cut point :math:`c_j`
+    (:math:`j = 1..G-1`) is the smallest distinct forecast :math:`v` whose cumulative
+    weight share :math:`W(f \le v)/W` reaches :math:`j/G`; a row belongs to group
+    :math:`\#\{j: c_j < f_i\}`.  Rows with tied forecasts are therefore never split
+    across groups; when ties make cut points coincide, the empty groups are dropped
+    and the degrees of freedom count the groups actually formed.  With
+    :math:`O_g = \sum_g w_i o_i`, :math:`E_g = \sum_g w_i f_i`,
+    :math:`O'_g = \sum_g w_i (1-o_i)`, :math:`E'_g = \sum_g w_i (1-f_i)`:
+
+    .. math:: C = \sum_g \frac{(O_g - E_g)^2}{E_g} + \frac{(O'_g - E'_g)^2}{E'_g}
+              = \sum_g \frac{(O_g - E_g)^2}{W_g \bar f_g (1 - \bar f_g)},
+
+    referred to chi-square with (groups formed - 2) degrees of freedom.  A group whose
+    expected count is 0 while its observed count is not makes the statistic ``inf``
+    (p-value 0); 0/0 terms count 0.
+
+    Parameters
+    ----------
+    y : array-like
+        Binary labels.
+    p : array-like
+        Probability of the positive class.
+    groups : int
+        Number of groups wanted (>= 3).
+    weights : array-like, optional
+        Case weights.
+    positive : label, optional
+
+    Returns
+    -------
+    HosmerLemeshow
+
+    Raises
+    ------
+    InputError
+        When ties leave fewer than 3 groups (no degrees of freedom).
+
+    References
+    ----------
+    Hosmer, D. W. & Lemeshow, S. (1980). Goodness of fit tests for the multiple logistic
+    regression model. Communications in Statistics - Theory and Methods 9, 1035-1049.
+    """
+    f = binary_forecast(p)
+    o, _ = binary_outcome(y, positive, n=f.shape[0])
+    w = case_weights(weights, f.shape[0])
+    g_wanted = check_positive_int(groups, "groups", minimum=3)
+    gid = _risk_groups(f, w, g_wanted)
+    m = g_wanted
+    wk = np.bincount(gid, weights=w, minlength=m)
+    keep = wk > 0
+    if keep.sum() < 3:
+        raise InputError(
+            f"p has too few distinct values (with positive weight) to form 3 risk groups "
+            f"(formed {int(keep.sum())}); the Hosmer-Lemeshow test needs at least 3 groups"
+        )
+    count = np.bincount(gid, minlength=m)
+    obs = np.bincount(gid, weights=w * o, minlength=m)
+    exp = np.bincount(gid, weights=w * f, minlength=m)
+    obs0 = np.bincount(gid, weights=w * (1.0 - o), minlength=m)
+    exp0 = np.bincount(gid, weights=w * (1.0 - f), minlength=m)
+    lower = np.array([f[gid == g].min() if count[g] else np.nan for g in range(m)])
+    upper = np.array([f[gid == g].max() if count[g] else np.nan for g in range(m)])
+
+    def part(a: np.ndarray, e: np.ndarray) -> np.ndarray:
+        with np.errstate(divide="ignore", invalid="ignore"):
+            t = (a - e) ** 2 / e
+        return np.where((e == 0) & (a == 0), 0.0, np.where(e == 0, np.inf, t))
+
+    stat = float((part(obs[keep], exp[keep]) + part(obs0[keep], exp0[keep])).sum())
+    df = int(keep.sum()) - 2
+    pval = 0.0 if math.isinf(stat) else float(dist.chi2_sf(stat, df))
+    return HosmerLemeshow(
+        statistic=stat,
+        degrees_of_freedom=df,
+        p_value=pval,
+        lower=lower[keep],
+        upper=upper[keep],
+        count=count[keep],
+        weight=wk[keep],
+        observed=obs[keep],
+        expected=exp[keep],
+        observed_negative=obs0[keep],
+        expected_negative=exp0[keep],
+    )
+
+
+# ---------------------------------------------------------------------- Spiegelhalter
+@dataclass(frozen=True)
+class SpiegelhalterTest:
+    """Result of :func:`spiegelhalter`.
+
+    Attributes
+    ----------
+    statistic : float
+        :math:`z = (B - E_0 B)/\\sqrt{\\mathrm{Var}_0 B}`.
+    p_value : float
+        Two-sided normal tail.
+    brier, expected_brier, brier_variance : float
+        :math:`B`, its mean and variance if the forecasts were the true probabilities.
+    """
+
+    statistic: float
+    p_value: float
+    brier: float
+    expected_brier: float
+    brier_variance: float
+
+
+def spiegelhalter(y: Any, p: Any, *, weights: Any = None, positive: Any = None) -> SpiegelhalterTest:
+    r"""Spiegelhalter's (1986) z test of calibration, based on the Brier score.
+
+    If each outcome is Bernoulli(:math:`f_i`), the Brier score
+    :math:`B = \frac1W\sum w_i (o_i - f_i)^2` has mean
+    :math:`E_0 B = \frac1W\sum w_i f_i(1-f_i)` and variance
+    :math:`\mathrm{Var}_0 B = \frac{1}{W^2}\sum w_i (1-2f_i)^2 f_i(1-f_i)`
+    (weights as frequency weights), so that
+
+    .. math:: z = \frac{\sum_i w_i (o_i - f_i)(1 - 2 f_i)}
+                       {\sqrt{\sum_i w_i (1 - 2 f_i)^2 f_i (1 - f_i)}}
+
+    is approximately standard normal; the p-value is two-sided.
+
+    Parameters
+    ----------
+    y : array-like
+        Binary labels.
+    p : array-like
+        Probability of the positive class.
+    weights : array-like, optional
+        Case (frequency) weights.
+    positive : label, optional
+
+    Returns
+    -------
+    SpiegelhalterTest
+
+    Raises
+    ------
+    InputError
+        When every forecast is 0, 1/2 or 1 (the variance is 0 and z does not exist).
+
+    References
+    ----------
+    Spiegelhalter, D. J. (1986). Probabilistic prediction in patient management and
+    clinical trials. Statistics in Medicine 5, 421-433.
+    """
+    f = binary_forecast(p)
+    o, _ = binary_outcome(y, positive, n=f.shape[0])
+    w = case_weights(weights, f.shape[0])
+    total = float(w.sum())
+    var_sum = float(w @ ((1.0 - 2.0 * f) ** 2 * f * (1.0 - f)))
+    if not var_sum > 0.0:
+        raise InputError(
+            "p has every forecast (with positive weight) equal to 0, 1/2 or 1, so the Brier "
+            "score has no variance under calibration and Spiegelhalter's z does not exist"
+        )
+    z = float(w @ ((o - f) * (1.0 - 2.0 * f))) / math.sqrt(var_sum)
+    return SpiegelhalterTest(
+        statistic=z,
+        p_value=two_sided(z),
+        brier=float(w @ (o - f) ** 2) / total,
+        expected_brier=float(w @ (f * (1.0 - f))) / total,
+        brier_variance=var_sum / total**2,
+    )
