@@ -4,8 +4,23 @@ Objective (``w`` case weights, ``l2 >= 0``; the intercept ``b`` is never penalis
 
     minimise  1/2 * sum_i w_i (y_i - b - x_i' beta)^2  +  l2/2 * |beta|^2
 
-Method.  With an intercept the columns are centred at their weighted means (which
-removes the intercept from the factorisation exactly), rows are multiplied by
+Two paths compute the fit.  The choice rests on a test of conditioning; no hope is
+involved.
+
+Fast path: the Gram matrix (:mod:`lintools._gram`).  One blocked pass over the rows
+accumulates the Gram matrix of the shifted, weighted columns and the residual of a
+starting value fitted on a subsample.  The pass uses symmetric rank-k updates and never
+copies X whole.  Then come a Cholesky factorisation, the condition number of the scaled
+design, and a corrected step: the corrected semi-normal equations (Bjorck 1987).  A
+second blocked pass evaluates the residual of the answer in float64.  Its correction
+certifies the answer, and the pass also gives the RSS, the gradient and, only on
+request, the sandwich "meat" and the leverages.  The path is taken only when the scaled
+condition number is at most ``_gram.KAPPA_MAX`` and the worst-case contraction of the
+refinement is small; the certificate must also be met.  Otherwise the fit takes the
+accurate path below.
+
+Accurate path: QR.  With an intercept the columns are centred at their weighted means
+(which removes the intercept from the factorisation exactly), rows are multiplied by
 ``sqrt(w_i)``, and every column is scaled to unit length.  The ridge term enters as
 ``p`` extra rows ``sqrt(l2) / s_j`` (augmentation), so the penalised problem is an
 ordinary least-squares problem.  Householder QR (LAPACK ``dgeqrf`` through
@@ -20,7 +35,8 @@ recovers digits when the residual is large, which plain refinement of the soluti
 Rank.  Column ``j`` is aliased when the part of its scaled, centred column orthogonal
 to the columns before it has length at most ``tol = max(n, p) * eps`` (unit column
 length after scaling), and a column that is constant on the rows with positive weight is
-aliased with the intercept.  The earliest columns of a dependent set are kept.
+aliased with the intercept.  The earliest columns of a dependent set are kept.  A
+constant or aliased column always sends the fit to the QR path, which names it.
 
 References
 ----------
@@ -28,6 +44,8 @@ Golub, G. H. & Wilkinson, J. H. (1966). Note on the iterative refinement of leas
 squares solution. Numerische Mathematik 9, 139-148.
 Bjorck, A. (1967). Iterative refinement of linear least squares solutions I. BIT 7,
 257-278.
+Bjorck, A. (1987). Stability analysis of the method of seminormal equations for linear
+least squares problems. Linear Algebra and its Applications 88/89, 31-48.
 Bjorck, A. (1996). Numerical Methods for Least Squares Problems. SIAM.
 White, H. (1980). A heteroskedasticity-consistent covariance matrix estimator and a
 direct test for heteroskedasticity. Econometrica 48, 817-838.
@@ -46,6 +64,7 @@ from typing import Any, Sequence
 import numpy as np
 
 from . import _distributions as dist
+from . import _gram
 from ._errors import IllConditionedWarning, InputError
 from ._records import INTERCEPT_NAME, Convergence, LinearFit
 from ._validate import (
@@ -149,6 +168,12 @@ def least_squares(
 
     Notes
     -----
+    The fit is computed by the Gram matrix (Cholesky, corrected semi-normal equations)
+    when X has more than ``2**16`` entries, the scaled condition number is at most
+    ``1e3`` and the refinement is certified to reach the rounding floor; otherwise by
+    Householder QR with refinement in extended precision.  ``convergence.message`` and ``convergence.solver`` ("cholesky" or "qr")
+    say which; ``condition_number`` is reported either way.
+
     Residual degrees of freedom are ``N - k`` with ``N`` the number of observations
     and ``k`` the number of estimated mean parameters (rank, plus the intercept).  The
     log-likelihood is the Gaussian one at the maximum-likelihood variance ``RSS/N``
@@ -156,10 +181,29 @@ def least_squares(
     parameters (the variance included).  Under a ridge penalty the covariance is the
     inverse penalised information (a Bayesian reading) and the intervals are approximate.
     """
+    return _fit(
+        X, y, weights=weights, intercept=intercept, l2=l2, covariance=covariance, names=names,
+        weight_type=weight_type, rank_deficient=rank_deficient, diagnostics=diagnostics,
+    )
+
+
+def _fit(
+    X, y, *, weights=None, intercept=True, l2=0.0, covariance="classical", names=None,
+    weight_type="case", rank_deficient="raise", diagnostics=False, method="auto", block_rows=None,
+):
+    """:func:`least_squares` with two switches for tests.
+
+    ``method``: "auto" (the documented choice), "qr" (skip the fast path) or "gram" (try
+    the fast path whatever the size; its conditioning test and certificate still decide).
+    ``block_rows``: rows per block on the fast path.
+    """
     Xa, found = as_matrix(X, "X")
     n, p = Xa.shape
     ya = as_vector(y, "y", n)
-    w = as_weights(weights, n)
+    # unit weights are kept implicit (None): no arrays of length n are made for them
+    w = None if weights is None else as_weights(weights, n)
+    if w is not None and bool(np.all(w == 1.0)):
+        w = None
     lam = check_nonnegative(l2, "l2")
     check_choice(covariance, "covariance", COVARIANCE_TYPES)
     check_choice(weight_type, "weight_type", ("case", "precision"))
@@ -169,9 +213,9 @@ def least_squares(
     names_t = check_names(names, p, found)
     target = _target_name(y)
 
-    pos = w > 0
-    n_pos = int(pos.sum())
-    wsum = float(w.sum())
+    pos = None if w is None else w > 0
+    n_pos = n if pos is None else int(pos.sum())
+    wsum = float(n) if w is None else float(w.sum())
     n_obs = wsum if weight_type == "case" else float(n_pos)
     k_max = p + int(intercept)
     if lam == 0 and n_pos < k_max:
@@ -179,7 +223,7 @@ def least_squares(
             f"X has {n_pos} rows with positive weight but the model has {k_max} parameters; "
             "add rows, drop columns, or set l2 > 0"
         )
-    yp = ya[pos]
+    yp = ya if pos is None else ya[pos]
     if intercept and np.ptp(yp) == 0:
         raise InputError(
             f"y is constant (every row with positive weight equals {yp[0]:g}); there is "
@@ -187,8 +231,184 @@ def least_squares(
         )
     if not intercept and not np.any(yp):
         raise InputError("y is zero on every row with positive weight; check the target column")
+    del yp
 
-    # ---- centre, weight, scale ------------------------------------------------------
+    df_full = n_obs - k_max
+    sol = None
+    use_gram = method == "gram" or (method == "auto" and n * p > _gram.SMALL_PROBLEM)
+    if use_gram and df_full > 0:
+        sol = _gram.solve_by_gram(
+            Xa, ya, w, n_pos, lam, bool(intercept), default_rank_tolerance(n, p),
+            covariance=covariance, weight_type=weight_type, diagnostics=diagnostics, block_rows=block_rows,
+        )
+    if sol is not None:
+        fit = _from_gram(sol, p)
+    else:
+        w_all = np.ones(n) if w is None else w
+        fit = _qr_path(Xa, ya, w_all, lam, intercept, names_t, rank_deficient, covariance, weight_type, n_obs, wsum, w_all > 0)
+    beta, b0, rank, aliased, full_rank = fit["beta"], fit["b0"], fit["rank"], fit["aliased"], fit["full_rank"]
+    s, xbar, G, cond, rss, tss, e, hat = fit["s"], fit["xbar"], fit["G"], fit["cond"], fit["rss"], fit["tss"], fit["e"], fit["hat"]
+
+    # ---- summary statistics ------------------------------------------------------------
+    k = rank + int(intercept)
+    df = _residual_df(n_obs, k, weight_type, n_pos)
+    sigma2 = rss / df
+    r2 = 1.0 - rss / tss
+    adj = 1.0 - (1.0 - r2) * (n_obs - int(intercept)) / df
+
+    # ---- covariance in (centred intercept, scaled slopes) coordinates ------------------
+    Bz = np.zeros((k_max, k_max))
+    off = int(intercept)
+    if intercept:
+        Bz[0, 0] = 1.0 / wsum
+    Bz[off:, off:] = G
+    if covariance == "classical":
+        Vz = sigma2 * Bz
+    else:
+        meat = fit["meat_z"]
+        if meat is None:
+            meat = _meat(covariance, Xa, xbar, s, intercept, np.ones(n) if w is None else w, e, hat, weight_type)
+        elif fit["leverage_one_row"] is not None:
+            _refuse_leverage_one(covariance, fit["leverage_one_row"])
+        Vz = Bz @ meat @ Bz
+        if covariance == "HC1":
+            Vz = Vz * (n_obs / df)
+    T = np.zeros((k_max, k_max))
+    if intercept:
+        T[0, 0] = 1.0
+        T[0, 1:] = -xbar / s
+    T[off:, off:] = np.diag(1.0 / s)
+    V = T @ Vz @ T.T
+    V = 0.5 * (V + V.T)
+    se_all = np.sqrt(np.clip(np.diag(V), 0.0, None))
+
+    # ---- overall F: Wald F on the slopes with the chosen covariance ----------------
+    f_df1 = float(rank if intercept else k)
+    if full_rank:
+        Vg = Vz[off:, off:]
+        theta = beta * s
+        try:
+            L = np.linalg.cholesky(Vg)
+            u = np.linalg.solve(L, theta)
+            fstat = float(u @ u) / f_df1
+        except np.linalg.LinAlgError:
+            fstat = float("nan")
+    else:
+        fstat = ((tss - rss) / f_df1) / sigma2
+    f_p = float(dist.f_sf(fstat, f_df1, df)) if np.isfinite(fstat) else float("nan")
+
+    # ---- likelihood ------------------------------------------------------------------
+    if rss > 0:
+        llf = -0.5 * n_obs * (math.log(2.0 * math.pi * rss / n_obs) + 1.0)
+        if weight_type == "precision" and w is not None:
+            llf += 0.5 * float(np.log(w[pos]).sum())
+    else:
+        llf = float("inf")
+    n_par = k + 1
+    aic = -2.0 * llf + 2.0 * n_par
+    bic = -2.0 * llf + math.log(n_obs) * n_par
+
+    grad = fit["grad"]
+    objective = 0.5 * rss + 0.5 * lam * float(beta @ beta)
+    conv = Convergence(
+        converged=True,
+        iterations=fit["iterations"],
+        gradient_norm=float(np.max(np.abs(grad))) if grad.size else 0.0,
+        objective=objective,
+        solver=fit["solver"],
+        message=fit["message"],
+    )
+
+    leverage = cooks = None
+    if diagnostics:
+        leverage = hat.copy()
+        with np.errstate(divide="ignore", invalid="ignore"):
+            cooks = (1.0 if w is None else w) * e * e * hat / (k * sigma2 * (1.0 - hat) ** 2)
+    return LinearFit(
+        coefficients=beta,
+        intercept=float(b0),
+        standard_errors=se_all[off:],
+        intercept_standard_error=float(se_all[0]) if intercept else None,
+        covariance=V,
+        log_likelihood=llf,
+        deviance=rss,
+        aic=aic,
+        bic=bic,
+        n_observations=n_obs,
+        names=names_t,
+        convergence=conv,
+        with_intercept=bool(intercept),
+        l2=lam,
+        residual_standard_error=math.sqrt(sigma2),
+        r_squared=r2,
+        adjusted_r_squared=adj,
+        f_statistic=fstat,
+        f_p_value=f_p,
+        f_degrees_of_freedom=(f_df1, float(df)),
+        degrees_of_freedom=float(df),
+        rank=int(k),
+        covariance_type=covariance,
+        weight_type=weight_type,
+        condition_number=float(cond),
+        aliased=tuple(names_t[j] for j in aliased),
+        leverage=leverage,
+        cooks_distance=cooks,
+        target=target,
+    )
+
+
+def _residual_df(n_obs, k, weight_type, n_pos):
+    df = n_obs - k
+    if df <= 0:
+        raise InputError(
+            f"the model has {k} estimated parameters but only {n_obs:g} observations; the "
+            "residual variance needs more observations than parameters"
+            + (" (case weights count observations: pass weight_type='precision' for relative weights)" if weight_type == "case" and n_pos > k else "")
+        )
+    return df
+
+
+def _refuse_leverage_one(kind, row):
+    raise InputError(
+        f"covariance='{kind}' is undefined: row {row} has leverage 1 (it alone "
+        "determines a coefficient); use covariance='HC0' or 'HC1', or drop that row"
+    )
+
+
+def _from_gram(sol, p):
+    """The fast path's answer in the form the record builder uses."""
+    err = f"{sol.error_estimate:.1e}"
+    steps = "one corrected step" if sol.steps == 1 else f"{sol.steps} corrected steps"
+    message = (
+        f"solved directly: Cholesky of the Gram matrix (semi-normal equations) with {steps} "
+        f"from a subsample start, residuals in float64; estimated relative error {err}"
+    )
+    return {
+        "beta": sol.beta,
+        "b0": sol.intercept,
+        "rank": p,
+        "aliased": np.zeros(0, dtype=int),
+        "full_rank": True,
+        "s": sol.scale,
+        "xbar": sol.mean,
+        "G": sol.cov_scaled,
+        "cond": sol.condition,
+        "rss": sol.rss,
+        "tss": sol.tss,
+        "e": sol.residuals,
+        "hat": sol.hat,
+        "meat_z": sol.meat_z,
+        "leverage_one_row": sol.leverage_one_row,
+        "grad": sol.gradient,
+        "iterations": sol.steps,
+        "solver": "cholesky",
+        "message": message,
+    }
+
+
+def _qr_path(Xa, ya, w, lam, intercept, names_t, rank_deficient, covariance, weight_type, n_obs, wsum, pos):
+    """The accurate path: Householder QR of the centred, weighted, scaled design."""
+    n, p = Xa.shape
     sw = np.sqrt(w)
     if intercept:
         xbar = (w @ Xa) / wsum
@@ -251,76 +471,18 @@ def least_squares(
             f"QR with {refine_steps} refinement step(s) in extended precision, but expect only about "
             f"{max(0.0, _EXTENDED_DIGITS - math.log10(cond)):.0f} correct digits",
             IllConditionedWarning,
-            stacklevel=2,
+            stacklevel=4,
         )
-
-    # ---- residuals and summary statistics ------------------------------------------
     e = _residuals(Xa, ya, beta, b0)
     rss = float(w @ (e * e))
-    k = rank + int(intercept)
-    df = n_obs - k
-    if df <= 0:
-        raise InputError(
-            f"the model has {k} estimated parameters but only {n_obs:g} observations; the "
-            "residual variance needs more observations than parameters"
-            + (" (case weights count observations: pass weight_type='precision' for relative weights)" if weight_type == "case" and n_pos > k else "")
-        )
-    sigma2 = rss / df
     if intercept:
         tss = float(w @ (ya - ybar) ** 2)
     else:
         tss = float(w @ (ya * ya))
-    r2 = 1.0 - rss / tss
-    adj = 1.0 - (1.0 - r2) * (n_obs - int(intercept)) / df
-
-    # ---- covariance in (centred intercept, scaled slopes) coordinates ------------------
+    # the residual df is checked before any covariance work (the front repeats it)
+    _residual_df(n_obs, rank + int(intercept), weight_type, int(pos.sum()))
     hat = h_q + (w / wsum if intercept else 0.0)
-    Bz = np.zeros((k_max, k_max))
-    off = int(intercept)
-    if intercept:
-        Bz[0, 0] = 1.0 / wsum
-    Bz[off:, off:] = G
-    if covariance == "classical":
-        Vz = sigma2 * Bz
-    else:
-        Vz = _sandwich(covariance, Bz, Xa, xbar, s, intercept, w, e, hat, weight_type, n_obs, df)
-    T = np.zeros((k_max, k_max))
-    if intercept:
-        T[0, 0] = 1.0
-        T[0, 1:] = -xbar / s
-    T[off:, off:] = np.diag(1.0 / s)
-    V = T @ Vz @ T.T
-    V = 0.5 * (V + V.T)
-    se_all = np.sqrt(np.clip(np.diag(V), 0.0, None))
-
-    # ---- overall F: Wald F on the slopes with the chosen covariance ----------------
-    f_df1 = float(rank if intercept else k)
-    if full_rank:
-        Vg = Vz[off:, off:]
-        theta = beta * s
-        try:
-            L = np.linalg.cholesky(Vg)
-            u = np.linalg.solve(L, theta)
-            fstat = float(u @ u) / f_df1
-        except np.linalg.LinAlgError:
-            fstat = float("nan")
-    else:
-        fstat = ((tss - rss) / f_df1) / sigma2
-    f_p = float(dist.f_sf(fstat, f_df1, df)) if np.isfinite(fstat) else float("nan")
-
-    # ---- likelihood ------------------------------------------------------------------
-    if rss > 0:
-        llf = -0.5 * n_obs * (math.log(2.0 * math.pi * rss / n_obs) + 1.0)
-        if weight_type == "precision":
-            llf += 0.5 * float(np.log(w[pos]).sum())
-    else:
-        llf = float("inf")
-    n_par = k + 1
-    aic = -2.0 * llf + 2.0 * n_par
-    bic = -2.0 * llf + math.log(n_obs) * n_par
-
     grad = np.concatenate([[-(w @ e)] if intercept else [], -(Xa.T @ (w * e)) + lam * beta])
-    objective = 0.5 * rss + 0.5 * lam * float(beta @ beta)
     if full_rank:
         message = f"solved directly: Householder QR of the scaled design, {refine_steps} refinement step(s)"
     else:
@@ -328,51 +490,27 @@ def least_squares(
             f"rank {rank} < {p}: minimum-norm solution; the coefficients of aliased columns "
             "are not identified and only their estimable combinations are meaningful"
         )
-    conv = Convergence(
-        converged=True,
-        iterations=1 + refine_steps if full_rank else 1,
-        gradient_norm=float(np.max(np.abs(grad))) if grad.size else 0.0,
-        objective=objective,
-        solver="qr",
-        message=message,
-    )
-
-    leverage = cooks = None
-    if diagnostics:
-        leverage = hat.copy()
-        with np.errstate(divide="ignore", invalid="ignore"):
-            cooks = w * e * e * hat / (k * sigma2 * (1.0 - hat) ** 2)
-    return LinearFit(
-        coefficients=beta,
-        intercept=float(b0),
-        standard_errors=se_all[off:],
-        intercept_standard_error=float(se_all[0]) if intercept else None,
-        covariance=V,
-        log_likelihood=llf,
-        deviance=rss,
-        aic=aic,
-        bic=bic,
-        n_observations=n_obs,
-        names=names_t,
-        convergence=conv,
-        with_intercept=bool(intercept),
-        l2=lam,
-        residual_standard_error=math.sqrt(sigma2),
-        r_squared=r2,
-        adjusted_r_squared=adj,
-        f_statistic=fstat,
-        f_p_value=f_p,
-        f_degrees_of_freedom=(f_df1, float(df)),
-        degrees_of_freedom=float(df),
-        rank=int(k),
-        covariance_type=covariance,
-        weight_type=weight_type,
-        condition_number=float(cond),
-        aliased=tuple(names_t[j] for j in aliased),
-        leverage=leverage,
-        cooks_distance=cooks,
-        target=target,
-    )
+    return {
+        "beta": beta,
+        "b0": b0,
+        "rank": rank,
+        "aliased": aliased,
+        "full_rank": full_rank,
+        "s": s,
+        "xbar": xbar,
+        "G": G,
+        "cond": cond,
+        "rss": rss,
+        "tss": tss,
+        "e": e,
+        "hat": hat,
+        "meat_z": None,
+        "leverage_one_row": None,
+        "grad": grad,
+        "iterations": 1 + refine_steps if full_rank else 1,
+        "solver": "qr",
+        "message": message,
+    }
 
 
 def _residuals(Xa, ya, beta, b0):
@@ -494,8 +632,8 @@ def _solve_minimum_norm(A, rhs_y, s, xbar, ybar, intercept, aliased):
     return beta, b0, G, cond, h_q, rank
 
 
-def _sandwich(kind, Bz, Xa, xbar, s, intercept, w, e, hat, weight_type, n_obs, df):
-    """HC0-HC3 in the centred, scaled coordinates: ``Bz Z' diag(m) Z Bz``."""
+def _meat(kind, Xa, xbar, s, intercept, w, e, hat, weight_type):
+    """HC0-HC3 meat ``Z' diag(m) Z`` in the centred, scaled coordinates (QR path)."""
     if weight_type == "case":
         m = w * e * e
         lev = np.divide(hat, w, out=np.zeros_like(hat), where=w > 0)
@@ -505,18 +643,10 @@ def _sandwich(kind, Bz, Xa, xbar, s, intercept, w, e, hat, weight_type, n_obs, d
     if kind in ("HC2", "HC3"):
         used = w > 0
         if np.any(lev[used] >= 1.0 - 1e-12):
-            i = int(np.flatnonzero(used & (lev >= 1.0 - 1e-12))[0])
-            raise InputError(
-                f"covariance='{kind}' is undefined: row {i} has leverage 1 (it alone "
-                "determines a coefficient); use covariance='HC0' or 'HC1', or drop that row"
-            )
+            _refuse_leverage_one(kind, int(np.flatnonzero(used & (lev >= 1.0 - 1e-12))[0]))
         power = 1 if kind == "HC2" else 2
         m = m / (1.0 - lev) ** power
     Z = (Xa - xbar) / s
     if intercept:
         Z = np.hstack([np.ones((Xa.shape[0], 1)), Z])
-    meat = Z.T @ (Z * m[:, None])
-    V = Bz @ meat @ Bz
-    if kind == "HC1":
-        V = V * (n_obs / df)
-    return V
+    return Z.T @ (Z * m[:, None])
