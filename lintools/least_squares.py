@@ -299,14 +299,14 @@ def _fit(
 
     # ---- likelihood ------------------------------------------------------------------
     if rss > 0:
-        llf = -0.5 * n_obs * (math.log(2.0 * math.pi * rss / n_obs) + 1.0)
+        loglik = -0.5 * n_obs * (math.log(2.0 * math.pi * rss / n_obs) + 1.0)
         if weight_type == "precision" and w is not None:
-            llf += 0.5 * float(np.log(w[pos]).sum())
+            loglik += 0.5 * float(np.log(w[pos]).sum())
     else:
-        llf = float("inf")
+        loglik = float("inf")
     n_par = k + 1
-    aic = -2.0 * llf + 2.0 * n_par
-    bic = -2.0 * llf + math.log(n_obs) * n_par
+    aic = -2.0 * loglik + 2.0 * n_par
+    bic = -2.0 * loglik + math.log(n_obs) * n_par
 
     grad = fit["grad"]
     objective = 0.5 * rss + 0.5 * lam * float(beta @ beta)
@@ -330,7 +330,7 @@ def _fit(
         standard_errors=se_all[off:],
         intercept_standard_error=float(se_all[0]) if intercept else None,
         covariance=V,
-        log_likelihood=llf,
+        log_likelihood=loglik,
         deviance=rss,
         aic=aic,
         bic=bic,
