@@ -4,8 +4,8 @@ Objective (``w`` case weights, ``l2 >= 0``; the intercept ``b`` is never penalis
 
     minimise  1/2 * sum_i w_i (y_i - b - x_i' beta)^2  +  l2/2 * |beta|^2
 
-Two paths compute the fit.  The choice rests on a test of conditioning; no hope is
-involved.
+Two paths compute the fit; a test of conditioning chooses between them.  Problems with
+at most ``_gram.SMALL_PROBLEM`` entries always take the accurate path.
 
 Fast path: the Gram matrix (:mod:`lintools._gram`).  One blocked pass over the rows
 accumulates the Gram matrix of the shifted, weighted columns and the residual of a
@@ -171,8 +171,9 @@ def least_squares(
     The fit is computed by the Gram matrix (Cholesky, corrected semi-normal equations)
     when X has more than ``2**16`` entries, the scaled condition number is at most
     ``1e3`` and the refinement is certified to reach the rounding floor; otherwise by
-    Householder QR with refinement in extended precision.  ``convergence.message`` and ``convergence.solver`` ("cholesky" or "qr")
-    say which; ``condition_number`` is reported either way.
+    Householder QR with refinement in extended precision.  ``convergence.message`` and
+    ``convergence.solver`` ("cholesky" or "qr") say which; ``condition_number`` is
+    reported either way.
 
     Residual degrees of freedom are ``N - k`` with ``N`` the number of observations
     and ``k`` the number of estimated mean parameters (rank, plus the intercept).  The
@@ -239,15 +240,20 @@ def _fit(
     if use_gram and df_full > 0:
         sol = _gram.solve_by_gram(
             Xa, ya, w, n_pos, lam, bool(intercept), default_rank_tolerance(n, p),
-            covariance=covariance, weight_type=weight_type, diagnostics=diagnostics, block_rows=block_rows,
+            covariance=covariance, weight_type=weight_type, diagnostics=diagnostics,
+            block_rows=block_rows,
         )
     if sol is not None:
         fit = _from_gram(sol, p)
     else:
         w_all = np.ones(n) if w is None else w
-        fit = _qr_path(Xa, ya, w_all, lam, intercept, names_t, rank_deficient, covariance, weight_type, n_obs, wsum, w_all > 0)
-    beta, b0, rank, aliased, full_rank = fit["beta"], fit["b0"], fit["rank"], fit["aliased"], fit["full_rank"]
-    s, xbar, G, cond, rss, tss, e, hat = fit["s"], fit["xbar"], fit["G"], fit["cond"], fit["rss"], fit["tss"], fit["e"], fit["hat"]
+        fit = _qr_path(
+            Xa, ya, w_all, lam, intercept, names_t, rank_deficient, covariance, weight_type,
+            n_obs, wsum, w_all > 0,
+        )
+    beta, b0, rank, aliased = fit["beta"], fit["b0"], fit["rank"], fit["aliased"]
+    full_rank, s, xbar, G, cond = fit["full_rank"], fit["s"], fit["xbar"], fit["G"], fit["cond"]
+    rss, tss, e, hat = fit["rss"], fit["tss"], fit["e"], fit["hat"]
 
     # ---- summary statistics ------------------------------------------------------------
     k = rank + int(intercept)
@@ -267,7 +273,8 @@ def _fit(
     else:
         meat = fit["meat_z"]
         if meat is None:
-            meat = _meat(covariance, Xa, xbar, s, intercept, np.ones(n) if w is None else w, e, hat, weight_type)
+            w_all = np.ones(n) if w is None else w
+            meat = _meat(covariance, Xa, xbar, s, intercept, w_all, e, hat, weight_type)
         elif fit["leverage_one_row"] is not None:
             _refuse_leverage_one(covariance, fit["leverage_one_row"])
         Vz = Bz @ meat @ Bz
