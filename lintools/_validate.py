@@ -300,6 +300,21 @@ def check_positive_int(value: Any, name: str, minimum: int = 1) -> int:
     return int(value)
 
 
+def read_file_bytes(path: Any, label: str, max_bytes: int) -> bytes:
+    """Read a whole file, refusing a missing file or one larger than ``max_bytes``."""
+    import os
+
+    where = os.fspath(path)
+    try:
+        size = os.path.getsize(where)
+    except OSError as exc:
+        raise InputError(f"{label} {where!r} cannot be read: {exc.strerror}") from None
+    if size > max_bytes:
+        raise InputError(f"{label} {where!r} is {size} bytes; larger than the {max_bytes} allowed")
+    with open(where, "rb") as fh:
+        return fh.read()
+
+
 def check_probabilities(p: Any, name: str = "p", n: int | None = None) -> np.ndarray:
     """Return probabilities as a new float64 array (1-D, or 2-D with rows summing to 1)."""
     arr = _as_float(p, name)

@@ -28,6 +28,7 @@ import numpy as np
 
 from . import _records
 from ._errors import InputError
+from ._validate import read_file_bytes
 
 __all__ = ["save", "load", "SCHEMA_VERSION", "MAX_BYTES"]
 
@@ -215,14 +216,7 @@ def load(path: str | os.PathLike) -> Any:
         If the file is not a lintools model file, has another schema version, or is
         damaged; the message says which.
     """
-    try:
-        size = os.path.getsize(path)
-    except OSError as exc:
-        raise InputError(f"model file {os.fspath(path)!r} cannot be read: {exc.strerror}") from None
-    if size > MAX_BYTES:
-        raise InputError(f"model file {os.fspath(path)!r} is {size} bytes; larger than the {MAX_BYTES} allowed")
-    with open(path, "rb") as fh:
-        raw = fh.read()
+    raw = read_file_bytes(path, "model file", MAX_BYTES)
     try:
         doc = json.loads(raw.decode("utf-8"), parse_constant=_refuse_constant)
     except (UnicodeDecodeError, json.JSONDecodeError, RecursionError) as exc:

@@ -32,6 +32,7 @@ from typing import Any
 import numpy as np
 
 from ._errors import InputError
+from ._validate import read_file_bytes
 
 __all__ = ["DeliveredModel", "read_pmml", "write_pmml"]
 
@@ -132,14 +133,7 @@ def _float_attr(el: ET.Element, name: str, where: str, default: str | None = Non
 def read_pmml(path: str | os.PathLike) -> DeliveredModel:
     """Read a PMML ``RegressionModel`` and return its coefficients as a :class:`DeliveredModel`."""
     where = os.fspath(path)
-    try:
-        size = os.path.getsize(where)
-    except OSError as exc:
-        raise InputError(f"cannot read {where!r}: {exc.strerror}") from None
-    if size > MAX_BYTES:
-        raise InputError(f"{where!r} is {size} bytes; larger than the {MAX_BYTES} allowed for a PMML file")
-    with open(where, "rb") as fh:
-        raw = fh.read()
+    raw = read_file_bytes(where, "PMML file", MAX_BYTES)
     upper = raw.upper()
     if b"<!DOCTYPE" in upper or b"<!ENTITY" in upper:
         raise InputError(f"{where!r} declares a DTD or entities; lintools refuses such XML (external entities, entity expansion)")
