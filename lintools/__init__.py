@@ -16,7 +16,9 @@ from .io import load, save
 from .least_squares import least_squares
 from ._records import LogisticFit
 from .logistic import logistic
-from .separation import SeparationCheck, check_separation
+from ._records import SoftmaxFit
+from .softmax import softmax
+from .separation import MultinomialSeparationCheck, SeparationCheck, check_separation
 from .calibration import BrierScore, brier, cross_entropy
 from .calibration_bins import ReliabilityTable, calibration_error, reliability
 from .calibration_checks import (
@@ -62,6 +64,9 @@ __all__ = [
     "least_squares",
     "LogisticFit",
     "logistic",
+    "SoftmaxFit",
+    "softmax",
+    "MultinomialSeparationCheck",
     "SeparationCheck",
     "check_separation",
     "load",

@@ -390,3 +390,8 @@ class LogisticFit(_FitBase):
                 lines.append(term.ljust(width) + _fmt(lo, 15) + _fmt(hi, 15))
             text += "\n".join(lines) + "\n"
         return text
+
+
+from ._softmax_record import SoftmaxFit  # noqa: E402  (defined beside, registered here for io)
+
+__all__ += ["SoftmaxFit"]

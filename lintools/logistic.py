@@ -375,7 +375,8 @@ def logistic(
     problem = LinearModelProblem(Xa, loss, intercept=intercept, l2=lam, offset=off, jeffreys=firth)
     watch = _Watch(loss, off) if (lam == 0 and not firth) else None
     try:
-        res, checked = _run(problem, solver, tol, max_iter, on_iteration, watch, Xa, loss, intercept, names_t)
+        res, checked = run_with_check(problem, solver, tol, max_iter, on_iteration, watch,
+                                      lambda: _exact_check(Xa, loss, intercept, names_t))
     except SingularMatrixError as exc:
         _diagnose_singular(Xa, loss, intercept, names_t, lam, firth, watch, False, f"the information matrix is singular ({exc})")
 
@@ -394,14 +395,19 @@ def logistic(
                     trials is not None, intercept, solver, tol, max_iter, profile, float(profile_level), y)
 
 
-def _run(problem, solver, tol, max_iter, on_iteration, watch, Xa, loss, intercept, names):
-    """Solve; on a divergence alarm run the exact check, raise if separated, else go on."""
-    res = solve(problem, solver, tol=tol, max_iter=max_iter, on_iteration=on_iteration, monitor=watch)
+def run_with_check(problem, solver, tol, max_iter, on_iteration, watch, check, start=None, on_separated=None):
+    """Solve; on a divergence alarm run ``check()`` (the exact separation check, which
+    returns a diagnosis or None without SciPy), raise if separated, else go on.
+
+    ``on_separated(diagnosis)`` raises the error (default: the binary model's).
+    Returns the solver result and whether the exact check ran."""
+    res = solve(problem, solver, tol=tol, max_iter=max_iter, on_iteration=on_iteration, monitor=watch,
+                start=start)
     if res.status != "diverging":
         return res, False
-    diag = _exact_check(Xa, loss, intercept, names)
+    diag = check()
     if diag is not None and diag.separated:
-        _raise_separation(diag)
+        (on_separated or _raise_separation)(diag)
     done = res.iterations
 
     def shifted(record):
@@ -465,6 +471,26 @@ def _final_check(res, ev, V, problem, watch, Xa, loss, intercept, names):
         )
 
 
+def convergence_record(res: SolverResult, ev: Evaluation, problem: Any, z: np.ndarray, solver: str,
+                       stacklevel: int = 4) -> Convergence:
+    """The fit's :class:`Convergence`; warns (our own classes) when the fit did not converge."""
+    message = res.message
+    if res.status == "stalled":
+        level = problem.gradient_rounding(z)
+        if math.isfinite(level):
+            message += (f" (worst-case rounding level of this gradient {level:.1e}: "
+                        f"tol = {10 * level:.0e} is attainable)")
+    conv = Convergence(
+        converged=bool(res.converged), iterations=int(res.iterations), gradient_norm=ev.gradient_norm,
+        objective=ev.value, solver=solver, message=message,
+    )
+    if res.status == "iteration_limit":
+        warnings.warn(message, IterationLimitWarning, stacklevel=stacklevel)
+    elif not res.converged:
+        warnings.warn(message, LintoolsWarning, stacklevel=stacklevel)
+    return conv
+
+
 def _package(problem, loss, res, ev, V, z, Xa, off, names, classes, positive_class, lam, firth,
              grouped, intercept, solver, tol, max_iter, profile, level, y):
     n, p = Xa.shape
@@ -487,18 +513,7 @@ def _package(problem, loss, res, ev, V, z, Xa, off, names, classes, positive_cla
     else:
         lr = float("nan")
     lr = max(lr, 0.0) if math.isfinite(lr) else lr
-    message = res.message
-    if res.status == "stalled":
-        level = problem.gradient_rounding(z)
-        message += f" (worst-case rounding level of this gradient {level:.1e}: tol = {10 * level:.0e} is attainable)"
-    conv = Convergence(
-        converged=bool(res.converged), iterations=int(res.iterations), gradient_norm=ev.gradient_norm,
-        objective=ev.value, solver=solver, message=message,
-    )
-    if res.status == "iteration_limit":
-        warnings.warn(message, IterationLimitWarning, stacklevel=3)
-    elif not res.converged:
-        warnings.warn(message, LintoolsWarning, stacklevel=3)
+    conv = convergence_record(res, ev, problem, z, solver)
     bounds = profile_bounds(problem, z, ev.value, se, level, tol, max_iter) if profile else None
     return LogisticFit(
         coefficients=beta,

@@ -233,27 +233,37 @@ class BinomialLoss:
 
 def unpenalised_gradient(
     model: str, X: np.ndarray, y: Any, weights: np.ndarray, beta: Any, intercept: Any
-) -> tuple[np.ndarray, float]:
+) -> tuple[np.ndarray, Any]:
     r"""Gradient of the negative log-likelihood at given coefficients (no penalty).
 
-    For ``model="logistic"``: ``y`` holds two labels, the larger one is the positive
-    class; ``eta = intercept + X beta`` (``intercept=None``: no intercept).  Returns
+    ``model="logistic"``: ``y`` holds two labels, the larger one is the positive class;
+    ``eta = intercept + X beta`` (``intercept=None``: no intercept).  Returns
     ``(X' g, sum(g))`` with ``g = w (mu - y)``; the second entry is 0 without intercept.
-    Used by :func:`lintools.crosscheck.implied_l2`.
+
+    ``model="softmax"``: ``beta`` is (p, K) with one column per sorted class of ``y`` and
+    ``intercept`` (K,) or None; returns ``(X' G, column sums of G)`` with
+    ``G = w (pi - onehot)`` (zeros without intercept).  Used by
+    :func:`lintools.crosscheck.implied_l2`.
     """
-    if model != "logistic":
-        raise InputError(
-            f"model={model!r}: only the binomial loss ('logistic') is available in this module; "
-            "the multinomial loss arrives with the softmax fit"
-        )
+    if model not in ("logistic", "softmax"):
+        raise InputError(f"model={model!r}: the likelihood losses are 'logistic' and 'softmax'")
     Xa, _ = as_matrix(X, "X")
     n = Xa.shape[0]
     classes, codes = as_labels(y, "y", n)
-    if len(classes) != 2:
-        raise InputError(f"y has {len(classes)} distinct labels; a logistic model needs exactly two")
     w = as_weights(weights, n)
     b = np.asarray(beta, dtype=float)
-    eta = Xa @ b + (0.0 if intercept is None else float(intercept))
-    loss = BinomialLoss(codes.astype(float), weights=w)
-    g = loss.gradient(eta)
-    return Xa.T @ g, (float(g.sum()) if intercept is not None else 0.0)
+    if model == "logistic":
+        if len(classes) != 2:
+            raise InputError(f"y has {len(classes)} distinct labels; a logistic model needs exactly two")
+        eta = Xa @ b + (0.0 if intercept is None else float(intercept))
+        g = BinomialLoss(codes.astype(float), weights=w).gradient(eta)
+        return Xa.T @ g, (float(g.sum()) if intercept is not None else 0.0)
+    from ._multinomial import MultinomialLoss
+
+    K = len(classes)
+    if b.ndim != 2 or b.shape[1] != K:
+        raise InputError(f"coefficients has shape {b.shape}; a softmax model on these {K} classes needs "
+                         f"({Xa.shape[1]}, {K}): one column per class in sorted order")
+    a = np.zeros(K) if intercept is None else np.asarray(intercept, dtype=float).reshape(K)
+    G = MultinomialLoss(codes, K, w, reference=False).gradient(Xa @ b + a)
+    return Xa.T @ G, (G.sum(axis=0) if intercept is not None else np.zeros(K))

@@ -45,7 +45,7 @@ from ._errors import LintoolsError
 from ._records import INTERCEPT_NAME
 from ._validate import as_matrix, as_weights, check_names
 
-__all__ = ["SeparationCheck", "check_separation", "separation_lp"]
+__all__ = ["SeparationCheck", "MultinomialSeparationCheck", "check_separation", "separation_lp", "multinomial_separation"]
 
 #: A row counts as perfectly predicted when its LP slack variable exceeds this.
 ROW_THRESHOLD = 0.5
@@ -203,7 +203,8 @@ def check_separation(
         Design without the intercept column.
     y : array-like (n,)
         Two labels (the positive class is the larger, or ``positive``), or with
-        ``trials`` the success counts.
+        ``trials`` the success counts.  With more than two labels the multinomial
+        (softmax) check runs and a :class:`MultinomialSeparationCheck` is returned.
     intercept : bool
         Whether the model has an intercept (default True).
     trials : array-like (n,), optional
@@ -217,7 +218,7 @@ def check_separation(
 
     Returns
     -------
-    SeparationCheck
+    SeparationCheck or MultinomialSeparationCheck
 
     Raises
     ------
@@ -226,15 +227,153 @@ def check_separation(
     lintools.InputError
         For bad input (the same checks as :func:`lintools.logistic`).
     """
-    from .logistic import _response
+    from ._errors import InputError
+    from .logistic import _labels, _response
 
     Xa, found = as_matrix(X, "X")
     n, p = Xa.shape
     names_t = check_names(names, p, found)
     w = as_weights(weights, n)
-    yy, m, _, _ = _response(y, trials, positive, n)
     if not isinstance(intercept, (bool, np.bool_)):
-        from ._errors import InputError
-
         raise InputError(f"intercept must be True or False; got {intercept!r}")
+    if trials is None and positive is None:
+        classes, codes = _labels(y, n)
+        if len(classes) > 2:
+            return multinomial_separation(Xa, codes, tuple(classes), w, bool(intercept), names_t)
+    yy, m, _, _ = _response(y, trials, positive, n)
     return separation_from_arrays(Xa, yy, m, w, bool(intercept), names_t)
+
+
+@dataclass(frozen=True)
+class MultinomialSeparationCheck:
+    """Result of the exact check for a softmax model (more than two classes).
+
+    Attributes
+    ----------
+    kind : str
+        ``"none"``, ``"quasi-complete"`` or ``"complete"``.
+    direction : ndarray (p, K)
+        A separating direction for the slopes, one column per class (caller's
+        coordinates, scaled to max-abs 1; defined up to adding the same vector to every
+        column; zeros when none).
+    intercept_direction : ndarray (K,)
+        Its intercept components.
+    classes : tuple
+        The class labels, in column order.
+    separated_classes : tuple
+        Classes of the rows predicted perfectly.
+    columns : tuple of str
+        Terms whose component differs between classes.
+    rows : ndarray of int
+        Rows predicted perfectly (their own class's probability goes to 1).
+    names : tuple of str
+        Names of the columns of X.
+    """
+
+    kind: str
+    direction: np.ndarray
+    intercept_direction: np.ndarray
+    classes: tuple
+    separated_classes: tuple
+    columns: tuple[str, ...]
+    rows: np.ndarray
+    names: tuple[str, ...]
+
+    @property
+    def separated(self) -> bool:
+        """True for complete or quasi-complete separation."""
+        return self.kind != "none"
+
+    def describe(self, max_rows: int = 10) -> str:
+        """One paragraph in plain words."""
+        if not self.separated:
+            return "no separation: the maximum-likelihood estimate exists (Albert & Anderson 1984)"
+        shown = ", ".join(str(int(r)) for r in self.rows[:max_rows])
+        more = f" and {self.rows.size - max_rows} more" if self.rows.size > max_rows else ""
+        which = ", ".join(repr(c) for c in self.separated_classes)
+        return (
+            f"{self.kind} separation (Albert & Anderson 1984): a direction of the coefficients "
+            f"(columns involved: {', '.join(self.columns)}) never ranks a row's own class below "
+            f"another class and ranks it strictly above the others on {self.rows.size} row(s) "
+            f"({shown}{more}) of the class(es) {which}, so the log-likelihood keeps increasing as "
+            "the coefficients grow without bound and the maximum-likelihood estimate does not exist"
+        )
+
+
+def multinomial_separation(
+    X: np.ndarray,
+    codes: np.ndarray,
+    classes: tuple,
+    w: np.ndarray,
+    intercept: bool,
+    names: tuple[str, ...],
+) -> MultinomialSeparationCheck:
+    r"""Exact separation check for the multinomial logit on checked arrays.
+
+    The estimate fails to exist exactly when some :math:`\Theta \ne 0` (one column per
+    class, intercept row included) has :math:`a_i'(\Theta_{c_i} - \Theta_k) \ge 0` for every
+    row ``i`` and class :math:`k \ne c_i`, not all zero (Albert & Anderson 1984, sec. 4).
+    Konis's programme carries over with one slack per (row, other class):
+    :math:`\max \sum t_{ik}` subject to :math:`a_i'(\Theta_{c_i} - \Theta_k) \ge t_{ik}`,
+    :math:`0 \le t_{ik} \le 1`; a row is predicted perfectly when all its slacks are 1.
+    """
+    try:
+        from scipy import sparse
+        from scipy.optimize import linprog
+    except ImportError:
+        raise LintoolsError(
+            "the exact separation check needs SciPy (scipy.optimize.linprog); install it with "
+            "pip install scipy (or the lintools[scipy] extra)"
+        ) from None
+    n, p = X.shape
+    K = len(classes)
+    use = np.flatnonzero(w > 0)
+    v = w[use]
+    Xu = X[use]
+    c = (v @ Xu) / v.sum() if intercept else np.zeros(p)
+    s = np.sqrt(v @ (Xu - c) ** 2 / v.sum()) if p else np.zeros(0)
+    s = np.where(s > 0, s, 1.0)
+    A = (Xu - c) / s
+    if intercept:
+        A = np.column_stack([np.ones(use.size), A])
+    k1 = A.shape[1]
+    cu = codes[use]
+    # constraint rows: for each used row and each other class k, -(a_i' Theta_c - a_i' Theta_k) + t <= 0
+    ri, kk = np.nonzero(np.arange(K)[None, :] != cu[:, None])
+    r = ri.size
+    own, other = cu[ri], kk
+    cols_own = own[:, None] * k1 + np.arange(k1)[None, :]
+    cols_other = other[:, None] * k1 + np.arange(k1)[None, :]
+    data = np.concatenate([-A[ri].ravel(), A[ri].ravel(), np.ones(r)])
+    rows_idx = np.concatenate([np.repeat(np.arange(r), k1), np.repeat(np.arange(r), k1), np.arange(r)])
+    cols_idx = np.concatenate([cols_own.ravel(), cols_other.ravel(), K * k1 + np.arange(r)])
+    M = sparse.csr_matrix((data, (rows_idx, cols_idx)), shape=(r, K * k1 + r))
+    cost = np.concatenate([np.zeros(K * k1), -np.ones(r)])
+    bounds = [(None, None)] * (K * k1) + [(0.0, 1.0)] * r
+    res = linprog(cost, A_ub=M, b_ub=np.zeros(r), bounds=bounds, method="highs")
+    if res.status != 0:
+        raise LintoolsError(f"the separation linear programme failed: {res.message}")
+    theta = res.x[: K * k1].reshape(K, k1).T  # (k1, K)
+    t = res.x[K * k1 :]
+    strict = np.zeros(use.size, dtype=bool)
+    all_one = np.ones(use.size, dtype=bool)
+    np.logical_and.at(all_one, ri, t > ROW_THRESHOLD)
+    np.logical_or.at(strict, ri, t > ROW_THRESHOLD)
+    if not strict.any():
+        return MultinomialSeparationCheck("none", np.zeros((p, K)), np.zeros(K), tuple(classes), (), (),
+                                          np.zeros(0, dtype=int), names)
+    kind = "complete" if all_one.all() else "quasi-complete"
+    theta = theta - theta.mean(axis=1, keepdims=True)  # the shared shift carries no information
+    off = int(intercept)
+    big = max(float(np.max(np.abs(theta))), 1e-300)
+    G = np.where(np.abs(theta[off:]) > COLUMN_THRESHOLD * big, theta[off:] / s[:, None], 0.0)
+    b = theta[0] - c @ G if intercept else np.zeros(K)
+    b = np.where(np.abs(b) > COLUMN_THRESHOLD * big, b, 0.0)
+    scale = max(float(np.max(np.abs(G))) if p else 0.0, float(np.max(np.abs(b))), 1e-300)
+    G, b = G / scale, b / scale
+    terms = ((INTERCEPT_NAME,) if intercept and np.any(b != 0) else ()) + tuple(
+        names[j] for j in range(p) if np.any(G[j] != 0))
+    perfect_rows = use[all_one] if all_one.any() else use[strict]
+    sep_classes = tuple(classes[k] for k in np.unique(codes[perfect_rows]))
+    return MultinomialSeparationCheck(kind, G, b, tuple(classes), sep_classes, terms,
+                                      np.sort(perfect_rows).astype(int), names)

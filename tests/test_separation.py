@@ -168,8 +168,9 @@ def test_ordinary_fits_never_run_the_linear_programme(monkeypatch):
 
 def test_check_separation_input_errors():
     # source: common practice (messages that name the argument)
+    # three labels run the multinomial check; naming a positive class asks for a binary one
     with pytest.raises(InputError, match="exactly two"):
-        check_separation(np.zeros((3, 1)), [0, 1, 2])
+        check_separation(np.zeros((3, 1)), [0, 1, 2], positive=1)
     with pytest.raises(InputError, match="intercept must be True or False"):
         check_separation(np.eye(2), [0, 1], intercept=1)
 

@@ -43,9 +43,10 @@ def converged_message(name: str, it: int, gnorm: float, tol: float) -> str:
 
 
 def limit_message(name: str, it: int, gnorm: float, tol: float) -> str:
+    advice = "raise max_iter" if name == "newton" else "raise max_iter or choose solver='newton'"
     return (
         f"{name}: stopped at the iteration limit ({it}) with max |gradient| {gnorm:.3g} > tol "
-        f"{tol:.3g}; NOT converged: raise max_iter or choose solver='newton'"
+        f"{tol:.3g}; NOT converged: {advice}"
     )
 
 
