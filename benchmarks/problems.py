@@ -17,6 +17,8 @@ import statsmodels.api as sm
 import lintools as lt
 from problems_logistic import PEERS as LOGISTIC_PEERS
 from problems_logistic import lg_ours, lg_statsmodels, logistic_data
+from problems_softmax import PEERS as SOFTMAX_PEERS
+from problems_softmax import sm_ours, sm_statsmodels, softmax_data
 
 
 @dataclass
@@ -108,6 +110,7 @@ def _wls_statsmodels(d: dict) -> np.ndarray:
 def PROBLEMS(quick: bool) -> list[Problem]:
     n_ls, p_ls = (2000, 5) if quick else (1_000_000, 50)
     n_lg, p_lg = (2000, 5) if quick else (1_000_000, 50)
+    n_sm, p_sm, k_sm = (2000, 4, 3) if quick else (100_000, 20, 5)
     return [
         Problem(
             name=f"least squares n={n_ls:g} p={p_ls}",
@@ -137,5 +140,12 @@ def PROBLEMS(quick: bool) -> list[Problem]:
             ours=lg_ours,
             reference=lg_statsmodels,
             peers=LOGISTIC_PEERS,
+        ),
+        Problem(
+            name=f"softmax n={n_sm:g} p={p_sm} K={k_sm}",
+            make=softmax_data(n_sm, p_sm, k_sm),
+            ours=sm_ours,
+            reference=sm_statsmodels,
+            peers=SOFTMAX_PEERS,
         ),
     ]

@@ -80,6 +80,7 @@ class MultinomialLoss:
         self.weights = np.ones(n) if weights is None else weights
         self._rows = np.arange(n)
         self._first = int(self.reference)
+        self._cache: tuple | None = None
 
     # ---- helpers -----------------------------------------------------------------------
     def full(self, eta: np.ndarray) -> np.ndarray:
@@ -96,6 +97,17 @@ class MultinomialLoss:
     @staticmethod
     def _shaped(M: np.ndarray, eta: np.ndarray) -> np.ndarray:
         return M[:, 0] if eta.ndim == 1 else M
+
+    def _parts(self, eta: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+        """``(E, P, Q, lognorm)`` at ``eta``; the last result is kept, since the solvers ask
+        for the value, gradient and curvature at the same linear predictor in turn."""
+        cached = self._cache
+        if cached is not None and cached[0] is eta:
+            return cached[1]
+        E = self.full(eta)
+        parts = (E, *softmax_parts(E))
+        self._cache = (eta, parts)
+        return parts
 
     def _own(self, M: np.ndarray) -> np.ndarray:
         return M[self._rows, self.codes]
@@ -121,8 +133,7 @@ class MultinomialLoss:
 
     def _terms(self, eta: np.ndarray) -> np.ndarray:
         """``-log pi_{i c_i}`` per row: ``(max - E_own) + log1p(rest)``, each part >= 0."""
-        E = self.full(eta)
-        _, _, lognorm = softmax_parts(E)
+        E, _, _, lognorm = self._parts(eta)
         return (np.max(E, axis=1) - self._own(E)) + lognorm
 
     def value(self, eta: np.ndarray) -> float:
@@ -137,8 +148,8 @@ class MultinomialLoss:
         :math:`|\delta_k| \le 1`; rows with larger moves use the plain difference of the
         terms, which is then accurate relative to the change.
         """
-        E, D = self.full(eta), self.full(np.asarray(delta))
-        P, _, _ = softmax_parts(E)
+        E, P, _, _ = self._parts(eta)
+        D = self.full(np.asarray(delta))
         small = np.max(np.abs(D), axis=1) <= 1.0
         Ds = np.where(small[:, None], D, 0.0)
         change = np.log1p(np.sum(P * np.expm1(Ds), axis=1)) - self._own(Ds)
@@ -156,12 +167,12 @@ class MultinomialLoss:
 
     def mean(self, eta: np.ndarray) -> np.ndarray:
         """Class probabilities, (n, K)."""
-        return softmax_parts(self.full(eta))[0]
+        return self._parts(eta)[1].copy()
 
     def gradient(self, eta: np.ndarray) -> np.ndarray:
         """``w (pi - onehot)`` in the free columns; the own-class entry is ``-w (1 - pi_c)``."""
-        P, Q, _ = softmax_parts(self.full(eta))
-        G = P
+        _, P, Q, _ = self._parts(eta)
+        G = P.copy()
         G[self._rows, self.codes] = -self._own(Q)
         G *= self.weights[:, None]
         return self._shaped(G[:, self._first :], eta)
@@ -171,7 +182,7 @@ class MultinomialLoss:
 
     def curvature(self, eta: np.ndarray) -> np.ndarray:
         """Per-row Hessian blocks ``w (diag pi - pi pi')`` on the free columns, (n, K', K')."""
-        P, Q, _ = softmax_parts(self.full(eta))
+        _, P, Q, _ = self._parts(eta)
         Pf, Qf = P[:, self._first :], Q[:, self._first :]
         W = -Pf[:, :, None] * Pf[:, None, :]
         k = np.arange(Pf.shape[1])
@@ -181,7 +192,7 @@ class MultinomialLoss:
 
     def hessian_vector(self, eta: np.ndarray, u: np.ndarray) -> np.ndarray:
         """Per-row Hessian block times the rows of ``u`` (the shape of eta)."""
-        P = softmax_parts(self.full(eta))[0][:, self._first :]
+        P = self._parts(eta)[1][:, self._first :]
         u = u.reshape(P.shape)
         return self._shaped(self.weights[:, None] * (P * u - P * np.sum(P * u, axis=1, keepdims=True)), eta)
 

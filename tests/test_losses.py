@@ -142,10 +142,12 @@ def test_unpenalised_gradient_is_zero_at_the_maximum_likelihood_estimate():
     assert g0 == 0.0 and np.max(np.abs(g)) > 1.0
 
 
-def test_unpenalised_gradient_refuses_other_models():
-    # source: common practice (a message that names what is missing)
-    with pytest.raises(ValueError, match="only the binomial loss"):
-        unpenalised_gradient("softmax", np.zeros((3, 1)), [0, 1, 2], None, np.zeros(1), 0.0)
+def test_unpenalised_gradient_refuses_other_models_and_bad_shapes():
+    # source: common practice (a message that names what is wrong)
+    with pytest.raises(ValueError, match="the likelihood losses are 'logistic' and 'softmax'"):
+        unpenalised_gradient("poisson", np.zeros((3, 1)), [0, 1, 2], None, np.zeros(1), 0.0)
+    with pytest.raises(ValueError, match=r"needs \(1, 3\): one column per class"):
+        unpenalised_gradient("softmax", np.zeros((3, 1)), [0, 1, 2], None, np.zeros(1), None)
 
 
 def test_start_intercept_is_the_logit_of_the_weighted_rate():

@@ -199,3 +199,30 @@ def test_multioutput_problem_derivatives_and_all_solvers_match_statsmodels_multi
         np.testing.assert_allclose(got, expected, rtol=1e-5, atol=1e-6)
     res = solve(P, "newton", tol=1e-8, max_iter=100)
     np.testing.assert_allclose(P.to_original(res.z).reshape(6, 6), expected, rtol=1e-8, atol=1e-10)
+
+
+def test_newton_sketch_reaches_the_exact_newton_optimum(monkeypatch):
+    # source: the exact-Hessian Newton fit on the same data (the sketch only changes the
+    # path: Pilanci & Wainwright 2017); the covariance is always the exact one
+    import lintools.solvers.newton as newton_module
+    from lintools import softmax
+
+    rng = np.random.default_rng(8)
+    n = 60_000
+    X = rng.normal(size=(n, 3)) * [1.0, 3.0, 0.2]
+    yb = rng.random(n) < 1 / (1 + np.exp(-(X @ [0.5, -0.3, 2.0] + 0.2)))
+    yk = np.digitize(X[:, 0] + rng.logistic(size=n), [-1.0, 1.0])
+    calls = []
+    real = LinearModelProblem.sketch_hessian
+    monkeypatch.setattr(LinearModelProblem, "sketch_hessian",
+                        lambda self, z, E=None: calls.append(1) or real(self, z, E))
+    sketched = [logistic(X, yb), softmax(X, yk)]
+    assert len(calls) >= 2  # it was used by both fits
+    monkeypatch.setattr(newton_module, "SKETCH_UNTIL", np.inf)
+    calls.clear()
+    exact = [logistic(X, yb), softmax(X, yk)]
+    assert not calls
+    for a, b in zip(sketched, exact):
+        assert a.convergence.converged and b.convergence.converged
+        np.testing.assert_allclose(a.coefficients, b.coefficients, rtol=1e-9, atol=1e-12)
+        np.testing.assert_allclose(a.standard_errors, b.standard_errors, rtol=1e-9, atol=1e-12)

@@ -35,11 +35,14 @@ blocks of rows as ``B' B`` with ``B = sqrt(W) [1, (X - c) / s]``.
 References
 ----------
 Firth, D. (1993). Bias reduction of maximum likelihood estimates. Biometrika 80, 27-38.
+Pilanci, M. & Wainwright, M. J. (2017). Newton sketch: a near linear-time optimization
+algorithm with linear-quadratic convergence. SIAM J. Optimization 27, 205-245.
 Nocedal, J. & Wright, S. J. (2006). Numerical Optimization, 2nd ed. Springer.
 """
 
 from __future__ import annotations
 
+import copy
 import math
 from dataclasses import dataclass
 from typing import Any, Callable
@@ -67,6 +70,12 @@ EPS = float(np.finfo(float).eps)
 #: A Jacobi-scaled Cholesky pivot at or below this counts as singular.
 PIVOT_TOLERANCE = 1e3 * EPS
 _BLOCK_BYTES = 1 << 25
+#: Newton sketch: problems with at least this many rows may use a row-subsample Hessian,
+#: of max(SKETCH_PER_PARAMETER * parameters, n / SKETCH_FRACTION) rows drawn with SKETCH_SEED.
+SKETCH_MIN_ROWS = 50_000
+SKETCH_PER_PARAMETER = 40
+SKETCH_FRACTION = 8
+SKETCH_SEED = 20170101
 
 
 @dataclass(frozen=True)
@@ -240,6 +249,7 @@ class LinearModelProblem:
         self.s = np.where((s > 1e-13 * np.abs(self.c)) & (s > 0) & np.isfinite(s), s, 1.0)
         self.log_det_T = -self.K * float(np.sum(np.log(self.s)))  # log |d theta / d z|
         self._last: tuple[Any, Any] | None = None  # (z, eta) of the last evaluation
+        self._sketch: tuple[np.ndarray, Any, float] | None = None  # rows, sub-problem, scale
 
     # ---- coordinates ----------------------------------------------------------------
     def _parts(self, z: np.ndarray) -> tuple[Any, np.ndarray]:
@@ -398,11 +408,12 @@ class LinearModelProblem:
         return Evaluation(float(f), gz, original, eta)
 
     # ---- curvature ----------------------------------------------------------------------
-    def _blocks(self):
+    def _blocks(self, rows: int | None = None):
         """Rows of the standardised design ``[1, (X - c) / s]`` in blocks (one reused buffer)."""
-        buf = np.empty((min(self.block, self.n), self.p1))
-        for lo in range(0, self.n, self.block):
-            Xb = self.X[lo : lo + self.block]
+        rows = self.block if rows is None else rows
+        buf = np.empty((min(rows, self.n), self.p1))
+        for lo in range(0, self.n, rows):
+            Xb = self.X[lo : lo + rows]
             A = buf[: Xb.shape[0]]
             if self.intercept:
                 A[:, 0] = 1.0
@@ -435,16 +446,23 @@ class LinearModelProblem:
             u = self._unit_scale()
             H *= np.multiply.outer(u, u)
             return 0.5 * (H + H.T)
-        K = self.K
-        H = np.zeros((self.p1, K, self.p1, K))
-        for lo, A in self._blocks():
-            Wb = W[lo : lo + A.shape[0]]
-            for k in range(K):
-                for m in range(k, K):
-                    blk = A.T @ (A * Wb[:, k, m][:, None])
-                    H[:, k, :, m] += blk
-                    if m != k:
-                        H[:, m, :, k] += blk.T
+        # K outputs: the K(K+1)/2 blocks A' diag(W_km) A come from one product per block of
+        # rows, A' [W_00 A, W_01 A, ...], which keeps BLAS busy on a wide right-hand side
+        K, p1 = self.K, self.p1
+        pairs = [(k, m) for k in range(K) for m in range(k, K)]
+        H = np.zeros((p1, K, p1, K))
+        rows = max(64, _BLOCK_BYTES // (8 * p1 * len(pairs)))
+        R = np.empty((min(rows, self.n), len(pairs), p1))
+        for lo, A in self._blocks(rows):
+            nb = A.shape[0]
+            Wb = W[lo : lo + nb]
+            for j, (k, m) in enumerate(pairs):
+                np.multiply(A, Wb[:, k, m, None], out=R[:nb, j, :])
+            G = (A.T @ R[:nb].reshape(nb, -1)).reshape(p1, len(pairs), p1)
+            for j, (k, m) in enumerate(pairs):
+                H[:, k, :, m] += G[:, j, :]
+                if m != k:
+                    H[:, m, :, k] += G[:, j, :].T
         H = H.reshape(self.size, self.size)
         return 0.5 * (H + H.T)
 
@@ -492,6 +510,35 @@ class LinearModelProblem:
         if self.l2:
             H[np.diag_indices_from(H)] += self._penalty_diagonal()
         return H
+
+    def sketch_hessian(self, z: np.ndarray, E: np.ndarray | None = None) -> np.ndarray | None:
+        """Penalised Hessian with the loss part estimated from a fixed row subsample.
+
+        The Newton sketch of Pilanci & Wainwright (2017) in its simplest form: rows drawn
+        uniformly once (a fixed seed, so fits are reproducible), their curvature scaled by
+        the ratio of total to sampled row weight.  Cost: ``m / n`` of :meth:`hessian`.
+        Returns None for problems too small to gain from it (``n < SKETCH_MIN_ROWS``) and
+        for the Jeffreys penalty.  The solver uses it only while far from the optimum; the
+        last iterations and the covariance use the exact Hessian.
+        """
+        if self.jeffreys or self.n < SKETCH_MIN_ROWS:
+            return None
+        if self._sketch is None:
+            m = min(self.n, max(SKETCH_PER_PARAMETER * self.size, self.n // SKETCH_FRACTION))
+            rows = np.sort(np.random.default_rng(SKETCH_SEED).choice(self.n, size=m, replace=False))
+            sub = copy.copy(self)
+            sub.X, sub.n, sub._last, sub._sketch = self.X[rows], m, None, None
+            v = self.loss.row_weights()
+            sub_total = float(v[rows].sum())
+            self._sketch = (rows, sub, float(v.sum()) / sub_total if sub_total > 0 else 0.0)
+        rows, sub, scale = self._sketch
+        if scale == 0.0:
+            return None
+        W = self.loss.curvature(self.eta(z))[rows]
+        H = sub._information(W) * scale
+        if self.l2:
+            H[np.diag_indices_from(H)] += self._penalty_diagonal()
+        return H if E is None else E.T @ H @ E
 
     def hessian(self, z: np.ndarray, E: np.ndarray | None = None) -> np.ndarray:
         """Penalised Hessian in z (projected to ``E' H E`` when ``E`` is given).
@@ -615,6 +662,9 @@ class AffineProblem:
 
     def hessian(self, u: np.ndarray) -> np.ndarray:
         return self.base.hessian(self.embed(u), E=self.E)
+
+    def sketch_hessian(self, u: np.ndarray) -> np.ndarray | None:
+        return self.base.sketch_hessian(self.embed(u), E=self.E)
 
     def line(self, u: np.ndarray, d: np.ndarray) -> _Line:
         return self.base.line(self.embed(u), self.E @ d)

@@ -6,12 +6,18 @@ BLAS product on :math:`\sqrt{W}X` per block of rows: the IRLS normal equations),
 halves the step until the Armijo condition
 :math:`F(z + t d) - F(z) \le 10^{-4}\, t\, \nabla F' d` holds; the change on the left is
 computed directly (not as a difference of two rounded objective values), so the test
-stays meaningful down to the rounding level of the gradient.  It stops when the max-abs gradient in the caller's coordinates is at
-most ``tol``.
+stays meaningful down to the rounding level of the gradient.  It stops when the max-abs
+gradient in the caller's coordinates is at most ``tol``.
+
+For large problems (see ``LinearModelProblem.sketch_hessian``) the first iterations use
+a Hessian from a fixed row subsample (Newton sketch, Pilanci & Wainwright 2017) until the
+gradient has fallen by ``SKETCH_UNTIL``, or at once when a sketched step needs halving;
+the final iterations are exact Newton steps, so convergence stays quadratic at the end.
 
 References
 ----------
 Nocedal, J. & Wright, S. J. (2006). Numerical Optimization, 2nd ed., ch. 3. Springer.
+Pilanci, M. & Wainwright, M. J. (2017). Newton sketch. SIAM J. Optimization 27, 205-245.
 McCullagh, P. & Nelder, J. A. (1989). Generalized Linear Models, 2nd ed., sec. 2.5.
 """
 
@@ -29,6 +35,9 @@ ARMIJO = 1e-4
 MAX_HALVINGS = 60
 #: Iterations in a row without a decrease beyond rounding before the solver gives up.
 STALL_LIMIT = 3
+#: Large problems use a row-subsample Hessian (Newton sketch) until the max-abs gradient
+#: is below this fraction of its starting value; exact Hessians finish the job.
+SKETCH_UNTIL = 1e-3
 
 
 def _finish(name, z, ev, it, status, message):
@@ -73,6 +82,8 @@ def newton(
     z = problem.start() if start is None else np.array(start, dtype=float)
     ev = problem.evaluate(z)
     it = stall = 0
+    g_start = ev.gradient_norm
+    sketching = hasattr(problem, "sketch_hessian")
     while True:
         gnorm = ev.gradient_norm
         if gnorm <= tol:
@@ -80,7 +91,11 @@ def newton(
         if it >= max_iter:
             return _finish(name, z, ev, it, "iteration_limit", limit_message(name, it, gnorm, tol))
         try:
-            d = -solve_spd(problem.hessian(z), ev.gradient)
+            H = problem.sketch_hessian(z) if (sketching and gnorm > SKETCH_UNTIL * g_start) else None
+            sketched = H is not None
+            if H is None:
+                H = problem.hessian(z)
+            d = -solve_spd(H, ev.gradient)
         except SingularMatrixError as exc:
             return _finish(name, z, ev, it, "singular", f"{name}: the Hessian is singular ({exc})")
         slope = float(ev.gradient @ d)
@@ -92,6 +107,8 @@ def newton(
                 accepted = True
                 break
             t *= 0.5
+        if sketched and t < 1.0:
+            sketching = False  # the subsample misled the step: exact Hessians from here on
         if not accepted or not slope < 0:
             stall = STALL_LIMIT
         z_new = z + t * d
