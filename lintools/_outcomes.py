@@ -148,7 +148,7 @@ def class_forecast(y: Any, p: np.ndarray, name: str = "p", ylabel: str = "y") ->
     if off.any():
         i = int(np.argmax(off))
         raise InputError(
-            f"{name} row {i} sums to {sums[i]!r}, not 1; each row must hold the class "
+            f"{name} row {i} sums to {float(sums[i])!r}, not 1; each row must hold the class "
             f"probabilities (tolerance {ROW_SUM_TOLERANCE:g}); normalise the rows or apply "
             "a softmax to logits"
         )
@@ -220,6 +220,8 @@ def sigmoid(z: np.ndarray) -> np.ndarray:
 
 def vector_in(x: Any, name: str) -> tuple[np.ndarray, bool]:
     """A finite 1-D input of a map's ``apply`` and whether it was a scalar."""
+    if isinstance(x, (bool, np.bool_)):
+        raise InputError(f"{name} is a bool ({x!r}); pass a number or an array of numbers")
     if np.ndim(x) == 0 and not hasattr(x, "__len__"):
         return as_vector([x], name), True
     return as_vector(x, name), False

@@ -143,9 +143,10 @@ def temperature_scaling(
     Guo, C., Pleiss, G., Sun, Y. & Weinberger, K. Q. (2017). On calibration of modern
     neural networks. ICML 2017.
     """
+    given = tol
     tol = float(tol) if isinstance(tol, numbers.Real) and not isinstance(tol, bool) else -1.0
-    if not tol > 0:
-        raise InputError(f"tol must be a positive number; got {tol!r}")
+    if not (tol > 0 and math.isfinite(tol)):
+        raise InputError(f"tol must be a positive finite number (e.g. 1e-12); got {given!r}")
     max_iter = check_positive_int(max_iter, "max_iter")
     raw = _as_float(logits, "logits")
     binary = raw.ndim == 1

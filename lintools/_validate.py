@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import math
 import numbers
+import os
 from typing import Any, Sequence
 
 import numpy as np
@@ -90,6 +91,13 @@ def _as_float(obj: Any, name: str, names: Sequence[str] | None = None) -> np.nda
             f"{name} could not be read as an array ({exc}); pass a rectangular array or "
             "nested list of numbers"
         ) from None
+    if arr.ndim == 0 and (arr.dtype == object or arr.dtype.kind in "USV"):
+        value = arr.item() if arr.dtype.kind != "V" else raw
+        if isinstance(value, str) or isinstance(value, (bool, np.bool_)) or not isinstance(value, numbers.Real):
+            raise InputError(
+                f"{name} is a single {type(value).__name__} ({value!r:.60}), not an array of numbers; "
+                "pass an array (or nested list) of numbers"
+            )
     if arr.dtype == object or arr.dtype.kind in "USV":
         bad = _first_nonnumeric(arr) if arr.dtype.kind != "V" else ((0,), "structured")
         if bad is not None:
@@ -163,7 +171,7 @@ def as_vector(y: Any, name: str = "y", n: int | None = None) -> np.ndarray:
             "a single column)"
         )
     if arr.ndim != 1:
-        raise InputError(f"{name} must be 1-D; got shape {arr.shape}")
+        raise InputError(f"{name} must be 1-D (one value per row); got shape {arr.shape}")
     if n is not None and arr.shape[0] != n:
         raise InputError(
             f"{name} has {arr.shape[0]} entries but X has {n} rows; pass one value per row"
@@ -302,21 +310,44 @@ def check_positive_int(value: Any, name: str, minimum: int = 1) -> int:
 
 def read_file_bytes(path: Any, label: str, max_bytes: int) -> bytes:
     """Read a whole file, refusing a missing file or one larger than ``max_bytes``."""
-    import os
-
-    where = os.fspath(path)
+    where = file_path(path, label)
     try:
         size = os.path.getsize(where)
     except OSError as exc:
         raise InputError(f"{label} {where!r} cannot be read: {exc.strerror}") from None
+    if os.path.isdir(where):
+        raise InputError(f"{label} {where!r} is a directory; pass the path of a file")
     if size > max_bytes:
         raise InputError(f"{label} {where!r} is {size} bytes; larger than the {max_bytes} allowed")
-    with open(where, "rb") as fh:
-        return fh.read()
+    try:
+        with open(where, "rb") as fh:
+            return fh.read()
+    except OSError as exc:
+        raise InputError(f"{label} {where!r} cannot be read: {exc.strerror or exc}") from None
+
+
+def file_path(path: Any, label: str) -> str:
+    """Return ``path`` as a str, refusing anything that is not a str or os.PathLike."""
+    if isinstance(path, bytes) or not isinstance(path, (str, os.PathLike)):
+        raise InputError(f"the {label} path must be a str or os.PathLike; got {type(path).__name__}")
+    where = os.fspath(path)
+    if not isinstance(where, str) or not where or "\x00" in where:
+        raise InputError(f"the {label} path {where!r} is not a usable file name; pass the path of a file")
+    return where
 
 
 def check_probabilities(p: Any, name: str = "p", n: int | None = None) -> np.ndarray:
     """Return probabilities as a new float64 array (1-D, or 2-D with rows summing to 1)."""
+    if p is None:
+        raise InputError(f"{name} is None; pass probabilities, one per row")
+    try:
+        kind = np.asarray(_to_numpy(p)).dtype.kind
+    except Exception:  # ragged input: _as_float below names the problem
+        kind = ""
+    if kind == "b":
+        raise InputError(
+            f"{name} is boolean; pass probabilities (numbers in [0, 1]), not labels or a mask"
+        )
     arr = _as_float(p, name)
     if arr.ndim not in (1, 2) or arr.size == 0:
         raise InputError(f"{name} must be a non-empty 1-D array or (rows, classes) matrix; got shape {arr.shape}")

@@ -28,7 +28,7 @@ import numpy as np
 
 from . import _records
 from ._errors import InputError
-from ._validate import read_file_bytes
+from ._validate import file_path, read_file_bytes
 
 __all__ = ["save", "load", "SCHEMA_VERSION", "MAX_BYTES"]
 
@@ -87,8 +87,11 @@ def _decode_float(v: Any, where: str) -> float:
     if isinstance(v, dict) and set(v) == {"$float"} and v["$float"] in ("nan", "inf", "-inf"):
         return float(v["$float"])
     if isinstance(v, bool) or not isinstance(v, (int, float)):
-        raise InputError(f"model file: {where} holds {v!r} where a number was expected")
-    return float(v)
+        raise InputError(f"model file: {where} holds {v!r:.80} where a number was expected")
+    try:
+        return float(v)
+    except OverflowError:
+        raise InputError(f"model file: {where} holds an integer too large for a float; the file is damaged") from None
 
 
 def _decode(value: Any, where: str, types: dict[str, type]) -> Any:
@@ -185,7 +188,10 @@ def _decode_array(value: dict, where: str) -> np.ndarray:
         if not all(isinstance(v, bool) for v in flat):
             raise InputError(f"model file: {where} holds a non-boolean in a boolean array")
         data = flat
-    return np.array(data, dtype=_DTYPES[dtype]).reshape(shape)
+    try:
+        return np.array(data, dtype=_DTYPES[dtype]).reshape(shape)
+    except (OverflowError, ValueError) as exc:
+        raise InputError(f"model file: {where} cannot be built as a {dtype} array of shape {shape} ({exc})") from None
 
 
 def save(fit: Any, path: str | os.PathLike) -> None:
@@ -203,8 +209,15 @@ def save(fit: Any, path: str | os.PathLike) -> None:
         "record": _encode(fit),
     }
     text = json.dumps(doc, allow_nan=False, indent=1)
-    with open(path, "w", encoding="utf-8") as fh:
-        fh.write(text)
+    where = file_path(path, "model file")
+    try:
+        with open(where, "w", encoding="utf-8") as fh:
+            fh.write(text)
+    except OSError as exc:
+        raise InputError(
+            f"model file {where!r} cannot be written: {exc.strerror or exc}; check that the "
+            "directory exists and is writable"
+        ) from None
 
 
 def load(path: str | os.PathLike) -> Any:
@@ -218,9 +231,13 @@ def load(path: str | os.PathLike) -> Any:
     """
     raw = read_file_bytes(path, "model file", MAX_BYTES)
     try:
-        doc = json.loads(raw.decode("utf-8"), parse_constant=_refuse_constant)
+        doc = json.loads(raw.decode("utf-8"), parse_constant=_refuse_constant, parse_float=_finite_float)
     except (UnicodeDecodeError, json.JSONDecodeError, RecursionError) as exc:
         raise InputError(f"model file {os.fspath(path)!r} is not valid JSON ({exc})") from None
+    except ValueError as exc:  # an integer of more digits than Python converts
+        if isinstance(exc, InputError):
+            raise
+        raise InputError(f"model file {os.fspath(path)!r} holds an unreadable number ({exc}); the file is damaged") from None
     if not isinstance(doc, dict) or doc.get("format") != FORMAT:
         raise InputError(f"{os.fspath(path)!r} is not a lintools model file (no \"format\": \"{FORMAT}\")")
     version = doc.get("schema_version")
@@ -237,6 +254,16 @@ def load(path: str | os.PathLike) -> Any:
     if not hasattr(record, "kind") or record.kind != doc.get("kind"):
         raise InputError(f"model file {os.fspath(path)!r}: the record does not match kind {doc.get('kind')!r}")
     return record
+
+
+def _finite_float(text: str) -> float:
+    value = float(text)
+    if not math.isfinite(value):
+        raise InputError(
+            f"model file holds the number {text[:40]!r}, which overflows a float; the file is damaged "
+            '(lintools writes non-finite values as {"$float": ...})'
+        )
+    return value
 
 
 def _refuse_constant(name: str) -> Any:

@@ -66,7 +66,7 @@ import numpy as np
 from . import _distributions as dist
 from . import _gram
 from ._errors import IllConditionedWarning, InputError
-from ._records import INTERCEPT_NAME, Convergence, LinearFit
+from ._records import Convergence, LinearFit
 from ._validate import (
     as_matrix,
     as_vector,

@@ -26,13 +26,14 @@ from __future__ import annotations
 import math
 import os
 import xml.etree.ElementTree as ET
+from xml.parsers import expat
 from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
 
 from ._errors import InputError
-from ._validate import read_file_bytes
+from ._validate import file_path, read_file_bytes
 
 __all__ = ["DeliveredModel", "read_pmml", "write_pmml"]
 
@@ -110,7 +111,14 @@ def write_pmml(fit: Any, path: str | os.PathLike, *, target: str | None = None) 
     else:
         for k, c in enumerate(fit.classes):
             table(float(np.asarray(fit.intercept)[k]), np.asarray(fit.coefficients)[:, k], c)
-    ET.ElementTree(root).write(path, encoding="utf-8", xml_declaration=True)
+    where = file_path(path, "PMML file")
+    try:
+        ET.ElementTree(root).write(where, encoding="utf-8", xml_declaration=True)
+    except OSError as exc:
+        raise InputError(
+            f"PMML file {where!r} cannot be written: {exc.strerror or exc}; check that the directory "
+            "exists and is writable"
+        ) from None
 
 
 def _strip(tag: str) -> str:
@@ -130,16 +138,45 @@ def _float_attr(el: ET.Element, name: str, where: str, default: str | None = Non
     return v
 
 
+class _Declaration(Exception):
+    pass
+
+
+def _refuse_declarations(raw: bytes, where: str) -> None:
+    """Refuse a DTD or entity declaration in any encoding (the byte test above sees only
+    ASCII-compatible ones): expat reports the declaration before anything is expanded."""
+
+    def stop(*_: Any) -> None:
+        raise _Declaration
+
+    parser = expat.ParserCreate()
+    parser.SetParamEntityParsing(expat.XML_PARAM_ENTITY_PARSING_NEVER)
+    parser.StartDoctypeDeclHandler = stop
+    parser.EntityDeclHandler = stop
+    parser.ExternalEntityRefHandler = stop
+    try:
+        parser.Parse(raw, True)
+    except _Declaration:
+        raise InputError(
+            f"{where!r} declares a DTD or entities; lintools refuses such XML (external entities, entity expansion)"
+        ) from None
+    except expat.ExpatError as exc:
+        raise InputError(f"{where!r} is not well-formed XML ({expat.ErrorString(exc.code)}, line {exc.lineno})") from None
+    except (LookupError, ValueError) as exc:  # an unknown or broken encoding declaration
+        raise InputError(f"{where!r} cannot be decoded as XML ({exc}); save it as UTF-8") from None
+
+
 def read_pmml(path: str | os.PathLike) -> DeliveredModel:
     """Read a PMML ``RegressionModel`` and return its coefficients as a :class:`DeliveredModel`."""
-    where = os.fspath(path)
+    where = file_path(path, "PMML file")
     raw = read_file_bytes(where, "PMML file", MAX_BYTES)
     upper = raw.upper()
     if b"<!DOCTYPE" in upper or b"<!ENTITY" in upper:
         raise InputError(f"{where!r} declares a DTD or entities; lintools refuses such XML (external entities, entity expansion)")
+    _refuse_declarations(raw, where)
     try:
         root = ET.fromstring(raw)
-    except ET.ParseError as exc:
+    except (ET.ParseError, LookupError, ValueError) as exc:
         raise InputError(f"{where!r} is not well-formed XML ({exc})") from None
     if _strip(root.tag) != "PMML":
         raise InputError(f"{where!r} is not a PMML document (root element <{_strip(root.tag)}>)")

@@ -28,6 +28,7 @@ from typing import Mapping, Sequence
 import numpy as np
 
 from ._errors import InputError
+from ._validate import file_path
 
 __all__ = ["MISSING", "Table", "read_table"]
 
@@ -100,18 +101,22 @@ def read_table(
 
     ``features=None`` takes every column that is not the target, the weights or an extra.
     """
-    where = os.fspath(path)
+    where = file_path(path, "CSV file")
     try:
         size = os.path.getsize(where)
     except OSError as exc:
         raise InputError(f"cannot read {where!r}: {exc.strerror}") from None
+    if os.path.isdir(where):
+        raise InputError(f"{where!r} is a directory; pass the path of a CSV file")
     if size > MAX_BYTES:
         raise InputError(f"{where!r} is {size} bytes, more than the {MAX_BYTES} this reader takes")
-    with open(where, newline="", encoding="utf-8-sig") as fh:
-        try:
+    try:
+        with open(where, newline="", encoding="utf-8-sig") as fh:
             rows = list(csv.reader(fh))
-        except (csv.Error, UnicodeDecodeError) as exc:
-            raise InputError(f"{where!r} is not a readable CSV file ({exc})") from None
+    except (csv.Error, UnicodeDecodeError) as exc:
+        raise InputError(f"{where!r} is not a readable CSV file ({exc})") from None
+    except OSError as exc:
+        raise InputError(f"cannot read {where!r}: {exc.strerror or exc}") from None
     if not rows or not any(field.strip() for field in rows[0]):
         raise InputError(f"{where!r} is empty or has an empty first line; a header line is required")
     header = [h.strip() for h in rows[0]]
@@ -196,6 +201,12 @@ def read_table(
     X = np.hstack(blocks) if blocks else np.zeros((len(body), 0))
 
     y = _typed([r[index[target]] for r in body]) if target is not None else ()
+    for i, v in enumerate(y):
+        if isinstance(v, float) and not math.isfinite(v):
+            raise InputError(
+                f"{where!r} line {lines[i]}, target column '{target}': value {body[i][index[target]]!r} "
+                "is not finite; fix or drop that line"
+            )
     w = None
     if weights is not None:
         raw = [r[index[weights]] for r in body]

@@ -2,7 +2,6 @@
 
 import json
 
-import numpy as np
 import pytest
 import statsmodels.api as sm
 from hypothesis import HealthCheck, given, settings

@@ -11,7 +11,6 @@ Sources, named beside each check:
 """
 
 import math
-import warnings
 
 import numpy as np
 import pytest

@@ -472,7 +472,7 @@ def test_split_balance_matches_pandas_crosstab():
     assert np.array_equal(report.counts, ref.to_numpy())
     assert report.classes == tuple(ref.columns)
     assert np.array_equal(report.sizes, np.bincount(folds))
-    expected = np.outer(report.sizes, ref.sum(0).to_numpy()) / y.size
+    expected = np.outer(report.sizes, ref.sum(axis=0).to_numpy()) / y.size
     assert np.allclose(report.expected, expected, rtol=0, atol=1e-12)
     assert report.largest_deviation == pytest.approx(np.abs(ref.to_numpy() - expected).max())
     assert report.largest_deviation < 1  # stratification keeps every count within a row
