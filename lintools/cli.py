@@ -2,88 +2,42 @@
 
 Commands
 --------
-demo         fit the built-in inspection-station demo and print its reports
+demo         run the whole job on the built-in inspection-station demo; writes a report folder
 fit          fit a model to a CSV file, print the report, optionally write the model file
+check        check a delivered model file (lintools JSON or PMML) against a refit on a CSV file
+calibration  calibration report of a probability column; a reliability diagram with ``--plot``
 folds        write a CSV file with a stratified fold-id column added
 
 Exit codes: 0 success, 1 a check failed (or a fit did not converge), 2 bad input.
 ``--json`` prints one machine-readable JSON document on standard output instead of text
 (non-finite numbers become ``null``).  Per-iteration progress goes to standard error for
 fits that take longer than a second, unless ``--quiet``.
+
+The subcommands live in ``_cli_check.py``, ``_cli_calibration.py`` and ``_cli_demo.py``;
+shared pieces in ``_cli_common.py``.
 """
 
 from __future__ import annotations
 
 import argparse
 import csv
-import json
-import math
+import dataclasses
 import sys
-import time
 import warnings
 from typing import Any
 
 import numpy as np
 
+from ._cli_calibration import add_calibration_parser
+from ._cli_check import add_check_parser
+from ._cli_common import CAUTION, Progress, column_list, emit_json
+from ._cli_demo import add_demo_parser
 from ._errors import InputError, IterationLimitWarning, LintoolsError
 
-CAUTION = (
-    "Caution: statistical agreement is not model validation. Where these results feed "
-    "decisions about people (credit, health, safety), local regulation and your "
-    "organisation's model-risk practice decide what is required."
-)
+__all__ = ["CAUTION", "build_parser", "main"]
 
 
-def _clean(value: Any) -> Any:
-    """Make a value strict-JSON: arrays to lists, non-finite floats to None."""
-    if isinstance(value, dict):
-        return {str(k): _clean(v) for k, v in value.items()}
-    if isinstance(value, (list, tuple)):
-        return [_clean(v) for v in value]
-    if isinstance(value, np.ndarray):
-        return _clean(value.tolist())
-    if isinstance(value, (np.floating, float)):
-        v = float(value)
-        return v if math.isfinite(v) else None
-    if isinstance(value, (np.integer,)):
-        return int(value)
-    if isinstance(value, np.bool_):
-        return bool(value)
-    return value
-
-
-def _emit_json(doc: dict) -> None:
-    print(json.dumps(_clean(doc), allow_nan=False, indent=1))
-
-
-class _Progress:
-    """``on_iteration`` callback: prints to stderr once a fit has run for a second."""
-
-    def __init__(self, quiet: bool) -> None:
-        self.quiet = quiet
-        self.start = time.perf_counter()
-
-    def __call__(self, record: Any) -> None:
-        if self.quiet or time.perf_counter() - self.start < 1.0:
-            return
-        print(
-            f"  iteration {record.iteration}: objective {record.objective:.12g}, "
-            f"max |gradient| {record.gradient_norm:.3g}",
-            file=sys.stderr,
-            flush=True,
-        )
-
-
-def _features(text: str | None) -> list[str] | None:
-    if text is None:
-        return None
-    names = [t.strip() for t in text.split(",") if t.strip()]
-    if not names:
-        raise InputError("--features is empty; pass column names separated by commas")
-    return names
-
-
-def _fit_table(table: Any, args: argparse.Namespace, progress: _Progress) -> Any:
+def _fit_table(table: Any, args: argparse.Namespace, progress: Progress) -> Any:
     from . import least_squares
 
     if args.model == "linear":
@@ -101,8 +55,14 @@ def _fit_table(table: Any, args: argparse.Namespace, progress: _Progress) -> Any
     fn = getattr(lintools, kind)
     return fn(
         table.X, list(table.target), weights=table.weights, l2=args.l2, solver=args.solver,
-        names=table.names, on_iteration=progress,
+        names=table.names, on_iteration=progress, **({"positive": _positive(table, args)} if kind == "logistic" else {}),
     )
+
+
+def _positive(table: Any, args: argparse.Namespace) -> Any:
+    from ._cli_common import match_label
+
+    return match_label(args.positive, sorted(set(table.target), key=str), "--positive") if args.positive else None
 
 
 def _cmd_fit(args: argparse.Namespace) -> int:
@@ -110,18 +70,24 @@ def _cmd_fit(args: argparse.Namespace) -> int:
     from .table import read_table
 
     table = read_table(
-        args.csv, target=args.target, features=_features(args.features), weights=args.weights,
+        args.csv, target=args.target, features=column_list(args.features), weights=args.weights,
         drop_missing=args.drop_missing,
     )
-    progress = _Progress(args.quiet or args.json)
+    progress = Progress(args.quiet, "fit")
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         fit = _fit_table(table, args, progress)
+    if any(f.name == "target" for f in dataclasses.fields(fit)):
+        fit = dataclasses.replace(fit, target=args.target)  # so that a model file names its target column
     if args.save:
         save(fit, args.save)
+    if args.save_pmml:
+        from .pmml import write_pmml
+
+        write_pmml(fit, args.save_pmml)
     converged = bool(fit.convergence.converged)
     if args.json:
-        _emit_json({"fit": fit.to_dict(), "warnings": [str(w.message) for w in caught],
+        emit_json({"fit": fit.to_dict(), "warnings": [str(w.message) for w in caught],
                     "dropped_rows": table.dropped, "reference_levels": table.reference_levels})
     else:
         for w in caught:
@@ -132,8 +98,9 @@ def _cmd_fit(args: argparse.Namespace) -> int:
         if table.reference_levels:
             refs = ", ".join(f"{k}={v}" for k, v in table.reference_levels.items())
             print(f"reference levels of text columns: {refs}")
-        if args.save:
-            print(f"model written to {args.save}")
+        for path in (args.save, args.save_pmml):
+            if path:
+                print(f"model written to {path}")
         print(CAUTION)
     if not converged or any(issubclass(w.category, IterationLimitWarning) for w in caught):
         print("lintools: the fit did not converge; its numbers are not an optimum", file=sys.stderr)
@@ -163,24 +130,9 @@ def _cmd_folds(args: argparse.Namespace) -> int:
                 writer.writerow(row + [by_line[lineno]])
     counts = np.bincount(folds, minlength=args.k).tolist()
     if args.json:
-        _emit_json({"folds": args.k, "rows_per_fold": counts, "written": args.out})
+        emit_json({"folds": args.k, "rows_per_fold": counts, "written": args.out})
     else:
         print(f"{len(folds)} rows in {args.k} folds (rows per fold: {counts}); written to {args.out}")
-    return 0
-
-
-def _cmd_demo(args: argparse.Namespace) -> int:
-    from .demo import inspection_data
-    from .least_squares import least_squares
-
-    data = inspection_data(n=args.rows, seed=args.seed)
-    fit = least_squares(data.X, data.fill_deviation, names=data.names)
-    if args.json:
-        _emit_json({"fill_deviation": fit.to_dict()})
-        return 0
-    print("Fill-volume deviation (ml) at the inspection station, by least squares\n")
-    print(fit.report())
-    print(CAUTION)
     return 0
 
 
@@ -192,11 +144,7 @@ def build_parser() -> argparse.ArgumentParser:
         p.add_argument("--json", action="store_true", help="print one JSON document instead of text")
         p.add_argument("--quiet", action="store_true", help="no progress lines on standard error")
 
-    demo = sub.add_parser("demo", help="fit the built-in inspection-station demo and print the reports")
-    demo.add_argument("--rows", type=int, default=2000, help="number of inspection records (default 2000)")
-    demo.add_argument("--seed", type=int, default=20261201, help="seed of the data generator")
-    common(demo)
-    demo.set_defaults(run=_cmd_demo)
+    add_demo_parser(sub, common)
 
     fit = sub.add_parser("fit", help="fit a model to a CSV file and print the report")
     fit.add_argument("csv", help="CSV file with a header line")
@@ -208,9 +156,14 @@ def build_parser() -> argparse.ArgumentParser:
     fit.add_argument("--covariance", default="classical", help="linear model: classical, HC0, HC1, HC2 or HC3")
     fit.add_argument("--solver", default="newton", help="logistic and softmax: newton, lbfgs or gradient")
     fit.add_argument("--drop-missing", action="store_true", help="drop lines with missing values instead of stopping")
+    fit.add_argument("--positive", help="logistic: the label whose probability is modelled (default: the larger)")
     fit.add_argument("--save", help="write the fitted model to this JSON model file")
+    fit.add_argument("--save-pmml", help="write the fitted model to this PMML 4.4 file")
     common(fit)
     fit.set_defaults(run=_cmd_fit)
+
+    add_check_parser(sub, common)
+    add_calibration_parser(sub, common)
 
     folds = sub.add_parser("folds", help="add a stratified fold-id column to a CSV file")
     folds.add_argument("csv", help="CSV file with a header line")

@@ -19,7 +19,13 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["FEATURES", "TRUE_FILL_DEVIATION", "TRUE_LEAK", "TRUE_DEFECT", "DEFECT_CLASSES", "InspectionData", "inspection_data", "supplier_leak_model"]
+from .losses import sigmoid
+
+__all__ = [
+    "FEATURES", "TRUE_FILL_DEVIATION", "TRUE_LEAK", "TRUE_DEFECT", "DEFECT_CLASSES", "InspectionData",
+    "inspection_data", "supplier_leak_model", "SupplierLeakModel", "supplier_leak_record", "true_leak_raw",
+    "true_defect_raw",
+]
 
 FEATURES = ("fill_temperature", "line_speed", "cap_torque", "nozzle_age", "humidity")
 
@@ -112,3 +118,50 @@ def supplier_leak_model() -> tuple[dict, float]:
     """The supplier's delivered leak-risk slopes (raw features) and intercept."""
     centre_shift = sum(SUPPLIER_LEAK_SLOPES[f] * CENTRES[f] for f in FEATURES)
     return dict(SUPPLIER_LEAK_SLOPES), TRUE_LEAK["intercept"] - centre_shift
+
+
+def true_leak_raw() -> tuple[dict, float]:
+    """The true leak model on the raw (uncentred) features: slopes and intercept."""
+    slopes = {f: TRUE_LEAK[f] for f in FEATURES}
+    return slopes, TRUE_LEAK["intercept"] - sum(slopes[f] * CENTRES[f] for f in FEATURES)
+
+
+def true_defect_raw() -> tuple[np.ndarray, np.ndarray]:
+    """The true defect model on the raw features: (p, K) slopes and (K,) intercepts.
+
+    Columns follow :data:`DEFECT_CLASSES`; the column of ``"none"`` is zero.
+    """
+    B = np.zeros((len(FEATURES), len(DEFECT_CLASSES)))
+    b = np.zeros(len(DEFECT_CLASSES))
+    centre = np.array([CENTRES[f] for f in FEATURES])
+    for k, name in enumerate(DEFECT_CLASSES[1:], start=1):
+        B[:, k] = [TRUE_DEFECT[name][f] for f in FEATURES]
+        b[k] = TRUE_DEFECT[name]["intercept"] - float(B[:, k] @ centre)
+    return B, b
+
+
+@dataclass(frozen=True)
+class SupplierLeakModel:
+    """The supplier's leak-risk model as a delivered file holds it (coefficients only).
+
+    Carries what :func:`lintools.pmml.write_pmml` writes for a logistic model: the kind,
+    feature names, slopes, intercept, the two classes and the positive one, the target.
+    """
+
+    coefficients: np.ndarray
+    intercept: float
+    names: tuple[str, ...] = FEATURES
+    classes: tuple = (False, True)
+    positive_class: object = True
+    target: str = "leak"
+    kind = "logistic"
+
+    def mean(self, X: np.ndarray) -> np.ndarray:
+        """The supplier's leak probability for rows of the five features."""
+        return sigmoid(np.asarray(X, dtype=float) @ self.coefficients + self.intercept)
+
+
+def supplier_leak_record() -> SupplierLeakModel:
+    """The supplier's model as a record that :func:`lintools.pmml.write_pmml` can write."""
+    slopes, intercept = supplier_leak_model()
+    return SupplierLeakModel(coefficients=np.array([slopes[f] for f in FEATURES]), intercept=float(intercept))

@@ -1,6 +1,7 @@
 """The command line, end to end by subprocess: exit codes, text and --json output."""
 
 import csv
+import io
 import json
 import subprocess
 import sys
@@ -9,6 +10,8 @@ import numpy as np
 import statsmodels.api as sm
 
 import lintools as lt
+from lintools._cli_common import Progress
+from lintools.pmml import read_pmml
 
 
 def run(*args, cwd=None):
@@ -80,7 +83,76 @@ def test_folds_writes_a_balanced_fold_column(tmp_path):
         assert sum(r["label"] == "leak" and r["fold"] == str(fold) for r in rows) == 2
 
 
-def test_demo_runs(tmp_path):
-    proc = run("demo", cwd=tmp_path)
+def test_demo_writes_into_the_default_folder_of_the_working_directory(tmp_path):
+    proc = run("demo", "--quiet", cwd=tmp_path)
     assert proc.returncode == 0, proc.stderr
-    assert "fill_temperature" in proc.stdout and "Caution" in proc.stdout
+    assert "supplier's leak model" in proc.stdout and "Caution" in proc.stdout
+    report = (tmp_path / "lintools-demo" / "report.txt").read_text()
+    assert "fill_temperature" in report and "statistical agreement is not model validation" in report
+
+
+def test_fit_logistic_names_its_target_and_writes_pmml(tmp_path):
+    # statsmodels' spector data (Spector & Mazzeo 1980).
+    d = sm.datasets.spector.load_pandas().data
+    path = tmp_path / "spector.csv"
+    d.to_csv(path, index=False)
+    proc = run("fit", str(path), "--target", "GRADE", "--model", "logistic", "--save-pmml", str(tmp_path / "m.pmml"),
+               "--json")
+    assert proc.returncode == 0, proc.stderr
+    doc = json.loads(proc.stdout)
+    assert doc["fit"]["target"] == "GRADE"
+    ref = sm.Logit(d["GRADE"], sm.add_constant(d[["GPA", "TUCE", "PSI"]])).fit(disp=0, tol=1e-12)  # oracle
+    assert np.allclose(doc["fit"]["coefficients"], ref.params.to_numpy()[1:], rtol=1e-8, atol=0)
+    m = read_pmml(tmp_path / "m.pmml")
+    assert m.target == "GRADE" and np.allclose(m.coefficients, ref.params.to_numpy()[1:], rtol=1e-8, atol=0)
+
+
+class _Clock:
+    def __init__(self):
+        self.now = 100.0
+
+    def __call__(self):
+        return self.now
+
+
+class _Record:
+    def __init__(self, i):
+        self.iteration, self.objective, self.gradient_norm, self.step = i, 1.0 / i, 10.0**-i, 0.1
+
+
+def test_progress_lines_start_after_one_second_and_quiet_silences_them():
+    clock, out = _Clock(), io.StringIO()
+    progress = Progress(False, "leak fit", clock=clock, stream=out)
+    clock.now += 0.999
+    progress(_Record(1))
+    assert out.getvalue() == ""  # common practice: no chatter for fits under a second
+    clock.now += 0.002
+    progress(_Record(2))
+    assert out.getvalue().startswith("  leak fit: iteration 2, 1.0 s: objective 0.5")
+    out2 = io.StringIO()
+    silent = Progress(True, "x", clock=clock, stream=out2)
+    clock.now += 5.0
+    silent(_Record(3))
+    assert out2.getvalue() == "" and silent.printed == 0
+
+
+def test_progress_reaches_stderr_of_a_long_fit_and_quiet_removes_it(tmp_path):
+    # A fit that "lasts" more than a second: in a child process whose clock advances
+    # 0.6 s per reading, the command's progress callback passes the one-second mark at
+    # the second iteration (no timing of real work).
+    d = sm.datasets.spector.load_pandas().data
+    path = tmp_path / "spector.csv"
+    d.to_csv(path, index=False)
+    script = (
+        "import itertools, time, sys\n"
+        "ticks = itertools.count()\n"
+        "time.perf_counter = lambda: 0.6 * next(ticks)\n"
+        "from lintools.cli import main\n"
+        "raise SystemExit(main(sys.argv[1:]))\n"
+    )
+    args = ["fit", str(path), "--target", "GRADE", "--model", "logistic"]
+    loud = subprocess.run([sys.executable, "-c", script, *args], capture_output=True, text=True, timeout=120)
+    assert loud.returncode == 0, loud.stderr
+    assert "fit: iteration" in loud.stderr
+    quiet = subprocess.run([sys.executable, "-c", script, *args, "--quiet"], capture_output=True, text=True, timeout=120)
+    assert "iteration" not in quiet.stderr

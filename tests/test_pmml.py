@@ -87,3 +87,73 @@ def test_malformed_documents_are_refused(tmp_path, text, fragment):
     path.write_text(text)
     with pytest.raises(InputError, match=fragment):
         read_pmml(path)
+
+
+# ------------------------------------------------------------------ logistic and JSON round trips
+def _spector():
+    # statsmodels' spector data (Spector & Mazzeo 1980).
+    d = sm.datasets.spector.load_pandas()
+    return d.exog, d.endog
+
+
+def test_logistic_round_trip_keeps_coefficients_and_probabilities(tmp_path):
+    X, y = _spector()
+    labels = np.where(y.to_numpy() == 1, "improved", "not improved")
+    fit = lt.logistic(X, labels, positive="improved")
+    path = tmp_path / "logit.pmml"
+    write_pmml(fit, path, target="GRADE")
+    m = read_pmml(path)
+    assert m.kind == "logistic" and m.names == ("GPA", "TUCE", "PSI") and m.target == "GRADE"
+    assert m.classes[0] == "improved"  # the modelled class's table comes first
+    assert np.array_equal(m.coefficients, fit.coefficients) and m.intercept == fit.intercept
+    # PMML logit normalisation (DMG PMML 4.4 Regression): p = 1 / (1 + exp(-(b + x'beta))).
+    eta = X.to_numpy() @ m.coefficients + m.intercept
+    p_file = 1.0 / (1.0 + np.exp(-eta))
+    assert np.max(np.abs(p_file - fit.mean(X))) <= 1e-15
+
+
+def test_logistic_pmml_document_structure_follows_the_standard(tmp_path):
+    import xml.etree.ElementTree as ET
+
+    X, y = _spector()
+    fit = lt.logistic(X, y)
+    path = tmp_path / "logit.pmml"
+    write_pmml(fit, path)
+    ns = {"p": "http://www.dmg.org/PMML-4_4"}
+    root = ET.parse(path).getroot()
+    model = root.find("p:RegressionModel", ns)
+    # From the PMML 4.4 Regression specification: classification with logit normalisation,
+    # one RegressionTable per target category, the last one empty (the reference).
+    assert model.get("functionName") == "classification" and model.get("normalizationMethod") == "logit"
+    tables = model.findall("p:RegressionTable", ns)
+    assert [t.get("targetCategory") for t in tables] == ["1.0", "0.0"]
+    assert len(tables[1]) == 0 and float(tables[1].get("intercept")) == 0.0
+    coefs = {e.get("name"): float(e.get("coefficient")) for e in tables[0].findall("p:NumericPredictor", ns)}
+    assert coefs == dict(zip(fit.names, fit.coefficients.tolist()))
+
+
+def test_logistic_json_round_trip_is_exact(tmp_path):
+    X, y = _spector()
+    fit = lt.logistic(X, y, l2=0.25)
+    path = tmp_path / "logit.json"
+    lt.save(fit, path)
+    back = lt.load(path)
+    assert type(back) is type(fit) and back.kind == "logistic"
+    for name in ("coefficients", "standard_errors", "covariance"):
+        assert np.array_equal(getattr(back, name), getattr(fit, name))
+    assert back.intercept == fit.intercept and back.classes == fit.classes and back.l2 == 0.25
+    assert back.convergence == fit.convergence
+    assert np.array_equal(back.mean(X), fit.mean(X))
+
+
+def test_model_files_of_another_schema_version_or_damaged_are_refused(tmp_path):
+    X, y = _spector()
+    path = tmp_path / "logit.json"
+    lt.save(lt.logistic(X, y), path)
+    text = path.read_text()
+    (tmp_path / "v9.json").write_text(text.replace('"schema_version": 1', '"schema_version": 9'))
+    with pytest.raises(InputError, match="schema version 9"):
+        lt.load(tmp_path / "v9.json")
+    (tmp_path / "cut.json").write_text(text[: len(text) // 2])
+    with pytest.raises(InputError, match="not valid JSON"):
+        lt.load(tmp_path / "cut.json")

@@ -1,0 +1,335 @@
+"""``lintools check``: a delivered model file against a refit on a CSV file.
+
+The delivered file is a lintools JSON model file or a PMML 4.4 regression model; which
+one is decided by the content (a JSON object starts with ``{``, XML with ``<``), never by
+the file name.  The refit is the same kind of model (least squares, logistic, softmax)
+with the delivered model's feature names as columns and its target column.  The verdict:
+
+* the delivered coefficients **disagree** with the refit when the Wald test of "delivered
+  = refit" rejects at ``--significance`` (default 0.05), or when ``--max-difference`` is
+  given and the largest absolute difference in predicted probability (for least squares:
+  in the predicted response) on the CSV rows exceeds it;
+* otherwise they **agree** (exit 0); disagreement exits 1, bad input 2.
+"""
+
+from __future__ import annotations
+
+import argparse
+import csv
+import dataclasses
+import sys
+import warnings
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from ._cli_common import CAUTION, Progress, emit_json, implied_words, match_label
+from ._errors import InputError, IterationLimitWarning
+
+DEFAULT_SIGNIFICANCE = 0.05
+
+
+@dataclass(frozen=True)
+class Delivered:
+    """What the check needs from a delivered model file, whatever its format."""
+
+    kind: str
+    names: tuple[str, ...]
+    coefficients: np.ndarray
+    intercept: Any  # None when the model has no intercept
+    classes: tuple
+    positive: Any
+    target: str
+    l2: float | None
+    covariance_type: str | None
+    file_format: str
+    reference: Any = "first"  # softmax: the class pinned at zero (None: symmetric form)
+
+
+def read_delivered(path: str) -> Delivered:
+    """Read a lintools JSON model file or a PMML document, recognised by its first byte."""
+    from .io import load
+    from .pmml import read_pmml
+
+    try:
+        with open(path, "rb") as fh:
+            head = fh.read(256)
+    except OSError as exc:
+        raise InputError(f"cannot read the model file {path!r}: {exc.strerror}") from None
+    head = head.removeprefix(b"\xef\xbb\xbf").lstrip()
+    if head.startswith(b"{"):
+        fit = load(path)
+        if fit.kind not in ("least_squares", "logistic", "softmax"):
+            raise InputError(f"model file {path!r} holds a {fit.kind!r} record, not a fitted model")
+        return Delivered(
+            kind=fit.kind, names=tuple(fit.names), coefficients=np.asarray(fit.coefficients),
+            intercept=fit.intercept if fit.with_intercept else None, classes=tuple(getattr(fit, "classes", ())),
+            positive=getattr(fit, "positive_class", None), target=getattr(fit, "target", "y"), l2=float(fit.l2),
+            covariance_type=getattr(fit, "covariance_type", None), file_format="lintools JSON model file",
+            reference=getattr(fit, "reference_class", "first"),
+        )
+    if head.startswith(b"<"):
+        m = read_pmml(path)
+        reference: Any = "first"
+        if m.kind == "softmax":  # a class whose table is all zero was the reference class
+            zero = [c for k, c in enumerate(m.classes)
+                    if not np.any(np.asarray(m.coefficients)[:, k]) and np.asarray(m.intercept)[k] == 0.0]
+            reference = zero[0] if len(zero) == 1 else "first"
+        return Delivered(
+            kind=m.kind, names=tuple(m.names), coefficients=np.asarray(m.coefficients), intercept=m.intercept,
+            classes=tuple(m.classes), positive=m.classes[0] if m.kind == "logistic" else None, target=m.target,
+            l2=None, covariance_type=None, file_format="PMML 4.4 RegressionModel", reference=reference,
+        )
+    raise InputError(
+        f"{path!r} is neither a lintools JSON model file (starts with '{{') nor a PMML document "
+        "(XML, starts with '<'); pass the delivered model file"
+    )
+
+
+def _header(path: str) -> list[str]:
+    try:
+        with open(path, newline="", encoding="utf-8-sig") as fh:
+            row = next(csv.reader(fh), [])
+    except OSError as exc:
+        raise InputError(f"cannot read {path!r}: {exc.strerror}") from None
+    except (csv.Error, UnicodeDecodeError) as exc:
+        raise InputError(f"{path!r} is not a readable CSV file ({exc})") from None
+    return [h.strip() for h in row]
+
+
+def _columns_for(names: tuple[str, ...], header: list[str], where: str) -> list[str]:
+    """CSV columns behind the delivered names (``col=level`` names come from text column ``col``)."""
+    cols: list[str] = []
+    for name in names:
+        col = name
+        if name not in header and "=" in name and name.split("=", 1)[0] in header:
+            col = name.split("=", 1)[0]
+        if col not in header:
+            raise InputError(
+                f"the delivered model's feature '{name}' is not a column of {where!r} (its columns: "
+                f"{', '.join(header)}); the refit needs every feature the model uses"
+            )
+        if col not in cols:
+            cols.append(col)
+    return cols
+
+
+def read_refit_data(args: argparse.Namespace, d: Delivered) -> tuple[Any, np.ndarray, str]:
+    """Read the target and the delivered features; return (table, X in delivered order, target)."""
+    from .table import read_table
+
+    target = args.target or d.target
+    header = _header(args.csv)
+    cols = _columns_for(d.names, header, args.csv)
+    kwargs = dict(target=target, features=cols, weights=args.weights, drop_missing=args.drop_missing)
+    table = read_table(args.csv, **kwargs)
+    extra = [n for n in table.names if n not in d.names]
+    if extra:  # a text column whose reference level differs from the delivered model's
+        refs = {}
+        for col, ref in table.reference_levels.items():
+            levels = [ref] + [n.split("=", 1)[1] for n in table.names if n.startswith(col + "=")]
+            absent = [lv for lv in levels if f"{col}={lv}" not in d.names]
+            if len(absent) == 1:
+                refs[col] = absent[0]
+        table = read_table(args.csv, **kwargs, reference_levels=refs)
+    missing = [n for n in d.names if n not in table.names]
+    extra = [n for n in table.names if n not in d.names]
+    if missing or extra:
+        raise InputError(
+            f"the columns of {args.csv!r} do not give the delivered features: "
+            + (f"no column for {missing}" if missing else "")
+            + ("; " if missing and extra else "")
+            + (f"levels without a delivered coefficient {extra}" if extra else "")
+            + "; the text columns must have the levels the delivered model was fitted on"
+        )
+    order = [table.names.index(n) for n in d.names]
+    return table, table.X[:, order], target
+
+
+def _refit(d: Delivered, table: Any, X: np.ndarray, target: str, args: argparse.Namespace, progress: Progress) -> Any:
+    import lintools
+
+    l2 = args.l2 if args.l2 is not None else (d.l2 or 0.0)
+    with_b = d.intercept is not None
+    if d.kind == "least_squares":
+        if not all(isinstance(v, (int, float)) for v in table.target):
+            raise InputError(f"target column '{target}' holds text; a least-squares model needs numbers")
+        fit = lintools.least_squares(
+            X, np.array(table.target, dtype=float), weights=table.weights, intercept=with_b, l2=l2,
+            covariance=args.covariance or d.covariance_type or "classical", names=d.names,
+        )
+    elif d.kind == "logistic":
+        labels = sorted(set(table.target), key=str)
+        if len(labels) != 2:
+            raise InputError(f"target column '{target}' has {len(labels)} distinct labels; a logistic model needs two")
+        if args.positive is not None:
+            positive = match_label(args.positive, labels, "--positive")
+        else:
+            positive = _positive_in(d.positive, labels)
+        fit = lintools.logistic(
+            X, list(table.target), weights=table.weights, intercept=with_b, l2=l2, solver=args.solver,
+            names=d.names, on_iteration=progress, positive=positive,
+        )
+    else:
+        reference = d.reference
+        if reference not in ("first", None):
+            reference = match_label(str(reference), sorted(set(table.target), key=str), "the model's reference class")
+        fit = lintools.softmax(
+            X, list(table.target), weights=table.weights, intercept=with_b, l2=l2, reference=reference,
+            solver=args.solver, names=d.names, on_iteration=progress,
+        )
+    return dataclasses.replace(fit, target=target)
+
+
+def _positive_in(positive: Any, labels: list) -> Any:
+    """The CSV label that stands for the delivered model's positive class."""
+    for label in labels:
+        if str(label) == str(positive):
+            return label
+    if isinstance(positive, (bool, np.bool_)) and set(labels) == {0, 1}:
+        return int(positive)
+    shown = ", ".join(repr(str(v)) for v in labels)
+    raise InputError(
+        f"the delivered model gives the probability of {str(positive)!r}, which is not a label of the "
+        f"target column ({shown}); name the positive label with --positive"
+    )
+
+
+def _softmax_delivered(d: Delivered, fit: Any) -> tuple[np.ndarray, Any, str | None]:
+    """Delivered softmax columns in the refit's class order.
+
+    The comparison itself re-expresses them in the refit's parametrisation (reference
+    column subtracted, or intercepts centred), which leaves the probabilities unchanged.
+    """
+    B = np.asarray(d.coefficients, dtype=float)
+    b = None if d.intercept is None else np.asarray(d.intercept, dtype=float)
+    order = []
+    for c in fit.classes:
+        hits = [k for k, dc in enumerate(d.classes) if str(dc) == str(c)]
+        if len(hits) != 1:
+            raise InputError(f"the delivered model has no class {str(c)!r} (its classes: {list(map(str, d.classes))})")
+        order.append(hits[0])
+    if len(d.classes) != len(fit.classes):
+        raise InputError(f"the delivered model has {len(d.classes)} classes but the target column has "
+                         f"{len(fit.classes)} ({', '.join(map(str, fit.classes))})")
+    note = None
+    ref = getattr(fit, "reference_class", None)
+    if ref is not None and (np.any(B[:, order[fit.classes.index(ref)]]) or
+                            (b is not None and b[order[fit.classes.index(ref)]] != 0.0)):
+        note = (f"the delivered softmax coefficients are compared relative to the class {str(ref)!r} "
+                "(its column subtracted from every column; the probabilities are unchanged)")
+    return B[:, order], None if b is None else b[order], note
+
+
+def run_check(args: argparse.Namespace) -> int:
+    """The ``check`` subcommand."""
+    from .crosscheck import compare_coefficients, implied_l2
+
+    if not 0.0 < args.significance < 1.0:
+        raise InputError(f"--significance must lie strictly between 0 and 1; got {args.significance!r}")
+    if args.max_difference is not None and not args.max_difference >= 0.0:
+        raise InputError(f"--max-difference must be a number >= 0; got {args.max_difference!r}")
+    d = read_delivered(args.model)
+    table, X, target = read_refit_data(args, d)
+    progress = Progress(args.quiet, "refit")
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        fit = _refit(d, table, X, target, args, progress)
+    coef, intercept, note = d.coefficients, d.intercept, None
+    if d.kind == "softmax":
+        coef, intercept, note = _softmax_delivered(d, fit)
+    y = np.array(table.target, dtype=float) if d.kind == "least_squares" else list(table.target)
+    cmp = compare_coefficients(fit, coef, intercept, X=X, y=y, weights=table.weights)
+
+    implied = None
+    if d.kind in ("least_squares", "logistic") and np.any(coef):
+        yy = y if d.kind == "least_squares" else np.array([v == fit.positive_class for v in y])
+        implied = implied_l2(X, yy, coef, intercept, model=d.kind, weights=table.weights)
+    total = float(table.weights.sum()) if table.weights is not None else float(X.shape[0])
+    implied_text = None if implied is None else implied_words(implied, total)
+
+    reasons = []
+    if cmp.wald_p_value < args.significance:
+        reasons.append(f"the Wald test rejects 'delivered = refit' at significance {args.significance:g} "
+                       f"(p {cmp.wald_p_value:.3g})")
+    gap = cmp.max_abs_prediction_difference
+    if args.max_difference is not None and gap is not None and gap > args.max_difference:
+        what = "response" if d.kind == "least_squares" else "probability"
+        reasons.append(f"the largest difference in predicted {what} ({gap:.3g}) exceeds --max-difference "
+                       f"{args.max_difference:g}")
+    not_converged = (not fit.convergence.converged) or any(
+        issubclass(w.category, IterationLimitWarning) for w in caught)
+    agree = not reasons and not not_converged
+
+    if args.json:
+        emit_json({
+            "model": args.model, "format": d.file_format, "kind": d.kind, "target": target, "data": args.csv,
+            "rows": int(X.shape[0]), "dropped_rows": table.dropped, "refit": fit.to_dict(),
+            "comparison": cmp, "implied_l2": implied, "implied_l2_words": implied_text, "note": note,
+            "tolerance": {"significance": args.significance, "max_difference": args.max_difference},
+            "agree": agree, "reasons": reasons, "refit_converged": not not_converged,
+            "warnings": [str(w.message) for w in caught], "caution": CAUTION,
+        })
+    else:
+        _print_text(args, d, fit, cmp, implied_text, note, reasons, target, X.shape[0], table.dropped, caught)
+    if not_converged:
+        print("lintools: the refit did not converge; the comparison is not meaningful", file=sys.stderr)
+        return 1
+    return 0 if agree else 1
+
+
+def _print_text(args, d, fit, cmp, implied_text, note, reasons, target, n, dropped, caught) -> None:
+    for w in caught:
+        print(f"warning: {w.message}", file=sys.stderr)
+    print(f"Check of {args.model} ({d.file_format}, {d.kind} model of '{target}')")
+    print(f"against a refit on {args.csv} ({n} rows{f', {dropped} dropped for missing values' if dropped else ''})\n")
+    print("Refit")
+    print(fit.report())
+    print("Delivered minus refit (differences also in refit standard errors)")
+    print(cmp.report())
+    if note:
+        print(f"Note: {note}")
+    if implied_text is not None:
+        print(implied_text)
+    tol = f"significance {args.significance:g} for the Wald test"
+    if args.max_difference is not None:
+        tol += f"; largest prediction difference {args.max_difference:g}"
+    print(f"\nTolerance: {tol}")
+    if reasons:
+        print("Verdict: DISAGREE: " + "; ".join(reasons))
+    else:
+        print("Verdict: AGREE within the tolerance")
+    print(CAUTION)
+
+
+def add_check_parser(sub: Any, common: Any) -> None:
+    """Register the ``check`` subcommand."""
+    p = sub.add_parser(
+        "check",
+        help="check a delivered model file (lintools JSON or PMML) against a refit on a CSV file",
+        description=(
+            "Refit the delivered model's kind of model on the CSV file (its feature names as columns, its "
+            "target column), and compare: per-coefficient differences in standard errors, the Wald test of "
+            "'delivered = refit', the score test at the delivered coefficients, and prediction differences. "
+            "Exit 0 when they agree, 1 when they disagree (the Wald test rejects at --significance, or the "
+            "largest prediction difference exceeds --max-difference) or the refit does not converge, "
+            "2 for bad input."
+        ),
+    )
+    p.add_argument("model", help="the delivered model file: lintools JSON or PMML 4.4 (recognised by content)")
+    p.add_argument("csv", help="CSV file with a header line: the development data")
+    p.add_argument("--target", help="the response column (default: the target named in the model file)")
+    p.add_argument("--positive", help="logistic: the label whose probability the model gives (default: from the file)")
+    p.add_argument("--weights", help="column of case weights")
+    p.add_argument("--l2", type=float, help="ridge strength of the refit (default: the model file's, else 0)")
+    p.add_argument("--covariance", help="least squares: classical, HC0, HC1, HC2 or HC3 (default: the file's)")
+    p.add_argument("--solver", default="newton", help="logistic and softmax: newton, lbfgs or gradient")
+    p.add_argument("--significance", type=float, default=DEFAULT_SIGNIFICANCE,
+                   help="disagree when the Wald test's p-value is below this (default 0.05)")
+    p.add_argument("--max-difference", type=float, default=None,
+                   help="also disagree when the largest absolute difference in predicted probability "
+                        "(least squares: predicted response) on the CSV rows exceeds this (default: not used)")
+    p.add_argument("--drop-missing", action="store_true", help="drop lines with missing values instead of stopping")
+    common(p)
+    p.set_defaults(run=run_check)
