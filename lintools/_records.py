@@ -36,7 +36,10 @@ class Convergence:
     iterations : int
         Iterations (for direct solvers: 1 plus refinement steps).
     gradient_norm : float
-        Max-abs gradient of the objective at the returned answer.
+        Max-abs gradient of the objective at the returned answer, for iterative fits with
+        respect to the intercept and the coefficients of the standardised columns (each
+        slope entry divided by its column's weighted standard deviation): the quantity
+        the stopping rule compares with ``tol``, unchanged when a column is rescaled.
     objective : float
         Value of the minimised objective at the answer.
     solver : str

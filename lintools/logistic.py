@@ -295,7 +295,10 @@ def logistic(
         search, or accelerated gradient with backtracking and restarts.  All stop on the
         same rule; first-order solvers usually need a larger ``max_iter``.
     tol : float
-        Stop when the max-abs gradient of the objective (caller's coordinates) is <= tol.
+        Stop when the max-abs gradient of the objective, with respect to the intercept
+        and the coefficients of the standardised columns (slope entries divided by the
+        column's weighted standard deviation, so the rule does not depend on units), is
+        <= tol.
     max_iter : int
         Iteration limit; a fit that reaches it is marked ``converged=False`` and an
         :class:`lintools.IterationLimitWarning` is issued.

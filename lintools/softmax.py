@@ -170,7 +170,10 @@ def softmax(
         As for :func:`lintools.logistic`; first-order solvers usually need a larger
         ``max_iter``.
     tol : float
-        Stop when the max-abs gradient of the objective (caller's coordinates) is <= tol.
+        Stop when the max-abs gradient of the objective, with respect to the intercept
+        and the coefficients of the standardised columns (slope entries divided by the
+        column's weighted standard deviation, so the rule does not depend on units), is
+        <= tol.
     max_iter : int
         Iteration limit; reaching it gives ``converged=False`` and an
         :class:`lintools.IterationLimitWarning`.

@@ -14,9 +14,14 @@ see only this interface::
                          decreases far below the rounding of F are still resolved
     to_original(z)       the parameters in the caller's coordinates (a linear map)
 
-The stopping rule is ``max |original_gradient| <= tol``: the gradient of the objective in
-the caller's coordinates at the returned answer (what ``Convergence.gradient_norm``
-reports), whatever coordinates the solver worked in.
+The stopping rule is ``Evaluation.gradient_norm <= tol``: the max-abs gradient of the
+objective with respect to the intercept and the coefficients of the standardised columns
+(``x_j / s_j``, ``s_j`` the weighted standard deviation), at the returned answer (what
+``Convergence.gradient_norm`` reports), whatever coordinates the solver worked in.  It is
+the caller's gradient with each slope entry divided by ``s_j``; rescaling a column of X
+leaves it unchanged, so features of size 1e-150 or 1e150 neither stop the fit at the
+start nor keep it from ever stopping.  For columns of unit spread it is the caller's
+gradient itself.
 
 :class:`LinearModelProblem` is the problem for ``eta = offset + b + X beta`` (or, for a
 loss with ``K`` outputs, ``eta = offset + 1 b' + X B`` with ``z`` the (p+1, K) array
@@ -120,16 +125,23 @@ class SolverResult:
 
 @dataclass(frozen=True)
 class Evaluation:
-    """Objective, gradient in solver coordinates, gradient in the caller's, and eta."""
+    """Objective, gradient in solver coordinates, gradient in the caller's, and eta.
+
+    ``unit`` (optional) converts the caller's gradient into the gradient with respect to
+    the intercept and the coefficients of the standardised columns ``x_j / s_j``
+    (``unit_j = 1 / s_j``); ``gradient_norm``, the quantity of the stopping rule, is the
+    max-abs of that product, which does not change when a column is rescaled.
+    """
 
     value: float
     gradient: np.ndarray
     original_gradient: np.ndarray
     eta: Any
+    unit: np.ndarray | None = None
 
     @property
     def gradient_norm(self) -> float:
-        g = self.original_gradient
+        g = self.original_gradient if self.unit is None else self.original_gradient * self.unit
         return float(np.max(np.abs(g))) if g.size else 0.0
 
 
@@ -248,6 +260,8 @@ class LinearModelProblem:
         # a column whose spread is rounding noise around its centre is treated as constant
         self.s = np.where((s > 1e-13 * np.abs(self.c)) & (s > 0) & np.isfinite(s), s, 1.0)
         self.log_det_T = -self.K * float(np.sum(np.log(self.s)))  # log |d theta / d z|
+        # stopping rule: caller's gradient per standardised column (see the module doc)
+        self.unit = np.repeat(np.concatenate([np.ones(self.off), 1.0 / self.s]), self.K)
         self._last: tuple[Any, Any] | None = None  # (z, eta) of the last evaluation
         self._sketch: tuple[np.ndarray, Any, float] | None = None  # rows, sub-problem, scale
 
@@ -405,7 +419,7 @@ class LinearModelProblem:
             gz = np.concatenate([np.atleast_1d(Gb), np.ravel(gz_slopes)]) if self.K == 1 else np.vstack([Gb, gz_slopes]).ravel()
         else:
             original, gz = np.ravel(Gbeta).astype(float), np.ravel(gz_slopes).astype(float)
-        return Evaluation(float(f), gz, original, eta)
+        return Evaluation(float(f), gz, original, eta, self.unit)
 
     # ---- curvature ----------------------------------------------------------------------
     def _blocks(self, rows: int | None = None):
@@ -481,7 +495,7 @@ class LinearModelProblem:
         return pen.ravel()
 
     def gradient_rounding(self, z: np.ndarray) -> float:
-        """Estimated float64 rounding level of the max-abs original gradient at ``z``.
+        """Estimated float64 rounding level of ``Evaluation.gradient_norm`` at ``z``.
 
         ``eps * max_j sum_i |a_ij| (|r_i| + W_i e_i)`` with ``a_i = (1, x_i)``, ``r`` the
         derivative in eta, ``W`` the curvature and ``e_i = |x_i||beta| + |b| + |o_i|`` the
@@ -502,6 +516,7 @@ class LinearModelProblem:
             e[sl] += Ab @ np.abs(beta)
             out += Ab.T @ (r[sl] + W[sl] * e[sl])
         first = float(np.sum(r + W * e)) if self.intercept else 0.0
+        out /= self.s  # the stopping rule's scale-free units (see the module doc)
         return EPS * max(first, float(out.max()) if out.size else 0.0)
 
     def fisher_information(self, z: np.ndarray) -> np.ndarray:
@@ -658,7 +673,8 @@ class AffineProblem:
 
     def evaluate(self, u: np.ndarray) -> Evaluation:
         ev = self.base.evaluate(self.embed(u))
-        return Evaluation(ev.value, self.E.T @ ev.gradient, self._kept(ev.original_gradient), ev.eta)
+        unit = None if ev.unit is None else self._kept(ev.unit)
+        return Evaluation(ev.value, self.E.T @ ev.gradient, self._kept(ev.original_gradient), ev.eta, unit)
 
     def hessian(self, u: np.ndarray) -> np.ndarray:
         return self.base.hessian(self.embed(u), E=self.E)

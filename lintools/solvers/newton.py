@@ -35,6 +35,8 @@ ARMIJO = 1e-4
 MAX_HALVINGS = 60
 #: Iterations in a row without a decrease beyond rounding before the solver gives up.
 STALL_LIMIT = 3
+#: A fall of the objective below this times its size counts as rounding noise.
+ROUNDING = 1e3 * float(np.finfo(float).eps)
 #: Large problems use a row-subsample Hessian (Newton sketch) until the max-abs gradient
 #: is below this fraction of its starting value; exact Hessians finish the job.
 SKETCH_UNTIL = 1e-3
@@ -119,7 +121,9 @@ def newton(
         if accepted:
             it += 1
             step = float(np.max(np.abs(problem.to_original(z_new) - problem.to_original(z)))) if z.size else 0.0
-            decreased = change < 0 or ev_new.gradient_norm < 0.5 * gnorm
+            # progress: the gradient halves (as it must near the optimum) or the objective
+            # falls by more than its own rounding; anything else, three times, is a stall
+            decreased = ev_new.gradient_norm < 0.5 * gnorm or change < -ROUNDING * abs(ev.value)
             stall = 0 if decreased else stall + 1
             z, ev = z_new, ev_new
             if on_iteration is not None:
