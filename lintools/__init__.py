@@ -18,6 +18,7 @@ from ._records import LogisticFit
 from .logistic import logistic
 from ._records import SoftmaxFit
 from .softmax import softmax
+from .blocks import least_squares_blocks, logistic_blocks
 from .separation import MultinomialSeparationCheck, SeparationCheck, check_separation
 from .calibration import BrierScore, brier, cross_entropy
 from .calibration_bins import ReliabilityTable, calibration_error, reliability
@@ -66,6 +67,8 @@ __all__ = [
     "logistic",
     "SoftmaxFit",
     "softmax",
+    "least_squares_blocks",
+    "logistic_blocks",
     "MultinomialSeparationCheck",
     "SeparationCheck",
     "check_separation",

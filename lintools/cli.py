@@ -49,13 +49,11 @@ def _fit_table(table: Any, args: argparse.Namespace, progress: Progress) -> Any:
         )
     import lintools
 
-    kind = {"logistic": "logistic", "softmax": "softmax"}[args.model]
-    if not hasattr(lintools, kind):
-        raise InputError(f"--model {args.model} is not available in this build of lintools")
-    fn = getattr(lintools, kind)
+    fn = getattr(lintools, args.model)
     return fn(
-        table.X, list(table.target), weights=table.weights, l2=args.l2, solver=args.solver,
-        names=table.names, on_iteration=progress, **({"positive": _positive(table, args)} if kind == "logistic" else {}),
+        table.X, list(table.target), weights=table.weights, l2=args.l2, solver=args.solver, tol=args.tol,
+        max_iter=args.max_iter, names=table.names, on_iteration=progress,
+        **({"positive": _positive(table, args)} if args.model == "logistic" else {}),
     )
 
 
@@ -155,6 +153,10 @@ def build_parser() -> argparse.ArgumentParser:
     fit.add_argument("--weights", help="column of case weights")
     fit.add_argument("--covariance", default="classical", help="linear model: classical, HC0, HC1, HC2 or HC3")
     fit.add_argument("--solver", default="newton", help="logistic and softmax: newton, lbfgs or gradient")
+    fit.add_argument("--tol", type=float, default=1e-10,
+                     help="logistic and softmax: stop when the max-abs (scale-free) gradient is below this (default 1e-10)")
+    fit.add_argument("--max-iter", type=int, default=100,
+                     help="logistic and softmax: iteration limit (default 100; the gradient solvers need more)")
     fit.add_argument("--drop-missing", action="store_true", help="drop lines with missing values instead of stopping")
     fit.add_argument("--positive", help="logistic: the label whose probability is modelled (default: the larger)")
     fit.add_argument("--save", help="write the fitted model to this JSON model file")

@@ -84,6 +84,19 @@ class CoefficientComparison:
         return "\n".join(lines)
 
 
+def _numbers(value: Any, name: str, *, vector: bool = False) -> np.ndarray:
+    """``value`` as a finite float array, or an InputError naming ``name``."""
+    try:
+        arr = np.asarray(value, dtype=float)
+    except (TypeError, ValueError):
+        raise InputError(f"{name} holds a value that is not a number; pass numbers (one per coefficient)") from None
+    if vector and arr.ndim == 0:
+        raise InputError(f"{name} is a single number; pass a 1-D array with one entry per column of X")
+    if not np.all(np.isfinite(arr)):
+        raise InputError(f"{name} holds a non-finite value (NaN or inf); delivered values must be finite numbers")
+    return arr
+
+
 def _align(fit: Any, coefficients: Any, intercept: Any, names: Any) -> tuple[np.ndarray, np.ndarray]:
     """Delivered (p,) or (p, K) slopes in the refit's order, and the delivered intercept."""
     shape = np.shape(fit.coefficients)
@@ -91,7 +104,7 @@ def _align(fit: Any, coefficients: Any, intercept: Any, names: Any) -> tuple[np.
         if isinstance(coefficients, Mapping):
             given = {str(k): v for k, v in coefficients.items()}
         else:
-            arr = np.asarray(coefficients, dtype=float)
+            arr = _numbers(coefficients, "coefficients", vector=True)
             if len(names) != arr.shape[0]:
                 raise InputError(f"names has {len(names)} entries but coefficients has {arr.shape[0]} rows")
             given = {str(n): arr[i] for i, n in enumerate(names)}
@@ -109,15 +122,15 @@ def _align(fit: Any, coefficients: Any, intercept: Any, names: Any) -> tuple[np.
                 + (f"not in the refit {extra}" if extra else "")
                 + "; rename or refit with the same columns"
             )
-        coef = np.array([np.asarray(given[n], dtype=float) for n in fit.names])
+        coef = np.array([_numbers(given[n], f"coefficient '{n}'") for n in fit.names])
     else:
-        coef = np.asarray(coefficients, dtype=float)
+        coef = _numbers(coefficients, "coefficients")
     if coef.shape != shape:
         raise InputError(f"coefficients has shape {coef.shape} but the refit's is {shape}; pass one per refit coefficient ({', '.join(fit.names)})")
     if not np.all(np.isfinite(coef)):
         raise InputError("coefficients holds a non-finite value; a delivered model must be finite")
     if intercept is not None:
-        intercept = np.asarray(intercept, dtype=float)
+        intercept = _numbers(intercept, "intercept")
         if intercept.shape != np.shape(fit.intercept):
             raise InputError(f"intercept has shape {intercept.shape} but the refit's is {np.shape(fit.intercept)}")
         if not fit.with_intercept:
@@ -170,6 +183,9 @@ def compare_coefficients(
     -------
     CoefficientComparison
     """
+    if getattr(fit, "kind", None) not in ("least_squares", "logistic", "softmax") or not hasattr(fit, "covariance"):
+        raise InputError(f"fit must be a lintools fit record (from least_squares, logistic or softmax); "
+                         f"got {type(fit).__name__}")
     coef, b_deliv = _align(fit, coefficients, intercept, names)
     theta0, idx = _free_vector(fit, coef, b_deliv)
     theta_hat, _ = _free_vector(fit, np.asarray(fit.coefficients), None if b_deliv is None else fit.intercept)
@@ -288,7 +304,9 @@ def implied_l2(
     Xa, _ = as_matrix(X, "X")
     n = Xa.shape[0]
     w = as_weights(weights, n)
-    beta = np.asarray(coefficients, dtype=float)
+    beta = _numbers(coefficients, "coefficients", vector=True)
+    if intercept is not None:
+        intercept = _numbers(intercept, "intercept")
     if beta.shape[0] != Xa.shape[1]:
         raise InputError(f"coefficients has {beta.shape[0]} rows but X has {Xa.shape[1]} columns")
     if not np.any(beta):

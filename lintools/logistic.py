@@ -163,6 +163,15 @@ def _check_flag(value: Any, name: str) -> bool:
     return bool(value)
 
 
+def check_parameters_and_rows(k: int, rows: int) -> None:
+    """Without a penalty the design needs at least as many rows as parameters."""
+    if k > rows:
+        raise InputError(
+            f"X has {k} columns with the intercept but only {rows} rows with positive weight; the "
+            "unpenalised estimate is not unique: add rows, drop columns, or set l2 > 0"
+        )
+
+
 def _constant_columns(Xa: np.ndarray, use: np.ndarray, names: tuple[str, ...]) -> None:
     rows = Xa if use.all() else Xa[use]
     const = np.flatnonzero(np.max(rows, axis=0) == np.min(rows, axis=0))
@@ -371,6 +380,8 @@ def logistic(
     if successes <= 0 or successes >= total:
         which = "no successes" if successes <= 0 else "no failures"
         raise InputError(f"y has {which} on the rows with positive weight; a logistic model needs both outcomes")
+    if lam == 0:
+        check_parameters_and_rows(p + int(intercept), int(np.count_nonzero(v > 0)))
     if intercept and p and lam == 0:
         _constant_columns(Xa, v > 0, names_t)
 

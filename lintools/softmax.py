@@ -45,6 +45,7 @@ from .logistic import (
     _labels,
     _rank_message,
     _target_name,
+    check_parameters_and_rows,
     convergence_record,
     run_with_check,
 )
@@ -222,6 +223,8 @@ def softmax(
         raise InputError(f"class {classes[k]!r} of y has zero total weight; its probability would be 0: "
                          "drop those rows' class from y, or give them positive weights")
     off_full = None if offset is None else as_offset(offset, n, K)
+    if lam == 0:
+        check_parameters_and_rows(p + int(intercept), int(np.count_nonzero(w > 0)))
     if intercept and p and lam == 0:
         _constant_columns(Xa, w > 0, names_t)
 

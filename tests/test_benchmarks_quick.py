@@ -14,3 +14,18 @@ def test_benchmark_harness_quick_mode_runs():
     )
     assert proc.returncode == 0, proc.stderr
     assert "lintools" in proc.stdout and "Gram-eq" in proc.stdout
+
+
+def test_out_of_core_benchmark_quick_mode_runs():
+    # the out-of-core benchmark in its tiny mode: it streams a memory-mapped file through
+    # both blocked fits and agrees with the in-memory fits (no timing is asserted)
+    proc = subprocess.run(
+        [sys.executable, str(ROOT / "benchmarks" / "out_of_core.py"), "--quick"],
+        capture_output=True, text=True, timeout=300,
+    )
+    assert proc.returncode == 0, proc.stderr
+    rows = [line.split() for line in proc.stdout.splitlines() if line.startswith(("least squares ", "logistic "))]
+    assert len(rows) == 4, proc.stdout
+    for row in rows:
+        assert min(float(v) for v in row[-3:]) >= 10, row  # digits of agreement (LRE)
+    assert "all converged: True" in proc.stdout

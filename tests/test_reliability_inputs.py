@@ -177,9 +177,44 @@ ROWS: list[Bad] = [
     bad("logistic-offset-length", "logistic", lambda d: lt.logistic(X, YB, offset=np.zeros(3)),
         "offset has 3 entries but X has 30 rows", "one value per row"),
     bad("logistic-more-parameters-than-rows", "logistic",
-        lambda d: lt.logistic(RNG.normal(size=(4, 6)), [0, 1, 0, 1]), "X", "l2 > 0",
-        xfail="logistic.py _rank_message / linalg.aliased_columns: p > n raises a NumPy broadcast "
-              "ValueError instead of an InputError"),
+        lambda d: lt.logistic(RNG.normal(size=(4, 6)), [0, 1, 0, 1]), "X has 7 columns", "set l2 > 0"),
+    # ------------------------------------------------------------------------- softmax
+    bad("softmax-one-class", "softmax", lambda d: lt.softmax(X, np.zeros(N)), "y has only one class",
+        "needs at least two"),
+    bad("softmax-symmetric-without-l2", "softmax", lambda d: lt.softmax(X, Y3, reference=None),
+        "reference=None (the symmetric form) with l2 = 0", "pass l2 > 0"),
+    bad("softmax-unknown-reference", "softmax", lambda d: lt.softmax(X, Y3, reference=7), "reference=7",
+        "name one of the classes"),
+    bad("softmax-solver", "softmax", lambda d: lt.softmax(X, Y3, solver="sgd"), "solver='sgd'",
+        "is not one of 'newton'"),
+    bad("softmax-offset-shape", "softmax", lambda d: lt.softmax(X, Y3, offset=np.zeros(N)), "offset has shape",
+        "one column per class"),
+    bad("softmax-negative-weights", "softmax", lambda d: lt.softmax(X, Y3, weights=-np.ones(N)),
+        "weights has a negative value", ">= 0"),
+    bad("softmax-nan-in-X", "softmax", lambda d: lt.softmax(nan_at(X, 4, 1), Y3),
+        "X has a non-finite value (nan) at row 4, column 1", "remove or impute"),
+    bad("softmax-length", "softmax", lambda d: lt.softmax(X, Y3[:-1]), "y has 29 labels", "one label per row"),
+    bad("softmax-more-parameters-than-rows", "softmax", lambda d: lt.softmax(RNG.normal(size=(3, 5)), [0, 1, 2]),
+        "X has 6 columns", "set l2 > 0"),
+    bad("softmax-zero-weight-class", "softmax", lambda d: lt.softmax(X, Y3, weights=(Y3 != 2).astype(float)),
+        "class 2 of y has zero total weight", "positive weights"),
+    bad("softmax-bool-l2", "softmax", lambda d: lt.softmax(X, Y3, l2=True), "l2", ">= 0"),
+    # ------------------------------------------------------------------------- blocks
+    bad("least_squares_blocks-no-blocks", "least_squares_blocks", lambda d: lt.least_squares_blocks(lambda: iter([])),
+        "yielded no blocks", "at least one"),
+    bad("least_squares_blocks-not-callable", "least_squares_blocks", lambda d: lt.least_squares_blocks(5),
+        "source must be a function of no arguments", "fresh iterator"),
+    bad("least_squares_blocks-columns-change", "least_squares_blocks",
+        lambda d: lt.least_squares_blocks(lambda: iter([(X, YL), (X[:, :1], YL)])), "block 1: X has 1 columns",
+        "same columns in the same order"),
+    bad("logistic_blocks-three-labels", "logistic_blocks", lambda d: lt.logistic_blocks(lambda: iter([(X, Y3)])),
+        "block 0: y has a third label", "exactly two labels"),
+    bad("logistic_blocks-inf-in-X", "logistic_blocks",
+        lambda d: lt.logistic_blocks(lambda: iter([(np.where(np.arange(N)[:, None] == 7, np.inf, X), YB)])),
+        "block 0", "remove or impute"),
+    bad("logistic_blocks-negative-weights", "logistic_blocks",
+        lambda d: lt.logistic_blocks(lambda: iter([(X, YB, -np.ones(N))])), "block 0: weights has a negative value",
+        ">= 0"),
     # --------------------------------------------------------------- check_separation
     bad("check_separation-one-class", "check_separation", lambda d: lt.check_separation(X, np.ones(N)),
         "y has only one class", "needs both outcomes"),
@@ -396,14 +431,11 @@ ROWS: list[Bad] = [
         lambda d: lt.compare_coefficients(LIN, [1.0, 2.0], X=X[:, :1]), "X has 1 columns",
         "pass the same columns"),
     bad("compare_coefficients-text", "compare_coefficients", lambda d: lt.compare_coefficients(LIN, ["a", "b"]),
-        "coefficients", "number",
-        xfail="crosscheck.py _align: np.asarray(coefficients, dtype=float) lets a bare ValueError escape"),
+        "coefficients", "number"),
     bad("compare_coefficients-intercept-text", "compare_coefficients",
-        lambda d: lt.compare_coefficients(LIN, [1.0, 2.0], intercept="a"), "intercept", "number",
-        xfail="crosscheck.py _align: np.asarray(intercept, dtype=float) lets a bare ValueError escape"),
+        lambda d: lt.compare_coefficients(LIN, [1.0, 2.0], intercept="a"), "intercept", "number"),
     bad("compare_coefficients-not-a-fit", "compare_coefficients",
-        lambda d: lt.compare_coefficients("fit", [1.0, 2.0]), "fit", "lintools fit record",
-        xfail="crosscheck.py compare_coefficients: a non-record fit raises AttributeError"),
+        lambda d: lt.compare_coefficients("fit", [1.0, 2.0]), "fit", "lintools fit record"),
     # --------------------------------------------------------------------- implied_l2
     bad("implied_l2-model", "implied_l2", lambda d: lt.implied_l2(X, YB, [1.0, 1.0], model="poisson"),
         "model='poisson'", "is not one of 'least_squares', 'logistic'"),
@@ -413,16 +445,13 @@ ROWS: list[Bad] = [
         "coefficients has 1 rows but X has 2 columns", "columns"),
     bad("implied_l2-three-labels", "implied_l2", lambda d: lt.implied_l2(X, Y3, [1.0, 1.0]),
         "y has 3 distinct labels", "exactly two"),
-    bad("implied_l2-text", "implied_l2", lambda d: lt.implied_l2(X, YB, ["a", "b"]), "coefficients", "number",
-        xfail="crosscheck.py implied_l2: np.asarray(coefficients, dtype=float) lets a bare ValueError escape"),
+    bad("implied_l2-text", "implied_l2", lambda d: lt.implied_l2(X, YB, ["a", "b"]), "coefficients", "number"),
     bad("implied_l2-nan-coefficient", "implied_l2", lambda d: lt.implied_l2(X, YB, [np.nan, 1.0]),
-        "coefficients", "finite",
-        xfail="crosscheck.py implied_l2: a NaN coefficient silently returns l2=nan"),
+        "coefficients", "finite"),
     bad("implied_l2-scalar-coefficients", "implied_l2", lambda d: lt.implied_l2(X, YB, 1.0), "coefficients",
-        "1-D", xfail="crosscheck.py implied_l2: a scalar raises IndexError"),
+        "1-D"),
     bad("implied_l2-intercept-text", "implied_l2", lambda d: lt.implied_l2(X, YB, [1.0, 1.0], intercept="a"),
-        "intercept", "number",
-        xfail="crosscheck.py / losses.unpenalised_gradient: float(intercept) lets a bare ValueError escape"),
+        "intercept", "number"),
     # --------------------------------------------------------------------- read_table
     bad("read_table-missing-file", "read_table", lambda d: read_table(d / "none.csv", target="y"), "none.csv",
         "No such file"),
@@ -499,7 +528,7 @@ ROWS: list[Bad] = [
 ]
 
 #: public functions whose rows other engineers are adding (see the module docstring)
-PENDING = {"softmax", "least_squares_blocks", "logistic_blocks"}
+PENDING: set[str] = set()
 #: the public callables of the battery beyond ``lintools.__all__``
 EXTRA_FUNCTIONS = {
     "read_table", "read_pmml", "write_pmml", "LinearFit.mean", "LinearFit.linear_predictor", "LogisticFit.mean",
@@ -523,24 +552,23 @@ def test_bad_input_raises_input_error_naming_argument_and_remedy(row: Bad, tmp_p
     assert row.remedy in message, message
 
 
-@pytest.mark.parametrize("row", KNOWN_DEFECTS, ids=[r.id for r in KNOWN_DEFECTS])
-def test_known_defect_is_still_there(row: Bad, tmp_path: Path) -> None:
-    """A strict expected failure: passes while the defect named in ``row.xfail`` is there,
-    fails once it is fixed (then delete the row's ``xfail=``).
-
-    Not ``pytest.mark.xfail(strict=True)``: tests/conftest.py counts an xfail as a skip and
-    fails the whole run, so the strictness is written out here instead.
+def test_known_defects_are_still_there(tmp_path: Path) -> None:
+    """A strict expected failure for each row with ``xfail=`` (none today): it passes while
+    the defect named there is present and fails once it is fixed (then delete the row's
+    ``xfail=``).  Not ``pytest.mark.xfail(strict=True)``: tests/conftest.py counts an xfail
+    as a skip and fails the whole run, so the strictness is written out here instead.
     """
     # source: common practice (RULES.md / DESIGN.md error contract)
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore")
-        try:
-            row.call(tmp_path)
-        except InputError as exc:
-            if row.argument in str(exc) and row.remedy in str(exc):
-                pytest.fail(f"fixed ({row.xfail}); remove xfail= from row {row.id!r}")
-        except Exception:  # noqa: BLE001 - the defect: an exception outside the family
-            pass
+    for row in KNOWN_DEFECTS:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            try:
+                row.call(tmp_path)
+            except InputError as exc:
+                if row.argument in str(exc) and row.remedy in str(exc):
+                    pytest.fail(f"fixed ({row.xfail}); remove xfail= from row {row.id!r}")
+            except Exception:  # noqa: BLE001 - the defect: an exception outside the family
+                pass
 
 
 def test_battery_is_large_and_ids_unique() -> None:

@@ -122,15 +122,18 @@ def test_command_line_exit_status_shows_non_convergence(tmp_path: Path) -> None:
     assert json.loads(ok.stdout)["fit"]["convergence"]["converged"] is True
 
 
-def test_command_line_offers_max_iter() -> None:
-    # source: common practice -- the fit's iteration limit and tolerance should be
-    # reachable from the command line.  Known defect: `lintools fit` has no --max-iter or
-    # --tol option today (argparse exits 2: "unrecognized arguments").
-    def check() -> None:
-        out = _cli("fit", "--help")
-        assert "--max-iter" in out.stdout and "--tol" in out.stdout
-
-    known_defect(check, "cli.py: no --max-iter / --tol options on `lintools fit`")
+def test_command_line_max_iter_reaches_the_fit(tmp_path: Path) -> None:
+    # source: common practice -- the iteration limit and tolerance reach the fit from the
+    # command line, and a fit stopped by the limit exits 1 with the record saying so
+    out = _cli("fit", "--help")
+    assert "--max-iter" in out.stdout and "--tol" in out.stdout
+    data = tmp_path / "d.csv"
+    head = ",".join(f"x{j}" for j in range(X.shape[1])) + ",y"
+    data.write_text(head + "\n" + "\n".join(",".join(f"{v:.17g}" for v in row) + f",{int(c)}"
+                                               for row, c in zip(X, YB)) + "\n")
+    stopped = _cli("fit", str(data), "--target", "y", "--model", "logistic", "--max-iter", "1", "--json")
+    assert stopped.returncode == 1
+    assert json.loads(stopped.stdout)["fit"]["convergence"]["converged"] is False
 
 
 # ------------------------------------------------------------------- determinism
