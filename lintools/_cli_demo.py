@@ -243,7 +243,7 @@ def run_demo(args: argparse.Namespace) -> int:
         emit_json({
             "folder": folder, "files": written, "notes": notes, "seconds": elapsed,
             "fill_deviation": ls.to_dict(), "leak": leak.to_dict(),
-            "defect": None if defect is None else defect.to_dict(),
+            "defect": defect.to_dict(),
             "supplier_comparison": cmp, "supplier_implied_l2": implied, "supplier_flagged_terms": flagged,
             "supplier_calibration": cal.to_json(), "cross_validation": cv, "caution": CAUTION,
         })
@@ -256,7 +256,8 @@ def run_demo(args: argparse.Namespace) -> int:
           f"{ls.residual_standard_error:.3f} ml")
     print(f"  seal leak, logistic: {int(data.leak.sum())} leaks in {args.rows} bottles, "
           f"{leak.convergence.message}")
-    print("  defect class, softmax: " + ("fitted" if defect is not None else "not available in this build; skipped"))
+    print(f"  defect class, softmax: {len(defect.classes)} classes, reference '{defect.reference_class}', "
+          f"{defect.convergence.message}")
     print(f"  supplier's leak model against the refit: Wald chi2 {cmp.wald_statistic:.3g} on "
           f"{cmp.wald_degrees_of_freedom} df, p {cmp.wald_p_value:.2g}; differs beyond noise in: "
           f"{', '.join(flagged) if flagged else 'no term'}")

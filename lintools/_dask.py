@@ -17,7 +17,7 @@ from typing import Any, Callable
 import dask
 
 from ._errors import InputError
-from .blocks import BlockSpec, run_task
+from ._block_stream import BlockSpec, run_task
 
 __all__ = ["DaskRunner"]
 

@@ -110,6 +110,11 @@ def _as_float(obj: Any, name: str, names: Sequence[str] | None = None) -> np.nda
             )
     if arr.dtype.kind == "c":
         raise InputError(f"{name} is complex; pass real numbers")
+    if arr.dtype == np.float64:
+        # no copy: a read-only view, so nothing in lintools can write into the caller's data
+        out = arr.view()
+        out.flags.writeable = False
+        return out
     try:
         out = np.array(arr, dtype=np.float64, copy=True)
     except (TypeError, ValueError) as exc:
@@ -118,6 +123,11 @@ def _as_float(obj: Any, name: str, names: Sequence[str] | None = None) -> np.nda
 
 
 def _check_finite(arr: np.ndarray, name: str, names: Sequence[str] | None = None) -> None:
+    # one summing pass decides the usual case: a NaN or infinity makes the sum non-finite;
+    # only a non-finite sum (bad entries, or an overflow of finite ones) needs the full test
+    with np.errstate(over="ignore", invalid="ignore"):
+        if arr.size and np.isfinite(np.add.reduce(arr, axis=None)):
+            return
     finite = np.isfinite(arr)
     if not finite.all():
         index = tuple(int(i) for i in np.argwhere(~finite)[0])
@@ -131,7 +141,8 @@ def _check_finite(arr: np.ndarray, name: str, names: Sequence[str] | None = None
 def as_matrix(
     X: Any, name: str = "X", *, min_rows: int = 1, allow_empty_columns: bool = False
 ) -> tuple[np.ndarray, tuple[str, ...] | None]:
-    """Return ``X`` as a new 2-D float64 array and its column names (or None).
+    """Return ``X`` as a 2-D float64 array (a read-only view when it already is one, else a
+    new array) and its column names (or None).
 
     Raises
     ------

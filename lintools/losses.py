@@ -72,9 +72,9 @@ def sigmoid(eta: Any) -> np.ndarray:
     return _halves(np.asarray(eta, dtype=float))[0]
 
 
-def _softplus_changes(eta: np.ndarray, delta: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Per entry ``log1pexp(eta + delta) - log1pexp(eta)`` and the same at ``-eta, -delta``."""
-    mu, nu = _halves(eta)
+def _softplus_changes(eta: np.ndarray, delta: np.ndarray, mu: np.ndarray, nu: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Per entry ``log1pexp(eta + delta) - log1pexp(eta)`` and the same at ``-eta, -delta``
+    (``mu``, ``nu``: the logistic function at ``eta`` and its complement)."""
     small = np.abs(delta) <= 1.0
     d = np.where(small, delta, 0.0)
     up = np.log1p(mu * np.expm1(d))
@@ -123,6 +123,21 @@ class BinomialLoss:
         self._wy = self.weights * y
         self._wf = self.weights * (self.trials - y)  # weighted failures
         self._wm = self.weights * self.trials
+        self._cache: tuple | None = None  # (eta, (e, mu, nu)) of the last linear predictor
+
+    def _parts(self, eta: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """``(exp(-|eta|), mu, 1 - mu)``, kept for the last ``eta``: the solvers ask for the
+        value, gradient and curvature at one linear predictor in turn, and each needs them."""
+        cached = self._cache
+        if cached is not None and cached[0] is eta:
+            return cached[1]
+        e = np.exp(-np.abs(eta))
+        big = 1.0 / (1.0 + e)
+        small = e * big
+        pos = eta >= 0
+        parts = (e, np.where(pos, big, small), np.where(pos, small, big))
+        self._cache = (eta, parts)
+        return parts
 
     # ---- interface -------------------------------------------------------------
     def row_weights(self) -> np.ndarray:
@@ -140,8 +155,12 @@ class BinomialLoss:
         return b
 
     def value(self, eta: np.ndarray) -> float:
-        """Sum of the weighted negative log-likelihood terms (without the binomial coefficient)."""
-        return float(self._wy @ log1pexp(-eta) + self._wf @ log1pexp(eta))
+        """Sum of the weighted negative log-likelihood terms (without the binomial coefficient).
+
+        With ``log(1 + e^x) = max(x, 0) + log1p(e^{-|x|})`` the two softplus terms of a row
+        share one ``log1p(exp(-|eta|))``, all parts non-negative."""
+        e = self._parts(eta)[0]
+        return float(self._wy @ np.maximum(-eta, 0.0) + self._wf @ np.maximum(eta, 0.0) + self._wm @ np.log1p(e))
 
     def value_change(self, eta: np.ndarray, delta: np.ndarray) -> float:
         r"""``value(eta + delta) - value(eta)``, accurate even when it is far below ``eps * value``.
@@ -151,22 +170,23 @@ class BinomialLoss:
         rounding); larger moves use the plain difference, which is then accurate relative
         to the change.
         """
-        up, down = _softplus_changes(eta, delta)
+        _, mu, nu = self._parts(eta)
+        up, down = _softplus_changes(eta, delta, mu, nu)
         return float(self._wy @ down + self._wf @ up)
 
     def gradient(self, eta: np.ndarray) -> np.ndarray:
         """``d value / d eta = w [(m - y) mu - y (1 - mu)] = w (m mu - y)``."""
-        mu, nu = _halves(eta)
+        _, mu, nu = self._parts(eta)
         return self._wf * mu - self._wy * nu
 
     def value_and_gradient(self, eta: np.ndarray) -> tuple[float, np.ndarray]:
         """``(value(eta), gradient(eta))`` sharing one evaluation of ``mu``."""
-        mu, nu = _halves(eta)
+        _, mu, nu = self._parts(eta)
         return self.value(eta), self._wf * mu - self._wy * nu
 
     def curvature(self, eta: np.ndarray) -> np.ndarray:
         """IRLS weights ``w m mu (1 - mu)`` (the second derivative of each term)."""
-        mu, nu = _halves(eta)
+        _, mu, nu = self._parts(eta)
         return self._wm * mu * nu
 
     def curvature_slope(self, eta: np.ndarray) -> np.ndarray:

@@ -1,0 +1,329 @@
+"""Reading, checking and reducing row blocks for :mod:`lintools.blocks` (streams and Dask)."""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Any, Callable
+
+import numpy as np
+
+from ._errors import (
+    InputError,
+    )
+from ._validate import as_matrix, as_vector
+from .logistic import _labels
+
+
+# ---------------------------------------------------------------------------------------
+# Reading and checking blocks
+# ---------------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class BlockSpec:
+    """What a block must look like: columns, response kind, whether weights come along.
+
+    ``labels`` is ``None`` (a numeric response), ``"collect"`` (the first logistic pass:
+    any two labels) or the two classes ``(negative, positive)`` found by that pass.
+    """
+
+    p: int | None
+    labels: Any = None
+    weights: bool | None = None
+
+
+def _prefixed(index: int, exc: InputError) -> InputError:
+    return InputError(f"block {index} (rows counted within the block): {exc}")
+
+
+def _response_codes(index: int, yb: Any, m: int, classes: tuple) -> np.ndarray:
+    """0/1 codes of ``yb`` for the known ``classes``; a label not seen before is an error."""
+    if isinstance(yb, np.ndarray) and yb.ndim == 1 and yb.shape[0] == m and yb.dtype.kind in "biuf":
+        positive = yb == classes[1]
+        if bool(np.all(positive | (yb == classes[0]))):  # the common case, without sorting
+            return positive.astype(float)
+    try:
+        found, codes = _labels(yb, m)
+    except InputError as exc:
+        raise _prefixed(index, exc) from None
+    lookup = {c: k for k, c in enumerate(classes)}
+    new = [c for c in found if c not in lookup]
+    if new:
+        row = int(np.argmax(codes == found.index(new[0])))
+        raise InputError(
+            f"block {index}: y has the label {new[0]!r} at row {row} of the block, which the first "
+            f"pass did not see (labels {classes[0]!r}, {classes[1]!r}); source() must yield the same "
+            "blocks on every pass"
+        )
+    positive = found.index(classes[1]) if classes[1] in found else -1
+    return (codes == positive).astype(float)
+
+
+def _label_summary(index: int, yb: Any, m: int, w: np.ndarray | None) -> dict:
+    """Labels of a block: label -> [block, first row, total weight]."""
+    try:
+        found, codes = _labels(yb, m)
+    except InputError as exc:
+        raise _prefixed(index, exc) from None
+    first = [int(np.argmax(codes == k)) for k in range(len(found))]
+    totals = np.bincount(codes, weights=w, minlength=len(found))
+    seen = {found[k]: [index, first[k], float(totals[k])] for k in range(len(found))}
+    return _earliest(seen)
+
+
+def _earliest(seen: dict) -> dict:
+    """The three labels seen first (by block, then row): enough to name a third label."""
+    if len(seen) <= 3:
+        return seen
+    keep = sorted(seen, key=lambda c: (seen[c][0], seen[c][1]))[:3]
+    return {c: seen[c] for c in keep}
+
+
+def _check_two(seen: dict) -> None:
+    """Exactly two labels over all blocks may remain; else name the third one seen."""
+    if len(seen) <= 2:
+        return
+    order = sorted(seen, key=lambda c: (seen[c][0], seen[c][1]))
+    a, b, c = order[:3]
+    block, row = seen[c][0], seen[c][1]
+    raise InputError(
+        f"block {block}: y has a third label {c!r} at row {row} of the block (after {a!r} and "
+        f"{b!r}); a binary logistic model needs exactly two labels over all blocks: recode y, "
+        "or fit a multiclass (softmax) model"
+    )
+
+
+def check_block(index: int, item: Any, spec: BlockSpec) -> tuple[np.ndarray, Any, np.ndarray | None, Any]:
+    """Validate one block; return ``(X, y, weights or None, column names or None)``.
+
+    ``y`` is a float array (numeric response), a label summary (``spec.labels ==
+    "collect"``) or 0/1 codes of the positive class.  Errors name the block, the row
+    within the block, the column and the remedy.
+    """
+    if not isinstance(item, (tuple, list)) or len(item) not in (2, 3):
+        what = f"a {type(item).__name__}" + (f" of length {len(item)}" if isinstance(item, (tuple, list)) else "")
+        raise InputError(
+            f"block {index}: the source yielded {what}; each block must be a tuple "
+            "(X_block, y_block) or (X_block, y_block, weights_block)"
+        )
+    try:
+        X, found = as_matrix(item[0], "X")
+    except InputError as exc:
+        raise _prefixed(index, exc) from None
+    m, q = X.shape
+    if spec.p is not None and q != spec.p:
+        raise InputError(
+            f"block {index}: X has {q} columns but block 0 had {spec.p}; every block must have "
+            "the same columns in the same order"
+        )
+    has_w = len(item) == 3 and item[2] is not None
+    if spec.weights is not None and has_w != spec.weights:
+        raise InputError(
+            f"block {index}: " + ("weights are given, but block 0 had none" if has_w else
+                                  "no weights are given, but block 0 had them")
+            + "; give weights with every block or with none"
+        )
+    w = None
+    if has_w:
+        try:
+            w = as_vector(item[2], "weights", m)
+        except InputError as exc:
+            raise _prefixed(index, exc) from None
+        bad = w < 0
+        if bad.any():
+            i = int(np.argmax(bad))
+            raise InputError(
+                f"block {index}: weights has a negative value ({w[i]:g}) at row {i} of the block; "
+                "weights must be >= 0"
+            )
+    if spec.labels is None:
+        try:
+            y = as_vector(item[1], "y", m)
+        except InputError as exc:
+            raise _prefixed(index, exc) from None
+    elif spec.labels == "collect":
+        y = _label_summary(index, item[1], m, w)
+    else:
+        y = _response_codes(index, item[1], m, spec.labels)
+    return X, y, w, found
+
+
+def run_task(kernel: Callable, index: int, item: Any, spec: BlockSpec, args: tuple) -> dict:
+    """Check a block and apply ``kernel(X, y, w, *args)`` to it (the map step of a pass)."""
+    X, y, w, _ = check_block(index, item, spec)
+    out = kernel(X, y, w, *args)
+    out["rows"] = X.shape[0]
+    return out
+
+
+def _tree(parts: Any, combine: Callable, cargs: tuple) -> Any:
+    """Pairwise (binary-tree) reduction of an iterable, in order, keeping O(log n) partials."""
+    stack: list[tuple[int, Any]] = []
+    for part in parts:
+        level = 0
+        while stack and stack[-1][0] == level:
+            part = combine(stack.pop()[1], part, *cargs)
+            level += 1
+        stack.append((level, part))
+    if not stack:
+        return None
+    part = stack.pop()[1]
+    while stack:
+        part = combine(stack.pop()[1], part, *cargs)
+    return part
+
+
+class _StreamRunner:
+    """Runs passes over ``source()``: checks each block, maps it, reduces pairwise.
+
+    The first pass fixes the number of columns, whether weights come along, and the rows
+    of every block; later passes must see the same.
+    """
+
+    def __init__(self, source: Any, labels: Any = None) -> None:
+        if not callable(source):
+            raise InputError(
+                f"source must be a function of no arguments that returns a fresh iterator of "
+                f"(X_block, y_block[, weights_block]) on every call; got a {type(source).__name__} "
+                "(wrap a list of blocks as lambda: iter(blocks))"
+            )
+        self.source = source
+        self.passes = 0
+        self.rows: list[int] | None = None
+        self.spec = BlockSpec(None, labels, None)
+        self.names: tuple[str, ...] | None = None
+        self._last_iterator: Any = None
+
+    def _iterator(self) -> Any:
+        it = self.source()
+        if it is not None and it is self._last_iterator and iter(it) is it:
+            raise InputError(
+                "source() returned the same iterator as on the previous pass; it must return a "
+                "fresh one on every call (make it a generator function, not a generator)"
+            )
+        try:
+            iterator = iter(it)
+        except TypeError:
+            raise InputError(
+                f"source() returned a {type(it).__name__}, which is not an iterator of blocks; "
+                "make source a generator function (def source(): ... yield X_block, y_block)"
+            ) from None
+        self._last_iterator = it
+        return iterator
+
+    def reduce(self, kernel: Callable, combine: Callable, args: tuple = (), cargs: tuple = (),
+               labels: Any = "same") -> Any:
+        """One pass: check and map every block, reduce pairwise; ``labels`` resets the response kind."""
+        if labels != "same":
+            self.spec = BlockSpec(self.spec.p, labels, self.spec.weights)
+        self.passes += 1
+        first = self.rows is None
+        rows: list[int] = []
+
+        def parts():
+            for index, item in enumerate(self._iterator()):
+                X, y, w, found = check_block(index, item, self.spec)
+                if index == 0 and first:
+                    self.spec = BlockSpec(X.shape[1], self.spec.labels, w is not None)
+                    self.names = found
+                if not first and (index >= len(self.rows) or X.shape[0] != self.rows[index]):
+                    expected = f"{self.rows[index]} rows" if index < len(self.rows) else "no such block"
+                    raise InputError(
+                        f"block {index} on pass {self.passes} has {X.shape[0]} rows, but on pass 1 it had "
+                        f"{expected}; source() must yield the same blocks on every pass"
+                    )
+                rows.append(X.shape[0])
+                out = kernel(X, y, w, *args)
+                out["rows"] = X.shape[0]
+                yield out
+
+        result = _tree(parts(), combine, cargs)
+        if result is None:
+            raise InputError(
+                f"source() yielded no blocks on pass {self.passes}"
+                + (f" (pass 1 had {len(self.rows)}); it must return a fresh iterator on every call"
+                   if not first else "; it must yield at least one (X_block, y_block) tuple")
+            )
+        if first:
+            self.rows = rows
+        elif len(rows) != len(self.rows):
+            raise InputError(
+                f"source() yielded {len(rows)} blocks on pass {self.passes} but {len(self.rows)} on "
+                "pass 1; source() must yield the same blocks on every pass"
+            )
+        return result
+
+
+def _is_dask(obj: Any) -> bool:
+    """A dask array, recognised without importing dask."""
+    return type(obj).__module__.split(".")[0] == "dask" and hasattr(obj, "to_delayed")
+
+
+def _runner(source: Any, X: Any, y: Any, weights: Any, labels: Any = None) -> Any:
+    """The stream runner for a source, or the Dask runner for dask arrays."""
+    if source is not None and (X is not None or y is not None or weights is not None):
+        raise InputError(
+            "pass either source (a function returning an iterator of blocks) or X and y as "
+            "row-chunked dask arrays, not both; block weights come with the blocks"
+        )
+    if source is not None:
+        return _StreamRunner(source, labels)
+    if X is None and y is None:
+        raise InputError(
+            "no data: pass source (a function returning a fresh iterator of (X_block, y_block"
+            "[, weights_block]) on every call) or X and y as row-chunked dask arrays"
+        )
+    if not (_is_dask(X) and _is_dask(y) and (weights is None or _is_dask(weights))):
+        kinds = ", ".join(f"{k} is a {type(v).__name__}" for k, v in (("X", X), ("y", y), ("weights", weights)) if v is not None)
+        raise InputError(
+            f"X=, y= (and weights=) must all be dask arrays ({kinds}); for in-memory arrays use "
+            "lintools.least_squares / lintools.logistic, or pass a source of blocks"
+        )
+    from ._dask import DaskRunner
+
+    return DaskRunner(X, y, weights, labels)
+
+
+# ---------------------------------------------------------------------------------------
+# Kernels: R factors with exact pairwise centring
+# ---------------------------------------------------------------------------------------
+
+
+def _positive_rows(X: np.ndarray, y: np.ndarray | None, w: np.ndarray | None) -> tuple:
+    if w is None or bool(np.all(w > 0)):
+        return X, y, w
+    keep = w > 0
+    return X[keep], (None if y is None else y[keep]), w[keep]
+
+def _merge_labels(a: dict, b: dict) -> dict:
+    out = {k: list(v) for k, v in a.items()}
+    for label, (block, row, total) in b.items():
+        if label in out:
+            old = out[label]
+            first = min((old[0], old[1]), (block, row))
+            out[label] = [first[0], first[1], old[2] + total]
+        else:
+            out[label] = [block, row, total]
+    try:
+        sorted(out)
+    except TypeError:
+        raise InputError(
+            "y mixes label types across blocks that cannot be ordered (for example numbers in one "
+            "block and text in another); use one type for every label"
+        ) from None
+    return _earliest(out)
+
+def _add(a: dict, b: dict) -> dict:
+    """Sum of two partial results (maxima for ``top``, logical and for ``finite``)."""
+    if "finite" in a and not (a["finite"] and b["finite"]):
+        return {"finite": False, "change": math.inf}  # a linear predictor overflowed
+    out = {}
+    for key, value in a.items():
+        if key == "top":
+            out[key] = max(value, b[key])
+        elif key == "finite":
+            out[key] = value and b[key]
+        else:
+            out[key] = value + b[key]
+    return out
