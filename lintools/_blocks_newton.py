@@ -18,7 +18,7 @@ from ._errors import (
 from ._records import Convergence, LogisticFit
 from ._validate import check_names, check_nonnegative, check_positive_int
 from .inference import covariance, likelihood_ratio
-from .linalg import aliased_columns, default_rank_tolerance, solve_upper
+from .linalg import default_rank_tolerance, dependency_sentence
 from .logistic import ETA_LIMIT, _check_flag, _check_tol
 from .losses import BinomialLoss
 from .solvers import Evaluation, IterationRecord, SingularMatrixError
@@ -351,21 +351,9 @@ def _centres_and_scales(part: dict, intercept: bool, lam: float, names: tuple[st
     norms = np.linalg.norm(R, axis=0)
     if lam == 0 and p:
         Rs = R / np.where(norms > 0, norms, 1.0)
-        alias = np.union1d(np.flatnonzero(norms == 0),
-                           aliased_columns(Rs, np.ones(p), default_rank_tolerance(part["n_pos"], p))).astype(int)
-        if alias.size:
-            j = int(alias[0])
-            before = [i for i in range(j) if i not in set(alias)]
-            involved = []
-            if before:
-                coef = solve_upper(Rs[np.ix_(before, before)], Rs[before, j])
-                big = np.abs(coef) > 1e-8 * max(float(np.abs(coef).max()), 1e-300)
-                involved = [f"'{names[before[t]]}'" for t in np.flatnonzero(big)]
-            raise InputError(
-                f"X is rank deficient on the rows used: column {j} ('{names[j]}') is a linear "
-                f"combination of {', '.join(involved) if involved else 'nothing (it is zero)'}"
-                f"{' (plus a constant)' if intercept else ''}; drop one of the dependent columns, or set l2 > 0"
-            )
+        msg = dependency_sentence(Rs, norms, names, intercept, default_rank_tolerance(part["n_pos"], p))
+        if msg:
+            raise InputError(msg)
     c = mean if intercept else np.zeros(p)
     sd = norms / math.sqrt(W)  # without an intercept: the root mean square, as LinearModelProblem
     s = np.where((sd > 1e-13 * np.abs(c)) & (sd > 0) & np.isfinite(sd), sd, 1.0)

@@ -15,7 +15,7 @@ from ._errors import (
     )
 from ._records import Convergence, LinearFit
 from ._validate import check_names, check_nonnegative
-from .least_squares import ILL_CONDITIONED, _describe_alias, _residual_df
+from .least_squares import ILL_CONDITIONED, alias_sentences, _residual_df
 from .linalg import aliased_columns, condition_number, default_rank_tolerance, inverse_upper, solve_lower, solve_upper
 from .logistic import _check_flag
 
@@ -267,16 +267,8 @@ def _solve_factor(R: np.ndarray, W: float, mean: np.ndarray, lo: np.ndarray, hi:
     aliased = np.union1d(np.flatnonzero(zero & (lam == 0)),
                          aliased_columns(Rxx, np.maximum(col_norm, 1e-300), tol)).astype(int)
     if aliased.size:
-        keep = [j for j in range(p) if j not in set(aliased)]
-        lines = []
-        for j in aliased:
-            if zero[j]:
-                what = "the intercept" if intercept else "zero"
-                lines.append(f"column {j} ('{names[j]}') is constant on the rows used; it is aliased with {what}")
-            else:
-                lines.append(_describe_alias(j, names, Rxx, keep, s, intercept))
         raise InputError(
-            "X is rank deficient: " + "; ".join(lines)
+            alias_sentences(aliased, zero, names, Rxx, s, intercept)
             + ". Drop the aliased column(s), or set l2 > 0 (the in-memory lintools.least_squares "
             "also offers rank_deficient='minimum_norm')"
         )

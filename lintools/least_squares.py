@@ -97,6 +97,20 @@ def _target_name(y: Any) -> str:
     return str(name) if isinstance(name, str) and name else "y"
 
 
+def alias_sentences(aliased: np.ndarray, zero: np.ndarray, names: tuple[str, ...], R: np.ndarray,
+                    s: np.ndarray, intercept: bool) -> str:
+    """``"X is rank deficient: ..."``, one clause per aliased column (constant, or a combination)."""
+    keep = [j for j in range(R.shape[1]) if j not in set(aliased)]
+    lines = []
+    for j in aliased:
+        if zero[j]:
+            what = "the intercept" if intercept else "zero"
+            lines.append(f"column {j} ('{names[j]}') is constant on the rows used; it is aliased with {what}")
+        else:
+            lines.append(_describe_alias(j, names, R, keep, s, intercept))
+    return "X is rank deficient: " + "; ".join(lines)
+
+
 def _describe_alias(j, names, R, keep, xbar_scale, with_intercept):
     """A sentence saying what column j is a combination of."""
     before = [i for i in keep if i < j]
@@ -450,17 +464,8 @@ def _qr_path(Xa, ya, w, lam, intercept, names_t, rank_deficient, covariance, wei
     aliased = aliased.astype(int)
 
     if aliased.size and rank_deficient == "raise":
-        keep = [j for j in range(p) if j not in set(aliased)]
-        lines = []
-        for j in aliased:
-            if zero[j]:
-                what = "the intercept" if intercept else "zero"
-                lines.append(f"column {j} ('{names_t[j]}') is constant on the rows used; it is aliased with {what}")
-            else:
-                lines.append(_describe_alias(j, names_t, R, keep, s, intercept))
         raise InputError(
-            "X is rank deficient: "
-            + "; ".join(lines)
+            alias_sentences(aliased, zero, names_t, R, s, intercept)
             + ". Drop the aliased column(s), or pass rank_deficient='minimum_norm' for the minimum-norm solution"
         )
 

@@ -7,6 +7,8 @@ matrix (see :func:`aliased_columns`).
 
 from __future__ import annotations
 
+from typing import Sequence
+
 import numpy as np
 
 __all__ = [
@@ -71,3 +73,30 @@ def condition_number(R: np.ndarray) -> float:
         return 1.0
     s = np.linalg.svd(R, compute_uv=False)
     return float(s[0] / s[-1]) if s[-1] > 0 else float("inf")
+
+
+def dependency_sentence(R: np.ndarray, norms: np.ndarray, names: Sequence[str], intercept: bool,
+                        tol: float) -> str | None:
+    """A sentence naming the first linearly dependent column, or None (full rank).
+
+    ``R`` is the triangular factor of the (centred when ``intercept``) design with unit
+    columns, ``norms`` the column norms before scaling (0 for a zero column).  The
+    dependency is read off ``R``: the coefficients of column ``j`` on the earlier
+    independent columns.
+    """
+    p = R.shape[1]
+    alias = np.union1d(np.flatnonzero(norms == 0), aliased_columns(R, np.ones(p), tol)).astype(int)
+    if not alias.size:
+        return None
+    j = int(alias[0])
+    before = [i for i in range(j) if i not in set(alias)]
+    involved = []
+    if before:
+        coef = solve_upper(R[np.ix_(before, before)], R[before, j])
+        big = np.abs(coef) > 1e-8 * max(float(np.abs(coef).max()), 1e-300)
+        involved = [f"'{names[before[t]]}'" for t in np.flatnonzero(big)]
+    return (
+        f"X is rank deficient on the rows used: column {j} ('{names[j]}') is a linear combination "
+        f"of {', '.join(involved) if involved else 'nothing (it is zero)'}"
+        f"{' (plus a constant)' if intercept else ''}; drop one of the dependent columns, or set l2 > 0"
+    )

@@ -53,6 +53,19 @@ ROW_THRESHOLD = 0.5
 COLUMN_THRESHOLD = 1e-7
 
 
+NOT_SEPARATED = "no separation: the maximum-likelihood estimate exists (Albert & Anderson 1984)"
+
+
+def _separated(check: Any) -> bool:
+    return check.kind != "none"
+
+
+def _shown_rows(rows: np.ndarray, max_rows: int) -> tuple[str, str]:
+    """The first ``max_rows`` row numbers, and the count of the others."""
+    shown = ", ".join(str(int(r)) for r in rows[:max_rows])
+    return shown, (f" and {rows.size - max_rows} more" if rows.size > max_rows else "")
+
+
 @dataclass(frozen=True)
 class SeparationCheck:
     """Result of :func:`check_separation`.
@@ -80,21 +93,17 @@ class SeparationCheck:
     rows: np.ndarray
     names: tuple[str, ...]
 
-    @property
-    def separated(self) -> bool:
-        """True for complete or quasi-complete separation."""
-        return self.kind != "none"
+    separated = property(_separated, doc="True for complete or quasi-complete separation.")
 
     def describe(self, max_rows: int = 10) -> str:
         """One paragraph in plain words."""
         if not self.separated:
-            return "no separation: the maximum-likelihood estimate exists (Albert & Anderson 1984)"
+            return NOT_SEPARATED
         terms = []
         if self.intercept_direction != 0:
             terms.append(f"{self.intercept_direction:+.6g}*{INTERCEPT_NAME}")
         terms += [f"{v:+.6g}*{n}" for v, n in zip(self.direction, self.names) if v != 0]
-        shown = ", ".join(str(int(r)) for r in self.rows[:max_rows])
-        more = f" and {self.rows.size - max_rows} more" if self.rows.size > max_rows else ""
+        shown, more = _shown_rows(self.rows, max_rows)
         return (
             f"{self.kind} separation (Albert & Anderson 1984): along the direction "
             f"{' '.join(terms)} (columns involved: {', '.join(self.columns)}) the linear predictor "
@@ -279,17 +288,13 @@ class MultinomialSeparationCheck:
     rows: np.ndarray
     names: tuple[str, ...]
 
-    @property
-    def separated(self) -> bool:
-        """True for complete or quasi-complete separation."""
-        return self.kind != "none"
+    separated = property(_separated, doc="True for complete or quasi-complete separation.")
 
     def describe(self, max_rows: int = 10) -> str:
         """One paragraph in plain words."""
         if not self.separated:
-            return "no separation: the maximum-likelihood estimate exists (Albert & Anderson 1984)"
-        shown = ", ".join(str(int(r)) for r in self.rows[:max_rows])
-        more = f" and {self.rows.size - max_rows} more" if self.rows.size > max_rows else ""
+            return NOT_SEPARATED
+        shown, more = _shown_rows(self.rows, max_rows)
         which = ", ".join(repr(c) for c in self.separated_classes)
         return (
             f"{self.kind} separation (Albert & Anderson 1984): a direction of the coefficients "
