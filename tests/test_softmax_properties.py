@@ -256,3 +256,17 @@ def test_implied_l2_recovers_the_penalty_from_both_references():
     sk = LogisticRegression(C=1 / 3.0, tol=1e-14, max_iter=1000, solver="newton-cholesky").fit(X, y)
     got = lt.implied_l2(X, y, sk.coef_.T, sk.intercept_, model="softmax")
     assert got.l2 == pytest.approx(3.0, rel=1e-6) and got.residual < 1e-6
+
+
+@pytest.mark.parametrize("scale", [1e150, 1e-150])
+@pytest.mark.parametrize("solver", ["newton", "lbfgs"])
+def test_features_of_extreme_size_scale_the_coefficients(scale, solver):
+    # source: exact algebra -- the likelihood depends on X B only, so B(s X) = B(X) / s
+    # (common practice); the scale-free stopping rule decides convergence the same way
+    X, y = _data(13, n=120, p=2)
+    base = softmax(X, y, solver=solver, max_iter=2000)
+    f = softmax(X * scale, y, solver=solver, max_iter=2000)
+    assert f.convergence.converged == base.convergence.converged
+    np.testing.assert_allclose(f.coefficients * scale, base.coefficients, rtol=1e-8, atol=1e-12)
+    np.testing.assert_allclose(f.standard_errors * scale, base.standard_errors, rtol=1e-8, atol=1e-12)
+    assert np.all(np.isfinite(f.mean(X * scale)))
