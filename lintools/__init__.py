@@ -18,7 +18,7 @@ from ._records import LogisticFit
 from .logistic import logistic
 from ._records import SoftmaxFit
 from .softmax import softmax
-from .blocks import least_squares_blocks, logistic_blocks
+from .blocks import least_squares_blocks, logistic_blocks, softmax_blocks
 from .separation import MultinomialSeparationCheck, SeparationCheck, check_separation
 from .calibration import BrierScore, brier, cross_entropy
 from .calibration_bins import ReliabilityTable, calibration_error, reliability
@@ -69,6 +69,7 @@ __all__ = [
     "softmax",
     "least_squares_blocks",
     "logistic_blocks",
+    "softmax_blocks",
     "MultinomialSeparationCheck",
     "SeparationCheck",
     "check_separation",

@@ -20,12 +20,25 @@ from .logistic import _labels
 # ---------------------------------------------------------------------------------------
 
 
+#: ``BlockSpec.labels`` of the first softmax pass: keep every label (not just three).
+COLLECT_ALL = "collect all"
+
+
+@dataclass(frozen=True)
+class ClassIndex:
+    """``BlockSpec.labels`` of the later softmax passes: code y as indices into ``classes``."""
+
+    classes: tuple
+
+
 @dataclass(frozen=True)
 class BlockSpec:
     """What a block must look like: columns, response kind, whether weights come along.
 
     ``labels`` is ``None`` (a numeric response), ``"collect"`` (the first logistic pass:
-    any two labels) or the two classes ``(negative, positive)`` found by that pass.
+    any two labels), the two classes ``(negative, positive)`` found by that pass,
+    :data:`COLLECT_ALL` (the first softmax pass: every label) or a :class:`ClassIndex`
+    (the later softmax passes: y coded as the index of its label, 0 .. K-1).
     """
 
     p: int | None
@@ -60,8 +73,32 @@ def _response_codes(index: int, yb: Any, m: int, classes: tuple) -> np.ndarray:
     return (codes == positive).astype(float)
 
 
-def _label_summary(index: int, yb: Any, m: int, w: np.ndarray | None) -> dict:
-    """Labels of a block: label -> [block, first row, total weight]."""
+def _class_indices(index: int, yb: Any, m: int, classes: tuple) -> np.ndarray:
+    """Indices of ``yb``'s labels in the known ``classes``; a label not seen before is an error."""
+    numeric = all(isinstance(c, (bool, int, float, np.number)) and abs(c) < 2.0**53 for c in classes)
+    if numeric and isinstance(yb, np.ndarray) and yb.ndim == 1 and yb.shape[0] == m and yb.dtype.kind in "biuf":
+        known = np.asarray(classes, dtype=float)
+        at = np.minimum(np.searchsorted(known, yb), len(classes) - 1)
+        if bool(np.all(known[at] == yb)):  # the common case, without a dictionary
+            return at.astype(np.intp)
+    try:
+        found, codes = _labels(yb, m)
+    except InputError as exc:
+        raise _prefixed(index, exc) from None
+    lookup = {c: k for k, c in enumerate(classes)}
+    new = [c for c in found if c not in lookup]
+    if new:
+        row = int(np.argmax(codes == found.index(new[0])))
+        shown = ", ".join(repr(c) for c in classes[:8]) + (", ..." if len(classes) > 8 else "")
+        raise InputError(
+            f"block {index}: y has the label {new[0]!r} at row {row} of the block, which the first "
+            f"pass did not see (labels {shown}); source() must yield the same blocks on every pass"
+        )
+    return np.array([lookup[c] for c in found], dtype=np.intp)[codes]
+
+
+def _label_summary(index: int, yb: Any, m: int, w: np.ndarray | None, keep: int | None = 3) -> dict:
+    """Labels of a block: label -> [block, first row, total weight] (see :func:`_earliest`)."""
     try:
         found, codes = _labels(yb, m)
     except InputError as exc:
@@ -69,15 +106,17 @@ def _label_summary(index: int, yb: Any, m: int, w: np.ndarray | None) -> dict:
     first = [int(np.argmax(codes == k)) for k in range(len(found))]
     totals = np.bincount(codes, weights=w, minlength=len(found))
     seen = {found[k]: [index, first[k], float(totals[k])] for k in range(len(found))}
-    return _earliest(seen)
+    return _earliest(seen, keep)
 
 
-def _earliest(seen: dict) -> dict:
-    """The three labels seen first (by block, then row): enough to name a third label."""
-    if len(seen) <= 3:
+def _earliest(seen: dict, keep: int | None = 3) -> dict:
+    """The ``keep`` labels seen first (by block, then row); all of them when ``keep`` is None.
+
+    Three are enough for the binary fit to name a third label; softmax keeps every one."""
+    if keep is None or len(seen) <= keep:
         return seen
-    keep = sorted(seen, key=lambda c: (seen[c][0], seen[c][1]))[:3]
-    return {c: seen[c] for c in keep}
+    first = sorted(seen, key=lambda c: (seen[c][0], seen[c][1]))[:keep]
+    return {c: seen[c] for c in first}
 
 
 def _check_two(seen: dict) -> None:
@@ -98,7 +137,8 @@ def check_block(index: int, item: Any, spec: BlockSpec) -> tuple[np.ndarray, Any
     """Validate one block; return ``(X, y, weights or None, column names or None)``.
 
     ``y`` is a float array (numeric response), a label summary (``spec.labels ==
-    "collect"``) or 0/1 codes of the positive class.  Errors name the block, the row
+    "collect"`` or :data:`COLLECT_ALL`), 0/1 codes of the positive class, or class
+    indices (a :class:`ClassIndex`).  Errors name the block, the row
     within the block, the column and the remedy.
     """
     if not isinstance(item, (tuple, list)) or len(item) not in (2, 3):
@@ -142,8 +182,12 @@ def check_block(index: int, item: Any, spec: BlockSpec) -> tuple[np.ndarray, Any
             y = as_vector(item[1], "y", m)
         except InputError as exc:
             raise _prefixed(index, exc) from None
-    elif spec.labels == "collect":
+    elif isinstance(spec.labels, str) and spec.labels == "collect":
         y = _label_summary(index, item[1], m, w)
+    elif isinstance(spec.labels, str) and spec.labels == COLLECT_ALL:
+        y = _label_summary(index, item[1], m, w, keep=None)
+    elif isinstance(spec.labels, ClassIndex):
+        y = _class_indices(index, item[1], m, spec.labels.classes)
     else:
         y = _response_codes(index, item[1], m, spec.labels)
     return X, y, w, found
@@ -296,7 +340,7 @@ def _positive_rows(X: np.ndarray, y: np.ndarray | None, w: np.ndarray | None) ->
     keep = w > 0
     return X[keep], (None if y is None else y[keep]), w[keep]
 
-def _merge_labels(a: dict, b: dict) -> dict:
+def _merge_labels(a: dict, b: dict, keep: int | None = 3) -> dict:
     out = {k: list(v) for k, v in a.items()}
     for label, (block, row, total) in b.items():
         if label in out:
@@ -312,7 +356,7 @@ def _merge_labels(a: dict, b: dict) -> dict:
             "y mixes label types across blocks that cannot be ordered (for example numbers in one "
             "block and text in another); use one type for every label"
         ) from None
-    return _earliest(out)
+    return _earliest(out, keep)
 
 def _add(a: dict, b: dict) -> dict:
     """Sum of two partial results (maxima for ``top``, logical and for ``finite``)."""

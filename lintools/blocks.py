@@ -46,6 +46,24 @@ search is a pass that also evaluates the trial point, so an accepted full step c
 pass.  It stops on the rule of the in-memory fit: the max-abs gradient per standardised
 column is ``<= tol``.
 
+Softmax (multinomial logistic) regression (:func:`softmax_blocks`) minimises
+
+.. math::
+
+    -\sum_i w_i \log \pi_{i c_i} + \tfrac{\lambda}{2}\lVert B\rVert_F^2,
+    \qquad \pi_{ik} = \frac{\exp(b_k + x_i^\top B_{\cdot k})}{\sum_j \exp(b_j + x_i^\top B_{\cdot j})},
+
+the same way: the first pass also keeps every label with its total weight (the classes,
+the check that each has positive weight, the starting intercepts and the closed-form
+null deviance :math:`-2\sum_k W_k\log(W_k/W)`); later passes code ``y`` as class indices
+and sum the objective, the gradient and the ``K' x K'`` blocks of the information
+``[1, X]' W_{km} [1, X]`` (``K' = K - 1`` free classes with a reference class, ``K`` in
+the symmetric form, which needs ``l2 > 0`` and is solved in the subspace orthogonal to
+the shared shift of the intercepts, as :func:`lintools.softmax` does).  Separation shows
+as rows whose own class leads every other by more than 30 in the linear predictor
+(Albert & Anderson 1984).  The result is the :class:`lintools.SoftmaxFit` of
+:func:`lintools.softmax` on the concatenated rows.
+
 References
 ----------
 Demmel, J., Grigori, L., Hoemmen, M. & Langou, J. (2012). Communication-optimal parallel
@@ -56,11 +74,14 @@ Bjorck, A. (1987). Stability analysis of the method of seminormal equations for 
 least squares problems. Linear Algebra and its Applications 88/89, 31-48.
 Albert, A. & Anderson, J. A. (1984). On the existence of maximum likelihood estimates in
 logistic regression models. Biometrika 71, 1-10.
+McCullagh, P. & Nelder, J. A. (1989). Generalized Linear Models, 2nd ed., sec. 6.4.
+Chapman & Hall.
 """
 
 from __future__ import annotations
 
 from ._blocks_newton import logistic_blocks
+from ._blocks_softmax import softmax_blocks
 from ._blocks_tsqr import least_squares_blocks
 
-__all__ = ["least_squares_blocks", "logistic_blocks"]
+__all__ = ["least_squares_blocks", "logistic_blocks", "softmax_blocks"]

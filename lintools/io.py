@@ -173,6 +173,7 @@ def _decode_array(value: dict, where: str) -> np.ndarray:
         not isinstance(flat, list)
         or not isinstance(shape, list)
         or not all(isinstance(d, int) and not isinstance(d, bool) and d >= 0 for d in shape)
+        or not isinstance(dtype, str)
         or dtype not in _DTYPES
     ):
         raise InputError(f"model file: {where} is a malformed array")

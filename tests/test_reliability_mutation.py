@@ -81,6 +81,8 @@ CALLS = [
          {"X": X, "y": YL, "weights": W}),
     Call("logistic_blocks", lambda X, y, weights: lt.logistic_blocks(_two_blocks(X, y, weights)),
          {"X": X, "y": YB, "weights": W}),
+    Call("softmax_blocks", lambda X, y, weights: lt.softmax_blocks(_two_blocks(X, y, weights)),
+         {"X": X, "y": Y3, "weights": W}),
     Call("LinearFit.mean", LIN.mean, {"X": X}),
     Call("LinearFit.linear_predictor", LIN.linear_predictor, {"X": X}),
     Call("LogisticFit.mean", LOGI.mean, {"X": X, "offset": OFF}),

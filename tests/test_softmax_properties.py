@@ -15,7 +15,7 @@ import tempfile
 import mpmath
 import numpy as np
 import pytest
-from hypothesis import given, settings
+from hypothesis import assume, given, settings
 from hypothesis import strategies as st
 from sklearn.datasets import load_wine
 from sklearn.linear_model import LogisticRegression
@@ -73,6 +73,8 @@ def test_shared_shift_changes_no_probability(seed, shift):
 def test_duplicated_rows_equal_weight_two_and_row_order(seed):
     # source: case weights count repeated rows (common practice)
     X, y = _data(seed, n=40)
+    # small random draws can be quasi-separated (then no estimate exists): those are filtered
+    assume(lt.check_separation(X, y).kind == "none")
     rng = np.random.default_rng(seed)
     dup = rng.random(40) < 0.3
     w = np.where(dup, 2.0, 1.0)
