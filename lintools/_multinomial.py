@@ -31,9 +31,37 @@ Statistical Mathematics 44, 197-200.
 
 from __future__ import annotations
 
+from typing import Any
+
 import numpy as np
 
 __all__ = ["MultinomialLoss", "softmax_parts"]
+
+
+#: Up to this many columns, row reductions of an (n, K) array run column by column (a
+#: reduction along a short contiguous axis is slow in NumPy); the sums are the same
+#: left-to-right sums either way.
+_FEW_COLUMNS = 16
+
+
+def row_max(M: np.ndarray) -> np.ndarray:
+    """``M.max(axis=1)`` for a 2-D array."""
+    if M.shape[1] == 0 or M.shape[1] > _FEW_COLUMNS:
+        return np.max(M, axis=1)
+    out = M[:, 0].copy()
+    for k in range(1, M.shape[1]):
+        np.maximum(out, M[:, k], out=out)
+    return out
+
+
+def row_sum(M: np.ndarray) -> np.ndarray:
+    """``M.sum(axis=1)`` for a 2-D array, adding the columns left to right."""
+    if M.shape[1] == 0 or M.shape[1] > _FEW_COLUMNS:
+        return np.sum(M, axis=1)
+    out = M[:, 0].copy()
+    for k in range(1, M.shape[1]):
+        out += M[:, k]
+    return out
 
 
 def softmax_parts(E: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -43,10 +71,10 @@ def softmax_parts(E: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     rows = np.arange(n)
     top = np.argmax(E, axis=1)
     ex = np.exp(E - E[rows, top][:, None])  # in [0, 1], the maximum exactly 1
-    total = ex.sum(axis=1)
+    total = row_sum(ex)
     ex_top = ex[rows, top].copy()
     ex[rows, top] = 0.0
-    rest = ex.sum(axis=1)  # sum of the non-maximal terms
+    rest = row_sum(ex)  # sum of the non-maximal terms
     ex[rows, top] = ex_top
     P = ex / total[:, None]
     Q = (total[:, None] - ex) / total[:, None]
@@ -81,6 +109,10 @@ class MultinomialLoss:
         self._rows = np.arange(n)
         self._first = int(self.reference)
         self._cache: tuple | None = None
+
+    def subset(self, rows: np.ndarray) -> "MultinomialLoss":
+        """The same loss on the given rows."""
+        return MultinomialLoss(self.codes[rows], self.K, self.weights[rows], self.reference)
 
     # ---- helpers -----------------------------------------------------------------------
     def full(self, eta: np.ndarray) -> np.ndarray:
@@ -134,7 +166,7 @@ class MultinomialLoss:
     def _terms(self, eta: np.ndarray) -> np.ndarray:
         """``-log pi_{i c_i}`` per row: ``(max - E_own) + log1p(rest)``, each part >= 0."""
         E, _, _, lognorm = self._parts(eta)
-        return (np.max(E, axis=1) - self._own(E)) + lognorm
+        return (row_max(E) - self._own(E)) + lognorm
 
     def value(self, eta: np.ndarray) -> float:
         """:math:`\\ell(E)` of the module docstring."""
@@ -150,9 +182,9 @@ class MultinomialLoss:
         """
         E, P, _, _ = self._parts(eta)
         D = self.full(np.asarray(delta))
-        small = np.max(np.abs(D), axis=1) <= 1.0
+        small = row_max(np.abs(D)) <= 1.0
         Ds = np.where(small[:, None], D, 0.0)
-        change = np.log1p(np.sum(P * np.expm1(Ds), axis=1)) - self._own(Ds)
+        change = np.log1p(row_sum(P * np.expm1(Ds))) - self._own(Ds)
         if not small.all():
             far = ~small
             Ef, Df = E[far], D[far]
@@ -160,7 +192,7 @@ class MultinomialLoss:
             r = np.arange(c.size)
 
             def terms(M: np.ndarray) -> np.ndarray:
-                return (np.max(M, axis=1) - M[r, c]) + softmax_parts(M)[2]
+                return (row_max(M) - M[r, c]) + softmax_parts(M)[2]
 
             change[far] = terms(Ef + Df) - terms(Ef)
         return float(self.weights @ change)
@@ -182,12 +214,16 @@ class MultinomialLoss:
 
     def curvature(self, eta: np.ndarray) -> np.ndarray:
         """Per-row Hessian blocks ``w (diag pi - pi pi')`` on the free columns, (n, K', K')."""
+        return self.curvature_rows(eta, slice(None))
+
+    def curvature_rows(self, eta: np.ndarray, rows: Any) -> np.ndarray:
+        """``curvature(eta)[rows]``, formed on those rows only (the Newton sketch's rows)."""
         _, P, Q, _ = self._parts(eta)
-        Pf, Qf = P[:, self._first :], Q[:, self._first :]
+        Pf, Qf = P[rows, self._first :], Q[rows, self._first :]
         W = -Pf[:, :, None] * Pf[:, None, :]
         k = np.arange(Pf.shape[1])
         W[:, k, k] = Pf * Qf
-        W *= self.weights[:, None, None]
+        W *= self.weights[rows, None, None]
         return W[:, 0, 0] if eta.ndim == 1 else W
 
     def hessian_vector(self, eta: np.ndarray, u: np.ndarray) -> np.ndarray:

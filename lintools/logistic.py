@@ -89,6 +89,12 @@ def _labels(y: Any, n: int) -> tuple[tuple, np.ndarray]:
     arr = y if isinstance(y, np.ndarray) else None
     if arr is not None and arr.ndim == 1 and arr.shape[0] == n and arr.dtype.kind in "biuf":
         if arr.dtype.kind != "f" or np.all(np.isfinite(arr)):
+            if n and arr.dtype.kind != "b":
+                lo, hi = arr.min(), arr.max()
+                if lo != hi:  # two values only (the usual binary target): no sort needed
+                    top = arr == hi
+                    if np.count_nonzero(top) + np.count_nonzero(arr == lo) == n:
+                        return (lo.item(), hi.item()), top.astype(np.intp)
             uniq, codes = np.unique(arr, return_inverse=True)
             return tuple(uniq.tolist()), codes.astype(np.intp)
     return as_labels(y, "y", n)  # everything else, and the error messages
@@ -172,9 +178,24 @@ def check_parameters_and_rows(k: int, rows: int) -> None:
         )
 
 
-def _constant_columns(Xa: np.ndarray, use: np.ndarray, names: tuple[str, ...]) -> None:
-    rows = Xa if use.all() else Xa[use]
-    const = np.flatnonzero(np.max(rows, axis=0) == np.min(rows, axis=0))
+def _constant_columns(Xa: np.ndarray, use: np.ndarray, names: tuple[str, ...],
+                      spread: np.ndarray | None = None, centre: np.ndarray | None = None) -> None:
+    """Raise on a column that is constant on the rows used.
+
+    With the problem's weighted ``spread`` and ``centre`` of each column only the columns
+    whose spread could be the rounding noise of a constant column (at most
+    ``max(1e-6, 8 n eps)`` times the centre: the error of a weighted mean is below
+    ``n eps`` of it) are checked exactly, so the usual case costs no pass over X.
+    """
+    if spread is not None and centre is not None:
+        bound = max(1e-6, 8.0 * Xa.shape[0] * float(np.finfo(float).eps)) * np.abs(centre)
+        cols = np.flatnonzero(~(np.isfinite(spread) & (spread > bound)))
+        if not cols.size:
+            return
+    else:
+        cols = np.arange(Xa.shape[1])
+    rows = Xa[:, cols] if use.all() else Xa[np.ix_(use, cols)]
+    const = cols[np.max(rows, axis=0) == np.min(rows, axis=0)]
     if const.size:
         j = int(const[0])
         raise InputError(
@@ -382,11 +403,10 @@ def logistic(
         raise InputError(f"y has {which} on the rows with positive weight; a logistic model needs both outcomes")
     if lam == 0:
         check_parameters_and_rows(p + int(intercept), int(np.count_nonzero(v > 0)))
-    if intercept and p and lam == 0:
-        _constant_columns(Xa, v > 0, names_t)
-
     loss = BinomialLoss(yy, m if trials is not None else None, w)
     problem = LinearModelProblem(Xa, loss, intercept=intercept, l2=lam, offset=off, jeffreys=firth)
+    if intercept and p and lam == 0:
+        _constant_columns(Xa, v > 0, names_t, problem.spread, problem.c)
     watch = _Watch(loss, off) if (lam == 0 and not firth) else None
     try:
         res, checked = run_with_check(problem, solver, tol, max_iter, on_iteration, watch,
@@ -402,11 +422,19 @@ def logistic(
     except SingularMatrixError:
         _diagnose_singular(Xa, loss, intercept, names_t, lam, firth, watch, checked,
                            "the information matrix is singular at the answer")
-    ev = problem.evaluate(z)
+    ev = final_evaluation(problem, res)
     if watch is not None and not checked:
         _final_check(res, ev, V, problem, watch, Xa, loss, intercept, names_t)
     return _package(problem, loss, res, ev, V, z, Xa, off, names_t, classes, positive_class, lam, firth,
                     trials is not None, intercept, solver, tol, max_iter, profile, float(profile_level), y)
+
+
+def final_evaluation(problem: Any, res: SolverResult) -> Evaluation:
+    """The solver's (fresh) evaluation at its answer, or a new one."""
+    ev = res.evaluation
+    if ev is not None and ev.fresh and ev.eta is problem.eta(res.z):
+        return ev
+    return problem.evaluate(res.z, fresh=True)
 
 
 def run_with_check(problem, solver, tol, max_iter, on_iteration, watch, check, start=None, on_separated=None):
@@ -438,7 +466,7 @@ def run_with_check(problem, solver, tol, max_iter, on_iteration, watch, check, s
         message = more.message
     merged = SolverResult(z=more.z, converged=more.converged, iterations=total, objective=more.objective,
                           gradient_norm=more.gradient_norm, status=more.status, message=message,
-                          solver=more.solver)
+                          solver=more.solver, evaluation=more.evaluation)
     return merged, diag is not None
 
 

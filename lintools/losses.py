@@ -124,6 +124,12 @@ class BinomialLoss:
         self._wf = self.weights * (self.trials - y)  # weighted failures
         self._wm = self.weights * self.trials
         self._cache: tuple | None = None  # (eta, (e, mu, nu)) of the last linear predictor
+        # one trial per row with a 0/1 outcome: each row has one softplus term in the
+        # margin u = sgn * eta (sgn = 1 - 2y), value w log(1 + e^u), gradient w sgn q and
+        # curvature w q (1 - q) with q = 1 / (1 + e^-u): no selection by outcome per row
+        self._binary = bool(trials is None and np.all((y == 0) | (y == 1)))
+        self._sgn = 1.0 - 2.0 * y if self._binary else None
+        self._wsgn = self.weights * self._sgn if self._binary else None
 
     def _parts(self, eta: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """``(exp(-|eta|), mu, 1 - mu)``, kept for the last ``eta``: the solvers ask for the
@@ -131,13 +137,36 @@ class BinomialLoss:
         cached = self._cache
         if cached is not None and cached[0] is eta:
             return cached[1]
+        if self._binary:  # (e, q, 1 - q) in the margin: q is mu for y = 0 and 1 - mu for y = 1
+            u = self._sgn * eta
+            e = np.exp(-np.abs(u))
+            with np.errstate(over="ignore"):
+                q = np.exp(-u)
+                q += 1.0
+                np.reciprocal(q, out=q)
+                qc = np.exp(u, out=u)
+                qc += 1.0
+                np.reciprocal(qc, out=qc)
+            parts = (e, q, qc)
+            self._cache = (eta, parts)
+            return parts
         e = np.exp(-np.abs(eta))
-        big = 1.0 / (1.0 + e)
-        small = e * big
-        pos = eta >= 0
-        parts = (e, np.where(pos, big, small), np.where(pos, small, big))
+        # mu = 1 / (1 + e^-eta) and 1 - mu = 1 / (1 + e^eta), each directly to a few ulp; an
+        # overflowing exp (|eta| > 709) gives the correct limit 0 for the tiny one
+        with np.errstate(over="ignore"):
+            mu = np.exp(-eta)
+            mu += 1.0
+            np.reciprocal(mu, out=mu)
+            nu = np.exp(eta)
+            nu += 1.0
+            np.reciprocal(nu, out=nu)
+        parts = (e, mu, nu)
         self._cache = (eta, parts)
         return parts
+
+    def subset(self, rows: np.ndarray) -> "BinomialLoss":
+        """The same loss on the given rows."""
+        return BinomialLoss(self.y[rows], self.trials[rows] if self.grouped else None, self.weights[rows])
 
     # ---- interface -------------------------------------------------------------
     def row_weights(self) -> np.ndarray:
@@ -160,6 +189,8 @@ class BinomialLoss:
         With ``log(1 + e^x) = max(x, 0) + log1p(e^{-|x|})`` the two softplus terms of a row
         share one ``log1p(exp(-|eta|))``, all parts non-negative."""
         e = self._parts(eta)[0]
+        if self._binary:
+            return float(self.weights @ (np.maximum(self._sgn * eta, 0.0) + np.log1p(e)))
         return float(self._wy @ np.maximum(-eta, 0.0) + self._wf @ np.maximum(eta, 0.0) + self._wm @ np.log1p(e))
 
     def value_change(self, eta: np.ndarray, delta: np.ndarray) -> float:
@@ -170,19 +201,37 @@ class BinomialLoss:
         rounding); larger moves use the plain difference, which is then accurate relative
         to the change.
         """
+        if self._binary:
+            return self._binary_change(eta, delta)
         _, mu, nu = self._parts(eta)
         up, down = _softplus_changes(eta, delta, mu, nu)
         return float(self._wy @ down + self._wf @ up)
 
+    def _binary_change(self, eta: np.ndarray, delta: np.ndarray) -> float:
+        """``value_change`` for 0/1 outcomes: one softplus change per row, in the margin.
+
+        With ``u = sgn eta`` and ``q = 1 / (1 + e^-u)`` a row changes by
+        ``log1p(q expm1(sgn delta))`` (the form of :func:`_softplus_changes`)."""
+        _, q, _ = self._parts(eta)
+        sd = np.clip(delta, -1.0, 1.0)
+        sd *= self._sgn
+        change = np.log1p(q * np.expm1(sd))
+        far = np.flatnonzero(np.abs(delta) > 1.0)
+        if far.size:  # large moves: the plain difference is accurate relative to them
+            u = self._sgn[far] * eta[far]
+            change[far] = log1pexp(u + self._sgn[far] * delta[far]) - log1pexp(u)
+        return float(self.weights @ change)
+
     def gradient(self, eta: np.ndarray) -> np.ndarray:
         """``d value / d eta = w [(m - y) mu - y (1 - mu)] = w (m mu - y)``."""
         _, mu, nu = self._parts(eta)
+        if self._binary:
+            return self._wsgn * mu  # (here mu is q of the margin)
         return self._wf * mu - self._wy * nu
 
     def value_and_gradient(self, eta: np.ndarray) -> tuple[float, np.ndarray]:
         """``(value(eta), gradient(eta))`` sharing one evaluation of ``mu``."""
-        _, mu, nu = self._parts(eta)
-        return self.value(eta), self._wf * mu - self._wy * nu
+        return self.value(eta), self.gradient(eta)
 
     def curvature(self, eta: np.ndarray) -> np.ndarray:
         """IRLS weights ``w m mu (1 - mu)`` (the second derivative of each term)."""
@@ -241,6 +290,9 @@ class BinomialLoss:
 
     def deviance(self, eta: np.ndarray) -> float:
         r"""Twice the log-likelihood ratio against the saturated model (``mu_i = y_i / m_i``)."""
+        if self._binary:
+            # saturated log-likelihood 0: twice the value, whose terms are all >= 0
+            return 2.0 * self.value(eta)
         m, y = self.trials, self.y
         f = m - y
         with np.errstate(divide="ignore", invalid="ignore"):

@@ -47,6 +47,7 @@ from .logistic import (
     _target_name,
     check_parameters_and_rows,
     convergence_record,
+    final_evaluation,
     run_with_check,
 )
 from .solvers import SOLVERS, AffineProblem, Evaluation, IterationRecord, LinearModelProblem, SingularMatrixError, inverse_spd
@@ -225,8 +226,6 @@ def softmax(
     off_full = None if offset is None else as_offset(offset, n, K)
     if lam == 0:
         check_parameters_and_rows(p + int(intercept), int(np.count_nonzero(w > 0)))
-    if intercept and p and lam == 0:
-        _constant_columns(Xa, w > 0, names_t)
 
     # internal class order: the reference class first, the others in classes order
     order = np.arange(K) if ref is None else np.array([ref] + [k for k in range(K) if k != ref])
@@ -238,6 +237,8 @@ def softmax(
         off = off_full[:, order]
         off = off[:, 1:] - off[:, :1] if ref is not None else off
     problem = LinearModelProblem(Xa, loss, intercept=intercept, l2=lam, offset=off)
+    if intercept and p and lam == 0:
+        _constant_columns(Xa, w > 0, names_t, problem.spread, problem.c)
     target = problem
     start = None
     if ref is None and intercept:
@@ -278,7 +279,7 @@ def softmax(
         Vz = _z_covariance(problem, target, z)
     except SingularMatrixError:
         fail("the information matrix is singular at the answer", z)
-    ev = problem.evaluate(z)
+    ev = final_evaluation(problem, res) if target is problem else problem.evaluate(z, fresh=True)
     if watch is not None and not checked:
         _final_check(res, ev, Vz, problem, watch, lambda: _exact_check(Xa, codes, tuple(classes), w, intercept, names_t),
                      Xa.size * K)

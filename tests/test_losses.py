@@ -155,3 +155,52 @@ def test_start_intercept_is_the_logit_of_the_weighted_rate():
     loss = BinomialLoss(np.array([1.0, 0.0, 3.0]), np.array([1.0, 2.0, 4.0]), np.array([2.0, 1.0, 1.0]))
     rate = (2 * 1 + 0 + 3) / (2 * 1 + 2 + 4)
     assert loss.start_intercept() == pytest.approx(math.log(rate / (1 - rate)), rel=1e-15)
+
+
+def test_binary_margin_form_matches_mpmath():
+    # source: mpmath, 50 significant digits; 0/1 outcomes without trials use the one-term
+    # margin form (u = (1 - 2y) eta), which must agree with the two-term definition
+    rng = np.random.default_rng(11)
+    eta = np.concatenate([ETA, -ETA])
+    y = (rng.random(eta.size) < 0.5).astype(float)
+    w = rng.random(eta.size) + 0.5
+    loss = BinomialLoss(y, None, w)
+    assert loss._binary
+    exact = _mp_terms(eta, y, np.ones(eta.size), w)
+    total = float(sum(t[0] for t in exact))
+    assert abs(loss.value(eta) - total) <= 4e-16 * total
+    assert abs(loss.deviance(eta) - 2 * total) <= 8e-16 * total  # saturated log-likelihood 0
+    for k, got in enumerate([loss.gradient(eta), loss.curvature(eta)]):
+        ref = np.array([float(t[k + 1]) for t in exact])
+        np.testing.assert_allclose(got, ref, rtol=1e-14, atol=1e-300)
+
+
+@settings(max_examples=40, deadline=None)
+@given(st.floats(-60, 60), st.floats(1e-30, 3.0), st.booleans(), st.booleans())
+def test_binary_value_change_is_accurate_small_and_large(e0, d, negative, positive):
+    # source: mpmath at 100 digits; small moves through log1p(q expm1(sgn d)), moves past
+    # 1 through the plain difference, each exact to rounding of the change
+    d = -d if negative else d
+    yy = 1.0 if positive else 0.0
+    loss = BinomialLoss(np.array([yy]))
+    got = loss.value_change(np.array([e0]), np.array([d]))
+    with mpmath.workdps(100):
+        f = lambda t: mpmath.log1p(mpmath.exp(-t)) if positive else mpmath.log1p(mpmath.exp(t))  # noqa: E731
+        a = mpmath.mpf(e0)
+        ref = float(f(a + mpmath.mpf(d)) - f(a))
+        size = float(f(a))
+    tol = 1e-14 * abs(ref) if abs(d) <= 1 else 1e-14 * max(abs(ref), size)
+    assert abs(got - ref) <= tol + 1e-300
+
+
+def test_subset_is_the_loss_of_the_chosen_rows():
+    # source: the definition (a sum over rows; common practice)
+    rng = np.random.default_rng(12)
+    y, m, w = rng.integers(0, 4, 30).astype(float), np.full(30, 4.0), rng.random(30)
+    eta = rng.normal(size=30)
+    rows = np.array([1, 4, 5, 17, 29])
+    for loss in (BinomialLoss(y, m, w), BinomialLoss((y > 1).astype(float), None, w)):
+        sub = loss.subset(rows)
+        whole = type(loss)(loss.y[rows], loss.trials[rows] if loss.grouped else None, loss.weights[rows])
+        assert sub.value(eta[rows]) == whole.value(eta[rows])
+        np.testing.assert_array_equal(sub.gradient(eta[rows]), loss.gradient(eta)[rows])

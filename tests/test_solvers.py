@@ -228,3 +228,98 @@ def test_newton_sketch_reaches_the_exact_newton_optimum(monkeypatch):
         assert a.convergence.converged and b.convergence.converged
         np.testing.assert_allclose(a.coefficients, b.coefficients, rtol=1e-9, atol=1e-12)
         np.testing.assert_allclose(a.standard_errors, b.standard_errors, rtol=1e-9, atol=1e-12)
+
+
+def _exact_path(monkeypatch):
+    """Switch off every large-problem shortcut: float32 step Hessians, the subsample warm
+    start, Hessian reuse, the Newton sketch and the carried linear predictor."""
+    import lintools.solvers as solvers_module
+    import lintools.solvers.newton as newton_module
+
+    monkeypatch.setattr(solvers_module, "SINGLE_MIN_ROWS", np.inf)
+    monkeypatch.setattr(solvers_module, "WARM_MIN_ROWS", np.inf)
+    monkeypatch.setattr(newton_module, "SKETCH_UNTIL", np.inf)
+    monkeypatch.setattr(newton_module, "CARRY_ABOVE", np.inf)
+
+
+def _large_data():
+    rng = np.random.default_rng(21)
+    n = 60_000
+    X = rng.normal(size=(n, 4)) * [1.0, 3.0, 0.2, 50.0] + [0.0, 5.0, -1.0, 1e3]
+    yb = rng.random(n) < 1 / (1 + np.exp(-(X @ [0.5, -0.3, 2.0, 0.01] - 9.5)))
+    yk = np.digitize(X[:, 0] + 0.4 * X[:, 1] + rng.logistic(size=n), [1.0, 3.0])
+    return X, yb, yk
+
+
+def test_float32_steps_reach_the_float64_optimum_and_covariance(monkeypatch):
+    # source: the exact float64-Hessian Newton fit on the same data (float32 step
+    # Hessians, the warm start and Hessian reuse change only the path: the stopping test
+    # is on the float64 gradient, and the covariance is always formed in float64)
+    from lintools import softmax
+
+    X, yb, yk = _large_data()
+    used = []
+    real = LinearModelProblem._information_one
+    monkeypatch.setattr(LinearModelProblem, "_information_one",
+                        lambda self, W, single: used.append(single) or real(self, W, single))
+    fast = [logistic(X, yb, tol=1e-8), softmax(X, yk, tol=1e-8)]
+    assert any(used) and not used[-1]  # float32 steps were taken; the covariance is float64
+    _exact_path(monkeypatch)
+    used.clear()
+    exact = [logistic(X, yb, tol=1e-8), softmax(X, yk, tol=1e-8)]
+    assert not any(used)
+    for a, b in zip(fast, exact):
+        assert a.convergence.converged and b.convergence.converged
+        assert a.convergence.gradient_norm <= 1e-8
+        np.testing.assert_allclose(a.coefficients, b.coefficients, rtol=1e-10, atol=1e-13)
+        np.testing.assert_allclose(a.covariance, b.covariance, rtol=1e-12, atol=1e-12 * np.abs(b.covariance).max())
+        assert abs(a.log_likelihood - b.log_likelihood) <= 1e-12 * abs(b.log_likelihood)
+
+
+def test_float32_steps_are_refused_for_an_ill_conditioned_design(monkeypatch):
+    # source: scikit-learn's copy of the Wisconsin breast-cancer data (UCI), whose columns
+    # are nearly collinear (radius, perimeter, area); the test of conditioning must send
+    # the steps back to float64, and the fit must equal the float64 one
+    import lintools.solvers as solvers_module
+    from sklearn.datasets import load_breast_cancer
+
+    data = load_breast_cancer()
+    X, y = data.data, data.target
+    monkeypatch.setattr(solvers_module, "SINGLE_MIN_ROWS", 0)
+    seen = []
+    real = LinearModelProblem.step_hessian
+    monkeypatch.setattr(LinearModelProblem, "step_hessian",
+                        lambda self, z, E=None: (seen.append(self.single), real(self, z, E), seen.append(self.single))[1])
+    fast = logistic(X, y, l2=1.0, tol=1e-9)
+    assert seen[0] is True and seen[-1] is False  # tried float32, refused it for good
+    _exact_path(monkeypatch)
+    exact = logistic(X, y, l2=1.0, tol=1e-9)
+    np.testing.assert_allclose(fast.coefficients, exact.coefficients, rtol=1e-9, atol=1e-12)
+    np.testing.assert_allclose(fast.covariance, exact.covariance, rtol=1e-11, atol=1e-14)
+
+
+def test_reported_evaluation_is_fresh_after_carried_linear_predictors():
+    # source: the definition (the answer's objective and gradient are those of X beta + b
+    # formed anew, not of the line search's eta + t X d; common practice)
+    X, yb, _ = _large_data()
+    P = LinearModelProblem(X, BinomialLoss(yb.astype(float)))
+    res = solve(P, "newton", tol=1e-8, max_iter=50)
+    assert res.converged and res.evaluation is not None and res.evaluation.fresh
+    Q = LinearModelProblem(X, BinomialLoss(yb.astype(float)))
+    ev = Q.evaluate(res.z)
+    assert ev.value == res.evaluation.value and ev.gradient_norm == res.evaluation.gradient_norm
+    np.testing.assert_array_equal(ev.original_gradient, res.evaluation.original_gradient)
+
+
+def test_constant_column_is_found_on_a_large_design_without_a_full_scan():
+    # source: common practice (a column constant on the rows used is aliased with the
+    # intercept); 0.1 is not a binary fraction, so its weighted mean is not exactly 0.1
+    from lintools import InputError
+
+    X, yb, _ = _large_data()
+    Xc = np.column_stack([X, np.full(X.shape[0], 0.1)])
+    w = np.ones(X.shape[0])
+    Xc[:7, 4] = 5.0  # differs only on rows of weight zero
+    w[:7] = 0.0
+    with pytest.raises(InputError, match=r"column 4 \('x5'\) is constant"):
+        logistic(Xc, yb, weights=w)

@@ -14,6 +14,19 @@ a Hessian from a fixed row subsample (Newton sketch, Pilanci & Wainwright 2017) 
 gradient has fallen by ``SKETCH_UNTIL``, or at once when a sketched step needs halving;
 the final iterations are exact Newton steps, so convergence stays quadratic at the end.
 
+Large problems (``LinearModelProblem`` with many rows) take three more shortcuts, none of
+which changes the answer, since the stopping test is always on the exact float64
+gradient at a freshly formed linear predictor:
+
+* the start is the optimum on a fixed row subsample (``warm_start``), so the damped early
+  iterations cost a fraction of a pass over the data;
+* the Hessians of the steps are formed in float32 when a test of conditioning allows
+  (``step_hessian``); the covariance is always formed in float64;
+* a factorised Hessian is kept for the next step while a full step with it cut the
+  gradient by ``REUSE_RATIO`` (a chord step), and the line search's ``eta + t X d`` is
+  carried to the new point instead of a new product with X; the answer's evaluation is
+  formed afresh (``Evaluation.fresh``) and rechecked before it is reported.
+
 References
 ----------
 Nocedal, J. & Wright, S. J. (2006). Numerical Optimization, 2nd ed., ch. 3. Springer.
@@ -27,7 +40,7 @@ from typing import Any, Callable
 
 import numpy as np
 
-from . import Evaluation, IterationRecord, SingularMatrixError, SolverResult, solve_spd
+from . import Evaluation, IterationRecord, SingularMatrixError, SolverResult, cholesky, solve_factored
 
 __all__ = ["newton"]
 
@@ -40,12 +53,24 @@ ROUNDING = 1e3 * float(np.finfo(float).eps)
 #: Large problems use a row-subsample Hessian (Newton sketch) until the max-abs gradient
 #: is below this fraction of its starting value; exact Hessians finish the job.
 SKETCH_UNTIL = 1e-3
+#: Problems that allow it (``problem.reuse_hessian``) keep the factorised Hessian for the
+#: next step while a full step with it cut the max-abs gradient by at least this factor
+#: (a chord step: it costs no new Hessian, and its contraction is the relative change of
+#: the Hessian, tiny near the optimum); a step that needs halving forms a fresh one.
+REUSE_RATIO = 1e-2
+#: The line search's linear predictor ``eta + t X d`` is carried to the new point (saving
+#: a pass over X) while the gradient is above this multiple of tol; closer in, the next
+#: point is likely the answer, whose evaluation must be fresh, so it is formed afresh.
+CARRY_ABOVE = 1e4
 
 
-def _finish(name, z, ev, it, status, message):
+def _finish(name, z, ev, it, status, message, problem=None):
+    if problem is not None and not ev.fresh:  # the reported evaluation is always fresh
+        ev = problem.evaluate(z, fresh=True)
     return SolverResult(
         z=z, converged=status == "converged", iterations=it, objective=ev.value,
         gradient_norm=ev.gradient_norm, status=status, message=message, solver=name,
+        evaluation=ev,
     )
 
 
@@ -81,25 +106,42 @@ def newton(
 ) -> SolverResult:
     """Minimise ``problem`` by damped Newton steps; see the module docstring."""
     name = "newton"
-    z = problem.start() if start is None else np.array(start, dtype=float)
+    z = None
+    if start is None and hasattr(problem, "warm_start"):
+        z = problem.warm_start()  # large problems: the optimum on a row subsample
+    if z is None:
+        z = problem.start() if start is None else np.array(start, dtype=float)
     ev = problem.evaluate(z)
     it = stall = 0
     g_start = ev.gradient_norm
     sketching = hasattr(problem, "sketch_hessian")
+    step_hessian = getattr(problem, "step_hessian", problem.hessian)
+    reuse_allowed = bool(getattr(problem, "reuse_hessian", False))
+    factors = None  # Cholesky factors of the last Hessian, while it may be reused
     while True:
         gnorm = ev.gradient_norm
+        if gnorm <= tol and not ev.fresh:
+            ev = problem.evaluate(z, fresh=True)  # converged on a carried-forward eta: check afresh
+            gnorm = ev.gradient_norm
         if gnorm <= tol:
-            return _finish(name, z, ev, it, "converged", converged_message(name, it, gnorm, tol))
+            return _finish(name, z, ev, it, "converged", converged_message(name, it, gnorm, tol), problem)
         if it >= max_iter:
-            return _finish(name, z, ev, it, "iteration_limit", limit_message(name, it, gnorm, tol))
+            return _finish(name, z, ev, it, "iteration_limit", limit_message(name, it, gnorm, tol), problem)
+        reused = factors is not None
+        sketched = False
         try:
-            H = problem.sketch_hessian(z) if (sketching and gnorm > SKETCH_UNTIL * g_start) else None
-            sketched = H is not None
-            if H is None:
-                H = problem.hessian(z)
-            d = -solve_spd(H, ev.gradient)
+            if factors is None and sketching and gnorm > SKETCH_UNTIL * g_start:
+                try:
+                    H = problem.sketch_hessian(z)
+                    factors = None if H is None else cholesky(H)
+                    sketched = factors is not None
+                except SingularMatrixError:
+                    sketching, factors = False, None
+            if factors is None:
+                factors = cholesky(step_hessian(z))
+            d = -solve_factored(factors, ev.gradient)
         except SingularMatrixError as exc:
-            return _finish(name, z, ev, it, "singular", f"{name}: the Hessian is singular ({exc})")
+            return _finish(name, z, ev, it, "singular", f"{name}: the Hessian is singular ({exc})", problem)
         slope = float(ev.gradient @ d)
         line = problem.line(z, d)
         t, accepted = 1.0, False
@@ -111,13 +153,26 @@ def newton(
             t *= 0.5
         if sketched and t < 1.0:
             sketching = False  # the subsample misled the step: exact Hessians from here on
+        if reused and (t < 1.0 or not accepted):
+            factors, reused = None, False  # a stale Hessian misled the step: form a fresh one
+            if not accepted:
+                continue
         if not accepted or not slope < 0:
             stall = STALL_LIMIT
         z_new = z + t * d
         try:
-            ev_new = problem.evaluate(z_new) if accepted else ev
+            if accepted:
+                adopt = getattr(line, "adopt", None)
+                if adopt is not None and gnorm > CARRY_ABOVE * tol:
+                    adopt(t, z_new)  # the line search's eta(z + t d): no new pass over X
+                ev_new = problem.evaluate(z_new)
+            else:
+                ev_new = ev
         except SingularMatrixError as exc:
-            return _finish(name, z, ev, it, "singular", f"{name}: {exc}")
+            return _finish(name, z, ev, it, "singular", f"{name}: {exc}", problem)
+        # a Hessian that made the gradient fall by REUSE_RATIO with a full step may serve again
+        if not (reuse_allowed and accepted and t == 1.0 and ev_new.gradient_norm <= REUSE_RATIO * gnorm):
+            factors = None
         if accepted:
             it += 1
             step = float(np.max(np.abs(problem.to_original(z_new) - problem.to_original(z)))) if z.size else 0.0
@@ -131,6 +186,6 @@ def newton(
             if monitor is not None and ev.gradient_norm > tol:
                 why = monitor(z, ev)
                 if why:
-                    return _finish(name, z, ev, it, "diverging", f"{name}: {why}")
+                    return _finish(name, z, ev, it, "diverging", f"{name}: {why}", problem)
         if stall >= STALL_LIMIT and ev.gradient_norm > tol:
-            return _finish(name, z, ev, it, "stalled", stalled_message(name, it, ev.gradient_norm, tol))
+            return _finish(name, z, ev, it, "stalled", stalled_message(name, it, ev.gradient_norm, tol), problem)
