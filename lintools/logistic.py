@@ -45,7 +45,7 @@ from ._validate import (
     check_positive_int,
 )
 from .inference import covariance, likelihood_ratio, null_objective, profile_bounds
-from .linalg import aliased_columns, default_rank_tolerance, solve_upper
+from .linalg import default_rank_tolerance, dependency_sentence
 from .losses import BinomialLoss
 from .solvers import (
     SOLVERS,
@@ -214,23 +214,7 @@ def _rank_message(Xa: np.ndarray, v: np.ndarray, intercept: bool, names: tuple[s
     norms = np.linalg.norm(A, axis=0)
     A /= np.where(norms > 0, norms, 1.0)
     R = np.linalg.qr(A, mode="r")
-    tol = default_rank_tolerance(*A.shape)
-    alias = np.union1d(np.flatnonzero(norms == 0), aliased_columns(R, np.ones(A.shape[1]), tol)).astype(int)
-    if not alias.size:
-        return None
-    j = int(alias[0])
-    before = [i for i in range(j) if i not in set(alias)]
-    involved = []
-    if before:
-        coef = solve_upper(R[np.ix_(before, before)], R[before, j])
-        big = np.abs(coef) > 1e-8 * max(float(np.abs(coef).max()), 1e-300)
-        involved = [f"'{names[before[t]]}'" for t in np.flatnonzero(big)]
-    also = " (plus a constant)" if intercept else ""
-    return (
-        f"X is rank deficient on the rows used: column {j} ('{names[j]}') is a linear combination "
-        f"of {', '.join(involved) if involved else 'nothing (it is zero)'}{also}; drop one of the "
-        "dependent columns, or set l2 > 0"
-    )
+    return dependency_sentence(R, norms, names, intercept, default_rank_tolerance(*A.shape))
 
 
 class _Watch:
