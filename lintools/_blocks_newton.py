@@ -162,9 +162,12 @@ class _BlockProblem:
 
 
 class _BlockLine:
-    """``F(z + t d) - F(z)``: one pass per trial ``t``, which also evaluates ``z + t d``."""
+    """``F(z + t d) - F(z)``: one pass per trial ``t``, which also evaluates ``z + t d``.
 
-    def __init__(self, problem: _BlockProblem, z: np.ndarray, d: np.ndarray) -> None:
+    Shared by the binary and the softmax blocked problems (``coefficients``, ``_pass``,
+    ``_store`` and ``l2`` are all it needs of them)."""
+
+    def __init__(self, problem: Any, z: np.ndarray, d: np.ndarray) -> None:
         self.pr, self.z, self.d = problem, z, d
 
     def change(self, t: float) -> float:
@@ -180,7 +183,7 @@ class _BlockLine:
         pr._store(z_new, part)
         c = part["change"]
         if pr.l2:
-            c += pr.l2 * (t * float(beta0 @ dbeta) + 0.5 * t * t * float(dbeta @ dbeta))
+            c += pr.l2 * (t * float(np.sum(beta0 * dbeta)) + 0.5 * t * t * float(np.sum(dbeta * dbeta)))
         return float(c)
 
 

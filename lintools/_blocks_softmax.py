@@ -19,7 +19,7 @@ from .solvers import AffineProblem, Evaluation, IterationRecord, SingularMatrixE
 from .solvers.newton import newton
 
 from ._block_stream import COLLECT_ALL, ClassIndex, _add, _merge_labels, _runner
-from ._blocks_newton import _centres_and_scales
+from ._blocks_newton import _BlockLine, _centres_and_scales
 from ._blocks_newton import _design_kernel as _binary_design_kernel
 from ._blocks_tsqr import _merge_factors
 
@@ -180,35 +180,12 @@ class _SoftmaxBlockProblem:
     def sketch_hessian(self, z: np.ndarray, E: np.ndarray | None = None) -> None:
         return None  # every pass already reads all rows: exact Hessians throughout
 
-    def line(self, z: np.ndarray, d: np.ndarray) -> "_SoftmaxBlockLine":
-        return _SoftmaxBlockLine(self, z, d)
+    def line(self, z: np.ndarray, d: np.ndarray) -> _BlockLine:
+        return _BlockLine(self, z, d)
 
     def runaway(self, z: np.ndarray) -> tuple[int, float]:
         part = self.cache[z.tobytes()][2]
         return part["runaway"], part["top"]
-
-
-class _SoftmaxBlockLine:
-    """``F(z + t d) - F(z)``: one pass per trial ``t``, which also evaluates ``z + t d``."""
-
-    def __init__(self, problem: _SoftmaxBlockProblem, z: np.ndarray, d: np.ndarray) -> None:
-        self.pr, self.z, self.d = problem, z, d
-
-    def change(self, t: float) -> float:
-        pr, z, d = self.pr, self.z, self.d
-        z_new = z + t * d
-        if np.array_equal(z_new, z):
-            return 0.0  # the step is below the rounding of z: no move, no change (a stall)
-        b0, B0 = pr.coefficients(z)
-        db, dB = pr.coefficients(d)
-        part = pr._pass(z_new, (b0, B0, db, dB, t))
-        if not part["finite"] or not math.isfinite(part["change"]):
-            return math.inf
-        pr._store(z_new, part)
-        c = part["change"]
-        if pr.l2:
-            c += pr.l2 * (t * float(np.sum(B0 * dB)) + 0.5 * t * t * float(np.sum(dB * dB)))
-        return float(c)
 
 
 class _Indexed:
