@@ -68,7 +68,47 @@ def _evaluation_kernel(X: np.ndarray, y01: np.ndarray, w: np.ndarray | None, b: 
     return out
 
 
-class _BlockProblem:
+class _PassProblem:
+    """What a blocked problem shares: one pass per evaluation, cached by ``z`` with its
+    information, and a line search whose trials evaluate their points.  Subclasses give
+    ``kernel`` (the per-block evaluation), ``coefficients`` and ``_store``."""
+
+    kernel: Any = None
+
+    def _remember(self, z: np.ndarray, ev: Evaluation, H: np.ndarray, part: dict) -> Evaluation:
+        if len(self.cache) > 4:
+            self.cache.pop(next(iter(self.cache)))
+        self.cache[z.tobytes()] = (ev, 0.5 * (H + H.T), part)
+        return ev
+
+    def _pass(self, z: np.ndarray, step: tuple | None = None) -> dict:
+        b, beta = self.coefficients(z)
+        c = self.c if self.intercept else np.zeros(self.p)
+        return self.run.reduce(type(self).kernel, _add, (b, beta, c, step))
+
+    def evaluate(self, z: np.ndarray) -> Evaluation:
+        hit = self.cache.get(z.tobytes())
+        if hit is not None:
+            return hit[0]
+        ev = self._store(z, self._pass(z))
+        if ev is None:
+            raise SingularMatrixError("the linear predictor is not finite")
+        return ev
+
+    def fisher_information(self, z: np.ndarray) -> np.ndarray:
+        """Penalised information in z (the Hessian of the objective)."""
+        self.evaluate(z)
+        return self.cache[z.tobytes()][1].copy()
+
+    def line(self, z: np.ndarray, d: np.ndarray) -> "_BlockLine":
+        return _BlockLine(self, z, d)
+
+    def runaway(self, z: np.ndarray) -> tuple[int, float]:
+        part = self.cache[z.tobytes()][2]
+        return part["runaway"], part["top"]
+
+
+class _BlockProblem(_PassProblem):
     """The logistic objective as a solver problem whose every evaluation is one pass.
 
     Coordinates as in :class:`lintools.solvers.LinearModelProblem`: ``z = (a, g)`` with
@@ -76,6 +116,8 @@ class _BlockProblem:
     design ``[1, (X - c) / s]``; evaluations (with their information) are cached by ``z``,
     and a line-search trial evaluates its point, so an accepted step costs no extra pass.
     """
+
+    kernel = staticmethod(_evaluation_kernel)
 
     def __init__(self, run: Any, c: np.ndarray, s: np.ndarray, intercept: bool, lam: float, b_start: float) -> None:
         self.run, self.c, self.s = run, c, s
@@ -128,37 +170,10 @@ class _BlockProblem:
         value = part["value"] + 0.5 * self.l2 * float(beta @ beta)
         unit = np.concatenate([[1.0], 1.0 / self.s]) if self.intercept else 1.0 / self.s
         ev = Evaluation(float(value), gz, original, None, unit)  # the in-memory, scale-free stopping rule
-        if len(self.cache) > 4:
-            self.cache.pop(next(iter(self.cache)))
-        self.cache[z.tobytes()] = (ev, 0.5 * (H + H.T), part)
-        return ev
-
-    def _pass(self, z: np.ndarray, step: tuple | None = None) -> dict:
-        b, beta = self.coefficients(z)
-        c = self.c if self.intercept else np.zeros(self.p)
-        return self.run.reduce(_evaluation_kernel, _add, (b, beta, c, step))
-
-    def evaluate(self, z: np.ndarray) -> Evaluation:
-        hit = self.cache.get(z.tobytes())
-        if hit is not None:
-            return hit[0]
-        ev = self._store(z, self._pass(z))
-        if ev is None:
-            raise SingularMatrixError("the linear predictor is not finite")
-        return ev
+        return self._remember(z, ev, H, part)
 
     def hessian(self, z: np.ndarray) -> np.ndarray:
-        self.evaluate(z)
-        return self.cache[z.tobytes()][1].copy()
-
-    fisher_information = hessian
-
-    def line(self, z: np.ndarray, d: np.ndarray) -> "_BlockLine":
-        return _BlockLine(self, z, d)
-
-    def runaway(self, z: np.ndarray) -> tuple[int, float]:
-        part = self.cache[z.tobytes()][2]
-        return part["runaway"], part["top"]
+        return self.fisher_information(z)
 
 
 class _BlockLine:

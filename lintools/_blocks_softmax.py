@@ -18,8 +18,8 @@ from .softmax import _intercept_subspace, _reference_index, _z_covariance
 from .solvers import AffineProblem, Evaluation, IterationRecord, SingularMatrixError
 from .solvers.newton import newton
 
-from ._block_stream import COLLECT_ALL, ClassIndex, _add, _merge_labels, _runner
-from ._blocks_newton import _BlockLine, _centres_and_scales
+from ._block_stream import COLLECT_ALL, ClassIndex, _merge_labels, _runner
+from ._blocks_newton import _PassProblem, _centres_and_scales
 from ._blocks_newton import _design_kernel as _binary_design_kernel
 from ._blocks_tsqr import _merge_factors
 
@@ -86,7 +86,7 @@ def _evaluation_kernel(X: np.ndarray, codes: np.ndarray, w: np.ndarray | None, i
     return out
 
 
-class _SoftmaxBlockProblem:
+class _SoftmaxBlockProblem(_PassProblem):
     """The softmax objective as a solver problem whose every evaluation is one pass.
 
     Coordinates as in :class:`lintools.solvers.LinearModelProblem` with ``K'`` outputs:
@@ -94,6 +94,8 @@ class _SoftmaxBlockProblem:
     ``b = a - c' B``.  Evaluations (with their information) are cached by ``z``; a
     line-search trial evaluates its point, so an accepted full step costs one pass.
     """
+
+    kernel = staticmethod(_evaluation_kernel)
 
     def __init__(self, run: Any, c: np.ndarray, s: np.ndarray, intercept: bool, lam: float, Kf: int,
                  a_start: np.ndarray) -> None:
@@ -149,29 +151,7 @@ class _SoftmaxBlockProblem:
         H[np.diag_indices_from(H)] += self.pen
         value = part["value"] + 0.5 * self.l2 * float(np.sum(B * B))
         ev = Evaluation(float(value), gz, original, None, self.unit)
-        if len(self.cache) > 4:
-            self.cache.pop(next(iter(self.cache)))
-        self.cache[z.tobytes()] = (ev, 0.5 * (H + H.T), part)
-        return ev
-
-    def _pass(self, z: np.ndarray, step: tuple | None = None) -> dict:
-        b, B = self.coefficients(z)
-        c = self.c if self.intercept else np.zeros(self.p)
-        return self.run.reduce(_evaluation_kernel, _add, (b, B, c, step))
-
-    def evaluate(self, z: np.ndarray) -> Evaluation:
-        hit = self.cache.get(z.tobytes())
-        if hit is not None:
-            return hit[0]
-        ev = self._store(z, self._pass(z))
-        if ev is None:
-            raise SingularMatrixError("the linear predictor is not finite")
-        return ev
-
-    def fisher_information(self, z: np.ndarray) -> np.ndarray:
-        """Penalised information in z (the Hessian of the objective)."""
-        self.evaluate(z)
-        return self.cache[z.tobytes()][1].copy()
+        return self._remember(z, ev, H, part)
 
     def hessian(self, z: np.ndarray, E: np.ndarray | None = None) -> np.ndarray:
         H = self.fisher_information(z)
@@ -179,13 +159,6 @@ class _SoftmaxBlockProblem:
 
     def sketch_hessian(self, z: np.ndarray, E: np.ndarray | None = None) -> None:
         return None  # every pass already reads all rows: exact Hessians throughout
-
-    def line(self, z: np.ndarray, d: np.ndarray) -> _BlockLine:
-        return _BlockLine(self, z, d)
-
-    def runaway(self, z: np.ndarray) -> tuple[int, float]:
-        part = self.cache[z.tobytes()][2]
-        return part["runaway"], part["top"]
 
 
 class _Indexed:
