@@ -122,6 +122,11 @@ def _as_float(obj: Any, name: str, names: Sequence[str] | None = None) -> np.nda
     return out
 
 
+def check_finite(arr: np.ndarray, name: str, names: Sequence[str] | None = None) -> None:
+    """Raise an InputError naming the first NaN or infinite entry of ``arr`` (row, column)."""
+    _check_finite(arr, name, names)
+
+
 def _check_finite(arr: np.ndarray, name: str, names: Sequence[str] | None = None) -> None:
     # one summing pass decides the usual case: a NaN or infinity makes the sum non-finite;
     # only a non-finite sum (bad entries, or an overflow of finite ones) needs the full test
@@ -139,7 +144,7 @@ def _check_finite(arr: np.ndarray, name: str, names: Sequence[str] | None = None
 
 
 def as_matrix(
-    X: Any, name: str = "X", *, min_rows: int = 1, allow_empty_columns: bool = False
+    X: Any, name: str = "X", *, min_rows: int = 1, allow_empty_columns: bool = False, check_finite: bool = True
 ) -> tuple[np.ndarray, tuple[str, ...] | None]:
     """Return ``X`` as a 2-D float64 array (a read-only view when it already is one, else a
     new array) and its column names (or None).
@@ -148,7 +153,9 @@ def as_matrix(
     ------
     InputError
         If ``X`` is not 2-D, is empty, holds text that is not a number, or holds NaN or
-        infinite values (the message names the first bad row and column).
+        infinite values (the message names the first bad row and column).  With
+        ``check_finite=False`` the caller takes on the finiteness check (the least-squares
+        Gram pass detects a non-finite entry for free and then calls :func:`check_finite`).
     """
     if X is None:
         raise InputError(f"{name} is None; pass a 2-D array of shape (rows, columns)")
@@ -167,7 +174,8 @@ def as_matrix(
         )
     if arr.shape[1] == 0 and not allow_empty_columns:
         raise InputError(f"{name} has no columns; pass at least one feature column")
-    _check_finite(arr, name, names)
+    if check_finite:
+        _check_finite(arr, name, names)
     return arr, names
 
 

@@ -69,6 +69,7 @@ from ._errors import IllConditionedWarning, InputError
 from ._records import Convergence, LinearFit
 from ._validate import (
     as_matrix,
+    check_finite,
     as_vector,
     as_weights,
     check_choice,
@@ -212,7 +213,9 @@ def _fit(
     the fast path whatever the size; its conditioning test and certificate still decide).
     ``block_rows``: rows per block on the fast path.
     """
-    Xa, found = as_matrix(X, "X")
+    # finiteness of X is left to the Gram pass (a NaN or inf makes its sums non-finite and
+    # sends the fit to the QR path), so large fits read X once less; QR checks it first
+    Xa, found = as_matrix(X, "X", check_finite=False)
     n, p = Xa.shape
     ya = as_vector(y, "y", n)
     # unit weights are kept implicit (None): no arrays of length n are made for them
@@ -252,14 +255,18 @@ def _fit(
     sol = None
     use_gram = method == "gram" or (method == "auto" and n * p > _gram.SMALL_PROBLEM)
     if use_gram and df_full > 0:
-        sol = _gram.solve_by_gram(
-            Xa, ya, w, n_pos, lam, bool(intercept), default_rank_tolerance(n, p),
-            covariance=covariance, weight_type=weight_type, diagnostics=diagnostics,
-            block_rows=block_rows,
-        )
+        # a NaN, an inf or an overflow shows as non-finite sums: the path then declines
+        # (returns None) and the QR path names the entry, so its arithmetic warnings are noise
+        with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
+            sol = _gram.solve_by_gram(
+                Xa, ya, w, n_pos, lam, bool(intercept), default_rank_tolerance(n, p),
+                covariance=covariance, weight_type=weight_type, diagnostics=diagnostics,
+                block_rows=block_rows,
+            )
     if sol is not None:
         fit = _from_gram(sol, p)
     else:
+        check_finite(Xa, "X", found)
         w_all = np.ones(n) if w is None else w
         fit = _qr_path(
             Xa, ya, w_all, lam, intercept, names_t, rank_deficient, covariance, weight_type,

@@ -400,3 +400,17 @@ def test_peak_memory_of_a_fast_fit_is_within_one_and_a_half_times_x():
         tracemalloc.stop()
     assert _is_fast(fit)
     assert peak <= 1.5 * X.nbytes, peak / X.nbytes
+
+
+@pytest.mark.parametrize("bad", [np.nan, np.inf, -np.inf])
+@pytest.mark.parametrize("weighted", [False, True])
+def test_a_non_finite_entry_in_a_large_design_is_named(bad, weighted):
+    # source: common practice (the error contract): the Gram pass, which also serves as the
+    # finiteness check of X on large problems, must hand a NaN or inf to the located error
+    rng = np.random.default_rng(3)
+    X = rng.normal(size=(30_000, 4))
+    y = X @ [1.0, 2.0, 3.0, 4.0] + rng.normal(size=30_000)
+    X[12_345, 2] = bad
+    w = rng.uniform(0.5, 2.0, size=30_000) if weighted else None
+    with pytest.raises(lt.InputError, match=r"X has a non-finite value \((nan|inf|-inf)\) at row 12345, column 2"):
+        lt.least_squares(X, y, weights=w)
