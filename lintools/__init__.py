@@ -13,6 +13,8 @@ from ._errors import (
 )
 from ._records import CoefficientTable, Convergence, LinearFit
 from .io import load, save
+from .pmml import DeliveredModel, read_pmml, write_pmml
+from .table import Table, read_table
 from .least_squares import least_squares
 from ._records import LogisticFit
 from .logistic import logistic
@@ -75,6 +77,11 @@ __all__ = [
     "check_separation",
     "load",
     "save",
+    "DeliveredModel",
+    "read_pmml",
+    "write_pmml",
+    "Table",
+    "read_table",
     "SmallClassWarning",
     "SplitBalance",
     "repeated_stratified_folds",
