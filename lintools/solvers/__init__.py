@@ -67,6 +67,7 @@ __all__ = [
     "AffineProblem",
     "RestrictedProblem",
     "SingularMatrixError",
+    "finish",
     "cholesky",
     "solve_spd",
     "solve_factored",
@@ -172,6 +173,22 @@ class Evaluation:
     def gradient_norm(self) -> float:
         g = self.original_gradient if self.unit is None else self.original_gradient * self.unit
         return float(np.max(np.abs(g))) if g.size else 0.0
+
+
+def finish(name: str, z: np.ndarray, ev: "Evaluation", it: int, status: str, message: str,
+           problem: Any = None) -> SolverResult:
+    """The :class:`SolverResult` of a solver that stops at ``z`` with evaluation ``ev``.
+
+    With ``problem`` given, an evaluation made on a carried-forward linear predictor is
+    formed afresh first: the reported one always is.
+    """
+    if problem is not None and not ev.fresh:
+        ev = problem.evaluate(z, fresh=True)
+    return SolverResult(
+        z=z, converged=status == "converged", iterations=it, objective=ev.value,
+        gradient_norm=ev.gradient_norm, status=status, message=message, solver=name,
+        evaluation=ev,
+    )
 
 
 class SingularMatrixError(ArithmeticError):

@@ -28,7 +28,7 @@ from typing import Any, Callable
 
 import numpy as np
 
-from . import Evaluation, IterationRecord, SingularMatrixError, SolverResult
+from . import Evaluation, IterationRecord, SingularMatrixError, SolverResult, finish
 from .newton import converged_message, limit_message, stalled_message
 
 __all__ = ["accelerated_gradient"]
@@ -56,16 +56,15 @@ def accelerated_gradient(
     it = stall = 0
     best_g = ev.gradient_norm
 
-    def finish(status, message):
-        return SolverResult(z=y, converged=status == "converged", iterations=it, objective=ev.value,
-                            gradient_norm=ev.gradient_norm, status=status, message=message, solver=name)
+    def done(status, message):
+        return finish(name, y, ev, it, status, message)
 
     while True:
         gnorm = ev.gradient_norm
         if gnorm <= tol:
-            return finish("converged", converged_message(name, it, gnorm, tol))
+            return done("converged", converged_message(name, it, gnorm, tol))
         if it >= max_iter:
-            return finish("iteration_limit", limit_message(name, it, gnorm, tol))
+            return done("iteration_limit", limit_message(name, it, gnorm, tol))
         g = ev.gradient
         gg = float(g @ g)
         line = problem.line(y, -g)
@@ -76,7 +75,7 @@ def accelerated_gradient(
                 break
             L *= 2.0
         else:
-            return finish("stalled", stalled_message(name, it, gnorm, tol))
+            return done("stalled", stalled_message(name, it, gnorm, tol))
         x_new = y - g / L
         if float(g @ (x_new - x)) > 0:
             tk, y_new = 1.0, x_new
@@ -88,7 +87,7 @@ def accelerated_gradient(
         try:
             ev_new = problem.evaluate(y_new)
         except SingularMatrixError as exc:
-            return finish("singular", f"{name}: {exc}")
+            return done("singular", f"{name}: {exc}")
         it += 1
         step = float(np.max(np.abs(problem.to_original(y_new) - problem.to_original(y)))) if y.size else 0.0
         improved = change < 0 or ev_new.gradient_norm < best_g
@@ -100,6 +99,6 @@ def accelerated_gradient(
         if monitor is not None and ev.gradient_norm > tol:
             why = monitor(y, ev)
             if why:
-                return finish("diverging", f"{name}: {why}")
+                return done("diverging", f"{name}: {why}")
         if stall >= PATIENCE and ev.gradient_norm > tol:
-            return finish("stalled", stalled_message(name, it, ev.gradient_norm, tol))
+            return done("stalled", stalled_message(name, it, ev.gradient_norm, tol))

@@ -32,7 +32,7 @@ from typing import Any, Callable
 
 import numpy as np
 
-from . import EPS, Evaluation, IterationRecord, SingularMatrixError, SolverResult
+from . import EPS, Evaluation, IterationRecord, SingularMatrixError, SolverResult, finish
 from .newton import converged_message, limit_message, stalled_message
 
 __all__ = ["lbfgs", "wolfe_search"]
@@ -141,16 +141,15 @@ def lbfgs(
     it = stall = 0
     best = ev.gradient_norm
 
-    def finish(status, message):
-        return SolverResult(z=z, converged=status == "converged", iterations=it, objective=ev.value,
-                            gradient_norm=ev.gradient_norm, status=status, message=message, solver=name)
+    def done(status, message):
+        return finish(name, z, ev, it, status, message)
 
     while True:
         gnorm = ev.gradient_norm
         if gnorm <= tol:
-            return finish("converged", converged_message(name, it, gnorm, tol))
+            return done("converged", converged_message(name, it, gnorm, tol))
         if it >= max_iter:
-            return finish("iteration_limit", limit_message(name, it, gnorm, tol))
+            return done("iteration_limit", limit_message(name, it, gnorm, tol))
         g = ev.gradient
         if S:
             d, t0 = _two_loop(g, S, Y), 1.0
@@ -168,12 +167,12 @@ def lbfgs(
             d, slope = -g, -float(g @ g)
             t, ft, ok = wolfe_search(problem.line(z, d), slope, 1.0 / max(1.0, float(np.max(np.abs(g)))))
         if not ok:
-            return finish("stalled", stalled_message(name, it, gnorm, tol))
+            return done("stalled", stalled_message(name, it, gnorm, tol))
         z_new = z + t * d
         try:
             ev_new = problem.evaluate(z_new)
         except SingularMatrixError as exc:
-            return finish("singular", f"{name}: {exc}")
+            return done("singular", f"{name}: {exc}")
         s, y = z_new - z, ev_new.gradient - g
         if float(s @ y) > 1e-12 * float(np.linalg.norm(s) * np.linalg.norm(y)):
             S.append(s), Y.append(y)
@@ -188,6 +187,6 @@ def lbfgs(
         if monitor is not None and ev.gradient_norm > tol:
             why = monitor(z, ev)
             if why:
-                return finish("diverging", f"{name}: {why}")
+                return done("diverging", f"{name}: {why}")
         if stall >= PATIENCE and ev.gradient_norm > tol:
-            return finish("stalled", stalled_message(name, it, ev.gradient_norm, tol))
+            return done("stalled", stalled_message(name, it, ev.gradient_norm, tol))

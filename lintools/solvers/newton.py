@@ -40,7 +40,7 @@ from typing import Any, Callable
 
 import numpy as np
 
-from . import Evaluation, IterationRecord, SingularMatrixError, SolverResult, cholesky, solve_factored
+from . import Evaluation, IterationRecord, SingularMatrixError, SolverResult, cholesky, finish, solve_factored
 
 __all__ = ["newton"]
 
@@ -62,16 +62,6 @@ REUSE_RATIO = 1e-2
 #: a pass over X) while the gradient is above this multiple of tol; closer in, the next
 #: point is likely the answer, whose evaluation must be fresh, so it is formed afresh.
 CARRY_ABOVE = 1e4
-
-
-def _finish(name, z, ev, it, status, message, problem=None):
-    if problem is not None and not ev.fresh:  # the reported evaluation is always fresh
-        ev = problem.evaluate(z, fresh=True)
-    return SolverResult(
-        z=z, converged=status == "converged", iterations=it, objective=ev.value,
-        gradient_norm=ev.gradient_norm, status=status, message=message, solver=name,
-        evaluation=ev,
-    )
 
 
 def converged_message(name: str, it: int, gnorm: float, tol: float) -> str:
@@ -124,9 +114,9 @@ def newton(
             ev = problem.evaluate(z, fresh=True)  # converged on a carried-forward eta: check afresh
             gnorm = ev.gradient_norm
         if gnorm <= tol:
-            return _finish(name, z, ev, it, "converged", converged_message(name, it, gnorm, tol), problem)
+            return finish(name, z, ev, it, "converged", converged_message(name, it, gnorm, tol), problem)
         if it >= max_iter:
-            return _finish(name, z, ev, it, "iteration_limit", limit_message(name, it, gnorm, tol), problem)
+            return finish(name, z, ev, it, "iteration_limit", limit_message(name, it, gnorm, tol), problem)
         reused = factors is not None
         sketched = False
         try:
@@ -141,7 +131,7 @@ def newton(
                 factors = cholesky(step_hessian(z))
             d = -solve_factored(factors, ev.gradient)
         except SingularMatrixError as exc:
-            return _finish(name, z, ev, it, "singular", f"{name}: the Hessian is singular ({exc})", problem)
+            return finish(name, z, ev, it, "singular", f"{name}: the Hessian is singular ({exc})", problem)
         slope = float(ev.gradient @ d)
         line = problem.line(z, d)
         t, accepted = 1.0, False
@@ -169,7 +159,7 @@ def newton(
             else:
                 ev_new = ev
         except SingularMatrixError as exc:
-            return _finish(name, z, ev, it, "singular", f"{name}: {exc}", problem)
+            return finish(name, z, ev, it, "singular", f"{name}: {exc}", problem)
         # a Hessian that made the gradient fall by REUSE_RATIO with a full step may serve again
         if not (reuse_allowed and accepted and t == 1.0 and ev_new.gradient_norm <= REUSE_RATIO * gnorm):
             factors = None
@@ -186,6 +176,6 @@ def newton(
             if monitor is not None and ev.gradient_norm > tol:
                 why = monitor(z, ev)
                 if why:
-                    return _finish(name, z, ev, it, "diverging", f"{name}: {why}", problem)
+                    return finish(name, z, ev, it, "diverging", f"{name}: {why}", problem)
         if stall >= STALL_LIMIT and ev.gradient_norm > tol:
-            return _finish(name, z, ev, it, "stalled", stalled_message(name, it, ev.gradient_norm, tol), problem)
+            return finish(name, z, ev, it, "stalled", stalled_message(name, it, ev.gradient_norm, tol), problem)
