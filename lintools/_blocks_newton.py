@@ -16,10 +16,10 @@ from ._errors import (
     SeparationError,
 )
 from ._records import Convergence, LogisticFit
-from ._validate import check_names, check_nonnegative, check_positive_int
+from ._validate import check_names
 from .inference import covariance, likelihood_ratio
 from .linalg import default_rank_tolerance, dependency_sentence
-from .logistic import ETA_LIMIT, _check_flag, _check_tol
+from .logistic import ETA_LIMIT, check_fit_settings
 from .losses import BinomialLoss
 from .solvers import Evaluation, IterationRecord, SingularMatrixError
 from .solvers.newton import newton
@@ -282,12 +282,7 @@ def logistic_blocks(
     McCullagh & Nelder (1989), Generalized Linear Models, 2nd ed., sec. 2.5 (IRLS).
     Albert & Anderson (1984), Biometrika 71, 1-10 (existence of the estimate).
     """
-    intercept = _check_flag(intercept, "intercept")
-    lam = check_nonnegative(l2, "l2")
-    tol = _check_tol(tol)
-    max_iter = check_positive_int(max_iter, "max_iter")
-    if on_iteration is not None and not callable(on_iteration):
-        raise InputError(f"on_iteration must be a callable taking one record; got {type(on_iteration).__name__}")
+    intercept, lam, tol, max_iter = check_fit_settings(intercept, l2, tol, max_iter, on_iteration)
     run = _runner(source, X, y, weights, labels="collect")
     part = run.reduce(_design_kernel, _merge_factors, (intercept,), (intercept,))
     p = run.spec.p

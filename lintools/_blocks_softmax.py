@@ -11,9 +11,9 @@ import numpy as np
 from ._errors import InputError, IterationLimitWarning, LintoolsError, LintoolsWarning, SeparationError
 from ._multinomial import MultinomialLoss
 from ._records import Convergence, SoftmaxFit
-from ._validate import check_names, check_nonnegative, check_positive_int
+from ._validate import check_names
 from .inference import likelihood_ratio
-from .logistic import ETA_LIMIT, _check_flag, _check_tol, check_parameters_and_rows
+from .logistic import ETA_LIMIT, check_fit_settings, check_parameters_and_rows
 from .softmax import _intercept_subspace, _reference_index, _z_covariance
 from .solvers import AffineProblem, Evaluation, IterationRecord, SingularMatrixError
 from .solvers.newton import newton
@@ -266,12 +266,7 @@ def softmax_blocks(
     of Statistical Mathematics 44, 197-200.
     Albert, A. & Anderson, J. A. (1984). Biometrika 71, 1-10 (existence of the estimate).
     """
-    intercept = _check_flag(intercept, "intercept")
-    lam = check_nonnegative(l2, "l2")
-    tol = _check_tol(tol)
-    max_iter = check_positive_int(max_iter, "max_iter")
-    if on_iteration is not None and not callable(on_iteration):
-        raise InputError(f"on_iteration must be a callable taking one record; got {type(on_iteration).__name__}")
+    intercept, lam, tol, max_iter = check_fit_settings(intercept, l2, tol, max_iter, on_iteration)
     if reference is None:
         _reference_index(None, (), lam)  # the symmetric form needs l2 > 0: say so before any pass
     run = _runner(source, X, y, weights, labels=COLLECT_ALL)

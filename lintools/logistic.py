@@ -178,6 +178,20 @@ def check_parameters_and_rows(k: int, rows: int) -> None:
         )
 
 
+def check_fit_settings(intercept: Any, l2: Any, tol: Any, max_iter: Any, on_iteration: Any,
+                       solver: Any = None) -> tuple[bool, float, float, int]:
+    """The settings every likelihood fit shares, checked: ``(intercept, l2, tol, max_iter)``."""
+    intercept = _check_flag(intercept, "intercept")
+    lam = check_nonnegative(l2, "l2")
+    if solver is not None:
+        check_choice(solver, "solver", SOLVERS)
+    tol = _check_tol(tol)
+    max_iter = check_positive_int(max_iter, "max_iter")
+    if on_iteration is not None and not callable(on_iteration):
+        raise InputError(f"on_iteration must be a callable taking one record; got {type(on_iteration).__name__}")
+    return intercept, lam, tol, max_iter
+
+
 def _constant_columns(Xa: np.ndarray, use: np.ndarray, names: tuple[str, ...],
                       spread: np.ndarray | None = None, centre: np.ndarray | None = None) -> None:
     """Raise on a column that is constant on the rows used.
@@ -362,15 +376,9 @@ def logistic(
     w = as_weights(weights, n)
     off = None if offset is None else as_offset(offset, n)
     yy, m, classes, positive_class = _response(y, trials, positive, n)
-    intercept = _check_flag(intercept, "intercept")
+    intercept, lam, tol, max_iter = check_fit_settings(intercept, l2, tol, max_iter, on_iteration, solver)
     firth = _check_flag(firth, "firth")
     profile = _check_flag(profile, "profile")
-    lam = check_nonnegative(l2, "l2")
-    check_choice(solver, "solver", SOLVERS)
-    tol = _check_tol(tol)
-    max_iter = check_positive_int(max_iter, "max_iter")
-    if on_iteration is not None and not callable(on_iteration):
-        raise InputError(f"on_iteration must be a callable taking one record; got {type(on_iteration).__name__}")
     if profile and not (isinstance(profile_level, numbers.Real) and 0.0 < float(profile_level) < 1.0):
         raise InputError(f"profile_level must lie strictly between 0 and 1; got {profile_level!r}")
     if firth and lam > 0:

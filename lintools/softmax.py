@@ -32,25 +32,31 @@ import numpy as np
 from ._errors import InputError, LintoolsError, SeparationError
 from ._multinomial import MultinomialLoss
 from ._records import SoftmaxFit
-from ._validate import as_matrix, as_offset, as_weights, check_choice, check_names, check_nonnegative, check_positive_int
+from ._validate import as_matrix, as_offset, as_weights, check_names
 from .inference import likelihood_ratio
 from .logistic import (
     ETA_LIMIT,
     ETA_SUSPECT,
     MOVE_SUSPECT,
     SMALL_PROBLEM,
-    _check_flag,
-    _check_tol,
     _constant_columns,
     _labels,
     _rank_message,
     _target_name,
+    check_fit_settings,
     check_parameters_and_rows,
     convergence_record,
     final_evaluation,
     run_with_check,
 )
-from .solvers import SOLVERS, AffineProblem, Evaluation, IterationRecord, LinearModelProblem, SingularMatrixError, inverse_spd
+from .solvers import (
+    AffineProblem,
+    Evaluation,
+    IterationRecord,
+    LinearModelProblem,
+    SingularMatrixError,
+    inverse_spd,
+)
 from .solvers.newton import newton
 
 __all__ = ["softmax"]
@@ -210,13 +216,7 @@ def softmax(
     if K < 2:
         raise InputError(f"y has only one class ({classes[0]!r}); a softmax model needs at least two: "
                          "check the target column or the rows selected")
-    intercept = _check_flag(intercept, "intercept")
-    lam = check_nonnegative(l2, "l2")
-    check_choice(solver, "solver", SOLVERS)
-    tol = _check_tol(tol)
-    max_iter = check_positive_int(max_iter, "max_iter")
-    if on_iteration is not None and not callable(on_iteration):
-        raise InputError(f"on_iteration must be a callable taking one record; got {type(on_iteration).__name__}")
+    intercept, lam, tol, max_iter = check_fit_settings(intercept, l2, tol, max_iter, on_iteration, solver)
     ref = _reference_index(reference, tuple(classes), lam)
     totals = np.bincount(codes, weights=w, minlength=K)
     if np.any(totals <= 0):
