@@ -3,23 +3,16 @@
 from __future__ import annotations
 
 import math
-import warnings
 from typing import Any, Callable, Sequence
 
 import numpy as np
 
-from ._errors import (
-    InputError,
-    IterationLimitWarning,
-    LintoolsError,
-    LintoolsWarning,
-    SeparationError,
-)
-from ._records import Convergence, LogisticFit
+from ._errors import InputError, LintoolsError, SeparationError
+from ._records import LogisticFit
 from ._validate import check_names
-from .inference import covariance, likelihood_ratio
+from .inference import covariance, likelihood_fields
 from .linalg import default_rank_tolerance, dependency_sentence
-from .logistic import ETA_LIMIT, check_fit_settings
+from .logistic import ETA_LIMIT, convergence_record, check_fit_settings
 from .losses import BinomialLoss
 from .solvers import Evaluation, IterationRecord, SingularMatrixError
 from .solvers.newton import newton
@@ -392,21 +385,12 @@ def _logistic_record(problem: _BlockProblem, res: Any, V: np.ndarray, W: float, 
     else:
         null_dev = 2.0 * W * math.log(2.0)
     lr = max(null_dev - dev, 0.0) if lam == 0 else float("nan")
-    message = f"{res.message}; {passes} passes over the blocks"
-    conv = Convergence(converged=bool(res.converged), iterations=int(res.iterations),
-                       gradient_norm=ev.gradient_norm, objective=ev.value, solver="newton", message=message)
-    if res.status == "iteration_limit":
-        warnings.warn(message, IterationLimitWarning, stacklevel=3)
-    elif not res.converged:
-        warnings.warn(message, LintoolsWarning, stacklevel=3)
+    conv = convergence_record(res, ev, problem, z, "newton", note=f"; {passes} passes over the blocks")
     return LogisticFit(
         coefficients=theta[int(intercept):].copy(), intercept=b, standard_errors=se[int(intercept):],
         intercept_standard_error=float(se[0]) if intercept else None, covariance=V,
-        log_likelihood=loglik, deviance=dev, aic=-2.0 * loglik + 2.0 * k,
-        bic=-2.0 * loglik + math.log(W) * k, n_observations=float(W), names=names, convergence=conv,
+        log_likelihood=loglik, deviance=dev, n_observations=float(W), names=names, convergence=conv,
         with_intercept=bool(intercept), l2=lam, classes=classes, positive_class=classes[1],
-        null_deviance=null_dev, lr_statistic=lr,
-        lr_p_value=likelihood_ratio(lr, p) if math.isfinite(lr) else float("nan"),
-        lr_degrees_of_freedom=int(p), firth=False, penalised_log_likelihood=-ev.value,
+        null_deviance=null_dev, **likelihood_fields(loglik, k, W, lr, p), firth=False, penalised_log_likelihood=-ev.value,
         grouped=False, has_offset=False, target="y",
     )

@@ -3,17 +3,16 @@
 from __future__ import annotations
 
 import math
-import warnings
 from typing import Any, Callable, Sequence
 
 import numpy as np
 
-from ._errors import InputError, IterationLimitWarning, LintoolsError, LintoolsWarning, SeparationError
+from ._errors import InputError, LintoolsError, SeparationError
 from ._multinomial import MultinomialLoss
-from ._records import Convergence, SoftmaxFit
+from ._records import SoftmaxFit
 from ._validate import check_names
-from .inference import likelihood_ratio
-from .logistic import ETA_LIMIT, check_fit_settings, check_parameters_and_rows
+from .inference import likelihood_fields
+from .logistic import ETA_LIMIT, convergence_record, check_fit_settings, check_parameters_and_rows
 from .softmax import _intercept_subspace, _reference_index, _z_covariance
 from .solvers import AffineProblem, Evaluation, IterationRecord, SingularMatrixError
 from .solvers.newton import newton
@@ -371,20 +370,12 @@ def _softmax_record(problem: _SoftmaxBlockProblem, res: Any, z: np.ndarray, Vz: 
     k_free = p1 * Kf - (1 if (ref is None and intercept) else 0)
     lr_df = p * (K - 1)
     lr = max(null_dev - dev, 0.0) if lam == 0 else float("nan")
-    message = f"{res.message}; {passes} passes over the blocks"
-    conv = Convergence(converged=bool(res.converged), iterations=int(res.iterations),
-                       gradient_norm=ev.gradient_norm, objective=ev.value, solver="newton", message=message)
-    if res.status == "iteration_limit":
-        warnings.warn(message, IterationLimitWarning, stacklevel=3)
-    elif not res.converged:
-        warnings.warn(message, LintoolsWarning, stacklevel=3)
+    conv = convergence_record(res, ev, problem, z, "newton", note=f"; {passes} passes over the blocks")
     return SoftmaxFit(
         coefficients=full_t[int(intercept):], intercept=full_t[0] if intercept else np.zeros(K),
         standard_errors=full_se[int(intercept):], intercept_standard_error=full_se[0] if intercept else None,
-        covariance=Vc, log_likelihood=loglik, deviance=dev, aic=-2.0 * loglik + 2.0 * k_free,
-        bic=-2.0 * loglik + math.log(float(W)) * k_free, n_observations=float(W), names=names, convergence=conv,
+        covariance=Vc, log_likelihood=loglik, deviance=dev, n_observations=float(W), names=names, convergence=conv,
         with_intercept=bool(intercept), l2=lam, classes=classes,
-        reference_class=None if ref is None else classes[ref], null_deviance=null_dev, lr_statistic=lr,
-        lr_p_value=likelihood_ratio(lr, lr_df) if math.isfinite(lr) else float("nan"),
-        lr_degrees_of_freedom=int(lr_df), has_offset=False, target="y",
+        reference_class=None if ref is None else classes[ref], null_deviance=null_dev,
+        **likelihood_fields(loglik, k_free, float(W), lr, lr_df), has_offset=False, target="y",
     )

@@ -40,7 +40,7 @@ from . import _distributions as dist
 from .solvers import LinearModelProblem, RestrictedProblem, SingularMatrixError, inverse_spd
 from .solvers.newton import newton
 
-__all__ = ["covariance", "null_objective", "likelihood_ratio", "profile_bounds"]
+__all__ = ["covariance", "null_objective", "likelihood_ratio", "likelihood_fields", "profile_bounds"]
 
 #: Profile searches stop when the signed root is within this of its target.
 PROFILE_TOLERANCE = 1e-9
@@ -73,6 +73,21 @@ def likelihood_ratio(statistic: float, df: int) -> float:
     if df <= 0 or not math.isfinite(statistic):
         return float("nan")
     return float(dist.chi2_sf(max(statistic, 0.0), df))
+
+
+def likelihood_fields(log_likelihood: float, parameters: int, n_observations: float, lr: float,
+                      lr_df: int) -> dict[str, float]:
+    """AIC, BIC and the likelihood-ratio fields shared by the classifier records.
+
+    ``AIC = -2 l + 2 k`` and ``BIC = -2 l + k log n`` with ``k`` free parameters; the
+    p-value is NaN when the statistic is (under a penalty)."""
+    return {
+        "aic": -2.0 * log_likelihood + 2.0 * parameters,
+        "bic": -2.0 * log_likelihood + math.log(n_observations) * parameters,
+        "lr_statistic": lr,
+        "lr_p_value": likelihood_ratio(lr, lr_df) if math.isfinite(lr) else float("nan"),
+        "lr_degrees_of_freedom": int(lr_df),
+    }
 
 
 def profile_bounds(

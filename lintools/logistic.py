@@ -44,7 +44,7 @@ from ._validate import (
     check_nonnegative,
     check_positive_int,
 )
-from .inference import covariance, likelihood_ratio, null_objective, profile_bounds
+from .inference import covariance, likelihood_fields, null_objective, profile_bounds
 from .linalg import default_rank_tolerance, dependency_sentence
 from .losses import BinomialLoss
 from .solvers import (
@@ -506,14 +506,19 @@ def _final_check(res, ev, V, problem, watch, Xa, loss, intercept, names):
 
 
 def convergence_record(res: SolverResult, ev: Evaluation, problem: Any, z: np.ndarray, solver: str,
-                       stacklevel: int = 4) -> Convergence:
-    """The fit's :class:`Convergence`; warns (our own classes) when the fit did not converge."""
+                       stacklevel: int = 4, note: str = "") -> Convergence:
+    """The fit's :class:`Convergence`; warns (our own classes) when the fit did not converge.
+
+    A stalled fit's message names an attainable tol when the problem can estimate the
+    rounding level of its gradient; ``note`` is appended to the message."""
     message = res.message
-    if res.status == "stalled":
-        level = problem.gradient_rounding(z)
+    rounding = getattr(problem, "gradient_rounding", None)
+    if res.status == "stalled" and rounding is not None:
+        level = rounding(z)
         if math.isfinite(level):
             message += (f" (worst-case rounding level of this gradient {level:.1e}: "
                         f"tol = {10 * level:.0e} is attainable)")
+    message += note
     conv = Convergence(
         converged=bool(res.converged), iterations=int(res.iterations), gradient_norm=ev.gradient_norm,
         objective=ev.value, solver=solver, message=message,
@@ -557,8 +562,6 @@ def _package(problem, loss, res, ev, V, z, Xa, off, names, classes, positive_cla
         covariance=V,
         log_likelihood=loglik,
         deviance=dev,
-        aic=-2.0 * loglik + 2.0 * k,
-        bic=-2.0 * loglik + math.log(n_obs) * k,
         n_observations=n_obs,
         names=names,
         convergence=conv,
@@ -567,9 +570,7 @@ def _package(problem, loss, res, ev, V, z, Xa, off, names, classes, positive_cla
         classes=tuple(classes),
         positive_class=positive_class,
         null_deviance=null_dev,
-        lr_statistic=lr,
-        lr_p_value=likelihood_ratio(lr, lr_df) if math.isfinite(lr) else float("nan"),
-        lr_degrees_of_freedom=int(lr_df),
+        **likelihood_fields(loglik, k, n_obs, lr, lr_df),
         firth=bool(firth),
         penalised_log_likelihood=loss.log_binomial_total() - ev.value,
         profile_intervals=bounds,

@@ -24,7 +24,6 @@ Chapman & Hall.
 
 from __future__ import annotations
 
-import math
 from typing import Any, Callable, Sequence
 
 import numpy as np
@@ -33,7 +32,7 @@ from ._errors import InputError, LintoolsError, SeparationError
 from ._multinomial import MultinomialLoss
 from ._records import SoftmaxFit
 from ._validate import as_matrix, as_offset, as_weights, check_names
-from .inference import likelihood_ratio
+from .inference import likelihood_fields
 from .logistic import (
     ETA_LIMIT,
     ETA_SUSPECT,
@@ -363,8 +362,6 @@ def _package(problem, loss, ev, Vz, z, order, ref, classes, names, lam, intercep
         covariance=Vc,
         log_likelihood=loglik,
         deviance=dev,
-        aic=-2.0 * loglik + 2.0 * k_free,
-        bic=-2.0 * loglik + math.log(n_obs) * k_free,
         n_observations=n_obs,
         names=names,
         convergence=conv,
@@ -373,9 +370,7 @@ def _package(problem, loss, ev, Vz, z, order, ref, classes, names, lam, intercep
         classes=tuple(classes),
         reference_class=None if ref is None else classes[ref],
         null_deviance=null_dev,
-        lr_statistic=lr,
-        lr_p_value=likelihood_ratio(lr, lr_df) if math.isfinite(lr) else float("nan"),
-        lr_degrees_of_freedom=int(lr_df),
+        **likelihood_fields(loglik, k_free, n_obs, lr, lr_df),
         has_offset=has_offset,
         target=_target_name(y),
     )
