@@ -32,7 +32,7 @@ import numpy as np
 from . import _distributions as dist
 from ._errors import InputError
 from ._records import INTERCEPT_NAME
-from ._validate import as_matrix, as_vector, as_weights, check_choice
+from ._validate import _as_float, as_matrix, as_vector, as_weights, check_choice
 
 __all__ = ["CoefficientComparison", "compare_coefficients", "ImpliedPenalty", "implied_l2"]
 
@@ -85,11 +85,8 @@ class CoefficientComparison:
 
 
 def _numbers(value: Any, name: str, *, vector: bool = False) -> np.ndarray:
-    """``value`` as a finite float array, or an InputError naming ``name``."""
-    try:
-        arr = np.asarray(value, dtype=float)
-    except (TypeError, ValueError):
-        raise InputError(f"{name} holds a value that is not a number; pass numbers (one per coefficient)") from None
+    """``value`` as a finite float array (the validator's conversion), or an InputError naming ``name``."""
+    arr = _as_float(value, name)
     if vector and arr.ndim == 0:
         raise InputError(f"{name} is a single number; pass a 1-D array with one entry per column of X")
     if not np.all(np.isfinite(arr)):
@@ -127,8 +124,6 @@ def _align(fit: Any, coefficients: Any, intercept: Any, names: Any) -> tuple[np.
         coef = _numbers(coefficients, "coefficients")
     if coef.shape != shape:
         raise InputError(f"coefficients has shape {coef.shape} but the refit's is {shape}; pass one per refit coefficient ({', '.join(fit.names)})")
-    if not np.all(np.isfinite(coef)):
-        raise InputError("coefficients holds a non-finite value; a delivered model must be finite")
     if intercept is not None:
         intercept = _numbers(intercept, "intercept")
         if intercept.shape != np.shape(fit.intercept):
