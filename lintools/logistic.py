@@ -232,9 +232,13 @@ def _rank_message(Xa: np.ndarray, v: np.ndarray, intercept: bool, names: tuple[s
 
 
 class _Watch:
-    """Divergence monitor: rows whose linear predictor runs off on the side of their outcome."""
+    """Divergence monitor: rows whose linear predictor runs off on the side of their outcome.
 
-    def __init__(self, loss: BinomialLoss, offset: np.ndarray | None) -> None:
+    Subclasses (the softmax fit's) change ``runaway`` and ``RUNAWAY``, the sentence."""
+
+    RUNAWAY = "{count} row(s) have a linear predictor beyond +-{limit:g} (up to {top:.3g}) on the side of their outcome"
+
+    def __init__(self, loss: Any, offset: np.ndarray | None) -> None:
         self.loss, self.offset = loss, offset
         self.live = loss.row_weights() > 0
 
@@ -246,10 +250,7 @@ class _Watch:
 
     def __call__(self, z: np.ndarray, ev: Evaluation) -> str | None:
         count, top = self.runaway(ev.eta, ETA_LIMIT)
-        if count:
-            return (f"{count} row(s) have a linear predictor beyond +-{ETA_LIMIT:g} (up to {top:.3g}) "
-                    "on the side of their outcome")
-        return None
+        return self.RUNAWAY.format(count=count, limit=ETA_LIMIT, top=top) if count else None
 
 
 def _exact_check(Xa, loss, intercept, names):

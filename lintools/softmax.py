@@ -33,8 +33,8 @@ from ._multinomial import MultinomialLoss
 from ._records import SoftmaxFit
 from ._validate import as_matrix, as_offset, as_weights, check_names
 from .inference import likelihood_fields
+from .logistic import _Watch as _BinaryWatch
 from .logistic import (
-    ETA_LIMIT,
     ETA_SUSPECT,
     MOVE_SUSPECT,
     SMALL_PROBLEM,
@@ -50,7 +50,6 @@ from .logistic import (
 )
 from .solvers import (
     AffineProblem,
-    Evaluation,
     IterationRecord,
     LinearModelProblem,
     SingularMatrixError,
@@ -82,12 +81,11 @@ def _reference_index(reference: Any, classes: tuple, lam: float) -> int | None:
                          "name one of the classes") from None
 
 
-class _Watch:
+class _Watch(_BinaryWatch):
     """Divergence monitor: rows whose own class leads every other by more than ETA_LIMIT."""
 
-    def __init__(self, loss: MultinomialLoss, offset: np.ndarray | None) -> None:
-        self.loss, self.offset = loss, offset
-        self.live = loss.row_weights() > 0
+    RUNAWAY = ("{count} row(s) have their own class ahead of every other by more than {limit:g} "
+               "in the linear predictor (up to {top:.3g})")
 
     def runaway(self, eta: np.ndarray, limit: float) -> tuple[int, float]:
         lin = eta if self.offset is None else eta - self.offset
@@ -99,13 +97,6 @@ class _Watch:
         margin = own - E.max(axis=1)
         hit = self.live & (margin > limit)
         return int(hit.sum()), float(margin[hit].max()) if hit.any() else 0.0
-
-    def __call__(self, z: np.ndarray, ev: Evaluation) -> str | None:
-        count, top = self.runaway(ev.eta, ETA_LIMIT)
-        if count:
-            return (f"{count} row(s) have their own class ahead of every other by more than {ETA_LIMIT:g} "
-                    f"in the linear predictor (up to {top:.3g})")
-        return None
 
 
 def _exact_check(Xa, codes, classes, w, intercept, names):
