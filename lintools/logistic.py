@@ -40,6 +40,7 @@ from ._validate import (
     as_vector,
     as_weights,
     check_choice,
+    check_finite,
     check_names,
     check_nonnegative,
     check_positive_int,
@@ -52,6 +53,7 @@ from .solvers import (
     Evaluation,
     IterationRecord,
     LinearModelProblem,
+    NonFiniteDesign,
     SingularMatrixError,
     SolverResult,
     solve,
@@ -371,7 +373,7 @@ def logistic(
     most a million entries); the check needs SciPy, and without it the divergence itself
     is reported in the :class:`SeparationError`.
     """
-    Xa, found = as_matrix(X, "X")
+    Xa, found = as_matrix(X, "X", check_finite=False)  # checked by the problem's first pass
     n, p = Xa.shape
     names_t = check_names(names, p, found)
     w = as_weights(weights, n)
@@ -397,7 +399,7 @@ def logistic(
     if lam == 0:
         check_parameters_and_rows(p + int(intercept), int(np.count_nonzero(v > 0)))
     loss = BinomialLoss(yy, m if trials is not None else None, w)
-    problem = LinearModelProblem(Xa, loss, intercept=intercept, l2=lam, offset=off, jeffreys=firth)
+    problem = checked_problem(Xa, found, loss, intercept=intercept, l2=lam, offset=off, jeffreys=firth)
     if intercept and p and lam == 0:
         _constant_columns(Xa, v > 0, names_t, problem.spread, problem.c)
     watch = _Watch(loss, off) if (lam == 0 and not firth) else None
@@ -420,6 +422,16 @@ def logistic(
         _final_check(res, ev, V, problem, watch, Xa, loss, intercept, names_t)
     return _package(problem, loss, res, ev, V, z, Xa, off, names_t, classes, positive_class, lam, firth,
                     trials is not None, intercept, solver, tol, max_iter, profile, float(profile_level), y)
+
+
+def checked_problem(Xa: np.ndarray, found: Any, loss: Any, **settings: Any) -> LinearModelProblem:
+    """The fit's problem; its first pass over ``Xa`` (the column moments) doubles as the
+    finiteness check of the design, and a NaN or infinity is then named by row and column."""
+    try:
+        return LinearModelProblem(Xa, loss, **settings)
+    except NonFiniteDesign:
+        check_finite(Xa, "X", found)
+        raise
 
 
 def final_evaluation(problem: Any, res: SolverResult) -> Evaluation:

@@ -43,6 +43,7 @@ from .logistic import (
     _rank_message,
     _target_name,
     check_fit_settings,
+    checked_problem,
     check_parameters_and_rows,
     convergence_record,
     final_evaluation,
@@ -197,7 +198,7 @@ def softmax(
         estimate does not exist.  Checked exactly (SciPy's ``linprog``) when the
         iterations show rows whose own class runs away.
     """
-    Xa, found = as_matrix(X, "X")
+    Xa, found = as_matrix(X, "X", check_finite=False)  # checked by the problem's first pass
     n, p = Xa.shape
     names_t = check_names(names, p, found)
     w = as_weights(weights, n)
@@ -226,7 +227,7 @@ def softmax(
     if off_full is not None:
         off = off_full[:, order]
         off = off[:, 1:] - off[:, :1] if ref is not None else off
-    problem = LinearModelProblem(Xa, loss, intercept=intercept, l2=lam, offset=off)
+    problem = checked_problem(Xa, found, loss, intercept=intercept, l2=lam, offset=off)
     if intercept and p and lam == 0:
         _constant_columns(Xa, w > 0, names_t, problem.spread, problem.c)
     target = problem

@@ -58,6 +58,7 @@ from typing import Any, Callable
 import numpy as np
 
 from ..linalg import solve_lower, solve_upper
+from ._kernels import column_moments, uncentred_ok, weighted_gram
 
 __all__ = [
     "IterationRecord",
@@ -67,6 +68,7 @@ __all__ = [
     "AffineProblem",
     "RestrictedProblem",
     "SingularMatrixError",
+    "NonFiniteDesign",
     "finish",
     "cholesky",
     "solve_spd",
@@ -195,6 +197,11 @@ class SingularMatrixError(ArithmeticError):
     """A matrix that should be positive definite is numerically singular."""
 
 
+class NonFiniteDesign(ValueError):
+    """The design handed to a problem has a NaN or infinite entry (callers that skip the
+    finiteness check of their input catch this and name the entry)."""
+
+
 def cholesky(H: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Jacobi-scaled Cholesky: ``H = D L L' D`` with ``D = sqrt(diag H)``; returns (L, d).
 
@@ -310,17 +317,10 @@ class LinearModelProblem:
         self.rows = max(256, _CACHE_BYTES // (8 * max(self.p1, 1)))  # cache-sized row blocks
         v = loss.row_weights()
         total = float(v.sum())
-        self.c = (v @ X) / total if (self.intercept and centre and p) else np.zeros(p)
-        ss = np.zeros(p)
-        if p:
-            buf = np.empty((min(self.rows, n), p))
-            for lo in range(0, n, self.rows):
-                Xb = X[lo : lo + self.rows]
-                D = buf[: Xb.shape[0]]
-                np.subtract(Xb, self.c, out=D)
-                np.multiply(D, D, out=D)
-                ss += v[lo : lo + Xb.shape[0]] @ D
-        s = np.sqrt(ss / total)
+        c, s, finite = column_moments(X, v, self.rows, self.intercept and centre)
+        if not finite:
+            raise NonFiniteDesign("the design X has a NaN or infinite entry")
+        self.c = c
         #: the weighted spread of each column before constant columns are set to 1
         self.spread = s
         # a column whose spread is rounding noise around its centre is treated as constant
@@ -335,9 +335,15 @@ class LinearModelProblem:
         # float32 step Hessians: no Jeffreys penalty, many rows, and standardised
         # rows bounded well inside float32 range (|x - c| / s <= sqrt(total / v_i) for v_i > 0)
         self.single = False
+        #: bound on |x_ij - c_j| / s_j over rows of positive weight: sqrt(total / min weight)
+        self.row_bound = math.inf
         if not self.jeffreys and n >= SINGLE_MIN_ROWS and p:
             vmin = float(v.min()) if n else 0.0
             self.single = bool(vmin > 0 and total / vmin < 1e30)
+            if self.single:
+                self.row_bound = math.sqrt(total / vmin)
+        # curvature passes may centre their accumulated products afterwards (see _kernels)
+        self.uncentred = bool(p) and uncentred_ok(self.c, self.s)
 
     # ---- coordinates ----------------------------------------------------------------
     def _parts(self, z: np.ndarray) -> tuple[Any, np.ndarray]:
@@ -588,6 +594,9 @@ class LinearModelProblem:
         return self._information_multi(W, single)
 
     def _information_one(self, W: np.ndarray, single: bool) -> np.ndarray:
+        if self.uncentred:
+            return weighted_gram(self.X, W, self.c, self.s, self.intercept, self.rows,
+                                 single=single, row_bound=self.row_bound)
         n, p1, off, rows = self.n, self.p1, self.off, self.rows
         H = np.zeros((p1, p1))
         sw = np.sqrt(W)

@@ -1,0 +1,206 @@
+r"""Passes over the design for the one-output problems: column moments and weighted Gram matrices.
+
+Both read ``X`` once, in cache-sized row blocks, and never copy it whole.
+
+* :func:`column_moments` gives the weighted means and spreads of the columns from the
+  sums :math:`\sum_i v_i x_{ij}` and :math:`\sum_i v_i x_{ij}^2`; a column whose spread is
+  small against its mean (where that difference would cancel) is redone exactly, around
+  its mean.  A non-finite sum (a NaN or infinity in ``X``, or an overflow) is reported, so
+  the caller can name the entry.
+* :func:`weighted_gram` gives :math:`A' W A` for the standardised rows
+  :math:`a_i = (1, (x_i - c)/s)` without forming ``x_i - c``: it accumulates the
+  uncentred products of :math:`\sqrt{w_i}\,x_i` (one scaling and one symmetric BLAS
+  product per block) and centres the small result.  The rounding error of the centring is
+  :math:`O(\epsilon\,(1 + |c_j|/s_j)(1 + |c_k|/s_k))` relative to the scaled entries, so it
+  is used only while ``max |c_j| / s_j <= UNCENTRED_LIMIT`` (callers check with
+  :func:`uncentred_ok`); otherwise they centre each block.
+
+References
+----------
+Chan, T. F., Golub, G. H. & LeVeque, R. J. (1983). Algorithms for computing the sample
+variance: analysis and recommendations. The American Statistician 37, 242-247.
+Golub, G. H. & Van Loan, C. F. (2013). Matrix Computations, 4th ed., sec. 1.2 (symmetric
+rank-k update). Johns Hopkins.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+__all__ = ["column_moments", "weighted_gram", "uncentred_ok", "UNCENTRED_LIMIT"]
+
+#: Centre the accumulated products afterwards only while every |mean| / spread is at most this.
+UNCENTRED_LIMIT = 1.0
+#: A column whose uncentred spread is below this times its |mean| is recomputed around its mean.
+_MOMENT_CANCELLATION = 1e-3
+#: float32 rows are scaled before the conversion unless the raw values stay in this range.
+_SINGLE_RANGE = 1e15
+
+
+def column_moments(X: np.ndarray, v: np.ndarray, rows: int, centre: bool) -> tuple[np.ndarray, np.ndarray, bool]:
+    r"""Weighted column means ``c`` (zero when not ``centre``) and spreads ``s`` of ``X``.
+
+    .. math::
+
+        c_j = \frac{\sum_i v_i x_{ij}}{\sum_i v_i},\qquad
+        s_j^2 = \frac{\sum_i v_i (x_{ij} - c_j)^2}{\sum_i v_i}.
+
+    Returns ``(c, s, finite)``; ``finite`` is False when a sum is not finite (the caller
+    then checks ``X`` entry by entry).  The spread comes from the two sums of one pass as
+    :math:`\sum v x^2 / V - c^2`; where that loses more than three digits
+    (:math:`s_j < 10^{-3} |c_j|`) the column is recomputed around its mean (Chan, Golub &
+    LeVeque 1983), so constant columns get a spread of exactly 0.
+    """
+    n, p = X.shape
+    total = float(v.sum())
+    sums, squares = np.zeros(p), np.zeros(p)
+    buf = np.empty((min(rows, n), p))
+    with np.errstate(over="ignore", invalid="ignore"):
+        for lo in range(0, n, rows):
+            Xb = X[lo : lo + rows]
+            vb = v[lo : lo + Xb.shape[0]]
+            sums += vb @ Xb
+            D = buf[: Xb.shape[0]]
+            np.multiply(Xb, Xb, out=D)
+            squares += vb @ D
+        finite = bool(np.all(np.isfinite(sums)) and np.all(np.isfinite(squares)))
+    if not finite:
+        if not np.all(np.isfinite(X)):
+            return np.zeros(p), np.ones(p), False
+        return _scaled_moments(X, v, rows, centre)
+    with np.errstate(over="ignore", invalid="ignore"):
+        mean = sums / total
+        c = mean if centre else np.zeros(p)
+        ss = squares / total - c * c
+    redo = np.flatnonzero(~(ss > (_MOMENT_CANCELLATION * mean) ** 2))
+    if redo.size:
+        around = mean[redo] if centre else np.zeros(redo.size)
+        squares_r, shift = _centred_squares(X[:, redo], v, around, rows)
+        if centre:  # the corrected two-pass form (Chan, Golub & LeVeque 1983, eq. 1.7)
+            c[redo] = around + shift / total
+            squares_r = squares_r - shift * shift / total
+        ss[redo] = squares_r / total
+    return c, np.sqrt(np.maximum(ss, 0.0)), True
+
+
+def _scaled_moments(X: np.ndarray, v: np.ndarray, rows: int, centre: bool) -> tuple[np.ndarray, np.ndarray, bool]:
+    """:func:`column_moments` for finite entries whose sums overflow (|x| near 1e300): each
+    column is scaled by a power of two near its largest |entry| and the spread is
+    computed around the mean (exact pass)."""
+    n, p = X.shape
+    top = np.max(np.abs(X), axis=0) if n else np.ones(p)
+    scale = np.exp2(np.ceil(np.log2(np.where(top > 0, top, 1.0))))  # exact powers of two
+    total = float(v.sum())
+    mean = np.zeros(p)
+    for lo in range(0, n, rows):
+        Xb = X[lo : lo + rows]
+        mean += v[lo : lo + Xb.shape[0]] @ (Xb / scale)
+    mean /= total
+    c = mean if centre else np.zeros(p)
+    ss = np.zeros(p)
+    for lo in range(0, n, rows):
+        D = X[lo : lo + rows] / scale - c
+        ss += v[lo : lo + D.shape[0]] @ (D * D)
+    return c * scale, np.sqrt(ss / total) * scale, True
+
+
+def _centred_squares(X: np.ndarray, v: np.ndarray, c: np.ndarray, rows: int) -> tuple[np.ndarray, np.ndarray]:
+    """``sum_i v_i (x_ij - c_j)^2`` and ``sum_i v_i (x_ij - c_j)`` per column (the slower pass)."""
+    n, p = X.shape
+    ss, shift = np.zeros(p), np.zeros(p)
+    buf = np.empty((min(rows, n), p))
+    for lo in range(0, n, rows):
+        Xb = X[lo : lo + rows]
+        vb = v[lo : lo + Xb.shape[0]]
+        D = buf[: Xb.shape[0]]
+        np.subtract(Xb, c, out=D)
+        shift += vb @ D
+        np.multiply(D, D, out=D)
+        ss += vb @ D
+    return ss, shift
+
+
+def uncentred_ok(c: np.ndarray, s: np.ndarray) -> bool:
+    """Whether :func:`weighted_gram` may centre afterwards (every ``|c_j| / s_j <= UNCENTRED_LIMIT``)."""
+    return bool(np.all(np.abs(c) <= UNCENTRED_LIMIT * s))
+
+
+def weighted_gram(X: np.ndarray, W: np.ndarray, c: np.ndarray, s: np.ndarray, intercept: bool,
+                  rows: int, single: bool = False, row_bound: float = math.inf) -> np.ndarray:
+    r"""``A' diag(W) A`` for the rows ``a_i = (1, (x_i - c) / s)`` (the 1 only with ``intercept``).
+
+    The blocks hold :math:`b_i = \sqrt{W_i}\,x_i` (with ``single``: the standardised
+    :math:`\sqrt{W_i / \max W}\,x_i / s` rounded to float32, about 1e-6 relative, for Newton
+    steps only); per block ``B'B`` (a symmetric BLAS product) and :math:`\sqrt{W}'B` are
+    added up in float64, and the centring :math:`(x - c)/s` is applied to the
+    :math:`(p+1) \times (p+1)` result.  Requires :func:`uncentred_ok`; ``W >= 0``.
+    ``row_bound`` bounds ``|x_ij - c_j| / s_j``: when the raw entries are then known to lie
+    within float32's comfortable range they are converted as they are and the scales
+    ``1/s`` applied to the result, else they are scaled first.
+    """
+    n, p = X.shape
+    off = int(intercept)
+    sw = np.sqrt(W)
+    top = 1.0
+    if single:
+        top = float(sw.max()) if n else 0.0
+        if not (top > 0 and math.isfinite(top)):
+            single, top = False, 1.0
+    inv = 1.0 / s
+    HH = np.zeros((p, p))
+    h = np.zeros(p)
+    if single:
+        r = (sw / top).astype(np.float32)
+        # |x_ij| <= |c_j| + s_j row_bound <= s_j (1 + row_bound) under uncentred_ok
+        raw = bool(np.all(s * (1.0 + row_bound) <= _SINGLE_RANGE) and np.all(s >= 1.0 / _SINGLE_RANGE))
+        inv32 = inv.astype(np.float32)
+        buf = np.empty((min(rows, n), p), dtype=np.float32)
+        T = None if raw else np.empty((min(rows, n), p))
+        for lo in range(0, n, rows):
+            Xb = X[lo : lo + rows]
+            m = Xb.shape[0]
+            B, rb = buf[:m], r[lo : lo + m]
+            if raw:
+                np.copyto(B, Xb, casting="same_kind")
+            else:
+                np.multiply(Xb, inv, out=T[:m])
+                np.copyto(B, T[:m], casting="same_kind")
+            np.multiply(B, rb[:, None], out=B)
+            HH += B.T @ B
+            if off:
+                h += rb @ B
+        u = np.ones(p) if not raw else inv
+        HH *= np.multiply.outer(u, u)
+        h *= u
+        total = float(W.sum()) / (top * top)
+        mean_scaled = c * inv
+    else:
+        buf = np.empty((min(rows, n), p))
+        for lo in range(0, n, rows):
+            Xb = X[lo : lo + rows]
+            m = Xb.shape[0]
+            B, rb = buf[:m], sw[lo : lo + m]
+            np.multiply(Xb, rb[:, None], out=B)
+            HH += B.T @ B
+            if off:
+                h += rb @ B
+        HH *= np.multiply.outer(inv, inv)
+        h *= inv
+        total = float(W.sum())
+        mean_scaled = c * inv
+    H = np.empty((p + off, p + off))
+    if off:
+        # sum w (u - m)(u - m)' = HH - m h' - h m' + total m m', with u = x / s and m = c / s
+        g = h - total * mean_scaled
+        H[0, 0] = total
+        H[0, 1:] = g
+        H[1:, 0] = g
+        H[1:, 1:] = HH - np.multiply.outer(mean_scaled, h) - np.multiply.outer(h, mean_scaled) \
+            + total * np.multiply.outer(mean_scaled, mean_scaled)
+    else:
+        H[:] = HH
+    if single:
+        H *= top * top
+    return 0.5 * (H + H.T)
