@@ -59,6 +59,7 @@ import numpy as np
 
 from ..linalg import solve_lower, solve_upper
 from ._kernels import column_moments, uncentred_ok, weighted_gram
+from ._kernels_multi import multi_output_information
 
 __all__ = [
     "IterationRecord",
@@ -575,6 +576,15 @@ class LinearModelProblem:
             A[:, self.off :] /= self.s
             yield lo, A
 
+    def _curvature(self, eta: Any) -> Any:
+        """The curvature at ``eta`` for :meth:`_information`: the (n,) IRLS weights for one
+        output; for K outputs a function of a row slice giving that block's (rows, K, K)
+        curvature, so the (n, K, K) array is never formed whole."""
+        rows_only = getattr(self.loss, "curvature_rows", None)
+        if self.K > 1 and rows_only is not None:
+            return lambda rows: rows_only(eta, rows)
+        return self.loss.curvature(eta)
+
     def _unit_scale(self) -> np.ndarray:
         return np.concatenate([np.ones(self.off), 1.0 / self.s])
 
@@ -591,7 +601,7 @@ class LinearModelProblem:
         """
         if self.K == 1:
             return self._information_one(W, single)
-        return self._information_multi(W, single)
+        return multi_output_information(self, W, single)
 
     def _information_one(self, W: np.ndarray, single: bool) -> np.ndarray:
         if self.uncentred:
@@ -630,42 +640,6 @@ class LinearModelProblem:
             H += B.T @ B
         u = self._unit_scale()
         H *= np.multiply.outer(u, u)
-        return 0.5 * (H + H.T)
-
-    def _information_multi(self, W: np.ndarray, single: bool = False) -> np.ndarray:
-        # K outputs: the K(K+1)/2 blocks A' diag(W_km) A come from one product per block of
-        # rows, A' [W_00 A, W_01 A, ...], which keeps BLAS busy on a wide right-hand side;
-        # with ``single`` the standardised rows and the weights (each |W_km| <= max w) are
-        # rounded to float32 and the product is a float32 one (Newton steps only)
-        K, p1 = self.K, self.p1
-        pairs = [(k, m) for k in range(K) for m in range(k, K)]
-        H = np.zeros((p1, K, p1, K))
-        dtype = np.float32 if single else np.float64
-        rows = max(64, 2 * _CACHE_BYTES // (8 * p1 * len(pairs)))  # R stays in cache
-        R = np.empty((min(rows, self.n), len(pairs), p1), dtype=dtype)
-        top = 1.0
-        if single:
-            top = float(np.max(np.abs(W))) if W.size else 0.0
-            if not (top > 0 and math.isfinite(top)):
-                return self._information_multi(W, False)
-            W = W / top
-            A32 = np.empty((min(rows, self.n), p1), dtype=np.float32)
-        for lo, A in self._blocks(rows):
-            nb = A.shape[0]
-            Wb = W[lo : lo + nb]
-            if single:
-                np.copyto(A32[:nb], A, casting="same_kind")
-                A = A32[:nb]
-            for j, (k, m) in enumerate(pairs):
-                np.multiply(A, Wb[:, k, m, None], out=R[:nb, j, :], casting="same_kind")
-            G = (A.T @ R[:nb].reshape(nb, -1)).reshape(p1, len(pairs), p1)
-            for j, (k, m) in enumerate(pairs):
-                H[:, k, :, m] += G[:, j, :]
-                if m != k:
-                    H[:, m, :, k] += G[:, j, :].T
-        H = H.reshape(self.size, self.size)
-        if single:
-            H *= top
         return 0.5 * (H + H.T)
 
     def _leverage_factor(self, L: np.ndarray, d: np.ndarray) -> np.ndarray:
@@ -709,7 +683,7 @@ class LinearModelProblem:
 
     def fisher_information(self, z: np.ndarray) -> np.ndarray:
         """Penalised Fisher information ``A'WA + l2 D`` in z (the covariance uses its inverse)."""
-        H = self._information(self.loss.curvature(self.eta(z)))
+        H = self._information(self._curvature(self.eta(z)))
         if self.l2:
             H[np.diag_indices_from(H)] += self._penalty_diagonal()
         return H
@@ -759,7 +733,7 @@ class LinearModelProblem:
         """
         if not self.single:
             return self.hessian(z, E)
-        H = self._information(self.loss.curvature(self.eta(z)), single=True)
+        H = self._information(self._curvature(self.eta(z)), single=True)
         if self.l2:
             H[np.diag_indices_from(H)] += self._penalty_diagonal()
         if E is not None:
