@@ -124,6 +124,7 @@ class BinomialLoss:
         self._wf = self.weights * (self.trials - y)  # weighted failures
         self._wm = self.weights * self.trials
         self._cache: tuple | None = None  # (eta, (e, mu, nu)) of the last linear predictor
+        self._value: tuple | None = None  # (eta, value(eta)) of the last value asked for
         # one trial per row with a 0/1 outcome: each row has one softplus term in the
         # margin u = sgn * eta (sgn = 1 - 2y), value w log(1 + e^u), gradient w sgn q and
         # curvature w q (1 - q) with q = 1 / (1 + e^-u): no selection by outcome per row
@@ -188,10 +189,16 @@ class BinomialLoss:
 
         With ``log(1 + e^x) = max(x, 0) + log1p(e^{-|x|})`` the two softplus terms of a row
         share one ``log1p(exp(-|eta|))``, all parts non-negative."""
+        cached = self._value
+        if cached is not None and cached[0] is eta:
+            return cached[1]
         e = self._parts(eta)[0]
         if self._binary:
-            return float(self.weights @ (np.maximum(self._sgn * eta, 0.0) + np.log1p(e)))
-        return float(self._wy @ np.maximum(-eta, 0.0) + self._wf @ np.maximum(eta, 0.0) + self._wm @ np.log1p(e))
+            f = float(self.weights @ (np.maximum(self._sgn * eta, 0.0) + np.log1p(e)))
+        else:
+            f = float(self._wy @ np.maximum(-eta, 0.0) + self._wf @ np.maximum(eta, 0.0) + self._wm @ np.log1p(e))
+        self._value = (eta, f)  # the record asks for it again (log-likelihood, deviance)
+        return f
 
     def value_change(self, eta: np.ndarray, delta: np.ndarray) -> float:
         r"""``value(eta + delta) - value(eta)``, accurate even when it is far below ``eps * value``.
