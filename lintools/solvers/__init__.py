@@ -195,9 +195,9 @@ def finish(name: str, z: np.ndarray, ev: "Evaluation", it: int, status: str, mes
 
 def sample_rows(n: int, m: int) -> slice:
     """At least ``m`` of ``n`` rows for a warm start or a Newton sketch: every ``n // m``-th
-    row from the first, a systematic sample (Cochran 1977, ch. 8).  It is a view of X (no
-    copy of the rows) and, unlike a random draw, spreads evenly over data sorted by any
-    column.  Data that repeat with a period dividing the step would give an unrepresentative
+    row from the first, a systematic sample (Cochran 1977, ch. 8).  Its rows are copied at
+    about twice the speed of gathering random rows, and, unlike a random draw, it spreads
+    evenly over data sorted by any column.  Data that repeat with a period dividing the step would give an unrepresentative
     sample; that costs iterations (or the shortcut declines when its Hessian is singular),
     never accuracy, since the stopping rule is on the full gradient."""
     return slice(0, None, max(1, n // m))
@@ -412,7 +412,7 @@ class LinearModelProblem:
     def subsample(self, rows: np.ndarray) -> "LinearModelProblem":
         """The same problem on the given rows, in the same coordinates (same ``c`` and ``s``)."""
         sub = copy.copy(self)
-        sub.X, sub.n, sub.loss = self.X[rows], _count(self.n, rows), self.loss.subset(rows)
+        sub.X, sub.n, sub.loss = np.ascontiguousarray(self.X[rows]), _count(self.n, rows), self.loss.subset(rows)
         sub.offset = None if self.offset is None else self.offset[rows]
         sub._last, sub._carried, sub._sketch, sub._warm = None, False, None, False
         return sub
@@ -705,9 +705,9 @@ class LinearModelProblem:
         """Penalised Hessian with the loss part estimated from a fixed row subsample.
 
         The Newton sketch of Pilanci & Wainwright (2017) in a simple form: a fixed
-        systematic sample of the rows (``sample_rows``: every k-th row, a view of X, so
-        fits are reproducible and nothing is copied), their curvature scaled by the ratio
-        of total to sampled row weight.  Cost: ``m / n`` of :meth:`hessian`.
+        systematic sample of the rows (``sample_rows``: every k-th row, copied once, so
+        fits are reproducible), their curvature scaled by the ratio of total to sampled
+        row weight.  Cost: ``m / n`` of :meth:`hessian`.
         Returns None for problems too small to gain from it (``n < SKETCH_MIN_ROWS``) and
         for the Jeffreys penalty.  The solver uses it only while far from the optimum; the
         last iterations and the covariance use the exact Hessian.
@@ -718,7 +718,7 @@ class LinearModelProblem:
             m = min(self.n, max(SKETCH_PER_PARAMETER * self.size, self.n // SKETCH_FRACTION))
             rows = sample_rows(self.n, m)
             sub = copy.copy(self)
-            sub.X, sub.n, sub._last, sub._sketch = self.X[rows], _count(self.n, rows), None, None
+            sub.X, sub.n, sub._last, sub._sketch = np.ascontiguousarray(self.X[rows]), _count(self.n, rows), None, None
             v = self.loss.row_weights()
             sub_total = float(v[rows].sum())
             self._sketch = (rows, sub, float(v.sum()) / sub_total if sub_total > 0 else 0.0)
