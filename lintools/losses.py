@@ -134,21 +134,22 @@ class BinomialLoss:
 
     def _parts(self, eta: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """``(exp(-|eta|), mu, 1 - mu)``, kept for the last ``eta``: the solvers ask for the
-        value, gradient and curvature at one linear predictor in turn, and each needs them."""
+        value, gradient and curvature at one linear predictor in turn, and each needs them.
+        For 0/1 outcomes the first entry is None (only ``value`` needs it, and forms it)."""
         cached = self._cache
         if cached is not None and cached[0] is eta:
             return cached[1]
-        if self._binary:  # (e, q, 1 - q) in the margin: q is mu for y = 0 and 1 - mu for y = 1
+        if self._binary:  # (None, q, 1 - q) in the margin: q is mu for y = 0 and 1 - mu for y = 1
             u = self._sgn * eta
-            e = np.exp(-np.abs(u))
             with np.errstate(over="ignore"):
-                q = np.exp(-u)
+                q = np.negative(u)
+                np.exp(q, out=q)
                 q += 1.0
                 np.reciprocal(q, out=q)
                 qc = np.exp(u, out=u)
                 qc += 1.0
                 np.reciprocal(qc, out=qc)
-            parts = (e, q, qc)
+            parts = (None, q, qc)  # exp(-|eta|) is formed by value() when it is asked for
             self._cache = (eta, parts)
             return parts
         e = np.exp(-np.abs(eta))
@@ -192,10 +193,17 @@ class BinomialLoss:
         cached = self._value
         if cached is not None and cached[0] is eta:
             return cached[1]
-        e = self._parts(eta)[0]
         if self._binary:
-            f = float(self.weights @ (np.maximum(self._sgn * eta, 0.0) + np.log1p(e)))
+            t = np.abs(eta)
+            np.negative(t, out=t)
+            np.exp(t, out=t)
+            np.log1p(t, out=t)  # log1p(exp(-|eta|))
+            u = self._sgn * eta
+            np.maximum(u, 0.0, out=u)
+            u += t
+            f = float(self.weights @ u)
         else:
+            e = self._parts(eta)[0]
             f = float(self._wy @ np.maximum(-eta, 0.0) + self._wf @ np.maximum(eta, 0.0) + self._wm @ np.log1p(e))
         self._value = (eta, f)  # the record asks for it again (log-likelihood, deviance)
         return f
@@ -220,9 +228,11 @@ class BinomialLoss:
         With ``u = sgn eta`` and ``q = 1 / (1 + e^-u)`` a row changes by
         ``log1p(q expm1(sgn delta))`` (the form of :func:`_softplus_changes`)."""
         _, q, _ = self._parts(eta)
-        sd = np.clip(delta, -1.0, 1.0)
-        sd *= self._sgn
-        change = np.log1p(q * np.expm1(sd))
+        change = np.clip(delta, -1.0, 1.0)
+        change *= self._sgn
+        np.expm1(change, out=change)
+        change *= q
+        np.log1p(change, out=change)
         far = np.flatnonzero(np.abs(delta) > 1.0)
         if far.size:  # large moves: the plain difference is accurate relative to them
             u = self._sgn[far] * eta[far]

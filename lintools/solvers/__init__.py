@@ -160,9 +160,13 @@ class Evaluation:
     the intercept and the coefficients of the standardised columns ``x_j / s_j``
     (``unit_j = 1 / s_j``); ``gradient_norm``, the quantity of the stopping rule, is the
     max-abs of that product, which does not change when a column is rescaled.
+
+    ``objective`` is the value, or a function of no arguments that gives it: the value is
+    then formed only when first asked for (``value``), since a Newton iteration that
+    passes its tests on the gradient and the line search's change never needs it.
     """
 
-    value: float
+    objective: Any
     gradient: np.ndarray
     original_gradient: np.ndarray
     eta: Any
@@ -170,6 +174,15 @@ class Evaluation:
     #: False when ``eta`` was carried forward from a line search (``eta0 + t X d``) rather
     #: than formed afresh as ``X beta + b``; solvers re-evaluate before they report
     fresh: bool = True
+
+    @property
+    def value(self) -> float:
+        """The objective at this point (formed on first use when it was deferred)."""
+        v = self.objective
+        if callable(v):
+            v = float(v())
+            object.__setattr__(self, "objective", v)
+        return v
 
     @property
     def gradient_norm(self) -> float:
@@ -560,7 +573,11 @@ class LinearModelProblem:
             self._last, self._carried = None, False
         eta = self.eta(z)
         carried = self._carried
-        f, r = self._value_at(z, eta)
+        if self.jeffreys:
+            f, r = self._value_at(z, eta)  # the value's log det also gives the residual
+        else:
+            r = self._residual(eta)
+            f = self._deferred_value(z, eta)
         b, beta = self.coefficients(z)
         Gb = r.sum(axis=0)
         Gbeta = self.X.T @ r
@@ -573,7 +590,11 @@ class LinearModelProblem:
             gz = np.concatenate([np.atleast_1d(Gb), np.ravel(gz_slopes)]) if self.K == 1 else np.vstack([Gb, gz_slopes]).ravel()
         else:
             original, gz = np.ravel(Gbeta).astype(float), np.ravel(gz_slopes).astype(float)
-        return Evaluation(float(f), gz, original, eta, self.unit, fresh=not carried)
+        return Evaluation(f, gz, original, eta, self.unit, fresh=not carried)
+
+    def _deferred_value(self, z: np.ndarray, eta: Any) -> Callable[[], float]:
+        z = z.copy()
+        return lambda: self.loss.value(eta) + self._ridge(z)
 
     # ---- curvature ----------------------------------------------------------------------
     def _blocks(self, rows: int | None = None):
