@@ -323,3 +323,46 @@ def test_constant_column_is_found_on_a_large_design_without_a_full_scan():
     w[:7] = 0.0
     with pytest.raises(InputError, match=r"column 4 \('x5'\) is constant"):
         logistic(Xc, yb, weights=w)
+
+
+def test_row_samples_are_runs_that_see_periodic_data_whole(monkeypatch):
+    # source: the exact-path Newton fit on the same data. A design of 16 runs repeated in
+    # order would make a sample of every 16th row a single run (Cochran 1977, ch. 8, on
+    # periodic populations); the random runs of consecutive rows (a cluster sample,
+    # Cochran ch. 9) cover every run, and the fit equals the exact path
+    from lintools.solvers import SAMPLE_RUN, sample_rows, take_rows
+
+    rng = np.random.default_rng(31)
+    runs = np.array([[a, b, c, d] for a in (-1, 1) for b in (-1, 1) for c in (-1, 1) for d in (-1, 1)], float)
+    reps = 4000
+    X = np.tile(runs, (reps, 1)) + 0.01 * rng.normal(size=(16 * reps, 4))
+    y = rng.random(16 * reps) < 1 / (1 + np.exp(-(X @ [0.8, -0.5, 0.3, 0.0] + 0.1)))
+    rows = sample_rows(X.shape[0], X.shape[0] // 16)
+    assert rows.size >= X.shape[0] // 16 and rows.size % SAMPLE_RUN == 0
+    assert np.all(np.diff(rows) > 0) and rows[-1] < X.shape[0]
+    assert len(np.unique(rows % 16)) == 16  # every run of the design is in the sample
+    np.testing.assert_array_equal(take_rows(X, rows), X[rows])
+    np.testing.assert_array_equal(take_rows(np.asfortranarray(X), rows), X[rows])
+    fast = logistic(X, y, tol=1e-9)
+    _exact_path(monkeypatch)
+    exact = logistic(X, y, tol=1e-9)
+    assert fast.convergence.converged and exact.convergence.converged
+    np.testing.assert_allclose(fast.coefficients, exact.coefficients, rtol=1e-10, atol=1e-12)
+    np.testing.assert_allclose(fast.standard_errors, exact.standard_errors, rtol=1e-10)
+
+
+def test_deferred_objective_equals_the_loss_value():
+    # source: the definition F = loss(eta) + l2/2 |beta|^2 (common practice): the value an
+    # evaluation forms on first use is the one an eager computation gives
+    rng = np.random.default_rng(32)
+    X = rng.normal(size=(200, 3))
+    y = (rng.random(200) < 0.4).astype(float)
+    P = LinearModelProblem(X, BinomialLoss(y), l2=0.7)
+    z = rng.normal(size=4) * 0.3
+    ev = P.evaluate(z)
+    assert callable(ev.objective)
+    b, beta = P.coefficients(z)
+    eta = X @ beta + b
+    want = float(np.sum(np.logaddexp(0.0, eta) - y * eta)) + 0.35 * float(beta @ beta)
+    assert abs(ev.value - want) <= 1e-13 * abs(want)
+    assert ev.objective == ev.value  # formed once, then kept

@@ -42,7 +42,7 @@ search's linear predictor to the next point (see :mod:`lintools.solvers.newton`)
 
 References
 ----------
-Cochran, W. G. (1977). Sampling Techniques, 3rd ed., ch. 8 (systematic sampling). Wiley.
+Cochran, W. G. (1977). Sampling Techniques, 3rd ed., ch. 9 (cluster sampling). Wiley.
 Firth, D. (1993). Bias reduction of maximum likelihood estimates. Biometrika 80, 27-38.
 Pilanci, M. & Wainwright, M. J. (2017). Newton sketch: a near linear-time optimization
 algorithm with linear-quadratic convergence. SIAM J. Optimization 27, 205-245.
@@ -206,18 +206,30 @@ def finish(name: str, z: np.ndarray, ev: "Evaluation", it: int, status: str, mes
     )
 
 
-def sample_rows(n: int, m: int) -> slice:
-    """At least ``m`` of ``n`` rows for a warm start or a Newton sketch: every ``n // m``-th
-    row from the first, a systematic sample (Cochran 1977, ch. 8).  Its rows are copied at
-    about twice the speed of gathering random rows, and, unlike a random draw, it spreads
-    evenly over data sorted by any column.  Data that repeat with a period dividing the step would give an unrepresentative
-    sample; that costs iterations (or the shortcut declines when its Hessian is singular),
-    never accuracy, since the stopping rule is on the full gradient."""
-    return slice(0, None, max(1, n // m))
+#: Row samples are drawn as runs of this many consecutive rows (a cluster sample).
+SAMPLE_RUN = 64
+SAMPLE_SEED = 20170101
 
 
-def _count(n: int, rows: Any) -> int:
-    return len(range(n)[rows]) if isinstance(rows, slice) else int(np.size(rows))
+def sample_rows(n: int, m: int, seed: int = SAMPLE_SEED) -> np.ndarray:
+    """About ``m`` of ``n`` rows for a warm start or a Newton sketch, sorted: ``m / SAMPLE_RUN``
+    runs of ``SAMPLE_RUN`` consecutive rows at run starts drawn without replacement with a
+    fixed seed (a cluster sample of equal clusters; Cochran 1977, ch. 9).  Runs are copied
+    about twice as fast as scattered rows, and, unlike every k-th row, random runs are not
+    fooled by data that repeat with a period; rows past the last whole run are never drawn.
+    The sample only shapes the path: the stopping rule is on the full gradient."""
+    runs = n // SAMPLE_RUN
+    k = min(runs, max(1, -(-m // SAMPLE_RUN)))
+    starts = np.sort(np.random.default_rng(seed).choice(runs, size=k, replace=False))
+    return (starts[:, None] * SAMPLE_RUN + np.arange(SAMPLE_RUN)).ravel()
+
+
+def take_rows(X: np.ndarray, rows: np.ndarray) -> np.ndarray:
+    """``X[rows]`` for rows from :func:`sample_rows`, as whole runs when X is C-ordered."""
+    if X.flags.c_contiguous and rows.size % SAMPLE_RUN == 0 and X.shape[0] >= SAMPLE_RUN:
+        runs = X[: (X.shape[0] // SAMPLE_RUN) * SAMPLE_RUN].reshape(-1, SAMPLE_RUN, X.shape[1])
+        return runs[rows[::SAMPLE_RUN] // SAMPLE_RUN].reshape(-1, X.shape[1])
+    return X[rows]
 
 
 class SingularMatrixError(ArithmeticError):
@@ -425,7 +437,7 @@ class LinearModelProblem:
     def subsample(self, rows: np.ndarray) -> "LinearModelProblem":
         """The same problem on the given rows, in the same coordinates (same ``c`` and ``s``)."""
         sub = copy.copy(self)
-        sub.X, sub.n, sub.loss = np.ascontiguousarray(self.X[rows]), _count(self.n, rows), self.loss.subset(rows)
+        sub.X, sub.n, sub.loss = take_rows(self.X, rows), int(rows.size), self.loss.subset(rows)
         sub.offset = None if self.offset is None else self.offset[rows]
         sub._last, sub._carried, sub._sketch, sub._warm = None, False, None, False
         return sub
@@ -726,9 +738,9 @@ class LinearModelProblem:
         """Penalised Hessian with the loss part estimated from a fixed row subsample.
 
         The Newton sketch of Pilanci & Wainwright (2017) in a simple form: a fixed
-        systematic sample of the rows (``sample_rows``: every k-th row, copied once, so
-        fits are reproducible), their curvature scaled by the ratio of total to sampled
-        row weight.  Cost: ``m / n`` of :meth:`hessian`.
+        sample of the rows (``sample_rows``: random runs of consecutive rows, a fixed
+        seed, copied once, so fits are reproducible), their curvature scaled by the ratio
+        of total to sampled row weight.  Cost: ``m / n`` of :meth:`hessian`.
         Returns None for problems too small to gain from it (``n < SKETCH_MIN_ROWS``) and
         for the Jeffreys penalty.  The solver uses it only while far from the optimum; the
         last iterations and the covariance use the exact Hessian.
@@ -739,7 +751,7 @@ class LinearModelProblem:
             m = min(self.n, max(SKETCH_PER_PARAMETER * self.size, self.n // SKETCH_FRACTION))
             rows = sample_rows(self.n, m)
             sub = copy.copy(self)
-            sub.X, sub.n, sub._last, sub._sketch = np.ascontiguousarray(self.X[rows]), _count(self.n, rows), None, None
+            sub.X, sub.n, sub._last, sub._sketch = take_rows(self.X, rows), int(rows.size), None, None
             v = self.loss.row_weights()
             sub_total = float(v[rows].sum())
             self._sketch = (rows, sub, float(v.sum()) / sub_total if sub_total > 0 else 0.0)
