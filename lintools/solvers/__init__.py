@@ -35,7 +35,9 @@ coordinates: with centres ``c`` (weighted column means when there is an intercep
 scales ``s`` (weighted standard deviations),
 ``z = (a, g)`` with ``beta = g / s`` and ``b = a - c' beta``.  The design is never copied
 whole: products with ``X`` go straight to BLAS, and the Hessian is accumulated over
-blocks of rows as ``B' B`` with ``B = sqrt(W) [1, (X - c) / s]``.  Large problems also
+blocks of rows as ``B' B`` with ``B = sqrt(W) [1, (X - c) / s]`` (or from the uncentred
+``sqrt(W) X``, centred afterwards, while the means are small against the spreads; see
+:mod:`lintools.solvers._kernels`).  Large problems also
 offer ``warm_start`` (the optimum on a row subsample), ``step_hessian`` (a Hessian formed
 in float32 when a test of conditioning allows, for Newton steps only) and carry the line
 search's linear predictor to the next point (see :mod:`lintools.solvers.newton`).
@@ -637,9 +639,12 @@ class LinearModelProblem:
     def _information(self, W: np.ndarray, single: bool = False) -> np.ndarray:
         """``A' W A`` in z coordinates (no penalty): one BLAS product per block of rows.
 
-        For one output each cache-sized block is ``B = sqrt(W) [1, X - c]`` written into one
-        reused buffer, ``B'B`` goes to BLAS, and the column scales ``1/s`` are applied once
-        to the (p+1) x (p+1) result.  With ``single`` (the caller checks that the
+        For one output, while every ``|c_j| <= s_j`` (``self.uncentred``), the blocks are
+        the uncentred ``sqrt(W) X`` and the centring is applied to the small result
+        (:func:`lintools.solvers._kernels.weighted_gram`, whose rounding analysis sets that
+        limit); otherwise each cache-sized block is ``B = sqrt(W) [1, X - c]`` written into
+        one reused buffer, ``B'B`` goes to BLAS, and the column scales ``1/s`` are applied
+        once to the (p+1) x (p+1) result.  With ``single`` (the caller checks that the
         standardised rows are bounded, see ``self.single``) the one-output block is the
         standardised ``sqrt(W / max W) [1, (X - c) / s]`` rounded to float32 and ``B'B`` is
         a float32 product, summed over blocks in float64: about 1e-6 relative accuracy, for
