@@ -63,6 +63,11 @@ def null_objective(loss: Any, n: int, offset: np.ndarray | None, intercept: bool
     if not intercept:
         eta = np.zeros(n) if offset is None else offset
         return loss.value(eta), eta
+    closed = getattr(loss, "constant_fit", None)
+    if offset is None and not jeffreys and closed is not None:
+        fitted = closed(n, tol)
+        if fitted is not None:
+            return fitted
     P = LinearModelProblem(np.zeros((n, 0)), loss, intercept=True, offset=offset, jeffreys=jeffreys)
     res = newton(P, tol=tol, max_iter=max(max_iter, 50))
     return res.objective, P.eta(res.z)

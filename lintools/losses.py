@@ -185,6 +185,23 @@ class BinomialLoss:
             b -= float(self._wm @ offset) / total
         return b
 
+    def constant_fit(self, n: int, tol: float) -> tuple[float, np.ndarray] | None:
+        r"""The intercept-only fit without offset in closed form: ``(value, eta)`` or None.
+
+        The optimum is :math:`b = \mathrm{logit}(S / T)` with :math:`S = \sum w y` and
+        :math:`T = \sum w m`, and the value there is :math:`S\,\mathrm{softplus}(-b) +
+        (T - S)\,\mathrm{softplus}(b)`.  None when the gradient :math:`T\mu(b) - S` at the
+        (clamped) rate is above ``tol`` (a rate within 1e-12 of 0 or 1); then solve."""
+        b = self.start_intercept()
+        S, T = float(self._wy.sum()), float(self._wm.sum())
+        mu = 1.0 / (1.0 + math.exp(-b))
+        if not abs(T * mu - S) <= tol:
+            return None
+        f = S * float(log1pexp(np.float64(-b))) + (T - S) * float(log1pexp(np.float64(b)))
+        eta = np.full(n, b)
+        self._value = (eta, f)
+        return f, eta
+
     def value(self, eta: np.ndarray) -> float:
         """Sum of the weighted negative log-likelihood terms (without the binomial coefficient).
 

@@ -228,3 +228,37 @@ def test_report_layout():
     assert "likelihood ratio against the null model: 15.4042 on 3 df" in text
     assert "converged in" in text
     assert lt.logistic is logistic
+
+
+def test_null_deviance_closed_form_against_mpmath():
+    # source: the intercept-only binomial optimum in closed form, mu = S / T, evaluated in
+    # 50-digit arithmetic (mpmath): null deviance -2 [S log mu + (T - S) log(1 - mu)] for
+    # binary rows with case weights and for grouped rows
+    import mpmath
+
+    with mpmath.workdps(50):
+        _null_cases(mpmath)
+
+
+def _null_cases(mpmath):
+    rng = np.random.default_rng(41)
+    n = 5000
+    X = rng.normal(size=(n, 2))
+    w = rng.uniform(0.5, 2.0, size=n)
+    m = rng.integers(1, 5, size=n).astype(float)
+    for y, trials in (((rng.random(n) < 0.07).astype(float), None), (np.floor(rng.random(n) * (m + 1)), m)):
+        fit = logistic(X, y, weights=w, trials=trials)
+        mm = np.ones(n) if trials is None else m
+        S = mpmath.fsum(mpmath.mpf(a) * mpmath.mpf(b) for a, b in zip(w, y))
+        T = mpmath.fsum(mpmath.mpf(a) * mpmath.mpf(b) for a, b in zip(w, mm))
+        mu = S / T
+        loglik0 = S * mpmath.log(mu) + (T - S) * mpmath.log(1 - mu)
+        if trials is None:
+            assert abs(fit.null_deviance - float(-2 * loglik0)) <= 1e-14 * abs(float(loglik0))
+        else:  # grouped: the deviance is measured from the saturated model
+            sat = mpmath.fsum(
+                mpmath.mpf(wi) * ((mpmath.mpf(yi) * mpmath.log(mpmath.mpf(yi) / mpmath.mpf(mi)) if yi > 0 else 0)
+                                  + ((mpmath.mpf(mi - yi)) * mpmath.log(mpmath.mpf(mi - yi) / mpmath.mpf(mi)) if mi > yi else 0))
+                for wi, yi, mi in zip(w, y, m))
+            want = float(2 * (sat - loglik0))
+            assert abs(fit.null_deviance - want) <= 1e-12 * abs(want)
