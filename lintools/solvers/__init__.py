@@ -44,7 +44,6 @@ search's linear predictor to the next point (see :mod:`lintools.solvers.newton`)
 
 References
 ----------
-Cochran, W. G. (1977). Sampling Techniques, 3rd ed., ch. 9 (cluster sampling). Wiley.
 Firth, D. (1993). Bias reduction of maximum likelihood estimates. Biometrika 80, 27-38.
 Pilanci, M. & Wainwright, M. J. (2017). Newton sketch: a near linear-time optimization
 algorithm with linear-quadratic convergence. SIAM J. Optimization 27, 205-245.
@@ -63,6 +62,7 @@ import numpy as np
 from ..linalg import solve_lower, solve_upper
 from ._kernels import column_moments, uncentred_ok, weighted_gram
 from ._kernels_multi import multi_output_information
+from ._samples import SAMPLE_RUN, sample_rows, take_rows
 
 __all__ = [
     "IterationRecord",
@@ -80,6 +80,9 @@ __all__ = [
     "inverse_spd",
     "solve",
     "SOLVERS",
+    "SAMPLE_RUN",
+    "sample_rows",
+    "take_rows",
 ]
 
 EPS = float(np.finfo(float).eps)
@@ -208,32 +211,6 @@ def finish(name: str, z: np.ndarray, ev: "Evaluation", it: int, status: str, mes
         gradient_norm=ev.gradient_norm, status=status, message=message, solver=name,
         evaluation=ev,
     )
-
-
-#: Row samples are drawn as runs of this many consecutive rows (a cluster sample).
-SAMPLE_RUN = 64
-SAMPLE_SEED = 20170101
-
-
-def sample_rows(n: int, m: int, seed: int = SAMPLE_SEED) -> np.ndarray:
-    """About ``m`` of ``n`` rows for a warm start or a Newton sketch, sorted: ``m / SAMPLE_RUN``
-    runs of ``SAMPLE_RUN`` consecutive rows at run starts drawn without replacement with a
-    fixed seed (a cluster sample of equal clusters; Cochran 1977, ch. 9).  Runs are copied
-    about twice as fast as scattered rows, and, unlike every k-th row, random runs are not
-    fooled by data that repeat with a period; rows past the last whole run are never drawn.
-    The sample only shapes the path: the stopping rule is on the full gradient."""
-    runs = n // SAMPLE_RUN
-    k = min(runs, max(1, -(-m // SAMPLE_RUN)))
-    starts = np.sort(np.random.default_rng(seed).choice(runs, size=k, replace=False))
-    return (starts[:, None] * SAMPLE_RUN + np.arange(SAMPLE_RUN)).ravel()
-
-
-def take_rows(X: np.ndarray, rows: np.ndarray) -> np.ndarray:
-    """``X[rows]`` for rows from :func:`sample_rows`, as whole runs when X is C-ordered."""
-    if X.flags.c_contiguous and rows.size % SAMPLE_RUN == 0 and X.shape[0] >= SAMPLE_RUN:
-        runs = X[: (X.shape[0] // SAMPLE_RUN) * SAMPLE_RUN].reshape(-1, SAMPLE_RUN, X.shape[1])
-        return runs[rows[::SAMPLE_RUN] // SAMPLE_RUN].reshape(-1, X.shape[1])
-    return X[rows]
 
 
 class SingularMatrixError(ArithmeticError):
