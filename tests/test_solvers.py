@@ -343,6 +343,8 @@ def test_row_samples_are_runs_that_see_periodic_data_whole(monkeypatch):
     assert len(np.unique(rows % 16)) == 16  # every run of the design is in the sample
     np.testing.assert_array_equal(take_rows(X, rows), X[rows])
     np.testing.assert_array_equal(take_rows(np.asfortranarray(X), rows), X[rows])
+    odd = np.arange(SAMPLE_RUN) + 5  # a run that is not aligned: plain indexing
+    np.testing.assert_array_equal(take_rows(X, odd), X[odd])
     fast = logistic(X, y, tol=1e-9)
     _exact_path(monkeypatch)
     exact = logistic(X, y, tol=1e-9)
