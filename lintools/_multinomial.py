@@ -16,10 +16,18 @@ all ``K`` (the symmetric form, ``outputs = K``).
 Numerics: every row is shifted by its maximum, so ``exp`` never overflows for any finite
 ``E`` (entries up to +-1e300 and differences up to the largest double); the log of the
 normaliser is ``log1p`` of the sum of the non-maximal terms, and ``1 - pi_k`` is formed as
-the sum of the other classes' terms, never as a difference, so probabilities near 1 keep
-their complement's relative accuracy.  The gradient is :math:`w_i(\pi_{ik} - [c_i = k])`;
+the sum of the other classes' terms wherever ``pi_k > 1/2`` (only the largest class of a
+row can be there; elsewhere ``1 - pi_k >= 1/2`` has no cancellation), so probabilities
+near 1 keep their complement's relative accuracy.  The gradient is :math:`w_i(\pi_{ik} - [c_i = k])`;
 the per-row Hessian block is :math:`w_i(\mathrm{diag}\,\pi_i - \pi_i\pi_i')` restricted to
 the free columns.
+
+Memory: every pass over the rows works on blocks of ``ROWS`` rows in buffers of that
+size, so no (n, K) temporary beyond the results is formed; the results of the last pass
+(the probabilities of the free columns and the complement of each row's largest class)
+are kept for the curvature and the line search at the same linear predictor, and the
+(n, K', K') curvature is formed only on request (:meth:`MultinomialLoss.pair_weights`
+gives its distinct entries one block of rows at a time).
 
 References
 ----------
@@ -35,51 +43,88 @@ from typing import Any
 
 import numpy as np
 
-__all__ = ["MultinomialLoss", "softmax_parts"]
+__all__ = ["MultinomialLoss", "softmax_parts", "ROWS"]
 
 
-#: Up to this many columns, row reductions of an (n, K) array run column by column (a
-#: reduction along a short contiguous axis is slow in NumPy); the sums are the same
-#: left-to-right sums either way.
-_FEW_COLUMNS = 16
+#: Rows per block of the elementwise passes: a block's (K, ROWS) buffers stay in cache.
+ROWS = 8192
+#: Entries per chunk of the gather/scatter of the own-class entries.
+_CHUNK = 1 << 13
 
 
-def row_max(M: np.ndarray) -> np.ndarray:
-    """``M.max(axis=1)`` for a 2-D array."""
-    if M.shape[1] == 0 or M.shape[1] > _FEW_COLUMNS:
-        return np.max(M, axis=1)
-    out = M[:, 0].copy()
-    for k in range(1, M.shape[1]):
-        np.maximum(out, M[:, k], out=out)
-    return out
+def _as_2d(eta: np.ndarray) -> np.ndarray:
+    return eta[:, None] if eta.ndim == 1 else eta
 
 
-def row_sum(M: np.ndarray) -> np.ndarray:
-    """``M.sum(axis=1)`` for a 2-D array, adding the columns left to right."""
-    if M.shape[1] == 0 or M.shape[1] > _FEW_COLUMNS:
-        return np.sum(M, axis=1)
-    out = M[:, 0].copy()
-    for k in range(1, M.shape[1]):
-        out += M[:, k]
-    return out
+class _Block:
+    """Reused buffers of one pass: ``S`` (K, m) and its scratch, for blocks of up to ``m`` rows."""
+
+    def __init__(self, K: int, m: int) -> None:
+        self.K, self.m = K, m
+        self._s = np.empty(K * m)
+        self._t = np.empty(K * m)
+        self._b = np.empty(K * m, dtype=bool)
+        self.rows = np.arange(m)
+
+    def shifted(self, Et: np.ndarray, first: int) -> tuple[np.ndarray, np.ndarray]:
+        """``S = E - max`` (rows = classes; ``E = [0; Et]`` when ``first``) and the row maxima."""
+        nb = Et.shape[1]
+        S = self._s[: self.K * nb].reshape(self.K, nb)
+        mx = np.max(Et, axis=0)
+        if first:
+            np.maximum(mx, 0.0, out=mx)
+            np.negative(mx, out=S[0])
+        np.subtract(Et, mx, out=S[first:])
+        return S, mx
+
+    def normalise(self, S: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """In place ``S <- exp(S)`` (every maximal entry exactly 1); returns the row totals and
+        the sums of the non-maximal terms (each tie beyond the first counted as 1, exactly)."""
+        nb = S.shape[1]
+        np.exp(S, out=S)
+        total = np.add.reduce(S, axis=0)
+        T = self._t[: self.K * nb].reshape(self.K, nb)
+        B = self._b[: self.K * nb].reshape(self.K, nb)
+        np.less(S, 1.0, out=B)
+        np.multiply(S, B, out=T)
+        rest = np.add.reduce(T, axis=0)
+        np.subtract(S, T, out=T)  # 1 at each maximal entry, 0 elsewhere
+        ties = np.add.reduce(T, axis=0)
+        ties -= 1.0
+        rest += ties
+        return total, rest
+
+    def own(self, S: np.ndarray, codes: np.ndarray) -> np.ndarray:
+        """``S[codes[i], i]`` for a (K, nb) block."""
+        nb = S.shape[1]
+        return np.take(S.reshape(-1), codes.astype(np.intp, copy=False) * nb + self.rows[:nb])
+
+
+def _complement(P: np.ndarray, top: np.ndarray) -> np.ndarray:
+    """``1 - P`` where ``P <= 1/2``, else the row's ``top`` (the accurate complement of its largest class)."""
+    Q = 1.0 - P
+    np.copyto(Q, top, where=P > 0.5)
+    return Q
 
 
 def softmax_parts(E: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """For a full (n, K) matrix: probabilities ``P``, complements ``Q = 1 - P`` and the
     row log-normalisers minus the row maxima (``log sum exp(E - max)``), each accurate."""
     n, K = E.shape
-    rows = np.arange(n)
-    top = np.argmax(E, axis=1)
-    ex = np.exp(E - E[rows, top][:, None])  # in [0, 1], the maximum exactly 1
-    total = row_sum(ex)
-    ex_top = ex[rows, top].copy()
-    ex[rows, top] = 0.0
-    rest = row_sum(ex)  # sum of the non-maximal terms
-    ex[rows, top] = ex_top
-    P = ex / total[:, None]
-    Q = (total[:, None] - ex) / total[:, None]
-    Q[rows, top] = rest / total
-    return P, Q, np.log1p(rest)
+    P, Q, lognorm = np.empty((n, K)), np.empty((n, K)), np.empty(n)
+    if K == 0:
+        return P, Q, lognorm
+    blk = _Block(K, min(ROWS, n))
+    for lo in range(0, n, ROWS):
+        hi = min(n, lo + ROWS)
+        S, _ = blk.shifted(E[lo:hi].T, 0)
+        total, rest = blk.normalise(S)
+        Pb = S / total
+        top = rest / total
+        P[lo:hi] = Pb.T
+        Q[lo:hi] = _complement(Pb, top).T
+        np.log1p(rest, out=lognorm[lo:hi])
+    return P, Q, lognorm
 
 
 class MultinomialLoss:
@@ -98,7 +143,9 @@ class MultinomialLoss:
         the symmetric form (``outputs = K``).
 
     The arrays are assumed checked (the front checks them); they are neither copied nor
-    modified.  ``eta`` passed to the methods has shape ``(n, outputs)``.
+    modified.  ``eta`` passed to the methods has shape ``(n, outputs)`` (either memory
+    order; the passes read it one block of rows at a time, fastest when it is stored
+    column by column, as :class:`lintools.solvers.LinearModelProblem` stores it).
     """
 
     def __init__(self, codes: np.ndarray, K: int, weights: np.ndarray | None = None, reference: bool = True) -> None:
@@ -106,13 +153,20 @@ class MultinomialLoss:
         self.codes, self.K, self.reference = codes, int(K), bool(reference)
         self.outputs = self.K - 1 if self.reference else self.K
         self.weights = np.ones(n) if weights is None else weights
-        self._rows = np.arange(n)
         self._first = int(self.reference)
+        #: (eta, value, P, top, finite) of the last pass: ``P`` (outputs, n) the probabilities
+        #: of the free columns, ``top`` (n,) the complement of each row's largest probability,
+        #: ``finite`` whether every entry of eta is finite
         self._cache: tuple | None = None
+        self._own_flat: np.ndarray | None = None
 
     def subset(self, rows: np.ndarray) -> "MultinomialLoss":
         """The same loss on the given rows."""
         return MultinomialLoss(self.codes[rows], self.K, self.weights[rows], self.reference)
+
+    def forget(self) -> None:
+        """Drop the kept results of the last pass (and the linear predictor they hold)."""
+        self._cache = None
 
     # ---- helpers -----------------------------------------------------------------------
     def full(self, eta: np.ndarray) -> np.ndarray:
@@ -126,23 +180,89 @@ class MultinomialLoss:
             return eta
         return np.column_stack([np.zeros(eta.shape[0]), eta])
 
-    @staticmethod
-    def _shaped(M: np.ndarray, eta: np.ndarray) -> np.ndarray:
-        return M[:, 0] if eta.ndim == 1 else M
+    def _blocks(self, n: int):
+        blk = _Block(self.K, max(1, min(ROWS, n)))
+        for lo in range(0, n, ROWS):
+            yield lo, min(n, lo + ROWS), blk
+        del blk
 
-    def _parts(self, eta: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-        """``(E, P, Q, lognorm)`` at ``eta``; the last result is kept, since the solvers ask
-        for the value, gradient and curvature at the same linear predictor in turn."""
+    def _own_positions(self) -> np.ndarray:
+        """Flat positions ``(c_i - first) * n + i`` in an (outputs, n) array of the rows whose
+        class is a free column (formed once)."""
+        if self._own_flat is None:
+            n = self.codes.shape[0]
+            col = self.codes.astype(np.int64) - self._first
+            flat = col * n + np.arange(n, dtype=np.int64)
+            self._own_flat = flat[col >= 0] if self._first else flat
+        return self._own_flat
+
+    def _fix_own(self, P: np.ndarray, top: np.ndarray, G: np.ndarray) -> None:
+        """Write the own-class entries ``-w (1 - pi_c)`` of the gradient ``G = w P``."""
+        n = P.shape[1]
+        flat = self._own_positions()
+        Pf, Gf = P.reshape(-1), G.reshape(-1)
+        for a in range(0, flat.size, _CHUNK):
+            pos = flat[a : a + _CHUNK]
+            rows = pos % n if P.shape[0] > 1 else pos
+            q = _complement(np.take(Pf, pos), np.take(top, rows))
+            q *= np.take(self.weights, rows)
+            np.negative(q, out=q)
+            np.put(Gf, pos, q)
+
+    def _own_free(self, lo: int, hi: int) -> tuple[np.ndarray, np.ndarray]:
+        """Rows of the block ``lo:hi`` (block positions) whose class is a free column, and that column."""
+        col = self.codes[lo:hi].astype(np.intp, copy=False) - self._first
+        if not self._first:
+            return np.arange(hi - lo), col
+        rows = np.flatnonzero(col >= 0)
+        return rows, col[rows]
+
+    def _pass(self, eta: np.ndarray, gradient: bool = False) -> tuple[float, np.ndarray | None]:
+        """One pass at ``eta``: the value, the kept probabilities and, on request, the
+        gradient as an (outputs, n) array."""
+        self._cache = None  # its arrays are released before the new ones are made
+        E2 = _as_2d(eta)
+        n, Kf = E2.shape
+        first, w = self._first, self.weights
+        P, top = np.empty((Kf, n)), np.empty(n)
+        G = np.empty((Kf, n)) if gradient else None
+        value = 0.0
+        finite = True
+        blk = S = Et = Pb = None
+        for lo, hi, blk in self._blocks(n):
+            Et = E2[lo:hi].T
+            S, mx = blk.shifted(Et, first)
+            finite = finite and bool(np.isfinite(np.add.reduce(mx)) and np.isfinite(np.min(Et)))
+            d_own = blk.own(S, self.codes[lo:hi])  # E_own - max <= 0
+            total, rest = blk.normalise(S)
+            terms = np.log1p(rest)
+            terms -= d_own
+            value += float(w[lo:hi] @ terms)
+            Pb = P[:, lo:hi]
+            np.divide(S[first:], total, out=Pb)
+            np.divide(rest, total, out=top[lo:hi])
+            if G is not None:
+                np.multiply(Pb, w[lo:hi], out=G[:, lo:hi])
+        del blk, S, Et, Pb  # the block buffers go before the own-class entries are written
+        if G is not None:
+            self._fix_own(P, top, G)
+        self._cache = (eta, value, P, top, finite)
+        return value, G
+
+    def _stats(self, eta: np.ndarray) -> tuple[float, np.ndarray, np.ndarray]:
+        """``(value, P, top)`` at ``eta``: the kept ones when the last pass was at ``eta``."""
+        return self._kept(eta)[1:4]
+
+    def _kept(self, eta: np.ndarray) -> tuple:
         cached = self._cache
-        if cached is not None and cached[0] is eta:
-            return cached[1]
-        E = self.full(eta)
-        parts = (E, *softmax_parts(E))
-        self._cache = (eta, parts)
-        return parts
+        if cached is None or cached[0] is not eta:
+            self._pass(eta)
+            cached = self._cache
+        return cached
 
-    def _own(self, M: np.ndarray) -> np.ndarray:
-        return M[self._rows, self.codes]
+    def _shaped_t(self, G: np.ndarray, eta: np.ndarray) -> np.ndarray:
+        """An (outputs, n) result in the shape of ``eta``."""
+        return G[0] if eta.ndim == 1 else G.T
 
     def class_totals(self) -> np.ndarray:
         """Total case weight of each class."""
@@ -163,14 +283,30 @@ class MultinomialLoss:
             a = a - (self.weights @ offset.reshape(offset.shape[0], -1)) / float(self.weights.sum())
         return float(a[0]) if self.outputs == 1 else a
 
+    def _row_terms(self, E2: np.ndarray, codes: np.ndarray) -> np.ndarray:
+        """``-log pi_{i c_i}`` per row of a few rows ``E2`` (free columns) with classes ``codes``."""
+        m = E2.shape[0]
+        blk = _Block(self.K, max(1, m))
+        S, _ = blk.shifted(E2.T, self._first)
+        d_own = blk.own(S, codes)
+        _, rest = blk.normalise(S)
+        return np.log1p(rest) - d_own
+
     def _terms(self, eta: np.ndarray) -> np.ndarray:
         """``-log pi_{i c_i}`` per row: ``(max - E_own) + log1p(rest)``, each part >= 0."""
-        E, _, _, lognorm = self._parts(eta)
-        return (row_max(E) - self._own(E)) + lognorm
+        E2 = _as_2d(eta)
+        out = np.empty(E2.shape[0])
+        for lo, hi, blk in self._blocks(E2.shape[0]):
+            S, _ = blk.shifted(E2[lo:hi].T, self._first)
+            d_own = blk.own(S, self.codes[lo:hi])
+            _, rest = blk.normalise(S)
+            np.log1p(rest, out=out[lo:hi])
+            out[lo:hi] -= d_own
+        return out
 
     def value(self, eta: np.ndarray) -> float:
         """:math:`\\ell(E)` of the module docstring."""
-        return float(self.weights @ self._terms(eta))
+        return self._stats(eta)[0]
 
     def value_change(self, eta: np.ndarray, delta: np.ndarray) -> float:
         r"""``value(eta + delta) - value(eta)``, accurate to the rounding of the change.
@@ -180,37 +316,101 @@ class MultinomialLoss:
         :math:`|\delta_k| \le 1`; rows with larger moves use the plain difference of the
         terms, which is then accurate relative to the change.
         """
-        E, P, _, _ = self._parts(eta)
-        D = self.full(np.asarray(delta))
-        small = row_max(np.abs(D)) <= 1.0
-        Ds = np.where(small[:, None], D, 0.0)
-        change = np.log1p(row_sum(P * np.expm1(Ds))) - self._own(Ds)
-        if not small.all():
-            far = ~small
-            Ef, Df = E[far], D[far]
-            c = self.codes[far]
-            r = np.arange(c.size)
+        return self.change_along(eta, np.asarray(delta, dtype=float), 1.0, check_finite=False)
 
-            def terms(M: np.ndarray) -> np.ndarray:
-                return (row_max(M) - M[r, c]) + softmax_parts(M)[2]
+    def change_along(self, eta: np.ndarray, direction: np.ndarray, t: float, check_finite: bool = True) -> float:
+        """``value(eta + t * direction) - value(eta)`` as :meth:`value_change` with
+        ``delta = t * direction``, one block of rows at a time (no (n, K) temporary).
 
-            change[far] = terms(Ef + Df) - terms(Ef)
-        return float(self.weights @ change)
+        With ``check_finite`` it is ``inf`` when ``eta + t * direction`` has a non-finite
+        entry (a line-search trial that overflowed)."""
+        _, _, P, _, eta_finite = self._kept(eta)
+        E2, D2 = _as_2d(eta), _as_2d(direction)
+        n, Kf = E2.shape
+        w = self.weights
+        change = 0.0
+        D = np.empty(Kf * min(max(n, 1), ROWS))
+        T = np.empty_like(D)
+        with np.errstate(over="ignore", invalid="ignore"):
+            for lo in range(0, n, ROWS):
+                hi = min(n, lo + ROWS)
+                nb = hi - lo
+                Db = D[: Kf * nb].reshape(Kf, nb)
+                Tb = T[: Kf * nb].reshape(Kf, nb)
+                Et = E2[lo:hi].T
+                if t == 1.0:
+                    np.copyto(Db, D2[lo:hi].T)
+                else:
+                    np.multiply(D2[lo:hi].T, t, out=Db)
+                np.abs(Db, out=Tb)
+                reach = np.max(Tb, axis=0)
+                small = reach <= 1.0
+                # eta + delta is finite when eta is and every |delta| <= 1 (or it is checked)
+                if check_finite and not (eta_finite and small.all()):
+                    np.add(Et, Db, out=Tb)
+                    if not (np.isfinite(Tb.max()) and np.isfinite(Tb.min())):
+                        return float("inf")
+                np.expm1(Db, out=Tb)
+                Tb *= P[:, lo:hi]
+                ch = np.log1p(np.add.reduce(Tb, axis=0))
+                rows, col = self._own_free(lo, hi)
+                if rows.size:
+                    ch[rows] -= Db[col, rows]
+                if not small.all():
+                    far = np.flatnonzero(~small)
+                    Ef = E2[lo:hi][far]
+                    c = self.codes[lo:hi][far]
+                    ch[far] = self._row_terms(Ef + Db[:, far].T, c) - self._row_terms(Ef, c)
+                change += float(w[lo:hi] @ ch)
+        return change
 
     def mean(self, eta: np.ndarray) -> np.ndarray:
         """Class probabilities, (n, K)."""
-        return self._parts(eta)[1].copy()
+        E2 = _as_2d(eta)
+        out = np.empty((E2.shape[0], self.K))
+        for lo, hi, blk in self._blocks(E2.shape[0]):
+            S, _ = blk.shifted(E2[lo:hi].T, self._first)
+            total, _ = blk.normalise(S)
+            out[lo:hi] = (S / total).T
+        return out
 
     def gradient(self, eta: np.ndarray) -> np.ndarray:
         """``w (pi - onehot)`` in the free columns; the own-class entry is ``-w (1 - pi_c)``."""
-        _, P, Q, _ = self._parts(eta)
-        G = P.copy()
-        G[self._rows, self.codes] = -self._own(Q)
-        G *= self.weights[:, None]
-        return self._shaped(G[:, self._first :], eta)
+        _, P, top = self._stats(eta)
+        G = P * self.weights
+        self._fix_own(P, top, G)
+        return self._shaped_t(G, eta)
 
     def value_and_gradient(self, eta: np.ndarray) -> tuple[float, np.ndarray]:
-        return self.value(eta), self.gradient(eta)
+        """Value and gradient in one pass (the gradient stored column by column)."""
+        cached = self._cache
+        if cached is not None and cached[0] is eta:
+            return cached[1], self.gradient(eta)
+        value, G = self._pass(eta, gradient=True)
+        return value, self._shaped_t(G, eta)
+
+    def pair_weights(self, eta: np.ndarray, rows: Any, out: np.ndarray | None = None) -> np.ndarray:
+        r"""The distinct entries of the per-row Hessian blocks on ``rows`` (a slice or indices):
+        an (outputs (outputs + 1) / 2, rows) array, row ``j`` the pair ``(k, m)``, ``k <= m``,
+        in the order ``(0,0), (0,1), ..., (1,1), ...``: :math:`w\,\pi_k(1 - \pi_k)` on the
+        diagonal, :math:`-w\,\pi_k\pi_m` off it."""
+        _, P, top = self._stats(eta)
+        Pb, tb, wb = P[:, rows], top[rows], self.weights[rows]
+        Kf, nb = Pb.shape
+        if out is None:
+            out = np.empty((Kf * (Kf + 1) // 2, nb))
+        WP = Pb * wb  # w pi_k
+        Q = _complement(Pb, tb)
+        j = 0
+        for k in range(Kf):
+            np.multiply(WP[k], Q[k], out=out[j])
+            j += 1
+            if k + 1 < Kf:
+                blk = out[j : j + Kf - k - 1]
+                np.multiply(Pb[k + 1 :], WP[k], out=blk)
+                np.negative(blk, out=blk)
+                j += Kf - k - 1
+        return out
 
     def curvature(self, eta: np.ndarray) -> np.ndarray:
         """Per-row Hessian blocks ``w (diag pi - pi pi')`` on the free columns, (n, K', K')."""
@@ -218,19 +418,26 @@ class MultinomialLoss:
 
     def curvature_rows(self, eta: np.ndarray, rows: Any) -> np.ndarray:
         """``curvature(eta)[rows]``, formed on those rows only (the Newton sketch's rows)."""
-        _, P, Q, _ = self._parts(eta)
-        Pf, Qf = P[rows, self._first :], Q[rows, self._first :]
-        W = -Pf[:, :, None] * Pf[:, None, :]
-        k = np.arange(Pf.shape[1])
-        W[:, k, k] = Pf * Qf
-        W *= self.weights[rows, None, None]
+        Wp = self.pair_weights(eta, rows)
+        Kf = self.outputs
+        W = np.empty((Wp.shape[1], Kf, Kf))
+        j = 0
+        for k in range(Kf):
+            for m in range(k, Kf):
+                W[:, k, m] = Wp[j]
+                W[:, m, k] = Wp[j]
+                j += 1
         return W[:, 0, 0] if eta.ndim == 1 else W
 
     def hessian_vector(self, eta: np.ndarray, u: np.ndarray) -> np.ndarray:
         """Per-row Hessian block times the rows of ``u`` (the shape of eta)."""
-        P = self._parts(eta)[1][:, self._first :]
-        u = u.reshape(P.shape)
-        return self._shaped(self.weights[:, None] * (P * u - P * np.sum(P * u, axis=1, keepdims=True)), eta)
+        _, P, _ = self._stats(eta)
+        U = _as_2d(np.asarray(u, dtype=float).reshape(eta.shape)).T
+        PU = P * U
+        s = np.add.reduce(PU, axis=0)
+        PU -= P * s
+        PU *= self.weights
+        return self._shaped_t(PU, eta)
 
     # ---- likelihood facts -----------------------------------------------------------------
     def log_likelihood(self, eta: np.ndarray) -> float:
@@ -243,4 +450,3 @@ class MultinomialLoss:
 
     def log_binomial_total(self) -> float:
         return 0.0
-

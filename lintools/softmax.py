@@ -29,7 +29,7 @@ from typing import Any, Callable, Sequence
 import numpy as np
 
 from ._errors import InputError, LintoolsError, SeparationError
-from ._multinomial import MultinomialLoss
+from ._multinomial import ROWS, MultinomialLoss
 from ._records import SoftmaxFit
 from ._validate import as_matrix, as_offset, as_weights, check_names
 from .inference import likelihood_fields
@@ -83,21 +83,46 @@ def _reference_index(reference: Any, classes: tuple, lam: float) -> int | None:
 
 
 class _Watch(_BinaryWatch):
-    """Divergence monitor: rows whose own class leads every other by more than ETA_LIMIT."""
+    """Divergence monitor: rows whose own class leads every other by more than ETA_LIMIT.
+
+    A row's lead is at most the spread of its linear predictor (its largest entry less its
+    smallest, the pinned zero included), so while the spread of the whole matrix is within
+    the limit no row is counted and nothing is formed; otherwise the leads are found one
+    block of rows at a time."""
 
     RUNAWAY = ("{count} row(s) have their own class ahead of every other by more than {limit:g} "
                "in the linear predictor (up to {top:.3g})")
 
+    def __init__(self, loss: Any, offset: np.ndarray | None) -> None:
+        super().__init__(loss, offset)
+        self._offset_range = (0.0, 0.0) if offset is None or offset.size == 0 else (float(offset.min()),
+                                                                                    float(offset.max()))
+
     def runaway(self, eta: np.ndarray, limit: float) -> tuple[int, float]:
-        lin = eta if self.offset is None else eta - self.offset
-        E = self.loss.full(lin)
-        rows = np.arange(E.shape[0])
-        own = E[rows, self.loss.codes]
-        E = E.copy()
-        E[rows, self.loss.codes] = -np.inf
-        margin = own - E.max(axis=1)
-        hit = self.live & (margin > limit)
-        return int(hit.sum()), float(margin[hit].max()) if hit.any() else 0.0
+        if eta.size:
+            lo, hi = float(np.min(eta)), float(np.max(eta))
+            # bounds of eta - offset; the pinned column is 0
+            hi, lo = hi - self._offset_range[0], lo - self._offset_range[1]
+            if self.loss.reference:
+                hi, lo = max(hi, 0.0), min(lo, 0.0)
+            if hi - lo <= limit:
+                return 0, 0.0
+        count, top = 0, 0.0
+        n = eta.shape[0]
+        for start in range(0, n, ROWS):
+            rows = slice(start, min(n, start + ROWS))
+            lin = eta[rows] if self.offset is None else eta[rows] - self.offset[rows]
+            E = np.array(self.loss.full(lin), dtype=float)
+            r = np.arange(E.shape[0])
+            codes = self.loss.codes[rows]
+            own = E[r, codes]
+            E[r, codes] = -np.inf
+            margin = own - E.max(axis=1)
+            hit = self.live[rows] & (margin > limit)
+            if hit.any():
+                count += int(hit.sum())
+                top = max(top, float(margin[hit].max()))
+        return count, top
 
 
 def _exact_check(Xa, codes, classes, w, intercept, names):
@@ -222,11 +247,17 @@ def softmax(
     order = np.arange(K) if ref is None else np.array([ref] + [k for k in range(K) if k != ref])
     inverse = np.argsort(order)
     icodes = inverse[codes]
+    del codes  # the exact check re-forms the sorted-class codes from icodes when it runs
     loss = MultinomialLoss(icodes, K, w, reference=ref is not None)
+
+    def exact_check():
+        return _exact_check(Xa, order[icodes], tuple(classes), w, intercept, names_t)
     off = None
     if off_full is not None:
         off = off_full[:, order]
         off = off[:, 1:] - off[:, :1] if ref is not None else off
+        if off.shape[1] == 1:
+            off = off[:, 0]  # one output (two classes, a reference): the problem's eta is (n,)
     problem = checked_problem(Xa, found, loss, intercept=intercept, l2=lam, offset=off)
     if intercept and p and lam == 0:
         _constant_columns(Xa, w > 0, names_t, problem.spread, problem.c)
@@ -243,7 +274,7 @@ def softmax(
         if msg:
             raise InputError(msg)
         if watch is not None:
-            diag = _exact_check(Xa, codes, tuple(classes), w, intercept, names_t)
+            diag = exact_check()
             if diag is not None and diag.separated:
                 _raise_separation(diag)
             count, top = watch.runaway(problem.eta(z), ETA_SUSPECT) if (diag is None and z is not None) else (0, 0.0)
@@ -259,7 +290,7 @@ def softmax(
 
     try:
         res, checked = run_with_check(target, solver, tol, max_iter, on_iteration, watch,
-                                      lambda: _exact_check(Xa, codes, tuple(classes), w, intercept, names_t),
+                                      exact_check,
                                       start=start, on_separated=_raise_separation)
     except SingularMatrixError as exc:
         fail(f"the information matrix is singular ({exc})")
@@ -272,7 +303,7 @@ def softmax(
         fail("the information matrix is singular at the answer", z)
     ev = final_evaluation(problem, res) if target is problem else problem.evaluate(z, fresh=True)
     if watch is not None and not checked:
-        _final_check(res, ev, Vz, problem, watch, lambda: _exact_check(Xa, codes, tuple(classes), w, intercept, names_t),
+        _final_check(res, ev, Vz, problem, watch, exact_check,
                      Xa.size * K)
     conv = convergence_record(res, ev, problem, z, solver)
     return _package(problem, loss, ev, Vz, z, order, ref, classes, names_t, lam, intercept, conv,
@@ -370,11 +401,22 @@ def _package(problem, loss, ev, Vz, z, order, ref, classes, names, lam, intercep
 
 def _null_deviance(loss: MultinomialLoss, n: int, off: np.ndarray | None, intercept: bool, tol: float,
                    max_iter: int) -> float:
-    """Deviance of the intercept-only model (reference form: the same optimum as any form)."""
+    """Deviance of the intercept-only model (reference form: the same optimum as any form).
+
+    Without an offset its probabilities are the class shares ``T_k / T`` (``T_k`` the total
+    weight of class k), so the deviance is ``-2 sum_k T_k log(T_k / T)`` exactly; with an
+    offset it is fitted (Newton on the intercepts alone)."""
+    if intercept and off is None:
+        totals = loss.class_totals()
+        T = float(totals.sum())
+        used = totals > 0
+        return float(-2.0 * np.sum(totals[used] * np.log(totals[used] / T)))
     ref_loss = MultinomialLoss(loss.codes, loss.K, loss.weights, reference=True)
     off_ref = off
     if off is not None and not loss.reference:
         off_ref = off[:, 1:] - off[:, :1]
+    if off_ref is not None and off_ref.ndim == 2 and off_ref.shape[1] == 1:
+        off_ref = off_ref[:, 0]  # one output: the problem's eta is (n,)
     if not intercept:
         eta = np.zeros((n, loss.K - 1)) if off_ref is None else off_ref
         return ref_loss.deviance(eta)
@@ -421,21 +463,36 @@ def score_and_information(fit: SoftmaxFit, X: Any, y: Any, weights: Any, coef: A
             Tint = Tint.copy()
             Tint[0] = P.to_original(zb)
         eta = eta_slopes + Tint[0]
-        A = np.column_stack([np.ones(n), Xa])
     else:
-        eta, A = eta_slopes, Xa
+        eta = eta_slopes
+    del eta_slopes
     R = loss.gradient(eta)  # (n, Kf)
-    W = loss.curvature(eta)  # (n, Kf, Kf)
     Kf = loss.outputs
-    pen = np.full(A.shape[1], fit.l2)
+    off = int(fit.with_intercept)
+    pen = np.full(per, fit.l2)
     if fit.with_intercept:
         pen[0] = 0.0
-    U = -(A.T @ R + pen[:, None] * Tint)  # (per, Kf)
+    # score and information over blocks of the rows a_i = (1, x_i): neither [1, X] nor the
+    # (n, Kf, Kf) curvature is formed whole
+    AR = np.zeros((per, Kf))
     info = np.zeros((per, Kf, per, Kf))
+    for lo in range(0, n, ROWS):
+        Xb = Xa[lo : lo + ROWS]
+        A = np.empty((Xb.shape[0], per))
+        if off:
+            A[:, 0] = 1.0
+        A[:, off:] = Xb
+        AR += A.T @ R[lo : lo + ROWS]
+        W = loss.curvature_rows(eta, slice(lo, lo + ROWS))  # (rows, Kf, Kf)
+        for k in range(Kf):
+            for m in range(k, Kf):
+                G = A.T @ (A * W[:, k, m][:, None])
+                info[:, k, :, m] += G
+                if m != k:
+                    info[:, m, :, k] += G.T
     for k in range(Kf):
-        for m in range(Kf):
-            info[:, k, :, m] = A.T @ (A * W[:, k, m][:, None])
         info[:, k, :, k] += np.diag(pen)
+    U = -(AR + pen[:, None] * Tint)  # (per, Kf)
     # internal columns -> classes order, class-major
     internal_col = {int(order[j]): j - first for j in range(first, K)}
     sel = [internal_col[k] for k in cols]

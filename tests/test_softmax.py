@@ -151,6 +151,22 @@ def test_reference_label_and_first_give_the_same_model(anes):
     assert np.all(c.standard_errors[:, 3] == 0)
 
 
+def test_two_classes_with_an_offset_equal_the_binomial_glm_with_the_offset_difference():
+    # source: statsmodels GLM (binomial, logit link) on its spector data with offset
+    # o_1 - o_0: the K = 2 softmax with offsets (o_0, o_1) and the first class as reference
+    # is that model (the offsets here are fixed functions of the shipped columns)
+    d = sm.datasets.spector.load_pandas().data
+    X, y = d[["GPA", "TUCE", "PSI"]].to_numpy(), d["GRADE"].to_numpy()
+    o = np.column_stack([0.1 * X[:, 1] - 2.0, 0.5 * X[:, 0]])
+    ref = sm.GLM(y, sm.add_constant(X), family=sm.families.Binomial(), offset=o[:, 1] - o[:, 0]).fit(tol=1e-13)
+    s = softmax(X, y, offset=o)
+    assert s.convergence.converged
+    np.testing.assert_allclose(s.coefficients[:, 1], ref.params[1:], rtol=1e-8)
+    assert s.intercept[1] == pytest.approx(ref.params[0], rel=1e-8)
+    np.testing.assert_allclose(s.standard_errors[:, 1], ref.bse[1:], rtol=1e-7)
+    assert s.log_likelihood == pytest.approx(ref.llf, rel=1e-10)
+
+
 def test_offset_equal_to_a_known_predictor_gives_zero_coefficients(anes):
     # source: the offset enters the linear predictor additively (common practice)
     X, y = anes

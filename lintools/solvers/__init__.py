@@ -61,7 +61,7 @@ import numpy as np
 
 from ..linalg import solve_lower, solve_upper
 from ._kernels import column_moments, uncentred_ok, weighted_gram
-from ._kernels_multi import multi_output_information
+from ._kernels_multi import PairWeights, multi_output_information
 from ._samples import SAMPLE_RUN, sample_rows, take_rows
 
 __all__ = [
@@ -271,16 +271,45 @@ class _Line:
 
     def __init__(self, problem: "LinearModelProblem", z: np.ndarray, d: np.ndarray) -> None:
         self.p, self.z, self.d = problem, z, d
-        self.eta0 = problem.eta(z)
-        self.deta = problem.eta(d, with_offset=False)
+        self._eta0 = problem.eta(z)
+        self._deta = problem.eta(d, with_offset=False)
         self.root0 = problem._inverse_root(self.eta0) if problem.jeffreys else None
         self._cache: tuple[float, float, float] | None = None
-        self.trial: tuple[float, Any] | None = None  # (t, eta0 + t X d) of the last trial
+        #: (t, eta0 + t X d) of the last trial; K-output problems keep only t (their trials
+        #: are evaluated one block of rows at a time) and form the sum when it is adopted
+        self.trial: tuple[float, Any] | None = None
+
+    @property
+    def eta0(self) -> Any:
+        """``eta(z)`` (formed again if :meth:`release` dropped it)."""
+        if self._eta0 is None:
+            self._eta0 = self.p.eta(self.z)
+        return self._eta0
+
+    @property
+    def deta(self) -> Any:
+        """``X d`` (formed again if :meth:`release` dropped it)."""
+        if self._deta is None:
+            self._deta = self.p.eta(self.d, with_offset=False)
+        return self._deta
+
+    def release(self) -> None:
+        """Drop ``eta(z)`` and ``X d`` (the problem calls this once the search is over; they
+        are formed again if the line is used after all)."""
+        self._eta0 = self._deta = None
 
     def adopt(self, t: float, z_new: np.ndarray) -> None:
         """Hand the problem the linear predictor of the accepted trial ``t`` for ``z_new``."""
         if self.trial is not None and self.trial[0] == t and z_new.shape == self.z.shape:
-            self.p._carry(z_new, self.trial[1])
+            eta = self.trial[1]
+            if eta is None:  # K outputs: eta0 + t X d, written over X d (no longer needed)
+                eta = self.deta
+                if t != 1.0:
+                    eta *= t
+                eta += self.eta0
+                self.release()
+                self.trial = None
+            self.p._carry(z_new, eta)
 
     def change(self, t: float) -> float:
         return self.p._change(self, t, need_slope=False)[0]
@@ -353,6 +382,7 @@ class LinearModelProblem:
         self._carried = False  # whether that eta came from a line search
         self._warm = True  # whether warm_start may run (not on its own subsample)
         self._sketch: tuple[np.ndarray, Any, float] | None = None  # rows, sub-problem, scale
+        self._line: _Line | None = None  # the last line search (K outputs: its X d is released)
         # float32 step Hessians: no Jeffreys penalty, many rows, and standardised
         # rows bounded well inside float32 range (|x - c| / s <= sqrt(total / v_i) for v_i > 0)
         self.single = False
@@ -413,15 +443,25 @@ class LinearModelProblem:
 
     def _carry(self, z: np.ndarray, eta: Any) -> None:
         """Remember ``eta`` (from a line search) as the linear predictor at ``z``."""
+        if self.K > 1:
+            self._forget()
         self._last = ((z.tobytes(), True), eta)
         self._carried = True
+
+    def _forget(self) -> None:
+        """K outputs: drop the remembered linear predictor and the loss's results kept at it,
+        so that the next ones are not formed while these still hold memory."""
+        self._last = None
+        forget = getattr(self.loss, "forget", None)
+        if forget is not None:
+            forget()
 
     def subsample(self, rows: np.ndarray) -> "LinearModelProblem":
         """The same problem on the given rows, in the same coordinates (same ``c`` and ``s``)."""
         sub = copy.copy(self)
         sub.X, sub.n, sub.loss = take_rows(self.X, rows), int(rows.size), self.loss.subset(rows)
         sub.offset = None if self.offset is None else self.offset[rows]
-        sub._last, sub._carried, sub._sketch, sub._warm = None, False, None, False
+        sub._last, sub._carried, sub._sketch, sub._warm, sub._line = None, False, None, False, None
         return sub
 
     def warm_start(self) -> np.ndarray | None:
@@ -465,9 +505,18 @@ class LinearModelProblem:
         if with_offset:
             self._carried = False
         b, beta = self.coefficients(z)
-        e = self.X @ beta + b
-        if with_offset and self.offset is not None:
-            e = e + self.offset
+        if self.K > 1:
+            if with_offset:
+                self._forget()
+            # stored column by column ((K, n) transposed): the loss reads it in row blocks
+            e = (beta.T @ self.X.T).T
+            e += b
+            if with_offset and self.offset is not None:
+                e += self.offset
+        else:
+            e = self.X @ beta + b
+            if with_offset and self.offset is not None:
+                e = e + self.offset
         if with_offset:
             self._last = (key, e)
         return e
@@ -517,6 +566,9 @@ class LinearModelProblem:
 
     def _value_at(self, z: np.ndarray, eta: Any) -> tuple[float, Any]:
         """Objective at ``z`` (with linear predictor ``eta``) and its derivative in eta."""
+        if self.K > 1 and not self.jeffreys:
+            f, r = self.loss.value_and_gradient(eta)
+            return f + self._ridge(z), r
         f = self.loss.value(eta) + self._ridge(z)
         factors = None
         if self.jeffreys:
@@ -526,6 +578,18 @@ class LinearModelProblem:
         return f, self._residual(eta, factors)
 
     def _change(self, line: _Line, t: float, need_slope: bool) -> tuple[float, float]:
+        along = getattr(self.loss, "change_along", None)
+        if self.K > 1 and along is not None and not need_slope and not self.jeffreys:
+            # one block of rows at a time: neither t X d nor the trial eta is formed whole
+            line.trial = (t, None)
+            c = along(line.eta0, line.deta, t)
+            if not math.isfinite(c) and c > 0:
+                return math.inf, math.nan
+            if self.l2:
+                _, beta = self.coefficients(line.z)
+                _, db = self.coefficients(line.d)
+                c += self.l2 * (t * float(np.sum(beta * db)) + 0.5 * t * t * float(np.sum(db * db)))
+            return float(c), math.nan
         delta = t * line.deta
         eta = line.eta0 + delta
         line.trial = (t, eta)
@@ -565,10 +629,15 @@ class LinearModelProblem:
         (``Evaluation.fresh`` False); ``fresh=True`` forms it anew as ``X beta + b``."""
         if fresh and self._carried:
             self._last, self._carried = None, False
+        if self.K > 1 and self._line is not None:
+            self._line.release()
+            self._line = None
         eta = self.eta(z)
         carried = self._carried
-        if self.jeffreys:
-            f, r = self._value_at(z, eta)  # the value's log det also gives the residual
+        if self.jeffreys or self.K > 1:
+            # Firth: the value's log det also gives the residual; K outputs: one blocked
+            # pass gives the value with the gradient
+            f, r = self._value_at(z, eta)
         else:
             r = self._residual(eta)
             f = self._deferred_value(z, eta)
@@ -616,8 +685,12 @@ class LinearModelProblem:
 
     def _curvature(self, eta: Any) -> Any:
         """The curvature at ``eta`` for :meth:`_information`: the (n,) IRLS weights for one
-        output; for K outputs a function of a row slice giving that block's (rows, K, K)
-        curvature, so the (n, K, K) array is never formed whole."""
+        output; for K outputs the distinct entries of the per-row blocks one block of rows
+        at a time (:class:`PairWeights`, for a loss with ``pair_weights``) or a function of
+        a row slice giving that block's (rows, K, K) curvature, so the (n, K, K) array is
+        never formed whole."""
+        if self.K > 1 and hasattr(self.loss, "pair_weights"):
+            return PairWeights(self.loss, eta)
         rows_only = getattr(self.loss, "curvature_rows", None)
         if self.K > 1 and rows_only is not None:
             return lambda rows: rows_only(eta, rows)
@@ -742,11 +815,27 @@ class LinearModelProblem:
         """
         if self.jeffreys or self.n < SKETCH_MIN_ROWS:
             return None
+        if self._sketch is not None and self.K > 1 and self._sketch[1].rows32 and not self.single:
+            self._sketch = None  # float32 rows were kept for float32 products: keep float64 ones now
         if self._sketch is None:
             m = min(self.n, max(SKETCH_PER_PARAMETER * self.size, self.n // SKETCH_FRACTION))
             rows = sample_rows(self.n, m)
             sub = copy.copy(self)
-            sub.X, sub.n, sub._last, sub._sketch = take_rows(self.X, rows), int(rows.size), None, None
+            m = int(rows.size)
+            sub.n, sub._last, sub._sketch, sub._line, sub.rows32 = m, None, None, None, False
+            if self.K > 1 and self.single:
+                # the sampled rows kept standardised and rounded to float32, as the float32
+                # curvature pass would round them (centre 0, scale 1): half the memory
+                sub.X = np.empty((m, self.p), dtype=np.float32)
+                inv = 1.0 / self.s
+                for a in range(0, m, 1024):
+                    Xb = self.X[rows[a : a + 1024]]
+                    Xb -= self.c
+                    np.multiply(Xb, inv, out=sub.X[a : a + Xb.shape[0]], casting="same_kind")
+                del Xb
+                sub.c, sub.s, sub.rows32 = np.zeros(self.p), np.ones(self.p), True
+            else:
+                sub.X = take_rows(self.X, rows)
             v = self.loss.row_weights()
             sub_total = float(v[rows].sum())
             self._sketch = (rows, sub, float(v.sum()) / sub_total if sub_total > 0 else 0.0)
@@ -755,7 +844,10 @@ class LinearModelProblem:
             return None
         rows_only = getattr(self.loss, "curvature_rows", None)
         eta = self.eta(z)
-        W = rows_only(eta, rows) if rows_only is not None else self.loss.curvature(eta)[rows]
+        if self.K > 1 and hasattr(self.loss, "pair_weights"):
+            W: Any = PairWeights(self.loss, eta, rows)  # formed one block of the sampled rows at a time
+        else:
+            W = rows_only(eta, rows) if rows_only is not None else self.loss.curvature(eta)[rows]
         H = sub._information(W, single=self.single) * scale
         if self.l2:
             H[np.diag_indices_from(H)] += self._penalty_diagonal()
@@ -854,6 +946,11 @@ class LinearModelProblem:
 
     def line(self, z: np.ndarray, d: np.ndarray) -> _Line:
         """The objective along ``z + t d``."""
+        if self.K > 1:
+            if self._line is not None:
+                self._line.release()  # the last search is over: its X d goes first
+            self._line = _Line(self, z, d)
+            return self._line
         return _Line(self, z, d)
 
     def information_original(self, z: np.ndarray) -> np.ndarray:
@@ -909,7 +1006,7 @@ class AffineProblem:
     def evaluate(self, u: np.ndarray) -> Evaluation:
         ev = self.base.evaluate(self.embed(u))
         unit = None if ev.unit is None else self._kept(ev.unit)
-        return Evaluation(ev.value, self.E.T @ ev.gradient, self._kept(ev.original_gradient), ev.eta, unit)
+        return Evaluation(lambda: ev.value, self.E.T @ ev.gradient, self._kept(ev.original_gradient), ev.eta, unit)
 
     def hessian(self, u: np.ndarray) -> np.ndarray:
         return self.base.hessian(self.embed(u), E=self.E)
