@@ -98,6 +98,7 @@ _PRODUCT_BYTES = 100 * (1 << 16)
 SKETCH_MIN_ROWS = 50_000
 SKETCH_PER_PARAMETER = 40
 SKETCH_FRACTION = 8
+SKETCH_SEED = 20170101
 #: Problems with at least this many rows (and no Jeffreys penalty) form the Hessians
 #: of their Newton *steps* in float32 when the design is well enough conditioned for it
 #: (see ``LinearModelProblem.step_hessian``); the covariance always uses float64.
@@ -108,6 +109,9 @@ SINGLE_MIN_ROWS = 50_000
 WARM_MIN_ROWS = 50_000
 WARM_PER_PARAMETER = 40
 WARM_FRACTION = 16
+#: its own seed: a warm-start sample inside the sketch's would correlate the start's error
+#: with the sketched Hessian (measured: one more Newton iteration)
+WARM_SEED = 20170102
 WARM_UNTIL = 1e-4
 #: A subsample optimum with a linear predictor beyond this anywhere is not used as a start.
 WARM_ETA_LIMIT = 30.0
@@ -479,7 +483,7 @@ class LinearModelProblem:
         m = max(WARM_PER_PARAMETER * self.size, self.n // WARM_FRACTION)
         if 2 * m > self.n:
             return None
-        rows = sample_rows(self.n, m)
+        rows = sample_rows(self.n, m, WARM_SEED)
         sub = self.subsample(rows)
         if not float(sub.loss.row_weights().sum()) > 0:
             return None
@@ -819,7 +823,7 @@ class LinearModelProblem:
             self._sketch = None  # float32 rows were kept for float32 products: keep float64 ones now
         if self._sketch is None:
             m = min(self.n, max(SKETCH_PER_PARAMETER * self.size, self.n // SKETCH_FRACTION))
-            rows = sample_rows(self.n, m)
+            rows = sample_rows(self.n, m, SKETCH_SEED)
             sub = copy.copy(self)
             m = int(rows.size)
             sub.n, sub._last, sub._sketch, sub._line, sub.rows32 = m, None, None, None, False

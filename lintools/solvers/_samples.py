@@ -10,17 +10,16 @@ from __future__ import annotations
 
 import numpy as np
 
-__all__ = ["SAMPLE_RUN", "SAMPLE_SEED", "sample_rows", "take_rows"]
+__all__ = ["SAMPLE_RUN", "sample_rows", "take_rows"]
 
 #: Row samples are drawn as runs of this many consecutive rows (a cluster sample).
 SAMPLE_RUN = 64
-SAMPLE_SEED = 20170101
 
 
-def sample_rows(n: int, m: int, seed: int = SAMPLE_SEED) -> np.ndarray:
+def sample_rows(n: int, m: int, seed: int) -> np.ndarray:
     """About ``m`` of ``n`` rows for a warm start or a Newton sketch, sorted: ``m / SAMPLE_RUN``
-    runs of ``SAMPLE_RUN`` consecutive rows at run starts drawn without replacement with a
-    fixed seed (a cluster sample of equal clusters; Cochran 1977, ch. 9).  Runs are copied
+    runs of ``SAMPLE_RUN`` consecutive rows at run starts drawn without replacement with
+    ``seed`` (a cluster sample of equal clusters; Cochran 1977, ch. 9).  Runs are copied
     about twice as fast as scattered rows, and, unlike every k-th row, random runs are not
     fooled by data that repeat with a period; rows past the last whole run are never drawn.
     The sample only shapes the path: the stopping rule is on the full gradient."""

@@ -58,10 +58,6 @@ SKETCH_UNTIL = 1e-3
 #: (a chord step: it costs no new Hessian, and its contraction is the relative change of
 #: the Hessian, tiny near the optimum); a step that needs halving forms a fresh one.
 REUSE_RATIO = 1e-2
-#: A sketched Hessian is kept for the next step while a full step with it cut the max-abs
-#: gradient by this factor (its contraction is set by the sample, about sqrt(size / rows),
-#: and barely changes from one early iterate to the next).
-SKETCH_REUSE_RATIO = 0.05
 #: The line search's linear predictor ``eta + t X d`` is carried to the new point (saving
 #: a pass over X) while the gradient is above this multiple of tol; closer in, the next
 #: point is likely the answer, whose evaluation must be fresh, so it is formed afresh.
@@ -112,7 +108,6 @@ def newton(
     step_hessian = getattr(problem, "step_hessian", problem.hessian)
     reuse_allowed = bool(getattr(problem, "reuse_hessian", False))
     factors = None  # Cholesky factors of the last Hessian, while it may be reused
-    from_sketch = False  # whether those factors are of a sketched Hessian
     while True:
         gnorm = ev.gradient_norm
         if gnorm <= tol and not ev.fresh:
@@ -122,8 +117,6 @@ def newton(
             return finish(name, z, ev, it, "converged", converged_message(name, it, gnorm, tol), problem)
         if it >= max_iter:
             return finish(name, z, ev, it, "iteration_limit", limit_message(name, it, gnorm, tol), problem)
-        if from_sketch and gnorm <= SKETCH_UNTIL * g_start:
-            factors = None  # close enough for exact Hessians: drop a kept sketch
         reused = factors is not None
         sketched = False
         try:
@@ -132,12 +125,10 @@ def newton(
                     H = problem.sketch_hessian(z)
                     factors = None if H is None else cholesky(H)
                     sketched = factors is not None
-                    from_sketch = sketched
                 except SingularMatrixError:
                     sketching, factors = False, None
             if factors is None:
                 factors = cholesky(step_hessian(z))
-                from_sketch = False
             d = -solve_factored(factors, ev.gradient)
         except SingularMatrixError as exc:
             return finish(name, z, ev, it, "singular", f"{name}: the Hessian is singular ({exc})", problem)
@@ -170,8 +161,7 @@ def newton(
         except SingularMatrixError as exc:
             return finish(name, z, ev, it, "singular", f"{name}: {exc}", problem)
         # a Hessian that made the gradient fall by REUSE_RATIO with a full step may serve again
-        keep = SKETCH_REUSE_RATIO if from_sketch else REUSE_RATIO
-        if not (reuse_allowed and accepted and t == 1.0 and ev_new.gradient_norm <= keep * gnorm):
+        if not (reuse_allowed and accepted and t == 1.0 and ev_new.gradient_norm <= REUSE_RATIO * gnorm):
             factors = None
         if accepted:
             it += 1
