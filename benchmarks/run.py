@@ -9,7 +9,10 @@ Usage::
 For each problem the same data go to lintools and to each peer.  Every timing is the
 median of ``--repeats`` (default 3) interleaved repeats (lintools, peer 1, peer 2, ...,
 then again), so drifts of the machine hit everyone alike.  The unit is the time of one
-Gram product ``X'X`` on the same data ("Gram-equivalents").  Peak memory is the peak of
+Gram product ``X'X`` on the same data ("Gram-equivalents"), timed three times in every
+round.  Ratios are paired: "time/ours" is the median over rounds of the peer's time over
+lintools' time in the same round, and "Gram-eq" the median over rounds of the time over
+that round's Gram time, so a slow spell of a shared machine cancels out of both.  Peak memory is the peak of
 NumPy allocations traced by ``tracemalloc`` during one call, shown as a multiple of the
 bytes of X.  "digits" is the log relative error (LRE) of the coefficients against the
 problem's reference solution.
@@ -79,7 +82,7 @@ def run_problem(prob: Problem, repeats: int, measure_memory: bool) -> list[Row]:
     data = prob.make()
     X = data["X"]
     X.T @ X  # warm-up: the first product pays for thread start-up and page faults
-    grams: list[float] = []
+    grams: list[float] = []  # the median Gram time of each round
     contenders = {"lintools": prob.ours, **prob.peers}
     times: dict[str, list[float]] = {k: [] for k in contenders}
     answers: dict[str, np.ndarray] = {}
@@ -87,7 +90,7 @@ def run_problem(prob: Problem, repeats: int, measure_memory: bool) -> list[Row]:
         warnings.simplefilter("ignore")
         for _ in range(repeats):
             # the Gram product is timed in every round, under the same machine load
-            grams.extend(_time(lambda: X.T @ X) for _ in range(3))
+            grams.append(statistics.median(_time(lambda: X.T @ X) for _ in range(3)))
             for name, fn in contenders.items():
                 holder = {}
                 times[name].append(_time(lambda: holder.setdefault("out", fn(data))))
@@ -97,18 +100,17 @@ def run_problem(prob: Problem, repeats: int, measure_memory: bool) -> list[Row]:
             for name, fn in contenders.items():
                 peaks[name] = _peak_bytes(lambda: fn(data)) / X.nbytes
     reference = prob.reference(data)
-    gram = statistics.median(grams)
-    ours = statistics.median(times["lintools"])
+    ours = times["lintools"]
     rows = []
     for name in contenders:
-        t = statistics.median(times[name])
+        t = times[name]
         rows.append(
             Row(
                 problem=prob.name,
                 contender=name,
-                seconds=t,
-                gram_equivalents=t / gram,
-                ratio=t / ours,
+                seconds=statistics.median(t),
+                gram_equivalents=statistics.median(a / g for a, g in zip(t, grams)),
+                ratio=statistics.median(a / o for a, o in zip(t, ours)),
                 peak_x=peaks.get(name, float("nan")),
                 digits=lre(answers[name], reference),
             )
