@@ -155,7 +155,6 @@ def weighted_gram(X: np.ndarray, W: np.ndarray, c: np.ndarray, s: np.ndarray, in
         r = (sw / top).astype(np.float32)
         # |x_ij| <= |c_j| + s_j row_bound <= s_j (1 + row_bound) under uncentred_ok
         raw = bool(np.all(s * (1.0 + row_bound) <= _SINGLE_RANGE) and np.all(s >= 1.0 / _SINGLE_RANGE))
-        inv32 = inv.astype(np.float32)
         buf = np.empty((min(rows, n), p), dtype=np.float32)
         T = None if raw else np.empty((min(rows, n), p))
         for lo in range(0, n, rows):
@@ -175,7 +174,6 @@ def weighted_gram(X: np.ndarray, W: np.ndarray, c: np.ndarray, s: np.ndarray, in
         HH *= np.multiply.outer(u, u)
         h *= u
         total = float(W.sum()) / (top * top)
-        mean_scaled = c * inv
     else:
         buf = np.empty((min(rows, n), p))
         for lo in range(0, n, rows):
@@ -189,7 +187,7 @@ def weighted_gram(X: np.ndarray, W: np.ndarray, c: np.ndarray, s: np.ndarray, in
         HH *= np.multiply.outer(inv, inv)
         h *= inv
         total = float(W.sum())
-        mean_scaled = c * inv
+    mean_scaled = c * inv
     H = np.empty((p + off, p + off))
     if off:
         # sum w (u - m)(u - m)' = HH - m h' - h m' + total m m', with u = x / s and m = c / s
