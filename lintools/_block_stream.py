@@ -51,26 +51,10 @@ def _prefixed(index: int, exc: InputError) -> InputError:
 
 
 def _response_codes(index: int, yb: Any, m: int, classes: tuple) -> np.ndarray:
-    """0/1 codes of ``yb`` for the known ``classes``; a label not seen before is an error."""
-    if isinstance(yb, np.ndarray) and yb.ndim == 1 and yb.shape[0] == m and yb.dtype.kind in "biuf":
-        positive = yb == classes[1]
-        if bool(np.all(positive | (yb == classes[0]))):  # the common case, without sorting
-            return positive.astype(float)
-    try:
-        found, codes = _labels(yb, m)
-    except InputError as exc:
-        raise _prefixed(index, exc) from None
-    lookup = {c: k for k, c in enumerate(classes)}
-    new = [c for c in found if c not in lookup]
-    if new:
-        row = int(np.argmax(codes == found.index(new[0])))
-        raise InputError(
-            f"block {index}: y has the label {new[0]!r} at row {row} of the block, which the first "
-            f"pass did not see (labels {classes[0]!r}, {classes[1]!r}); source() must yield the same "
-            "blocks on every pass"
-        )
-    positive = found.index(classes[1]) if classes[1] in found else -1
-    return (codes == positive).astype(float)
+    """0/1 codes of ``yb`` for the known ``(negative, positive)`` classes; a label not seen
+    before is an error (the check of :func:`_class_indices`, on the sorted pair)."""
+    ordered = tuple(sorted(classes))
+    return (_class_indices(index, yb, m, ordered) == ordered.index(classes[1])).astype(float)
 
 
 def _class_indices(index: int, yb: Any, m: int, classes: tuple) -> np.ndarray:
