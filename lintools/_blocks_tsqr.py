@@ -15,7 +15,7 @@ from ._errors import (
     )
 from ._records import Convergence, LinearFit
 from ._validate import check_names, check_nonnegative
-from .least_squares import ILL_CONDITIONED, alias_sentences, _residual_df
+from .least_squares import ILL_CONDITIONED, _residual_df, alias_sentences, caller_covariance
 from .linalg import aliased_columns, condition_number, default_rank_tolerance, inverse_upper, solve_lower, solve_upper
 from .logistic import _check_flag
 
@@ -299,13 +299,7 @@ def _linear_record(W: float, n_pos: int, p: int, intercept: bool, lam: float, na
         Bz[0, 0] = 1.0 / W
     Bz[off:, off:] = sol["G"]
     Vz = sigma2 * Bz
-    T = np.zeros((k, k))
-    if intercept:
-        T[0, 0] = 1.0
-        T[0, 1:] = -xbar / s
-    T[off:, off:] = np.diag(1.0 / s)
-    V = T @ Vz @ T.T
-    V = 0.5 * (V + V.T)
+    V = caller_covariance(Vz, xbar, s, intercept)
     se = np.sqrt(np.clip(np.diag(V), 0.0, None))
     f_df1 = float(p)
     try:

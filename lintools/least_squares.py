@@ -301,13 +301,7 @@ def _fit(
         Vz = Bz @ meat @ Bz
         if covariance == "HC1":
             Vz = Vz * (n_obs / df)
-    T = np.zeros((k_max, k_max))
-    if intercept:
-        T[0, 0] = 1.0
-        T[0, 1:] = -xbar / s
-    T[off:, off:] = np.diag(1.0 / s)
-    V = T @ Vz @ T.T
-    V = 0.5 * (V + V.T)
+    V = caller_covariance(Vz, xbar, s, intercept)
     se_all = np.sqrt(np.clip(np.diag(V), 0.0, None))
 
     # ---- overall F: Wald F on the slopes with the chosen covariance ----------------
@@ -383,6 +377,19 @@ def _fit(
         cooks_distance=cooks,
         target=target,
     )
+
+
+def caller_covariance(Vz: np.ndarray, xbar: np.ndarray, s: np.ndarray, intercept: bool) -> np.ndarray:
+    """The covariance of ``(b, beta)`` from that of the centred, scaled coordinates
+    ``z = (b + xbar' beta, s * beta)``: ``T Vz T'`` with ``theta = T z``, symmetric to the last bit."""
+    k, off = Vz.shape[0], int(intercept)
+    T = np.zeros((k, k))
+    if intercept:
+        T[0, 0] = 1.0
+        T[0, 1:] = -xbar / s
+    T[off:, off:] = np.diag(1.0 / s)
+    V = T @ Vz @ T.T
+    return 0.5 * (V + V.T)
 
 
 def _residual_df(n_obs, k, weight_type, n_pos):
