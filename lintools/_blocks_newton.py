@@ -11,7 +11,7 @@ from ._errors import InputError, LintoolsError, SeparationError
 from ._records import LogisticFit
 from ._validate import check_names
 from .inference import covariance, likelihood_fields
-from .linalg import default_rank_tolerance, dependency_sentence
+from .linalg import default_rank_tolerance, dependency_sentence, unstandardise
 from .logistic import ETA_LIMIT, convergence_record, check_fit_settings
 from .losses import BinomialLoss
 from .solvers import Evaluation, IterationRecord, SingularMatrixError
@@ -130,12 +130,7 @@ class _BlockProblem(_PassProblem):
         return np.concatenate([[b], beta]) if self.intercept else beta.copy()
 
     def theta_from_z_matrix(self) -> np.ndarray:
-        T = np.zeros((self.size, self.size))
-        T[self.off :, self.off :] = np.diag(1.0 / self.s)
-        if self.intercept:
-            T[0, 0] = 1.0
-            T[0, 1:] = -self.c / self.s
-        return T
+        return unstandardise(self.c, self.s, self.intercept)
 
     def start(self) -> np.ndarray:
         z = np.zeros(self.size)

@@ -12,6 +12,7 @@ from ._multinomial import MultinomialLoss
 from ._records import SoftmaxFit
 from ._validate import check_names
 from .inference import likelihood_fields
+from .linalg import unstandardise
 from .logistic import ETA_LIMIT, convergence_record, check_fit_settings, check_parameters_and_rows
 from .softmax import _intercept_subspace, _reference_index, _z_covariance
 from .solvers import AffineProblem, Evaluation, IterationRecord, SingularMatrixError
@@ -122,12 +123,7 @@ class _SoftmaxBlockProblem(_PassProblem):
         return np.vstack([b, B]).ravel() if self.intercept else B.ravel()
 
     def theta_from_z_matrix(self) -> np.ndarray:
-        T = np.zeros((self.p1, self.p1))
-        T[self.off :, self.off :] = np.diag(1.0 / self.s)
-        if self.intercept:
-            T[0, 0] = 1.0
-            T[0, 1:] = -self.c / self.s
-        return np.kron(T, np.eye(self.K))
+        return unstandardise(self.c, self.s, self.intercept, self.K)
 
     def start(self) -> np.ndarray:
         z = np.zeros(self.size)

@@ -83,6 +83,7 @@ from .linalg import (
     inverse_upper,
     solve_lower,
     solve_upper,
+    unstandardise,
 )
 
 __all__ = ["least_squares"]
@@ -382,12 +383,7 @@ def _fit(
 def caller_covariance(Vz: np.ndarray, xbar: np.ndarray, s: np.ndarray, intercept: bool) -> np.ndarray:
     """The covariance of ``(b, beta)`` from that of the centred, scaled coordinates
     ``z = (b + xbar' beta, s * beta)``: ``T Vz T'`` with ``theta = T z``, symmetric to the last bit."""
-    k, off = Vz.shape[0], int(intercept)
-    T = np.zeros((k, k))
-    if intercept:
-        T[0, 0] = 1.0
-        T[0, 1:] = -xbar / s
-    T[off:, off:] = np.diag(1.0 / s)
+    T = unstandardise(xbar, s, intercept)
     V = T @ Vz @ T.T
     return 0.5 * (V + V.T)
 

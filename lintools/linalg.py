@@ -12,6 +12,7 @@ from typing import Sequence
 import numpy as np
 
 __all__ = [
+    "unstandardise",
     "solve_upper",
     "solve_lower",
     "inverse_upper",
@@ -19,6 +20,20 @@ __all__ = [
     "condition_number",
     "default_rank_tolerance",
 ]
+
+
+def unstandardise(centre: np.ndarray, scale: np.ndarray, intercept: bool, outputs: int = 1) -> np.ndarray:
+    """The matrix ``T`` with ``theta = T z`` for standardised coordinates
+    ``z = (b + centre' beta, scale * beta)`` (intercept first when there is one); with
+    ``outputs = K`` the parameters are (p+1, K) arrays flattened row by row."""
+    off = int(intercept)
+    k = centre.shape[0] + off
+    T = np.zeros((k, k))
+    T[off:, off:] = np.diag(1.0 / scale)
+    if intercept:
+        T[0, 0] = 1.0
+        T[0, 1:] = -centre / scale
+    return np.kron(T, np.eye(outputs)) if outputs > 1 else T
 
 
 def solve_upper(R: np.ndarray, b: np.ndarray) -> np.ndarray:

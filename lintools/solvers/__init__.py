@@ -59,7 +59,7 @@ from typing import Any, Callable
 
 import numpy as np
 
-from ..linalg import solve_lower, solve_upper
+from ..linalg import solve_lower, solve_upper, unstandardise
 from ._kernels import column_moments, uncentred_ok, weighted_gram
 from ._kernels_multi import PairWeights, multi_output_information
 from ._samples import SAMPLE_RUN, sample_rows, take_rows
@@ -974,12 +974,7 @@ class LinearModelProblem:
 
     def theta_from_z_matrix(self) -> np.ndarray:
         """The matrix T with ``theta = T z``."""
-        T = np.zeros((self.p1, self.p1))
-        T[self.off :, self.off :] = np.diag(1.0 / self.s)
-        if self.intercept:
-            T[0, 0] = 1.0
-            T[0, 1:] = -self.c / self.s
-        return np.kron(T, np.eye(self.K)) if self.K > 1 else T
+        return unstandardise(self.c, self.s, self.intercept, self.K)
 
 
 class AffineProblem:
