@@ -689,15 +689,11 @@ class LinearModelProblem:
 
     def _curvature(self, eta: Any) -> Any:
         """The curvature at ``eta`` for :meth:`_information`: the (n,) IRLS weights for one
-        output; for K outputs the distinct entries of the per-row blocks one block of rows
-        at a time (:class:`PairWeights`, for a loss with ``pair_weights``) or a function of
-        a row slice giving that block's (rows, K, K) curvature, so the (n, K, K) array is
-        never formed whole."""
+        output; for K outputs, with a loss that has ``pair_weights``, the distinct entries
+        of the per-row blocks one block of rows at a time (:class:`PairWeights`), so the
+        (n, K, K) array is never formed whole (other losses give it whole)."""
         if self.K > 1 and hasattr(self.loss, "pair_weights"):
             return PairWeights(self.loss, eta)
-        rows_only = getattr(self.loss, "curvature_rows", None)
-        if self.K > 1 and rows_only is not None:
-            return lambda rows: rows_only(eta, rows)
         return self.loss.curvature(eta)
 
     def _unit_scale(self) -> np.ndarray:

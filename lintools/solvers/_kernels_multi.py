@@ -6,9 +6,8 @@ For standardised rows :math:`a_i = (1, (x_i - c)/s)` and per-row curvature block
 :math:`A' [W_{00} A, W_{01} A, \dots]`, which keeps BLAS busy on a wide right-hand side;
 the products are summed over the blocks and spread into the Hessian once at the end.
 The curvature is handed over as its distinct entries one block of rows at a time (an
-object with ``pair_weights(rows, out)``, see :class:`lintools._multinomial.MultinomialLoss`),
-as a function of a row slice returning the (rows, K, K) blocks, or as the (n, K, K)
-array; only the last forms it whole.
+object with ``pair_weights(rows, out)``, see :class:`lintools._multinomial.MultinomialLoss`)
+or as the (n, K, K) array, formed whole.
 
 References
 ----------
@@ -52,8 +51,7 @@ class PairWeights:
 def multi_output_information(problem: Any, W: Any, single: bool = False) -> np.ndarray:
     """``A' W A`` in z coordinates for a K-output ``LinearModelProblem`` (no penalty).
 
-    ``W`` is a :class:`PairWeights`, the (n, K, K) curvature, or a function of a row slice
-    returning its rows.  With ``single`` the standardised rows and the weights (each
+    ``W`` is a :class:`PairWeights` or the (n, K, K) curvature.  With ``single`` the standardised rows and the weights (each
     ``|W_km| <= max w``) are rounded to float32 and the product is a float32 one (Newton
     steps only); the sums over blocks are float64 either way.
 
@@ -65,15 +63,12 @@ def multi_output_information(problem: Any, W: Any, single: bool = False) -> np.n
     pairs = [(k, m) for k in range(K) for m in range(k, K)]
     npairs = len(pairs)
     by_pairs = isinstance(W, PairWeights)
-    block_of = W if (callable(W) and not by_pairs) else (lambda rows: W[rows])
     dtype = np.float32 if single else np.float64
     top = 1.0
     if single:
         # every |W_km| is at most the row's weight (softmax curvature: w pi_k (delta_km - pi_m))
         if by_pairs:
             top = W.max_weight()
-        elif callable(W):
-            top = float(np.max(problem.loss.row_weights())) if n else 0.0
         else:
             top = float(np.max(np.abs(W))) if W.size else 0.0
         if not (top > 0 and math.isfinite(top)):
@@ -100,7 +95,7 @@ def multi_output_information(problem: Any, W: Any, single: bool = False) -> np.n
         if by_pairs:
             Wb = W.pair_weights(slice(lo, hi), out=Wp[:, :nb])
         else:
-            W3 = block_of(slice(lo, hi))
+            W3 = W[lo:hi]
             Wb = Wp[:, :nb]
             for j, (k, mm) in enumerate(pairs):
                 Wb[j] = W3[:, k, mm]
