@@ -31,6 +31,7 @@ from typing import Any, Callable, Sequence
 
 import numpy as np
 
+from ._threads import with_row_threads
 from ._errors import InputError, IterationLimitWarning, LintoolsError, LintoolsWarning, SeparationError
 from ._records import Convergence, LogisticFit
 from ._validate import (
@@ -271,6 +272,7 @@ def _raise_separation(diag) -> None:
     raise SeparationError(f"{diag.describe()}. {REMEDIES}.", diagnosis=diag)
 
 
+@with_row_threads
 def logistic(
     X: Any,
     y: Any,

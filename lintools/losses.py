@@ -48,6 +48,7 @@ from typing import Any
 import numpy as np
 
 from ._errors import InputError
+from ._threads import ELEMENT_CHUNK, add_up, for_rows
 from ._validate import as_labels, as_matrix, as_weights
 
 __all__ = ["BinomialLoss", "log1pexp", "sigmoid", "unpenalised_gradient"]
@@ -140,15 +141,21 @@ class BinomialLoss:
         if cached is not None and cached[0] is eta:
             return cached[1]
         if self._binary:  # (None, q, 1 - q) in the margin: q is mu for y = 0 and 1 - mu for y = 1
-            u = self._sgn * eta
-            with np.errstate(over="ignore"):
-                q = np.negative(u)
-                np.exp(q, out=q)
-                q += 1.0
-                np.reciprocal(q, out=q)
-                qc = np.exp(u, out=u)
-                qc += 1.0
-                np.reciprocal(qc, out=qc)
+            q, qc, sgn = np.empty(eta.shape), np.empty(eta.shape), self._sgn
+
+            def part(lo: int, hi: int) -> None:
+                u, qb, qcb = qc[lo:hi], q[lo:hi], qc[lo:hi]
+                np.multiply(sgn[lo:hi], eta[lo:hi], out=u)
+                with np.errstate(over="ignore"):
+                    np.negative(u, out=qb)
+                    np.exp(qb, out=qb)
+                    qb += 1.0
+                    np.reciprocal(qb, out=qb)
+                    np.exp(u, out=qcb)
+                    qcb += 1.0
+                    np.reciprocal(qcb, out=qcb)
+
+            for_rows(part, eta.shape[0], ELEMENT_CHUNK)
             parts = (None, q, qc)  # exp(-|eta|) is formed by value() when it is asked for
             self._cache = (eta, parts)
             return parts
@@ -211,14 +218,19 @@ class BinomialLoss:
         if cached is not None and cached[0] is eta:
             return cached[1]
         if self._binary:
-            t = np.abs(eta)
-            np.negative(t, out=t)
-            np.exp(t, out=t)
-            np.log1p(t, out=t)  # log1p(exp(-|eta|))
-            u = self._sgn * eta
-            np.maximum(u, 0.0, out=u)
-            u += t
-            f = float(self.weights @ u)
+            sgn, w = self._sgn, self.weights
+
+            def part(lo: int, hi: int) -> float:
+                t = np.abs(eta[lo:hi])
+                np.negative(t, out=t)
+                np.exp(t, out=t)
+                np.log1p(t, out=t)  # log1p(exp(-|eta|))
+                u = sgn[lo:hi] * eta[lo:hi]
+                np.maximum(u, 0.0, out=u)
+                u += t
+                return float(w[lo:hi] @ u)
+
+            f = float(add_up(for_rows(part, eta.shape[0], ELEMENT_CHUNK) or [0.0]))
         else:
             e = self._parts(eta)[0]
             f = float(self._wy @ np.maximum(-eta, 0.0) + self._wf @ np.maximum(eta, 0.0) + self._wm @ np.log1p(e))
@@ -245,16 +257,22 @@ class BinomialLoss:
         With ``u = sgn eta`` and ``q = 1 / (1 + e^-u)`` a row changes by
         ``log1p(q expm1(sgn delta))`` (the form of :func:`_softplus_changes`)."""
         _, q, _ = self._parts(eta)
-        change = np.clip(delta, -1.0, 1.0)
-        change *= self._sgn
-        np.expm1(change, out=change)
-        change *= q
-        np.log1p(change, out=change)
-        far = np.flatnonzero(np.abs(delta) > 1.0)
-        if far.size:  # large moves: the plain difference is accurate relative to them
-            u = self._sgn[far] * eta[far]
-            change[far] = log1pexp(u + self._sgn[far] * delta[far]) - log1pexp(u)
-        return float(self.weights @ change)
+        sgn, w = self._sgn, self.weights
+
+        def part(lo: int, hi: int) -> float:
+            d, s = delta[lo:hi], sgn[lo:hi]
+            change = np.clip(d, -1.0, 1.0)
+            change *= s
+            np.expm1(change, out=change)
+            change *= q[lo:hi]
+            np.log1p(change, out=change)
+            far = np.flatnonzero(np.abs(d) > 1.0)
+            if far.size:  # large moves: the plain difference is accurate relative to them
+                u = s[far] * eta[lo:hi][far]
+                change[far] = log1pexp(u + s[far] * d[far]) - log1pexp(u)
+            return float(w[lo:hi] @ change)
+
+        return float(add_up(for_rows(part, eta.shape[0], ELEMENT_CHUNK) or [0.0]))
 
     def gradient(self, eta: np.ndarray) -> np.ndarray:
         """``d value / d eta = w [(m - y) mu - y (1 - mu)] = w (m mu - y)``."""

@@ -29,6 +29,8 @@ import math
 
 import numpy as np
 
+from .._threads import add_up, for_rows, scratch
+
 __all__ = ["column_moments", "weighted_gram", "uncentred_ok", "UNCENTRED_LIMIT"]
 
 #: Centre the accumulated products afterwards only while every |mean| / spread is at most this.
@@ -55,16 +57,18 @@ def column_moments(X: np.ndarray, v: np.ndarray, rows: int, centre: bool) -> tup
     """
     n, p = X.shape
     total = float(v.sum())
-    sums, squares = np.zeros(p), np.zeros(p)
-    buf = np.empty((min(rows, n), p))
-    with np.errstate(over="ignore", invalid="ignore"):
-        for lo in range(0, n, rows):
-            Xb = X[lo : lo + rows]
-            vb = v[lo : lo + Xb.shape[0]]
-            sums += vb @ Xb
-            D = buf[: Xb.shape[0]]
+
+    def part(lo: int, hi: int) -> tuple[np.ndarray, np.ndarray]:
+        Xb, vb = X[lo:hi], v[lo:hi]
+        D = scratch("moments", (hi - lo, p))
+        with np.errstate(over="ignore", invalid="ignore"):
             np.multiply(Xb, Xb, out=D)
-            squares += vb @ D
+            return vb @ Xb, vb @ D
+
+    parts = for_rows(part, n, rows)
+    with np.errstate(over="ignore", invalid="ignore"):
+        sums = add_up([q[0] for q in parts]) if parts else np.zeros(p)
+        squares = add_up([q[1] for q in parts]) if parts else np.zeros(p)
         finite = bool(np.all(np.isfinite(sums)) and np.all(np.isfinite(squares)))
     if not finite:
         if not np.all(np.isfinite(X)):
@@ -149,43 +153,38 @@ def weighted_gram(X: np.ndarray, W: np.ndarray, c: np.ndarray, s: np.ndarray, in
         if not (top > 0 and math.isfinite(top)):
             single, top = False, 1.0
     inv = 1.0 / s
-    HH = np.zeros((p, p))
-    h = np.zeros(p)
     if single:
         r = (sw / top).astype(np.float32)
         # |x_ij| <= |c_j| + s_j row_bound <= s_j (1 + row_bound) under uncentred_ok
         raw = bool(np.all(s * (1.0 + row_bound) <= _SINGLE_RANGE) and np.all(s >= 1.0 / _SINGLE_RANGE))
-        buf = np.empty((min(rows, n), p), dtype=np.float32)
-        T = None if raw else np.empty((min(rows, n), p))
-        for lo in range(0, n, rows):
-            Xb = X[lo : lo + rows]
-            m = Xb.shape[0]
-            B, rb = buf[:m], r[lo : lo + m]
+
+        def part(lo: int, hi: int) -> tuple[np.ndarray, np.ndarray | None]:
+            B, rb = scratch("gram32", (hi - lo, p), np.float32), r[lo:hi]
             if raw:
-                np.copyto(B, Xb, casting="same_kind")
+                np.copyto(B, X[lo:hi], casting="same_kind")
             else:
-                np.multiply(Xb, inv, out=T[:m])
-                np.copyto(B, T[:m], casting="same_kind")
+                T = scratch("gram", (hi - lo, p))
+                np.multiply(X[lo:hi], inv, out=T)
+                np.copyto(B, T, casting="same_kind")
             np.multiply(B, rb[:, None], out=B)
-            HH += B.T @ B
-            if off:
-                h += rb @ B
+            return (B.T @ B).astype(float), (rb @ B).astype(float) if off else None
+    else:
+        def part(lo: int, hi: int) -> tuple[np.ndarray, np.ndarray | None]:
+            B, rb = scratch("gram", (hi - lo, p)), sw[lo:hi]
+            np.multiply(X[lo:hi], rb[:, None], out=B)
+            return B.T @ B, rb @ B if off else None
+
+    parts = for_rows(part, n, rows)
+    HH = add_up([q[0] for q in parts]) if parts else np.zeros((p, p))
+    h = add_up([q[1] for q in parts]) if (parts and off) else np.zeros(p)
+    if single:
         u = np.ones(p) if not raw else inv
-        HH *= np.multiply.outer(u, u)
-        h *= u
+        HH = HH * np.multiply.outer(u, u)
+        h = h * u
         total = float(W.sum()) / (top * top)
     else:
-        buf = np.empty((min(rows, n), p))
-        for lo in range(0, n, rows):
-            Xb = X[lo : lo + rows]
-            m = Xb.shape[0]
-            B, rb = buf[:m], sw[lo : lo + m]
-            np.multiply(Xb, rb[:, None], out=B)
-            HH += B.T @ B
-            if off:
-                h += rb @ B
-        HH *= np.multiply.outer(inv, inv)
-        h *= inv
+        HH = HH * np.multiply.outer(inv, inv)
+        h = h * inv
         total = float(W.sum())
     mean_scaled = c * inv
     H = np.empty((p + off, p + off))

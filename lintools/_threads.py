@@ -1,0 +1,217 @@
+r"""Row passes on several threads while a fit runs.
+
+NumPy's elementwise functions run on one core, and OpenBLAS's own threads gain little on
+the long, narrow products of a fit (measured on 2 cores: ``X'X`` of a 1e6 x 50 array
+took as long on two BLAS threads as on one).  A fit therefore splits each pass over the
+rows into fixed chunks and hands them to a small pool of threads (NumPy and BLAS release
+the interpreter lock), with the BLAS held to one thread meanwhile, so the two kinds of
+threads do not compete for the cores.
+
+* :func:`session` (a context manager; the fits enter it) sets NumPy's OpenBLAS to one
+  thread and restores the caller's setting on exit.  The number of row threads is the
+  BLAS thread count found on entry, at most the CPUs this process may use; the
+  environment variable ``LINTOOLS_THREADS`` overrides it (``1`` turns the pool off).
+  When NumPy's BLAS is not an OpenBLAS whose thread count can be set through ``ctypes``
+  (other BLAS builds, unusual layouts) everything runs on the calling thread, as before.
+  One session at a time: a fit started on another thread meanwhile runs on its own thread.
+* :func:`for_rows` runs ``fn(lo, hi)`` over consecutive chunks of rows and returns the
+  results **in chunk order**.  The chunks do not depend on the number of threads, and the
+  callers add the partial results in that order, so a fit gives the same numbers on one
+  thread as on several.
+
+Side effect, stated plainly: while a fit runs, other threads of the process that call
+NumPy's BLAS get one BLAS thread.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import functools
+import ctypes
+import glob
+import os
+import threading
+from concurrent.futures import ThreadPoolExecutor
+from typing import Any, Callable, Iterator
+
+import numpy as np
+
+__all__ = ["ELEMENT_CHUNK", "session", "for_rows", "chunk_rows", "threads", "add_up", "scratch", "with_row_threads"]
+
+#: Bytes of X per chunk handed to one thread (about 4 MB: large enough that the hand-over
+#: costs little, small enough for the partial sums to spread evenly).
+CHUNK_BYTES = 1 << 22
+#: Entries per chunk of an elementwise pass over the rows (512 KB of float64 per array).
+ELEMENT_CHUNK = 1 << 16
+
+_lock = threading.Lock()
+_state: dict[str, Any] = {"owner": None, "depth": 0, "threads": 1, "restore": None}
+_pool: dict[int, ThreadPoolExecutor] = {}
+_control: list[Any] = []  # [(set, get)] or [None] once looked up
+
+
+def _library_paths() -> list[str]:
+    """Candidate files of NumPy's OpenBLAS: beside NumPy (wheels), else those mapped in."""
+    here = os.path.dirname(np.__file__)
+    found: list[str] = []
+    for pattern in (os.path.join(os.path.dirname(here), "numpy.libs", "*openblas*"),
+                    os.path.join(here, ".dylibs", "*openblas*"), os.path.join(here, "..", "numpy.libs", "*openblas*")):
+        found += sorted(glob.glob(pattern))
+    if not found:
+        try:
+            with open("/proc/self/maps", encoding="utf-8", errors="replace") as maps:
+                mapped = {line.split()[-1] for line in maps if "openblas" in line.rsplit("/", 1)[-1]}
+            found = sorted(p for p in mapped if os.path.isfile(p))
+            if len(found) != 1:  # several OpenBLAS copies loaded: not sure which is NumPy's
+                found = []
+        except OSError:
+            found = []
+    return found
+
+
+def _lookup() -> Any:
+    """``(set_threads, get_threads)`` of NumPy's OpenBLAS, or None."""
+    if _control:
+        return _control[0]
+    control = None
+    try:
+        name = str(np.__config__.CONFIG["Build Dependencies"]["blas"]["name"]).lower()
+    except (AttributeError, KeyError, TypeError):
+        name = ""
+    if "openblas" in name:
+        for path in _library_paths():
+            try:
+                lib = ctypes.CDLL(path)
+            except OSError:
+                continue
+            for prefix in ("scipy_openblas", "openblas"):
+                for suffix in ("64_", ""):
+                    setter = getattr(lib, f"{prefix}_set_num_threads{suffix}", None)
+                    getter = getattr(lib, f"{prefix}_get_num_threads{suffix}", None)
+                    if setter is None or getter is None:
+                        continue
+                    setter.argtypes, setter.restype = [ctypes.c_int], None
+                    getter.argtypes, getter.restype = [], ctypes.c_int
+                    control = (setter, getter)
+                    break
+                if control:
+                    break
+            if control:
+                break
+    _control.append(control)
+    return control
+
+
+def _cpus() -> int:
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except (AttributeError, OSError):
+        return max(1, os.cpu_count() or 1)
+
+
+def _wanted(blas_threads: int) -> int:
+    text = os.environ.get("LINTOOLS_THREADS", "").strip()
+    if text:
+        try:
+            return max(1, min(int(text), 64))
+        except ValueError:
+            raise ValueError(f"LINTOOLS_THREADS={text!r} is not a whole number; set it to the number of "
+                             "row threads (1 turns them off) or unset it") from None
+    return max(1, min(blas_threads, _cpus()))
+
+
+@contextlib.contextmanager
+def session() -> Iterator[int]:
+    """Run the enclosed fit with row threads (see the module doc); yields their number."""
+    me = threading.get_ident()
+    if _state["owner"] == me:  # nested: the outer session already holds everything
+        _state["depth"] += 1
+        try:
+            yield _state["threads"]
+        finally:
+            _state["depth"] -= 1
+        return
+    if not _lock.acquire(blocking=False):
+        yield 1  # another thread's fit holds the pool: this one runs on its own thread
+        return
+    try:
+        control = _lookup()
+        count, restore = 1, None
+        if control is not None:
+            setter, getter = control
+            before = int(getter())
+            count = _wanted(before)
+            if count > 1:
+                setter(1)
+                restore = before
+        _state.update(owner=me, depth=1, threads=count, restore=restore)
+        try:
+            yield count
+        finally:
+            if restore is not None:
+                control[0](restore)
+            _state.update(owner=None, depth=0, threads=1, restore=None)
+    finally:
+        _lock.release()
+
+
+def threads() -> int:
+    """Row threads available to the calling thread now (1 outside a session)."""
+    return _state["threads"] if _state["owner"] == threading.get_ident() else 1
+
+
+def chunk_rows(p: int, itemsize: int = 8) -> int:
+    """Rows per chunk for a design of ``p`` columns (about ``CHUNK_BYTES`` of it)."""
+    return max(1024, CHUNK_BYTES // (itemsize * max(p, 1)))
+
+
+def for_rows(fn: Callable[[int, int], Any], n: int, chunk: int) -> list[Any]:
+    """``[fn(lo, min(lo + chunk, n)) for lo in range(0, n, chunk)]``, on the row threads
+    when there are several (the list is in chunk order either way)."""
+    bounds = [(lo, min(lo + chunk, n)) for lo in range(0, n, chunk)]
+    count = threads()
+    if count <= 1 or len(bounds) < 2:
+        return [fn(lo, hi) for lo, hi in bounds]
+    pool = _pool.get(count)
+    if pool is None:
+        pool = _pool[count] = ThreadPoolExecutor(max_workers=count, thread_name_prefix="lintools-rows")
+    return list(pool.map(lambda b: fn(b[0], b[1]), bounds))
+
+
+def add_up(parts: list[Any]) -> Any:
+    """The sum of the partial results in their order (a fixed order: see the module doc)."""
+    total = parts[0]
+    for part in parts[1:]:
+        total = total + part
+    return total
+
+
+_local = threading.local()
+#: Buffers up to this size are kept per thread for its next chunks (larger ones are not).
+_KEEP_BYTES = 1 << 24
+
+
+def scratch(name: str, shape: tuple[int, ...], dtype: Any = np.float64) -> np.ndarray:
+    """A buffer of at least ``shape`` kept by the calling thread under ``name`` and reused by
+    its next chunks (a fresh allocation per chunk would pay the first touch of its pages
+    every time); the caller slices it to the rows it needs."""
+    store = getattr(_local, "buffers", None)
+    if store is None:
+        store = _local.buffers = {}
+    key = (name, np.dtype(dtype).str)
+    buf = store.get(key)
+    if buf is None or buf.shape[0] < shape[0] or buf.shape[1:] != tuple(shape[1:]):
+        buf = np.empty(shape, dtype=dtype)
+        if buf.nbytes <= _KEEP_BYTES:
+            store[key] = buf
+    return buf[: shape[0]]
+
+
+def with_row_threads(fn: Callable[..., Any]) -> Callable[..., Any]:
+    """Decorator: run ``fn`` inside a :func:`session`."""
+    @functools.wraps(fn)
+    def run(*args: Any, **kwargs: Any) -> Any:
+        with session():
+            return fn(*args, **kwargs)
+
+    return run
