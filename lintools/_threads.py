@@ -16,8 +16,8 @@ threads do not compete for the cores.
   One session at a time: a fit started on another thread meanwhile runs on its own thread.
 * :func:`for_rows` runs ``fn(lo, hi)`` over consecutive chunks of rows and returns the
   results **in chunk order**.  The chunks do not depend on the number of threads, and the
-  callers add the partial results in that order, so a fit gives the same numbers on one
-  thread as on several.
+  callers add the partial results in that order, so one thread and several agree to the
+  rounding of the BLAS inside a chunk (measured: 2e-16 relative on the benchmark fit).
 
 Side effect, stated plainly: while a fit runs, other threads of the process that call
 NumPy's BLAS get one BLAS thread.
@@ -41,8 +41,8 @@ __all__ = ["ELEMENT_CHUNK", "session", "for_rows", "chunk_rows", "threads", "add
 #: Bytes of X per chunk handed to one thread (about 4 MB: large enough that the hand-over
 #: costs little, small enough for the partial sums to spread evenly).
 CHUNK_BYTES = 1 << 22
-#: Entries per chunk of an elementwise pass over the rows (512 KB of float64 per array).
-ELEMENT_CHUNK = 1 << 16
+#: Entries per chunk of an elementwise pass over the rows (128 KB of float64 per array).
+ELEMENT_CHUNK = 1 << 14
 
 _lock = threading.Lock()
 _state: dict[str, Any] = {"owner": None, "depth": 0, "threads": 1, "restore": None}

@@ -31,7 +31,7 @@ import numpy as np
 
 from .._threads import add_up, for_rows, scratch
 
-__all__ = ["column_moments", "weighted_gram", "uncentred_ok", "UNCENTRED_LIMIT"]
+__all__ = ["column_moments", "transposed_block", "weighted_gram", "uncentred_ok", "UNCENTRED_LIMIT"]
 
 #: Centre the accumulated products afterwards only while every |mean| / spread is at most this.
 UNCENTRED_LIMIT = 1.0
@@ -59,11 +59,10 @@ def column_moments(X: np.ndarray, v: np.ndarray, rows: int, centre: bool) -> tup
     total = float(v.sum())
 
     def part(lo: int, hi: int) -> tuple[np.ndarray, np.ndarray]:
-        Xb, vb = X[lo:hi], v[lo:hi]
         D = scratch("moments", (hi - lo, p))
         with np.errstate(over="ignore", invalid="ignore"):
-            np.multiply(Xb, Xb, out=D)
-            return vb @ Xb, vb @ D
+            np.multiply(X[lo:hi], X[lo:hi], out=D)
+            return transposed_block(v[lo:hi], X[lo:hi]), transposed_block(v[lo:hi], D)
 
     parts = for_rows(part, n, rows)
     with np.errstate(over="ignore", invalid="ignore"):
@@ -126,6 +125,13 @@ def _centred_squares(X: np.ndarray, v: np.ndarray, c: np.ndarray, rows: int) -> 
     return ss, shift
 
 
+def transposed_block(v: np.ndarray, X: np.ndarray) -> np.ndarray:
+    """``v @ X`` for a long, narrow C-ordered block, as NumPy's own sum of products
+    (``einsum``): measured about twice as fast here as the BLAS matrix-vector product, with
+    the same recursive summation down each column."""
+    return np.einsum("i,ij->j", v, X)
+
+
 def uncentred_ok(c: np.ndarray, s: np.ndarray) -> bool:
     """Whether :func:`weighted_gram` may centre afterwards (every ``|c_j| / s_j <= UNCENTRED_LIMIT``)."""
     return bool(np.all(np.abs(c) <= UNCENTRED_LIMIT * s))
@@ -167,12 +173,12 @@ def weighted_gram(X: np.ndarray, W: np.ndarray, c: np.ndarray, s: np.ndarray, in
                 np.multiply(X[lo:hi], inv, out=T)
                 np.copyto(B, T, casting="same_kind")
             np.multiply(B, rb[:, None], out=B)
-            return (B.T @ B).astype(float), (rb @ B).astype(float) if off else None
+            return (B.T @ B).astype(float), transposed_block(rb, B).astype(float) if off else None
     else:
         def part(lo: int, hi: int) -> tuple[np.ndarray, np.ndarray | None]:
             B, rb = scratch("gram", (hi - lo, p)), sw[lo:hi]
             np.multiply(X[lo:hi], rb[:, None], out=B)
-            return B.T @ B, rb @ B if off else None
+            return B.T @ B, transposed_block(rb, B) if off else None
 
     parts = for_rows(part, n, rows)
     HH = add_up([q[0] for q in parts]) if parts else np.zeros((p, p))

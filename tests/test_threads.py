@@ -1,0 +1,161 @@
+"""Row threads (lintools._threads): a fit on several threads equals the fit on one, the
+caller's BLAS setting comes back, chunks come back in order.
+
+Sources: statsmodels Logit (the oracle, on data large enough to be split into chunks and
+handed to the threads); NumPy's own products on the same arrays; the serial run of the
+same code (LINTOOLS_THREADS=1).
+"""
+
+import threading
+import time
+import warnings
+
+import numpy as np
+import pytest
+import statsmodels.api as sm
+
+import lintools as lt
+from lintools import _threads
+from lintools.losses import BinomialLoss
+from lintools.solvers import LinearModelProblem
+
+
+def _data(n: int = 120_000, p: int = 6, seed: int = 11):
+    rng = np.random.default_rng(seed)
+    X = rng.normal(size=(n, p)) * np.linspace(0.5, 3.0, p) + np.linspace(-1.0, 1.0, p)
+    eta = 0.3 + X @ np.linspace(-0.4, 0.4, p)
+    y = (rng.uniform(size=n) < 1.0 / (1.0 + np.exp(-eta))).astype(float)
+    return X, y
+
+
+def _openblas() -> bool:
+    return "openblas" in str(np.__config__.CONFIG["Build Dependencies"]["blas"]["name"]).lower()
+
+
+def test_blas_control_is_found_for_openblas_builds():
+    # NumPy's wheels ship OpenBLAS: then the row threads must be available; other builds
+    # run on the calling thread (the documented fallback)
+    with _threads.session() as count:
+        if _openblas():
+            assert _threads._lookup() is not None
+            assert count >= 1
+        else:
+            assert count == 1
+
+
+def test_threaded_fit_equals_serial_fit_and_statsmodels(monkeypatch):
+    X, y = _data()
+    monkeypatch.setenv("LINTOOLS_THREADS", "1")
+    one = lt.logistic(X, y, tol=1e-9)
+    monkeypatch.setenv("LINTOOLS_THREADS", "2")
+    with _threads.session() as count:
+        assert count == (2 if _openblas() else 1)
+    two = lt.logistic(X, y, tol=1e-9)
+    np.testing.assert_allclose(two.coefficients, one.coefficients, rtol=1e-12, atol=0)
+    np.testing.assert_allclose(two.standard_errors, one.standard_errors, rtol=1e-12, atol=0)
+    assert two.log_likelihood == pytest.approx(one.log_likelihood, rel=1e-14)
+    # oracle: statsmodels Logit (Newton, tight tolerance) on the same rows
+    ref = sm.Logit(y, sm.add_constant(X)).fit(disp=0, method="newton", tol=1e-12)
+    params = np.r_[two.intercept, two.coefficients]
+    np.testing.assert_allclose(params, ref.params, rtol=1e-9, atol=0)
+    np.testing.assert_allclose(np.r_[two.intercept_standard_error, two.standard_errors], ref.bse, rtol=1e-8)
+
+
+def test_session_restores_the_blas_setting(monkeypatch):
+    control = _threads._lookup()
+    if control is None:  # not an OpenBLAS build: nothing is changed, one row thread
+        with _threads.session() as count:
+            assert count == 1
+        return
+    setter, getter = control
+    before = getter()
+    monkeypatch.setenv("LINTOOLS_THREADS", "2")
+    with _threads.session() as count:
+        assert count == 2
+        assert getter() == 1  # the BLAS is held to one thread during the fit
+        with _threads.session() as inner:  # nested: the outer one holds everything
+            assert inner == 2
+        assert getter() == 1
+    assert getter() == before
+    X, y = _data(60_000, 3)
+    X[123, 1] = np.nan
+    with pytest.raises(lt.InputError):
+        lt.logistic(X, y)
+    assert getter() == before  # also after a fit that raised
+
+
+def test_chunks_come_back_in_order(monkeypatch):
+    monkeypatch.setenv("LINTOOLS_THREADS", "2")
+
+    def slow_first(lo: int, hi: int):
+        time.sleep(0.02 if lo == 0 else 0.0)  # the first chunk finishes last
+        return lo, hi
+
+    with _threads.session():
+        out = _threads.for_rows(slow_first, 10, 3)
+    assert out == [(0, 3), (3, 6), (6, 9), (9, 10)]
+    assert _threads.for_rows(lambda lo, hi: hi - lo, 0, 4) == []
+
+
+def test_another_threads_fit_runs_on_its_own_thread(monkeypatch):
+    monkeypatch.setenv("LINTOOLS_THREADS", "2")
+    seen = []
+
+    def other() -> None:
+        with _threads.session() as count:
+            seen.append(count)
+
+    with _threads.session():
+        worker = threading.Thread(target=other)
+        worker.start()
+        worker.join()
+    assert seen == [1]
+
+
+def test_bad_thread_setting_names_the_variable(monkeypatch):
+    if _threads._lookup() is None:
+        return  # the setting is read only where row threads are possible
+    monkeypatch.setenv("LINTOOLS_THREADS", "two")
+    X, y = _data(2000, 2)
+    with pytest.raises(ValueError, match="LINTOOLS_THREADS"):
+        lt.logistic(X, y)
+
+
+def test_threaded_products_match_numpy(monkeypatch):
+    X, y = _data(300_000, 7, seed=3)
+    monkeypatch.setenv("LINTOOLS_THREADS", "2")
+    with _threads.session():
+        problem = LinearModelProblem(X, BinomialLoss(y), intercept=True)
+        r = np.random.default_rng(1).normal(size=X.shape[0])
+        got = problem._transposed_product(r)
+        z = np.random.default_rng(2).normal(size=problem.size)
+        eta = problem.eta(z)
+        W = np.random.default_rng(3).uniform(size=X.shape[0])
+        H = problem._information(W)
+    bound = np.abs(r) @ np.abs(X)  # the scale of the rounding of X' r
+    assert np.all(np.abs(got - X.T @ r) <= 1e-13 * bound)
+    b, beta = problem.coefficients(z)
+    np.testing.assert_allclose(eta, X @ beta + b, rtol=0, atol=1e-13 * float(np.max(np.abs(X) @ np.abs(beta)) + abs(b)))
+    A = np.column_stack([np.ones(X.shape[0]), (X - problem.c) / problem.s])
+    Href = A.T @ (A * W[:, None])
+    np.testing.assert_allclose(H, Href, rtol=1e-12, atol=1e-12 * float(np.max(np.abs(Href))))
+
+
+def test_no_floating_point_warnings_from_the_threads(monkeypatch):
+    # errstate is per thread: each chunk sets its own (overflowing exp is the right limit)
+    monkeypatch.setenv("LINTOOLS_THREADS", "2")
+    n = 100_000
+    y = (np.arange(n) % 2).astype(float)
+    eta = np.where(np.arange(n) % 3 == 0, 1000.0, -1000.0) * (1 + np.arange(n) / n)
+    loss = BinomialLoss(y)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        with _threads.session():
+            g = loss.gradient(eta)
+            v = loss.value(eta)
+            c = loss.value_change(eta, np.full(n, 0.5))
+    serial = BinomialLoss(y)
+    monkeypatch.setenv("LINTOOLS_THREADS", "1")
+    np.testing.assert_array_equal(g, serial.gradient(eta))
+    assert v == pytest.approx(serial.value(eta), rel=1e-15)
+    assert c == pytest.approx(serial.value_change(eta, np.full(n, 0.5)), rel=1e-14)
