@@ -97,6 +97,19 @@ def _log_binomial(m: np.ndarray, y: np.ndarray) -> np.ndarray:
     return lg(m) - lg(y) - lg(m - y)
 
 
+def _rows_product(*factors: np.ndarray) -> np.ndarray:
+    """The elementwise product of equal-length vectors, in chunks on the row threads."""
+    out = np.empty(factors[0].shape)
+
+    def part(lo: int, hi: int) -> None:
+        np.multiply(factors[0][lo:hi], factors[1][lo:hi], out=out[lo:hi])
+        for f in factors[2:]:
+            out[lo:hi] *= f[lo:hi]
+
+    for_rows(part, out.shape[0], ELEMENT_CHUNK)
+    return out
+
+
 class BinomialLoss:
     r"""Negative weighted binomial log-likelihood in the linear predictor (logit link).
 
@@ -277,8 +290,8 @@ class BinomialLoss:
     def gradient(self, eta: np.ndarray) -> np.ndarray:
         """``d value / d eta = w [(m - y) mu - y (1 - mu)] = w (m mu - y)``."""
         _, mu, nu = self._parts(eta)
-        if self._binary:
-            return self._wsgn * mu  # (here mu is q of the margin)
+        if self._binary:  # (here mu is q of the margin)
+            return _rows_product(self._wsgn, mu)
         return self._wf * mu - self._wy * nu
 
     def value_and_gradient(self, eta: np.ndarray) -> tuple[float, np.ndarray]:
@@ -288,7 +301,7 @@ class BinomialLoss:
     def curvature(self, eta: np.ndarray) -> np.ndarray:
         """IRLS weights ``w m mu (1 - mu)`` (the second derivative of each term)."""
         _, mu, nu = self._parts(eta)
-        return self._wm * mu * nu
+        return _rows_product(self._wm, mu, nu)
 
     def curvature_slope(self, eta: np.ndarray) -> np.ndarray:
         """Derivative of the IRLS weights in eta: ``w m mu (1 - mu) (1 - 2 mu)`` (Firth's correction).

@@ -60,7 +60,7 @@ from typing import Any, Callable
 import numpy as np
 
 from ..linalg import solve_lower, solve_upper, unstandardise
-from .._threads import add_up, for_rows
+from .._threads import ELEMENT_CHUNK, add_up, for_rows
 from ._kernels import column_moments, transposed_block, uncentred_ok, weighted_gram
 from ._kernels_multi import PairWeights, multi_output_information
 from ._samples import SAMPLE_RUN, sample_rows, take_rows
@@ -593,10 +593,9 @@ class LinearModelProblem:
                 _, db = self.coefficients(line.d)
                 c += self.l2 * (t * float(np.sum(beta * db)) + 0.5 * t * t * float(np.sum(db * db)))
             return float(c), math.nan
-        delta = t * line.deta
-        eta = line.eta0 + delta
+        delta, eta = self._trial(line, t)
         line.trial = (t, eta)
-        if not np.all(np.isfinite(eta)):
+        if eta is None:
             return math.inf, math.nan
         c = self.loss.value_change(line.eta0, delta)
         if self.l2:
@@ -624,6 +623,20 @@ class LinearModelProblem:
         if self.l2:
             slope += self._penalty_slope(line.z + t * line.d, line.d)
         return float(c), slope
+
+    def _trial(self, line: _Line, t: float) -> tuple[np.ndarray, np.ndarray | None]:
+        """``(t X d, eta0 + t X d)`` in chunks of rows on the row threads; the second is
+        None when it is not finite somewhere."""
+        deta, eta0 = line.deta, line.eta0
+        delta, eta = np.empty(deta.shape), np.empty(deta.shape)
+
+        def part(lo: int, hi: int) -> bool:
+            np.multiply(deta[lo:hi], t, out=delta[lo:hi])
+            np.add(eta0[lo:hi], delta[lo:hi], out=eta[lo:hi])
+            return bool(np.all(np.isfinite(eta[lo:hi])))
+
+        finite = all(for_rows(part, deta.shape[0], ELEMENT_CHUNK))
+        return delta, eta if finite else None
 
     def evaluate(self, z: np.ndarray, fresh: bool = False) -> Evaluation:
         """Objective, gradient in z and in the caller's coordinates (two passes over X).
