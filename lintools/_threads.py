@@ -11,13 +11,17 @@ threads do not compete for the cores.
   thread and restores the caller's setting on exit.  The number of row threads is the
   BLAS thread count found on entry, at most the CPUs this process may use; the
   environment variable ``LINTOOLS_THREADS`` overrides it (``1`` turns the pool off).
+  The BLAS stays at one thread for the whole fit whatever the number of row threads, so
+  the arithmetic, and with it every digit of the result, does not depend on that number.
   When NumPy's BLAS is not an OpenBLAS whose thread count can be set through ``ctypes``
-  (other BLAS builds, unusual layouts) everything runs on the calling thread, as before.
-  One session at a time: a fit started on another thread meanwhile runs on its own thread.
+  (other BLAS builds, unusual layouts) everything runs on the calling thread and the BLAS
+  is left alone.  One session at a time: a fit started on another thread meanwhile waits
+  for the running one (each already uses all the cores it may), so concurrent calls give
+  the same digits as calls one after another.
 * :func:`for_rows` runs ``fn(lo, hi)`` over consecutive chunks of rows and returns the
   results **in chunk order**.  The chunks do not depend on the number of threads, and the
-  callers add the partial results in that order, so one thread and several agree to the
-  rounding of the BLAS inside a chunk (measured: 2e-16 relative on the benchmark fit).
+  callers add the partial results in that order, so one thread and several give
+  bit-identical results.
 
 Side effect, stated plainly: while a fit runs, other threads of the process that call
 NumPy's BLAS get one BLAS thread.
@@ -131,9 +135,7 @@ def session() -> Iterator[int]:
         finally:
             _state["depth"] -= 1
         return
-    if not _lock.acquire(blocking=False):
-        yield 1  # another thread's fit holds the pool: this one runs on its own thread
-        return
+    _lock.acquire()  # a fit on another thread meanwhile waits for this one (see the module doc)
     try:
         control = _lookup()
         count, restore = 1, None
@@ -141,7 +143,7 @@ def session() -> Iterator[int]:
             setter, getter = control
             before = int(getter())
             count = _wanted(before)
-            if count > 1:
+            if before != 1:
                 setter(1)
                 restore = before
         _state.update(owner=me, depth=1, threads=count, restore=restore)
