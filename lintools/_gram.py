@@ -81,7 +81,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .linalg import solve_lower, solve_upper
+from ._threads import add_up, for_rows, scratch
+from .linalg import solve_lower, solve_upper, transposed_block
 
 __all__ = ["GramSolution", "solve_by_gram", "default_block_rows"]
 
@@ -149,14 +150,14 @@ class _Blocks:
     def __init__(self, X: np.ndarray, shift: np.ndarray | None, rows: int):
         self.X = X
         self.shift = shift
-        p = X.shape[1]
-        self.buf = np.empty((rows, p))
         self.flat = shift is not None and X.flags.c_contiguous
         self.tile = np.tile(shift, rows) if self.flat else None
 
-    def get(self, lo: int, hi: int, writable: bool) -> np.ndarray:
+    def get(self, lo: int, hi: int, writable: bool, name: str = "shifted") -> np.ndarray:
+        """The block of rows ``lo:hi``; a copy goes into a buffer of the calling thread
+        (its next block reuses it), so blocks may be formed on several threads at once."""
         Xb = self.X[lo:hi]
-        out = self.buf[: hi - lo]
+        out = scratch(name, (hi - lo, self.X.shape[1]))
         if self.shift is None:
             if not writable:
                 return Xb
@@ -169,44 +170,32 @@ class _Blocks:
 
 
 def _first_pass(X, y, ybar, w, shift, beta0, a0, rows):
-    """Pass 1: moments of the shifted columns, of ``yt``, and of the start's residual."""
+    """Pass 1: moments of the shifted columns, of ``yt``, and of the start's residual
+    (block by block on the row threads, the block sums added in row order)."""
     n, p = X.shape
     blocks = _Blocks(X, shift, rows)
-    S = np.zeros((p, p))
-    sx = np.zeros(p)
-    gx = np.zeros(p)
-    W = rho = rss = ty = tyy = 0.0
-    ones = np.ones(rows) if w is None else None  # ones @ Z: faster than Z.sum(axis=0)
-    for lo in range(0, n, rows):
-        hi = min(n, lo + rows)
+    ones = np.ones(rows) if w is None else None  # ones' Z: faster than Z.sum(axis=0)
+
+    def part(lo: int, hi: int) -> tuple:
         Z = blocks.get(lo, hi, writable=w is not None)
         yb = y[lo:hi] - ybar
         r = yb - Z @ beta0
         if a0:
             r -= a0
         if w is None:
-            S += Z.T @ Z
-            sx += ones[: hi - lo] @ Z
-            gx += r @ Z
-            rho += float(r.sum())
-            rss += float(r @ r)
-            ty += float(yb.sum())
-            tyy += float(yb @ yb)
-            W += hi - lo
-        else:
-            wb = w[lo:hi]
-            wr = wb * r
-            sx += wb @ Z
-            gx += wr @ Z
-            rho += float(wr.sum())
-            rss += float(wr @ r)
-            wy = wb * yb
-            ty += float(wy.sum())
-            tyy += float(wy @ yb)
-            W += float(wb.sum())
-            np.multiply(Z, np.sqrt(wb)[:, None], out=Z)
-            S += Z.T @ Z
-    return W, sx, S, rho, gx, rss, ty, tyy
+            return (float(hi - lo), transposed_block(ones[: hi - lo], Z), Z.T @ Z, float(r.sum()),
+                    transposed_block(r, Z), float(r @ r), float(yb.sum()), float(yb @ yb))
+        wb = w[lo:hi]
+        wr = wb * r
+        wy = wb * yb
+        sums = (float(wb.sum()), transposed_block(wb, Z), None, float(wr.sum()), transposed_block(wr, Z),
+                float(wr @ r), float(wy.sum()), float(wy @ yb))
+        np.multiply(Z, np.sqrt(wb)[:, None], out=Z)
+        return sums[:2] + (Z.T @ Z,) + sums[3:]
+
+    parts = for_rows(part, n, rows)
+    W, sx, S, rho, gx, rss, ty, tyy = (add_up([q[k] for q in parts]) for k in range(8))
+    return float(W), sx, S, float(rho), gx, float(rss), float(ty), float(tyy)
 
 
 def _residual_pass(X, y, ybar, w, shift, beta, a, rows, *, keep_residuals, lev, meat):
@@ -217,29 +206,20 @@ def _residual_pass(X, y, ybar, w, shift, beta, a, rows, *, keep_residuals, lev, 
     """
     n, p = X.shape
     blocks = _Blocks(X, shift, rows)
-    gx = np.zeros(p)
-    rho = rss = 0.0
     e = np.empty(n) if keep_residuals else None
     hat = np.empty(n) if lev is not None else None
-    M = np.zeros((p + 1, p + 1)) if meat is not None else None
-    mbuf = np.empty((rows, p)) if meat is not None else None
-    first_one = None
-    for lo in range(0, n, rows):
-        hi = min(n, lo + rows)
+
+    def part(lo: int, hi: int) -> tuple:
         Z = blocks.get(lo, hi, writable=False)
         r = y[lo:hi] - ybar
         r -= Z @ beta
         if a:
             r -= a
         if w is None:
-            gx += r @ Z
-            rho += float(r.sum())
-            rss += float(r @ r)
+            sums = (float(r.sum()), transposed_block(r, Z), float(r @ r))
         else:
             wr = w[lo:hi] * r
-            gx += wr @ Z
-            rho += float(wr.sum())
-            rss += float(wr @ r)
+            sums = (float(wr.sum()), transposed_block(wr, Z), float(wr @ r))
         if e is not None:
             e[lo:hi] = r
         if hat is not None:
@@ -253,27 +233,36 @@ def _residual_pass(X, y, ybar, w, shift, beta, a, rows, *, keep_residuals, lev, 
             if w is not None:
                 hb *= w[lo:hi]
             hat[lo:hi] = hb
-        if M is not None:
-            kind, weight_type = meat
-            wb = np.ones(hi - lo) if w is None else w[lo:hi]
-            mm = wb * r * r if weight_type == "case" else wb * wb * r * r
-            if kind in ("HC2", "HC3"):
-                hb = hat[lo:hi]
-                levb = np.divide(hb, wb, out=np.zeros_like(hb), where=wb > 0) if weight_type == "case" else hb
-                bad = (wb > 0) & (levb >= 1.0 - 1e-12)
-                if first_one is None and bad.any():
-                    first_one = lo + int(np.flatnonzero(bad)[0])
-                with np.errstate(divide="ignore", invalid="ignore"):
-                    mm = mm / (1.0 - levb) ** (1 if kind == "HC2" else 2)
-                mm = np.where(bad, 0.0, mm)
-            Zm = mbuf[: hi - lo]
-            np.multiply(Z, np.sqrt(mm)[:, None], out=Zm)
-            M[1:, 1:] += Zm.T @ Zm
-            col = mm @ Z
-            M[0, 1:] += col
-            M[1:, 0] += col
-            M[0, 0] += float(mm.sum())
-    return rho, gx, rss, e, hat, M, first_one
+        if meat is None:
+            return sums + (None, None)
+        kind, weight_type = meat
+        wb = np.ones(hi - lo) if w is None else w[lo:hi]
+        mm = wb * r * r if weight_type == "case" else wb * wb * r * r
+        first = None
+        if kind in ("HC2", "HC3"):
+            hb = hat[lo:hi]
+            levb = np.divide(hb, wb, out=np.zeros_like(hb), where=wb > 0) if weight_type == "case" else hb
+            bad = (wb > 0) & (levb >= 1.0 - 1e-12)
+            if bad.any():
+                first = lo + int(np.flatnonzero(bad)[0])
+            with np.errstate(divide="ignore", invalid="ignore"):
+                mm = mm / (1.0 - levb) ** (1 if kind == "HC2" else 2)
+            mm = np.where(bad, 0.0, mm)
+        Zm = scratch("meat", (hi - lo, p))
+        np.multiply(Z, np.sqrt(mm)[:, None], out=Zm)
+        Mb = np.empty((p + 1, p + 1))
+        Mb[1:, 1:] = Zm.T @ Zm
+        col = mm @ Z
+        Mb[0, 1:] = col
+        Mb[1:, 0] = col
+        Mb[0, 0] = float(mm.sum())
+        return sums + (Mb, first)
+
+    parts = for_rows(part, n, rows)
+    rho, gx, rss = (add_up([q[k] for q in parts]) for k in range(3))
+    M = add_up([q[3] for q in parts]) if meat is not None else None
+    first_one = next((q[4] for q in parts if q[4] is not None), None)
+    return float(rho), gx, float(rss), e, hat, M, first_one
 
 
 def _subsample_rows(n, w, n_pos, k):

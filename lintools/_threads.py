@@ -40,7 +40,7 @@ from typing import Any, Callable, Iterator
 
 import numpy as np
 
-__all__ = ["ELEMENT_CHUNK", "session", "for_rows", "chunk_rows", "threads", "add_up", "scratch", "with_row_threads"]
+__all__ = ["ELEMENT_CHUNK", "session", "for_rows", "chunk_rows", "threads", "add_up", "scratch", "whole_blas", "with_row_threads"]
 
 #: Bytes of X per chunk handed to one thread (about 4 MB: large enough that the hand-over
 #: costs little, small enough for the partial sums to spread evenly).
@@ -155,6 +155,23 @@ def session() -> Iterator[int]:
             _state.update(owner=None, depth=0, threads=1, restore=None)
     finally:
         _lock.release()
+
+
+@contextlib.contextmanager
+def whole_blas() -> Iterator[None]:
+    """Inside a session of the calling thread: the caller's BLAS threads back for the
+    enclosed work (one large LAPACK call, such as a QR factorisation, that the row threads
+    do not split); elsewhere nothing changes."""
+    restore = _state["restore"] if _state["owner"] == threading.get_ident() else None
+    if restore is None:
+        yield
+        return
+    control = _lookup()
+    control[0](restore)
+    try:
+        yield
+    finally:
+        control[0](1)
 
 
 def threads() -> int:

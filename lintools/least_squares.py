@@ -67,6 +67,7 @@ from . import _distributions as dist
 from . import _gram
 from ._errors import IllConditionedWarning, InputError
 from ._records import Convergence, LinearFit
+from ._threads import whole_blas, with_row_threads
 from ._validate import (
     as_matrix,
     check_finite,
@@ -128,6 +129,7 @@ def _describe_alias(j, names, R, keep, xbar_scale, with_intercept):
     return f"column {j} ('{names[j]}') = {rhs}{const} (numerically)"
 
 
+@with_row_threads
 def least_squares(
     X: Any,
     y: Any,
@@ -269,10 +271,11 @@ def _fit(
     else:
         check_finite(Xa, "X", found)
         w_all = np.ones(n) if w is None else w
-        fit = _qr_path(
-            Xa, ya, w_all, lam, intercept, names_t, rank_deficient, covariance, weight_type,
-            n_obs, wsum, w_all > 0,
-        )
+        with whole_blas():  # one LAPACK factorisation: the BLAS's own threads split it
+            fit = _qr_path(
+                Xa, ya, w_all, lam, intercept, names_t, rank_deficient, covariance, weight_type,
+                n_obs, wsum, w_all > 0,
+            )
     beta, b0, rank, aliased = fit["beta"], fit["b0"], fit["rank"], fit["aliased"]
     full_rank, s, xbar, G, cond = fit["full_rank"], fit["s"], fit["xbar"], fit["G"], fit["cond"]
     rss, tss, e, hat = fit["rss"], fit["tss"], fit["e"], fit["hat"]

@@ -181,3 +181,26 @@ def test_no_floating_point_warnings_from_the_threads(monkeypatch):
     np.testing.assert_array_equal(g, serial.gradient(eta))
     assert v == pytest.approx(serial.value(eta), rel=1e-15)
     assert c == pytest.approx(serial.value_change(eta, np.full(n, 0.5)), rel=1e-14)
+
+
+@pytest.mark.parametrize("weighted", [False, True])
+def test_threaded_least_squares_equals_serial_and_statsmodels(monkeypatch, weighted):
+    rng = np.random.default_rng(21)
+    n, p = 150_000, 5
+    X = rng.normal(size=(n, p)) * np.array([1.0, 2.0, 0.5, 3.0, 1.5]) + np.array([0.0, 5.0, -2.0, 0.3, 1.0])
+    y = 1.0 + X @ np.array([0.5, -0.2, 0.1, 0.05, 0.3]) + rng.normal(size=n) * (1 + 0.5 * np.abs(X[:, 0]))
+    w = rng.uniform(0.5, 2.0, size=n) if weighted else None
+    fits = {}
+    for count in ("1", "2"):
+        monkeypatch.setenv("LINTOOLS_THREADS", count)
+        fits[count] = lt.least_squares(X, y, weights=w, covariance="HC3", weight_type="precision", diagnostics=True)
+    one, two = fits["1"], fits["2"]
+    np.testing.assert_array_equal(two.coefficients, one.coefficients)
+    np.testing.assert_array_equal(two.covariance, one.covariance)
+    # oracle: statsmodels WLS / OLS with HC3 on the same rows
+    A = sm.add_constant(X)
+    model = sm.WLS(y, A, weights=w) if weighted else sm.OLS(y, A)
+    ref = model.fit(cov_type="HC3")
+    np.testing.assert_allclose(np.r_[two.intercept, two.coefficients], ref.params, rtol=1e-10)
+    np.testing.assert_allclose(two.covariance, ref.cov_params(), rtol=1e-8,
+                               atol=1e-10 * float(np.max(np.abs(ref.cov_params()))))

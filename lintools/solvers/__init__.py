@@ -59,9 +59,9 @@ from typing import Any, Callable
 
 import numpy as np
 
-from ..linalg import solve_lower, solve_upper, unstandardise
+from ..linalg import solve_lower, solve_upper, transposed_block, unstandardise
 from .._threads import ELEMENT_CHUNK, add_up, for_rows
-from ._kernels import column_moments, transposed_block, uncentred_ok, weighted_gram
+from ._kernels import column_moments, uncentred_ok, weighted_gram
 from ._kernels_multi import PairWeights, multi_output_information
 from ._samples import SAMPLE_RUN, sample_rows, take_rows
 
