@@ -186,15 +186,43 @@ def chunk_rows(p: int, itemsize: int = 8) -> int:
 
 def for_rows(fn: Callable[[int, int], Any], n: int, chunk: int) -> list[Any]:
     """``[fn(lo, min(lo + chunk, n)) for lo in range(0, n, chunk)]``, on the row threads
-    when there are several (the list is in chunk order either way)."""
+    when there are several (the list is in chunk order either way).
+
+    The calling thread works too; it and ``threads() - 1`` pool threads take the next
+    chunk from a shared counter until none is left (one hand-over per thread and pass,
+    not per chunk: about 40 microseconds each were measured).  The first exception stops
+    the others at their next chunk and is raised here."""
     bounds = [(lo, min(lo + chunk, n)) for lo in range(0, n, chunk)]
-    count = threads()
-    if count <= 1 or len(bounds) < 2:
+    count = min(threads(), len(bounds))
+    if count <= 1:
         return [fn(lo, hi) for lo, hi in bounds]
     pool = _pool.get(count)
     if pool is None:
-        pool = _pool[count] = ThreadPoolExecutor(max_workers=count, thread_name_prefix="lintools-rows")
-    return list(pool.map(lambda b: fn(b[0], b[1]), bounds))
+        pool = _pool[count] = ThreadPoolExecutor(max_workers=count - 1, thread_name_prefix="lintools-rows")
+    results: list[Any] = [None] * len(bounds)
+    order = iter(range(len(bounds)))
+    take = threading.Lock()
+    failed: list[BaseException] = []
+
+    def work() -> None:
+        while not failed:
+            with take:
+                k = next(order, None)
+            if k is None:
+                return
+            try:
+                results[k] = fn(*bounds[k])
+            except BaseException as exc:  # handed to the caller below
+                failed.append(exc)
+                return
+
+    helpers = [pool.submit(work) for _ in range(count - 1)]
+    work()
+    for h in helpers:
+        h.result()
+    if failed:
+        raise failed[0]
+    return results
 
 
 def add_up(parts: list[Any]) -> Any:
