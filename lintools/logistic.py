@@ -31,7 +31,7 @@ from typing import Any, Callable, Sequence
 
 import numpy as np
 
-from ._threads import with_row_threads
+from ._threads import ELEMENT_CHUNK, for_rows, with_row_threads
 from ._errors import InputError, IterationLimitWarning, LintoolsError, LintoolsWarning, SeparationError
 from ._records import Convergence, LogisticFit
 from ._validate import (
@@ -246,10 +246,16 @@ class _Watch:
         self.live = loss.row_weights() > 0
 
     def runaway(self, eta: np.ndarray, limit: float) -> tuple[int, float]:
-        lin = eta if self.offset is None else eta - self.offset
-        y, m = self.loss.y, self.loss.trials
-        hit = self.live & (((lin > limit) & (y == m)) | ((lin < -limit) & (y == 0)))
-        return int(hit.sum()), float(np.max(np.abs(lin[hit]))) if hit.any() else 0.0
+        y, m, offset, live = self.loss.y, self.loss.trials, self.offset, self.live
+
+        def part(lo: int, hi: int) -> tuple[int, float]:
+            lin = eta[lo:hi] if offset is None else eta[lo:hi] - offset[lo:hi]
+            yb = y[lo:hi]
+            hit = live[lo:hi] & (((lin > limit) & (yb == m[lo:hi])) | ((lin < -limit) & (yb == 0)))
+            return int(hit.sum()), float(np.max(np.abs(lin[hit]))) if hit.any() else 0.0
+
+        parts = for_rows(part, eta.shape[0], ELEMENT_CHUNK)
+        return sum(c for c, _ in parts), max((t for _, t in parts), default=0.0)
 
     def __call__(self, z: np.ndarray, ev: Evaluation) -> str | None:
         count, top = self.runaway(ev.eta, ETA_LIMIT)

@@ -134,9 +134,10 @@ class BinomialLoss:
         self.trials = np.ones(n) if trials is None else trials
         self.weights = np.ones(n) if weights is None else weights
         self.grouped = trials is not None
-        self._wy = self.weights * y
-        self._wf = self.weights * (self.trials - y)  # weighted failures
-        self._wm = self.weights * self.trials
+        plain = trials is None and weights is None  # unit weights and trials: no products to form
+        self._wy = y if plain else self.weights * y
+        self._wf = 1.0 - y if plain else self.weights * (self.trials - y)  # weighted failures
+        self._wm = self.trials if plain else self.weights * self.trials
         self._cache: tuple | None = None  # (eta, (e, mu, nu)) of the last linear predictor
         self._value: tuple | None = None  # (eta, value(eta)) of the last value asked for
         # one trial per row with a 0/1 outcome: each row has one softplus term in the
@@ -144,7 +145,7 @@ class BinomialLoss:
         # curvature w q (1 - q) with q = 1 / (1 + e^-u): no selection by outcome per row
         self._binary = bool(trials is None and np.all((y == 0) | (y == 1)))
         self._sgn = 1.0 - 2.0 * y if self._binary else None
-        self._wsgn = self.weights * self._sgn if self._binary else None
+        self._wsgn = (self._sgn if weights is None else self.weights * self._sgn) if self._binary else None
 
     def _parts(self, eta: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """``(exp(-|eta|), mu, 1 - mu)``, kept for the last ``eta``: the solvers ask for the
