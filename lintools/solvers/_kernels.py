@@ -146,20 +146,19 @@ def weighted_gram(X: np.ndarray, W: np.ndarray, c: np.ndarray, s: np.ndarray, in
     """
     n, p = X.shape
     off = int(intercept)
-    sw = np.sqrt(W)
     top = 1.0
     if single:
-        top = float(sw.max()) if n else 0.0
+        top = math.sqrt(float(W.max())) if n else 0.0  # = max sqrt(W): sqrt is monotone
         if not (top > 0 and math.isfinite(top)):
             single, top = False, 1.0
     inv = 1.0 / s
     if single:
-        r = (sw / top).astype(np.float32)
         # |x_ij| <= |c_j| + s_j row_bound <= s_j (1 + row_bound) under uncentred_ok
         raw = bool(np.all(s * (1.0 + row_bound) <= _SINGLE_RANGE) and np.all(s >= 1.0 / _SINGLE_RANGE))
 
         def part(lo: int, hi: int) -> tuple[np.ndarray, np.ndarray | None]:
-            B, rb = scratch("gram32", (hi - lo, p), np.float32), r[lo:hi]
+            B = scratch("gram32", (hi - lo, p), np.float32)
+            rb = (np.sqrt(W[lo:hi]) / top).astype(np.float32)
             if raw:
                 np.copyto(B, X[lo:hi], casting="same_kind")
             else:
@@ -170,7 +169,7 @@ def weighted_gram(X: np.ndarray, W: np.ndarray, c: np.ndarray, s: np.ndarray, in
             return (B.T @ B).astype(float), transposed_block(rb, B).astype(float) if off else None
     else:
         def part(lo: int, hi: int) -> tuple[np.ndarray, np.ndarray | None]:
-            B, rb = scratch("gram", (hi - lo, p)), sw[lo:hi]
+            B, rb = scratch("gram", (hi - lo, p)), np.sqrt(W[lo:hi])
             np.multiply(X[lo:hi], rb[:, None], out=B)
             return B.T @ B, transposed_block(rb, B) if off else None
 
