@@ -155,21 +155,8 @@ class BinomialLoss:
         if cached is not None and cached[0] is eta:
             return cached[1]
         if self._binary:  # (None, q, 1 - q) in the margin: q is mu for y = 0 and 1 - mu for y = 1
-            q, qc, sgn = np.empty(eta.shape), np.empty(eta.shape), self._sgn
-
-            def part(lo: int, hi: int) -> None:
-                u, qb, qcb = qc[lo:hi], q[lo:hi], qc[lo:hi]
-                np.multiply(sgn[lo:hi], eta[lo:hi], out=u)
-                with np.errstate(over="ignore"):
-                    np.negative(u, out=qb)
-                    np.exp(qb, out=qb)
-                    qb += 1.0
-                    np.reciprocal(qb, out=qb)
-                    np.exp(u, out=qcb)
-                    qcb += 1.0
-                    np.reciprocal(qcb, out=qcb)
-
-            for_rows(part, eta.shape[0], ELEMENT_CHUNK)
+            q, qc = np.empty(eta.shape), np.empty(eta.shape)
+            for_rows(lambda lo, hi: self.margin_rows(lo, hi, eta, q, qc), eta.shape[0], ELEMENT_CHUNK)
             parts = (None, q, qc)  # exp(-|eta|) is formed by value() when it is asked for
             self._cache = (eta, parts)
             return parts
@@ -186,6 +173,49 @@ class BinomialLoss:
         parts = (e, mu, nu)
         self._cache = (eta, parts)
         return parts
+
+    # ---- row ranges (0/1 outcomes): the bodies of the passes, for passes that also read X
+    @property
+    def row_passes(self) -> bool:
+        """Whether :meth:`margin_rows`, :meth:`change_rows` and :meth:`gradient_rows` apply
+        (one trial per row with a 0/1 outcome)."""
+        return self._binary
+
+    def margin_rows(self, lo: int, hi: int, eta: np.ndarray, q: np.ndarray, qc: np.ndarray) -> None:
+        """Write ``q = 1 / (1 + e^-u)`` and ``1 - q = 1 / (1 + e^u)`` (``u = sgn eta``, the
+        margin) into rows ``lo:hi`` of ``q`` and ``qc``, each directly to a few ulp."""
+        u, qb, qcb = qc[lo:hi], q[lo:hi], qc[lo:hi]
+        np.multiply(self._sgn[lo:hi], eta[lo:hi], out=u)
+        with np.errstate(over="ignore"):  # an overflowing exp gives the right limit 0
+            np.negative(u, out=qb)
+            np.exp(qb, out=qb)
+            qb += 1.0
+            np.reciprocal(qb, out=qb)
+            np.exp(u, out=qcb)
+            qcb += 1.0
+            np.reciprocal(qcb, out=qcb)
+
+    def change_rows(self, lo: int, hi: int, eta: np.ndarray, delta: np.ndarray, q: np.ndarray) -> float:
+        """Rows ``lo:hi`` of :meth:`value_change` (``q``: the margin's ``q`` at ``eta``)."""
+        d, s = delta[lo:hi], self._sgn[lo:hi]
+        change = np.clip(d, -1.0, 1.0)
+        change *= s
+        np.expm1(change, out=change)
+        change *= q[lo:hi]
+        np.log1p(change, out=change)
+        far = np.flatnonzero(np.abs(d) > 1.0)
+        if far.size:  # large moves: the plain difference is accurate relative to them
+            u = s[far] * eta[lo:hi][far]
+            change[far] = log1pexp(u + s[far] * d[far]) - log1pexp(u)
+        return float(self.weights[lo:hi] @ change)
+
+    def gradient_rows(self, lo: int, hi: int, q: np.ndarray) -> np.ndarray:
+        """Rows ``lo:hi`` of :meth:`gradient` (``q``: the margin's ``q`` there)."""
+        return self._wsgn[lo:hi] * q[lo:hi]
+
+    def keep_parts(self, eta: np.ndarray, q: np.ndarray, qc: np.ndarray) -> None:
+        """Remember ``q`` and ``1 - q`` (from :meth:`margin_rows`) as the parts at ``eta``."""
+        self._cache = (eta, (None, q, qc))
 
     def subset(self, rows: np.ndarray) -> "BinomialLoss":
         """The same loss on the given rows."""
@@ -271,22 +301,8 @@ class BinomialLoss:
         With ``u = sgn eta`` and ``q = 1 / (1 + e^-u)`` a row changes by
         ``log1p(q expm1(sgn delta))`` (the form of :func:`_softplus_changes`)."""
         _, q, _ = self._parts(eta)
-        sgn, w = self._sgn, self.weights
-
-        def part(lo: int, hi: int) -> float:
-            d, s = delta[lo:hi], sgn[lo:hi]
-            change = np.clip(d, -1.0, 1.0)
-            change *= s
-            np.expm1(change, out=change)
-            change *= q[lo:hi]
-            np.log1p(change, out=change)
-            far = np.flatnonzero(np.abs(d) > 1.0)
-            if far.size:  # large moves: the plain difference is accurate relative to them
-                u = s[far] * eta[lo:hi][far]
-                change[far] = log1pexp(u + s[far] * d[far]) - log1pexp(u)
-            return float(w[lo:hi] @ change)
-
-        return float(add_up(for_rows(part, eta.shape[0], ELEMENT_CHUNK) or [0.0]))
+        parts = for_rows(lambda lo, hi: self.change_rows(lo, hi, eta, delta, q), eta.shape[0], ELEMENT_CHUNK)
+        return float(add_up(parts or [0.0]))
 
     def gradient(self, eta: np.ndarray) -> np.ndarray:
         """``d value / d eta = w [(m - y) mu - y (1 - mu)] = w (m mu - y)``."""
