@@ -174,13 +174,7 @@ class BinomialLoss:
         self._cache = (eta, parts)
         return parts
 
-    # ---- row ranges (0/1 outcomes): the bodies of the passes, for passes that also read X
-    @property
-    def row_passes(self) -> bool:
-        """Whether :meth:`margin_rows`, :meth:`change_rows` and :meth:`gradient_rows` apply
-        (one trial per row with a 0/1 outcome)."""
-        return self._binary
-
+    # ---- row ranges (0/1 outcomes): the bodies of the chunked passes
     def margin_rows(self, lo: int, hi: int, eta: np.ndarray, q: np.ndarray, qc: np.ndarray) -> None:
         """Write ``q = 1 / (1 + e^-u)`` and ``1 - q = 1 / (1 + e^u)`` (``u = sgn eta``, the
         margin) into rows ``lo:hi`` of ``q`` and ``qc``, each directly to a few ulp."""
@@ -208,14 +202,6 @@ class BinomialLoss:
             u = s[far] * eta[lo:hi][far]
             change[far] = log1pexp(u + s[far] * d[far]) - log1pexp(u)
         return float(self.weights[lo:hi] @ change)
-
-    def gradient_rows(self, lo: int, hi: int, q: np.ndarray) -> np.ndarray:
-        """Rows ``lo:hi`` of :meth:`gradient` (``q``: the margin's ``q`` there)."""
-        return self._wsgn[lo:hi] * q[lo:hi]
-
-    def keep_parts(self, eta: np.ndarray, q: np.ndarray, qc: np.ndarray) -> None:
-        """Remember ``q`` and ``1 - q`` (from :meth:`margin_rows`) as the parts at ``eta``."""
-        self._cache = (eta, (None, q, qc))
 
     def subset(self, rows: np.ndarray) -> "BinomialLoss":
         """The same loss on the given rows."""
