@@ -1,11 +1,12 @@
 r"""Row passes on several threads while a fit runs.
 
 NumPy's elementwise functions run on one core, and OpenBLAS's own threads gain little on
-the long, narrow products of a fit (measured on 2 cores: ``X'X`` of a 1e6 x 50 array
-took as long on two BLAS threads as on one).  A fit therefore splits each pass over the
-rows into fixed chunks and hands them to a small pool of threads (NumPy and BLAS release
-the interpreter lock), with the BLAS held to one thread meanwhile, so the two kinds of
-threads do not compete for the cores.
+the long, narrow products of a fit (measured on 2 cores: ``X'X`` of a 1e6 x 50 array took
+0.13-0.16 s on two BLAS threads, and 0.08 s as two halves on two threads of one BLAS
+thread each).  A fit therefore splits each pass over the rows into fixed chunks and hands
+them to a small pool of threads (NumPy and BLAS release the interpreter lock), with the
+BLAS held to one thread meanwhile, so the two kinds of threads do not compete for the
+cores (an idle OpenBLAS thread keeps spinning for a while after each call).
 
 * :func:`session` (a context manager; the fits enter it) sets NumPy's OpenBLAS to one
   thread and restores the caller's setting on exit.  The number of row threads is the
@@ -30,8 +31,8 @@ NumPy's BLAS get one BLAS thread.
 from __future__ import annotations
 
 import contextlib
-import functools
 import ctypes
+import functools
 import glob
 import os
 import threading
@@ -40,16 +41,14 @@ from typing import Any, Callable, Iterator
 
 import numpy as np
 
-__all__ = ["ELEMENT_CHUNK", "session", "for_rows", "chunk_rows", "threads", "add_up", "scratch", "whole_blas", "with_row_threads"]
+__all__ = ["ELEMENT_CHUNK", "session", "whole_blas", "with_row_threads", "threads", "for_rows", "add_up",
+           "scratch"]
 
-#: Bytes of X per chunk handed to one thread (about 4 MB: large enough that the hand-over
-#: costs little, small enough for the partial sums to spread evenly).
-CHUNK_BYTES = 1 << 22
 #: Entries per chunk of an elementwise pass over the rows (128 KB of float64 per array).
 ELEMENT_CHUNK = 1 << 14
 
 _lock = threading.Lock()
-_state: dict[str, Any] = {"owner": None, "depth": 0, "threads": 1, "restore": None}
+_state: dict[str, Any] = {"owner": None, "threads": 1, "restore": None}
 _pool: dict[int, ThreadPoolExecutor] = {}
 _control: list[Any] = []  # [(set, get)] or [None] once looked up
 
@@ -58,8 +57,8 @@ def _library_paths() -> list[str]:
     """Candidate files of NumPy's OpenBLAS: beside NumPy (wheels), else those mapped in."""
     here = os.path.dirname(np.__file__)
     found: list[str] = []
-    for pattern in (os.path.join(os.path.dirname(here), "numpy.libs", "*openblas*"),
-                    os.path.join(here, ".dylibs", "*openblas*"), os.path.join(here, "..", "numpy.libs", "*openblas*")):
+    for pattern in (os.path.join(os.path.dirname(here), "numpy.libs", "*openblas*"),  # Linux, Windows
+                    os.path.join(here, ".dylibs", "*openblas*")):  # macOS
         found += sorted(glob.glob(pattern))
     if not found:
         try:
@@ -129,11 +128,7 @@ def session() -> Iterator[int]:
     """Run the enclosed fit with row threads (see the module doc); yields their number."""
     me = threading.get_ident()
     if _state["owner"] == me:  # nested: the outer session already holds everything
-        _state["depth"] += 1
-        try:
-            yield _state["threads"]
-        finally:
-            _state["depth"] -= 1
+        yield _state["threads"]
         return
     _lock.acquire()  # a fit on another thread meanwhile waits for this one (see the module doc)
     try:
@@ -146,13 +141,13 @@ def session() -> Iterator[int]:
             if before != 1:
                 setter(1)
                 restore = before
-        _state.update(owner=me, depth=1, threads=count, restore=restore)
+        _state.update(owner=me, threads=count, restore=restore)
         try:
             yield count
         finally:
             if restore is not None:
                 control[0](restore)
-            _state.update(owner=None, depth=0, threads=1, restore=None)
+            _state.update(owner=None, threads=1, restore=None)
     finally:
         _lock.release()
 
@@ -177,11 +172,6 @@ def whole_blas() -> Iterator[None]:
 def threads() -> int:
     """Row threads available to the calling thread now (1 outside a session)."""
     return _state["threads"] if _state["owner"] == threading.get_ident() else 1
-
-
-def chunk_rows(p: int, itemsize: int = 8) -> int:
-    """Rows per chunk for a design of ``p`` columns (about ``CHUNK_BYTES`` of it)."""
-    return max(1024, CHUNK_BYTES // (itemsize * max(p, 1)))
 
 
 def for_rows(fn: Callable[[int, int], Any], n: int, chunk: int) -> list[Any]:

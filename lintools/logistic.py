@@ -31,9 +31,9 @@ from typing import Any, Callable, Sequence
 
 import numpy as np
 
-from ._threads import ELEMENT_CHUNK, for_rows, with_row_threads
 from ._errors import InputError, IterationLimitWarning, LintoolsError, LintoolsWarning, SeparationError
 from ._records import Convergence, LogisticFit
+from ._threads import ELEMENT_CHUNK, for_rows, with_row_threads
 from ._validate import (
     as_labels,
     as_matrix,

@@ -178,8 +178,8 @@ class BinomialLoss:
     def margin_rows(self, lo: int, hi: int, eta: np.ndarray, q: np.ndarray, qc: np.ndarray) -> None:
         """Write ``q = 1 / (1 + e^-u)`` and ``1 - q = 1 / (1 + e^u)`` (``u = sgn eta``, the
         margin) into rows ``lo:hi`` of ``q`` and ``qc``, each directly to a few ulp."""
-        u, qb, qcb = qc[lo:hi], q[lo:hi], qc[lo:hi]
-        np.multiply(self._sgn[lo:hi], eta[lo:hi], out=u)
+        qb, qcb = q[lo:hi], qc[lo:hi]
+        u = np.multiply(self._sgn[lo:hi], eta[lo:hi], out=qcb)  # the margin, in 1 - q's place
         with np.errstate(over="ignore"):  # an overflowing exp gives the right limit 0
             np.negative(u, out=qb)
             np.exp(qb, out=qb)
