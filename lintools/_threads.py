@@ -53,6 +53,23 @@ _pool: dict[int, ThreadPoolExecutor] = {}
 _control: list[Any] = []  # [(set, get)] or [None] once looked up
 
 
+def _after_fork_in_child() -> None:
+    """A forked child has none of the parent's threads: forget the pools and the session
+    (its lock may have been held by a thread that does not exist here) and give the BLAS
+    back the thread count the parent's running fit had taken from it."""
+    global _lock
+    _lock = threading.Lock()
+    _pool.clear()
+    restore = _state["restore"]
+    _state.update(owner=None, threads=1, restore=None)
+    if restore is not None and _control and _control[0] is not None:
+        _control[0][0](restore)
+
+
+if hasattr(os, "register_at_fork"):
+    os.register_at_fork(after_in_child=_after_fork_in_child)
+
+
 def _library_paths() -> list[str]:
     """Candidate files of NumPy's OpenBLAS: beside NumPy (wheels), else those mapped in."""
     here = os.path.dirname(np.__file__)

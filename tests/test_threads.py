@@ -204,3 +204,27 @@ def test_threaded_least_squares_equals_serial_and_statsmodels(monkeypatch, weigh
     np.testing.assert_allclose(np.r_[two.intercept, two.coefficients], ref.params, rtol=1e-10)
     np.testing.assert_allclose(two.covariance, ref.cov_params(), rtol=1e-8,
                                atol=1e-10 * float(np.max(np.abs(ref.cov_params()))))
+
+
+def _fit_in_child(queue) -> None:
+    X, y = _data(100_000, 4, seed=8)
+    queue.put(lt.logistic(X, y).coefficients.tolist())
+
+
+def test_a_forked_child_can_fit_after_the_parent_did(monkeypatch):
+    # the parent's pool threads do not exist in a forked child: it must make its own
+    import multiprocessing
+
+    if "fork" not in multiprocessing.get_all_start_methods():
+        return  # no fork on this platform: nothing to inherit
+    monkeypatch.setenv("LINTOOLS_THREADS", "2")
+    X, y = _data(100_000, 4, seed=8)
+    parent = lt.logistic(X, y).coefficients
+    ctx = multiprocessing.get_context("fork")
+    queue = ctx.Queue()
+    child = ctx.Process(target=_fit_in_child, args=(queue,))
+    child.start()
+    got = queue.get(timeout=60)  # without the fork handler the child waits forever
+    child.join(timeout=60)
+    assert child.exitcode == 0
+    np.testing.assert_array_equal(np.array(got), parent)
