@@ -149,9 +149,27 @@ class IsotonicMap:
     increasing: bool
 
     def apply(self, p: Any) -> np.ndarray | float:
-        """Return the recalibrated probability for each new input value."""
+        """Return the recalibrated probability for each new input value.
+
+        The interpolation weight ``t = (x - x_j) / (x_{j+1} - x_j)`` is formed first and
+        the result clipped to the two fitted values, so the output stays monotone and in
+        ``[0, 1]`` even when two points are only a few subnormals apart (where a slope
+        ``(v_{j+1} - v_j) / (x_{j+1} - x_j)`` overflows to infinity).
+        """
         x, scalar = vector_in(p, "p")
-        out = np.interp(x, self.points, self.values)
+        xp, fp = self.points, self.values
+        if xp.shape[0] == 1:
+            out = np.full(x.shape, fp[0])
+        else:
+            j = np.clip(np.searchsorted(xp, x, side="right") - 1, 0, xp.shape[0] - 2)
+            x0, x1, f0, f1 = xp[j], xp[j + 1], fp[j], fp[j + 1]
+            with np.errstate(over="ignore", invalid="ignore"):
+                gap = x1 - x0
+                t = (x - x0) / gap
+                wide = np.isinf(gap)  # a gap wider than the largest double: halve first
+                t[wide] = (x[wide] / 2 - x0[wide] / 2) / (x1[wide] / 2 - x0[wide] / 2)
+            t = np.clip(t, 0.0, 1.0)
+            out = np.clip(f0 + t * (f1 - f0), np.minimum(f0, f1), np.maximum(f0, f1))
         return float(out[0]) if scalar else out
 
 

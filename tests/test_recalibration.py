@@ -76,6 +76,28 @@ def test_isotonic_output_monotone(rows, increasing):
     assert m.apply(-10.0) == m.values[0] and m.apply(10.0) == m.values[-1]
 
 
+def test_isotonic_apply_between_nearly_equal_points():
+    # regression: np.interp's slope (1 / 2e-320) overflowed and returned +-inf between two
+    # points a few subnormals apart; IEEE 754 subnormal arithmetic, common practice check
+    m = isotonic_calibration([0, 1], [-1e-320, 1e-320])
+    assert m.apply(0.0) == 0.5 and m.apply(5e-321) == 0.75
+    m = isotonic_calibration([1, 0], [-1e-320, 1e-320], increasing=False)
+    assert m.apply(0.0) == 0.5
+    # a gap wider than the largest double (x1 - x0 overflows): exact midpoint
+    m = isotonic_calibration([0, 1], [-1.5e308, 1.5e308])
+    assert m.apply(0.0) == 0.5 and m.apply(1.5e308) == 1.0
+
+
+def test_isotonic_apply_matches_linear_interpolation():
+    # source: numpy.interp (oracle) on well-separated points, to rounding
+    rng = np.random.default_rng(3)
+    x = rng.normal(size=200)
+    y = (rng.uniform(size=200) < 1 / (1 + np.exp(-2 * x))).astype(int)
+    m = isotonic_calibration(y, x)
+    grid = np.linspace(-4, 4, 1001)
+    assert np.max(np.abs(m.apply(grid) - np.interp(grid, m.points, m.values))) < 1e-15
+
+
 # ----------------------------------------------------------------------- temperature
 def _logit_data(seed, n=400, k=4, true_t=2.0):
     rng = np.random.default_rng(seed)
