@@ -157,10 +157,10 @@ class _Blocks:
         """The block of rows ``lo:hi``; a copy goes into a buffer of the calling thread
         (its next block reuses it), so blocks may be formed on several threads at once."""
         Xb = self.X[lo:hi]
+        if self.shift is None and not writable:
+            return Xb
         out = scratch("shifted", (hi - lo, self.X.shape[1]))
         if self.shift is None:
-            if not writable:
-                return Xb
             np.copyto(out, Xb)
         elif self.flat:
             np.subtract(Xb.reshape(-1), self.tile[: out.size], out=out.reshape(-1))

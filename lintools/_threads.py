@@ -232,8 +232,11 @@ def for_rows(fn: Callable[[int, int], Any], n: int, chunk: int) -> list[Any]:
     return results
 
 
-def add_up(parts: list[Any]) -> Any:
-    """The sum of the partial results in their order (a fixed order: see the module doc)."""
+def add_up(parts: list[Any], empty: Any = None) -> Any:
+    """The sum of the partial results in their order (a fixed order: see the module doc);
+    ``empty`` when there are none (a pass over zero rows)."""
+    if not parts:
+        return empty
     total = parts[0]
     for part in parts[1:]:
         total = total + part

@@ -203,6 +203,18 @@ class BinomialLoss:
             change[far] = log1pexp(u + s[far] * d[far]) - log1pexp(u)
         return float(self.weights[lo:hi] @ change)
 
+    def value_rows(self, lo: int, hi: int, eta: np.ndarray) -> float:
+        """Rows ``lo:hi`` of :meth:`value` for 0/1 outcomes: ``w (max(u, 0) + log1p(e^-|eta|))``,
+        the softplus of the margin ``u = (1 - 2y) eta``, both parts non-negative."""
+        t = np.abs(eta[lo:hi])
+        np.negative(t, out=t)
+        np.exp(t, out=t)
+        np.log1p(t, out=t)  # log1p(exp(-|eta|))
+        u = self._sgn[lo:hi] * eta[lo:hi]
+        np.maximum(u, 0.0, out=u)
+        u += t
+        return float(self.weights[lo:hi] @ u)
+
     def subset(self, rows: np.ndarray) -> "BinomialLoss":
         """The same loss on the given rows."""
         return BinomialLoss(self.y[rows], self.trials[rows] if self.grouped else None, self.weights[rows])
@@ -248,19 +260,8 @@ class BinomialLoss:
         if cached is not None and cached[0] is eta:
             return cached[1]
         if self._binary:
-            sgn, w = self._sgn, self.weights
-
-            def part(lo: int, hi: int) -> float:
-                t = np.abs(eta[lo:hi])
-                np.negative(t, out=t)
-                np.exp(t, out=t)
-                np.log1p(t, out=t)  # log1p(exp(-|eta|))
-                u = sgn[lo:hi] * eta[lo:hi]
-                np.maximum(u, 0.0, out=u)
-                u += t
-                return float(w[lo:hi] @ u)
-
-            f = float(add_up(for_rows(part, eta.shape[0], ELEMENT_CHUNK) or [0.0]))
+            parts = for_rows(lambda lo, hi: self.value_rows(lo, hi, eta), eta.shape[0], ELEMENT_CHUNK)
+            f = float(add_up(parts, 0.0))
         else:
             e = self._parts(eta)[0]
             f = float(self._wy @ np.maximum(-eta, 0.0) + self._wf @ np.maximum(eta, 0.0) + self._wm @ np.log1p(e))
@@ -288,7 +289,7 @@ class BinomialLoss:
         ``log1p(q expm1(sgn delta))`` (the form of :func:`_softplus_changes`)."""
         _, q, _ = self._parts(eta)
         parts = for_rows(lambda lo, hi: self.change_rows(lo, hi, eta, delta, q), eta.shape[0], ELEMENT_CHUNK)
-        return float(add_up(parts or [0.0]))
+        return float(add_up(parts, 0.0))
 
     def gradient(self, eta: np.ndarray) -> np.ndarray:
         """``d value / d eta = w [(m - y) mu - y (1 - mu)] = w (m mu - y)``."""

@@ -67,8 +67,8 @@ def column_moments(X: np.ndarray, v: np.ndarray, rows: int, centre: bool) -> tup
 
     parts = for_rows(part, n, rows)
     with np.errstate(over="ignore", invalid="ignore"):
-        sums = add_up([q[0] for q in parts]) if parts else np.zeros(p)
-        squares = add_up([q[1] for q in parts]) if parts else np.zeros(p)
+        sums = add_up([q[0] for q in parts], np.zeros(p))
+        squares = add_up([q[1] for q in parts], np.zeros(p))
         finite = bool(np.all(np.isfinite(sums)) and np.all(np.isfinite(squares)))
     if not finite:
         if not np.all(np.isfinite(X)):
@@ -174,8 +174,8 @@ def weighted_gram(X: np.ndarray, W: np.ndarray, c: np.ndarray, s: np.ndarray, in
             return B.T @ B, transposed_block(rb, B) if off else None
 
     parts = for_rows(part, n, rows)
-    HH = add_up([q[0] for q in parts]) if parts else np.zeros((p, p))
-    h = add_up([q[1] for q in parts]) if (parts and off) else np.zeros(p)
+    HH = add_up([q[0] for q in parts], np.zeros((p, p)))
+    h = add_up([q[1] for q in parts], np.zeros(p)) if off else np.zeros(p)
     if single:
         u = np.ones(p) if not raw else inv
         HH = HH * np.multiply.outer(u, u)
