@@ -231,6 +231,16 @@ def as_labels(y: Any, name: str = "y", n: int | None = None) -> tuple[tuple, np.
         )
     if arr.shape[0] == 0:
         raise InputError(f"{name} is empty; pass at least one label")
+    if arr.dtype.kind in "biufUS":  # one plain type: NumPy's sort, the same labels and order
+        if arr.dtype.kind == "f":
+            bad = np.flatnonzero(~np.isfinite(arr))
+            if bad.size:
+                i = int(bad[0])
+                if np.isnan(arr[i]):
+                    raise InputError(f"{name} has a missing label at row {i}; drop or label that row first")
+                raise InputError(f"{name} has an infinite label at row {i}; labels must be finite")
+        uniq, codes = np.unique(arr, return_inverse=True)
+        return tuple(uniq.tolist()), codes.reshape(-1).astype(np.intp)
     values = arr.tolist()
     for i, v in enumerate(values):
         if _is_missing(v):
