@@ -233,11 +233,11 @@ def test_newton_sketch_reaches_the_exact_newton_optimum(monkeypatch):
 def _exact_path(monkeypatch):
     """Switch off every large-problem shortcut: float32 step Hessians, the subsample warm
     start, Hessian reuse, the Newton sketch and the carried linear predictor."""
-    import lintools.solvers as solvers_module
+    import lintools.solvers.problem as problem_module
     import lintools.solvers.newton as newton_module
 
-    monkeypatch.setattr(solvers_module, "SINGLE_MIN_ROWS", np.inf)
-    monkeypatch.setattr(solvers_module, "WARM_MIN_ROWS", np.inf)
+    monkeypatch.setattr(problem_module, "SINGLE_MIN_ROWS", np.inf)
+    monkeypatch.setattr(problem_module, "WARM_MIN_ROWS", np.inf)
     monkeypatch.setattr(newton_module, "SKETCH_UNTIL", np.inf)
     monkeypatch.setattr(newton_module, "CARRY_ABOVE", np.inf)
 
@@ -280,12 +280,12 @@ def test_float32_steps_are_refused_for_an_ill_conditioned_design(monkeypatch):
     # source: scikit-learn's copy of the Wisconsin breast-cancer data (UCI), whose columns
     # are nearly collinear (radius, perimeter, area); the test of conditioning must send
     # the steps back to float64, and the fit must equal the float64 one
-    import lintools.solvers as solvers_module
+    import lintools.solvers.problem as problem_module
     from sklearn.datasets import load_breast_cancer
 
     data = load_breast_cancer()
     X, y = data.data, data.target
-    monkeypatch.setattr(solvers_module, "SINGLE_MIN_ROWS", 0)
+    monkeypatch.setattr(problem_module, "SINGLE_MIN_ROWS", 0)
     seen = []
     real = LinearModelProblem.step_hessian
     monkeypatch.setattr(LinearModelProblem, "step_hessian",

@@ -28,7 +28,7 @@ from typing import Any, Callable
 
 import numpy as np
 
-from . import Evaluation, IterationRecord, SingularMatrixError, SolverResult, finish
+from .base import Evaluation, IterationRecord, SingularMatrixError, SolverResult, finish
 from .newton import converged_message, limit_message, stalled_message
 
 __all__ = ["accelerated_gradient"]

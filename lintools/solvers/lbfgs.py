@@ -32,7 +32,7 @@ from typing import Any, Callable
 
 import numpy as np
 
-from . import EPS, Evaluation, IterationRecord, SingularMatrixError, SolverResult, finish
+from .base import EPS, Evaluation, IterationRecord, SingularMatrixError, SolverResult, finish
 from .newton import converged_message, limit_message, stalled_message
 
 __all__ = ["lbfgs", "wolfe_search"]

@@ -40,7 +40,7 @@ from typing import Any, Callable
 
 import numpy as np
 
-from . import Evaluation, IterationRecord, SingularMatrixError, SolverResult, cholesky, finish, solve_factored
+from .base import Evaluation, IterationRecord, SingularMatrixError, SolverResult, cholesky, finish, solve_factored
 
 __all__ = ["newton"]
 
