@@ -59,7 +59,8 @@ from .solvers import (
     SolverResult,
     solve,
 )
-from .solvers.newton import converged_message, limit_message, newton
+from .solvers.base import converged_message, limit_message
+from .solvers.newton import newton
 
 __all__ = ["logistic"]
 

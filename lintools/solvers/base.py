@@ -3,14 +3,15 @@
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Any
+from typing import Any, Callable
 
 import numpy as np
 
 from ..linalg import solve_lower, solve_upper
 
 __all__ = ["EPS", "PIVOT_TOLERANCE", "IterationRecord", "SolverResult", "Evaluation", "finish",
-           "SingularMatrixError", "NonFiniteDesign", "cholesky", "solve_spd", "solve_factored", "inverse_spd"]
+           "SingularMatrixError", "NonFiniteDesign", "cholesky", "solve_spd", "solve_factored", "inverse_spd",
+           "converged_message", "limit_message", "stalled_message", "stop_before_step", "report_step"]
 
 EPS = float(np.finfo(float).eps)
 #: A Jacobi-scaled Cholesky pivot at or below this counts as singular.
@@ -160,3 +161,49 @@ def inverse_spd(H: np.ndarray) -> np.ndarray:
     Li = solve_lower(L, np.eye(H.shape[0]))
     V = (Li.T @ Li) / d[:, None] / d[None, :]
     return 0.5 * (V + V.T)
+
+
+# ---- what the three solvers share in their loops ----------------------------------------
+def converged_message(name: str, it: int, gnorm: float, tol: float) -> str:
+    return f"{name}: converged in {it} iteration(s); max |gradient| {gnorm:.3g} <= tol {tol:.3g}"
+
+
+def limit_message(name: str, it: int, gnorm: float, tol: float) -> str:
+    advice = "raise max_iter" if name == "newton" else "raise max_iter or choose solver='newton'"
+    return (
+        f"{name}: stopped at the iteration limit ({it}) with max |gradient| {gnorm:.3g} > tol "
+        f"{tol:.3g}; NOT converged: {advice}"
+    )
+
+
+def stalled_message(name: str, it: int, gnorm: float, tol: float) -> str:
+    return (
+        f"{name}: stalled after {it} iteration(s): the objective no longer decreases beyond "
+        f"rounding while max |gradient| is {gnorm:.3g} > tol {tol:.3g}; NOT converged: tol is "
+        "probably below what float64 rounding allows for this problem (loosen tol, or "
+        "rescale the columns)"
+    )
+
+
+def stop_before_step(name: str, it: int, gnorm: float, tol: float, max_iter: int) -> tuple[str, str] | None:
+    """``(status, message)`` when a solver stops before its next step (the gradient is
+    within ``tol``, or ``max_iter`` iterations are done), else None."""
+    if gnorm <= tol:
+        return "converged", converged_message(name, it, gnorm, tol)
+    if it >= max_iter:
+        return "iteration_limit", limit_message(name, it, gnorm, tol)
+    return None
+
+
+def report_step(problem: Any, it: int, z_old: np.ndarray, z: np.ndarray, ev: Evaluation, tol: float,
+                on_iteration: Callable[[IterationRecord], Any] | None,
+                monitor: Callable[[np.ndarray, Evaluation], str | None] | None) -> str | None:
+    """Hand iteration ``it`` (now at ``z``, from ``z_old``) to ``on_iteration`` with its
+    largest parameter move in the caller's coordinates, then ask ``monitor`` (while not
+    converged); returns the monitor's alarm, if it raised one."""
+    if on_iteration is not None:
+        step = float(np.max(np.abs(problem.to_original(z) - problem.to_original(z_old)))) if z.size else 0.0
+        on_iteration(IterationRecord(it, ev.value, ev.gradient_norm, step))
+    if monitor is not None and ev.gradient_norm > tol:
+        return monitor(z, ev) or None
+    return None

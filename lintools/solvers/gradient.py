@@ -28,8 +28,8 @@ from typing import Any, Callable
 
 import numpy as np
 
-from .base import Evaluation, IterationRecord, SingularMatrixError, SolverResult, finish
-from .newton import converged_message, limit_message, stalled_message
+from .base import (Evaluation, IterationRecord, SingularMatrixError, SolverResult, finish, report_step,
+                   stalled_message, stop_before_step)
 
 __all__ = ["accelerated_gradient"]
 
@@ -61,10 +61,9 @@ def accelerated_gradient(
 
     while True:
         gnorm = ev.gradient_norm
-        if gnorm <= tol:
-            return done("converged", converged_message(name, it, gnorm, tol))
-        if it >= max_iter:
-            return done("iteration_limit", limit_message(name, it, gnorm, tol))
+        stop = stop_before_step(name, it, gnorm, tol, max_iter)
+        if stop:
+            return done(*stop)
         g = ev.gradient
         gg = float(g @ g)
         line = problem.line(y, -g)
@@ -89,16 +88,12 @@ def accelerated_gradient(
         except SingularMatrixError as exc:
             return done("singular", f"{name}: {exc}")
         it += 1
-        step = float(np.max(np.abs(problem.to_original(y_new) - problem.to_original(y)))) if y.size else 0.0
         improved = change < 0 or ev_new.gradient_norm < best_g
         best_g = min(best_g, ev_new.gradient_norm)
         stall = 0 if improved else stall + 1
-        y, ev = y_new, ev_new
-        if on_iteration is not None:
-            on_iteration(IterationRecord(it, ev.value, ev.gradient_norm, step))
-        if monitor is not None and ev.gradient_norm > tol:
-            why = monitor(y, ev)
-            if why:
-                return done("diverging", f"{name}: {why}")
+        y_old, y, ev = y, y_new, ev_new
+        why = report_step(problem, it, y_old, y, ev, tol, on_iteration, monitor)
+        if why:
+            return done("diverging", f"{name}: {why}")
         if stall >= PATIENCE and ev.gradient_norm > tol:
             return done("stalled", stalled_message(name, it, ev.gradient_norm, tol))

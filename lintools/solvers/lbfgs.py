@@ -32,8 +32,8 @@ from typing import Any, Callable
 
 import numpy as np
 
-from .base import EPS, Evaluation, IterationRecord, SingularMatrixError, SolverResult, finish
-from .newton import converged_message, limit_message, stalled_message
+from .base import (EPS, Evaluation, IterationRecord, SingularMatrixError, SolverResult, finish, report_step,
+                   stalled_message, stop_before_step)
 
 __all__ = ["lbfgs", "wolfe_search"]
 
@@ -146,10 +146,9 @@ def lbfgs(
 
     while True:
         gnorm = ev.gradient_norm
-        if gnorm <= tol:
-            return done("converged", converged_message(name, it, gnorm, tol))
-        if it >= max_iter:
-            return done("iteration_limit", limit_message(name, it, gnorm, tol))
+        stop = stop_before_step(name, it, gnorm, tol, max_iter)
+        if stop:
+            return done(*stop)
         g = ev.gradient
         if S:
             d, t0 = _two_loop(g, S, Y), 1.0
@@ -180,13 +179,9 @@ def lbfgs(
         decreased = ft < 0 or ev_new.gradient_norm < best
         best = min(best, ev_new.gradient_norm)
         stall = 0 if decreased else stall + 1
-        step = float(np.max(np.abs(problem.to_original(z_new) - problem.to_original(z)))) if z.size else 0.0
-        z, ev = z_new, ev_new
-        if on_iteration is not None:
-            on_iteration(IterationRecord(it, ev.value, ev.gradient_norm, step))
-        if monitor is not None and ev.gradient_norm > tol:
-            why = monitor(z, ev)
-            if why:
-                return done("diverging", f"{name}: {why}")
+        z_old, z, ev = z, z_new, ev_new
+        why = report_step(problem, it, z_old, z, ev, tol, on_iteration, monitor)
+        if why:
+            return done("diverging", f"{name}: {why}")
         if stall >= PATIENCE and ev.gradient_norm > tol:
             return done("stalled", stalled_message(name, it, ev.gradient_norm, tol))

@@ -40,7 +40,8 @@ from typing import Any, Callable
 
 import numpy as np
 
-from .base import Evaluation, IterationRecord, SingularMatrixError, SolverResult, cholesky, finish, solve_factored
+from .base import (Evaluation, IterationRecord, SingularMatrixError, SolverResult, cholesky, finish, report_step,
+                   solve_factored, stalled_message, stop_before_step)
 
 __all__ = ["newton"]
 
@@ -62,27 +63,6 @@ REUSE_RATIO = 1e-2
 #: a pass over X) while the gradient is above this multiple of tol; closer in, the next
 #: point is likely the answer, whose evaluation must be fresh, so it is formed afresh.
 CARRY_ABOVE = 1e4
-
-
-def converged_message(name: str, it: int, gnorm: float, tol: float) -> str:
-    return f"{name}: converged in {it} iteration(s); max |gradient| {gnorm:.3g} <= tol {tol:.3g}"
-
-
-def limit_message(name: str, it: int, gnorm: float, tol: float) -> str:
-    advice = "raise max_iter" if name == "newton" else "raise max_iter or choose solver='newton'"
-    return (
-        f"{name}: stopped at the iteration limit ({it}) with max |gradient| {gnorm:.3g} > tol "
-        f"{tol:.3g}; NOT converged: {advice}"
-    )
-
-
-def stalled_message(name: str, it: int, gnorm: float, tol: float) -> str:
-    return (
-        f"{name}: stalled after {it} iteration(s): the objective no longer decreases beyond "
-        f"rounding while max |gradient| is {gnorm:.3g} > tol {tol:.3g}; NOT converged: tol is "
-        "probably below what float64 rounding allows for this problem (loosen tol, or "
-        "rescale the columns)"
-    )
 
 
 def newton(
@@ -113,10 +93,9 @@ def newton(
         if gnorm <= tol and not ev.fresh:
             ev = problem.evaluate(z, fresh=True)  # converged on a carried-forward eta: check afresh
             gnorm = ev.gradient_norm
-        if gnorm <= tol:
-            return finish(name, z, ev, it, "converged", converged_message(name, it, gnorm, tol), problem)
-        if it >= max_iter:
-            return finish(name, z, ev, it, "iteration_limit", limit_message(name, it, gnorm, tol), problem)
+        stop = stop_before_step(name, it, gnorm, tol, max_iter)
+        if stop:
+            return finish(name, z, ev, it, *stop, problem)
         reused = factors is not None
         sketched = False
         try:
@@ -165,17 +144,13 @@ def newton(
             factors = None
         if accepted:
             it += 1
-            step = float(np.max(np.abs(problem.to_original(z_new) - problem.to_original(z)))) if z.size else 0.0
             # progress: the gradient halves (as it must near the optimum) or the objective
             # falls by more than its own rounding; anything else, three times, is a stall
             decreased = ev_new.gradient_norm < 0.5 * gnorm or change < -ROUNDING * abs(ev.value)
             stall = 0 if decreased else stall + 1
-            z, ev = z_new, ev_new
-            if on_iteration is not None:
-                on_iteration(IterationRecord(it, ev.value, ev.gradient_norm, step))
-            if monitor is not None and ev.gradient_norm > tol:
-                why = monitor(z, ev)
-                if why:
-                    return finish(name, z, ev, it, "diverging", f"{name}: {why}", problem)
+            z_old, z, ev = z, z_new, ev_new
+            why = report_step(problem, it, z_old, z, ev, tol, on_iteration, monitor)
+            if why:
+                return finish(name, z, ev, it, "diverging", f"{name}: {why}", problem)
         if stall >= STALL_LIMIT and ev.gradient_norm > tol:
             return finish(name, z, ev, it, "stalled", stalled_message(name, it, ev.gradient_norm, tol), problem)
