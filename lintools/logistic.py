@@ -251,6 +251,8 @@ class _Watch:
 
         def part(lo: int, hi: int) -> tuple[int, float]:
             lin = eta[lo:hi] if offset is None else eta[lo:hi] - offset[lo:hi]
+            if hi == lo or (lin.max() <= limit and lin.min() >= -limit):
+                return 0, 0.0  # no row beyond the limit on either side (the usual case)
             yb = y[lo:hi]
             hit = live[lo:hi] & (((lin > limit) & (yb == m[lo:hi])) | ((lin < -limit) & (yb == 0)))
             return int(hit.sum()), float(np.max(np.abs(lin[hit]))) if hit.any() else 0.0
