@@ -27,7 +27,10 @@ size, so no (n, K) temporary beyond the results is formed; the results of the la
 (the probabilities of the free columns and the complement of each row's largest class)
 are kept for the curvature and the line search at the same linear predictor, and the
 (n, K', K') curvature is formed only on request (:meth:`MultinomialLoss.pair_weights`
-gives its distinct entries one block of rows at a time).
+gives its distinct entries one block of rows at a time).  Inside a fit the value pass and
+the line-search changes run on the row threads (:mod:`lintools._threads`) in chunks of
+``THREAD_ROWS`` rows, each thread with its own buffers for the pass; the chunk results
+are added in row order, so the digits do not depend on the number of threads.
 
 References
 ----------
@@ -39,15 +42,21 @@ Statistical Mathematics 44, 197-200.
 
 from __future__ import annotations
 
+import math
 from typing import Any
 
 import numpy as np
+
+from ._threads import PassBuffers, add_up, for_rows
 
 __all__ = ["MultinomialLoss", "softmax_parts", "ROWS"]
 
 
 #: Rows per block of the elementwise passes: a block's (K, ROWS) buffers stay in cache.
 ROWS = 8192
+#: Rows per chunk of the passes on the row threads (value and probabilities, line-search
+#: changes): each thread holds its own buffers, half the size of a serial pass's.
+THREAD_ROWS = 4096
 #: Entries per chunk of the gather/scatter of the own-class entries.
 _CHUNK = 1 << 13
 
@@ -226,28 +235,37 @@ class MultinomialLoss:
         first, w = self._first, self.weights
         P, top = np.empty((Kf, n)), np.empty(n)
         G = np.empty((Kf, n)) if gradient else None
-        value = 0.0
-        finite = True
-        blk = S = Et = Pb = None
-        for lo, hi, blk in self._blocks(n):
+        blocks = PassBuffers(lambda: _Block(self.K, max(1, min(THREAD_ROWS, n))))  # one per thread
+
+        def part(lo: int, hi: int) -> tuple[float, bool]:
+            blk = blocks.get()
             Et = E2[lo:hi].T
             S, mx = blk.shifted(Et, first)
-            finite = finite and bool(np.isfinite(np.add.reduce(mx)) and np.isfinite(np.min(Et)))
+            finite = bool(np.isfinite(np.add.reduce(mx)) and np.isfinite(np.min(Et)))
             d_own = blk.own(S, self.codes[lo:hi])  # E_own - max <= 0
             total, rest = blk.normalise(S)
             terms = np.log1p(rest)
             terms -= d_own
-            value += float(w[lo:hi] @ terms)
             Pb = P[:, lo:hi]
             np.divide(S[first:], total, out=Pb)
             np.divide(rest, total, out=top[lo:hi])
             if G is not None:
                 np.multiply(Pb, w[lo:hi], out=G[:, lo:hi])
-        del blk, S, Et, Pb  # the block buffers go before the own-class entries are written
+            return float(w[lo:hi] @ terms), finite
+
+        parts = for_rows(part, n, THREAD_ROWS)
+        value = add_up([q[0] for q in parts], 0.0)  # in row order, as one running sum
+        finite = all(q[1] for q in parts)
+        blocks.release()  # the block buffers go before the own-class entries are written
         if G is not None:
             self._fix_own(P, top, G)
         self._cache = (eta, value, P, top, finite)
         return value, G
+
+    def prepare(self, eta: np.ndarray) -> None:
+        """Make the pass at ``eta`` now, so that blocks of it can then be read on several
+        threads at once (:meth:`pair_weights`)."""
+        self._kept(eta)
 
     def _stats(self, eta: np.ndarray) -> tuple[float, np.ndarray, np.ndarray]:
         """``(value, P, top)`` at ``eta``: the kept ones when the last pass was at ``eta``."""
@@ -328,16 +346,15 @@ class MultinomialLoss:
         E2, D2 = _as_2d(eta), _as_2d(direction)
         n, Kf = E2.shape
         w = self.weights
-        change = 0.0
-        D = np.empty(Kf * min(max(n, 1), ROWS))
-        T = np.empty_like(D)
-        with np.errstate(over="ignore", invalid="ignore"):
-            for lo in range(0, n, ROWS):
-                hi = min(n, lo + ROWS)
-                nb = hi - lo
-                Db = D[: Kf * nb].reshape(Kf, nb)
-                Tb = T[: Kf * nb].reshape(Kf, nb)
-                Et = E2[lo:hi].T
+        m = Kf * min(max(n, 1), THREAD_ROWS)
+        buffers = PassBuffers(lambda: (np.empty(m), np.empty(m)))  # one pair per thread
+
+        def part(lo: int, hi: int) -> float:
+            nb = hi - lo
+            D, T = buffers.get()
+            Db, Tb = D[: Kf * nb].reshape(Kf, nb), T[: Kf * nb].reshape(Kf, nb)
+            Et = E2[lo:hi].T
+            with np.errstate(over="ignore", invalid="ignore"):  # (per thread)
                 if t == 1.0:
                     np.copyto(Db, D2[lo:hi].T)
                 else:
@@ -349,7 +366,7 @@ class MultinomialLoss:
                 if check_finite and not (eta_finite and small.all()):
                     np.add(Et, Db, out=Tb)
                     if not (np.isfinite(Tb.max()) and np.isfinite(Tb.min())):
-                        return float("inf")
+                        return math.inf
                 np.expm1(Db, out=Tb)
                 Tb *= P[:, lo:hi]
                 ch = np.log1p(np.add.reduce(Tb, axis=0))
@@ -361,8 +378,12 @@ class MultinomialLoss:
                     Ef = E2[lo:hi][far]
                     c = self.codes[lo:hi][far]
                     ch[far] = self._row_terms(Ef + Db[:, far].T, c) - self._row_terms(Ef, c)
-                change += float(w[lo:hi] @ ch)
-        return change
+                return float(w[lo:hi] @ ch)
+
+        parts = for_rows(part, n, THREAD_ROWS)
+        if any(c == math.inf for c in parts):
+            return math.inf  # a trial that overflowed somewhere
+        return float(add_up(parts, 0.0))  # in row order, as one running sum
 
     def mean(self, eta: np.ndarray) -> np.ndarray:
         """Class probabilities, (n, K)."""

@@ -42,7 +42,7 @@ from typing import Any, Callable, Iterator
 import numpy as np
 
 __all__ = ["ELEMENT_CHUNK", "session", "whole_blas", "with_row_threads", "threads", "for_rows", "add_up",
-           "scratch"]
+           "scratch", "PassBuffers"]
 
 #: Entries per chunk of an elementwise pass over the rows (128 KB of float64 per array).
 ELEMENT_CHUNK = 1 << 14
@@ -262,6 +262,28 @@ def scratch(name: str, shape: tuple[int, ...], dtype: Any = np.float64) -> np.nd
         if buf.nbytes <= _KEEP_BYTES:
             store[key] = buf
     return buf[: shape[0]]
+
+
+class PassBuffers:
+    """Buffers of one pass over the rows: one set per thread that works on the pass, made
+    by ``make()`` on that thread's first chunk and freed with the pass (unlike
+    :func:`scratch`, nothing stays behind, so a pass on two threads holds two sets at the
+    most: for kernels whose buffers are large beside a small design)."""
+
+    def __init__(self, make: Callable[[], Any]) -> None:
+        self._make, self._sets = make, {}
+
+    def get(self) -> Any:
+        """The calling thread's set."""
+        key = threading.get_ident()
+        found = self._sets.get(key)
+        if found is None:
+            found = self._sets[key] = self._make()
+        return found
+
+    def release(self) -> None:
+        """Free the sets now (the pass is over)."""
+        self._sets.clear()
 
 
 def with_row_threads(fn: Callable[..., Any]) -> Callable[..., Any]:

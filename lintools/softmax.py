@@ -31,6 +31,7 @@ import numpy as np
 from ._errors import InputError, LintoolsError, SeparationError
 from ._multinomial import ROWS, MultinomialLoss
 from ._records import SoftmaxFit
+from ._threads import with_row_threads
 from ._validate import as_matrix, as_offset, as_weights, check_names
 from .inference import likelihood_fields
 from .logistic import _Watch as _BinaryWatch
@@ -150,6 +151,7 @@ def _intercept_subspace(problem: LinearModelProblem) -> np.ndarray:
     return E
 
 
+@with_row_threads
 def softmax(
     X: Any,
     y: Any,

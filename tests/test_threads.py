@@ -228,3 +228,34 @@ def test_a_forked_child_can_fit_after_the_parent_did(monkeypatch):
     child.join(timeout=60)
     assert child.exitcode == 0
     np.testing.assert_array_equal(np.array(got), parent)
+
+
+def _classes(n: int = 70_000, p: int = 5, K: int = 4, seed: int = 31):
+    rng = np.random.default_rng(seed)
+    X = rng.normal(size=(n, p)) * np.linspace(0.5, 2.0, p) + np.linspace(-0.5, 0.5, p)
+    E = X @ rng.normal(scale=0.4, size=(p, K)) + np.linspace(-0.3, 0.3, K)
+    P = np.exp(E - E.max(axis=1, keepdims=True))
+    P /= P.sum(axis=1, keepdims=True)
+    y = (rng.uniform(size=(n, 1)) > np.cumsum(P, axis=1)).sum(axis=1)
+    return X, y
+
+
+def test_threaded_softmax_equals_serial_and_statsmodels(monkeypatch):
+    X, y = _classes()  # 70k rows: the warm start, sketch and float32 steps all run
+    fits = {}
+    for count in ("1", "2"):
+        monkeypatch.setenv("LINTOOLS_THREADS", count)
+        fits[count] = (lt.softmax(X, y, tol=1e-9), lt.softmax(X, y, l2=3.0, reference=None, tol=1e-9))
+    for one, two in zip(fits["1"], fits["2"]):
+        # fixed chunks summed in a fixed order, the BLAS at one thread either way: the same bits
+        np.testing.assert_array_equal(two.coefficients, one.coefficients)
+        np.testing.assert_array_equal(two.intercept, one.intercept)
+        np.testing.assert_array_equal(two.covariance, one.covariance)
+        assert two.log_likelihood == one.log_likelihood
+    # oracle: statsmodels MNLogit (Newton, tight tolerance), coefficients against the first class
+    two = fits["2"][0]
+    ref = sm.MNLogit(y, sm.add_constant(X)).fit(disp=0, method="newton", tol=1e-12, maxiter=100)
+    params = np.asarray(ref.params)
+    np.testing.assert_allclose(two.intercept[1:], params[0], rtol=1e-8, atol=1e-11)
+    np.testing.assert_allclose(two.coefficients[:, 1:], params[1:], rtol=1e-8, atol=1e-11)
+    np.testing.assert_allclose(two.standard_errors[:, 1:], np.asarray(ref.bse)[1:], rtol=1e-7)

@@ -29,7 +29,7 @@ import math
 
 import numpy as np
 
-from .._threads import add_up, for_rows, scratch
+from .._threads import PassBuffers, add_up, for_rows, scratch
 from ..linalg import transposed_block
 
 __all__ = ["column_moments", "weighted_gram", "uncentred_ok", "UNCENTRED_LIMIT"]
@@ -58,9 +58,10 @@ def column_moments(X: np.ndarray, v: np.ndarray, rows: int, centre: bool) -> tup
     """
     n, p = X.shape
     total = float(v.sum())
+    squares = PassBuffers(lambda: np.empty((min(rows, n), p)))  # a one-off pass: nothing kept
 
     def part(lo: int, hi: int) -> tuple[np.ndarray, np.ndarray]:
-        D = scratch("moments", (hi - lo, p))
+        D = squares.get()[: hi - lo]
         with np.errstate(over="ignore", invalid="ignore"):
             np.multiply(X[lo:hi], X[lo:hi], out=D)
             return transposed_block(v[lo:hi], X[lo:hi]), transposed_block(v[lo:hi], D)

@@ -22,10 +22,13 @@ from typing import Any
 
 import numpy as np
 
+from .._threads import PassBuffers, add_up, for_rows
+
 __all__ = ["multi_output_information", "PairWeights"]
 
-#: Rows per block: the block's wide right-hand side ``[W_00 A, W_01 A, ...]`` stays in cache.
-_CACHE_BYTES = 1 << 21
+#: Rows per block: the block's wide right-hand side ``[W_00 A, W_01 A, ...]`` stays in cache
+#: (one such buffer per row thread).
+_CACHE_BYTES = 1 << 20
 
 
 class PairWeights:
@@ -40,6 +43,12 @@ class PairWeights:
     def pair_weights(self, block: slice, out: np.ndarray) -> np.ndarray:
         rows = block if self.rows is None else self.rows[block]
         return self.loss.pair_weights(self.eta, rows, out=out)
+
+    def prepare(self) -> None:
+        """Form the loss's pass at ``eta`` now (the blocks are then read on several threads)."""
+        prepare = getattr(self.loss, "prepare", None)
+        if prepare is not None:
+            prepare(self.eta)
 
     def max_weight(self) -> float:
         v = self.loss.row_weights()
@@ -73,19 +82,24 @@ def multi_output_information(problem: Any, W: Any, single: bool = False) -> np.n
             top = float(np.max(np.abs(W))) if W.size else 0.0
         if not (top > 0 and math.isfinite(top)):
             return multi_output_information(problem, W, False)
-    # cache-sized blocks, and at most an eighth of the rows (the buffer stays small beside X)
+    # cache-sized blocks, and at most an eighth of the rows (the buffers stay small beside X)
     rows = max(64, min(_CACHE_BYTES // (np.dtype(dtype).itemsize * p1 * npairs), -(-n // 8)))
     m = max(1, min(rows, n))
-    At = np.empty((p1, m))  # float64 standardised rows, transposed
-    At1 = np.empty((p1, m), dtype=dtype) if single else At
-    Rt = np.empty((npairs, p1, m), dtype=dtype)
-    Wp = np.empty((npairs, m))
-    Wp1 = np.empty((npairs, m), dtype=dtype) if single else Wp
-    G = np.zeros((npairs * p1, p1))
     c, inv_s = problem.c[:, None], (1.0 / problem.s)[:, None]
     X = problem.X
-    for lo in range(0, n, rows):
-        hi = min(n, lo + rows)
+    if by_pairs:
+        W.prepare()
+
+    def make() -> tuple:
+        # float64 standardised rows (transposed), the weights and the weighted copies
+        At, Wp = np.empty((p1, m)), np.empty((npairs, m))
+        return (At, np.empty((p1, m), dtype=dtype) if single else At, np.empty((npairs, p1, m), dtype=dtype),
+                Wp, np.empty((npairs, m), dtype=dtype) if single else Wp)
+
+    buffers = PassBuffers(make)  # one set per thread, freed with the pass
+
+    def part(lo: int, hi: int) -> np.ndarray:
+        At, At1, Rt, Wp, Wp1 = buffers.get()
         nb = hi - lo
         A = At[:, :nb]
         if off:
@@ -106,8 +120,10 @@ def multi_output_information(problem: Any, W: Any, single: bool = False) -> np.n
             A = At1[:, :nb]
         Rb = Rt[:, :, :nb]
         np.multiply(A[None, :, :], Wb[:, None, :], out=Rb)
-        G += Rb.reshape(npairs * p1, nb) @ A.T
-    G = G.reshape(npairs, p1, p1)
+        return Rb.reshape(npairs * p1, nb) @ A.T
+
+    # the blocks' products added in row order, as one running sum would add them
+    G = add_up(for_rows(part, n, rows), np.zeros((npairs * p1, p1))).reshape(npairs, p1, p1)
     H = np.zeros((p1, K, p1, K))
     for j, (k, mm) in enumerate(pairs):
         H[:, k, :, mm] = G[j].T

@@ -323,11 +323,7 @@ class LinearModelProblem:
         if self.K > 1:
             if with_offset:
                 self._forget()
-            # stored column by column ((K, n) transposed): the loss reads it in row blocks
-            e = (beta.T @ self.X.T).T
-            e += b
-            if with_offset and self.offset is not None:
-                e += self.offset
+            e = self._products(beta, b, self.offset if with_offset else None)
         else:
             e = self._product(beta, b, self.offset if with_offset else None)
         if with_offset:
@@ -495,12 +491,31 @@ class LinearModelProblem:
         for_rows(part, self.n, self.block_rows)
         return e
 
+    def _products(self, B: np.ndarray, b: np.ndarray, offset: np.ndarray | None) -> np.ndarray:
+        """``X B + 1 b' (+ offset)`` for K outputs, (n, K) stored column by column (the
+        transpose of a (K, n) array: the loss reads it in row blocks); in chunks of rows on
+        the row threads."""
+        X, Et = self.X, np.empty((self.K, self.n))
+
+        def part(lo: int, hi: int) -> None:
+            out = Et[:, lo:hi]
+            np.matmul(B.T, X[lo:hi].T, out=out)
+            out += b[:, None]
+            if offset is not None:
+                out += offset[lo:hi].T
+
+        for_rows(part, self.n, self.block_rows)
+        return Et.T
+
     def _transposed_product(self, r: Any) -> np.ndarray:
-        """``X' r``; for one output summed over row blocks of about 6 MB in their order, on
-        the row threads.  Each block is NumPy's own sum of products (``einsum``), measured
-        twice as fast as the BLAS matrix-vector product on these long, narrow blocks."""
-        if self.K != 1 or self.n <= 2 * self.block_rows:
+        """``X' r``, summed over row blocks of about 6 MB in their order, on the row threads.
+        For one output each block is NumPy's own sum of products (``einsum``), measured
+        twice as fast as the BLAS matrix-vector product on these long, narrow blocks; for
+        K outputs (``r`` is (n, K)) it is one BLAS product."""
+        if self.n <= 2 * self.block_rows:
             return self.X.T @ r
+        if self.K != 1:
+            return add_up(for_rows(lambda lo, hi: self.X[lo:hi].T @ r[lo:hi], self.n, self.block_rows))
         return add_up(for_rows(lambda lo, hi: transposed_block(r[lo:hi], self.X[lo:hi]), self.n, self.block_rows))
 
     def _deferred_value(self, z: np.ndarray, eta: Any) -> Callable[[], float]:
