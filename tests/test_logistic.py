@@ -150,6 +150,25 @@ def test_an_unattainable_tol_is_reported_as_a_stall_with_an_attainable_one():
     assert again.convergence.converged and again.convergence.gradient_norm <= suggested
 
 
+def test_large_fit_with_an_offset_matches_statsmodels_glm():
+    # regression: with n >= 50 000 the null model of a fit with an offset (intercept only, no
+    # columns) took the Newton-sketch path and crashed on its empty design
+    # source: statsmodels GLM Binomial with the same offset, and its intercept-only fit for
+    # the null deviance
+    rng = np.random.default_rng(14)
+    n = 60_000
+    X = rng.normal(size=(n, 3))
+    o = 0.3 * rng.normal(size=n)
+    y = ((X @ [0.6, -0.4, 0.2] + o + rng.logistic(size=n)) > 0).astype(float)
+    fit = logistic(X, y, offset=o, tol=1e-10)
+    ref = sm.GLM(y, sm.add_constant(X), family=sm.families.Binomial(), offset=o).fit(tol=1e-14)
+    null = sm.GLM(y, np.ones((n, 1)), family=sm.families.Binomial(), offset=o).fit(tol=1e-14)
+    np.testing.assert_allclose(_theta(fit), ref.params, rtol=1e-9)
+    np.testing.assert_allclose(_se(fit), ref.bse, rtol=1e-8)
+    assert fit.deviance == pytest.approx(ref.deviance, rel=1e-11)
+    assert fit.null_deviance == pytest.approx(null.deviance, rel=1e-11)
+
+
 def test_offsets_and_case_weights_match_statsmodels_glm():
     # source: statsmodels GLM Binomial with offset and freq_weights (case weights)
     rng = np.random.default_rng(4)

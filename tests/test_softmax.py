@@ -167,6 +167,26 @@ def test_two_classes_with_an_offset_equal_the_binomial_glm_with_the_offset_diffe
     assert s.log_likelihood == pytest.approx(ref.llf, rel=1e-10)
 
 
+def test_large_two_class_fit_with_offsets_matches_the_binomial_glm():
+    # regression: with n >= 50 000 the null model of a fit with offsets (intercepts only, no
+    # columns) took the Newton-sketch path and crashed on its empty design
+    # source: statsmodels GLM (binomial, logit link) with offset o_1 - o_0, as above, and
+    # its intercept-only fit for the null deviance
+    rng = np.random.default_rng(15)
+    n = 55_000
+    X = rng.normal(size=(n, 2))
+    o = 0.3 * rng.normal(size=(n, 2))
+    y = ((X @ [0.5, -0.3] + o[:, 1] - o[:, 0] + rng.logistic(size=n)) > 0).astype(int)
+    s = softmax(X, y, offset=o, tol=1e-10)
+    ref = sm.GLM(y, sm.add_constant(X), family=sm.families.Binomial(), offset=o[:, 1] - o[:, 0]).fit(tol=1e-14)
+    null = sm.GLM(y, np.ones((n, 1)), family=sm.families.Binomial(), offset=o[:, 1] - o[:, 0]).fit(tol=1e-14)
+    np.testing.assert_allclose(s.coefficients[:, 1], ref.params[1:], rtol=1e-9)
+    assert s.intercept[1] == pytest.approx(ref.params[0], rel=1e-9)
+    np.testing.assert_allclose(s.standard_errors[:, 1], ref.bse[1:], rtol=1e-8)
+    assert s.deviance == pytest.approx(ref.deviance, rel=1e-11)
+    assert s.null_deviance == pytest.approx(null.deviance, rel=1e-11)
+
+
 def test_offset_equal_to_a_known_predictor_gives_zero_coefficients(anes):
     # source: the offset enters the linear predictor additively (common practice)
     X, y = anes

@@ -32,7 +32,8 @@ def sample_rows(n: int, m: int, seed: int) -> np.ndarray:
 def take_rows(X: np.ndarray, rows: np.ndarray) -> np.ndarray:
     """``X[rows]``; copied as whole runs when X is C-ordered and ``rows`` are whole runs
     (as :func:`sample_rows` gives them), else by plain indexing."""
-    if X.flags.c_contiguous and rows.size % SAMPLE_RUN == 0 and X.shape[0] >= SAMPLE_RUN:
+    if (X.flags.c_contiguous and X.ndim == 2 and X.shape[1] > 0 and rows.size % SAMPLE_RUN == 0
+            and X.shape[0] >= SAMPLE_RUN):
         starts = rows[::SAMPLE_RUN]
         whole = (starts[:, None] + np.arange(SAMPLE_RUN)).ravel()
         if np.all(starts % SAMPLE_RUN == 0) and np.array_equal(whole, rows) and rows[-1] < X.shape[0]:

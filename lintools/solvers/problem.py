@@ -658,11 +658,12 @@ class LinearModelProblem:
         sample of the rows (``sample_rows``: random runs of consecutive rows, a fixed
         seed, copied once, so fits are reproducible), their curvature scaled by the ratio
         of total to sampled row weight.  Cost: ``m / n`` of :meth:`hessian`.
-        Returns None for problems too small to gain from it (``n < SKETCH_MIN_ROWS``) and
+        Returns None for problems too small to gain from it (``n < SKETCH_MIN_ROWS``, or no
+        slopes: an intercept-only model, such as the null model of a fit with an offset) and
         for the Jeffreys penalty.  The solver uses it only while far from the optimum; the
         last iterations and the covariance use the exact Hessian.
         """
-        if self.jeffreys or self.n < SKETCH_MIN_ROWS:
+        if self.jeffreys or self.n < SKETCH_MIN_ROWS or self.p == 0:
             return None
         if self._sketch is not None and self.K > 1 and self._sketch[1].rows32 and not self.single:
             self._sketch = None  # float32 rows were kept for float32 products: keep float64 ones now
