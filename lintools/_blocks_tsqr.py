@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import math
-import warnings
 from typing import Any, Callable, Sequence
 
 import numpy as np
@@ -12,6 +11,7 @@ from . import _distributions as dist
 from ._errors import (
     IllConditionedWarning,
     InputError,
+    warn_caller,
     )
 from ._records import Convergence, LinearFit
 from ._validate import check_names, check_nonnegative
@@ -230,12 +230,11 @@ def least_squares_blocks(
     tss = float(R[:, p] @ R[:, p])  # about the mean with an intercept, about 0 without
     grad = np.concatenate([[-rho] if intercept else [], -gx + lam * beta])
     if sol["cond"] > ILL_CONDITIONED:
-        warnings.warn(
+        warn_caller(
             f"the scaled design is ill-conditioned (condition number {sol['cond']:.3g}); it was solved "
             f"by TSQR with {steps} refinement step(s), but expect only about "
             f"{max(0.0, 16 - math.log10(sol['cond'])):.0f} correct digits",
             IllConditionedWarning,
-            stacklevel=2,
         )
     message = (
         f"solved by TSQR (Householder R factor of each block, reduced pairwise) with {steps} "

@@ -8,6 +8,12 @@ argument, the position (row, column or label) and the remedy.
 
 from __future__ import annotations
 
+import os
+import sys
+import warnings
+
+_PACKAGE = os.path.dirname(os.path.abspath(__file__)) + os.sep
+
 
 class LintoolsError(Exception):
     """Root of every exception raised on purpose by lintools."""
@@ -41,3 +47,12 @@ class IterationLimitWarning(LintoolsWarning):
 
 class IllConditionedWarning(LintoolsWarning):
     """The design is full rank but so ill-conditioned that digits are lost."""
+
+
+def warn_caller(message: str, category: type[Warning]) -> None:
+    """``warnings.warn`` attributed to the first frame outside lintools: the caller's line,
+    however deep in the library (and through the row-thread wrapper) the warning arises."""
+    frame, level = sys._getframe(1), 2
+    while frame is not None and os.path.abspath(frame.f_code.co_filename).startswith(_PACKAGE):
+        frame, level = frame.f_back, level + 1
+    warnings.warn(message, category, stacklevel=level)

@@ -6,13 +6,12 @@ from __future__ import annotations
 
 import math
 import numbers
-import warnings
 from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
 
-from ._errors import InputError, IterationLimitWarning, SeparationError
+from ._errors import InputError, IterationLimitWarning, SeparationError, warn_caller
 from ._outcomes import binary_outcome, case_weights, class_codes, sigmoid, vector_in
 from ._validate import _as_float, _check_finite, as_vector, check_positive_int
 
@@ -199,11 +198,10 @@ def temperature_scaling(
     beta = math.exp(-u)
     g1 = -beta * d1
     if not converged:
-        warnings.warn(
+        warn_caller(
             f"temperature_scaling stopped after {max_iter} iterations before log T settled "
             f"(last step {step:.3g}); raise max_iter",
             IterationLimitWarning,
-            stacklevel=2,
         )
     return TemperatureMap(
         temperature=math.exp(u),

@@ -58,14 +58,13 @@ Technometrics 19, 15-18.
 from __future__ import annotations
 
 import math
-import warnings
 from typing import Any, Sequence
 
 import numpy as np
 
 from . import _distributions as dist
 from . import _gram
-from ._errors import IllConditionedWarning, InputError
+from ._errors import IllConditionedWarning, InputError, warn_caller
 from ._records import Convergence, LinearFit
 from ._threads import whole_blas, with_row_threads
 from ._validate import (
@@ -491,12 +490,11 @@ def _qr_path(Xa, ya, w, lam, intercept, names_t, rank_deficient, covariance, wei
         refine_steps = 0
         s = np.ones(p)
     if full_rank and cond > ILL_CONDITIONED:
-        warnings.warn(
+        warn_caller(
             f"the scaled design is ill-conditioned (condition number {cond:.3g}); it was solved by "
             f"QR with {refine_steps} refinement step(s) in extended precision, but expect only about "
             f"{max(0.0, _EXTENDED_DIGITS - math.log10(cond)):.0f} correct digits",
             IllConditionedWarning,
-            stacklevel=4,
         )
     e = _residuals(Xa, ya, beta, b0)
     rss = float(w @ (e * e))

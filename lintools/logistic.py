@@ -26,12 +26,11 @@ from __future__ import annotations
 
 import math
 import numbers
-import warnings
 from typing import Any, Callable, Sequence
 
 import numpy as np
 
-from ._errors import InputError, IterationLimitWarning, LintoolsError, LintoolsWarning, SeparationError
+from ._errors import InputError, IterationLimitWarning, LintoolsError, LintoolsWarning, SeparationError, warn_caller
 from ._records import Convergence, LogisticFit
 from ._threads import ELEMENT_CHUNK, for_rows, with_row_threads
 from ._validate import (
@@ -530,7 +529,7 @@ def _final_check(res, ev, V, problem, watch, Xa, loss, intercept, names):
 
 
 def convergence_record(res: SolverResult, ev: Evaluation, problem: Any, z: np.ndarray, solver: str,
-                       stacklevel: int = 4, note: str = "") -> Convergence:
+                       note: str = "") -> Convergence:
     """The fit's :class:`Convergence`; warns (our own classes) when the fit did not converge.
 
     A stalled fit's message names an attainable tol when the problem can estimate the
@@ -548,9 +547,9 @@ def convergence_record(res: SolverResult, ev: Evaluation, problem: Any, z: np.nd
         objective=ev.value, solver=solver, message=message,
     )
     if res.status == "iteration_limit":
-        warnings.warn(message, IterationLimitWarning, stacklevel=stacklevel)
+        warn_caller(message, IterationLimitWarning)
     elif not res.converged:
-        warnings.warn(message, LintoolsWarning, stacklevel=stacklevel)
+        warn_caller(message, LintoolsWarning)
     return conv
 
 

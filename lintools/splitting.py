@@ -27,14 +27,13 @@ from __future__ import annotations
 
 import math
 import numbers
-import warnings
 from dataclasses import dataclass
 from fractions import Fraction
 from typing import Any, NamedTuple
 
 import numpy as np
 
-from ._errors import InputError, LintoolsWarning
+from ._errors import InputError, LintoolsWarning, warn_caller
 from ._iterative_stratification import assign_groups, iterative_stratification
 from ._validate import as_labels
 
@@ -212,7 +211,7 @@ def _totals(target: _Target) -> np.ndarray:
     return np.bincount(target.codes, minlength=len(target.classes)).astype(np.int64)
 
 
-def _warn_small(target: _Target, limit: int, what: str, stacklevel: int) -> None:
+def _warn_small(target: _Target, limit: int, what: str) -> None:
     totals = _totals(target)
     small = [c for c in range(totals.size) if 0 < totals[c] < limit]
     if not small:
@@ -222,8 +221,8 @@ def _warn_small(target: _Target, limit: int, what: str, stacklevel: int) -> None
     shown = ", ".join(f"{target.classes[c]!r} ({totals[c]} {unit})" for c in small[:5])
     more = f" and {len(small) - 5} more" if len(small) > 5 else ""
     hint = "; for a continuous target pass continuous_bins=" if target.float_labels else ""
-    warnings.warn(f"y: {len(small)} {noun}(s) with fewer than {limit} {unit} {what}: "
-                  f"{shown}{more}{hint}", SmallClassWarning, stacklevel=stacklevel)
+    warn_caller(f"y: {len(small)} {noun}(s) with fewer than {limit} {unit} {what}: "
+                f"{shown}{more}{hint}", SmallClassWarning)
 
 
 def _group_counts(target: _Target, group_codes: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -377,10 +376,10 @@ def stratified_holdout(
             raise InputError("y: no class has two or more rows, so nothing can be held out "
                              "while keeping every class in training; merge rare classes")
         where = "stay in training" if group_codes is None else "are aimed at training"
-        _warn_small(target, 2, where, stacklevel=3)
+        _warn_small(target, 2, where)
     else:
         t = _test_counts(totals, frac, adjust=False)
-        _warn_small(target, 2, "cannot be on both sides", stacklevel=3)
+        _warn_small(target, 2, "cannot be on both sides")
         goal = min(max(round(frac * n), 1), n - 1)
     if group_codes is not None:
         counts, sizes = _group_counts(target, group_codes)
@@ -462,7 +461,7 @@ def stratified_folds(
     group_codes = _read_groups(groups, target.n)
     k = _check_k(k, target.n, group_codes)
     rng = _generator(seed)
-    _warn_small(target, k, f"cannot reach all k={k} folds", stacklevel=3)
+    _warn_small(target, k, f"cannot reach all k={k} folds")
     return _fold_ids(target, k, rng, group_codes)
 
 
@@ -504,7 +503,7 @@ def repeated_stratified_folds(
     k = _check_k(k, target.n, group_codes)
     repeats = _check_int(repeats, "repeats", 1, "Ask for at least one repeat.")
     rngs = _children(seed, repeats)
-    _warn_small(target, k, f"cannot reach all k={k} folds", stacklevel=3)
+    _warn_small(target, k, f"cannot reach all k={k} folds")
     return np.stack([_fold_ids(target, k, r, group_codes) for r in rngs])
 
 
