@@ -58,10 +58,10 @@ def column_moments(X: np.ndarray, v: np.ndarray, rows: int, centre: bool) -> tup
     """
     n, p = X.shape
     total = float(v.sum())
-    squares = PassBuffers(lambda: np.empty((min(rows, n), p)))  # a one-off pass: nothing kept
+    buffers = PassBuffers(lambda: np.empty((min(rows, n), p)))  # a one-off pass: nothing kept
 
     def part(lo: int, hi: int) -> tuple[np.ndarray, np.ndarray]:
-        D = squares.get()[: hi - lo]
+        D = buffers.get()[: hi - lo]
         with np.errstate(over="ignore", invalid="ignore"):
             np.multiply(X[lo:hi], X[lo:hi], out=D)
             return transposed_block(v[lo:hi], X[lo:hi]), transposed_block(v[lo:hi], D)
