@@ -45,10 +45,9 @@ class PairWeights:
         return self.loss.pair_weights(self.eta, rows, out=out)
 
     def prepare(self) -> None:
-        """Form the loss's pass at ``eta`` now (the blocks are then read on several threads)."""
-        prepare = getattr(self.loss, "prepare", None)
-        if prepare is not None:
-            prepare(self.eta)
+        """Form the loss's pass at ``eta`` now (the blocks are then read on several threads,
+        so a loss with ``pair_weights`` must also offer ``prepare``)."""
+        self.loss.prepare(self.eta)
 
     def max_weight(self) -> float:
         v = self.loss.row_weights()
