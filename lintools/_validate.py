@@ -15,7 +15,6 @@ from __future__ import annotations
 
 import math
 import numbers
-import os
 from typing import Any, Sequence
 
 import numpy as np
@@ -335,34 +334,6 @@ def check_positive_int(value: Any, name: str, minimum: int = 1) -> int:
     if value < minimum:
         raise InputError(f"{name} must be >= {minimum}; got {value}")
     return int(value)
-
-
-def read_file_bytes(path: Any, label: str, max_bytes: int) -> bytes:
-    """Read a whole file, refusing a missing file or one larger than ``max_bytes``."""
-    where = file_path(path, label)
-    try:
-        size = os.path.getsize(where)
-    except OSError as exc:
-        raise InputError(f"{label} {where!r} cannot be read: {exc.strerror}") from None
-    if os.path.isdir(where):
-        raise InputError(f"{label} {where!r} is a directory; pass the path of a file")
-    if size > max_bytes:
-        raise InputError(f"{label} {where!r} is {size} bytes; larger than the {max_bytes} allowed")
-    try:
-        with open(where, "rb") as fh:
-            return fh.read()
-    except OSError as exc:
-        raise InputError(f"{label} {where!r} cannot be read: {exc.strerror or exc}") from None
-
-
-def file_path(path: Any, label: str) -> str:
-    """Return ``path`` as a str, refusing anything that is not a str or os.PathLike."""
-    if isinstance(path, bytes) or not isinstance(path, (str, os.PathLike)):
-        raise InputError(f"the {label} path must be a str or os.PathLike; got {type(path).__name__}")
-    where = os.fspath(path)
-    if not isinstance(where, str) or not where or "\x00" in where:
-        raise InputError(f"the {label} path {where!r} is not a usable file name; pass the path of a file")
-    return where
 
 
 def check_probabilities(p: Any, name: str = "p", n: int | None = None) -> np.ndarray:

@@ -28,7 +28,7 @@ import numpy as np
 
 from . import _records
 from ._errors import InputError
-from ._validate import file_path, read_file_bytes
+from ._files import file_path, read_bounded
 
 __all__ = ["save", "load", "SCHEMA_VERSION", "MAX_BYTES"]
 
@@ -230,7 +230,7 @@ def load(path: str | os.PathLike) -> Any:
         If the file is not a lintools model file, has another schema version, or is
         damaged; the message says which.
     """
-    raw = read_file_bytes(path, "model file", MAX_BYTES)
+    raw = read_bounded(path, "model file", MAX_BYTES)
     try:
         doc = json.loads(raw.decode("utf-8"), parse_constant=_refuse_constant, parse_float=_finite_float)
     except (UnicodeDecodeError, json.JSONDecodeError, RecursionError) as exc:

@@ -33,7 +33,7 @@ from typing import Any
 import numpy as np
 
 from ._errors import InputError
-from ._validate import file_path, read_file_bytes
+from ._files import file_path, read_bounded
 
 __all__ = ["DeliveredModel", "read_pmml", "write_pmml"]
 
@@ -169,7 +169,7 @@ def _refuse_declarations(raw: bytes, where: str) -> None:
 def read_pmml(path: str | os.PathLike) -> DeliveredModel:
     """Read a PMML ``RegressionModel`` and return its coefficients as a :class:`DeliveredModel`."""
     where = file_path(path, "PMML file")
-    raw = read_file_bytes(where, "PMML file", MAX_BYTES)
+    raw = read_bounded(where, "PMML file", MAX_BYTES)
     upper = raw.upper()
     if b"<!DOCTYPE" in upper or b"<!ENTITY" in upper:
         raise InputError(f"{where!r} declares a DTD or entities; lintools refuses such XML (external entities, entity expansion)")

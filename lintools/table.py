@@ -28,7 +28,7 @@ from typing import Mapping, Sequence
 import numpy as np
 
 from ._errors import InputError
-from ._validate import file_path
+from ._files import file_path
 
 __all__ = ["MISSING", "Table", "read_table"]
 
