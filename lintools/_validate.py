@@ -27,6 +27,10 @@ __all__ = [
     "as_labels",
     "as_weights",
     "as_offset",
+    "power_of_two",
+    "weight_scale",
+    "read_only",
+    "ReadOnlyArrays",
     "check_names",
     "check_nonnegative",
     "check_choice",
@@ -278,6 +282,29 @@ def as_weights(weights: Any, n: int, name: str = "weights") -> np.ndarray:
     return w
 
 
+def power_of_two(value: float) -> float:
+    """The power of two nearest below ``value`` (> 0, finite): dividing by it is exact.
+
+    Used to bring weights, a response or a column to a moderate size before any sum or
+    product, so that results neither overflow nor underflow and the arithmetic on the
+    scaled values is bit-for-bit that on the unscaled ones for any power-of-two factor
+    (``math.frexp`` splits off the exponent exactly).
+    """
+    if not (value > 0 and math.isfinite(value)):
+        return 1.0
+    return math.ldexp(1.0, math.frexp(value)[1] - 1)
+
+
+def weight_scale(w: np.ndarray) -> float:
+    """A power of two ``s`` with ``max(w / s)`` in [1, 2): weights divided by ``s`` are exact
+    (but for weights below ``max(w) * 2**-1074``, which become 0) and their sum cannot
+    overflow; see :func:`power_of_two`.  Every weight-proportional total (log-likelihood,
+    information, sums of squares) is computed on ``w / s`` and multiplied by ``s`` once at
+    the end, so multiplying all weights by a constant changes no digit of the answer
+    beyond what the mathematics says."""
+    return power_of_two(float(np.max(w))) if w.size else 1.0
+
+
 def as_offset(offset: Any, n: int, k: int | None = None, name: str = "offset") -> np.ndarray:
     """Return an offset of shape (n,) (or (n, k) when ``k`` is given); zeros when None."""
     if offset is None:
@@ -362,3 +389,39 @@ def check_probabilities(p: Any, name: str = "p", n: int | None = None) -> np.nda
             "pass probabilities, not scores or logits"
         )
     return arr
+
+
+def read_only(value: Any) -> Any:
+    """``value`` with every NumPy array in it read-only (tuples, lists and dicts are walked).
+
+    An array that is already read-only and owns its memory is kept; any other is copied
+    and the copy frozen, so a record never shares writable memory with anyone (its
+    maker, or a caller whose array went into it).
+    """
+    if isinstance(value, np.ndarray):
+        if value.base is None and not value.flags.writeable:
+            return value
+        out = value.copy()
+        out.flags.writeable = False
+        return out
+    if isinstance(value, tuple) and not hasattr(value, "_fields"):
+        return tuple(read_only(v) for v in value)
+    if isinstance(value, list):
+        return [read_only(v) for v in value]
+    if isinstance(value, dict):
+        return {k: read_only(v) for k, v in value.items()}
+    return value
+
+
+class ReadOnlyArrays:
+    """Mixin for frozen dataclass records: after ``__init__``, every array field is
+    read-only (see :func:`read_only`), so ``fit.coefficients[0] = 1`` raises."""
+
+    def __post_init__(self) -> None:
+        import dataclasses
+
+        for f in dataclasses.fields(self):  # type: ignore[arg-type]
+            v = getattr(self, f.name)
+            frozen = read_only(v)
+            if frozen is not v:
+                object.__setattr__(self, f.name, frozen)
