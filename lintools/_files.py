@@ -71,6 +71,8 @@ def read_bounded(path: Any, label: str, limit: int, *, limit_hint: str = "") -> 
         raise InputError(f"{label} {where!r} cannot be read: {exc.strerror or exc}") from None
     try:
         mode = os.fstat(fd).st_mode
+        if stat.S_ISDIR(mode):
+            raise InputError(f"{label} {where!r} is a directory; pass the path of a file")
         if not stat.S_ISREG(mode):
             raise InputError(f"{label} {where!r} is {_kind(mode)}; pass the path of a regular file")
         parts: list[bytes] = []
