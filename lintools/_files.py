@@ -148,7 +148,7 @@ def write_atomic(path: Any, data: bytes | str, *, replace: bool = False, label: 
         fd, tmp = tempfile.mkstemp(prefix=".lintools-", suffix=".part", dir=folder)
     except OSError as exc:
         raise InputError(
-            f"{label} {where!r} cannot be written: {exc.strerror or exc}; check that the folder "
+            f"{label} {where!r} cannot be written: {exc.strerror or exc}; check that the directory "
             "exists and is writable"
         ) from None
     try:

@@ -28,7 +28,7 @@ import numpy as np
 
 from . import _records
 from ._errors import InputError
-from ._files import file_path, read_bounded
+from ._files import read_bounded, write_atomic
 
 __all__ = ["save", "load", "SCHEMA_VERSION", "MAX_BYTES"]
 
@@ -195,8 +195,13 @@ def _decode_array(value: dict, where: str) -> np.ndarray:
         raise InputError(f"model file: {where} cannot be built as a {dtype} array of shape {shape} ({exc})") from None
 
 
-def save(fit: Any, path: str | os.PathLike) -> None:
-    """Write a fit record to ``path`` as a lintools JSON model file (schema version 1)."""
+def save(fit: Any, path: str | os.PathLike, *, replace: bool = False) -> None:
+    """Write a fit record to ``path`` as a lintools JSON model file (schema version 1).
+
+    The file is written atomically (a temporary file in the same folder, renamed into
+    place), so ``path`` never holds a partial model.  An existing ``path`` is refused
+    unless ``replace=True``.
+    """
     types = _record_types()
     if type(fit).__name__ not in types or not hasattr(fit, "kind"):
         raise InputError(f"save() takes a lintools fit record; got {type(fit).__name__}")
@@ -210,15 +215,7 @@ def save(fit: Any, path: str | os.PathLike) -> None:
         "record": _encode(fit),
     }
     text = json.dumps(doc, allow_nan=False, indent=1)
-    where = file_path(path, "model file")
-    try:
-        with open(where, "w", encoding="utf-8") as fh:
-            fh.write(text)
-    except OSError as exc:
-        raise InputError(
-            f"model file {where!r} cannot be written: {exc.strerror or exc}; check that the "
-            "directory exists and is writable"
-        ) from None
+    write_atomic(path, text, replace=replace, label="model file")
 
 
 def load(path: str | os.PathLike) -> Any:

@@ -23,6 +23,7 @@ Reference: Data Mining Group, PMML 4.4 - Regression
 
 from __future__ import annotations
 
+import io
 import math
 import os
 import xml.etree.ElementTree as ET
@@ -33,7 +34,7 @@ from typing import Any
 import numpy as np
 
 from ._errors import InputError
-from ._files import file_path, read_bounded
+from ._files import file_path, read_bounded, write_atomic
 
 __all__ = ["DeliveredModel", "read_pmml", "write_pmml"]
 
@@ -63,8 +64,12 @@ def _num(x: float) -> str:
     return repr(float(x))
 
 
-def write_pmml(fit: Any, path: str | os.PathLike, *, target: str | None = None) -> None:
-    """Write a lintools fit (least squares, logistic or softmax) as a PMML 4.4 document."""
+def write_pmml(fit: Any, path: str | os.PathLike, *, target: str | None = None, replace: bool = False) -> None:
+    """Write a lintools fit (least squares, logistic or softmax) as a PMML 4.4 document.
+
+    The file is written atomically (a temporary file in the same folder, renamed into
+    place); an existing ``path`` is refused unless ``replace=True``.
+    """
     kind = getattr(fit, "kind", None)
     if kind not in ("least_squares", "logistic", "softmax"):
         raise InputError(f"write_pmml() takes a lintools fit record; got {type(fit).__name__}")
@@ -111,14 +116,10 @@ def write_pmml(fit: Any, path: str | os.PathLike, *, target: str | None = None) 
     else:
         for k, c in enumerate(fit.classes):
             table(float(np.asarray(fit.intercept)[k]), np.asarray(fit.coefficients)[:, k], c)
-    where = file_path(path, "PMML file")
-    try:
-        ET.ElementTree(root).write(where, encoding="utf-8", xml_declaration=True)
-    except OSError as exc:
-        raise InputError(
-            f"PMML file {where!r} cannot be written: {exc.strerror or exc}; check that the directory "
-            "exists and is writable"
-        ) from None
+    file_path(path, "PMML file")
+    buffer = io.BytesIO()
+    ET.ElementTree(root).write(buffer, encoding="utf-8", xml_declaration=True)
+    write_atomic(path, buffer.getvalue(), replace=replace, label="PMML file")
 
 
 def _strip(tag: str) -> str:

@@ -143,7 +143,7 @@ def test_read_table_huge_and_odd_numbers(tmp_path: Path) -> None:
 # ------------------------------------------------------------ JSON model files: load
 def _valid_doc(fit: Any, tmp: Path) -> dict:
     path = tmp / "valid.json"
-    lt.save(fit, path)
+    lt.save(fit, path, replace=True)
     return json.loads(path.read_text(encoding="utf-8"))
 
 
@@ -261,7 +261,7 @@ def test_load_wrong_schema_versions(docs, tmp_path: Path, version) -> None:
 def test_load_round_trip_still_exact(tmp_path: Path) -> None:
     # source: lintools.io docstring -- "an exact round trip"
     for fit in (LIN, LOGI):
-        lt.save(fit, tmp_path / "m.json")
+        lt.save(fit, tmp_path / "m.json", replace=True)
         back = lt.load(tmp_path / "m.json")
         assert np.array_equal(back.coefficients, fit.coefficients)
         assert np.array_equal(back.covariance, fit.covariance)

@@ -217,8 +217,8 @@ def test_fit_records_are_not_modified_by_the_functions_that_read_them(tmp_path: 
     # and the evaluation methods comes back as it went in
     for fit in (LIN, LOGI):
         before = snapshot(fit)
-        lt.save(fit, tmp_path / "m.json")
-        write_pmml(fit, tmp_path / "m.xml")
+        lt.save(fit, tmp_path / "m.json", replace=True)
+        write_pmml(fit, tmp_path / "m.xml", replace=True)
         lt.compare_coefficients(fit, np.asarray(fit.coefficients) * 1.01, X=X)
         fit.mean(X), fit.linear_predictor(X), fit.report(), fit.to_dict()
         assert snapshot(fit) == before
