@@ -23,14 +23,14 @@ import numpy as np
 from ._binning import assign, edges_for, group_shares, group_sums
 from ._errors import InputError
 from ._outcomes import forecast, scaled_weights, unscale
-from ._validate import check_positive_int
+from ._validate import ReadOnlyArrays, check_positive_int
 
 __all__ = ["BrierScore", "brier", "cross_entropy"]
 
 
 # ----------------------------------------------------------------------------- Brier
 @dataclass(frozen=True)
-class BrierScore:
+class BrierScore(ReadOnlyArrays):
     """The Brier score and its decomposition (Murphy 1973; Stephenson et al. 2008).
 
     ``score == reliability - resolution + uncertainty + within_bin_variance

@@ -16,14 +16,14 @@ import numpy as np
 from ._binning import STRATEGIES, assign, edges_for, group_shares, group_sums, wilson_interval
 from ._errors import InputError
 from ._outcomes import binary_forecast, binary_outcome, case_weights, check_level, class_forecast, fmt_number, unscale
-from ._validate import check_choice, check_positive_int, check_probabilities
+from ._validate import ReadOnlyArrays, check_choice, check_positive_int, check_probabilities
 
 __all__ = ["ReliabilityTable", "reliability", "calibration_error"]
 
 
 # ------------------------------------------------------------------- reliability table
 @dataclass(frozen=True)
-class ReliabilityTable:
+class ReliabilityTable(ReadOnlyArrays):
     """Per-bin observed frequency against mean forecast (a reliability diagram's data).
 
     One entry per bin, empty bins included (``count == 0``, NaN means and intervals).

@@ -17,7 +17,7 @@ from . import _distributions as dist
 from ._errors import InputError
 from ._binning import group_sums
 from ._outcomes import binary_forecast, binary_outcome, fmt_number, fmt_p, scaled_weights, two_sided, unscale
-from ._validate import check_positive_int
+from ._validate import ReadOnlyArrays, check_positive_int
 from ._calibration_line import CalibrationLine, calibration_line
 
 __all__ = [
@@ -32,7 +32,7 @@ __all__ = [
 
 # ------------------------------------------------------------------ Hosmer-Lemeshow
 @dataclass(frozen=True)
-class HosmerLemeshow:
+class HosmerLemeshow(ReadOnlyArrays):
     """Result of :func:`hosmer_lemeshow`: the statistic and its observed/expected table.
 
     Attributes
@@ -212,7 +212,7 @@ def hosmer_lemeshow(
 
 # ---------------------------------------------------------------------- Spiegelhalter
 @dataclass(frozen=True)
-class SpiegelhalterTest:
+class SpiegelhalterTest(ReadOnlyArrays):
     """Result of :func:`spiegelhalter`.
 
     Attributes

@@ -16,13 +16,13 @@ import numpy as np
 from . import _distributions as dist
 from ._errors import InputError, LintoolsWarning, warn_caller
 from ._outcomes import binary_outcome, case_weights, check_level, finite_scores, sigmoid, two_sided, unscale
-from ._validate import check_choice, weight_scale
+from ._validate import ReadOnlyArrays, check_choice, weight_scale
 
 __all__ = ["ROCArea", "ROCAreaDifference", "roc_auc", "roc_auc_difference"]
 
 
 @dataclass(frozen=True)
-class ROCArea:
+class ROCArea(ReadOnlyArrays):
     """Result of :func:`roc_auc`.
 
     Attributes
@@ -60,7 +60,7 @@ class ROCArea:
 
 
 @dataclass(frozen=True)
-class ROCAreaDifference:
+class ROCAreaDifference(ReadOnlyArrays):
     """Result of :func:`roc_auc_difference`: the paired DeLong test.
 
     Attributes
