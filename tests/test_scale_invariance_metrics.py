@@ -11,7 +11,7 @@ Invariances checked (each test's name says which):
   Spiegelhalter's z by ``sqrt(c)`` and the variance of the Brier score by ``1/c``
   (Spiegelhalter 1986); DeLong's covariance is checked against exact rational arithmetic
   on the scaled weights (DeLong, DeLong & Clarke-Pearson 1988), and the Wilson interval
-  against the roots of its quadratic in 400-digit mpmath arithmetic (Wilson 1927).
+  against the roots of its quadratic in 1500-digit mpmath arithmetic (Wilson 1927).
 
 The factor ``c`` is drawn log-uniformly over [1e-300, 1e300] with weights of order 1.
 """
@@ -108,15 +108,16 @@ def test_cross_entropy_and_calibration_error_are_unchanged_by_the_weight_scale(d
 
 @functools.lru_cache(maxsize=None)
 def _wilson_z(level: float):
-    """The (1 + level) / 2 normal quantile, sqrt(2) erfinv(level), to 400 digits."""
-    with mpmath.workdps(400):
+    """The (1 + level) / 2 normal quantile, sqrt(2) erfinv(level), to 1500 digits."""
+    with mpmath.workdps(1500):
         return mpmath.sqrt(2) * mpmath.erfinv(mpmath.mpf(level))
 
 
 def wilson_roots(phat: float, n: float, level: float) -> tuple[float, float]:
     """Roots of (n + z^2) q^2 - (2 n phat + z^2) q + n phat^2 by the textbook formula in
-    400-digit arithmetic (enough for its cancellation down to the smallest subnormal)."""
-    with mpmath.workdps(400):
+    1500-digit arithmetic: enough for its two cancellations (b^2 - 4ac with b^2 up to
+    1e620, and -b - root down to the smallest subnormal) over every finite n."""
+    with mpmath.workdps(1500):
         z = _wilson_z(level)
         N, ph = mpmath.mpf(n), mpmath.mpf(phat)
         a, b, c = N + z**2, -(2 * N * ph + z**2), N * ph**2
