@@ -21,7 +21,7 @@ import numpy as np
 from . import _distributions as dist
 from ._validate import check_choice, check_positive_int
 
-__all__ = ["STRATEGIES", "edges_for", "assign", "wilson_interval"]
+__all__ = ["STRATEGIES", "edges_for", "assign", "group_sums", "group_shares", "wilson_interval"]
 
 STRATEGIES = ("width", "count")
 
@@ -40,21 +40,57 @@ def assign(p: np.ndarray, edges: np.ndarray) -> np.ndarray:
     return np.searchsorted(edges[1:-1], p, side="left")
 
 
-def wilson_interval(successes: np.ndarray, trials: np.ndarray, level: float) -> tuple[np.ndarray, np.ndarray]:
+def group_sums(idx: np.ndarray, m: int, w: np.ndarray, columns: list[np.ndarray]):
+    """Weighted sums per group, each group on its own power-of-two scale.
+
+    Returns ``(scale, weight, sums)``: for group ``g``, ``scale[g]`` is the power of two
+    with the group's largest weight divided by it in [1, 2) (1 for a group without
+    positive weight), ``weight[g] = sum w_i / scale[g]`` and ``sums[k][g] = sum w_i
+    c_ik / scale[g]`` over the rows of the group.  The divisions are exact, so a group's
+    weighted means ``sums[k] / weight`` neither overflow nor underflow and do not depend on
+    the scale of the weights (also when the groups' weights differ by 300 orders of
+    magnitude); ``scale * weight`` is the group's total weight.
+    """
+    top = np.zeros(m)
+    np.maximum.at(top, idx, w)
+    _, e = np.frexp(top)
+    scale = np.where(top > 0, np.ldexp(1.0, e - 1), 1.0)
+    u = w / scale[idx]
+    return scale, np.bincount(idx, weights=u, minlength=m), [np.bincount(idx, weights=u * c, minlength=m) for c in columns]
+
+
+def group_shares(scale: np.ndarray, weight: np.ndarray) -> np.ndarray:
+    """Each group's share of the total weight, from :func:`group_sums`' ``scale`` and
+    ``weight`` (no overflow: the scales are divided by the largest first, exactly)."""
+    r = scale / scale.max() * weight
+    return r / r.sum()
+
+
+def wilson_interval(phat: np.ndarray, trials: np.ndarray, level: float) -> tuple[np.ndarray, np.ndarray]:
     """Wilson (1927) score interval for a binomial proportion; NaN where ``trials == 0``.
 
-    With ``z`` the ``(1 + level) / 2`` normal quantile and ``phat = successes / trials``::
+    The interval is the set of ``q`` with ``n (phat - q)^2 <= z^2 q (1 - q)``, ``z`` the
+    ``(1 + level) / 2`` normal quantile and ``n = trials``: the roots of
+    ``(n + z^2) q^2 - (2 n phat + z^2) q + n phat^2``.  They are computed without
+    cancellation and without overflow for any finite ``n``::
 
-        centre = (phat + z^2 / (2 n)) / (1 + z^2 / n)
-        half   = z / (1 + z^2 / n) * sqrt(phat (1 - phat) / n + z^2 / (4 n^2))
+        upper = (n phat + z^2 / 2 + z sqrt(n phat (1 - phat) + z^2 / 4)) / (n + z^2)
+        lower = n phat^2 / ((n + z^2) upper)       (product of the roots)
+
+    so ``lower`` is exactly 0 at ``phat = 0``.  The interval always contains ``phat``
+    (``q = phat`` satisfies the inequality), and the bounds are clamped to
+    ``[0, phat]`` and ``[phat, 1]`` so that rounding cannot put ``phat`` outside.
     """
     z = float(dist.normal_quantile(0.5 + level / 2.0))
+    z2 = z * z
     n = np.asarray(trials, dtype=float)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        phat = np.asarray(successes, dtype=float) / n
-        z2n = z * z / n
-        centre = (phat + z2n / 2.0) / (1.0 + z2n)
-        half = z / (1.0 + z2n) * np.sqrt(np.maximum(phat * (1.0 - phat), 0.0) / n + z2n / (4.0 * n))
-    lower = np.where(n > 0, np.clip(centre - half, 0.0, 1.0), np.nan)
-    upper = np.where(n > 0, np.clip(centre + half, 0.0, 1.0), np.nan)
+    ph = np.asarray(phat, dtype=float)
+    live = n > 0
+    with np.errstate(divide="ignore", invalid="ignore", under="ignore"):
+        d = n + z2
+        upper = (n * ph + z2 / 2.0 + z * np.sqrt(np.maximum(n * ph * (1.0 - ph), 0.0) + z2 / 4.0)) / d
+        lower = n * ph * ph / (d * upper)
+    # fmin / fmax drop a NaN from a degenerate 0 / 0 (z = 0) in favour of phat
+    lower = np.where(live, np.clip(np.fmin(lower, ph), 0.0, 1.0), np.nan)
+    upper = np.where(live, np.clip(np.fmax(upper, ph), 0.0, 1.0), np.nan)
     return lower, upper

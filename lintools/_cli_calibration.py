@@ -98,8 +98,11 @@ def calibration_report(y: Any, p: np.ndarray, *, positive: Any = None, bins: int
 def plot_reliability(table: Any, path: str, title: str = "Reliability diagram") -> None:
     """Write a reliability diagram of ``table`` (a :class:`ReliabilityTable`) as a PNG file.
 
-    Needs matplotlib, imported here only; without it an :class:`InputError` names the
-    ``plot`` extra.
+    Draws every bin that has weight (empty bins, and bins whose rows all have weight 0,
+    have no observed frequency and are left out of the curve but kept in the row counts
+    below), with the table's interval as error bars; a table with no such bin draws the
+    diagonal and the counts only.  Needs matplotlib, imported here only; without it an
+    :class:`InputError` names the ``plot`` extra.
     """
     try:
         from matplotlib.backends.backend_agg import FigureCanvasAgg
@@ -109,11 +112,14 @@ def plot_reliability(table: Any, path: str, title: str = "Reliability diagram") 
     fig = Figure(figsize=(6.0, 6.5))
     FigureCanvasAgg(fig)
     top, bottom = fig.subplots(2, 1, sharex=True, gridspec_kw={"height_ratios": [3, 1]})
-    full = table.count > 0
+    full = (table.weight > 0) & np.isfinite(table.observed) & np.isfinite(table.mean_predicted)
     f, o = table.mean_predicted[full], table.observed[full]
     lo, hi = table.observed_lower[full], table.observed_upper[full]
+    # the table's intervals contain the observed frequency (reliability guarantees it);
+    # the bars are the distances to the bounds, never negative
+    yerr = np.maximum(np.vstack([o - lo, hi - o]), 0.0)
     top.plot([0, 1], [0, 1], linestyle=":", color="grey", label="perfect calibration")
-    top.errorbar(f, o, yerr=np.vstack([o - lo, hi - o]), fmt="o-", capsize=3,
+    top.errorbar(f, o, yerr=yerr, fmt="o-", capsize=3,
                  label=f"observed frequency, {100 * table.level:g}% Wilson interval")
     top.set_ylabel("observed frequency")
     top.set_xlim(0, 1)

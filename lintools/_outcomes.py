@@ -27,7 +27,7 @@ import numpy as np
 
 from . import _distributions as dist
 from ._errors import InputError
-from ._validate import as_labels, as_vector, as_weights, check_probabilities
+from ._validate import as_labels, as_vector, as_weights, check_probabilities, weight_scale
 
 __all__ = [
     "ROW_SUM_TOLERANCE",
@@ -37,6 +37,8 @@ __all__ = [
     "class_codes",
     "forecast",
     "case_weights",
+    "scaled_weights",
+    "unscale",
     "finite_scores",
     "check_level",
     "fmt_number",
@@ -244,8 +246,42 @@ def fmt_p(value: float) -> str:
 
 
 def case_weights(weights: Any, n: int) -> np.ndarray:
-    """Case weights: ones when None; else finite, >= 0, positive total (see ``as_weights``)."""
-    return as_weights(weights, n)
+    """Case weights: ones when None; else finite, >= 0, positive total (see ``as_weights``).
+
+    Weights near the largest float are accepted (their total may overflow in the check;
+    the metrics never sum them unscaled, see :func:`scaled_weights`)."""
+    with np.errstate(over="ignore"):
+        return as_weights(weights, n)
+
+
+def scaled_weights(weights: Any, n: int) -> tuple[np.ndarray, np.ndarray, float]:
+    """Case weights checked as in :func:`case_weights`, and the same weights divided by a
+    power of two: ``(w, u, s)`` with ``u = w / s`` exact and ``max(u)`` in [1, 2).
+
+    The metrics form every weighted sum from ``u`` (it cannot overflow, and for a power-of-two
+    factor its digits do not depend on the scale of ``w``), and multiply a total that they
+    report by ``s`` once, through :func:`unscale`.  ``w`` itself only says which rows have
+    positive weight (a row can have ``u == 0`` when its weight is below ``max(w) * 2**-1074``).
+    """
+    w = case_weights(weights, n)
+    s = weight_scale(w)
+    return w, w / s, s
+
+
+def unscale(value: Any, s: Any, what: str, *, divide: bool = False) -> Any:
+    """``value * s`` (or ``value / s`` with ``divide=True``): a total computed on the scaled
+    weights of :func:`scaled_weights`, brought back to the scale of the weights.  A finite
+    ``value`` whose result overflows is refused; ``what`` names the total in the message."""
+    with np.errstate(over="ignore"):
+        out = np.divide(value, s) if divide else np.multiply(value, s)
+    if (np.isfinite(value) & ~np.isfinite(out)).any():
+        raise InputError(
+            f"weights are such that {what} exceeds the largest floating-point number "
+            "(about 1.8e308); divide every weight by the same constant (for example their "
+            "largest value) or pass case counts: weighted means do not change, and "
+            "statistics that count the weights as cases change as their docstrings say"
+        )
+    return float(out) if np.ndim(out) == 0 else out
 
 
 def finite_scores(score: Any, name: str, n: int) -> np.ndarray:

@@ -13,23 +13,24 @@ Spiegelhalter, the calibration line) in :mod:`lintools.calibration_checks`.
 
 from __future__ import annotations
 
+import math
 import numbers
 from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
 
-from ._binning import assign, edges_for
+from ._binning import assign, edges_for, group_shares, group_sums
 from ._errors import InputError
-from ._outcomes import case_weights, forecast
-from ._validate import check_positive_int
+from ._outcomes import forecast, scaled_weights, unscale
+from ._validate import ReadOnlyArrays, check_positive_int
 
 __all__ = ["BrierScore", "brier", "cross_entropy"]
 
 
 # ----------------------------------------------------------------------------- Brier
 @dataclass(frozen=True)
-class BrierScore:
+class BrierScore(ReadOnlyArrays):
     """The Brier score and its decomposition (Murphy 1973; Stephenson et al. 2008).
 
     ``score == reliability - resolution + uncertainty + within_bin_variance
@@ -129,7 +130,10 @@ def brier(
     p : array-like
         Probability of the positive class, or an (n, K) class-probability matrix.
     weights : array-like, optional
-        Case weights (>= 0).
+        Case weights (>= 0).  Every term is a weighted mean, so only relative weights
+        matter: multiplying all weights by a constant changes no term, only
+        ``total_weight`` (the weights are divided by a power of two before any sum, so
+        weights of any magnitude give the same digits).
     bins : int, optional
         Group binary forecasts into this many equal-width bins instead of by value.
     positive : label, optional
@@ -138,6 +142,12 @@ def brier(
     Returns
     -------
     BrierScore
+
+    Raises
+    ------
+    InputError
+        When the total weight exceeds the largest floating-point number (divide the
+        weights by a constant; the score does not change).
 
     References
     ----------
@@ -150,11 +160,11 @@ def brier(
     """
     outcome, f, is_matrix = forecast(y, p, positive)
     n = f.shape[0]
-    w = case_weights(weights, n)
-    total = float(w.sum())
+    _, u, scale = scaled_weights(weights, n)
+    total = float(u.sum())
     F = f.reshape(n, -1)
     O = outcome.reshape(n, -1)
-    score = float(w @ ((F - O) ** 2).sum(axis=1)) / total
+    score = float(u @ ((F - O) ** 2).sum(axis=1)) / total
     if bins is None:
         values, index = np.unique(F, axis=0, return_inverse=True)
         index = index.ravel()
@@ -169,23 +179,20 @@ def brier(
         index = assign(f, edges_for(f, nbins, "width"))
         values, grouping = None, "bins"
     m = int(index.max()) + 1 if bins is None else nbins
-    wk = np.bincount(index, weights=w, minlength=m)
+    gscale, wk, sums = group_sums(index, m, u, [O[:, j] for j in range(O.shape[1])] + ([] if values is not None else [f]))
     live = wk > 0
-    obar_k = np.column_stack([np.bincount(index, weights=w * O[:, j], minlength=m) for j in range(O.shape[1])])
-    obar_k[live] /= wk[live, None]
-    if values is not None:
-        fbar_k = values
-    else:
-        fbar_k = np.bincount(index, weights=w * f, minlength=m)[:, None]
-        fbar_k[live] /= wk[live, None]
-    obar = (w @ O) / total
-    rel = float(wk[live] @ ((fbar_k[live] - obar_k[live]) ** 2).sum(axis=1)) / total
-    res = float(wk[live] @ ((obar_k[live] - obar) ** 2).sum(axis=1)) / total
+    share = group_shares(gscale[live], wk[live])
+    obar_k = np.column_stack(sums[: O.shape[1]])[live] / wk[live, None]
+    fbar_k = values[live] if values is not None else (sums[-1][live] / wk[live])[:, None]
+    obar = (u @ O) / total
+    rel = float(share @ ((fbar_k - obar_k) ** 2).sum(axis=1))
+    res = float(share @ ((obar_k - obar) ** 2).sum(axis=1))
     unc = float((obar * (1.0 - obar)).sum())
     if values is None:
-        df = F - fbar_k[index]
-        wbv = float(w @ (df**2).sum(axis=1)) / total
-        wbc = 2.0 * float(w @ ((O - obar_k[index]) * df).sum(axis=1)) / total
+        where = np.cumsum(live) - 1  # row of each live bin in the compressed arrays
+        df = F - fbar_k[where[index]]
+        wbv = float(u @ (df**2).sum(axis=1)) / total
+        wbc = 2.0 * float(u @ ((O - obar_k[where[index]]) * df).sum(axis=1)) / total
     else:
         wbv = wbc = 0.0
     return BrierScore(
@@ -198,7 +205,7 @@ def brier(
         groups=int(live.sum()),
         grouping=grouping,
         bins=nbins,
-        total_weight=total,
+        total_weight=unscale(total, scale, "the total weight"),
         classes=F.shape[1] if is_matrix else 2,
     )
 
@@ -223,7 +230,8 @@ def cross_entropy(
     y, p : array-like
         Labels and forecasts as in :func:`brier`.
     weights : array-like, optional
-        Case weights (>= 0).
+        Case weights (>= 0).  Only relative weights matter: multiplying all weights by a
+        constant does not change the result.
     eps : float, optional
         Clipping bound, ``0 < eps < 0.5``; default no clipping.
     positive : label, optional
@@ -241,7 +249,7 @@ def cross_entropy(
     """
     outcome, f, is_matrix = forecast(y, p, positive)
     n = f.shape[0]
-    w = case_weights(weights, n)
+    w, u, _ = scaled_weights(weights, n)
     if eps is not None:
         if isinstance(eps, bool) or not isinstance(eps, numbers.Real) or not 0.0 < float(eps) < 0.5:
             raise InputError(f"eps must be a number with 0 < eps < 0.5 (e.g. 1e-15); got {eps!r}")
@@ -256,4 +264,6 @@ def cross_entropy(
             fc = f if eps is None else np.clip(f, eps, 1.0 - eps)
             loss = np.where(outcome == 1.0, -np.log(fc), -np.log1p(-fc))
     live = w > 0
-    return float(w[live] @ loss[live]) / float(w.sum())
+    if np.isinf(loss[live]).any():  # a zero probability met its class in a row of positive weight
+        return math.inf
+    return float(u[live] @ loss[live]) / float(u.sum())

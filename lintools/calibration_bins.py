@@ -13,17 +13,17 @@ from typing import Any
 
 import numpy as np
 
-from ._binning import STRATEGIES, assign, edges_for, wilson_interval
+from ._binning import STRATEGIES, assign, edges_for, group_shares, group_sums, wilson_interval
 from ._errors import InputError
-from ._outcomes import binary_forecast, binary_outcome, case_weights, check_level, class_forecast, fmt_number
-from ._validate import check_choice, check_positive_int, check_probabilities
+from ._outcomes import binary_forecast, binary_outcome, case_weights, check_level, class_forecast, fmt_number, unscale
+from ._validate import ReadOnlyArrays, check_choice, check_positive_int, check_probabilities
 
 __all__ = ["ReliabilityTable", "reliability", "calibration_error"]
 
 
 # ------------------------------------------------------------------- reliability table
 @dataclass(frozen=True)
-class ReliabilityTable:
+class ReliabilityTable(ReadOnlyArrays):
     """Per-bin observed frequency against mean forecast (a reliability diagram's data).
 
     One entry per bin, empty bins included (``count == 0``, NaN means and intervals).
@@ -74,11 +74,11 @@ class ReliabilityTable:
 
 
 def _bin_means(p: np.ndarray, o: np.ndarray, w: np.ndarray, idx: np.ndarray, m: int):
-    wk = np.bincount(idx, weights=w, minlength=m)
-    sp = np.bincount(idx, weights=w * p, minlength=m)
-    so = np.bincount(idx, weights=w * o, minlength=m)
+    """Per bin: power-of-two scale, scaled weight, mean forecast and observed frequency
+    (NaN for a bin without positive weight); see :func:`lintools._binning.group_sums`."""
+    scale, wk, (sp, so) = group_sums(idx, m, w, [p, o])
     with np.errstate(divide="ignore", invalid="ignore"):
-        return wk, so, np.where(wk > 0, sp / wk, np.nan), np.where(wk > 0, so / wk, np.nan)
+        return scale, wk, np.where(wk > 0, sp / wk, np.nan), np.where(wk > 0, so / wk, np.nan)
 
 
 def reliability(
@@ -115,7 +115,12 @@ def reliability(
         Number of bins (>= 1).
     strategy : {"width", "count"}
     weights : array-like, optional
-        Case weights.
+        Case weights, counted as cases by the interval: multiplying all weights by
+        :math:`c` leaves the means unchanged, multiplies ``weight`` by :math:`c` and
+        narrows the Wilson interval as :math:`c` trials say (half-width about
+        :math:`1/\sqrt c` times the old one for large bins).  The weights of each bin are
+        divided by a power of two before they are summed, so weights of any magnitude
+        give the same means.  The interval always contains the observed frequency.
     level : float
         Confidence level of the Wilson interval.
     positive : label, optional
@@ -123,6 +128,12 @@ def reliability(
     Returns
     -------
     ReliabilityTable
+
+    Raises
+    ------
+    InputError
+        When a bin's total weight exceeds the largest floating-point number (divide the
+        weights by a constant).
 
     References
     ----------
@@ -138,12 +149,13 @@ def reliability(
     nbins = check_positive_int(bins, "bins")
     edges = edges_for(f, nbins, strategy)
     idx = assign(f, edges)
-    wk, so, fbar, obar = _bin_means(f, o, w, idx, nbins)
-    lower, upper = wilson_interval(so, wk, level)
+    scale, wk, fbar, obar = _bin_means(f, o, w, idx, nbins)
+    weight = unscale(wk, scale, "the total weight of a bin")
+    lower, upper = wilson_interval(obar, weight, level)
     return ReliabilityTable(
         edges=edges,
         count=np.bincount(idx, minlength=nbins),
-        weight=wk,
+        weight=weight,
         mean_predicted=fbar,
         observed=obar,
         observed_lower=lower,
@@ -160,10 +172,10 @@ NORMS = (1, 2, "max")
 def _gap(f, o, w, nbins, strategy, norm) -> float:
     edges = edges_for(f, nbins, strategy)
     idx = assign(f, edges)
-    wk, _, fbar, obar = _bin_means(f, o, w, idx, nbins)
+    scale, wk, fbar, obar = _bin_means(f, o, w, idx, nbins)
     live = wk > 0
     gap = np.abs(obar[live] - fbar[live])
-    share = wk[live] / wk.sum()
+    share = group_shares(scale[live], wk[live])
     if norm == 1:
         return float(share @ gap)
     if norm == 2:
@@ -212,7 +224,9 @@ def calibration_error(
     multiclass : {"top-label", "class-wise"}
         Used only when ``p`` is a matrix.
     weights : array-like, optional
-        Case weights.
+        Case weights.  Only relative weights matter: multiplying all weights by a
+        constant does not change the result (each bin's weights are divided by a power
+        of two before they are summed, so weights of any magnitude give the same digits).
     positive : label, optional
 
     Returns

@@ -15,8 +15,9 @@ import numpy as np
 
 from . import _distributions as dist
 from ._errors import InputError
-from ._outcomes import binary_forecast, binary_outcome, case_weights, fmt_number, fmt_p, two_sided
-from ._validate import check_positive_int
+from ._binning import group_sums
+from ._outcomes import binary_forecast, binary_outcome, fmt_number, fmt_p, scaled_weights, two_sided, unscale
+from ._validate import ReadOnlyArrays, check_positive_int
 from ._calibration_line import CalibrationLine, calibration_line
 
 __all__ = [
@@ -31,7 +32,7 @@ __all__ = [
 
 # ------------------------------------------------------------------ Hosmer-Lemeshow
 @dataclass(frozen=True)
-class HosmerLemeshow:
+class HosmerLemeshow(ReadOnlyArrays):
     """Result of :func:`hosmer_lemeshow`: the statistic and its observed/expected table.
 
     Attributes
@@ -81,14 +82,23 @@ class HosmerLemeshow:
         return "\n".join(lines) + "\n"
 
 
-def _risk_groups(f: np.ndarray, w: np.ndarray, groups: int) -> np.ndarray:
-    """Group number of each row: deciles (or ``groups``-iles) of risk, ties kept together."""
+def _risk_groups(f: np.ndarray, u: np.ndarray, groups: int) -> np.ndarray:
+    """Group number of each row: deciles (or ``groups``-iles) of risk, ties kept together.
+
+    ``u`` are the weights divided by a power of two (no overflow).  A cumulative share
+    within ``4 (n + 1) 2**-53`` (relative) of ``j / groups`` counts as reaching it: that
+    bounds the rounding of the running sum and of a common factor in the weights, so the
+    cuts, and hence the groups, do not depend on the scale of the weights.  Integer counts
+    are still compared exactly (the slack is below one case) while
+    ``(groups - 1) * total * (n + 1) < 2**51``.
+    """
     values, index = np.unique(f, return_inverse=True)
-    cum = np.cumsum(np.bincount(index, weights=w, minlength=values.shape[0]))
+    cum = np.cumsum(np.bincount(index, weights=u, minlength=values.shape[0]))
     total = cum[-1]
+    slack = 1.0 - 4.0 * (f.shape[0] + 1) * 2.0**-53
     # cut point j (1..groups-1): the smallest distinct forecast whose cumulative weight
-    # share reaches j / groups; compared as cum * groups >= j * total (exact for counts)
-    cuts = [values[int(np.argmax(cum * groups >= j * total))] for j in range(1, groups)]
+    # share reaches j / groups, compared as cum * groups >= j * total (less the slack)
+    cuts = [values[int(np.argmax(cum * groups >= j * total * slack))] for j in range(1, groups)]
     group_of_value = np.searchsorted(np.asarray(cuts), values, side="left")
     return group_of_value[index]
 
@@ -124,7 +134,11 @@ def hosmer_lemeshow(
     groups : int
         Number of groups wanted (>= 3).
     weights : array-like, optional
-        Case weights.
+        Case weights, counted as cases: multiplying all weights by :math:`c` leaves the
+        groups unchanged and multiplies the statistic and every observed and expected
+        count by :math:`c` (the p-value follows).  Each group's sums are formed on the
+        weights divided by a power of two, so weights of any magnitude neither overflow
+        nor underflow.
     positive : label, optional
 
     Returns
@@ -134,7 +148,9 @@ def hosmer_lemeshow(
     Raises
     ------
     InputError
-        When ties leave fewer than 3 groups (no degrees of freedom).
+        When ties leave fewer than 3 groups (no degrees of freedom), or the statistic or a
+        group's total exceeds the largest floating-point number (weights that are not
+        case counts: divide them by a constant).
 
     References
     ----------
@@ -143,11 +159,11 @@ def hosmer_lemeshow(
     """
     f = binary_forecast(p)
     o, _ = binary_outcome(y, positive, n=f.shape[0])
-    w = case_weights(weights, f.shape[0])
+    w, u, _ = scaled_weights(weights, f.shape[0])
     g_wanted = check_positive_int(groups, "groups", minimum=3)
-    gid = _risk_groups(f, w, g_wanted)
+    gid = _risk_groups(f, u, g_wanted)
     m = g_wanted
-    wk = np.bincount(gid, weights=w, minlength=m)
+    scale, wk, (obs, exp, obs0, exp0) = group_sums(gid, m, w, [o, f, 1.0 - o, 1.0 - f])
     keep = wk > 0
     if keep.sum() < 3:
         raise InputError(
@@ -155,19 +171,28 @@ def hosmer_lemeshow(
             f"(formed {int(keep.sum())}); the Hosmer-Lemeshow test needs at least 3 groups"
         )
     count = np.bincount(gid, minlength=m)
-    obs = np.bincount(gid, weights=w * o, minlength=m)
-    exp = np.bincount(gid, weights=w * f, minlength=m)
-    obs0 = np.bincount(gid, weights=w * (1.0 - o), minlength=m)
-    exp0 = np.bincount(gid, weights=w * (1.0 - f), minlength=m)
     lower = np.array([f[gid == g].min() if count[g] else np.nan for g in range(m)])
     upper = np.array([f[gid == g].max() if count[g] else np.nan for g in range(m)])
 
     def part(a: np.ndarray, e: np.ndarray) -> np.ndarray:
-        with np.errstate(divide="ignore", invalid="ignore"):
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
             t = (a - e) ** 2 / e
-        return np.where((e == 0) & (a == 0), 0.0, np.where(e == 0, np.inf, t))
+        if ((e > 0) & np.isinf(t)).any():
+            raise InputError(
+                "p has forecasts so close to 0 or 1 that a Hosmer-Lemeshow term (observed "
+                "minus expected, squared, over an expected count below 1e-300) exceeds the "
+                "largest floating-point number; the test cannot be computed for these forecasts"
+            )
+        return np.where(e == 0, np.where(a == 0, 0.0, np.inf), t)
 
-    stat = float((part(obs[keep], exp[keep]) + part(obs0[keep], exp0[keep])).sum())
+    # each group's terms on its own scale, then brought to the largest group's scale
+    # (exact powers of two) and summed: the statistic counts the weights as cases
+    sk = scale[keep]
+    top = float(sk.max())
+    terms = part(obs[keep], exp[keep]) + part(obs0[keep], exp0[keep])
+    with np.errstate(invalid="ignore"):
+        terms = np.where(np.isinf(terms), np.inf, sk / top * terms)
+    stat = unscale(float(terms.sum()), top, "the Hosmer-Lemeshow statistic")
     df = int(keep.sum()) - 2
     pval = 0.0 if math.isinf(stat) else float(dist.chi2_sf(stat, df))
     return HosmerLemeshow(
@@ -177,17 +202,17 @@ def hosmer_lemeshow(
         lower=lower[keep],
         upper=upper[keep],
         count=count[keep],
-        weight=wk[keep],
-        observed=obs[keep],
-        expected=exp[keep],
-        observed_negative=obs0[keep],
-        expected_negative=exp0[keep],
+        weight=unscale(wk[keep], sk, "the total weight of a risk group"),
+        observed=unscale(obs[keep], sk, "the observed count of a risk group"),
+        expected=unscale(exp[keep], sk, "the expected count of a risk group"),
+        observed_negative=unscale(obs0[keep], sk, "the observed count of a risk group"),
+        expected_negative=unscale(exp0[keep], sk, "the expected count of a risk group"),
     )
 
 
 # ---------------------------------------------------------------------- Spiegelhalter
 @dataclass(frozen=True)
-class SpiegelhalterTest:
+class SpiegelhalterTest(ReadOnlyArrays):
     """Result of :func:`spiegelhalter`.
 
     Attributes
@@ -228,7 +253,10 @@ def spiegelhalter(y: Any, p: Any, *, weights: Any = None, positive: Any = None) 
     p : array-like
         Probability of the positive class.
     weights : array-like, optional
-        Case (frequency) weights.
+        Case (frequency) weights, counted as cases: multiplying all weights by
+        :math:`c` multiplies z by :math:`\sqrt c` and ``brier_variance`` by
+        :math:`1/c`, and leaves ``brier`` and ``expected_brier`` unchanged.  The sums
+        are formed on the weights divided by a power of two (no overflow or underflow).
     positive : label, optional
 
     Returns
@@ -238,7 +266,9 @@ def spiegelhalter(y: Any, p: Any, *, weights: Any = None, positive: Any = None) 
     Raises
     ------
     InputError
-        When every forecast is 0, 1/2 or 1 (the variance is 0 and z does not exist).
+        When every forecast is 0, 1/2 or 1 (the variance is 0 and z does not exist), or
+        ``brier_variance`` exceeds the largest floating-point number (weights whose total
+        is far below one case: pass case counts).
 
     References
     ----------
@@ -247,19 +277,21 @@ def spiegelhalter(y: Any, p: Any, *, weights: Any = None, positive: Any = None) 
     """
     f = binary_forecast(p)
     o, _ = binary_outcome(y, positive, n=f.shape[0])
-    w = case_weights(weights, f.shape[0])
-    total = float(w.sum())
-    var_sum = float(w @ ((1.0 - 2.0 * f) ** 2 * f * (1.0 - f)))
+    _, u, scale = scaled_weights(weights, f.shape[0])
+    total = float(u.sum())
+    var_sum = float(u @ ((1.0 - 2.0 * f) ** 2 * f * (1.0 - f)))
     if not var_sum > 0.0:
         raise InputError(
             "p has every forecast (with positive weight) equal to 0, 1/2 or 1, so the Brier "
             "score has no variance under calibration and Spiegelhalter's z does not exist"
         )
-    z = float(w @ ((o - f) * (1.0 - 2.0 * f))) / math.sqrt(var_sum)
+    # on the scaled weights z' = z / sqrt(scale); sqrt(scale) is a power of two times 1 or sqrt 2
+    z = unscale(float(u @ ((o - f) * (1.0 - 2.0 * f))) / math.sqrt(var_sum), math.sqrt(scale), "Spiegelhalter's z")
     return SpiegelhalterTest(
         statistic=z,
         p_value=two_sided(z),
-        brier=float(w @ (o - f) ** 2) / total,
-        expected_brier=float(w @ (f * (1.0 - f))) / total,
-        brier_variance=var_sum / total**2,
+        brier=float(u @ (o - f) ** 2) / total,
+        expected_brier=float(u @ (f * (1.0 - f))) / total,
+        brier_variance=unscale(var_sum / total**2, scale, "the variance of the Brier score under calibration",
+                               divide=True),
     )

@@ -14,15 +14,15 @@ from typing import Any
 import numpy as np
 
 from . import _distributions as dist
-from ._errors import InputError
-from ._outcomes import binary_outcome, case_weights, check_level, finite_scores
-from ._validate import check_choice
+from ._errors import InputError, LintoolsWarning, warn_caller
+from ._outcomes import binary_outcome, case_weights, check_level, finite_scores, sigmoid, two_sided, unscale
+from ._validate import ReadOnlyArrays, check_choice, weight_scale
 
 __all__ = ["ROCArea", "ROCAreaDifference", "roc_auc", "roc_auc_difference"]
 
 
 @dataclass(frozen=True)
-class ROCArea:
+class ROCArea(ReadOnlyArrays):
     """Result of :func:`roc_auc`.
 
     Attributes
@@ -30,7 +30,7 @@ class ROCArea:
     area : float
         Probability that a random positive scores above a random negative (ties count 1/2).
     standard_error : float
-        DeLong standard error; NaN when a class has total weight <= 1.
+        DeLong standard error; NaN (with a warning) when a class has total weight <= 1.
     lower, upper : float
         Interval at ``level`` on the scale named by ``interval``.
     level : float
@@ -60,7 +60,7 @@ class ROCArea:
 
 
 @dataclass(frozen=True)
-class ROCAreaDifference:
+class ROCAreaDifference(ReadOnlyArrays):
     """Result of :func:`roc_auc_difference`: the paired DeLong test.
 
     Attributes
@@ -104,16 +104,18 @@ def _below_half(sorted_scores: np.ndarray, cum_weight: np.ndarray, at: np.ndarra
     return 0.5 * (lo + hi)
 
 
-def _placements(o: np.ndarray, s: np.ndarray, w: np.ndarray):
+def _placements(o: np.ndarray, s: np.ndarray, u: np.ndarray):
     """Placement values (DeLong 1988) of each positive and each negative, and the area.
 
     ``v10[i]`` is the weighted share of negatives scored below positive ``i`` (ties
     half); ``v01[j]`` the share of positives scored above negative ``j``.  These are the
     midrank differences of Sun & Xu (2014): ``v10 = (R_i - R_i^+) / W_0`` with ``R`` the
-    midrank among all cases and ``R^+`` among positives.
+    midrank among all cases and ``R^+`` among positives.  ``u`` are the weights, each
+    class divided by its own power of two (see :func:`_read`), so the running sums cannot
+    overflow; the ``W1``, ``W0`` returned are the class totals on that scale.
     """
     pos, neg = o == 1.0, o == 0.0
-    sp, wp, sn, wn = s[pos], w[pos], s[neg], w[neg]
+    sp, wp, sn, wn = s[pos], u[pos], s[neg], u[neg]
     W1, W0 = float(wp.sum()), float(wn.sum())
     order_n = np.argsort(sn, kind="mergesort")
     cum_n = np.concatenate(([0.0], np.cumsum(wn[order_n])))
@@ -125,27 +127,49 @@ def _placements(o: np.ndarray, s: np.ndarray, w: np.ndarray):
     return v10, v01, wp, wn, W1, W0, area
 
 
-def _delong_cov(v10: np.ndarray, v01: np.ndarray, wp, wn, W1: float, W0: float) -> np.ndarray:
-    """DeLong covariance of the areas of the score columns (``v10``: (n1, m), ``v01``: (n0, m))."""
-    if W1 <= 1.0 or W0 <= 1.0:
-        m = v10.shape[1]
-        return np.full((m, m), np.nan)
-    a10 = (wp @ v10) / W1
-    a01 = (wn @ v01) / W0
-    d10 = v10 - a10
-    d01 = v01 - a01
-    s10 = (d10 * wp[:, None]).T @ d10 / (W1 - 1.0)
-    s01 = (d01 * wn[:, None]).T @ d01 / (W0 - 1.0)
-    return s10 / W1 + s01 / W0
+def _delong_cov(v10: np.ndarray, v01: np.ndarray, wp, wn, W1: float, W0: float,
+                scales: tuple[float, float]) -> tuple[np.ndarray, float]:
+    r"""DeLong covariance of the areas of the score columns (``v10``: (n1, m), ``v01``: (n0, m)),
+    as ``(bracket, s)`` with covariance ``bracket / s``.
+
+    ``wp``, ``W1`` (``wn``, ``W0``) are the weights and total of the positives (negatives)
+    divided by the power of two ``s1`` (``s0``) in ``scales``; the class totals
+    :math:`s_1 W'_1`, :math:`s_0 W'_0` must exceed 1.  With the weighted placement
+    covariance :math:`C'_{10} = \sum u (V - A)(V - A)^T / W'_1` (scale-free),
+    :math:`S_{10} / W_1 = C'_{10} / (s_1 (W'_1 - 1/s_1))`, and likewise for the negatives;
+    with :math:`s = \min(s_1, s_0)`,
+
+    .. math:: \mathrm{Cov} = \frac{1}{s}\Big[\frac{s}{s_1}\frac{C'_{10}}{W'_1 - 1/s_1}
+              + \frac{s}{s_0}\frac{C'_{01}}{W'_0 - 1/s_0}\Big].
+
+    The bracket is of order 1/n whatever the scale (``1/s_k < W'_k`` because the totals
+    exceed 1, and the ratios of scales are exact powers of two at most 1), so nothing
+    overflows or underflows; the standard error is ``sqrt(bracket) / sqrt(s)``.
+    """
+    s1, s0 = scales
+    d10 = v10 - (wp @ v10) / W1
+    d01 = v01 - (wn @ v01) / W0
+    c10 = (d10 * wp[:, None]).T @ d10 / W1
+    c01 = (d01 * wn[:, None]).T @ d01 / W0
+    s = min(s1, s0)
+    return s / s1 * c10 / (W1 - 1.0 / s1) + s / s0 * c01 / (W0 - 1.0 / s0), s
 
 
 def _read(y: Any, scores: dict[str, Any], weights: Any, positive: Any):
+    """Outcome, scores, the weights with each class divided by its own power of two (the
+    area and DeLong's variance take the two classes' weights separately, so each class
+    keeps its digits whatever the other's scale), and the class totals."""
     o, _ = binary_outcome(y, positive, need_both=True)
     arrays = [finite_scores(v, k, o.shape[0]) for k, v in scores.items()]
     w = case_weights(weights, o.shape[0])
-    if not (w[o == 1.0].sum() > 0 and w[o == 0.0].sum() > 0):
+    pos = o == 1.0
+    if not ((w[pos] > 0).any() and (w[~pos] > 0).any()):
         raise InputError("weights are zero for every case of one class; the ROC area needs both classes")
-    return o, arrays, w
+    scales = (weight_scale(w[pos]), weight_scale(w[~pos]))
+    u = w / np.where(pos, scales[0], scales[1])
+    totals = (unscale(float(u[pos].sum()), scales[0], "the total weight of the positive class"),
+              unscale(float(u[~pos].sum()), scales[1], "the total weight of the negative class"))
+    return o, arrays, u, scales, totals
 
 
 def roc_auc(
@@ -174,12 +198,21 @@ def roc_auc(
               S_{01} = \frac{\sum w_j (V_{01}(j) - A)^2}{W_0 - 1}.
 
     The placements come from sorted scores and midranks in O(n log n) (Sun & Xu 2014).
-    The standard error (and interval) is NaN when a class has total weight <= 1.
+    The standard error (and interval) is NaN, with a :class:`LintoolsWarning` saying why,
+    when a class has total weight <= 1 (one case, or weights that are not counts).
+
+    Weights: the area uses relative weights only (multiplying all weights by a constant
+    does not change it); DeLong's variance counts them as cases, so multiplying all
+    weights by :math:`c` turns :math:`\widehat{\mathrm{Var}}` into
+    :math:`\sum_k Q_k / ((cW_k - 1) W_k)` (:math:`Q_k` the weighted sums of squares
+    above), about :math:`1/c` times the old variance.  Each class's weights are divided by
+    a power of two before any sum, so no total overflows or underflows.
 
     ``interval="logit"`` (default) forms :math:`\mathrm{logit}(A) \pm z\,SE/(A(1-A))`
     and maps it back, so the interval stays inside (0, 1); when :math:`A` is 0 or 1 the
     standard error is 0 and the interval is the single point :math:`A`.
-    ``interval="plain"`` is :math:`A \pm z\,SE`, clipped to [0, 1].
+    ``interval="plain"`` is :math:`A \pm z\,SE`, clipped to [0, 1].  Either interval
+    always contains :math:`A`.
 
     Parameters
     ----------
@@ -198,6 +231,12 @@ def roc_auc(
     -------
     ROCArea
 
+    Raises
+    ------
+    InputError
+        When a class's total weight exceeds the largest floating-point number (divide the
+        weights by a constant).
+
     References
     ----------
     DeLong, E. R., DeLong, D. M. & Clarke-Pearson, D. L. (1988). Comparing the areas
@@ -211,24 +250,33 @@ def roc_auc(
     """
     level = check_level(level)
     check_choice(interval, "interval", ("logit", "plain"))
-    o, (s,), w = _read(y, {"score": score}, weights, positive)
-    v10, v01, wp, wn, W1, W0, area = _placements(o, s, w)
-    var = float(_delong_cov(v10[:, None], v01[:, None], wp, wn, W1, W0)[0, 0])
-    se = math.sqrt(max(var, 0.0)) if not math.isnan(var) else math.nan
+    o, (s,), u, scales, (positives, negatives) = _read(y, {"score": score}, weights, positive)
+    v10, v01, wp, wn, W1, W0, area = _placements(o, s, u)
+    if positives <= 1.0 or negatives <= 1.0:
+        warn_caller(
+            f"roc_auc: the positive class has a total weight of {positives:g} and the negative "
+            f"class {negatives:g}; DeLong's variance counts case weights as cases and needs more "
+            "than 1 in each class, so the standard error and interval are NaN (with weights "
+            "that are not case counts, pass counts)",
+            LintoolsWarning,
+        )
+        return ROCArea(area=area, standard_error=math.nan, lower=math.nan, upper=math.nan, level=level,
+                       interval=interval, positives=positives, negatives=negatives)
+    bracket, scale = _delong_cov(v10[:, None], v01[:, None], wp, wn, W1, W0, scales)
+    se = math.sqrt(max(float(bracket[0, 0]), 0.0)) / math.sqrt(scale)
     q = float(dist.normal_quantile(0.5 + level / 2.0))
-    if math.isnan(se):
-        lower = upper = math.nan
-    elif interval == "plain":
+    if interval == "plain":
         lower, upper = max(0.0, area - q * se), min(1.0, area + q * se)
     elif area in (0.0, 1.0) or se == 0.0:
         lower = upper = area
     else:
         centre = math.log(area) - math.log1p(-area)
         half = q * se / (area * (1.0 - area))
-        lower = 1.0 / (1.0 + math.exp(-(centre - half)))
-        upper = 1.0 / (1.0 + math.exp(-(centre + half)))
+        lower, upper = (float(v) for v in sigmoid(np.array([centre - half, centre + half])))
+        # the interval holds the area; rounding of the back-transform must not move it out
+        lower, upper = min(lower, area), max(upper, area)
     return ROCArea(area=area, standard_error=se, lower=lower, upper=upper, level=level,
-                   interval=interval, positives=W1, negatives=W0)
+                   interval=interval, positives=positives, negatives=negatives)
 
 
 def roc_auc_difference(
@@ -258,7 +306,10 @@ def roc_auc_difference(
     score_a, score_b : array-like
         Two real scores of the same cases.
     weights : array-like, optional
-        Case (frequency) weights, as in :func:`roc_auc`.
+        Case (frequency) weights, as in :func:`roc_auc`: the areas and their difference use
+        relative weights only; the covariance counts the weights as cases (about
+        :math:`1/c` times the old one for weights multiplied by :math:`c`, so z grows
+        about as :math:`\sqrt c`).
     level : float
         Confidence level of the interval.
     positive : label, optional
@@ -272,7 +323,8 @@ def roc_auc_difference(
     InputError
         When the standard error of the difference is 0 (for example, the two scores order
         the cases the same way, or both areas are 1), so the test does not exist; or a
-        class has total weight <= 1.
+        class has total weight <= 1; or a class's total weight exceeds the largest
+        floating-point number.
 
     References
     ----------
@@ -280,35 +332,38 @@ def roc_auc_difference(
     Sun, X. & Xu, W. (2014). IEEE Signal Processing Letters 21, 1389-1393.
     """
     level = check_level(level)
-    o, (sa, sb), w = _read(y, {"score_a": score_a, "score_b": score_b}, weights, positive)
-    pa = _placements(o, sa, w)
-    pb = _placements(o, sb, w)
+    o, (sa, sb), u, scales, (positives, negatives) = _read(y, {"score_a": score_a, "score_b": score_b}, weights,
+                                                            positive)
+    pa = _placements(o, sa, u)
+    pb = _placements(o, sb, u)
     wp, wn, W1, W0 = pa[2], pa[3], pa[4], pa[5]
-    if W1 <= 1.0 or W0 <= 1.0:
+    if positives <= 1.0 or negatives <= 1.0:
         raise InputError(
-            "y needs a total weight above 1 in each class for DeLong's variance; "
-            f"got positives {W1:g}, negatives {W0:g}"
+            "y needs a total weight above 1 in each class for DeLong's variance, which counts "
+            f"the weights as cases; got positives {positives:g}, negatives {negatives:g} "
+            "(pass case counts as weights, or none)"
         )
-    cov = _delong_cov(np.column_stack([pa[0], pb[0]]), np.column_stack([pa[1], pb[1]]), wp, wn, W1, W0)
+    bracket, scale = _delong_cov(np.column_stack([pa[0], pb[0]]), np.column_stack([pa[1], pb[1]]), wp, wn, W1, W0,
+                                 scales)
     diff = pa[6] - pb[6]
-    var = float(cov[0, 0] + cov[1, 1] - 2.0 * cov[0, 1])
-    scale = max(float(cov[0, 0]), float(cov[1, 1]), 1e-300)
-    if not var > 1e-14 * scale:
+    var = float(bracket[0, 0] + bracket[1, 1] - 2.0 * bracket[0, 1])
+    if not var > 1e-14 * max(float(bracket[0, 0]), float(bracket[1, 1]), 1e-300):
         raise InputError(
             "score_a and score_b give a difference of ROC areas with standard error 0 (they "
             "rank the cases the same way, or both separate the classes); the paired test "
             "does not exist"
         )
-    se = math.sqrt(var)
-    z = diff / se
+    root = math.sqrt(scale)
+    se = math.sqrt(var) / root
+    z = diff / math.sqrt(var) * root
     q = float(dist.normal_quantile(0.5 + level / 2.0))
     return ROCAreaDifference(
         areas=np.array([pa[6], pb[6]]),
         difference=diff,
-        covariance=cov,
+        covariance=bracket / scale,
         standard_error=se,
         statistic=z,
-        p_value=float(min(1.0, 2.0 * dist.normal_sf(abs(z)))),
+        p_value=two_sided(z),
         lower=diff - q * se,
         upper=diff + q * se,
         level=level,

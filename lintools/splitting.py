@@ -35,7 +35,7 @@ import numpy as np
 
 from ._errors import InputError, LintoolsWarning, warn_caller
 from ._iterative_stratification import assign_groups, iterative_stratification
-from ._validate import as_labels
+from ._validate import ReadOnlyArrays, as_labels
 
 __all__ = [
     "SmallClassWarning",
@@ -559,7 +559,7 @@ def stratified_bootstrap(
 
 
 @dataclass(frozen=True)
-class SplitBalance:
+class SplitBalance(ReadOnlyArrays):
     """Per-part class counts of a split and how far they are from proportional.
 
     Attributes
@@ -669,7 +669,5 @@ def split_balance(y: Any, parts: Any, *, continuous_bins: int | None = None) -> 
     totals = _totals(target)
     expected = np.outer(sizes, totals) / target.n
     shares = counts / sizes[:, None] - totals[None, :] / target.n
-    for a in (names, counts, sizes, expected):
-        a.flags.writeable = False
     return SplitBalance(names, target.classes, counts, sizes, expected,
                         float(np.abs(counts - expected).max()), float(np.abs(shares).max()))
