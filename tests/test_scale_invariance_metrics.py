@@ -192,6 +192,8 @@ def exact_delong(y, scores, w):
     v01 = [[sum(wf[i] * psi(s, i, j) for i in pos) / W1 for j in neg] for s in scores]
     area = [sum(wf[i] * v[k] for k, i in enumerate(pos)) / W1 for v in v10]
     m = len(scores)
+    if W1 <= 1 or W0 <= 1:  # DeLong's divisors W - 1 vanish: no covariance
+        return area, None, W1, W0
     cov = [[sum(wf[i] * (v10[a][k] - area[a]) * (v10[b][k] - area[b]) for k, i in enumerate(pos)) / ((W1 - 1) * W1)
             + sum(wf[j] * (v01[a][k] - area[a]) * (v01[b][k] - area[b]) for k, j in enumerate(neg)) / ((W0 - 1) * W0)
             for b in range(m)] for a in range(m)]
