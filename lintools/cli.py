@@ -29,6 +29,7 @@ from __future__ import annotations
 
 import argparse
 import dataclasses
+import functools
 import sys
 from typing import Any
 
@@ -139,9 +140,12 @@ def _version() -> str:
 
 def build_parser() -> argparse.ArgumentParser:
     """The argument parser of the command line (every subcommand)."""
-    parser = argparse.ArgumentParser(prog="lintools", description="Fit and audit linear and logistic models.")
+    parser = argparse.ArgumentParser(prog="lintools", description="Fit and audit linear and logistic models.",
+                                     allow_abbrev=False)
     parser.add_argument("--version", action="version", version=_version())
-    sub = parser.add_subparsers(dest="command", required=True)
+    # options are spelt out in full: an abbreviation never stands for --replace or another option
+    sub = parser.add_subparsers(dest="command", required=True,
+                                parser_class=functools.partial(argparse.ArgumentParser, allow_abbrev=False))
 
     def common(p: argparse.ArgumentParser) -> None:
         p.add_argument("--json", action="store_true", help="print one JSON document instead of text")

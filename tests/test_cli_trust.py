@@ -235,6 +235,14 @@ def test_check_refuses_options_that_do_not_apply_to_the_delivered_model(capsys, 
     assert code == 1 and "did not converge" in err and "raise --max-iter" in err
 
 
+def test_options_are_not_abbreviated(capsys, spector, tmp_path):
+    path, _ = spector
+    model = tmp_path / "m.json"
+    model.write_text("keep me")
+    code, _, err = cli(capsys, "fit", path, "--target", "GRADE", "--save", model, "--rep")
+    assert code == 2 and "unrecognized arguments: --rep" in err and model.read_text() == "keep me"
+
+
 def test_version(capsys):
     code, out, _ = cli(capsys, "--version")
     assert code == 0 and out.strip() == f"lintools {lt.__version__}"
