@@ -200,9 +200,8 @@ def whole(low: int, high: int | None = None) -> Callable[[str], int]:
         value = 0 if too_long else int(digits)
         if too_long or value < low or (high is not None and value > high):
             raise argparse.ArgumentTypeError(f"{digits} is out of range; pass a whole number {span}")
-        return int(digits)
+        return value
 
-    parse.__name__ = "whole number"
     return parse
 
 
