@@ -5,20 +5,26 @@ mean forecast per bin), the Brier score with Murphy's decomposition, the binned
 calibration error, the Hosmer-Lemeshow test, Cox's calibration line and
 Spiegelhalter's z test, and the ROC area with its DeLong interval.  With ``--plot PATH``
 a reliability diagram is written as PNG; that needs matplotlib (the ``plot`` extra).
+
+The probabilities are read as those of the positive label: the larger of the two labels
+unless ``--positive`` names it; the command says which (on standard error), and warns
+when the ROC area is below 0.5, the mark of probabilities of the other class.
 """
 
 from __future__ import annotations
 
 import argparse
+import io
 from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
 
-from ._cli_common import emit_json, match_label, probabilities_from_text
+from ._cli_common import check_output_paths, emit_json, match_label, probabilities_from_text, whole
 from ._errors import InputError, LintoolsError
 
-PLOT_EXTRA = "pip install lintools[plot]"
+PLOT_EXTRA = ('the plot extra: python -m pip install -e ".[plot]" in a checkout of lintools, '
+              'or python -m pip install "matplotlib>=3.7"')
 
 
 @dataclass(frozen=True)
@@ -70,11 +76,15 @@ class CalibrationReport:
 def calibration_report(y: Any, p: np.ndarray, *, positive: Any = None, bins: int = 10, strategy: str = "width",
                        groups: int = 10, weights: Any = None) -> CalibrationReport:
     """Compute the statistics of the calibration report (used by the command and the demo)."""
-    import lintools as lt
+    from ._outcomes import binary_outcome
+    from .calibration import brier
+    from .calibration_bins import calibration_error, reliability
+    from .calibration_checks import calibration_line, hosmer_lemeshow, spiegelhalter
+    from .discrimination import roc_auc
 
-    table = lt.reliability(y, p, bins=bins, strategy=strategy, weights=weights, positive=positive)
-    b = lt.brier(y, p, weights=weights, bins=bins, positive=positive)  # Murphy terms over the same bins
-    ece = lt.calibration_error(y, p, bins=bins, strategy=strategy, weights=weights, positive=positive)
+    table = reliability(y, p, bins=bins, strategy=strategy, weights=weights, positive=positive)
+    b = brier(y, p, weights=weights, bins=bins, positive=positive)  # Murphy terms over the same bins
+    ece = calibration_error(y, p, bins=bins, strategy=strategy, weights=weights, positive=positive)
     notes = []
 
     def attempt(name: str, fn: Any) -> Any:
@@ -84,12 +94,11 @@ def calibration_report(y: Any, p: np.ndarray, *, positive: Any = None, bins: int
             notes.append(f"{name}: {exc}")
             return None
 
-    hl = attempt("Hosmer-Lemeshow test", lambda: lt.hosmer_lemeshow(y, p, groups=groups, weights=weights, positive=positive))
-    line = attempt("calibration line", lambda: lt.calibration_line(y, p, weights=weights, positive=positive))
-    sp = attempt("Spiegelhalter test", lambda: lt.spiegelhalter(y, p, weights=weights, positive=positive))
-    auc = attempt("ROC area", lambda: lt.roc_auc(y, p, weights=weights, positive=positive))
-    labels = sorted(set(np.asarray(y, dtype=object).tolist()), key=str)
-    pos = positive if positive is not None else max(labels) if len(labels) == 2 else None
+    hl = attempt("Hosmer-Lemeshow test", lambda: hosmer_lemeshow(y, p, groups=groups, weights=weights, positive=positive))
+    line = attempt("calibration line", lambda: calibration_line(y, p, weights=weights, positive=positive))
+    sp = attempt("Spiegelhalter test", lambda: spiegelhalter(y, p, weights=weights, positive=positive))
+    auc = attempt("ROC area", lambda: roc_auc(y, p, weights=weights, positive=positive))
+    _, (_, pos) = binary_outcome(y, positive)
     return CalibrationReport(rows=len(p), positive=pos, reliability=table, brier=b, calibration_error=float(ece),
                              hosmer_lemeshow=hl, calibration_line=line, spiegelhalter=sp, roc_area=auc,
                              notes=tuple(notes))
@@ -147,8 +156,17 @@ def _weights(table: Any, args: argparse.Namespace) -> np.ndarray:
     return np.array(out)
 
 
+def swapped_class_warning(rep: CalibrationReport) -> str | None:
+    """The warning for a ROC area below 0.5: the forecasts rank the other class higher."""
+    if rep.roc_area is None or not rep.roc_area.area < 0.5:
+        return None
+    return (f"the ROC area is {rep.roc_area.area:.3g}, below 0.5: the probabilities may be for the other class: "
+            f"see --positive (they are read as those of class '{rep.positive!s}')")
+
+
 def run_calibration(args: argparse.Namespace) -> int:
     """The ``calibration`` subcommand."""
+    from ._files import write_atomic
     from .table import read_table
 
     if args.plot is not None:  # fail before any work when the extra is missing
@@ -156,6 +174,7 @@ def run_calibration(args: argparse.Namespace) -> int:
             import matplotlib  # noqa: F401
         except ImportError:
             raise InputError(f"--plot needs matplotlib, which is not installed: {PLOT_EXTRA}") from None
+    check_output_paths([("CSV file", args.csv)], [("--plot", args.plot)], args.replace)
     if args.label == args.probability:
         raise InputError("--label and --probability name the same column; pass two columns")
     extra = [args.probability] + ([args.weights] if args.weights else [])
@@ -166,20 +185,29 @@ def run_calibration(args: argparse.Namespace) -> int:
     positive = match_label(args.positive, sorted(set(y), key=str), "--positive") if args.positive else None
     rep = calibration_report(y, p, positive=positive, bins=args.bins, strategy=args.strategy,
                              groups=args.groups, weights=w)
+    console = args.console
+    how = "chosen with --positive" if positive is not None else "the larger label; choose with --positive"
+    console.note(f"taking '{args.probability}' as the probability of class '{rep.positive!s}' ({how})")
+    swapped = swapped_class_warning(rep)
+    if swapped:
+        console.warning(swapped)
     if args.plot is not None:
-        plot_reliability(rep.reliability, args.plot, f"Reliability of '{args.probability}' for '{args.label}'")
+        png = io.BytesIO()  # drawn in memory, then written atomically
+        plot_reliability(rep.reliability, png, f"Reliability of '{args.probability}' for '{args.label}'")
+        write_atomic(args.plot, png.getvalue(), replace=args.replace, label="--plot", replace_hint="--replace")
+        console.note(f"reliability diagram written to {args.plot}")
     if args.json:
         doc = rep.to_json()
         doc.update({"data": args.csv, "label": args.label, "probability": args.probability,
-                    "dropped_rows": table.dropped, "plot": args.plot})
+                    "dropped_rows": table.dropped, "plot": args.plot,
+                    "warnings": [text for _, text in args.warnings_seen] + ([swapped] if swapped else [])})
         emit_json(doc)
     else:
         print(f"Calibration of '{args.probability}' against '{args.label}' (positive label {rep.positive}) "
               f"in {args.csv}: {rep.rows} rows" + (f", {table.dropped} dropped for missing values" if table.dropped else "")
               + "\n")
         print(rep.text())
-        if args.plot is not None:
-            print(f"reliability diagram written to {args.plot}")
+        console.caution()
     return 0
 
 
@@ -199,11 +227,12 @@ def add_calibration_parser(sub: Any, common: Any) -> None:
     p.add_argument("--probability", required=True, help="the column of forecast probabilities of the positive label")
     p.add_argument("--positive", help="the positive label (default: the larger of the two labels)")
     p.add_argument("--weights", help="column of case weights")
-    p.add_argument("--bins", type=int, default=10, help="bins of the reliability table (default 10)")
+    p.add_argument("--bins", type=whole(1), default=10, help="bins of the reliability table (default 10)")
     p.add_argument("--strategy", choices=["width", "count"], default="width",
                    help="bins of equal width (default) or of equal numbers of rows")
-    p.add_argument("--groups", type=int, default=10, help="risk groups of the Hosmer-Lemeshow test (default 10)")
+    p.add_argument("--groups", type=whole(3), default=10, help="risk groups of the Hosmer-Lemeshow test (default 10)")
     p.add_argument("--plot", metavar="PNG", help=f"write a reliability diagram to this PNG file ({PLOT_EXTRA})")
+    p.add_argument("--replace", action="store_true", help="replace an existing --plot file")
     p.add_argument("--drop-missing", action="store_true", help="drop lines with missing values instead of stopping")
     common(p)
     p.set_defaults(run=run_calibration)

@@ -18,13 +18,16 @@ import argparse
 import csv
 import dataclasses
 import sys
-import warnings
 from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
 
-from ._cli_common import CAUTION, Progress, emit_json, implied_words, match_label
+from ._cli_common import (
+    Progress, add_fit_options, class_note, emit_json, fit_options, fraction, implied_words, match_label, nonnegative,
+    refuse_inapplicable,
+)
+from ._cli_console import CAUTION, report_text
 from ._errors import InputError, IterationLimitWarning
 
 DEFAULT_SIGNIFICANCE = 0.05
@@ -148,18 +151,21 @@ def read_refit_data(args: argparse.Namespace, d: Delivered) -> tuple[Any, np.nda
 
 
 def _refit(d: Delivered, table: Any, X: np.ndarray, target: str, args: argparse.Namespace, progress: Progress) -> Any:
-    import lintools
-
     l2 = args.l2 if args.l2 is not None else (d.l2 or 0.0)
     with_b = d.intercept is not None
     if d.kind == "least_squares":
+        from .least_squares import least_squares
+
         if not all(isinstance(v, (int, float)) for v in table.target):
             raise InputError(f"target column '{target}' holds text; a least-squares model needs numbers")
-        fit = lintools.least_squares(
+        fit = least_squares(
             X, np.array(table.target, dtype=float), weights=table.weights, intercept=with_b, l2=l2,
             covariance=args.covariance or d.covariance_type or "classical", names=d.names,
+            rank_deficient="minimum_norm" if args.minimum_norm else "raise", weight_type=args.weight_type or "case",
         )
     elif d.kind == "logistic":
+        from .logistic import logistic
+
         labels = sorted(set(table.target), key=str)
         if len(labels) != 2:
             raise InputError(f"target column '{target}' has {len(labels)} distinct labels; a logistic model needs two")
@@ -167,17 +173,19 @@ def _refit(d: Delivered, table: Any, X: np.ndarray, target: str, args: argparse.
             positive = match_label(args.positive, labels, "--positive")
         else:
             positive = _positive_in(d.positive, labels)
-        fit = lintools.logistic(
-            X, list(table.target), weights=table.weights, intercept=with_b, l2=l2, solver=args.solver,
-            names=d.names, on_iteration=progress, positive=positive,
+        fit = logistic(
+            X, list(table.target), weights=table.weights, intercept=with_b, l2=l2, firth=args.firth,
+            names=d.names, on_iteration=progress, positive=positive, **fit_options(args),
         )
     else:
+        from .softmax import softmax
+
         reference = d.reference
         if reference not in ("first", None):
             reference = match_label(str(reference), sorted(set(table.target), key=str), "the model's reference class")
-        fit = lintools.softmax(
+        fit = softmax(
             X, list(table.target), weights=table.weights, intercept=with_b, l2=l2, reference=reference,
-            solver=args.solver, names=d.names, on_iteration=progress,
+            names=d.names, on_iteration=progress, **fit_options(args),
         )
     return dataclasses.replace(fit, target=target)
 
@@ -226,16 +234,16 @@ def run_check(args: argparse.Namespace) -> int:
     """The ``check`` subcommand."""
     from .crosscheck import compare_coefficients, implied_l2
 
-    if not 0.0 < args.significance < 1.0:
-        raise InputError(f"--significance must lie strictly between 0 and 1; got {args.significance!r}")
-    if args.max_difference is not None and not args.max_difference >= 0.0:
-        raise InputError(f"--max-difference must be a number >= 0; got {args.max_difference!r}")
     d = read_delivered(args.model)
+    refuse_inapplicable(args, d.kind, "the delivered model")
     table, X, target = read_refit_data(args, d)
-    progress = Progress(args.quiet, "refit")
-    with warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always")
-        fit = _refit(d, table, X, target, args, progress)
+    fit = _refit(d, table, X, target, args, Progress(args.quiet, "refit"))
+    chosen = "chosen with --positive" if args.positive is not None else "as in the model file; choose with --positive"
+    note_words = class_note(fit, {"logistic": chosen,
+                                  "softmax": "as in the model file"})
+    if note_words:
+        args.console.note(note_words)
+    caught = args.warnings_seen
     coef, intercept, note = d.coefficients, d.intercept, None
     if d.kind == "softmax":
         coef, intercept, note = _softmax_delivered(d, fit)
@@ -258,8 +266,7 @@ def run_check(args: argparse.Namespace) -> int:
         what = "response" if d.kind == "least_squares" else "probability"
         reasons.append(f"the largest difference in predicted {what} ({gap:.3g}) exceeds --max-difference "
                        f"{args.max_difference:g}")
-    not_converged = (not fit.convergence.converged) or any(
-        issubclass(w.category, IterationLimitWarning) for w in caught)
+    not_converged = (not fit.convergence.converged) or any(issubclass(c, IterationLimitWarning) for c, _ in caught)
     agree = not reasons and not not_converged
 
     if args.json:
@@ -269,23 +276,22 @@ def run_check(args: argparse.Namespace) -> int:
             "comparison": cmp, "implied_l2": implied, "implied_l2_words": implied_text, "note": note,
             "tolerance": {"significance": args.significance, "max_difference": args.max_difference},
             "agree": agree, "reasons": reasons, "refit_converged": not not_converged,
-            "warnings": [str(w.message) for w in caught], "caution": CAUTION,
+            "warnings": [text for _, text in caught], "caution": CAUTION,
         })
     else:
-        _print_text(args, d, fit, cmp, implied_text, note, reasons, target, X.shape[0], table.dropped, caught)
+        _print_text(args, d, fit, cmp, implied_text, note, reasons, target, X.shape[0], table.dropped)
+        args.console.caution()
     if not_converged:
         print("lintools: the refit did not converge; the comparison is not meaningful", file=sys.stderr)
         return 1
     return 0 if agree else 1
 
 
-def _print_text(args, d, fit, cmp, implied_text, note, reasons, target, n, dropped, caught) -> None:
-    for w in caught:
-        print(f"warning: {w.message}", file=sys.stderr)
+def _print_text(args, d, fit, cmp, implied_text, note, reasons, target, n, dropped) -> None:
     print(f"Check of {args.model} ({d.file_format}, {d.kind} model of '{target}')")
     print(f"against a refit on {args.csv} ({n} rows{f', {dropped} dropped for missing values' if dropped else ''})\n")
     print("Refit")
-    print(fit.report())
+    print(report_text(fit))
     print("Delivered minus refit (differences also in refit standard errors)")
     print(cmp.report())
     if note:
@@ -300,7 +306,6 @@ def _print_text(args, d, fit, cmp, implied_text, note, reasons, target, n, dropp
         print("Verdict: DISAGREE: " + "; ".join(reasons))
     else:
         print("Verdict: AGREE within the tolerance")
-    print(CAUTION)
 
 
 def add_check_parser(sub: Any, common: Any) -> None:
@@ -320,14 +325,12 @@ def add_check_parser(sub: Any, common: Any) -> None:
     p.add_argument("model", help="the delivered model file: lintools JSON or PMML 4.4 (recognised by content)")
     p.add_argument("csv", help="CSV file with a header line: the development data")
     p.add_argument("--target", help="the response column (default: the target named in the model file)")
-    p.add_argument("--positive", help="logistic: the label whose probability the model gives (default: from the file)")
     p.add_argument("--weights", help="column of case weights")
-    p.add_argument("--l2", type=float, help="ridge strength of the refit (default: the model file's, else 0)")
-    p.add_argument("--covariance", help="least squares: classical, HC0, HC1, HC2 or HC3 (default: the file's)")
-    p.add_argument("--solver", default="newton", help="logistic and softmax: newton, lbfgs or gradient")
-    p.add_argument("--significance", type=float, default=DEFAULT_SIGNIFICANCE,
+    p.add_argument("--l2", type=nonnegative, help="ridge strength of the refit (default: the model file's, else 0)")
+    add_fit_options(p, "the label whose probability the model gives (default: from the file)")
+    p.add_argument("--significance", type=fraction, default=DEFAULT_SIGNIFICANCE,
                    help="disagree when the Wald test's p-value is below this (default 0.05)")
-    p.add_argument("--max-difference", type=float, default=None,
+    p.add_argument("--max-difference", type=nonnegative, default=None,
                    help="also disagree when the largest absolute difference in predicted probability "
                         "(least squares: predicted response) on the CSV rows exceeds this (default: not used)")
     p.add_argument("--drop-missing", action="store_true", help="drop lines with missing values instead of stopping")

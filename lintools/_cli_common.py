@@ -1,27 +1,32 @@
 """Pieces shared by the command-line subcommands (see :mod:`lintools.cli`).
 
-Nothing here is public API: the caution text, strict-JSON output, the progress callback
-for long fits, and small readers for command-line values.
+Nothing here is public API: strict-JSON output, the progress callback for long fits, the
+readers of numeric option values, the check of output paths, and small readers for
+command-line values.
 """
 
 from __future__ import annotations
 
+import argparse
 import dataclasses
 import json
 import math
+import os
+import re
 import sys
 import time
-from typing import Any, Callable, Sequence
+from typing import Any, Callable, Iterable, Sequence
 
 import numpy as np
 
 from ._errors import InputError
+from ._files import check_outputs
 
-CAUTION = (
-    "Caution: statistical agreement is not model validation. Where these results feed "
-    "decisions about people (credit, health, safety), local regulation and your "
-    "organisation's model-risk practice decide what is required."
-)
+#: Seeds are whole numbers from 0 to this (they fit a signed 64-bit integer).
+MAX_SEED = 2**63 - 1
+
+_WHOLE = re.compile(r"[+-]?[0-9]+")
+_DECIMAL = re.compile(r"[+-]?(?:[0-9]+\.?[0-9]*|\.[0-9]+)(?:[eE][+-]?[0-9]+)?")
 
 #: A fit must have run this many seconds before its progress lines appear.
 PROGRESS_DELAY = 1.0
@@ -147,3 +152,145 @@ def implied_words(implied: Any, total_weight: float) -> str:
                 "another model.")
     return (f"Implied ridge strength: l2 {implied.l2:.6g} (relative residual {implied.residual:.3g}): the delivered "
             "slopes are close to a ridge optimum with that penalty; refit with --l2 to compare like with like.")
+
+
+def _decimal(text: str, want: str) -> float:
+    """A command-line number: ASCII digits, one decimal point, optional exponent; finite."""
+    if not _DECIMAL.fullmatch(text.strip()):
+        raise argparse.ArgumentTypeError(f"{text!r} is not a number; pass {want}")
+    value = float(text)
+    if not math.isfinite(value):
+        raise argparse.ArgumentTypeError(f"{text!r} is too large; pass {want}")
+    return value
+
+
+def nonnegative(text: str) -> float:
+    """Option type: a finite number >= 0."""
+    value = _decimal(text, "a number >= 0")
+    if value < 0:
+        raise argparse.ArgumentTypeError(f"{text} is negative; pass a number >= 0")
+    return value
+
+
+def positive_number(text: str) -> float:
+    """Option type: a finite number > 0."""
+    value = _decimal(text, "a number > 0")
+    if not value > 0:
+        raise argparse.ArgumentTypeError(f"{text} is not above 0; pass a number > 0")
+    return value
+
+
+def fraction(text: str) -> float:
+    """Option type: a number strictly between 0 and 1."""
+    value = _decimal(text, "a number strictly between 0 and 1")
+    if not 0.0 < value < 1.0:
+        raise argparse.ArgumentTypeError(f"{text} is not strictly between 0 and 1; pass such a number")
+    return value
+
+
+def whole(low: int, high: int | None = None) -> Callable[[str], int]:
+    """Option type: a whole number (ASCII digits) from ``low`` to ``high`` (no limit: None)."""
+    span = f"from {low} to {high}" if high is not None else f">= {low}"
+
+    def parse(text: str) -> int:
+        digits = text.strip()
+        if not _WHOLE.fullmatch(digits):
+            raise argparse.ArgumentTypeError(f"{text!r} is not a whole number; pass a whole number {span}")
+        too_long = len(digits.lstrip("+-").lstrip("0")) > 30  # beyond any limit; int() of it is slow
+        value = 0 if too_long else int(digits)
+        if too_long or value < low or (high is not None and value > high):
+            raise argparse.ArgumentTypeError(f"{digits} is out of range; pass a whole number {span}")
+        return value
+
+    return parse
+
+
+def check_output_paths(inputs: Iterable[tuple[str, Any]], outputs: Iterable[tuple[str, Any]], replace: bool) -> None:
+    """Before any work is done: refuse an output that is an input or another output
+    (:func:`lintools._files.check_outputs`), an existing output without ``--replace``, a
+    folder given as an output file, and an output in a folder that does not exist.
+    ``inputs`` and ``outputs`` are ``(option or argument, path)`` pairs; None paths are skipped."""
+    outputs = list(outputs)
+    check_outputs(inputs, outputs)
+    for what, path in outputs:
+        if path is None:
+            continue
+        if os.path.isdir(path):
+            raise InputError(f"{what} {path!r} is a folder; pass the path of a file")
+        if os.path.lexists(path) and not replace:
+            raise InputError(f"{what} {path!r} exists; choose a new path or pass --replace to replace it")
+        folder = os.path.dirname(os.path.abspath(path))
+        if not os.path.isdir(folder):
+            raise InputError(f"{what} {path!r} cannot be written: the folder {folder!r} does not exist")
+
+
+#: Options of ``fit`` and ``check`` that apply to some kinds of model only (argparse
+#: dest -> the kinds they apply to).
+ONLY_FOR = {
+    "covariance": ("least_squares",),
+    "minimum_norm": ("least_squares",),
+    "weight_type": ("least_squares",),
+    "solver": ("logistic", "softmax"),
+    "tol": ("logistic", "softmax"),
+    "max_iter": ("logistic", "softmax"),
+    "firth": ("logistic",),
+    "positive": ("logistic",),
+    "reference": ("softmax",),
+    "symmetric": ("softmax",),
+}
+KIND_WORDS = {"least_squares": "least-squares", "logistic": "logistic", "softmax": "softmax"}
+COVARIANCES = ("classical", "HC0", "HC1", "HC2", "HC3")
+SOLVERS = ("newton", "lbfgs", "gradient")
+
+
+def add_fit_options(p: argparse.ArgumentParser, positive_help: str) -> None:
+    """The fit settings that ``fit`` and ``check`` share; each applies to some kinds of model
+    only (:data:`ONLY_FOR`), and is None (or False) when not given."""
+    p.add_argument("--covariance", choices=COVARIANCES,
+                   help="least squares: classical, HC0, HC1, HC2 or HC3 (default: fit classical, check the file's)")
+    p.add_argument("--minimum-norm", action="store_true",
+                   help="least squares: with aliased (linearly dependent) columns, the minimum-norm solution "
+                        "instead of an error")
+    p.add_argument("--weight-type", choices=("case", "precision"),
+                   help="least squares: --weights are case weights (default; a weight of 2 is two copies of the "
+                        "row) or precision weights (relative; only their ratios matter)")
+    p.add_argument("--solver", choices=SOLVERS, help="logistic and softmax: newton (default), lbfgs or gradient")
+    p.add_argument("--tol", type=positive_number,
+                   help="logistic and softmax: stop when the max-abs (scale-free) gradient is below this "
+                        "(default 1e-10)")
+    p.add_argument("--max-iter", type=whole(1),
+                   help="logistic and softmax: iteration limit (default 100; the gradient solvers need more)")
+    p.add_argument("--firth", action="store_true",
+                   help="logistic: Firth's bias-reduced estimates (finite under separation; not with --l2)")
+    p.add_argument("--positive", help=f"logistic: {positive_help}")
+
+
+def fit_options(args: argparse.Namespace) -> dict:
+    """The solver settings given on the command line (the library's defaults stand for the others)."""
+    given = {"solver": args.solver, "tol": args.tol, "max_iter": args.max_iter}
+    return {k: v for k, v in given.items() if v is not None}
+
+
+def refuse_inapplicable(args: argparse.Namespace, kind: str, where: str) -> None:
+    """Refuse an option of :data:`ONLY_FOR` that was given but does not apply to ``kind``."""
+    for dest, kinds in ONLY_FOR.items():
+        value = getattr(args, dest, None)
+        if value is not None and value is not False and kind not in kinds:
+            applies = " and ".join(KIND_WORDS[k] for k in kinds)
+            raise InputError(f"--{dest.replace('_', '-')} does not apply to {where} (a {KIND_WORDS[kind]} model); "
+                             f"it applies to {applies} models only: leave it out")
+
+
+def class_note(fit: Any, hints: dict[str, str]) -> str | None:
+    """Which class a fitted classifier models, in words, followed by ``hints[fit.kind]``
+    (how to choose it); None for a least-squares fit."""
+    if fit.kind == "logistic":
+        other = [c for c in fit.classes if c != fit.positive_class]
+        against = f" against '{other[0]!s}'" if other else ""
+        return f"modelling the probability of class '{fit.positive_class!s}'{against} ({hints['logistic']})"
+    if fit.kind == "softmax":
+        quoted = ", ".join(f"'{c!s}'" for c in fit.classes)
+        ref = (f"the coefficients of class '{fit.reference_class!s}' are pinned at zero"
+               if fit.reference_class is not None else "symmetric form, intercepts with mean zero")
+        return f"modelling the probabilities of classes {quoted}; {ref} ({hints['softmax']})"
+    return None

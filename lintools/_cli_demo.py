@@ -12,6 +12,10 @@ Steps (data from :mod:`lintools.demo`, generated from known true coefficients):
 7. files: ``report.txt``, the model files (JSON and PMML), the supplier's PMML file, the
    data as CSV (to try ``lintools check`` and ``lintools calibration`` on), and the
    reliability diagram ``reliability.png`` when matplotlib is installed.
+
+The folder must be new or empty unless ``--replace`` is given (then the demo's files in
+it are replaced and nothing else is touched); every file is written to a temporary file
+and renamed into place.  ``--rows`` is at most :data:`MAX_ROWS`.
 """
 
 from __future__ import annotations
@@ -19,6 +23,7 @@ from __future__ import annotations
 import argparse
 import csv
 import dataclasses
+import io
 import math
 import os
 import time
@@ -27,20 +32,24 @@ from typing import Any
 import numpy as np
 
 from . import _distributions as dist
-from ._cli_common import CAUTION, Progress, emit_json
+from ._cli_common import MAX_SEED, Progress, emit_json, whole
+from ._cli_console import CAUTION
 from ._cli_demo_words import calibration_words, comparison_words, truth_table
 from ._errors import InputError
 
 DEFAULT_FOLDER = "lintools-demo"
+#: Fewest and most inspection records the demo generates (``--rows``).
+MIN_ROWS, MAX_ROWS = 200, 200_000
 
 
-def _csv(path: str, data: Any, supplier_p: np.ndarray) -> None:
-    with open(path, "w", newline="", encoding="utf-8") as fh:
-        w = csv.writer(fh)
-        w.writerow(list(data.names) + ["fill_deviation", "leak", "defect", "supplier_leak_probability"])
-        for i in range(data.X.shape[0]):
-            w.writerow([repr(float(v)) for v in data.X[i]] + [repr(float(data.fill_deviation[i])), str(bool(data.leak[i])),
-                                                             data.defect[i], repr(float(supplier_p[i]))])
+def _csv_text(data: Any, supplier_p: np.ndarray) -> str:
+    out = io.StringIO(newline="")
+    w = csv.writer(out)
+    w.writerow(list(data.names) + ["fill_deviation", "leak", "defect", "supplier_leak_probability"])
+    for i in range(data.X.shape[0]):
+        w.writerow([repr(float(v)) for v in data.X[i]] + [repr(float(data.fill_deviation[i])), str(bool(data.leak[i])),
+                                                         data.defect[i], repr(float(supplier_p[i]))])
+    return out.getvalue()
 
 
 def _combine(estimates: np.ndarray, ses: np.ndarray, sizes: np.ndarray) -> tuple[float, float]:
@@ -62,19 +71,22 @@ def cross_validate(X: np.ndarray, y: np.ndarray, names: tuple, k: int, seed: int
     unbiased estimate of the full variance of k-fold cross-validation exists (Bengio &
     Grandvalet 2004), so the spread of the fold estimates is shown beside it.
     """
-    import lintools as lt
+    from .calibration import brier
+    from .discrimination import roc_auc
+    from .logistic import logistic
+    from .splitting import stratified_folds
 
-    folds = lt.stratified_folds(y, k=k, seed=seed)
+    folds = stratified_folds(y, k=k, seed=seed)
     rows = []
     for j in range(k):
         test = folds == j
-        fit = lt.logistic(X[~test], y[~test], names=names, on_iteration=Progress(quiet, f"fold {j + 1} fit"))
+        fit = logistic(X[~test], y[~test], names=names, on_iteration=Progress(quiet, f"fold {j + 1} fit"))
         p = fit.mean(X[test])
         o = y[test].astype(float)
         sq = (p - o) ** 2
-        auc = lt.roc_auc(y[test], p)
+        auc = roc_auc(y[test], p)
         rows.append({"fold": j + 1, "rows": int(test.sum()), "positives": int(y[test].sum()),
-                     "brier": float(lt.brier(y[test], p).score), "brier_se": float(sq.std(ddof=1) / math.sqrt(sq.size)),
+                     "brier": float(brier(y[test], p).score), "brier_se": float(sq.std(ddof=1) / math.sqrt(sq.size)),
                      "auc": auc.area, "auc_se": auc.standard_error, "auc_lower": auc.lower, "auc_upper": auc.upper,
                      "converged": bool(fit.convergence.converged)})
     n = np.array([r["rows"] for r in rows], dtype=float)
@@ -122,11 +134,10 @@ def _cv_text(cv: dict) -> str:
 
 def _softmax_step(data: Any, quiet: bool) -> tuple[Any, str]:
     """Softmax fit of the defect class, the class without a defect as the reference."""
-    import lintools as lt
-
     from .demo import DEFECT_CLASSES, true_defect_raw
+    from .softmax import softmax
 
-    fit = lt.softmax(data.X, list(data.defect), names=data.names, reference=DEFECT_CLASSES[0],
+    fit = softmax(data.X, list(data.defect), names=data.names, reference=DEFECT_CLASSES[0],
                      on_iteration=Progress(quiet, "defect fit"))
     fit = dataclasses.replace(fit, target="defect")
     B, b = true_defect_raw()
@@ -144,41 +155,65 @@ def _softmax_step(data: Any, quiet: bool) -> tuple[Any, str]:
     return fit, text
 
 
-def _write_models(folder: str, stem: str, fit: Any, written: list) -> None:
-    from .io import save
-    from .pmml import write_pmml
+def _prepare_folder(folder: str, replace: bool) -> None:
+    """Create the output folder; refuse a file, or a non-empty folder unless ``replace``."""
+    try:
+        if os.path.lexists(folder) and not os.path.isdir(folder):
+            raise InputError(f"--out {folder!r} is a file, not a folder; choose another --out")
+        if os.path.isdir(folder) and os.listdir(folder) and not replace:
+            raise InputError(f"the output folder {folder!r} is not empty; choose another --out, or pass --replace "
+                             "to write the demo's files into it (files of the same names are replaced)")
+        os.makedirs(folder, exist_ok=True)
+    except OSError as exc:
+        raise InputError(f"cannot create the output folder {folder!r}: {exc.strerror}") from None
 
-    for ext, writer in ((".json", save), (".pmml", write_pmml)):
-        path = os.path.join(folder, stem + ext)
-        writer(fit, path)
-        written.append(path)
+
+class _Files:
+    """The demo's files: each written atomically into the folder, listed in order."""
+
+    def __init__(self, folder: str, replace: bool) -> None:
+        self.folder, self.replace, self.written = folder, replace, []
+
+    def path(self, name: str) -> str:
+        return os.path.join(self.folder, name)
+
+    def put(self, name: str, data: bytes | str) -> None:
+        from ._files import write_atomic
+
+        write_atomic(self.path(name), data, replace=self.replace, label="demo file", replace_hint="--replace")
+        self.written.append(self.path(name))
+
+    def model(self, stem: str, fit: Any) -> None:
+        from .io import save
+        from .pmml import write_pmml
+
+        for ext, writer in ((".json", save), (".pmml", write_pmml)):
+            writer(fit, self.path(stem + ext), replace=self.replace)
+            self.written.append(self.path(stem + ext))
 
 
 def run_demo(args: argparse.Namespace) -> int:
     """The ``demo`` subcommand."""
-    import lintools as lt
-
-    from .demo import FEATURES, TRUE_FILL_DEVIATION, inspection_data, supplier_leak_record, true_leak_raw
-    from .pmml import write_pmml
     from ._cli_calibration import PLOT_EXTRA, calibration_report, plot_reliability
+    from .crosscheck import compare_coefficients, implied_l2
+    from .demo import FEATURES, TRUE_FILL_DEVIATION, inspection_data, supplier_leak_record, true_leak_raw
+    from .least_squares import least_squares
+    from .logistic import logistic
+    from .pmml import write_pmml
 
     start = time.perf_counter()
-    if args.rows < 200:
-        raise InputError(f"--rows {args.rows} is too few for the demo; pass at least 200")
     folder = args.out
-    try:
-        os.makedirs(folder, exist_ok=True)
-    except OSError as exc:
-        raise InputError(f"cannot create the output folder {folder!r}: {exc.strerror}") from None
+    _prepare_folder(folder, args.replace)
     data = inspection_data(n=args.rows, seed=args.seed)
     quiet = args.quiet
-    written: list[str] = []
+    files = _Files(folder, args.replace)
+    written = files.written
     notes: list[str] = []
 
-    ls = dataclasses.replace(lt.least_squares(data.X, data.fill_deviation, names=data.names), target="fill_deviation")
+    ls = dataclasses.replace(least_squares(data.X, data.fill_deviation, names=data.names), target="fill_deviation")
     ls_truth = truth_table(FEATURES, np.array([TRUE_FILL_DEVIATION[f] for f in FEATURES]), TRUE_FILL_DEVIATION["intercept"],
                            ls.coefficients, ls.intercept, ls.standard_errors, ls.intercept_standard_error)
-    leak = lt.logistic(data.X, data.leak, names=data.names, on_iteration=Progress(quiet, "leak fit"))
+    leak = logistic(data.X, data.leak, names=data.names, on_iteration=Progress(quiet, "leak fit"))
     leak = dataclasses.replace(leak, target="leak")
     slopes, b_true = true_leak_raw()
     leak_truth = truth_table(FEATURES, np.array([slopes[f] for f in FEATURES]), b_true, leak.coefficients,
@@ -186,31 +221,28 @@ def run_demo(args: argparse.Namespace) -> int:
     defect, defect_text = _softmax_step(data, quiet)
 
     supplier = supplier_leak_record()
-    cmp = lt.compare_coefficients(leak, supplier.coefficients, supplier.intercept, X=data.X, y=data.leak)
-    implied = lt.implied_l2(data.X, data.leak, supplier.coefficients, supplier.intercept)
+    cmp = compare_coefficients(leak, supplier.coefficients, supplier.intercept, X=data.X, y=data.leak)
+    implied = implied_l2(data.X, data.leak, supplier.coefficients, supplier.intercept)
     p_sup = supplier.mean(data.X)
     cal = calibration_report(data.leak, p_sup)
     cv = cross_validate(data.X, data.leak, data.names, 5, args.seed, quiet)
 
-    _csv(os.path.join(folder, "inspection.csv"), data, p_sup)
-    written.append(os.path.join(folder, "inspection.csv"))
-    write_pmml(supplier, os.path.join(folder, "supplier_leak.pmml"))
-    written.append(os.path.join(folder, "supplier_leak.pmml"))
-    _write_models(folder, "fill_deviation", ls, written)
-    _write_models(folder, "leak", leak, written)
-    _write_models(folder, "defect", defect, written)
-    png = os.path.join(folder, "reliability.png")
+    files.put("inspection.csv", _csv_text(data, p_sup))
+    write_pmml(supplier, files.path("supplier_leak.pmml"), replace=args.replace)
+    written.append(files.path("supplier_leak.pmml"))
+    files.model("fill_deviation", ls)
+    files.model("leak", leak)
+    files.model("defect", defect)
+    png = io.BytesIO()
     try:
         plot_reliability(cal.reliability, png, "Supplier's leak probabilities on the inspection data")
-        written.append(png)
     except InputError:
-        png = None
         notes.append(f"reliability.png not written: matplotlib is not installed ({PLOT_EXTRA})")
+    else:
+        files.put("reliability.png", png.getvalue())
 
     cmp_words = comparison_words(cmp, implied, leak, float(data.X.shape[0]))
     cal_words = calibration_words(cal)
-    report_path = os.path.join(folder, "report.txt")
-    written.append(report_path)
     rule = "=" * 78
     sections = [
         "lintools demo: a bottling plant's inspection station (invented data)",
@@ -229,14 +261,13 @@ def run_demo(args: argparse.Namespace) -> int:
         rule, "6. Stratified 5-fold cross-validation of the refit leak model", rule, _cv_text(cv), "",
         f"For comparison, the supplier's model on all rows (not fitted on them): Brier {cal.brier.score:.5f}, "
         f"ROC area {cal.roc_area.area:.4f} [{cal.roc_area.lower:.4f}, {cal.roc_area.upper:.4f}].", "",
-        rule, "Files", rule, *written, *notes, "",
+        rule, "Files", rule, *written, files.path("report.txt"), *notes, "",
         f"Try: lintools check {os.path.join(folder, 'supplier_leak.pmml')} {os.path.join(folder, 'inspection.csv')}",
         f"     lintools calibration {os.path.join(folder, 'inspection.csv')} --label leak "
         "--probability supplier_leak_probability", "",
         CAUTION, "",
     ]
-    with open(report_path, "w", encoding="utf-8") as fh:
-        fh.write("\n".join(sections))
+    files.put("report.txt", "\n".join(sections))
     elapsed = time.perf_counter() - start
     flagged = [t for t, z in zip(cmp.terms, cmp.difference_in_se) if abs(z) > _bonferroni(len(cmp.terms))]
     if args.json:
@@ -269,7 +300,7 @@ def run_demo(args: argparse.Namespace) -> int:
     print(f"  report and files in {folder}{os.sep} ({len(written)} files; {elapsed:.1f} s)")
     for n in notes:
         print(f"  note: {n}")
-    print(CAUTION)
+    args.console.caution()
     return 0
 
 
@@ -285,8 +316,13 @@ def add_demo_parser(sub: Any, common: Any) -> None:
                     "calibration of the supplier's probabilities and the cross-validated Brier score and ROC "
                     "area of the refit; write report.txt, model files and a reliability diagram into a folder.",
     )
-    p.add_argument("--out", default=DEFAULT_FOLDER, help=f"output folder (default ./{DEFAULT_FOLDER}/)")
-    p.add_argument("--rows", type=int, default=2000, help="number of inspection records (default 2000)")
-    p.add_argument("--seed", type=int, default=20261201, help="seed of the data generator and the folds")
+    p.add_argument("--out", default=DEFAULT_FOLDER,
+                   help=f"output folder, new or empty unless --replace (default ./{DEFAULT_FOLDER}/)")
+    p.add_argument("--replace", action="store_true",
+                   help="write into a folder that is not empty (the demo's files in it are replaced)")
+    p.add_argument("--rows", type=whole(MIN_ROWS, MAX_ROWS), default=2000,
+                   help=f"number of inspection records, {MIN_ROWS} to {MAX_ROWS} (default 2000)")
+    p.add_argument("--seed", type=whole(0, MAX_SEED), default=20261201,
+                   help=f"seed of the data generator and the folds, 0 to {MAX_SEED} (default 20261201)")
     common(p)
     p.set_defaults(run=run_demo)

@@ -11,7 +11,10 @@ cores (an idle OpenBLAS thread keeps spinning for a while after each call).
 * :func:`session` (a context manager; the fits enter it) sets NumPy's OpenBLAS to one
   thread and restores the caller's setting on exit.  The number of row threads is the
   BLAS thread count found on entry, at most the CPUs this process may use; the
-  environment variable ``LINTOOLS_THREADS`` overrides it (``1`` turns the pool off).
+  environment variable ``LINTOOLS_THREADS`` overrides it (``1`` turns the pool off): a
+  whole number from 1 up, written in ASCII digits, of which at most :data:`MAX_THREADS`
+  are used; anything else (``0``, ``-2``, ``two``, ``1.5``) is an :class:`InputError`,
+  whatever the BLAS.
   The BLAS stays at one thread for the whole fit whatever the number of row threads, so
   the arithmetic, and with it every digit of the result, does not depend on that number.
   When NumPy's BLAS is not an OpenBLAS whose thread count can be set through ``ctypes``
@@ -41,8 +44,13 @@ from typing import Any, Callable, Iterator
 
 import numpy as np
 
+from ._errors import InputError
+
 __all__ = ["ELEMENT_CHUNK", "session", "whole_blas", "with_row_threads", "threads", "for_rows", "add_up",
-           "scratch", "PassBuffers"]
+           "scratch", "PassBuffers", "env_threads", "MAX_THREADS"]
+
+#: The most row threads ``LINTOOLS_THREADS`` can ask for; larger values are used as this.
+MAX_THREADS = 64
 
 #: Entries per chunk of an elementwise pass over the rows (128 KB of float64 per array).
 ELEMENT_CHUNK = 1 << 14
@@ -129,15 +137,20 @@ def _cpus() -> int:
         return max(1, os.cpu_count() or 1)
 
 
-def _wanted(blas_threads: int) -> int:
+def env_threads() -> int | None:
+    """The number of row threads ``LINTOOLS_THREADS`` asks for (None: unset or blank).
+
+    Raises :class:`InputError` naming the variable unless it is a whole number >= 1 in
+    ASCII digits; values above :data:`MAX_THREADS` give :data:`MAX_THREADS`.
+    """
     text = os.environ.get("LINTOOLS_THREADS", "").strip()
-    if text:
-        try:
-            return max(1, min(int(text), 64))
-        except ValueError:
-            raise ValueError(f"LINTOOLS_THREADS={text!r} is not a whole number; set it to the number of "
-                             "row threads (1 turns them off) or unset it") from None
-    return max(1, min(blas_threads, _cpus()))
+    if not text:
+        return None
+    digits = text.lstrip("0")
+    if not (text.isascii() and text.isdigit()) or not digits:
+        raise InputError(f"the environment variable LINTOOLS_THREADS is {text!r}, not a whole number >= 1; "
+                         "set it to the number of row threads (1 turns them off) or unset it")
+    return MAX_THREADS if len(digits) > 3 else min(int(digits), MAX_THREADS)
 
 
 @contextlib.contextmanager
@@ -147,6 +160,7 @@ def session() -> Iterator[int]:
     if _state["owner"] == me:  # nested: the outer session already holds everything
         yield _state["threads"]
         return
+    asked = env_threads()  # a bad setting is refused whatever the BLAS
     _lock.acquire()  # a fit on another thread meanwhile waits for this one (see the module doc)
     try:
         control = _lookup()
@@ -154,7 +168,7 @@ def session() -> Iterator[int]:
         if control is not None:
             setter, getter = control
             before = int(getter())
-            count = _wanted(before)
+            count = asked if asked is not None else max(1, min(before, _cpus()))
             if before != 1:
                 setter(1)
                 restore = before

@@ -9,138 +9,148 @@ calibration  calibration report of a probability column; a reliability diagram w
 folds        write a CSV file with a stratified fold-id column added
 
 Exit codes: 0 success, 1 a check failed (or a fit did not converge), 2 bad input.
-``--json`` prints one machine-readable JSON document on standard output instead of text
-(non-finite numbers become ``null``).  Per-iteration progress goes to standard error for
-fits that take longer than a second, unless ``--quiet``.
+Standard output carries only the requested output: the report, or with ``--json`` one
+machine-readable JSON document (non-finite numbers become ``null``).  Standard error
+carries errors, and, unless ``--quiet``, warnings (one line each, ``lintools: warning:``),
+notes (which class is modelled, dropped lines, files written), progress lines of fits
+that take longer than a second, and the caution paragraph.
 
-The subcommands live in ``_cli_check.py``, ``_cli_calibration.py`` and ``_cli_demo.py``;
-shared pieces in ``_cli_common.py``.
+Nothing is lost: no output may be an input of the same command or another of its
+outputs, an existing output file is replaced only with ``--replace`` (checked before any
+work is done), and every file is written to a temporary file and renamed into place.
+An option that does not apply to the chosen model is refused.  Messages from the library
+name the options, not its Python arguments (:mod:`lintools._cli_console`).
+
+The subcommands live in ``_cli_check.py``, ``_cli_calibration.py``, ``_cli_demo.py`` and
+``_cli_folds.py``; shared pieces in ``_cli_common.py`` and ``_cli_console.py``.
 """
 
 from __future__ import annotations
 
 import argparse
-import csv
 import dataclasses
+import functools
 import sys
-import warnings
 from typing import Any
 
 import numpy as np
 
 from ._cli_calibration import add_calibration_parser
 from ._cli_check import add_check_parser
-from ._cli_common import CAUTION, Progress, column_list, emit_json
+from ._cli_common import (
+    Progress, add_fit_options, check_output_paths, class_note, column_list, emit_json, fit_options, match_label, nonnegative,
+    refuse_inapplicable,
+)
+from ._cli_console import CAUTION, Console, QuietPipe, report_text, translate, warnings_to_stderr
 from ._cli_demo import add_demo_parser
+from ._cli_folds import add_folds_parser
 from ._errors import InputError, IterationLimitWarning, LintoolsError
 
 __all__ = ["CAUTION", "build_parser", "main"]
 
+#: ``--model`` values and the kinds of model they fit.
+MODELS = {"linear": "least_squares", "logistic": "logistic", "softmax": "softmax"}
+
 
 def _fit_table(table: Any, args: argparse.Namespace, progress: Progress) -> Any:
-    from . import least_squares
-
+    intercept = not args.no_intercept
     if args.model == "linear":
+        from .least_squares import least_squares
+
         if not all(isinstance(v, (int, float)) for v in table.target):
             raise InputError(f"target column '{args.target}' holds text; a linear model needs numbers")
         return least_squares(
-            table.X, np.array(table.target, dtype=float), weights=table.weights, l2=args.l2,
-            covariance=args.covariance, names=table.names,
+            table.X, np.array(table.target, dtype=float), weights=table.weights, intercept=intercept, l2=args.l2,
+            covariance=args.covariance or "classical", names=table.names,
+            rank_deficient="minimum_norm" if args.minimum_norm else "raise", weight_type=args.weight_type or "case",
         )
-    import lintools
+    labels = sorted(set(table.target), key=str)
+    common = dict(weights=table.weights, intercept=intercept, l2=args.l2, names=table.names, on_iteration=progress,
+                  **fit_options(args))
+    if args.model == "logistic":
+        from .logistic import logistic
 
-    fn = getattr(lintools, args.model)
-    return fn(
-        table.X, list(table.target), weights=table.weights, l2=args.l2, solver=args.solver, tol=args.tol,
-        max_iter=args.max_iter, names=table.names, on_iteration=progress,
-        **({"positive": _positive(table, args)} if args.model == "logistic" else {}),
-    )
+        positive = match_label(args.positive, labels, "--positive") if args.positive is not None else None
+        return logistic(table.X, list(table.target), positive=positive, firth=args.firth, **common)
+    from .softmax import softmax
+
+    return softmax(table.X, list(table.target), reference=_reference(args, labels), **common)
 
 
-def _positive(table: Any, args: argparse.Namespace) -> Any:
-    from ._cli_common import match_label
-
-    return match_label(args.positive, sorted(set(table.target), key=str), "--positive") if args.positive else None
+def _reference(args: argparse.Namespace, labels: list) -> Any:
+    """The ``reference`` argument of the softmax fit from ``--reference`` and ``--symmetric``."""
+    if args.symmetric:
+        return None
+    if args.reference is None or (args.reference == "first" and "first" not in map(str, labels)):
+        return "first"
+    return match_label(args.reference, labels, "--reference")
 
 
 def _cmd_fit(args: argparse.Namespace) -> int:
     from .io import save
+    from .pmml import write_pmml
     from .table import read_table
 
+    console: Console = args.console
+    refuse_inapplicable(args, MODELS[args.model], f"--model {args.model}")
+    if args.symmetric and args.reference is not None:
+        raise InputError("--reference and --symmetric exclude each other (--symmetric pins no class); pass one")
+    check_output_paths([("CSV file", args.csv)], [("--save", args.save), ("--save-pmml", args.save_pmml)],
+                       args.replace)
     table = read_table(
         args.csv, target=args.target, features=column_list(args.features), weights=args.weights,
         drop_missing=args.drop_missing,
     )
-    progress = Progress(args.quiet, "fit")
-    with warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always")
-        fit = _fit_table(table, args, progress)
+    fit = _fit_table(table, args, Progress(args.quiet, "fit"))
     if any(f.name == "target" for f in dataclasses.fields(fit)):
         fit = dataclasses.replace(fit, target=args.target)  # so that a model file names its target column
+    note = class_note(fit, {"logistic": "choose with --positive",
+                            "softmax": "choose with --reference, or --symmetric with --l2"})
+    if note:
+        console.note(note)
+    if table.dropped:
+        console.note(f"{table.dropped} line(s) with missing values dropped")
     if args.save:
-        save(fit, args.save)
+        save(fit, args.save, replace=args.replace)
+        console.note(f"model written to {args.save}")
     if args.save_pmml:
-        from .pmml import write_pmml
-
-        write_pmml(fit, args.save_pmml)
-    converged = bool(fit.convergence.converged)
+        write_pmml(fit, args.save_pmml, replace=args.replace)
+        console.note(f"model written to {args.save_pmml}")
+    seen = args.warnings_seen
     if args.json:
-        emit_json({"fit": fit.to_dict(), "warnings": [str(w.message) for w in caught],
-                    "dropped_rows": table.dropped, "reference_levels": table.reference_levels})
+        emit_json({"fit": fit.to_dict(), "warnings": [text for _, text in seen],
+                   "dropped_rows": table.dropped, "reference_levels": table.reference_levels})
     else:
-        for w in caught:
-            print(f"warning: {w.message}", file=sys.stderr)
-        if table.dropped:
-            print(f"{table.dropped} line(s) with missing values dropped", file=sys.stderr)
-        print(fit.report())
+        print(report_text(fit))
         if table.reference_levels:
             refs = ", ".join(f"{k}={v}" for k, v in table.reference_levels.items())
             print(f"reference levels of text columns: {refs}")
-        for path in (args.save, args.save_pmml):
-            if path:
-                print(f"model written to {path}")
-        print(CAUTION)
-    if not converged or any(issubclass(w.category, IterationLimitWarning) for w in caught):
+        console.caution()
+    if not fit.convergence.converged or any(issubclass(c, IterationLimitWarning) for c, _ in seen):
         print("lintools: the fit did not converge; its numbers are not an optimum", file=sys.stderr)
         return 1
     return 0
 
 
-def _cmd_folds(args: argparse.Namespace) -> int:
-    from .splitting import stratified_folds
-    from .table import read_table
+def _version() -> str:
+    from . import __version__
 
-    extra = [args.label] + ([args.groups] if args.groups else [])
-    table = read_table(args.csv, target=None, features=[], extra=extra)
-    groups = table.extra[args.groups] if args.groups else None
-    folds = stratified_folds(list(table.extra[args.label]), k=args.k, seed=args.seed, groups=groups)
-    with open(args.csv, newline="", encoding="utf-8-sig") as fh:
-        rows = list(csv.reader(fh))
-    header = rows[0]
-    if args.column in [h.strip() for h in header]:
-        raise InputError(f"the file already has a column named '{args.column}'; pass another --column")
-    by_line = dict(zip(table.lines.tolist(), folds.tolist()))
-    with open(args.out, "w", newline="", encoding="utf-8") as fh:
-        writer = csv.writer(fh)
-        writer.writerow(header + [args.column])
-        for lineno, row in enumerate(rows[1:], start=2):
-            if lineno in by_line:
-                writer.writerow(row + [by_line[lineno]])
-    counts = np.bincount(folds, minlength=args.k).tolist()
-    if args.json:
-        emit_json({"folds": args.k, "rows_per_fold": counts, "written": args.out})
-    else:
-        print(f"{len(folds)} rows in {args.k} folds (rows per fold: {counts}); written to {args.out}")
-    return 0
+    return f"lintools {__version__}"
 
 
 def build_parser() -> argparse.ArgumentParser:
-    parser = argparse.ArgumentParser(prog="lintools", description="Fit and audit linear and logistic models.")
-    sub = parser.add_subparsers(dest="command", required=True)
+    """The argument parser of the command line (every subcommand)."""
+    parser = argparse.ArgumentParser(prog="lintools", description="Fit and audit linear and logistic models.",
+                                     allow_abbrev=False)
+    parser.add_argument("--version", action="version", version=_version())
+    # options are spelt out in full: an abbreviation never stands for --replace or another option
+    sub = parser.add_subparsers(dest="command", required=True,
+                                parser_class=functools.partial(argparse.ArgumentParser, allow_abbrev=False))
 
     def common(p: argparse.ArgumentParser) -> None:
         p.add_argument("--json", action="store_true", help="print one JSON document instead of text")
-        p.add_argument("--quiet", action="store_true", help="no progress lines on standard error")
+        p.add_argument("--quiet", action="store_true",
+                       help="nothing on standard error but errors: no notes, warnings, progress or caution")
 
     add_demo_parser(sub, common)
 
@@ -148,52 +158,65 @@ def build_parser() -> argparse.ArgumentParser:
     fit.add_argument("csv", help="CSV file with a header line")
     fit.add_argument("--target", required=True, help="the response column")
     fit.add_argument("--features", help="feature columns, comma-separated (default: all others)")
-    fit.add_argument("--model", choices=["linear", "logistic", "softmax"], default="linear")
-    fit.add_argument("--l2", type=float, default=0.0, help="ridge strength on the slopes (default 0)")
+    fit.add_argument("--model", choices=list(MODELS), default="linear")
+    fit.add_argument("--l2", type=nonnegative, default=0.0, help="ridge strength on the slopes (default 0)")
     fit.add_argument("--weights", help="column of case weights")
-    fit.add_argument("--covariance", default="classical", help="linear model: classical, HC0, HC1, HC2 or HC3")
-    fit.add_argument("--solver", default="newton", help="logistic and softmax: newton, lbfgs or gradient")
-    fit.add_argument("--tol", type=float, default=1e-10,
-                     help="logistic and softmax: stop when the max-abs (scale-free) gradient is below this (default 1e-10)")
-    fit.add_argument("--max-iter", type=int, default=100,
-                     help="logistic and softmax: iteration limit (default 100; the gradient solvers need more)")
+    fit.add_argument("--no-intercept", action="store_true", help="fit without an intercept")
     fit.add_argument("--drop-missing", action="store_true", help="drop lines with missing values instead of stopping")
-    fit.add_argument("--positive", help="logistic: the label whose probability is modelled (default: the larger)")
-    fit.add_argument("--save", help="write the fitted model to this JSON model file")
-    fit.add_argument("--save-pmml", help="write the fitted model to this PMML 4.4 file")
+    add_fit_options(fit, "the label whose probability is modelled (default: the larger of the two)")
+    fit.add_argument("--reference",
+                     help="softmax: the class whose coefficients are pinned at zero (default: first, the smallest)")
+    fit.add_argument("--symmetric", action="store_true",
+                     help="softmax: no class pinned at zero, intercepts with mean zero (needs --l2 above 0)")
+    fit.add_argument("--save", metavar="JSON", help="write the fitted model to this JSON model file")
+    fit.add_argument("--save-pmml", metavar="PMML", help="write the fitted model to this PMML 4.4 file")
+    fit.add_argument("--replace", action="store_true", help="replace existing --save and --save-pmml files")
     common(fit)
     fit.set_defaults(run=_cmd_fit)
 
     add_check_parser(sub, common)
     add_calibration_parser(sub, common)
-
-    folds = sub.add_parser("folds", help="add a stratified fold-id column to a CSV file")
-    folds.add_argument("csv", help="CSV file with a header line")
-    folds.add_argument("--label", required=True, help="the class-label column to stratify on")
-    folds.add_argument("--k", type=int, default=5, help="number of folds (default 5)")
-    folds.add_argument("--seed", type=int, default=0)
-    folds.add_argument("--groups", help="column of group labels; a group is never split")
-    folds.add_argument("--column", default="fold", help="name of the new column (default 'fold')")
-    folds.add_argument("--out", required=True, help="the CSV file to write")
-    common(folds)
-    folds.set_defaults(run=_cmd_folds)
+    add_folds_parser(sub, common)
     return parser
 
 
-def main(argv: list[str] | None = None) -> int:
-    parser = build_parser()
+def _run(args: argparse.Namespace) -> int:
+    from ._threads import env_threads
+
+    args.console = Console(args.quiet)
     try:
-        args = parser.parse_args(argv)
-    except SystemExit as exc:  # argparse: 2 on bad usage, 0 on --help
-        return int(exc.code or 0)
-    try:
-        return args.run(args)
+        env_threads()  # a bad LINTOOLS_THREADS is bad input before any work
+        with warnings_to_stderr(args.console) as seen:
+            args.warnings_seen = seen
+            return args.run(args)
     except InputError as exc:
-        print(f"lintools: bad input: {exc}", file=sys.stderr)
+        print(f"lintools: bad input: {translate(str(exc))}", file=sys.stderr)
         return 2
     except LintoolsError as exc:
-        print(f"lintools: {exc}", file=sys.stderr)
+        print(f"lintools: {translate(str(exc))}", file=sys.stderr)
         return 1
     except OSError as exc:
         print(f"lintools: {exc}", file=sys.stderr)
         return 2
+    except MemoryError:
+        print("lintools: out of memory: the data are too large for this machine", file=sys.stderr)
+        return 2
+    except KeyboardInterrupt:
+        print("lintools: interrupted", file=sys.stderr)
+        return 130
+
+
+def main(argv: list[str] | None = None) -> int:
+    """Run the command line with ``argv`` (default: ``sys.argv[1:]``); return the exit code."""
+    saved = sys.stdout, sys.stderr
+    sys.stdout, sys.stderr = out, err = QuietPipe(sys.stdout), QuietPipe(sys.stderr)
+    try:
+        try:
+            args = build_parser().parse_args(argv)
+        except SystemExit as exc:  # argparse: 2 on bad usage, 0 on --help and --version
+            return int(exc.code or 0)
+        return _run(args)
+    finally:
+        out.flush()
+        err.flush()
+        sys.stdout, sys.stderr = saved

@@ -46,7 +46,7 @@ def test_our_own_json_model_agrees_with_its_refit(spector, tmp_path):
     assert doc["comparison"]["max_abs_prediction_difference"] < 1e-12
     assert "not model validation" in doc["caution"]
     text = run("check", str(model), str(path))
-    assert text.returncode == 0 and "Verdict: AGREE" in text.stdout and "not model validation" in text.stdout
+    assert text.returncode == 0 and "Verdict: AGREE" in text.stdout and "not model validation" in text.stderr
 
 
 DISAGREE_SLOPES, DISAGREE_INTERCEPT = [1.2, 0.05, 1.0], -8.0
@@ -74,7 +74,7 @@ def test_a_disagreeing_pmml_model_exits_1_with_the_hand_computed_statistics(spec
         np.r_[DISAGREE_INTERCEPT, DISAGREE_SLOPES], k_constraints=4)
     assert np.isclose(cmp["score_statistic"], s_sm[0], rtol=1e-10)
     text = run("check", str(model), str(path))
-    assert text.returncode == 1 and "Verdict: DISAGREE" in text.stdout and "Caution" in text.stdout
+    assert text.returncode == 1 and "Verdict: DISAGREE" in text.stdout and "Caution" in text.stderr
 
 
 def test_the_tolerance_options_decide_the_verdict(spector, tmp_path):
@@ -179,7 +179,7 @@ def test_bad_input_exits_2_with_a_message(spector, tmp_path):
     cases.append(((str(tmp_path / "absent.json"), str(path)), "cannot read the model file"))
     d.drop(columns=["TUCE"]).to_csv(tmp_path / "short.csv", index=False)
     cases.append(((str(model), str(tmp_path / "short.csv")), "feature 'TUCE' is not a column"))
-    cases.append(((str(model), str(path), "--significance", "0"), "--significance must lie strictly between"))
+    cases.append(((str(model), str(path), "--significance", "0"), "argument --significance: 0 is not strictly between 0 and 1"))
     cases.append(((str(model), str(path), "--positive", "yes"), "--positive 'yes' is not one of the labels"))
     for args, fragment in cases:
         proc = run("check", *args)
