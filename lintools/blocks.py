@@ -16,7 +16,8 @@ of y and the weights, and each label's first row and total weight; see
 :class:`lintools._block_stream.BlockChecksums`).  A source that returns other rows on a
 later pass (drawn afresh, shuffled, or with noise added) is refused with an
 :class:`lintools.InputError` naming the block, instead of giving a fit of no data set.
-Measured by ``benchmarks/block_checksum.py``, the checksum costs about 1-4% of a pass.
+Measured by ``benchmarks/block_checksum.py`` (2 cores, one BLAS thread), the checksums
+cost 0.8-2.0% of a later pass and 2.7-4.5% of the first (which also sums ``|X|``).
 Data whose magnitudes sum beyond ``2**500`` over the blocks (a column near 1e300, weights
 of 1e308) are refused too: the fits' sums of weighted squares would overflow.
 

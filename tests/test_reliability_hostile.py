@@ -435,7 +435,7 @@ def specs(tmp: Path) -> list[Spec]:
         spec("logistic[lbfgs]", lt.logistic, ("X", "y"), args={"X": X, "y": YB, "solver": "lbfgs", "l2": 0.5},
              only=("X", "y", "l2", "tol", "max_iter")),
         spec("logistic[firth]", lt.logistic, ("X", "y"), args={"X": XSEP, "y": YB, "firth": True},
-             only=("X", "y", "weights", "profile", "l2")),
+             only=("X", "y", "weights", "trials", "profile", "l2")),
         spec("softmax", lt.softmax, ("X", "y"), args={"X": X, "y": Y3, "weights": W, "offset": np.zeros((N, 3))}, **cb),
         spec("softmax[symmetric]", lt.softmax, ("X", "y"), args={"X": X, "y": Y3, "reference": None, "l2": 1.0},
              only=("X", "y", "l2", "solver")),
@@ -582,7 +582,8 @@ KNOWN: list[Known] = [
           "and softmax fronts): X near 1e300-1e308 overflows in exp2, matmul or square (RuntimeWarning)"),
     Known(LOGISTIC + ("softmax",), "weights", EXTREME, "logistic.py (~404), solvers/problem.py (~184), "
           "solvers/base.py (~162): weights of 1e308 overflow a sum, weights of 1e-320 a division (RuntimeWarning)"),
-    Known(LOGISTIC, "trials", EXTREME, "logistic.py (~403): trials of 1e308 overflow (RuntimeWarning)"),
+    Known(LOGISTIC, "trials", EXTREME, "logistic.py (~403): trials of 1e308 overflow (RuntimeWarning); with "
+          "firth=True losses.py (~95) raises OverflowError 'math range error' from math.lgamma"),
     Known(("logistic",), "offset", EXTREME, "losses.py (~234): an offset of 1e308 overflows in matmul (RuntimeWarning)"),
     Known(("logistic[[]firth]",), "profile", ("True", "np.bool"), "solvers/base.py (~131): the profile intervals of "
           "a Firth fit on separated data take the square root of a negative number (RuntimeWarning)"),
