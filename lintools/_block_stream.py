@@ -1,9 +1,17 @@
-"""Reading, checking and reducing row blocks for :mod:`lintools.blocks` (streams and Dask)."""
+"""Reading, checking and reducing row blocks for :mod:`lintools.blocks` (streams and Dask).
+
+Every pass over the blocks checks each block (shape, values, labels, weights) and, from
+the second pass on, that it is the block of the first pass: a *checksum* of each block is
+taken on the first pass and compared on every later one (see :class:`BlockChecksums`).
+A source that returns different data on a later pass (rows drawn afresh, shuffled, or
+augmented with noise) would otherwise give a fit of no data set at all, marked converged.
+"""
 
 from __future__ import annotations
 
+import inspect
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Any, Callable
 
 import numpy as np
@@ -11,7 +19,7 @@ import numpy as np
 from ._errors import (
     InputError,
     )
-from ._validate import as_matrix, as_vector
+from ._validate import as_matrix, as_vector, check_finite
 from .logistic import _labels
 
 
@@ -60,7 +68,7 @@ def _response_codes(index: int, yb: Any, m: int, classes: tuple) -> np.ndarray:
 def _class_indices(index: int, yb: Any, m: int, classes: tuple) -> np.ndarray:
     """Indices of ``yb``'s labels in the known ``classes``; a label not seen before is an error."""
     numeric = all(isinstance(c, (bool, int, float, np.number)) and abs(c) < 2.0**53 for c in classes)
-    if numeric and isinstance(yb, np.ndarray) and yb.ndim == 1 and yb.shape[0] == m and yb.dtype.kind in "biuf":
+    if numeric and type(yb) is np.ndarray and yb.ndim == 1 and yb.shape[0] == m and yb.dtype.kind in "biuf":
         known = np.asarray(classes, dtype=float)
         at = np.minimum(np.searchsorted(known, yb), len(classes) - 1)
         if bool(np.all(known[at] == yb)):  # the common case, without a dictionary
@@ -117,13 +125,35 @@ def _check_two(seen: dict) -> None:
     )
 
 
-def check_block(index: int, item: Any, spec: BlockSpec) -> tuple[np.ndarray, Any, np.ndarray | None, Any]:
-    """Validate one block; return ``(X, y, weights or None, column names or None)``.
+#: Largest sum of magnitudes (of a column of X, of y, of the weights) over all blocks that
+#: the blocked fits accept: 2**500, about 3e150.  Their sums of weighted squares (R factors,
+#: information matrices, residual sums) stay below the float64 range for data within it.
+SUM_LIMIT = 2.0**500
+
+
+def _too_large(what: str, column: int | None = None, names: Any = None, total: float = math.inf,
+               index: int | None = None) -> None:
+    """Refuse a column of X, y or the weights whose magnitudes sum beyond :data:`SUM_LIMIT`
+    (over the rows of block ``index``, or over all blocks)."""
+    if column is not None:
+        what += f" column {column}" + (f" ('{names[column]}')" if names is not None and column < len(names) else "")
+    where, over = (f"block {index}: ", "the rows of the block") if index is not None else ("", "the blocks")
+    raise InputError(
+        f"{where}{what} is too large for a blocked fit: its magnitudes sum to {total:.3g} over {over}, "
+        f"beyond {SUM_LIMIT:.3g}, where the fit's weighted sums of squares would overflow; rescale "
+        f"{what} (divide by a power of ten; the fit changes only as the mathematics says), or fit "
+        "in memory"
+    )
+
+
+def check_block(index: int, item: Any, spec: BlockSpec, first: bool = False) -> tuple:
+    """Validate one block; return ``(X, y, weights or None, column names or None, sums)``.
 
     ``y`` is a float array (numeric response), a label summary (``spec.labels ==
     "collect"`` or :data:`COLLECT_ALL`), 0/1 codes of the positive class, or class
     indices (a :class:`ClassIndex`).  Errors name the block, the row
-    within the block, the column and the remedy.
+    within the block, the column and the remedy.  ``sums`` are the sums of X of
+    :func:`block_sums`: the finiteness check of the block and a part of its checksum.
     """
     if not isinstance(item, (tuple, list)) or len(item) not in (2, 3):
         what = f"a {type(item).__name__}" + (f" of length {len(item)}" if isinstance(item, (tuple, list)) else "")
@@ -132,7 +162,11 @@ def check_block(index: int, item: Any, spec: BlockSpec) -> tuple[np.ndarray, Any
             "(X_block, y_block) or (X_block, y_block, weights_block)"
         )
     try:
-        X, found = as_matrix(item[0], "X")
+        X, found = as_matrix(item[0], "X", check_finite=False)
+        sums = block_sums(X, first)
+        if not np.isfinite(sums[0][0]):
+            check_finite(X, "X", found)  # names the first NaN or infinity
+            _too_large("X", index=index)
     except InputError as exc:
         raise _prefixed(index, exc) from None
     m, q = X.shape
@@ -161,11 +195,17 @@ def check_block(index: int, item: Any, spec: BlockSpec) -> tuple[np.ndarray, Any
                 f"block {index}: weights has a negative value ({w[i]:g}) at row {i} of the block; "
                 "weights must be >= 0"
             )
+        with np.errstate(over="ignore"):
+            if not np.isfinite(np.add.reduce(w)):
+                _too_large("weights", index=index)
     if spec.labels is None:
         try:
             y = as_vector(item[1], "y", m)
         except InputError as exc:
             raise _prefixed(index, exc) from None
+        with np.errstate(over="ignore"):
+            if not np.isfinite(np.add.reduce(y)):
+                _too_large("y", index=index)
     elif isinstance(spec.labels, str) and spec.labels == "collect":
         y = _label_summary(index, item[1], m, w)
     elif isinstance(spec.labels, str) and spec.labels == COLLECT_ALL:
@@ -174,15 +214,179 @@ def check_block(index: int, item: Any, spec: BlockSpec) -> tuple[np.ndarray, Any
         y = _class_indices(index, item[1], m, spec.labels.classes)
     else:
         y = _response_codes(index, item[1], m, spec.labels)
-    return X, y, w, found
+    return X, y, w, found, sums
 
 
-def run_task(kernel: Callable, index: int, item: Any, spec: BlockSpec, args: tuple) -> dict:
-    """Check a block and apply ``kernel(X, y, w, *args)`` to it (the map step of a pass)."""
-    X, y, w, _ = check_block(index, item, spec)
+# ---------------------------------------------------------------------------------------
+# Checksums: the same block on every pass
+# ---------------------------------------------------------------------------------------
+
+
+CHANGED_REMEDY = (
+    "the block source must return the same rows on every call, in the same order: read them "
+    "from a file or a fixed array, and draw any random sample or noise once, before the fit"
+)
+#: Elements of the pieces in which a block's sums are formed (a piece stays in cache).
+_PIECE = 1 << 15
+#: The second sum of a checksum takes every ``_STRIDE``-th value: it sees values move.
+_STRIDE = 7
+
+
+def block_sums(X: np.ndarray, first: bool) -> tuple[np.ndarray, float | None]:
+    """The sums of a block's X: of all values, of every ``_STRIDE``-th value (row-major
+    order), and on the ``first`` pass of the magnitudes.
+
+    The values are taken in row-major order, in pieces of a fixed number of rows (a view
+    of a row-major block, a copy of one piece otherwise), and each piece's sums are added
+    to the running totals: the same numbers give the same bits whatever the memory layout
+    of the block, so the checksums of two passes can be compared exactly.  The first sum
+    is also the finiteness check of the block; the second moves when values move between
+    positions (rows reordered, columns swapped).
+    """
+    m, p = X.shape
+    rows = max(1, _PIECE // max(p, 1))
+    sums = np.zeros(2)
+    mag = 0.0 if first else None
+    with np.errstate(over="ignore", invalid="ignore"):
+        for lo in range(0, m, rows):
+            flat = np.ravel(X[lo : lo + rows])
+            sums += (np.add.reduce(flat), np.add.reduce(flat[::_STRIDE]))
+            if mag is not None:
+                mag += float(np.add.reduce(np.abs(flat)))
+    return sums, mag
+
+
+def _vector_sums(v: np.ndarray) -> np.ndarray:
+    """The sums of all values of ``v`` and of every ``_STRIDE``-th one (NumPy's pairwise
+    summation, whose order depends only on the length)."""
+    with np.errstate(over="ignore", invalid="ignore"):
+        return np.array([np.add.reduce(v), np.add.reduce(v[::_STRIDE])])
+
+
+@dataclass
+class BlockPrint:
+    """The checksum of one block on one pass (see :class:`BlockChecksums`)."""
+
+    rows: int
+    x_sums: np.ndarray
+    x_ends: np.ndarray
+    x_mag: float | None = None  # first pass only: the sums of |X| and of |y|
+    y_mag: float | None = None
+    w_sums: np.ndarray | None = None
+    y_sums: np.ndarray | None = None
+    labels: dict | None = None  # first pass of a classifier: label -> (first row, total weight)
+    code_sums: np.ndarray | None = None  # later passes: sums of the class codes
+    code_rows: np.ndarray | None = None  # ... and each code's first row and total weight
+    code_totals: np.ndarray | None = None
+
+
+def block_print(X: np.ndarray, sums: tuple, y: Any, w: np.ndarray | None, spec: BlockSpec) -> BlockPrint:
+    """The checksum of a checked block (``sums`` and ``y`` as :func:`check_block` returns
+    them for ``spec``)."""
+    m = X.shape[0]
+    ends = np.stack([X[0], X[-1]]) if m else np.zeros((2, X.shape[1]))
+    pr = BlockPrint(m, sums[0], ends, sums[1])
+    if w is not None:
+        pr.w_sums = _vector_sums(w)
+    if isinstance(y, dict):  # the first pass of a classifier: the labels of the block
+        pr.labels = {c: (v[1], v[2]) for c, v in y.items()}
+    elif spec.labels is None:  # a numeric response
+        pr.y_sums = _vector_sums(y)
+        if sums[1] is not None:
+            with np.errstate(over="ignore"):
+                pr.y_mag = float(np.add.reduce(np.abs(y)))
+    else:  # class codes: 0/1 for the binary fit, indices into the classes for softmax
+        c = y.astype(np.int64)  # exact integer sums; the row-number-weighted one sees any move of a label
+        pr.code_sums = np.array([c.sum(), np.arange(1, m + 1, dtype=np.int64) @ c], dtype=np.int64)
+        top = int(c.max()) + 1 if m else 0
+        pr.code_rows = np.full(top, -1, dtype=np.int64)
+        pr.code_rows[c[::-1]] = np.arange(m - 1, -1, -1)  # the last write wins: each code's first row
+        pr.code_totals = np.bincount(c, weights=w, minlength=top)
+    return pr
+
+
+@dataclass
+class BlockChecksums:
+    """Checksums of the blocks of the first pass, compared with every later pass.
+
+    Per block: its rows; the sum of X (which is the finiteness check of the block as
+    well) and the sum of every seventh value of X in row-major order, and its first and
+    last rows; the same two sums of y and of the weights; for labels, each label's first
+    row and total weight, and the plain and row-number-weighted sums of the class codes
+    (exact integers).  Every sum is formed in a fixed
+    order (:func:`block_sums`), so the same numbers give the same bits on every pass and
+    the checksums are compared exactly: changed values, values or labels moved to other
+    rows (unless only between rows seven apart) are refused, whatever the memory layout
+    or float type the block comes in.  Cost per pass: one sum over X in cache-sized
+    pieces (shared with the finiteness check) with a sum over a seventh of it, sums over
+    y and the weights, and on the first pass a sum of ``|X|`` (measured by
+    ``benchmarks/block_checksum.py``).
+    """
+
+    prints: dict[int, BlockPrint] = field(default_factory=dict)
+    totals: dict[str, Any] = field(default_factory=dict)
+
+    def compare(self, index: int, passes: int, new: BlockPrint, spec: BlockSpec, names: Any) -> None:
+        """Keep the print of pass 1; on a later pass raise an InputError naming the block
+        and what changed when ``new`` is not the print of the same block.  On pass 1 the
+        magnitudes are added up over the blocks, and a total beyond :data:`SUM_LIMIT` is
+        refused."""
+        old = self.prints.get(index)
+        if old is None:
+            self.prints[index] = new
+            self._add_up(new, names)
+            return
+        where = f"block {index} on pass {passes} differs from the same block on pass 1"
+        if not (np.array_equal(new.x_sums, old.x_sums) and np.array_equal(new.x_ends, old.x_ends)):
+            raise InputError(f"{where}: X holds other values or rows in another order; {CHANGED_REMEDY}")
+        if old.w_sums is not None and new.w_sums is not None and not np.array_equal(new.w_sums, old.w_sums):
+            raise InputError(f"{where}: the weights hold other values or are in another order; {CHANGED_REMEDY}")
+        if old.y_sums is not None and new.y_sums is not None and not np.array_equal(new.y_sums, old.y_sums):
+            raise InputError(f"{where}: y holds other values or is in another order; {CHANGED_REMEDY}")
+        if new.code_sums is None:
+            return
+        if old.code_sums is not None:
+            if not np.array_equal(new.code_sums, old.code_sums):
+                raise InputError(f"{where}: the labels of y are other ones or in another order; {CHANGED_REMEDY}")
+            return
+        if old.labels is not None:  # the first coded pass against the labels of pass 1
+            classes = spec.labels.classes if isinstance(spec.labels, ClassIndex) else tuple(sorted(spec.labels))
+            for label, (row, total) in old.labels.items():
+                code = next((i for i, c in enumerate(classes) if c == label), len(new.code_rows))
+                if code >= len(new.code_rows) or int(new.code_rows[code]) != row or new.code_totals[code] != total:
+                    raise InputError(
+                        f"{where}: the label {label!r} is on other rows or carries another total weight; "
+                        f"{CHANGED_REMEDY}"
+                    )
+            old.code_sums = new.code_sums  # later passes compare the codes directly
+
+    def _add_up(self, pr: BlockPrint, names: Any) -> None:
+        """Sums of magnitudes over the blocks of pass 1 (X columns, y, weights); refuse one
+        beyond :data:`SUM_LIMIT`, where the fits' weighted sums of squares would overflow."""
+        with np.errstate(over="ignore", invalid="ignore"):
+            for key, value in (("X", pr.x_mag), ("y", pr.y_mag),
+                               ("weights", None if pr.w_sums is None else float(pr.w_sums[0]))):
+                if value is None:
+                    continue
+                total = self.totals.get(key, 0.0) + value
+                if not total <= SUM_LIMIT:
+                    _too_large(key, total=total)
+                self.totals[key] = total
+
+
+def run_task(kernel: Callable, index: int, item: Any, spec: BlockSpec, args: tuple, first: bool) -> tuple[dict, dict]:
+    """Check a block and apply ``kernel(X, y, w, *args)`` to it (the map step of a pass);
+    return the kernel's summary and ``{index: checksum of the block}``."""
+    X, y, w, _, sums = check_block(index, item, spec, first)
+    pr = block_print(X, sums, y, w, spec)
     out = kernel(X, y, w, *args)
     out["rows"] = X.shape[0]
-    return out
+    return out, {index: pr}
+
+
+def combine_task(combine: Callable, a: tuple, b: tuple, *cargs: Any) -> tuple[dict, dict]:
+    """``combine`` of two summaries, and the union of their blocks' checksums."""
+    return combine(a[0], b[0], *cargs), {**a[1], **b[1]}
 
 
 def _tree(parts: Any, combine: Callable, cargs: tuple) -> Any:
@@ -216,12 +420,23 @@ class _StreamRunner:
                 f"(X_block, y_block[, weights_block]) on every call; got a {type(source).__name__} "
                 "(wrap a list of blocks as lambda: iter(blocks))"
             )
+        try:
+            inspect.signature(source).bind()
+        except TypeError:
+            raise InputError(
+                "source must be callable with no arguments (it is called once per pass and must "
+                "return a fresh iterator of blocks each time); it needs arguments: bind them first, "
+                "for example lambda: read_blocks(path)"
+            ) from None
+        except ValueError:  # no signature to inspect (some builtins): the call will tell
+            pass
         self.source = source
         self.passes = 0
         self.rows: list[int] | None = None
         self.spec = BlockSpec(None, labels, None)
         self.names: tuple[str, ...] | None = None
         self._last_iterator: Any = None
+        self.checksums = BlockChecksums()
 
     def _iterator(self) -> Any:
         it = self.source()
@@ -248,10 +463,11 @@ class _StreamRunner:
         self.passes += 1
         first = self.rows is None
         rows: list[int] = []
+        iterator = self._iterator()  # here, so that an exception of source() reaches the caller as it is
 
         def parts():
-            for index, item in enumerate(self._iterator()):
-                X, y, w, found = check_block(index, item, self.spec)
+            for index, item in enumerate(iterator):
+                X, y, w, found, sums = check_block(index, item, self.spec, first)
                 if index == 0 and first:
                     self.spec = BlockSpec(X.shape[1], self.spec.labels, w is not None)
                     self.names = found
@@ -262,6 +478,8 @@ class _StreamRunner:
                         f"{expected}; source() must yield the same blocks on every pass"
                     )
                 rows.append(X.shape[0])
+                self.checksums.compare(index, self.passes, block_print(X, sums, y, w, self.spec),
+                                       self.spec, self.names)
                 out = kernel(X, y, w, *args)
                 out["rows"] = X.shape[0]
                 yield out

@@ -71,7 +71,7 @@ class _PassProblem:
     def _remember(self, z: np.ndarray, ev: Evaluation, H: np.ndarray, part: dict) -> Evaluation:
         if len(self.cache) > 4:
             self.cache.pop(next(iter(self.cache)))
-        self.cache[z.tobytes()] = (ev, 0.5 * (H + H.T), part)
+        self.cache[z.tobytes()] = (ev, 0.5 * H + 0.5 * H.T, part)  # H + H.T could overflow
         return ev
 
     def _pass(self, z: np.ndarray, step: tuple | None = None) -> dict:

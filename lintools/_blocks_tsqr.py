@@ -84,7 +84,7 @@ def _merge_factors(a: dict, b: dict, intercept: bool) -> dict:
     if intercept:
         d = b["mean"] - a["mean"]
         mean = a["mean"] + (b["W"] / W) * d
-        rows.append(math.sqrt(a["W"] * b["W"] / W) * d[None, :])
+        rows.append(math.sqrt(a["W"] / W) * math.sqrt(b["W"]) * d[None, :])  # no overflow of W_a W_b
     R = np.linalg.qr(np.vstack(rows), mode="r")
     out.update(W=W, mean=mean, R=R, lo=np.minimum(a["lo"], b["lo"]), hi=np.maximum(a["hi"], b["hi"]))
     return out

@@ -7,6 +7,9 @@ factor, or sums of a gradient and an information matrix), and summaries of adjac
 chunks are combined pairwise, level by level, into one (a binary tree of depth
 ``ceil(log2(chunks))``).  Only the summaries travel; the chunks stay where they are.
 The graph runs on the scheduler in use, a ``distributed.Client`` when one is active.
+Each chunk's task also returns the chunk's checksum, and the driver compares the
+checksums of every later pass with those of the first (a chunk recomputed from a
+non-deterministic graph, for example from ``dask.array.random`` without a seed, is refused).
 """
 
 from __future__ import annotations
@@ -17,7 +20,7 @@ from typing import Any, Callable
 import dask
 
 from ._errors import InputError
-from ._block_stream import BlockSpec, run_task
+from ._block_stream import BlockChecksums, BlockSpec, combine_task, run_task
 
 __all__ = ["DaskRunner"]
 
@@ -69,6 +72,7 @@ class DaskRunner:
         ys = y.to_delayed().ravel()
         ws = weights.to_delayed().ravel() if weights is not None else [None] * len(xs)
         self.items = [(a, b) if c is None else (a, b, c) for a, b, c in zip(xs, ys, ws)]
+        self.checksums = BlockChecksums()
 
     def reduce(self, kernel: Callable, combine: Callable, args: tuple = (), cargs: tuple = (),
                labels: Any = "same") -> Any:
@@ -76,12 +80,16 @@ class DaskRunner:
         if labels != "same":
             self.spec = BlockSpec(self.p, labels, self.spec.weights)
         self.passes += 1
+        first = self.passes == 1
         task = dask.delayed(run_task, pure=True)
-        merge = dask.delayed(combine, pure=True)
-        level = [task(kernel, i, item, self.spec, args) for i, item in enumerate(self.items)]
+        merge = dask.delayed(combine_task, pure=True)
+        level = [task(kernel, i, item, self.spec, args, first) for i, item in enumerate(self.items)]
         while len(level) > 1:
-            pairs = [merge(level[i], level[i + 1], *cargs) for i in range(0, len(level) - 1, 2)]
+            pairs = [merge(combine, level[i], level[i + 1], *cargs) for i in range(0, len(level) - 1, 2)]
             if len(level) % 2:
                 pairs.append(level[-1])
             level = pairs
-        return dask.compute(level[0])[0]
+        result, prints = dask.compute(level[0])[0]
+        for index in sorted(prints):  # the chunks of pass 1, and the same chunks on every later pass
+            self.checksums.compare(index, self.passes, prints[index], self.spec, self.names)
+        return result

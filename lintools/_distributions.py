@@ -110,21 +110,47 @@ _FISHER_DF = 1e15  # above this t_sf uses the 1/df expansion around the normal t
 
 
 # --------------------------------------------------------------------------- checks
+#: Plain words for each function, so that a message reaching a user names what could not be
+#: computed instead of an internal function name.
+_LAWS = {
+    "normal_sf": "the normal tail probability (a p-value)",
+    "normal_quantile": "the normal quantile (an interval end point)",
+    "t_sf": "the Student t tail probability (a p-value)",
+    "t_quantile": "the Student t quantile (an interval end point)",
+    "f_sf": "the F tail probability (a p-value)",
+    "chi2_sf": "the chi-square tail probability (a p-value)",
+    "chi2_quantile": "the chi-square quantile",
+    "regularized_beta": "the regularised incomplete beta function",
+    "regularized_gamma_upper": "the regularised incomplete gamma function",
+}
+#: What each argument is, in plain words.
+_ROLES = {"x": "the statistic", "z": "the statistic", "t": "the statistic", "f": "the statistic",
+          "df": "the degrees of freedom", "d1": "the numerator degrees of freedom",
+          "d2": "the denominator degrees of freedom", "p": "the probability", "a": "a shape parameter",
+          "b": "a shape parameter"}
+
+
+def _law(caller: str) -> str:
+    return _LAWS.get(caller, caller)
+
+
 def _as_array(value: ArrayLike, name: str, caller: str) -> np.ndarray:
     if np.iscomplexobj(value):
-        raise InputError(f"{caller}: argument '{name}' is complex; pass real numbers.")
+        raise InputError(f"{_law(caller)}: argument '{name}' is complex; pass real numbers.")
     try:
         arr = np.asarray(value, dtype=float)
     except (TypeError, ValueError) as exc:
         raise InputError(
-            f"{caller}: argument '{name}' cannot be read as real numbers ({exc}); "
+            f"{_law(caller)}: argument '{name}' cannot be read as real numbers ({exc}); "
             "pass a float or an array of floats."
         ) from None
     if np.isnan(arr).any():
         pos = tuple(int(i) for i in np.argwhere(np.isnan(arr))[0])
         raise InputError(
-            f"{caller}: argument '{name}' is NaN at position {pos}; "
-            "pass a number (infinities are allowed where the law has a limit)."
+            f"{_law(caller)} cannot be computed: '{name}' ({_ROLES.get(name, 'an argument')}) is NaN "
+            f"(not a number) at position {pos}. The quantity is undefined for these data; the usual "
+            "causes are a zero variance, an exact fit, or values beyond the float64 range: check "
+            "the data for them."
         )
     return arr
 
@@ -137,12 +163,12 @@ def _check_df(arr: np.ndarray, name: str, caller: str, allow_inf: bool) -> None:
     bad = ~(arr > 0)
     if bad.any():
         raise InputError(
-            f"{caller}: degrees of freedom '{name}' must be > 0; got {arr[bad].flat[0]!r} "
+            f"{_law(caller)}: degrees of freedom '{name}' must be > 0; got {arr[bad].flat[0]!r} "
             f"at position {_first_bad(bad)}. Pass positive degrees of freedom."
         )
     if not allow_inf and np.isinf(arr).any():
         raise InputError(
-            f"{caller}: argument '{name}' is infinite at position "
+            f"{_law(caller)}: argument '{name}' is infinite at position "
             f"{_first_bad(np.isinf(arr))}; pass a finite positive number."
         )
 
@@ -151,7 +177,7 @@ def _check_prob(arr: np.ndarray, name: str, caller: str) -> None:
     bad = ~((arr > 0) & (arr < 1))
     if bad.any():
         raise InputError(
-            f"{caller}: probability '{name}' must lie strictly between 0 and 1; got "
+            f"{_law(caller)}: probability '{name}' must lie strictly between 0 and 1; got "
             f"{arr[bad].flat[0]!r} at position {_first_bad(bad)}."
         )
 
@@ -159,7 +185,7 @@ def _check_prob(arr: np.ndarray, name: str, caller: str) -> None:
 def _check_size(mask: np.ndarray, what: str, caller: str) -> None:
     if mask.any():
         raise InputError(
-            f"{caller}: {what} above {_MAX_SHAPE:g} at position {_first_bad(mask)}; the "
+            f"{_law(caller)}: {what} above {_MAX_SHAPE:g} at position {_first_bad(mask)}; the "
             "series and continued fractions would need more than ~1e7 terms there. "
             "Use a normal approximation for such degrees of freedom."
         )
@@ -171,7 +197,7 @@ def _broadcast(caller: str, **arrays: np.ndarray) -> list[np.ndarray]:
     except ValueError:
         shapes = ", ".join(f"{k}{np.shape(v)}" for k, v in arrays.items())
         raise InputError(
-            f"{caller}: arguments cannot be broadcast together ({shapes}); "
+            f"{_law(caller)}: arguments cannot be broadcast together ({shapes}); "
             "pass arrays of matching shapes or scalars."
         ) from None
 
@@ -427,7 +453,7 @@ def regularized_beta(x: ArrayLike, a: ArrayLike, b: ArrayLike) -> np.ndarray | f
     bad = (xv < 0) | (xv > 1)
     if bad.any():
         raise InputError(
-            f"{caller}: argument 'x' must lie in [0, 1]; got {xv[bad].flat[0]!r} at "
+            f"{_law(caller)}: argument 'x' must lie in [0, 1]; got {xv[bad].flat[0]!r} at "
             f"position {_first_bad(bad)}."
         )
     xv, av, bv = _broadcast(caller, x=xv, a=av, b=bv)
@@ -578,7 +604,7 @@ def regularized_gamma_upper(a: ArrayLike, x: ArrayLike) -> np.ndarray | float:
     _check_df(av, "a", caller, allow_inf=False)
     if (xv < 0).any():
         raise InputError(
-            f"{caller}: argument 'x' must be >= 0; got {xv[xv < 0].flat[0]!r} at "
+            f"{_law(caller)}: argument 'x' must be >= 0; got {xv[xv < 0].flat[0]!r} at "
             f"position {_first_bad(xv < 0)}."
         )
     av, xv = _broadcast(caller, a=av, x=xv)
@@ -994,7 +1020,7 @@ def f_sf(f: ArrayLike, d1: ArrayLike, d2: ArrayLike) -> np.ndarray | float:
     both = np.isinf(av) & np.isinf(bv)
     if both.any():
         raise InputError(
-            f"{caller}: 'd1' and 'd2' are both infinite at position {_first_bad(both)}; "
+            f"{_law(caller)}: 'd1' and 'd2' are both infinite at position {_first_bad(both)}; "
             "the F law has no limit there. Pass at least one finite degree of freedom."
         )
     _check_size(np.minimum(av, bv) > 2 * _MAX_SHAPE, "half of both 'd1' and 'd2'", caller)

@@ -27,7 +27,7 @@ import numpy as np
 
 from . import _distributions as dist
 from ._errors import InputError
-from ._validate import as_labels, as_vector, as_weights, check_probabilities, weight_scale
+from ._validate import as_labels, as_vector, as_weights, check_probabilities, is_one_of, weight_scale
 
 __all__ = [
     "ROW_SUM_TOLERANCE",
@@ -91,7 +91,7 @@ def binary_outcome(
             "probability matrix where the metric accepts one"
         )
     if positive is not None:
-        if positive not in classes:
+        if not is_one_of(positive, classes, exact_kind=False):
             if len(classes) == 2:
                 raise InputError(
                     f"positive={positive!r} is not one of the labels of {name} "

@@ -11,6 +11,7 @@ writes and reads model files from it.
 from __future__ import annotations
 
 import dataclasses
+import numbers
 from dataclasses import dataclass
 from typing import Any
 
@@ -101,8 +102,9 @@ def _wald_table(
     level: float,
     df: float | None,
 ) -> CoefficientTable:
-    if not (0.0 < level < 1.0):
-        raise InputError(f"level must lie strictly between 0 and 1; got {level!r}")
+    if isinstance(level, (bool, np.bool_)) or not isinstance(level, numbers.Real) or not 0.0 < float(level) < 1.0:
+        raise InputError(f"level must lie strictly between 0 and 1; got {level!r:.60}")
+    level = float(level)
     estimate = np.asarray(estimate, dtype=float)
     se = np.asarray(se, dtype=float)
     with np.errstate(divide="ignore", invalid="ignore"):

@@ -9,10 +9,25 @@ Accepted array-likes: NumPy arrays, nested lists and tuples, objects that implem
 ``__array__`` and DataFrame-like objects (anything with a ``columns`` attribute and a
 ``to_numpy`` method or ``__array__``), whose column labels become coefficient names.
 pandas is never imported.
+
+Refused with a named :class:`InputError` and the remedy, because a number would be made
+up otherwise:
+
+* dates and durations (``datetime64`` / ``timedelta64`` arrays, DataFrames with such a
+  column, ``datetime`` / ``timedelta`` objects in object arrays): NumPy would turn them
+  into nanoseconds since 1970 without a word; convert them to numbers explicitly (days
+  since a reference date, a year, a duration in hours) in the unit the model should use;
+* masked arrays (``numpy.ma.MaskedArray``) with at least one masked entry: NumPy would
+  drop the mask and fit the hidden fill values; fill the masked entries or drop their
+  rows.  A masked array with no masked entry is its data and is accepted as such (the
+  mask then hides nothing, so no number depends on it);
+* values beyond the float64 range (a ``longdouble`` of 1e400, a Python int of 10**400).
 """
 
 from __future__ import annotations
 
+import datetime
+import decimal
 import math
 import numbers
 from typing import Any, Sequence
@@ -25,6 +40,7 @@ __all__ = [
     "as_matrix",
     "as_vector",
     "as_labels",
+    "as_array",
     "as_weights",
     "as_offset",
     "power_of_two",
@@ -34,6 +50,7 @@ __all__ = [
     "check_names",
     "check_nonnegative",
     "check_choice",
+    "is_one_of",
     "check_positive_int",
     "check_probabilities",
 ]
@@ -49,7 +66,50 @@ def _column_names(obj: Any) -> tuple[str, ...] | None:
         return None
 
 
+#: the remedy for dates and durations, which NumPy would read as nanoseconds since 1970
+DATE_REMEDY = (
+    "convert them to numbers explicitly, in the unit the model should use (for example days "
+    "since a reference date, or a duration in hours)"
+)
+#: the remedy for masked entries, whose hidden fill values NumPy would read as data
+MASK_REMEDY = "fill the masked entries (numpy.ma.filled) or drop their rows (numpy.ma.compress_rows)"
+
+
+def _is_date(value: Any) -> bool:
+    """A date, time or duration object (datetime, numpy datetime64/timedelta64, pandas Timestamp)."""
+    return isinstance(value, (datetime.date, datetime.timedelta, np.datetime64, np.timedelta64))
+
+
+def _refuse_dates_and_masks(obj: Any, name: str, names: Sequence[str] | None) -> None:
+    """Raise an InputError for a masked entry, or a date or duration column, before any conversion."""
+    if isinstance(obj, np.ma.MaskedArray):
+        mask = np.ma.getmaskarray(obj)
+        if mask.any():
+            index = tuple(int(i) for i in np.argwhere(mask)[0])
+            raise InputError(
+                f"{name} is a masked array with {int(mask.sum())} masked entr"
+                f"{'y' if mask.sum() == 1 else 'ies'} (the first at {_position(index, names)}); "
+                f"lintools does not read masks: {MASK_REMEDY}"
+            )
+    if hasattr(obj, "columns") and hasattr(obj, "dtypes") and not isinstance(obj, np.ndarray):
+        try:  # a DataFrame: one dtype per column
+            kinds = [getattr(d, "kind", "O") for d in list(obj.dtypes)]
+        except TypeError:
+            kinds = []
+        for j, kind in enumerate(kinds):
+            if kind in "mM":
+                what = "dates or times (datetime64)" if kind == "M" else "durations (timedelta64)"
+                where = f"column {j}" + (f" ('{names[j]}')" if names is not None and j < len(names) else "")
+                raise InputError(f"{name} {where} holds {what}; {DATE_REMEDY}")
+    kind = getattr(getattr(obj, "dtype", None), "kind", None)
+    if isinstance(kind, str) and kind in "mM":
+        what = "dates or times (datetime64)" if kind == "M" else "durations (timedelta64)"
+        raise InputError(f"{name} holds {what}; {DATE_REMEDY}")
+
+
 def _to_numpy(obj: Any) -> Any:
+    if isinstance(obj, np.ma.MaskedArray):
+        return np.ma.getdata(obj)  # nothing is masked (checked first): the data are the values
     if hasattr(obj, "to_numpy") and not isinstance(obj, np.ndarray):
         try:
             return obj.to_numpy()
@@ -63,7 +123,7 @@ def _first_nonnumeric(arr: np.ndarray) -> tuple[tuple[int, ...], Any] | None:
         value = arr[index]
         if isinstance(value, (bool, np.bool_)):
             continue
-        if isinstance(value, numbers.Real):
+        if isinstance(value, (numbers.Real, decimal.Decimal)) and not _is_date(value):
             continue
         if isinstance(value, str):
             try:
@@ -86,6 +146,7 @@ def _position(index: tuple[int, ...], names: Sequence[str] | None) -> str:
 
 
 def _as_float(obj: Any, name: str, names: Sequence[str] | None = None) -> np.ndarray:
+    _refuse_dates_and_masks(obj, name, names)
     raw = _to_numpy(obj)
     try:
         arr = np.asarray(raw)
@@ -94,6 +155,7 @@ def _as_float(obj: Any, name: str, names: Sequence[str] | None = None) -> np.nda
             f"{name} could not be read as an array ({exc}); pass a rectangular array or "
             "nested list of numbers"
         ) from None
+    _refuse_dates_and_masks(arr, name, names)
     if arr.ndim == 0 and (arr.dtype == object or arr.dtype.kind in "USV"):
         value = arr.item() if arr.dtype.kind != "V" else raw
         if isinstance(value, str) or isinstance(value, (bool, np.bool_)) or not isinstance(value, numbers.Real):
@@ -106,6 +168,10 @@ def _as_float(obj: Any, name: str, names: Sequence[str] | None = None) -> np.nda
         if bad is not None:
             index, value = bad
             value = value.item() if isinstance(value, np.generic) else value
+            if _is_date(value):
+                raise InputError(
+                    f"{name} has a date, time or duration at {_position(index, names)}: {value!r}; {DATE_REMEDY}"
+                )
             raise InputError(
                 f"{name} has a value that is not a number at {_position(index, names)}: "
                 f"{value!r}; convert text columns to numbers (or to indicator columns) "
@@ -119,8 +185,14 @@ def _as_float(obj: Any, name: str, names: Sequence[str] | None = None) -> np.nda
         out.flags.writeable = False
         return out
     try:
-        out = np.array(arr, dtype=np.float64, copy=True)
-    except (TypeError, ValueError) as exc:
+        with np.errstate(over="raise"):
+            out = np.array(arr, dtype=np.float64, copy=True)
+    except (FloatingPointError, OverflowError):
+        raise InputError(
+            f"{name} has a value beyond the float64 range (about 1.8e308); rescale it (divide by a "
+            "power of ten) before fitting"
+        ) from None
+    except (TypeError, ValueError, ArithmeticError) as exc:
         raise InputError(f"{name} could not be converted to float64 ({exc}); pass numbers") from None
     return out
 
@@ -212,6 +284,18 @@ def _is_missing(value: Any) -> bool:
     return False
 
 
+def as_array(obj: Any, name: str) -> np.ndarray:
+    """``obj`` as a NumPy array of any dtype (labels, group keys, indicator matrices):
+    masked entries, dates and durations, and ragged nesting are refused by name."""
+    _refuse_dates_and_masks(obj, name, _column_names(obj))
+    try:
+        arr = np.asarray(_to_numpy(obj))
+    except Exception as exc:  # ragged lists and the like
+        raise InputError(f"{name} could not be read as an array ({exc}); pass one value per row") from None
+    _refuse_dates_and_masks(arr, name, None)
+    return arr
+
+
 def as_labels(y: Any, name: str = "y", n: int | None = None) -> tuple[tuple, np.ndarray]:
     """Return the sorted distinct labels of ``y`` and the code (index into them) of each row.
 
@@ -220,8 +304,10 @@ def as_labels(y: Any, name: str = "y", n: int | None = None) -> tuple[tuple, np.
     """
     if y is None:
         raise InputError(f"{name} is None; pass one label per row")
-    raw = _to_numpy(y)
-    arr = np.asarray(raw)
+    arr = as_array(y, name)
+    if arr.dtype.kind in "cV":
+        what = "complex numbers" if arr.dtype.kind == "c" else "structured records"
+        raise InputError(f"{name} holds {what}; pass one label (a number, text or bool) per row")
     if arr.ndim == 2 and 1 in arr.shape and arr.size > 0:
         raise InputError(
             f"{name} has shape {arr.shape}; pass a 1-D array of labels ({name}.ravel())"
@@ -252,9 +338,21 @@ def as_labels(y: Any, name: str = "y", n: int | None = None) -> tuple[tuple, np.
             )
         if isinstance(v, float) and not math.isfinite(v):
             raise InputError(f"{name} has an infinite label at row {i}; labels must be finite")
+        if _is_date(v):
+            raise InputError(
+                f"{name} has a date, time or duration at row {i} ({v!r}); {DATE_REMEDY} "
+                f"(or to text, {name}.astype(str), to use them as categories)"
+            )
+        try:
+            hash(v)
+        except TypeError:
+            raise InputError(
+                f"{name} has a {type(v).__name__} at row {i}, which cannot be a label; pass one "
+                "label (a number, text or bool) per row"
+            ) from None
     try:
         classes = tuple(sorted(set(values)))
-    except TypeError:
+    except (TypeError, ValueError):  # ValueError: pd.NA and the like refuse a truth value
         raise InputError(
             f"{name} mixes label types that cannot be ordered (for example numbers and "
             "text); use one type for every label"
@@ -277,7 +375,7 @@ def as_weights(weights: Any, n: int, name: str = "weights") -> np.ndarray:
         raise InputError(
             f"{name} has a negative value ({w[i]}) at row {i}; weights must be >= 0"
         )
-    if not w.sum() > 0:
+    if not np.any(w > 0):  # not the sum: weights of 1e308 would overflow it
         raise InputError(f"{name} are all zero; at least one row needs a positive weight")
     return w
 
@@ -338,26 +436,64 @@ def check_names(names: Any, p: int, found: tuple[str, ...] | None, prefix: str =
 
 def check_nonnegative(value: Any, name: str) -> float:
     """Return ``value`` as a float, checking it is finite and >= 0."""
-    if isinstance(value, bool) or not isinstance(value, numbers.Real):
-        raise InputError(f"{name} must be a real number >= 0; got {value!r}")
-    v = float(value)
+    if isinstance(value, (bool, np.bool_)) or not isinstance(value, numbers.Real):
+        raise InputError(f"{name} must be a real number >= 0; got {_short(value)}")
+    try:
+        v = float(value)
+    except (OverflowError, ValueError, TypeError):
+        v = math.inf
     if not math.isfinite(v) or v < 0:
         raise InputError(f"{name} must be a finite number >= 0; got {value!r}")
     return v
 
 
+def is_one_of(value: Any, options: Sequence[Any], *, exact_kind: bool = True) -> bool:
+    """Whether ``value`` is one of ``options``, by equality that never raises.
+
+    ``value in options`` raises for arrays, pandas objects and ``pd.NA`` (no truth value);
+    here anything unhashable or array-like matches nothing.  With ``exact_kind`` a value
+    matches an option of its own kind only (a bool only a bool, text only text), so that
+    ``True`` is not taken for the option ``1``; without it (labels, where ``True == 1``
+    as in NumPy) plain equality decides.
+    """
+    if isinstance(value, np.generic):
+        value = value.item()
+    try:
+        hash(value)
+    except TypeError:
+        return False
+    for option in options:
+        if exact_kind and isinstance(option, (bool, np.bool_)) != isinstance(value, (bool, np.bool_)):
+            continue
+        if isinstance(option, str) != isinstance(value, str):
+            continue
+        try:
+            same = option == value
+            if isinstance(same, (bool, np.bool_)) and bool(same):
+                return True
+        except Exception:  # noqa: BLE001 - an exotic __eq__: not a match
+            continue
+    return False
+
+
 def check_choice(value: Any, name: str, options: Sequence[Any]) -> Any:
-    """Check that ``value`` is one of ``options``."""
-    if value not in options:
+    """Check that ``value`` is one of ``options`` (see :func:`is_one_of`); return the option."""
+    if not is_one_of(value, options):
         shown = ", ".join(repr(o) for o in options)
-        raise InputError(f"{name}={value!r} is not one of {shown}")
-    return value
+        raise InputError(f"{name}={_short(value)} is not one of {shown}")
+    return next(o for o in options if is_one_of(value, (o,)))
+
+
+def _short(value: Any) -> str:
+    """``repr(value)``, cut to a line (an array's repr can run to thousands of characters)."""
+    text = repr(value)
+    return text if len(text) <= 60 else text[:57] + "..."
 
 
 def check_positive_int(value: Any, name: str, minimum: int = 1) -> int:
     """Check that ``value`` is an integer >= ``minimum``."""
     if isinstance(value, bool) or not isinstance(value, numbers.Integral):
-        raise InputError(f"{name} must be an integer >= {minimum}; got {value!r}")
+        raise InputError(f"{name} must be an integer >= {minimum}; got {_short(value)}")
     if value < minimum:
         raise InputError(f"{name} must be >= {minimum}; got {value}")
     return int(value)

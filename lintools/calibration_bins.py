@@ -16,7 +16,7 @@ import numpy as np
 from ._binning import STRATEGIES, assign, edges_for, group_shares, group_sums, wilson_interval
 from ._errors import InputError
 from ._outcomes import binary_forecast, binary_outcome, case_weights, check_level, class_forecast, fmt_number, unscale
-from ._validate import ReadOnlyArrays, check_choice, check_positive_int, check_probabilities
+from ._validate import ReadOnlyArrays, check_choice, check_positive_int, check_probabilities, is_one_of
 
 __all__ = ["ReliabilityTable", "reliability", "calibration_error"]
 
@@ -242,7 +242,7 @@ def calibration_error(
     Kull, M. et al. (2019). Beyond temperature scaling: obtaining well-calibrated
     multiclass probabilities with Dirichlet calibration. NeurIPS 2019.
     """
-    if isinstance(norm, bool) or norm not in NORMS:
+    if isinstance(norm, bool) or not is_one_of(norm, NORMS):
         raise InputError(f"norm={norm!r} is not one of 1, 2, 'max'")
     nbins = check_positive_int(bins, "bins")
     check_choice(strategy, "strategy", STRATEGIES)

@@ -24,6 +24,7 @@ number of observations is large. Trans. AMS 54, 426-482.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 from typing import Any, Mapping
 
@@ -32,7 +33,7 @@ import numpy as np
 from . import _distributions as dist
 from ._errors import InputError
 from ._records import INTERCEPT_NAME
-from ._validate import _as_float, as_matrix, as_vector, as_weights, check_choice
+from ._validate import _as_float, as_matrix, as_vector, as_weights, check_choice, power_of_two
 
 __all__ = ["CoefficientComparison", "compare_coefficients", "ImpliedPenalty", "implied_l2"]
 
@@ -94,6 +95,19 @@ def _numbers(value: Any, name: str, *, vector: bool = False) -> np.ndarray:
     return arr
 
 
+def _name_list(names: Any) -> list[str]:
+    """``names`` as a list of text, or an InputError (a string, a mapping or a non-sequence)."""
+    try:
+        flat = np.ndim(names) == 1
+    except ValueError:  # ragged
+        flat = False
+    if isinstance(names, (str, bytes, Mapping)) or not isinstance(names, (list, tuple, np.ndarray)) or not flat:
+        raise InputError(
+            f"names must be a list with one name per delivered coefficient; got a {type(names).__name__}"
+        )
+    return [str(n) for n in names]
+
+
 def _align(fit: Any, coefficients: Any, intercept: Any, names: Any) -> tuple[np.ndarray, np.ndarray]:
     """Delivered (p,) or (p, K) slopes in the refit's order, and the delivered intercept."""
     shape = np.shape(fit.coefficients)
@@ -101,10 +115,11 @@ def _align(fit: Any, coefficients: Any, intercept: Any, names: Any) -> tuple[np.
         if isinstance(coefficients, Mapping):
             given = {str(k): v for k, v in coefficients.items()}
         else:
+            names = _name_list(names)
             arr = _numbers(coefficients, "coefficients", vector=True)
             if len(names) != arr.shape[0]:
                 raise InputError(f"names has {len(names)} entries but coefficients has {arr.shape[0]} rows")
-            given = {str(n): arr[i] for i, n in enumerate(names)}
+            given = {n: arr[i] for i, n in enumerate(names)}
         if INTERCEPT_NAME in given:
             if intercept is not None:
                 raise InputError(f"the intercept is given twice: as '{INTERCEPT_NAME}' and as intercept=")
@@ -119,7 +134,13 @@ def _align(fit: Any, coefficients: Any, intercept: Any, names: Any) -> tuple[np.
                 + (f"not in the refit {extra}" if extra else "")
                 + "; rename or refit with the same columns"
             )
-        coef = np.array([_numbers(given[n], f"coefficient '{n}'") for n in fit.names])
+        values = [_numbers(given[n], f"coefficient '{n}'") for n in fit.names]
+        row = shape[1:]
+        for n, v in zip(fit.names, values):
+            if v.shape != row:
+                raise InputError(f"coefficient '{n}' has shape {v.shape}; the refit's coefficients have {row or 'one number'} "
+                                 "per name")
+        coef = np.array(values)
     else:
         coef = _numbers(coefficients, "coefficients")
     if coef.shape != shape:
@@ -184,15 +205,29 @@ def compare_coefficients(
     coef, b_deliv = _align(fit, coefficients, intercept, names)
     theta0, idx = _free_vector(fit, coef, b_deliv)
     theta_hat, _ = _free_vector(fit, np.asarray(fit.coefficients), None if b_deliv is None else fit.intercept)
-    d = (theta0 - theta_hat)[idx]
+    with np.errstate(over="ignore", invalid="ignore"):
+        d = (theta0 - theta_hat)[idx]
     V = np.asarray(fit.covariance)[np.ix_(idx, idx)]
+    if not (np.all(np.isfinite(d)) and np.all(np.isfinite(V))):
+        raise InputError(
+            "the delivered coefficients differ from the refit by more than the float64 range (or the "
+            "refit's covariance is not finite); check their units and order"
+        )
     se = np.sqrt(np.diag(V))
     try:
         L = np.linalg.cholesky(V)
     except np.linalg.LinAlgError:
         raise InputError("the refit's covariance is not positive definite; the Wald comparison is undefined") from None
-    u = np.linalg.solve(L, d)
-    wald = float(u @ u)
+    m = power_of_two(float(np.max(np.abs(d), initial=0.0)))  # exact: d / m is of order 1
+    with np.errstate(over="ignore", invalid="ignore"):
+        u = np.linalg.solve(L, d / m)
+        wald = float(u @ u) * m * m
+    if not math.isfinite(wald):
+        raise InputError(
+            "the delivered coefficients differ from the refit by so many standard errors that the Wald "
+            "statistic exceeds the float64 range (about 1.8e308): they plainly disagree; check their "
+            "units, their order and the columns they belong to"
+        )
     q = int(idx.size)
     terms = fit._parameter_terms() if hasattr(fit, "_parameter_terms") else (
         ((INTERCEPT_NAME,) if fit.with_intercept else ()) + tuple(fit.names)
@@ -204,20 +239,28 @@ def compare_coefficients(
     if X is not None:
         Xa = fit._design(X)
         b_used = fit.intercept if b_deliv is None else b_deliv
-        delivered_mean = _mean(fit, Xa, coef, b_used)
-        diff = np.abs(delivered_mean - fit.mean(Xa))
-        max_d, mean_d = float(diff.max()), float(diff.mean())
+        with np.errstate(over="ignore", invalid="ignore"):
+            diff = np.abs(_mean(fit, Xa, coef, b_used) - fit.mean(Xa))
+            max_d, mean_d = float(diff.max()), float(np.mean(diff / max(1.0, float(diff.max()))))
+            mean_d *= max(1.0, max_d)
+        if not (np.isfinite(max_d) and np.isfinite(mean_d)):
+            raise InputError(
+                "the predictions on X overflow (a value beyond the float64 range): X or the delivered "
+                "coefficients are too large; check their units, or rescale the columns of X"
+            )
         if y is not None:
             score = _score_statistic(fit, Xa, y, weights, coef, b_used, idx)
             score_p = float(dist.chi2_sf(score, q))
     elif y is not None:
         raise InputError("y was given without X; the score test needs both")
+    with np.errstate(over="ignore"):  # a difference of 1e300 in 1e-10 standard errors is inf: so be it
+        in_se = d / se
     return CoefficientComparison(
         terms=terms,
         delivered=theta0[idx],
         refit=theta_hat[idx],
         difference=d,
-        difference_in_se=d / se,
+        difference_in_se=in_se,
         wald_statistic=wald,
         wald_degrees_of_freedom=q,
         wald_p_value=float(dist.chi2_sf(wald, q)),
@@ -226,6 +269,12 @@ def compare_coefficients(
         max_abs_prediction_difference=max_d,
         mean_abs_prediction_difference=mean_d,
     )
+
+
+SCORE_UNDEFINED = (
+    "the score test at the delivered coefficients is undefined: {why}; compare without y= (the "
+    "Wald test needs no data), or pass rows that identify every coefficient"
+)
 
 
 def _mean(fit: Any, Xa: np.ndarray, coef: np.ndarray, b: Any) -> np.ndarray:
@@ -238,27 +287,54 @@ def _score_statistic(fit, Xa, y, weights, coef, b, idx) -> float:
     """``U' I^{-1} U`` at the delivered coefficients (penalised objective when l2 > 0)."""
     n = Xa.shape[0]
     free_intercept = fit.with_intercept and 0 not in idx
-    if fit.kind != "least_squares":
-        U, info = fit._score_and_information(Xa, y, weights, coef, b, free_intercept)
-    else:
-        ya = as_vector(y, "y", n)
-        w = as_weights(weights, n)
-        if free_intercept:  # constrained estimate of the nuisance intercept
-            b = float(w @ (ya - Xa @ coef)) / float(w.sum())
-        Z = np.column_stack([np.ones(n), Xa]) if fit.with_intercept else Xa
-        r = ya - Z @ np.concatenate([[float(b)] if fit.with_intercept else [], coef])
-        off = int(fit.with_intercept)
-        pen = np.zeros(Z.shape[1])
-        pen[off:] = fit.l2
-        n_obs = w.sum() if fit.weight_type == "case" else float((w > 0).sum())
-        sigma2 = float(w @ (r * r)) / n_obs  # restricted (score-test) variance estimate
-        U = (Z.T @ (w * r) - pen * np.concatenate([[0.0] * off, coef])) / sigma2
-        info = (Z.T @ (Z * w[:, None]) + np.diag(pen)) / sigma2
-    # efficient score for the compared parameters: the nuisance intercept, when not
-    # delivered, sits at its constrained estimate (its score is zero there)
-    Uq = U[idx]
-    Vq = np.linalg.inv(info)[np.ix_(idx, idx)]
-    return float(Uq @ Vq @ Uq)
+    with np.errstate(all="ignore"):  # an overflow shows as a non-finite score, refused below
+        if fit.kind != "least_squares":
+            U, info = fit._score_and_information(Xa, y, weights, coef, b, free_intercept)
+        else:
+            U, info = _linear_score(fit, Xa, y, weights, coef, b, free_intercept)
+        if not (np.all(np.isfinite(U)) and np.all(np.isfinite(info))):
+            raise InputError(SCORE_UNDEFINED.format(
+                why="the score or the information overflows (a value beyond the float64 range): X or the "
+                    "delivered coefficients are too large, or the weights too extreme"))
+        # efficient score for the compared parameters: the nuisance intercept, when not
+        # delivered, sits at its constrained estimate (its score is zero there)
+        scale = np.sqrt(np.diag(info))
+        scale = np.where(scale > 0, scale, 1.0)
+        try:
+            Vs = np.linalg.inv(info / np.multiply.outer(scale, scale))
+        except np.linalg.LinAlgError:
+            Vs = None
+        if Vs is None or not np.all(np.isfinite(Vs)) or np.linalg.cond(Vs) > 1.0 / np.finfo(float).eps:
+            raise InputError(SCORE_UNDEFINED.format(
+                why="the information matrix there is singular (a column of X is constant or collinear with "
+                    "others on these rows, or the delivered coefficients put every fitted probability at 0 or 1)"))
+        Uq = (U / scale)[idx]
+        stat = float(Uq @ Vs[np.ix_(idx, idx)] @ Uq)
+    if not np.isfinite(stat):
+        raise InputError(SCORE_UNDEFINED.format(why="the statistic exceeds the float64 range"))
+    return max(stat, 0.0)
+
+
+def _linear_score(fit, Xa, y, weights, coef, b, free_intercept) -> tuple[np.ndarray, np.ndarray]:
+    """Score and information of least squares at the delivered coefficients (restricted variance)."""
+    n = Xa.shape[0]
+    ya = as_vector(y, "y", n)
+    w = as_weights(weights, n)
+    if free_intercept:  # constrained estimate of the nuisance intercept
+        b = float(w @ (ya - Xa @ coef)) / float(w.sum())
+    Z = np.column_stack([np.ones(n), Xa]) if fit.with_intercept else Xa
+    r = ya - Z @ np.concatenate([[float(b)] if fit.with_intercept else [], coef])
+    off = int(fit.with_intercept)
+    pen = np.zeros(Z.shape[1])
+    pen[off:] = fit.l2
+    n_obs = w.sum() if fit.weight_type == "case" else float((w > 0).sum())
+    sigma2 = float(w @ (r * r)) / n_obs  # restricted (score-test) variance estimate
+    if not sigma2 > 0:
+        raise InputError(SCORE_UNDEFINED.format(
+            why="the delivered coefficients fit these rows exactly (every residual is zero)"))
+    U = (Z.T @ (w * r) - pen * np.concatenate([[0.0] * off, coef])) / sigma2
+    info = (Z.T @ (Z * w[:, None]) + np.diag(pen)) / sigma2
+    return U, info
 
 
 @dataclass(frozen=True)
@@ -304,20 +380,42 @@ def implied_l2(
         intercept = _numbers(intercept, "intercept")
     if beta.shape[0] != Xa.shape[1]:
         raise InputError(f"coefficients has {beta.shape[0]} rows but X has {Xa.shape[1]} columns")
+    if beta.ndim != (2 if model == "softmax" else 1):
+        want = "(columns, classes): one column per class" if model == "softmax" else "1-D: one per column of X"
+        raise InputError(f"coefficients has shape {beta.shape}; a {model} model needs {want}")
+    if intercept is not None and intercept.shape != beta.shape[1:]:
+        want = f"({beta.shape[1]},): one per class" if model == "softmax" else "a single number"
+        raise InputError(f"intercept has shape {intercept.shape}; a {model} model needs {want}")
     if not np.any(beta):
         raise InputError("coefficients are all zero; no l2 is identified by them")
-    if model == "least_squares":
-        ya = as_vector(y, "y", n)
-        b = 0.0 if intercept is None else float(intercept)
-        r = ya - Xa @ beta - b
-        g = -(Xa.T @ (w * r))
-        g0 = -float(w @ r) if intercept is not None else 0.0
-    else:
-        from .losses import unpenalised_gradient  # binomial and multinomial losses
+    with np.errstate(all="ignore"):  # an overflow shows as a non-finite gradient, refused below
+        if model == "least_squares":
+            ya = as_vector(y, "y", n)
+            b = 0.0 if intercept is None else float(intercept)
+            r = ya - Xa @ beta - b
+            g = -(Xa.T @ (w * r))
+            g0 = -float(w @ r) if intercept is not None else 0.0
+        else:
+            from .losses import unpenalised_gradient  # binomial and multinomial losses
 
-        g, g0 = unpenalised_gradient(model, Xa, y, w, beta, intercept)
-    gb, bb = np.ravel(g), np.ravel(beta)
-    lam = -float(gb @ bb) / float(bb @ bb)
-    gnorm = float(np.linalg.norm(gb))
-    resid = float(np.linalg.norm(gb + lam * bb)) / gnorm if gnorm > 0 else 0.0
+            g, g0 = unpenalised_gradient(model, Xa, y, w, beta, intercept)
+        gb, bb = np.ravel(g), np.ravel(beta)
+        if not (np.all(np.isfinite(gb)) and np.all(np.isfinite(g0))):
+            raise InputError(
+                "the gradient at the delivered coefficients overflows (a value beyond the float64 range): "
+                "X, y, the weights or the coefficients are too large; rescale the columns of X or check "
+                "the units of the coefficients"
+            )
+        # l2 = -g'b / b'b on b and g divided by powers of two (exact): no overflow, no underflow to 0
+        mb, mg = power_of_two(float(np.max(np.abs(bb)))), power_of_two(float(np.max(np.abs(gb), initial=0.0)))
+        bs, gs = bb / mb, gb / mg
+        lam = -float(gs @ bs) / float(bs @ bs) * (mg / mb)
+        gnorm = float(np.linalg.norm(gs)) * mg
+        resid = float(np.linalg.norm(gs + lam * (mb / mg) * bs)) / float(np.linalg.norm(gs)) if gnorm > 0 else 0.0
+    if not (math.isfinite(lam) and math.isfinite(gnorm) and math.isfinite(resid)):
+        raise InputError(
+            "the implied l2 exceeds the float64 range: the delivered coefficients are too small for the "
+            "gradient at them (no ridge strength that a float can hold makes them an optimum); check "
+            "their units"
+        )
     return ImpliedPenalty(l2=lam, residual=resid, intercept_gradient=float(np.max(np.abs(g0))), gradient_norm=gnorm)

@@ -228,6 +228,7 @@ def _fit(
     check_choice(covariance, "covariance", COVARIANCE_TYPES)
     check_choice(weight_type, "weight_type", ("case", "precision"))
     check_choice(rank_deficient, "rank_deficient", ("raise", "minimum_norm"))
+    check_choice(diagnostics, "diagnostics", (True, False))
     if not isinstance(intercept, (bool, np.bool_)):
         raise InputError(f"intercept must be True or False; got {intercept!r}")
     names_t = check_names(names, p, found)

@@ -44,6 +44,7 @@ from ._validate import (
     check_names,
     check_nonnegative,
     check_positive_int,
+    is_one_of,
 )
 from .inference import covariance, likelihood_fields, null_objective, profile_bounds
 from .linalg import default_rank_tolerance, dependency_sentence
@@ -89,7 +90,7 @@ def _whole(values: np.ndarray) -> np.ndarray:
 
 def _labels(y: Any, n: int) -> tuple[tuple, np.ndarray]:
     """``as_labels``, vectorised for plain numeric or boolean arrays of the right length."""
-    arr = y if isinstance(y, np.ndarray) else None
+    arr = y if type(y) is np.ndarray else None  # not a masked array: as_labels refuses masked entries
     if arr is not None and arr.ndim == 1 and arr.shape[0] == n and arr.dtype.kind in "biuf":
         if arr.dtype.kind != "f" or np.all(np.isfinite(arr)):
             if n and arr.dtype.kind != "b":
@@ -121,7 +122,7 @@ def _response(y: Any, trials: Any, positive: Any, n: int) -> tuple[np.ndarray, n
             )
         if positive is None:
             positive = classes[1]
-        elif positive not in classes:
+        elif not is_one_of(positive, classes, exact_kind=False):
             raise InputError(
                 f"positive={positive!r} is not one of the labels of y ({classes[0]!r}, {classes[1]!r}); "
                 "name one of them"
@@ -182,11 +183,11 @@ def check_parameters_and_rows(k: int, rows: int) -> None:
 
 
 def check_fit_settings(intercept: Any, l2: Any, tol: Any, max_iter: Any, on_iteration: Any,
-                       solver: Any = None) -> tuple[bool, float, float, int]:
+                       solver: Any = ...) -> tuple[bool, float, float, int]:
     """The settings every likelihood fit shares, checked: ``(intercept, l2, tol, max_iter)``."""
     intercept = _check_flag(intercept, "intercept")
     lam = check_nonnegative(l2, "l2")
-    if solver is not None:
+    if solver is not ...:  # the blocked fits have no solver= (None is a bad solver name, not "none given")
         check_choice(solver, "solver", SOLVERS)
     tol = _check_tol(tol)
     max_iter = check_positive_int(max_iter, "max_iter")
@@ -392,7 +393,7 @@ def logistic(
     intercept, lam, tol, max_iter = check_fit_settings(intercept, l2, tol, max_iter, on_iteration, solver)
     firth = _check_flag(firth, "firth")
     profile = _check_flag(profile, "profile")
-    if profile and not (isinstance(profile_level, numbers.Real) and 0.0 < float(profile_level) < 1.0):
+    if not (isinstance(profile_level, numbers.Real) and 0.0 < float(profile_level) < 1.0):
         raise InputError(f"profile_level must lie strictly between 0 and 1; got {profile_level!r}")
     if firth and lam > 0:
         raise InputError(

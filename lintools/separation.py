@@ -41,9 +41,9 @@ from typing import Any
 
 import numpy as np
 
-from ._errors import LintoolsError
+from ._errors import InputError, LintoolsError
 from ._records import INTERCEPT_NAME
-from ._validate import as_matrix, as_weights, check_names
+from ._validate import as_matrix, as_weights, check_names, check_positive_int, power_of_two, weight_scale
 
 __all__ = ["SeparationCheck", "MultinomialSeparationCheck", "check_separation", "separation_lp", "multinomial_separation"]
 
@@ -60,8 +60,9 @@ def _separated(check: Any) -> bool:
     return check.kind != "none"
 
 
-def _shown_rows(rows: np.ndarray, max_rows: int) -> tuple[str, str]:
+def _shown_rows(rows: np.ndarray, max_rows: Any) -> tuple[str, str]:
     """The first ``max_rows`` row numbers, and the count of the others."""
+    max_rows = check_positive_int(max_rows, "max_rows", 0)
     shown = ", ".join(str(int(r)) for r in rows[:max_rows])
     return shown, (f" and {rows.size - max_rows} more" if rows.size > max_rows else "")
 
@@ -113,27 +114,106 @@ class SeparationCheck:
         )
 
 
-def separation_lp(A: np.ndarray, sign: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Solve Konis's programme for the rows ``sign_i * A_i``; return (theta, t).
+#: What each status of ``scipy.optimize.linprog`` means for the separation programme.
+#: The programme is always feasible (theta = 0, t = 0) and bounded (0 <= t <= 1), so any
+#: status but 0 is a failure of the solver on these numbers, never an answer.
+LP_STATUS = {
+    1: "stopped at its iteration limit before it could decide",
+    2: "reported the programme infeasible, which it cannot be (theta = 0 is always a solution)",
+    3: "reported the programme unbounded, which it cannot be (every slack lies in [0, 1])",
+    4: "ran into numerical difficulties",
+}
+LP_REMEDY = (
+    "the design is probably too badly scaled or too nearly collinear for the check: rescale "
+    "the columns or drop nearly collinear ones and try again; or fit with l2 > 0 or "
+    "firth=True, whose estimates exist whether or not the classes are separated"
+)
 
-    Raises :class:`lintools.LintoolsError` when SciPy is not installed.
-    """
+
+class MissingSciPyError(InputError):
+    """The exact separation check needs SciPy, which is not installed (an optional extra)."""
+
+
+def _linprog() -> tuple[Any, Any]:
+    """SciPy's sparse module and ``linprog``, or a :class:`MissingSciPyError` saying how to get them."""
     try:
         from scipy import sparse
         from scipy.optimize import linprog
     except ImportError:
-        raise LintoolsError(
-            "the exact separation check needs SciPy (scipy.optimize.linprog); install it with "
-            "pip install scipy (or the lintools[scipy] extra)"
+        raise MissingSciPyError(
+            "the exact separation check needs SciPy (scipy.optimize.linprog), which is not "
+            "installed; install it with pip install scipy (or the lintools[scipy] extra)"
         ) from None
+    return sparse, linprog
+
+
+def _solve_lp(linprog: Any, cost: np.ndarray, M: Any, bounds: list) -> np.ndarray:
+    """Run the separation programme; a failure becomes a sentence with a remedy, never the
+    solver's own status text."""
+    if not np.all(np.isfinite(M.data)):
+        raise InputError(
+            "the separation check cannot be set up: the standardised design has a value beyond "
+            "the float64 range; rescale the columns of X (divide by a power of ten)"
+        )
+    try:
+        res = linprog(cost, A_ub=M, b_ub=np.zeros(M.shape[0]), bounds=bounds, method="highs")
+    except (ValueError, ArithmeticError, np.linalg.LinAlgError):
+        res = None
+    status = -1 if res is None else int(res.status)
+    if status != 0 or res.x is None or not np.all(np.isfinite(res.x)):
+        what = LP_STATUS.get(status, "failed without an answer")
+        raise LintoolsError(
+            f"the exact separation check (a linear programme, Konis 2007) {what}, so whether the "
+            f"classes are separated is not known; {LP_REMEDY}"
+        )
+    return res.x
+
+
+def separation_lp(A: np.ndarray, sign: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Solve Konis's programme for the rows ``sign_i * A_i``; return (theta, t).
+
+    Raises :class:`MissingSciPyError` (an :class:`lintools.InputError`) when SciPy is not
+    installed, and :class:`lintools.LintoolsError` with a remedy when the solver fails.
+    """
+    sparse, linprog = _linprog()
     r, k = A.shape
     M = sparse.hstack([sparse.csr_matrix(-(A * sign[:, None])), sparse.identity(r, format="csr")], format="csr")
     cost = np.concatenate([np.zeros(k), -np.ones(r)])
     bounds = [(None, None)] * k + [(0.0, 1.0)] * r
-    res = linprog(cost, A_ub=M, b_ub=np.zeros(r), bounds=bounds, method="highs")
-    if res.status != 0:
-        raise LintoolsError(f"the separation linear programme failed: {res.message}")
-    return res.x[:k], res.x[k:]
+    x = _solve_lp(linprog, cost, M, bounds)
+    return x[:k], x[k:]
+
+
+def _standardise(X: np.ndarray, v: np.ndarray, intercept: bool) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Powers of two ``u`` near the columns' largest magnitudes, and the weighted centres ``c``
+    and scales ``s`` of ``X / u`` (weights ``v`` > 0): the programme's columns are
+    ``(X / u - c) / s``.
+
+    Dividing by powers of two is exact, so neither columns near 1e308 or 5e-324 nor
+    weights of 1e308 or 5e-324 overflow or vanish in the sums.
+    """
+    p = X.shape[1]
+    if p == 0 or X.shape[0] == 0 or not v.sum() > 0:
+        return np.ones(p), np.zeros(p), np.ones(p)
+    v = v / weight_scale(v)
+    u = np.array([power_of_two(float(b)) for b in np.max(np.abs(X), axis=0)])
+    Xs = X / u
+    total = v.sum()
+    c = (v @ Xs) / total if intercept else np.zeros(p)
+    s = np.sqrt(v @ (Xs - c) ** 2 / total)
+    return u, c, np.where(s > 0, s, 1.0)
+
+
+def _caller_direction(t: np.ndarray, b: np.ndarray, u: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Slopes ``t / u`` (row ``j`` divided by ``u_j``) and intercepts ``b`` in the caller's
+    coordinates, scaled together to max-abs 1 without overflow: both are first multiplied by
+    the smallest ``u_j`` of the columns involved (at most 1), so no ratio exceeds 1."""
+    involved = np.any(np.reshape(t != 0, (t.shape[0], -1)), axis=1) if t.size else np.zeros(0, dtype=bool)
+    q = min(1.0, float(np.min(u[involved]))) if involved.any() else 1.0
+    G = t * np.reshape(q / u, (-1,) + (1,) * (t.ndim - 1))
+    bb = b * q
+    scale = max(float(np.max(np.abs(G), initial=0.0)), float(np.max(np.abs(bb), initial=0.0)), 1e-300)
+    return G / scale, bb / scale
 
 
 def _expanded(y: np.ndarray, m: np.ndarray, w: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -156,12 +236,9 @@ def separation_from_arrays(
     n, p = X.shape
     rows, sign = _expanded(y, m, w)
     use = rows
-    v = (w * m)[np.unique(use)]
-    Xu = X[np.unique(use)]
-    c = (v @ Xu) / v.sum() if intercept else np.zeros(p)
-    s = np.sqrt(v @ (Xu - c) ** 2 / v.sum()) if p else np.zeros(0)
-    s = np.where(s > 0, s, 1.0)
-    A = (X[rows] - c) / s
+    keep = np.unique(use)
+    u, c, s = _standardise(X[keep], ((w / weight_scale(w)) * (m / weight_scale(m)))[keep], intercept)
+    A = (X[rows] / u - c) / s
     if intercept:
         A = np.column_stack([np.ones(rows.size), A])
     theta, t = separation_lp(A, sign)
@@ -178,15 +255,15 @@ def separation_from_arrays(
     off = int(intercept)
     g = theta[off:]
     big = max(float(np.max(np.abs(theta))), 1e-300)
-    beta = np.where(np.abs(g) > COLUMN_THRESHOLD * big, g / s, 0.0)
+    t = np.where(np.abs(g) > COLUMN_THRESHOLD * big, g / s, 0.0)  # slopes on the columns X / u
     b = 0.0
     if intercept:
-        shift = float(c @ beta)
+        shift = float(c @ t)
         b = float(theta[0]) - shift
-        if abs(b) <= COLUMN_THRESHOLD * (abs(float(theta[0])) + float(np.abs(c * beta).sum())):
+        if abs(b) <= COLUMN_THRESHOLD * (abs(float(theta[0])) + float(np.abs(c * t).sum())):
             b = 0.0
-    scale = max(float(np.max(np.abs(beta))) if p else 0.0, abs(b), 1e-300)
-    beta, b = beta / scale, b / scale
+    beta, b_arr = _caller_direction(t, np.array(b), u)
+    b = float(b_arr)
     columns = ((INTERCEPT_NAME,) if b != 0 else ()) + tuple(names[j] for j in range(p) if beta[j] != 0)
     return SeparationCheck(kind, beta, b, columns, perfect.astype(int), names)
 
@@ -231,12 +308,14 @@ def check_separation(
 
     Raises
     ------
-    lintools.LintoolsError
-        When SciPy is not installed (the programme needs ``scipy.optimize.linprog``).
     lintools.InputError
-        For bad input (the same checks as :func:`lintools.logistic`).
+        For bad input (the same checks as :func:`lintools.logistic`), and when SciPy is not
+        installed (the programme needs ``scipy.optimize.linprog``; the error then says how
+        to install it).
+    lintools.LintoolsError
+        When the linear-programming solver cannot decide (the message says why and what to
+        do: usually rescale or drop nearly collinear columns).
     """
-    from ._errors import InputError
     from .logistic import _labels, _response
 
     Xa, found = as_matrix(X, "X")
@@ -322,23 +401,13 @@ def multinomial_separation(
     :math:`\max \sum t_{ik}` subject to :math:`a_i'(\Theta_{c_i} - \Theta_k) \ge t_{ik}`,
     :math:`0 \le t_{ik} \le 1`; a row is predicted perfectly when all its slacks are 1.
     """
-    try:
-        from scipy import sparse
-        from scipy.optimize import linprog
-    except ImportError:
-        raise LintoolsError(
-            "the exact separation check needs SciPy (scipy.optimize.linprog); install it with "
-            "pip install scipy (or the lintools[scipy] extra)"
-        ) from None
+    sparse, linprog = _linprog()
     n, p = X.shape
     K = len(classes)
     use = np.flatnonzero(w > 0)
-    v = w[use]
     Xu = X[use]
-    c = (v @ Xu) / v.sum() if intercept else np.zeros(p)
-    s = np.sqrt(v @ (Xu - c) ** 2 / v.sum()) if p else np.zeros(0)
-    s = np.where(s > 0, s, 1.0)
-    A = (Xu - c) / s
+    u, c, s = _standardise(Xu, w[use], intercept)
+    A = (Xu / u - c) / s
     if intercept:
         A = np.column_stack([np.ones(use.size), A])
     k1 = A.shape[1]
@@ -355,11 +424,9 @@ def multinomial_separation(
     M = sparse.csr_matrix((data, (rows_idx, cols_idx)), shape=(r, K * k1 + r))
     cost = np.concatenate([np.zeros(K * k1), -np.ones(r)])
     bounds = [(None, None)] * (K * k1) + [(0.0, 1.0)] * r
-    res = linprog(cost, A_ub=M, b_ub=np.zeros(r), bounds=bounds, method="highs")
-    if res.status != 0:
-        raise LintoolsError(f"the separation linear programme failed: {res.message}")
-    theta = res.x[: K * k1].reshape(K, k1).T  # (k1, K)
-    t = res.x[K * k1 :]
+    x = _solve_lp(linprog, cost, M, bounds)
+    theta = x[: K * k1].reshape(K, k1).T  # (k1, K)
+    t = x[K * k1 :]
     strict = np.zeros(use.size, dtype=bool)
     all_one = np.ones(use.size, dtype=bool)
     np.logical_and.at(all_one, ri, t > ROW_THRESHOLD)
@@ -374,8 +441,7 @@ def multinomial_separation(
     G = np.where(np.abs(theta[off:]) > COLUMN_THRESHOLD * big, theta[off:] / s[:, None], 0.0)
     b = theta[0] - c @ G if intercept else np.zeros(K)
     b = np.where(np.abs(b) > COLUMN_THRESHOLD * big, b, 0.0)
-    scale = max(float(np.max(np.abs(G))) if p else 0.0, float(np.max(np.abs(b))), 1e-300)
-    G, b = G / scale, b / scale
+    G, b = _caller_direction(G, b, u)
     terms = ((INTERCEPT_NAME,) if intercept and np.any(b != 0) else ()) + tuple(
         names[j] for j in range(p) if np.any(G[j] != 0))
     perfect_rows = use[all_one] if all_one.any() else use[strict]

@@ -32,7 +32,7 @@ from ._errors import InputError, LintoolsError, SeparationError
 from ._multinomial import ROWS, MultinomialLoss
 from ._records import SoftmaxFit
 from ._threads import with_row_threads
-from ._validate import as_matrix, as_offset, as_weights, check_names
+from ._validate import as_matrix, as_offset, as_weights, check_names, is_one_of
 from .inference import likelihood_fields
 from .logistic import _Watch as _BinaryWatch
 from .logistic import (
@@ -75,12 +75,11 @@ def _reference_index(reference: Any, classes: tuple, lam: float) -> int | None:
         return None
     if isinstance(reference, str) and reference == "first":
         return 0
-    try:
+    if is_one_of(reference, classes, exact_kind=False):
         return classes.index(reference)
-    except ValueError:
-        shown = ", ".join(repr(c) for c in classes[:8])
-        raise InputError(f"reference={reference!r} is neither 'first', None, nor a class of y ({shown}); "
-                         "name one of the classes") from None
+    shown = ", ".join(repr(c) for c in classes[:8])
+    raise InputError(f"reference={reference!r:.60} is neither 'first', None, nor a class of y ({shown}); "
+                     "name one of the classes")
 
 
 class _Watch(_BinaryWatch):

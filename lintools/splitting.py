@@ -35,7 +35,7 @@ import numpy as np
 
 from ._errors import InputError, LintoolsWarning, warn_caller
 from ._iterative_stratification import assign_groups, iterative_stratification
-from ._validate import ReadOnlyArrays, as_labels
+from ._validate import ReadOnlyArrays, as_array, as_labels
 
 __all__ = [
     "SmallClassWarning",
@@ -178,7 +178,7 @@ def _quantile_bins(arr: np.ndarray, bins: Any) -> tuple[np.ndarray, tuple]:
 def _read_target(y: Any, continuous_bins: Any) -> _Target:
     if y is None:
         raise InputError("y is None; pass one label per row")
-    arr = np.asarray(y)
+    arr = as_array(y, "y")
     if continuous_bins is not None:
         codes, classes = _quantile_bins(arr, continuous_bins)
         return _Target(codes, None, classes, codes.size, "bin", False)
@@ -195,7 +195,7 @@ def _read_target(y: Any, continuous_bins: Any) -> _Target:
 def _read_groups(groups: Any, n: int) -> np.ndarray | None:
     if groups is None:
         return None
-    arr = np.asarray(groups)
+    arr = as_array(groups, "groups")
     if arr.ndim != 1:
         raise InputError(f"groups must be 1-D, one group label per row; got shape {arr.shape}")
     if arr.shape[0] != n:
@@ -502,6 +502,8 @@ def repeated_stratified_folds(
     group_codes = _read_groups(groups, target.n)
     k = _check_k(k, target.n, group_codes)
     repeats = _check_int(repeats, "repeats", 1, "Ask for at least one repeat.")
+    if repeats * target.n > 2**31:
+        raise InputError(f"repeats={repeats} would make {repeats * target.n:.3g} fold ids; ask for fewer repeats")
     rngs = _children(seed, repeats)
     _warn_small(target, k, f"cannot reach all k={k} folds")
     return np.stack([_fold_ids(target, k, r, group_codes) for r in rngs])
@@ -606,7 +608,7 @@ def _read_parts(parts: Any, n: int) -> tuple[np.ndarray, np.ndarray]:
     if isinstance(parts, (tuple, list)) and parts and all(np.ndim(p) == 1 for p in parts):
         where = np.full(n, -1, dtype=np.int64)
         for j, p in enumerate(parts):
-            idx = np.asarray(p)
+            idx = as_array(p, f"parts[{j}]")
             if idx.size == 0 or idx.dtype.kind not in "iu":
                 raise InputError(f"parts[{j}] must be a non-empty array of integer row indices")
             outside = idx[(idx < 0) | (idx >= n)]
@@ -621,7 +623,7 @@ def _read_parts(parts: Any, n: int) -> tuple[np.ndarray, np.ndarray]:
             raise InputError(f"parts: row {int(np.argmax(where < 0))} is in no part; "
                              "the parts must cover every row")
         return where, np.arange(len(parts))
-    ids = np.asarray(parts)
+    ids = as_array(parts, "parts")
     if ids.ndim != 1 or ids.shape[0] != n or ids.dtype.kind not in "iu":
         raise InputError(f"parts must be {n} integer fold ids (one per row of y) or a sequence "
                          f"of index arrays such as (train, test); got shape {ids.shape}, "

@@ -387,6 +387,108 @@ def test_a_source_that_changes_between_passes():
         least_squares_blocks(resized)
 
 
+def _changing(first, later):
+    """A source whose blocks are ``first`` on pass 1 and ``later`` on every later pass."""
+    calls = {"n": 0}
+
+    def source():
+        calls["n"] += 1
+        return iter(first if calls["n"] == 1 else later)
+
+    return source
+
+
+CHANGED = "the block source must return the same rows on every call"
+
+
+@pytest.mark.parametrize("later, fragment", [
+    # values changed (noise drawn afresh on each pass: the case of issue #16)
+    ([(DX[:200], DY[:200]), (DX[200:] + 1e-9 * np.random.default_rng(1).normal(size=DX[200:].shape), DY[200:])],
+     "block 1 on pass 2 differs from the same block on pass 1: X holds other values"),
+    # rows reordered within a block, X and y together (sums unchanged)
+    ([(DX[:200][::-1], DY[:200][::-1]), (DX[200:], DY[200:])], "block 0 on pass 2 differs"),
+    # two rows in the middle of a block swapped, X and y together (sums and end rows unchanged)
+    ([(DX[[0, 1, 2, 4, 3] + list(range(5, 200))], DY[[0, 1, 2, 4, 3] + list(range(5, 200))]), (DX[200:], DY[200:])],
+     "block 0 on pass 2 differs from the same block on pass 1: X holds other values or rows in another order"),
+    # y alone changed
+    ([(DX[:200], DY[:200]), (DX[200:], DY[200:] * (1 + 1e-9))], "block 1 on pass 2 differs from the same block on pass 1: y"),
+])
+def test_least_squares_blocks_refuses_a_source_whose_values_change(later, fragment):
+    # issue #16: such a source returned converged=True on the old code.  Source: common
+    # practice (the passes of one fit must read one data set)
+    first = [(DX[:200], DY[:200]), (DX[200:], DY[200:])]
+    with pytest.raises(InputError) as info:
+        least_squares_blocks(_changing(first, later))
+    assert fragment in str(info.value) and CHANGED in str(info.value)
+
+
+def test_changed_weights_are_refused():
+    # common practice: the weights are part of the data of every pass
+    first = [(DX[:200], DY[:200], DW[:200]), (DX[200:], DY[200:], DW[200:])]
+    later = [(DX[:200], DY[:200], DW[:200]), (DX[200:], DY[200:], DW[200:][::-1])]
+    with pytest.raises(InputError, match="block 1 on pass 2 differs from the same block on pass 1: the weights"):
+        least_squares_blocks(_changing(first, later))
+
+
+@pytest.mark.parametrize("change", ["X", "labels"])
+def test_logistic_blocks_refuses_a_source_whose_values_change(change):
+    # issue #16; common practice.  Labels moved between rows are seen on the first coded
+    # pass (against the first rows and totals of each label of pass 1)
+    Xl, yl = (BX[:250], BY[:250]), (BX[250:], BY[250:])
+    later = [Xl, (BX[250:] * (1 + 1e-9), BY[250:])] if change == "X" else [Xl, (BX[250:], np.roll(BY[250:], 1))]
+    with pytest.raises(InputError) as info:
+        logistic_blocks(_changing([Xl, yl], later), l2=0.1)
+    assert "block 1 on pass 2 differs from the same block on pass 1" in str(info.value)
+    assert CHANGED in str(info.value)
+
+
+def test_labels_changed_after_the_first_coded_pass_are_refused():
+    # common practice: from the second pass on the class codes are compared exactly
+    Xl, yl = (BX[:250], BY[:250]), (BX[250:], BY[250:])
+    calls = {"n": 0}
+
+    def source():
+        calls["n"] += 1
+        return iter([Xl, (BX[250:], BY[250:] if calls["n"] < 3 else np.roll(BY[250:], 1))])
+
+    with pytest.raises(InputError, match="block 1 on pass 3 differs from the same block on pass 1: the labels of y"):
+        logistic_blocks(source, l2=0.1)
+
+
+def test_the_same_values_in_another_memory_layout_are_the_same_block():
+    """Invariant: the checksum sees values, not memory: blocks read back as Fortran-ordered,
+    strided or float32-widened copies of the same numbers are accepted, and the fit is the
+    in-memory one.  Source: the in-memory fit; the bound 2 (m - 1) eps sum|x| on the
+    difference of two summation orders (Higham 2002, sec. 4.2)."""
+    Xf = DX.astype(np.float32).astype(float)
+    layouts = [lambda a: a, np.asfortranarray, lambda a: np.repeat(a, 2, axis=0)[::2], lambda a: a.astype(np.float32)]
+    calls = {"n": 0}
+
+    def source():
+        make = layouts[calls["n"] % len(layouts)]
+        calls["n"] += 1
+        for lo in range(0, DX.shape[0], 97):
+            yield make(Xf[lo : lo + 97]), DY[lo : lo + 97]
+
+    assert_same_linear(least_squares_blocks(source), lt.least_squares(Xf, DY))
+    assert calls["n"] >= 2
+
+
+def test_weights_too_large_for_a_blocked_fit_are_refused():
+    # issue #16: weights of 1e308 raised numpy's LinAlgError "SVD did not converge"
+    w = np.full(DX.shape[0], 1e308)
+    with pytest.raises(InputError, match="too large for a blocked fit"):
+        least_squares_blocks(blocks(DX, DY, w))
+    with pytest.raises(InputError, match="block 0: weights is too large for a blocked fit"):
+        logistic_blocks(blocks(BX, BY, np.full(BX.shape[0], 1e308)))
+
+
+def test_a_source_that_needs_arguments_is_refused_before_the_first_pass():
+    # common practice (before: the TypeError of the call escaped)
+    with pytest.raises(InputError, match="source must be callable with no arguments"):
+        least_squares_blocks(lambda path: iter([(X0, Y0)]))
+
+
 def test_least_squares_design_errors():
     # common practice: the in-memory fit's checks, over all blocks together
     Xr = np.column_stack([X0, X0[:, 0] - 2 * X0[:, 2]])

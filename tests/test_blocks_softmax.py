@@ -277,6 +277,29 @@ def test_a_label_not_seen_on_the_first_pass():
         softmax_blocks(relabelled)
 
 
+def test_a_source_whose_values_change_is_refused():
+    # issue #16 (a changing source gave a converged fit); common practice: one data set per fit
+    calls = {"n": 0}
+
+    def source():
+        calls["n"] += 1
+        noise = 0.0 if calls["n"] == 1 else 1e-9
+        yield AX[:400], AY[:400]
+        yield AX[400:] + noise, AY[400:]
+
+    with pytest.raises(InputError, match="block 1 on pass 2 differs from the same block on pass 1: X holds other values"):
+        softmax_blocks(source)
+    calls["n"] = 0
+
+    def relabelled():
+        calls["n"] += 1
+        yield AX[:400], AY[:400]
+        yield AX[400:], AY[400:] if calls["n"] == 1 else AY[400:][::-1]
+
+    with pytest.raises(InputError, match="the block source must return the same rows on every call"):
+        softmax_blocks(relabelled)
+
+
 def test_binary_blocked_fit_still_names_a_third_label():
     # common practice: the label collection of the softmax fit leaves the binary fit's rule
     # (exactly two labels, the third one named) unchanged

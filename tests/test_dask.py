@@ -143,3 +143,20 @@ def test_softmax_on_the_cluster_equals_in_memory(client):
         assert fit.classes == ref.classes and fit.convergence.converged
         if not kw:
             assert rel(fit.lr_statistic, ref.lr_statistic) <= RTOL
+
+
+def test_a_chunk_recomputed_with_other_values_is_refused(client):
+    # issue #16: a chunk from a non-deterministic graph gives other rows on each pass (here
+    # a delayed function with fresh noise, pure=False); common practice: one data set per fit
+    import dask
+
+    def noisy(lo, hi):
+        return DX[lo:hi] + 1e-9 * np.random.default_rng().normal(size=(hi - lo, DX.shape[1]))
+
+    cuts = [0, 150, 300, DX.shape[0]]
+    parts = [da.from_delayed(dask.delayed(noisy, pure=False)(a, b), shape=(b - a, DX.shape[1]), dtype=float)
+             for a, b in zip(cuts[:-1], cuts[1:])]
+    X = da.concatenate(parts)
+    y = da.from_array(DY, chunks=(tuple(b - a for a, b in zip(cuts[:-1], cuts[1:])),))
+    with pytest.raises(InputError, match="on pass 2 differs from the same block on pass 1: X holds other values"):
+        least_squares_blocks(X=X, y=y)
