@@ -599,18 +599,6 @@ KNOWN: list[Known] = [
           "(RuntimeWarning)"),
     Known(("temperature_scaling*",), "logits", EXTREME, "_temperature.py (~86, 168): logits near 1e300 overflow "
           "(RuntimeWarning)"),
-    Known(("brier*", "cross_entropy"), "weights", EXTREME, "calibration.py (~154, 259): weights of 1e308 overflow "
-          "a sum (RuntimeWarning)"),
-    Known(("calibration_error*",), "weights", EXTREME, "calibration_bins.py (~166): weights of 1e308 give 0/0 "
-          "(RuntimeWarning)"),
-    Known(("reliability",), "weights", EXTREME, "_binning.py (~55, 57): weights of 1e308 or 5e-324 overflow "
-          "(RuntimeWarning)"),
-    Known(("hosmer_lemeshow",), "*", EXTREME, "calibration_checks.py (~87, 91, 167): extreme weights or p of "
-          "1e-320 overflow (RuntimeWarning)"),
-    Known(("spiegelhalter",), "weights", EXTREME, "calibration_checks.py (~251, 264): extreme weights raise "
-          "OverflowError (34, 'Numerical result out of range') or overflow (RuntimeWarning)"),
-    Known(("roc_auc", "roc_auc_difference"), "weights", EXTREME, "discrimination.py (~104, 146): weights of 1e308 "
-          "overflow (RuntimeWarning)"),
 ]
 
 
