@@ -13,11 +13,11 @@ from ._errors import (
     warn_caller,
     )
 from ._lsq_qr import ILL_CONDITIONED, alias_sentences
-from ._lsq_scale import Units, column_exponents, exponent
+from ._lsq_scale import Units, column_exponents, exponent, to_caller
 from ._validate import check_names, check_nonnegative, weight_scale
 from ._records import LinearFit
 from .least_squares import _record, _residual_df
-from .linalg import aliased_columns, condition_number, default_rank_tolerance, inverse_upper, solve_lower, solve_upper
+from .linalg import CONSTANT_TOLERANCE, aliased_columns, condition_number, default_rank_tolerance, inverse_upper, solve_lower, solve_upper
 from .logistic import _check_flag
 
 from ._block_stream import _add, _merge_labels, _positive_rows, _runner
@@ -271,8 +271,8 @@ def least_squares_blocks(
         )
     if not intercept and ylo == 0 and yhi == 0:
         raise InputError("y is zero on every row with positive weight; check the target column")
-    n_obs = float(np.ldexp(W, ew))
-    lam1 = np.ldexp(lam, -ew - 2 * ez[:p])  # the ridge on the unit coefficients
+    n_obs = float(to_caller(W, ew))
+    lam1 = to_caller(lam, -ew - 2 * ez[:p])  # the ridge on the unit coefficients
     if not (math.isfinite(n_obs) and np.all(np.isfinite(lam1))):
         raise InputError(
             "the case weights add up to more than the largest float64 number, or l2 is beyond the "
@@ -337,7 +337,7 @@ def _solve_factor(R: np.ndarray, W: float, mean: np.ndarray, lo: np.ndarray, hi:
     raw = np.hypot(s, math.sqrt(W) * mean[:p]) if intercept else s
     tol = default_rank_tolerance(n_rows, p)
     constant = (lo == hi) if intercept else np.zeros(p, dtype=bool)
-    zero = constant | (s <= tol * raw) | (s == 0)
+    zero = constant | (s <= CONSTANT_TOLERANCE * raw) | (s == 0)
     s = np.where(zero, 1.0, s)
     A = R / np.concatenate([s, [1.0]])
     A[:, :p][:, zero] = 0.0
@@ -353,7 +353,7 @@ def _solve_factor(R: np.ndarray, W: float, mean: np.ndarray, lo: np.ndarray, hi:
                          aliased_columns(Rxx, np.maximum(col_norm, 1e-300), tol)).astype(int)
     if aliased.size:
         raise InputError(
-            alias_sentences(aliased, zero, names, Rxx, s, intercept, ex)
+            alias_sentences(aliased, zero, names, Rxx, s, intercept, ex, exact=constant | (s == 0))
             + ". Drop the aliased column(s), or set l2 > 0 (the in-memory lintools.least_squares "
             "also offers rank_deficient='minimum_norm')"
         )

@@ -361,7 +361,8 @@ def solve_by_gram(
     lam : ridge strength on the slopes, per unit weight (``l2 / 2**ew``).
     intercept : whether an unpenalised intercept is fitted.
     rank_tol : a column is treated as constant (aliased with the intercept) when its
-        centred weighted length is at most ``rank_tol`` times its raw weighted length.
+        centred weighted length is at most ``rank_tol`` times its raw weighted length
+        (:data:`lintools.linalg.CONSTANT_TOLERANCE`).
     covariance, weight_type : as in :func:`lintools.least_squares`; the HC meat is
         accumulated in the last pass only when ``covariance`` is not ``"classical"``.
     diagnostics : also return leverage and residuals per row.

@@ -27,7 +27,7 @@ import numpy as np
 
 from ._errors import IllConditionedWarning, InputError, warn_caller
 from ._lsq_scale import column_exponents
-from .linalg import aliased_columns, condition_number, default_rank_tolerance, inverse_upper, solve_lower, solve_upper
+from .linalg import CONSTANT_TOLERANCE, aliased_columns, condition_number, default_rank_tolerance, inverse_upper, solve_lower, solve_upper
 
 __all__ = ["qr_path", "alias_sentences", "refuse_leverage_one", "ILL_CONDITIONED"]
 
@@ -44,18 +44,26 @@ _LD = np.longdouble
 
 
 def alias_sentences(aliased: np.ndarray, zero: np.ndarray, names: tuple[str, ...], R: np.ndarray,
-                    s: np.ndarray, intercept: bool, col_exp: np.ndarray | None = None) -> str:
+                    s: np.ndarray, intercept: bool, col_exp: np.ndarray | None = None,
+                    exact: np.ndarray | None = None) -> str:
     """``"X is rank deficient: ..."``, one clause per aliased column (constant, or a combination).
 
     ``s`` are the lengths of the columns in the units of ``R``; ``col_exp`` the exponents of
-    the powers of two those units divide the caller's columns by."""
+    the powers of two those units divide the caller's columns by; ``exact`` marks the
+    columns of ``zero`` that are exactly constant (the others vary only by rounding)."""
     keep = [j for j in range(R.shape[1]) if j not in set(aliased)]
     ex = np.zeros(R.shape[1], dtype=np.int64) if col_exp is None else col_exp
     lines = []
     for j in aliased:
-        if zero[j]:
+        if zero[j] and (exact is None or exact[j]):
             what = "the intercept" if intercept else "zero"
             lines.append(f"column {j} ('{names[j]}') is constant on the rows used; it is aliased with {what}")
+        elif zero[j]:
+            lines.append(
+                f"column {j} ('{names[j]}') varies only in the last digits float64 keeps of its values (its "
+                "spread is at the rounding level of its size), so it is aliased with the intercept; if its "
+                "values are a large constant plus a small part, subtract the constant at the source"
+            )
         else:
             lines.append(_describe_alias(j, names, R, keep, s, ex, intercept))
     return "X is rank deficient: " + "; ".join(lines)
@@ -131,7 +139,7 @@ def qr_path(Xa, y1, w1, w_case, lam_w, intercept, names_t, rank_deficient, covar
     raw_norm = np.hypot(s, math.sqrt(W1) * centre) if intercept else s
     tol = default_rank_tolerance(n, p)
     constant = np.ptp(Xa[pos], axis=0) == 0 if intercept else np.zeros(p, dtype=bool)
-    zero = constant | (s <= tol * raw_norm) | (s == 0)
+    zero = constant | (s <= CONSTANT_TOLERANCE * raw_norm) | (s == 0)
     A[:, zero] = 0.0
     s = np.where(zero, 1.0, s)
     A /= s
@@ -157,7 +165,7 @@ def qr_path(Xa, y1, w1, w_case, lam_w, intercept, names_t, rank_deficient, covar
     aliased = aliased.astype(int)
     if aliased.size and rank_deficient == "raise":
         raise InputError(
-            alias_sentences(aliased, zero, names_t, R, s, intercept, ex)
+            alias_sentences(aliased, zero, names_t, R, s, intercept, ex, exact=constant | (s == 0))
             + ". Drop the aliased column(s), or pass rank_deficient='minimum_norm' for the minimum-norm solution"
         )
 

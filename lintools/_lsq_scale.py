@@ -54,7 +54,8 @@ def column_exponents(X: np.ndarray) -> np.ndarray:
 
 def to_caller(value, exp):
     """``value * 2**exp`` exactly (overflow gives inf, underflow rounds as float64 does)."""
-    return np.ldexp(np.asarray(value, dtype=float), np.asarray(exp, dtype=np.int64))
+    with np.errstate(over="ignore", under="ignore"):
+        return np.ldexp(np.asarray(value, dtype=float), np.asarray(exp, dtype=np.int64))
 
 
 def scaled_sqrt(value, exp):
@@ -62,7 +63,8 @@ def scaled_sqrt(value, exp):
     v = np.asarray(value, dtype=float)
     e = np.asarray(exp, dtype=np.int64)
     odd = e % 2
-    return np.ldexp(np.sqrt(v * np.ldexp(1.0, odd)), (e - odd) // 2)
+    with np.errstate(over="ignore", under="ignore"):
+        return np.ldexp(np.sqrt(v * np.ldexp(1.0, odd)), (e - odd) // 2)
 
 
 @dataclass(frozen=True)

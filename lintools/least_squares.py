@@ -78,7 +78,7 @@ from ._validate import (
     check_names,
     check_nonnegative,
 )
-from .linalg import default_rank_tolerance, unstandardise
+from .linalg import CONSTANT_TOLERANCE, unstandardise
 
 __all__ = ["least_squares"]
 
@@ -216,14 +216,14 @@ def _fit(
     y1, ey = Units.response(ya)
     w1, ew = Units.weights(w)
     W1 = float(n) if w1 is None else float(w1.sum())
-    n_obs = float(np.ldexp(W1, ew)) if weight_type == "case" else float(n_pos)
+    n_obs = float(to_caller(W1, ew)) if weight_type == "case" else float(n_pos)
     if not math.isfinite(n_obs):
         raise InputError(
             f"the case weights add up to more than the largest float64 number (their largest is "
             f"{float(np.max(w)):.3g}); case weights count observations: divide them by a constant, "
             "or pass weight_type='precision' for relative weights"
         )
-    lam_w = float(np.ldexp(lam, -ew))
+    lam_w = float(to_caller(lam, -ew))
     if not math.isfinite(lam_w):
         raise InputError(
             f"l2 = {lam:g} is beyond the float64 range against weights as small as these (largest "
@@ -240,7 +240,7 @@ def _fit(
         # (returns None) and the QR path names the entry, so its arithmetic warnings are noise
         with np.errstate(invalid="ignore", over="ignore", divide="ignore", under="ignore"):
             sol = _gram.solve_by_gram(
-                Xa, y1, w1, n_pos, lam_w, intercept, default_rank_tolerance(n, p),
+                Xa, y1, w1, n_pos, lam_w, intercept, CONSTANT_TOLERANCE,
                 covariance=covariance, weight_type=weight_type, diagnostics=diagnostics,
                 block_rows=block_rows, case_weights=w,
             )
