@@ -146,14 +146,16 @@ def _wald_table(
         q = float(dist.t_quantile(tail, df))
         name = f"t({df:g})"
     p = np.minimum(p, 1.0)
+    with np.errstate(over="ignore", invalid="ignore"):  # an end beyond float64 is +-inf
+        lower, upper = estimate - q * se, estimate + q * se
     return CoefficientTable(
         terms=terms,
         estimate=estimate,
         standard_error=se,
         statistic=stat,
         p_value=p,
-        lower=estimate - q * se,
-        upper=estimate + q * se,
+        lower=lower,
+        upper=upper,
         level=level,
         distribution=name,
     )
