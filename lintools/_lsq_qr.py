@@ -317,28 +317,43 @@ def _solve_full_rank(Q, R, rhs, s, cen, y1, ybar, sw, root, intercept, n):
 
 
 def _solve_minimum_norm(A, rhs_y, s, ex, centre, intercept, aliased):
-    """Minimum-norm solution in the caller's coordinates by truncated SVD.
+    """Minimum-norm solution in the caller's coordinates.
 
-    The minimum is taken over the caller's coefficients: the unit columns are brought back
-    to the caller's relative scale (``2**(ex_j - max ex)``, exact) before the SVD.  Also
-    says which coefficients are identified: those whose unit vector is orthogonal to the
-    null space of the design (the intercept: when ``m' beta`` is, for every null
-    direction ``beta``)."""
+    The solution set ``beta_p + N t`` comes from the truncated SVD of the unit-column
+    design ``A`` (well scaled, so the null space ``N`` is accurate whatever the scales of
+    the columns).  The minimum of the caller's norm ``|beta|`` over that set is a small
+    weighted least-squares problem in ``t`` (weights ``2**-ex_j``, the caller's units),
+    solved by Householder QR with its rows sorted by size, which is accurate for weights
+    of any spread (Powell & Reid 1969).  A coefficient that the caller's metric makes tiny
+    (a column far larger than the one it is aliased with) keeps an absolute error of about
+    ``eps`` times the solution in unit coordinates: it is not identified, and only the
+    estimable combinations, which are accurate, mean anything.  Also says which
+    coefficients are identified:
+    those whose unit vector is orthogonal to the null space (the intercept: when
+    ``m' beta`` is, for every null direction ``beta``).  Returns the coefficients and their
+    covariance factor in unit coordinates (no column scaling)."""
     p = A.shape[1]
     rank = p - aliased.size
-    u = np.ldexp(1.0, ex - int(ex.max()))
-    Au = A * (s * u)  # undo the column scaling (rows already weighted and centred)
-    U, sv, Vt = np.linalg.svd(Au, full_matrices=False)
+    U, sv, Vt = np.linalg.svd(A, full_matrices=False)
     Ur, svr, Vr = U[:, :rank], sv[:rank], Vt[:rank].T
-    gamma = Vr @ ((Ur.T @ rhs_y) / svr)
-    beta = gamma * u
-    G = u[:, None] * ((Vr / svr**2) @ Vr.T) * u[None, :]
+    Mp = (Vr / svr) / s[:, None]  # beta_p = Mp U_r' rhs
+    N = Vt[rank:].T
+    Nb = N / s[:, None]  # the null directions in unit coordinates
+    d = np.ldexp(1.0, int(ex.min()) - ex)  # the caller's metric on unit coefficients, <= 1
+    DN = d[:, None] * Nb
+    order = np.argsort(-np.linalg.norm(DN, axis=1), kind="stable")
+    Q, R = np.linalg.qr(DN[order])
+    pinv = np.empty((N.shape[1], p))
+    pinv[:, order] = solve_upper(R, Q.T)  # (D N)^+
+    K = np.eye(p) - Nb @ (pinv * d[None, :])  # beta = K beta_p: the D-orthogonal projection
+    M = K @ Mp
+    beta = M @ (Ur.T @ rhs_y)
+    G = M @ M.T
     h_q = np.einsum("ij,ij->i", Ur, Ur)
     cond = float(svr[0] / svr[-1])
-    N = Vt[rank:].T
     slopes = np.sqrt(np.einsum("ij,ij->i", N, N)) <= IDENTIFIED_TOL
     if intercept:
-        c = centre * u
+        c = centre / s
         size = float(np.linalg.norm(c))
         first = size == 0 or float(np.linalg.norm(N.T @ c)) <= IDENTIFIED_TOL * size
         identified = np.concatenate([[first], slopes])

@@ -112,7 +112,13 @@ class Units:
         how (e.g. ``("y", 2)`` for a variance); the message names the one that pushes most."""
         out = to_caller(unit_value, exp)
         uv = np.asarray(unit_value, dtype=float)
-        bad = ~np.isfinite(out) & np.isfinite(uv)
+        if not np.all(np.isfinite(uv)):
+            raise InputError(
+                f"the {figure} of this least-squares fit is not a finite number in float64 arithmetic "
+                "even in scaled units; the data span more orders of magnitude than float64 can "
+                "combine: rescale the columns of X, y or the weights to moderate sizes"
+            )
+        bad = ~np.isfinite(out)
         if not bad.any():
             return out
         at = np.flatnonzero(np.ravel(bad))[0]

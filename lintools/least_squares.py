@@ -4,6 +4,13 @@ Objective (``w`` case weights, ``l2 >= 0``; the intercept ``b`` is never penalis
 
     minimise  1/2 * sum_i w_i (y_i - b - x_i' beta)^2  +  l2/2 * |beta|^2
 
+Units.  Before any arithmetic y, the weights and every column are divided by powers of
+two (exact) so that their largest entries lie in ``[1, 2)``, and the answer is mapped
+back exactly at the end (:mod:`lintools._lsq_scale`).  Multiplying y, the weights or a
+column by a constant therefore changes the answer only as the mathematics says; a figure
+whose true value lies beyond the largest float64 number is refused with an
+:class:`InputError` that names it and the input whose scale drives it.
+
 Two paths compute the fit; a test of conditioning chooses between them.  Problems with
 at most ``_gram.SMALL_PROBLEM`` entries always take the accurate path.
 
@@ -19,8 +26,10 @@ condition number is at most ``_gram.KAPPA_MAX`` and the worst-case contraction o
 refinement is small; the certificate must also be met.  Otherwise the fit takes the
 accurate path below.
 
-Accurate path: QR.  With an intercept the columns are centred at their weighted means
-(which removes the intercept from the factorisation exactly), rows are multiplied by
+Accurate path: QR (:mod:`lintools._lsq_qr`).  With an intercept the columns are centred
+at their weighted means in two parts (the rounded mean, then the mean of what it left),
+which removes the intercept from the factorisation to the last bit of each column's
+spread, so a column far from zero (a time stamp) loses nothing; rows are multiplied by
 ``sqrt(w_i)``, and every column is scaled to unit length.  The ridge term enters as
 ``p`` extra rows ``sqrt(l2) / s_j`` (augmentation), so the penalised problem is an
 ordinary least-squares problem.  Householder QR (LAPACK ``dgeqrf`` through
@@ -28,15 +37,21 @@ ordinary least-squares problem.  Householder QR (LAPACK ``dgeqrf`` through
 refinement recomputes the residual in extended precision (``numpy.longdouble``, 80-bit
 on x86-64 Linux; plain float64 where the platform has nothing wider) and solves for a
 correction with the same factors.  The refinement works on the augmented system
-``[I M; M' 0][r; theta] = [c; 0]`` in the original coordinates (Bjorck 1967), so it also
+``[I M; M' 0][r; theta] = [c; 0]`` in centred coordinates (Bjorck 1967), so it also
 recovers digits when the residual is large, which plain refinement of the solution
-(Golub & Wilkinson 1966) does not; at most ``MAX_REFINE`` steps are taken.
+(Golub & Wilkinson 1966) does not; at most ``MAX_REFINE`` steps are taken.  The RSS, the
+sandwich covariances, Cook's distance and the gradient use those centred residuals.
 
 Rank.  Column ``j`` is aliased when the part of its scaled, centred column orthogonal
 to the columns before it has length at most ``tol = max(n, p) * eps`` (unit column
-length after scaling), and a column that is constant on the rows with positive weight is
-aliased with the intercept.  The earliest columns of a dependent set are kept.  A
-constant or aliased column always sends the fit to the QR path, which names it.
+length after scaling), and a column that is constant on the rows with positive weight,
+or whose centred length is at most ``16 eps`` of its raw length (it varies only by
+rounding: :data:`lintools.linalg.CONSTANT_TOLERANCE`), is aliased with the intercept.
+The earliest columns of a dependent set are kept.  A constant or aliased column always
+sends the fit to the QR path, which names it.  With ``rank_deficient="minimum_norm"`` the
+coefficients that are not identified (their unit vector is not orthogonal to the null
+space of the design) get NaN standard errors; the covariance is that of the
+minimum-norm estimator, valid for estimable combinations.
 
 References
 ----------
@@ -131,13 +146,20 @@ def least_squares(
     weight_type : {"case", "precision"}
         ``"case"`` (default): weights count observations; a row of weight 2 is the same as
         two copies of the row, the number of observations is ``sum(w)``, and every
-        statistic equals that of the expanded data.  ``"precision"``: weights are inverse
-        variances (analytic weights); observations are the rows with ``w > 0``.  The
-        coefficients are the same either way; degrees of freedom, standard errors and the
-        log-likelihood differ.
+        statistic equals that of the expanded data (so ``w -> c w`` multiplies the
+        observations by ``c``: the covariance scales by about ``1/c``, and the fit is refused
+        when ``c sum(w)`` is not more than the parameters).  ``"precision"``: weights are
+        inverse variances, ``Var(y_i) = sigma^2 / w_i`` (analytic weights); observations
+        are the rows with ``w > 0``; ``w -> c w`` changes only the unit of ``sigma^2``
+        (residual standard error times ``sqrt(c)``, deviance times ``c``; coefficients,
+        standard errors, covariance and log-likelihood unchanged).  The coefficients are
+        the same either way; degrees of freedom, standard errors and the log-likelihood
+        differ.
     rank_deficient : {"raise", "minimum_norm"}
         A rank-deficient design raises :class:`InputError` naming the aliased columns
-        (default), or returns the minimum-norm solution with ``rank < p`` recorded.
+        (default), or returns the minimum-norm solution (smallest ``|beta|`` in the
+        caller's units) with ``rank < p`` recorded and NaN standard errors for the
+        coefficients that are not identified.
     diagnostics : bool
         Also compute leverage (hat values) and Cook's distance per row.
 
@@ -153,6 +175,16 @@ def least_squares(
     Householder QR with refinement in extended precision.  ``convergence.message`` and
     ``convergence.solver`` ("cholesky" or "qr") say which; ``condition_number`` is
     reported either way.
+
+    Scale: y, the weights and each column are divided by powers of two before any
+    arithmetic and the answer mapped back exactly, so ``y -> c y`` scales coefficients,
+    standard errors and the residual standard error by ``c`` and variances by ``c^2``, and
+    ``x_j -> c x_j`` gives the reparametrised fit; a reported figure beyond the float64
+    range (for example the covariance of ``y * 1e300``) raises :class:`InputError` naming
+    it and the input to rescale, and one below it rounds as float64 rounds (gradual
+    underflow).  Shifted columns are centred in two parts: ``x_j -> x_j + 1e12`` changes
+    the slopes, standard errors (every covariance type), leverage and Cook's distance in
+    no more than the last few bits.
 
     Residual degrees of freedom are ``N - k`` with ``N`` the number of observations
     and ``k`` the number of estimated mean parameters (rank, plus the intercept).  The

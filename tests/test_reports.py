@@ -270,3 +270,22 @@ def test_a_callers_array_is_not_frozen_by_a_record():
     replaced = dataclasses.replace(fit, coefficients=coef)
     assert coef.flags.writeable and not replaced.coefficients.flags.writeable
     assert not np.shares_memory(coef, replaced.coefficients)
+
+
+@pytest.mark.parametrize("k", [-500, -3, 0, 3, 500])
+def test_minimum_norm_solution_in_the_callers_units_any_column_scale(k):
+    """With x4 = 2^k x1 exactly, the minimum of |beta| over the solutions is, in closed form,
+    beta_1 = b_1 / (1 + 4^k), beta_4 = 2^k b_1 / (1 + 4^k), the other slopes as in the fit
+    without x4 (b; a fact of linear algebra).  Checked in the caller's norm (1e-12 for
+    |k| <= 3); for any k the estimable beta_1 + 2^k beta_4 = b_1 and the identified slopes
+    (1e-12), with no inf or NaN where the old SVD of the unscaled design overflowed."""
+    X, y = _stackloss()
+    b = lt.least_squares(X, y).coefficients
+    v = 2.0**k
+    fit = lt.least_squares(np.column_stack([X, X[:, 0] * v]), y, rank_deficient="minimum_norm")
+    assert np.all(np.isfinite(fit.coefficients)) and np.all(np.isfinite(fit.covariance))
+    assert abs(fit.coefficients[0] + v * fit.coefficients[3] - b[0]) <= 1e-12 * abs(b[0])
+    assert np.allclose(fit.coefficients[1:3], b[1:], rtol=1e-12, atol=0)
+    if abs(k) <= 3:
+        exact = np.r_[b[0] / (1 + v * v), b[1:], v * b[0] / (1 + v * v)]
+        assert np.linalg.norm(fit.coefficients - exact) <= 1e-12 * np.linalg.norm(exact)
