@@ -7,16 +7,17 @@ from typing import Any, Callable, Sequence
 
 import numpy as np
 
-from . import _distributions as dist
 from ._errors import (
     IllConditionedWarning,
     InputError,
     warn_caller,
     )
-from ._records import Convergence, LinearFit
-from ._validate import check_names, check_nonnegative
-from .least_squares import ILL_CONDITIONED, _residual_df, alias_sentences, caller_covariance
-from .linalg import aliased_columns, condition_number, default_rank_tolerance, inverse_upper, solve_lower, solve_upper
+from ._lsq_qr import ILL_CONDITIONED, alias_sentences
+from ._lsq_scale import Units, column_exponents, exponent, to_caller
+from ._validate import check_names, check_nonnegative, weight_scale
+from ._records import LinearFit
+from .least_squares import _record, _residual_df
+from .linalg import CONSTANT_TOLERANCE, aliased_columns, condition_number, default_rank_tolerance, inverse_upper, solve_lower, solve_upper
 from .logistic import _check_flag
 
 from ._block_stream import _add, _merge_labels, _positive_rows, _runner
@@ -27,32 +28,71 @@ MAX_REFINE = 3
 #: Rows per piece when a block is processed in extended precision.
 _PIECE_ROWS = 1 << 16
 _EPS = float(np.finfo(float).eps)
+_LD = np.longdouble
 
+
+def _two_sum(a, b):
+    """``(s, e)`` with ``s = fl(a + b)`` and ``a + b = s + e`` exactly (Knuth's TwoSum)."""
+    s = a + b
+    bb = s - a
+    return s, (a - (s - bb)) + (b - bb)
 
 
 def _factor(Z: np.ndarray, w: np.ndarray | None, intercept: bool) -> dict:
-    """Weight, mean and R factor of the weighted, centred columns of ``Z`` (modified)."""
+    """Weight, mean and R factor of the weighted, centred columns of ``Z`` (modified).
+
+    The mean is kept in two parts, ``mean`` (rounded) and ``mean_lo`` (what the rounding
+    left out): a column far from zero (``1e12 + N(0, 1)``) has a mean that float64 holds
+    only to ``1e-4``, and the merge of two factors needs the difference of their means to
+    the digits of the spread."""
     m, k = Z.shape
     W = float(m) if w is None else float(w.sum())
-    mean = np.zeros(k)
+    mean, lo = np.zeros(k), np.zeros(k)
     if intercept:
-        mean = (Z.sum(axis=0) if w is None else w @ Z) / W
-        Z -= mean
-        fix = (Z.sum(axis=0) if w is None else w @ Z) / W  # one correction of the rounded mean
-        Z -= fix
-        mean = mean + fix
+        m1 = (Z.sum(axis=0) if w is None else w @ Z) / W
+        Z -= m1
+        m2 = (Z.sum(axis=0) if w is None else w @ Z) / W  # one correction of the rounded mean
+        Z -= m2
+        mean, lo = _two_sum(m1, m2)
     if w is not None:
         Z *= np.sqrt(w)[:, None]
     R = np.linalg.qr(Z, mode="r")
     if R.shape[0] < k:
         R = np.vstack([R, np.zeros((k - R.shape[0], k))])
-    return {"W": W, "mean": mean, "R": R}
+    return {"W": W, "mean": mean, "mean_lo": lo, "R": R}
 
 
+def _merge_factors(a: dict, b: dict, intercept: bool) -> dict:
+    out = {"n_pos": a["n_pos"] + b["n_pos"], "n_rows": a["n_rows"] + b["n_rows"]}
+    for key in ("labels",):
+        if key in a or key in b:
+            out[key] = _merge_labels(a.get(key, {}), b.get(key, {}))
+    if "R" not in a or "R" not in b:
+        src = a if "R" in a else b
+        for key in ("W", "mean", "mean_lo", "R", "lo", "hi"):
+            if key in src:
+                out[key] = src[key]
+        return out
+    W = a["W"] + b["W"]
+    rows = [a["R"], b["R"]]
+    mean, lo = a["mean"], a.get("mean_lo", 0.0 * a["mean"])
+    if intercept:
+        # d = mean_b - mean_a from both parts: the rounded parts of close means cancel exactly
+        b_lo = b.get("mean_lo", 0.0 * b["mean"])
+        d_hi, d_err = _two_sum(b["mean"], -a["mean"])
+        d = d_hi + (d_err + (b_lo - lo))
+        mean, lo2 = _two_sum(a["mean"], lo + (b["W"] / W) * d)
+        lo = lo2
+        rows.append(math.sqrt(a["W"] / W) * math.sqrt(b["W"]) * d[None, :])  # no overflow of W_a W_b
+    R = np.linalg.qr(np.vstack(rows), mode="r")
+    out.update(W=W, mean=mean, mean_lo=lo, R=R, lo=np.minimum(a["lo"], b["lo"]), hi=np.maximum(a["hi"], b["hi"]))
+    return out
 
 
-def _factor_kernel(X: np.ndarray, y: np.ndarray, w: np.ndarray | None, intercept: bool) -> dict:
-    """Pass 1 of least squares: R factor of ``[X, y]`` and the extremes of each column."""
+def _ls_factor_kernel(X: np.ndarray, y: np.ndarray, w: np.ndarray | None, intercept: bool) -> dict:
+    """Pass 1 of least squares: R factor of ``[X, y]`` in the block's own units (each column
+    and the weights divided by a power of two, exactly; see :mod:`lintools._lsq_scale`),
+    and the extremes of each column."""
     n_rows = X.shape[0]
     X, y, w = _positive_rows(X, y, w)
     m, p = X.shape
@@ -63,51 +103,66 @@ def _factor_kernel(X: np.ndarray, y: np.ndarray, w: np.ndarray | None, intercept
     Z[:, :p] = X
     Z[:, p] = y
     out["lo"], out["hi"] = Z.min(axis=0), Z.max(axis=0)
-    out.update(_factor(Z, w, intercept))
+    ez = column_exponents(Z)
+    np.ldexp(Z, -ez, out=Z)
+    ew = 0
+    if w is not None:
+        ew = exponent(weight_scale(w))
+        ew += ew % 2  # even: the R factor carries sqrt(w), rescaled exactly by 2**(ew / 2)
+        w = np.ldexp(w, -ew)
+    out.update(_factor(Z, w, intercept), ez=ez, ew=ew)
     return out
 
 
-def _merge_factors(a: dict, b: dict, intercept: bool) -> dict:
-    out = {"n_pos": a["n_pos"] + b["n_pos"], "n_rows": a["n_rows"] + b["n_rows"]}
-    for key in ("labels",):
-        if key in a or key in b:
-            out[key] = _merge_labels(a.get(key, {}), b.get(key, {}))
-    if "R" not in a or "R" not in b:
-        src = a if "R" in a else b
-        for key in ("W", "mean", "R", "lo", "hi"):
-            if key in src:
-                out[key] = src[key]
+def _in_units(part: dict, ez: np.ndarray, ew: int) -> dict:
+    """A pass-1 summary re-expressed in the (larger) units ``ez``, ``ew`` (exact but for
+    parts that fall below the float64 range against the other summary)."""
+    if "R" not in part:
+        return part
+    dz = part["ez"] - ez
+    dw = part["ew"] - ew
+    out = dict(part)
+    out["W"] = float(np.ldexp(part["W"], dw))
+    out["mean"] = np.ldexp(part["mean"], dz)
+    out["mean_lo"] = np.ldexp(part["mean_lo"], dz)
+    out["R"] = np.ldexp(part["R"], dz[None, :] + dw // 2)
+    return out
+
+
+def _ls_merge(a: dict, b: dict, intercept: bool) -> dict:
+    """Two pass-1 summaries in common units, merged (:func:`_merge_factors`)."""
+    have = [q for q in (a, b) if "R" in q]
+    if len(have) < 2:
+        out = _merge_factors(a, b, intercept)
+        if have:
+            out.update(ez=have[0]["ez"], ew=have[0]["ew"])
         return out
-    W = a["W"] + b["W"]
-    rows = [a["R"], b["R"]]
-    mean = a["mean"]
-    if intercept:
-        d = b["mean"] - a["mean"]
-        mean = a["mean"] + (b["W"] / W) * d
-        rows.append(math.sqrt(a["W"] / W) * math.sqrt(b["W"]) * d[None, :])  # no overflow of W_a W_b
-    R = np.linalg.qr(np.vstack(rows), mode="r")
-    out.update(W=W, mean=mean, R=R, lo=np.minimum(a["lo"], b["lo"]), hi=np.maximum(a["hi"], b["hi"]))
+    ez = np.maximum(a["ez"], b["ez"])
+    ew = max(a["ew"], b["ew"])
+    out = _merge_factors(_in_units(a, ez, ew), _in_units(b, ez, ew), intercept)
+    out.update(ez=ez, ew=ew)
     return out
 
 
+def _ls_residual_kernel(X: np.ndarray, y: np.ndarray, w: np.ndarray | None, ez: np.ndarray, ew: int,
+                        c_hi: np.ndarray, c_lo: np.ndarray, a: float, beta: np.ndarray) -> dict:
+    """Residual sums at ``(a, beta)`` in centred unit coordinates, in extended precision.
 
-
-def _residual_kernel(X: np.ndarray, y: np.ndarray, w: np.ndarray | None, b0: float, beta: np.ndarray) -> dict:
-    """Residual sums at ``(b0, beta)`` accumulated in extended precision, piece by piece."""
-    ld = np.longdouble
-    bl, b0l = beta.astype(ld), ld(b0)
+    The residual is ``(y - ybar) - a - (x - xbar)' beta`` with every column in its unit and
+    the means in two parts (pass 1), so a column far from zero cancels nothing."""
     p = X.shape[1]
-    rho, rss, gx = ld(0), ld(0), np.zeros(p, dtype=ld)
+    inv = np.ldexp(_LD(1), -ez)
+    cen = c_hi.astype(_LD) + c_lo.astype(_LD)
+    bl, al = beta.astype(_LD), _LD(a)
+    rho, rss, gx = _LD(0), _LD(0), np.zeros(p, dtype=_LD)
     for lo in range(0, X.shape[0], _PIECE_ROWS):
-        Xl = X[lo : lo + _PIECE_ROWS].astype(ld)
-        r = y[lo : lo + _PIECE_ROWS].astype(ld) - (Xl @ bl + b0l)
-        wr = r if w is None else w[lo : lo + _PIECE_ROWS].astype(ld) * r
+        Xl = X[lo : lo + _PIECE_ROWS].astype(_LD) * inv[:p] - cen[:p]
+        r = (y[lo : lo + _PIECE_ROWS].astype(_LD) * inv[p] - cen[p]) - al - Xl @ bl
+        wr = r if w is None else np.ldexp(w[lo : lo + _PIECE_ROWS], -ew).astype(_LD) * r
         rho += wr.sum()
         rss += wr @ r
         gx += Xl.T @ wr
     return {"rho": rho, "rss": rss, "gx": gx}
-
-
 
 
 # ---------------------------------------------------------------------------------------
@@ -164,13 +219,19 @@ def least_squares_blocks(
     InputError
         A bad block (named by its number, with the row within the block, the column and
         the remedy), a source that is not callable, returns no iterator, yields nothing or
-        changes between passes, or a rank-deficient design (the aliased columns named).
+        changes between passes, a rank-deficient design (the aliased columns named), or a
+        reported figure beyond the float64 range (named, with the input whose scale drives it).
 
     Notes
     -----
-    Pass 1 computes the R factor of the weighted ``[X, y]``, centred exactly by pairwise
-    updates of the means (module docstring); passes 2+ evaluate the residual of the answer
-    in extended precision and correct it (at most ``MAX_REFINE`` times), so that RSS,
+    Scale: every block's columns of ``[X, y]`` and its weights are divided by powers of two
+    (exact) before any arithmetic, and two summaries are brought to common units before
+    they merge, so the scale of the response, of a column or of the weights changes the
+    answer only as the mathematics says (:mod:`lintools._lsq_scale`); means are kept in two
+    parts, so a column shifted far from zero loses no digits.  Pass 1 computes the R factor
+    of the weighted ``[X, y]``, centred exactly by pairwise updates of the means (module
+    docstring); passes 2+ evaluate the residual of the answer in extended precision, in
+    centred coordinates, and correct it (at most ``MAX_REFINE`` times), so that RSS,
     gradient and coefficients agree with the in-memory QR path.  Memory: a few copies of
     one block (its checked copy and the QR work array) plus ``O(p^2 log(blocks))`` for the
     pending R factors, whatever the number of rows (measured by
@@ -182,17 +243,19 @@ def least_squares_blocks(
     Demmel, Grigori, Hoemmen & Langou (2012), SIAM J. Sci. Comput. 34, A206-A239 (TSQR).
     Chan, Golub & LeVeque (1983), The American Statistician 37, 242-247 (pairwise means).
     Bjorck (1987), Linear Algebra Appl. 88/89, 31-48 (corrected semi-normal equations).
+    Knuth (1997), The Art of Computer Programming 2, 3rd ed., sec. 4.2.2 (TwoSum).
     """
     intercept = _check_flag(intercept, "intercept")
     lam = check_nonnegative(l2, "l2")
     run = _runner(source, X, y, weights)
-    part = run.reduce(_factor_kernel, _merge_factors, (intercept,), (intercept,))
+    part = run.reduce(_ls_factor_kernel, _ls_merge, (intercept,), (intercept,))
     p = run.spec.p
     names_t = check_names(names, p, run.names)
     n_pos, n_rows = part["n_pos"], part["n_rows"]
     if n_pos == 0:
         raise InputError("weights are zero in every block; at least one row needs a positive weight")
-    W, mean, R = part["W"], part["mean"], part["R"]
+    W, R, ez, ew = part["W"], part["R"], part["ez"], part["ew"]
+    c_hi, c_lo = part["mean"], part["mean_lo"]
     off = int(intercept)
     k_max = p + off
     if lam == 0 and n_pos < k_max:
@@ -208,27 +271,42 @@ def least_squares_blocks(
         )
     if not intercept and ylo == 0 and yhi == 0:
         raise InputError("y is zero on every row with positive weight; check the target column")
+    n_obs = float(to_caller(W, ew))
+    lam1 = to_caller(lam, -ew - 2 * ez[:p])  # the ridge on the unit coefficients
+    if not (math.isfinite(n_obs) and np.all(np.isfinite(lam1))):
+        raise InputError(
+            "the case weights add up to more than the largest float64 number, or l2 is beyond the "
+            "float64 range against weights this small; rescale the weights (case weights count "
+            "observations) or lower l2"
+        )
+    units = Units(int(ez[p]), int(ew), ez[:p].astype(np.int64), names_t)
+    centre = c_hi[:p] + c_lo[:p]
 
-    sol = _solve_factor(R, W, mean, part["lo"][:p], part["hi"][:p], lam, intercept, names_t, n_rows)
-    beta, b0 = sol["beta"], sol["b0"]
-    xbar = mean[:p] if intercept else np.zeros(p)
+    sol = _solve_factor(R, W, c_hi, part["lo"][:p], part["hi"][:p], lam1, intercept, names_t, n_rows, units.ex)
+    beta, a = sol["beta"], 0.0
+    ybar = _LD(c_hi[p]) + _LD(c_lo[p])
+
+    def intercept_of(a_k, beta_k):
+        return float(ybar + _LD(a_k) - (c_hi[:p].astype(_LD) + c_lo[:p].astype(_LD)) @ beta_k.astype(_LD)) if intercept else 0.0
+
     steps, last = 0, math.inf
     while True:
-        res = run.reduce(_residual_kernel, _add, (b0, beta))
+        res = run.reduce(_ls_residual_kernel, _add, (ez, ew, c_hi, c_lo, a, beta))
         rho, gx = float(res["rho"]), res["gx"].astype(float)
-        rhs = gx - lam * beta - (xbar * rho if intercept else 0.0)
-        dbeta = sol["solve"](rhs)
-        db0 = rho / W - float(xbar @ dbeta) if intercept else 0.0
-        # componentwise: an intercept far larger than the slopes must not hide their digits
-        theta, dtheta = np.r_[b0, beta][1 - off :], np.r_[db0, dbeta][1 - off :]
+        dbeta = sol["solve"](gx - lam1 * beta)
+        da = rho / W if intercept else 0.0
+        # componentwise on (b, beta): an intercept far larger than the slopes must not hide their digits
+        theta = np.r_[intercept_of(a, beta), beta][1 - off :]
+        dtheta = np.r_[da - float(centre @ dbeta), dbeta][1 - off :]
         size = float(np.max(np.abs(dtheta) / np.maximum(np.abs(theta), np.finfo(float).tiny)))
         if size <= 4 * _EPS or steps == MAX_REFINE or size > 0.5 * last:
             break
-        beta, b0, last = beta + dbeta, b0 + db0, size
+        beta, a, last = beta + dbeta, a + da, size
         steps += 1
     rss = float(res["rss"])
     tss = float(R[:, p] @ R[:, p])  # about the mean with an intercept, about 0 without
-    grad = np.concatenate([[-rho] if intercept else [], -gx + lam * beta])
+    g_beta = -gx + lam1 * beta
+    grad = np.concatenate([[-rho], g_beta - centre * rho]) if intercept else g_beta
     if sol["cond"] > ILL_CONDITIONED:
         warn_caller(
             f"the scaled design is ill-conditioned (condition number {sol['cond']:.3g}); it was solved "
@@ -240,91 +318,51 @@ def least_squares_blocks(
         f"solved by TSQR (Householder R factor of each block, reduced pairwise) with {steps} "
         f"refinement step(s), residuals in extended precision; {run.passes} passes over the blocks"
     )
-    return _linear_record(W, n_pos, p, intercept, lam, names_t, beta, b0, sol, xbar, rss, tss, grad,
-                          1 + steps, message)
+    fit = {
+        "beta": beta, "b0": intercept_of(a, beta), "rank": p, "aliased": np.zeros(0, dtype=int),
+        "full_rank": True, "s": sol["s"], "xbar": centre if intercept else np.zeros(p), "G": sol["G"],
+        "cond": sol["cond"], "rss": rss, "tss": tss, "e": None, "hat": None, "meat_z": None,
+        "leverage_one_row": None, "grad": grad, "lam1": lam1, "col_exp": units.ex, "identified": None,
+        "w1": None, "iterations": 1 + steps, "solver": "tsqr", "message": message,
+    }
+    df = _residual_df(n_obs, k_max, "case", n_pos)
+    return _record(fit, units, W, n_obs, df, None, lam, intercept, names_t, "classical", "case", False, "y")
 
 
-def _solve_factor(R: np.ndarray, W: float, mean: np.ndarray, lo: np.ndarray, hi: np.ndarray, lam: float,
-                  intercept: bool, names: tuple[str, ...], n_rows: int) -> dict:
-    """Coefficients, scaled inverse information and condition from the reduced R factor."""
+def _solve_factor(R: np.ndarray, W: float, mean: np.ndarray, lo: np.ndarray, hi: np.ndarray, lam1: np.ndarray,
+                  intercept: bool, names: tuple[str, ...], n_rows: int, ex: np.ndarray) -> dict:
+    """Coefficients, scaled inverse information and condition from the reduced R factor (units)."""
     p = R.shape[1] - 1
     s = np.linalg.norm(R[:, :p], axis=0)
-    raw = np.sqrt(s * s + (W * mean[:p] ** 2 if intercept else 0.0))
+    raw = np.hypot(s, math.sqrt(W) * mean[:p]) if intercept else s
     tol = default_rank_tolerance(n_rows, p)
     constant = (lo == hi) if intercept else np.zeros(p, dtype=bool)
-    zero = constant | (s <= tol * raw) | (s == 0)
+    zero = constant | (s <= CONSTANT_TOLERANCE * raw) | (s == 0)
     s = np.where(zero, 1.0, s)
     A = R / np.concatenate([s, [1.0]])
     A[:, :p][:, zero] = 0.0
-    if lam > 0:
-        A = np.vstack([A, np.hstack([np.diag(math.sqrt(lam) / s), np.zeros((p, 1))])])
-        col_norm = np.sqrt(np.where(zero, 0.0, 1.0) + lam / s**2)
+    if np.any(lam1 > 0):
+        aug = np.sqrt(lam1) / s
+        A = np.vstack([A, np.hstack([np.diag(aug), np.zeros((p, 1))])])
+        col_norm = np.hypot(np.where(zero, 0.0, 1.0), aug)
     else:
         col_norm = np.where(zero, 0.0, 1.0)
     R2 = np.linalg.qr(A, mode="r")[: p + 1]
     Rxx = R2[:p, :p]
-    aliased = np.union1d(np.flatnonzero(zero & (lam == 0)),
+    aliased = np.union1d(np.flatnonzero(zero & ~(lam1 > 0)),
                          aliased_columns(Rxx, np.maximum(col_norm, 1e-300), tol)).astype(int)
     if aliased.size:
         raise InputError(
-            alias_sentences(aliased, zero, names, Rxx, s, intercept)
+            alias_sentences(aliased, zero, names, Rxx, s, intercept, ex, exact=constant | (s == 0))
             + ". Drop the aliased column(s), or set l2 > 0 (the in-memory lintools.least_squares "
             "also offers rank_deficient='minimum_norm')"
         )
     theta = solve_upper(Rxx, R2[:p, p])
     beta = theta / s
-    b0 = float(mean[p] - mean[:p] @ beta) if intercept else 0.0
     Rinv = inverse_upper(Rxx)
 
     def solve(rhs):
         """``(C + l2 I)^{-1} rhs`` with ``C + l2 I = D Rxx' Rxx D``."""
         return solve_upper(Rxx, solve_lower(Rxx.T, rhs / s)) / s
 
-    return {"beta": beta, "b0": b0, "s": s, "G": Rinv @ Rinv.T, "cond": condition_number(Rxx), "solve": solve}
-
-
-def _linear_record(W: float, n_pos: int, p: int, intercept: bool, lam: float, names: tuple[str, ...],
-                   beta: np.ndarray, b0: float, sol: dict, xbar: np.ndarray, rss: float, tss: float,
-                   grad: np.ndarray, iterations: int, message: str) -> LinearFit:
-    """The :class:`LinearFit` of a full-rank fit (the statistics of lintools.least_squares)."""
-    off = int(intercept)
-    k = p + off
-    df = _residual_df(W, k, "case", n_pos)
-    sigma2 = rss / df
-    r2 = 1.0 - rss / tss
-    s = sol["s"]
-    Bz = np.zeros((k, k))
-    if intercept:
-        Bz[0, 0] = 1.0 / W
-    Bz[off:, off:] = sol["G"]
-    Vz = sigma2 * Bz
-    V = caller_covariance(Vz, xbar, s, intercept)
-    se = np.sqrt(np.clip(np.diag(V), 0.0, None))
-    f_df1 = float(p)
-    try:
-        u = np.linalg.solve(np.linalg.cholesky(Vz[off:, off:]), beta * s)
-        fstat = float(u @ u) / f_df1
-    except np.linalg.LinAlgError:
-        fstat = float("nan")
-    f_p = float(dist.f_sf(fstat, f_df1, df)) if np.isfinite(fstat) else float("nan")
-    loglik = -0.5 * W * (math.log(2.0 * math.pi * rss / W) + 1.0) if rss > 0 else float("inf")
-    conv = Convergence(
-        converged=True, iterations=int(iterations), gradient_norm=float(np.max(np.abs(grad))),
-        objective=0.5 * rss + 0.5 * lam * float(beta @ beta), solver="tsqr", message=message,
-    )
-    return LinearFit(
-        coefficients=beta, intercept=float(b0), standard_errors=se[off:],
-        intercept_standard_error=float(se[0]) if intercept else None, covariance=V,
-        log_likelihood=loglik, deviance=rss, aic=-2.0 * loglik + 2.0 * (k + 1),
-        bic=-2.0 * loglik + math.log(W) * (k + 1), n_observations=W, names=names, convergence=conv,
-        with_intercept=bool(intercept), l2=lam, residual_standard_error=math.sqrt(sigma2),
-        r_squared=r2, adjusted_r_squared=1.0 - (1.0 - r2) * (W - off) / df, f_statistic=fstat,
-        f_p_value=f_p, f_degrees_of_freedom=(f_df1, float(df)), degrees_of_freedom=float(df),
-        rank=int(k), covariance_type="classical", weight_type="case",
-        condition_number=float(sol["cond"]), aliased=(), target="y",
-    )
-
-
-# ---------------------------------------------------------------------------------------
-# Logistic regression
-# ---------------------------------------------------------------------------------------
+    return {"beta": beta, "s": s, "G": Rinv @ Rinv.T, "cond": condition_number(Rxx), "solve": solve}

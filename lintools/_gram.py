@@ -106,6 +106,9 @@ CANCELLATION_MAX = 4.0
 FLOOR_FACTOR = 16.0
 #: Residual passes (each: residual, gradient, correction) before giving up on the path.
 MAX_RESIDUAL_PASSES = 3
+#: Columns whose largest |x| (subsample) lies beyond 2**+-COLUMN_BAND are divided by a power
+#: of two, so that products of 2 * COLUMN_BAND bits and sums of them stay in range.
+COLUMN_BAND = 400
 #: Rows in the subsample that gives the starting values and the provisional centre.
 SUBSAMPLE_ROWS = 8192
 _BLOCK_BYTES = 1 << 20
@@ -140,16 +143,24 @@ class GramSolution:
     hat: np.ndarray | None
     meat_z: np.ndarray | None
     leverage_one_row: int | None
+    #: exponents of the powers of two the columns were divided by (see lintools._lsq_scale)
+    col_exp: np.ndarray
+    #: the ridge on the unit coefficients, per column
+    lam_vec: np.ndarray
+    #: the weights the path used (None: unit weights)
+    w1: np.ndarray | None
     #: per residual pass: (size of the correction, certificate floor), scaled coordinates
     trace: tuple = ()
 
 
 class _Blocks:
-    """Row blocks of ``X - shift`` as views (no shift) or in one reusable buffer."""
+    """Row blocks of ``X * inv - shift`` as views (no scale, no shift) or in one reusable
+    buffer; ``inv`` (powers of two, exact) is None unless a column needs rescaling."""
 
-    def __init__(self, X: np.ndarray, shift: np.ndarray | None, rows: int):
+    def __init__(self, X: np.ndarray, shift: np.ndarray | None, rows: int, inv: np.ndarray | None = None):
         self.X = X
         self.shift = shift
+        self.inv = inv
         self.flat = shift is not None and X.flags.c_contiguous
         self.tile = np.tile(shift, rows) if self.flat else None
 
@@ -157,10 +168,14 @@ class _Blocks:
         """The block of rows ``lo:hi``; a copy goes into a buffer of the calling thread
         (its next block reuses it), so blocks may be formed on several threads at once."""
         Xb = self.X[lo:hi]
-        if self.shift is None and not writable:
+        if self.shift is None and self.inv is None and not writable:
             return Xb
         out = scratch("shifted", (hi - lo, self.X.shape[1]))
-        if self.shift is None:
+        if self.inv is not None:
+            np.multiply(Xb, self.inv, out=out)
+            if self.shift is not None:
+                out -= self.shift
+        elif self.shift is None:
             np.copyto(out, Xb)
         elif self.flat:
             np.subtract(Xb.reshape(-1), self.tile[: out.size], out=out.reshape(-1))
@@ -169,13 +184,13 @@ class _Blocks:
         return out
 
 
-def _first_pass(X, y, ybar, w, shift, beta0, a0, rows):
+def _first_pass(X, y, ybar, w, shift, beta0, a0, rows, inv):
     """Pass 1: moments of the shifted columns, of ``yt``, and of the start's residual
     (block by block on the row threads, the block sums added in row order).  The products
     ``v' Z`` stay with the BLAS: the correction steps need their accuracy (NumPy's sum of
     products here cost the weighted benchmark a digit, measured 12.0 -> 11.0)."""
     n, p = X.shape
-    blocks = _Blocks(X, shift, rows)
+    blocks = _Blocks(X, shift, rows, inv)
     ones = np.ones(rows) if w is None else None  # ones @ Z: faster than Z.sum(axis=0)
 
     def part(lo: int, hi: int) -> tuple:
@@ -200,14 +215,16 @@ def _first_pass(X, y, ybar, w, shift, beta0, a0, rows):
     return float(W), sx, S, float(rho), gx, float(rss), float(ty), float(tyy)
 
 
-def _residual_pass(X, y, ybar, w, shift, beta, a, rows, *, keep_residuals, lev, meat):
+def _residual_pass(X, y, ybar, w, shift, beta, a, rows, *, keep_residuals, lev, meat, inv=None, case_weights=None):
     """Residual of ``(a, beta)``: its weighted sum, cross products and square; options.
 
     ``lev`` = (K, km, Winv) gives the leverage ``w_i |K xt_i - km|^2 + w_i Winv``;
-    ``meat`` = (kind, weight_type) accumulates ``[1, xt]' diag(m) [1, xt]``.
+    ``meat`` = (kind, weight_type) accumulates ``[1, xt]' diag(m) [1, xt]``; the leverage
+    of one copy of a case-weighted row divides by its weight in ``case_weights`` (the
+    caller's, whatever the scale of ``w``).
     """
     n, p = X.shape
-    blocks = _Blocks(X, shift, rows)
+    blocks = _Blocks(X, shift, rows, inv)
     e = np.empty(n) if keep_residuals else None
     hat = np.empty(n) if lev is not None else None
 
@@ -243,7 +260,11 @@ def _residual_pass(X, y, ybar, w, shift, beta, a, rows, *, keep_residuals, lev, 
         first = None
         if kind in ("HC2", "HC3"):
             hb = hat[lo:hi]
-            levb = np.divide(hb, wb, out=np.zeros_like(hb), where=wb > 0) if weight_type == "case" else hb
+            if weight_type == "case":
+                cw = wb if case_weights is None else case_weights[lo:hi]
+                levb = np.divide(hb, cw, out=np.zeros_like(hb), where=cw > 0)
+            else:
+                levb = hb
             bad = (wb > 0) & (levb >= 1.0 - 1e-12)
             if bad.any():
                 first = lo + int(np.flatnonzero(bad)[0])
@@ -279,12 +300,13 @@ def _subsample_rows(n, w, n_pos, k):
     return rows_pos[np.unique(np.linspace(0, rows_pos.size - 1, min(k, rows_pos.size)).astype(np.intp))]
 
 
-def _subsample_start(X, y, ybar, w, n_pos, intercept, lam, W):
-    """Provisional centre, spread and starting values from evenly spaced rows."""
+def _subsample_start(X, y, ybar, w, idx, intercept, lam, W, inv):
+    """Provisional centre, spread and starting values from the rows ``idx``."""
     n, p = X.shape
-    idx = _subsample_rows(n, w, n_pos, max(SUBSAMPLE_ROWS, 4 * (p + 1)))
     k = idx.size
     Xs, ys = X[idx], y[idx] - ybar
+    if inv is not None:
+        Xs = Xs * inv
     ws = np.ones(k) if w is None else w[idx]
     Ws = float(ws.sum())
     if intercept:
@@ -299,13 +321,13 @@ def _subsample_start(X, y, ybar, w, n_pos, intercept, lam, W):
     if k > p:
         # normal equations on the subsample (only a start; lstsq if they are singular)
         G = A.T @ A
-        G[np.diag_indices(p)] += lam * Ws / W
+        G[np.diag_indices(p)] += lam * (Ws / W)
         try:
             Ls = np.linalg.cholesky(G)
             beta0 = solve_upper(Ls.T, solve_lower(Ls, A.T @ b))
         except np.linalg.LinAlgError:
-            if lam > 0:
-                A = np.vstack([A, math.sqrt(lam * Ws / W) * np.eye(p)])
+            if np.any(lam > 0):
+                A = np.vstack([A, np.diag(np.sqrt(lam * (Ws / W)))])
                 b = np.concatenate([b, np.zeros(p)])
             beta0 = np.linalg.lstsq(A, b, rcond=None)[0]
         if not np.all(np.isfinite(beta0)):
@@ -326,22 +348,32 @@ def solve_by_gram(
     weight_type: str = "case",
     diagnostics: bool = False,
     block_rows: int | None = None,
+    case_weights: np.ndarray | None = None,
 ) -> GramSolution | None:
     """Fit by the corrected semi-normal equations, or return None when QR is needed.
 
     Parameters
     ----------
-    Xa, ya : validated design (n, p) and response (n,); never modified.
-    w : case weights (n,), or None for unit weights.
+    Xa, ya : validated design (n, p) and response (n,); never modified.  ``ya`` and ``w``
+        are in the units of :mod:`lintools._lsq_scale` (largest entry in ``[1, 2)``).
+    w : weights (n,), or None for unit weights.
     n_pos : number of rows with positive weight.
-    lam : ridge strength ``l2`` on the slopes.
+    lam : ridge strength on the slopes, per unit weight (``l2 / 2**ew``).
     intercept : whether an unpenalised intercept is fitted.
     rank_tol : a column is treated as constant (aliased with the intercept) when its
-        centred weighted length is at most ``rank_tol`` times its raw weighted length.
+        centred weighted length is at most ``rank_tol`` times its raw weighted length
+        (:data:`lintools.linalg.CONSTANT_TOLERANCE`).
     covariance, weight_type : as in :func:`lintools.least_squares`; the HC meat is
         accumulated in the last pass only when ``covariance`` is not ``"classical"``.
     diagnostics : also return leverage and residuals per row.
     block_rows : rows per block (default :func:`default_block_rows`).
+    case_weights : the caller's weights, for the leverage of one copy of a case-weighted
+        row (HC2, HC3).
+
+    Column units: a column whose largest ``|x|`` on the subsample lies outside
+    ``2**-COLUMN_BAND .. 2**COLUMN_BAND`` is divided by a power of two (exactly, block by
+    block), so that no product in the Gram matrix overflows or underflows; the answer is
+    then in those units (``col_exp``).  Otherwise the blocks are read in place.
 
     Returns
     -------
@@ -358,7 +390,14 @@ def solve_by_gram(
         ybar = (float(ya.sum()) if w is None else float(w @ ya)) / W_all
     else:
         ybar = 0.0
-    xm, sd, beta0, a0 = _subsample_start(Xa, ya, ybar, w, n_pos, intercept, lam, W_all)
+    idx = _subsample_rows(n, w, n_pos, max(SUBSAMPLE_ROWS, 4 * (p + 1)))
+    _, top = np.frexp(np.max(np.abs(Xa[idx]), axis=0))
+    col_exp = np.where(np.abs(top - 1) > COLUMN_BAND, top - 1, 0).astype(np.int64)
+    inv = np.ldexp(1.0, -col_exp) if np.any(col_exp) else None
+    lam = np.ldexp(lam, -2 * col_exp)  # the ridge on the unit coefficients
+    if not np.all(np.isfinite(lam)):
+        return None
+    xm, sd, beta0, a0 = _subsample_start(Xa, ya, ybar, w, idx, intercept, lam, W_all, inv)
     shift = None
     if intercept and np.any(np.abs(xm) > SHIFT_RATIO * sd):
         shift = xm.copy()
@@ -366,7 +405,7 @@ def solve_by_gram(
     for attempt in range(2):
         # the start is a0 + x'beta0 = (a0 + shift'beta0) + (x - shift)'beta0
         a_start = a0 + (float(shift @ beta0) if shift is not None else 0.0) if intercept else 0.0
-        W, sx, S, rho, gx, _, ty, tyy = _first_pass(Xa, ya, ybar, w, shift, beta0, a_start, rows)
+        W, sx, S, rho, gx, _, ty, tyy = _first_pass(Xa, ya, ybar, w, shift, beta0, a_start, rows, inv)
         shift_vec = np.zeros(p) if shift is None else shift
         if not intercept:
             dm = np.zeros(p)
@@ -432,7 +471,8 @@ def solve_by_gram(
     trace: list[tuple[float, float]] = []
     for steps in range(1, MAX_RESIDUAL_PASSES + 1):
         rho, gx, rss, e, hat, M, first_one = _residual_pass(
-            Xa, ya, ybar, w, shift, beta_k, a_k, rows, keep_residuals=diagnostics, lev=lev, meat=meat
+            Xa, ya, ybar, w, shift, beta_k, a_k, rows, keep_residuals=diagnostics, lev=lev, meat=meat,
+            inv=inv, case_weights=case_weights,
         )
         dbeta, da, dtheta = correction(rho, gx, beta_k)
         size = math.sqrt(float(dtheta @ dtheta) + (rho * rho / W if intercept else 0.0))
@@ -481,5 +521,8 @@ def solve_by_gram(
         hat=hat,
         meat_z=meat_z,
         leverage_one_row=first_one,
+        col_exp=col_exp,
+        lam_vec=lam,
+        w1=w,
         trace=tuple(trace),
     )

@@ -1,7 +1,8 @@
 """Frozen result records shared by the fits, and the text report.
 
-A fit returns a frozen dataclass that holds NumPy arrays (never views of the caller's
-data).  The records know how to evaluate the fitted model on new rows
+A fit returns a frozen dataclass that holds read-only NumPy arrays (never views of the
+caller's data): ``fit.coefficients[0] = 1`` raises.  Methods that hand out arrays for the
+caller to keep (``linear_predictor``, ``mean``, ``labels``) return new, writable ones.  The records know how to evaluate the fitted model on new rows
 (``linear_predictor``, ``mean``, ``labels``), how to build the coefficient table
 (estimate, standard error, statistic, two-sided p-value, interval) and how to render it
 as text (``report``).  ``to_dict`` gives a JSON-ready dictionary; :mod:`lintools.io`
@@ -19,7 +20,7 @@ import numpy as np
 
 from . import _distributions as dist
 from ._errors import InputError
-from ._validate import as_matrix
+from ._validate import ReadOnlyArrays, as_matrix
 
 __all__ = ["Convergence", "CoefficientTable", "LinearFit"]
 
@@ -58,12 +59,14 @@ class Convergence:
 
 
 @dataclass(frozen=True)
-class CoefficientTable:
+class CoefficientTable(ReadOnlyArrays):
     """Per-parameter inference: one entry per term (intercept first when fitted).
 
     ``statistic = estimate / standard_error``; ``p_value`` is two-sided against the
     reference distribution named by ``distribution`` (``"normal"`` or ``"t(df)"``);
-    ``lower`` and ``upper`` bound the Wald interval at ``level``.
+    ``lower`` and ``upper`` bound the Wald interval at ``level``.  Where the standard error
+    is zero (an exact fit, or a parameter fixed rather than estimated) or NaN (a coefficient
+    that is not identified) the statistic and the p-value are not defined: NaN.
     """
 
     terms: tuple[str, ...]
@@ -77,22 +80,43 @@ class CoefficientTable:
     distribution: str
 
 
-def _fmt(value: float, width: int = 13) -> str:
+#: What the table prints where a figure is not defined (see the note under the table).
+UNDEFINED = "-"
+
+
+def _num(value: float) -> str:
+    """A number in at most 14 characters (``%.7g``), ``nan``, ``inf`` or ``-inf``."""
     if value is None or not np.isfinite(value):
-        text = "nan" if value is None or np.isnan(value) else ("inf" if value > 0 else "-inf")
-    else:
-        text = f"{value:.7g}"
-    return text.rjust(width)
+        return "nan" if value is None or np.isnan(value) else ("inf" if value > 0 else "-inf")
+    return f"{value:.7g}"
+
+
+def _fmt(value: float, width: int = 13) -> str:
+    """:func:`_num`, right-aligned in ``width`` columns and never touching its left neighbour."""
+    text = _num(value)
+    return text.rjust(max(width, len(text) + 1))
+
+
+def _p_text(value: float) -> str:
+    if not np.isfinite(value):
+        return "nan"
+    if value < 1e-300:
+        return "<1e-300"
+    if value < 1e-4:
+        return f"{value:.2e}"
+    return f"{value:.4f}"
 
 
 def _fmt_p(value: float) -> str:
+    return _p_text(value).rjust(10)
+
+
+def _stat_text(value: float) -> str:
+    if np.isnan(value):
+        return UNDEFINED
     if not np.isfinite(value):
-        return "nan".rjust(10)
-    if value < 1e-300:
-        return "<1e-300".rjust(10)
-    if value < 1e-4:
-        return f"{value:.2e}".rjust(10)
-    return f"{value:.4f}".rjust(10)
+        return "inf" if value > 0 else "-inf"
+    return f"{value:.3f}" if abs(value) < 1e5 else f"{value:.3e}"
 
 
 def _wald_table(
@@ -107,57 +131,74 @@ def _wald_table(
     level = float(level)
     estimate = np.asarray(estimate, dtype=float)
     se = np.asarray(se, dtype=float)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        stat = estimate / se
+    # a statistic needs a positive standard error: zero (exact fit, fixed parameter) and
+    # NaN (not identified) leave it undefined
+    defined = (se > 0) & np.isfinite(estimate)
+    stat = np.full(estimate.shape, np.nan)
+    with np.errstate(over="ignore"):
+        stat[defined] = estimate[defined] / se[defined]
     tail = 0.5 + level / 2.0
+    p = np.full(estimate.shape, np.nan)
     if df is None:
-        p = 2.0 * dist.normal_sf(np.abs(stat))
+        p[defined] = 2.0 * dist.normal_sf(np.abs(stat[defined]))
         q = float(dist.normal_quantile(tail))
         name = "normal"
     else:
-        p = 2.0 * dist.t_sf(np.abs(stat), df)
+        p[defined] = 2.0 * dist.t_sf(np.abs(stat[defined]), df)
         q = float(dist.t_quantile(tail, df))
         name = f"t({df:g})"
-    p = np.where(np.isnan(stat), np.nan, np.minimum(p, 1.0))
+    p = np.minimum(p, 1.0)
+    with np.errstate(over="ignore", invalid="ignore"):  # an end beyond float64 is +-inf
+        lower, upper = estimate - q * se, estimate + q * se
     return CoefficientTable(
         terms=terms,
         estimate=estimate,
         standard_error=se,
         statistic=stat,
         p_value=p,
-        lower=estimate - q * se,
-        upper=estimate + q * se,
+        lower=lower,
+        upper=upper,
         level=level,
         distribution=name,
     )
 
 
 def render_table(table: CoefficientTable, stat_label: str) -> str:
-    """Render a :class:`CoefficientTable` as fixed-width text."""
-    width = max([len(t) for t in table.terms] + [4])
+    """Render a :class:`CoefficientTable` as fixed-width text.
+
+    Every column is at least as wide as before and one character wider than its widest
+    entry, so neighbours never touch whatever the magnitude.  Figures that are not defined
+    print as ``-`` (t and p where the standard error is zero or NaN; the standard error and
+    interval where it is NaN, a coefficient that is not identified), with a note below."""
     pct = f"{100 * table.level:g}%"
-    head = (
-        "term".ljust(width)
-        + "estimate".rjust(13)
-        + "std error".rjust(13)
-        + stat_label.rjust(10)
-        + "p (2-sided)".rjust(12)
-        + f"{pct} from".rjust(13)
-        + f"{pct} to".rjust(13)
-    )
+    heads = ("estimate", "std error", stat_label, "p (2-sided)", f"{pct} from", f"{pct} to")
+    widths = [13, 13, 10, 12, 13, 13]
+    rows, zero_se, loose = [], False, False
+    for i in range(len(table.terms)):
+        se = table.standard_error[i]
+        free = not np.isnan(se)
+        zero_se = zero_se or se == 0
+        loose = loose or not free
+        cells = [
+            _num(table.estimate[i]),
+            _num(se) if free else UNDEFINED,
+            _stat_text(table.statistic[i]),
+            _p_text(table.p_value[i]) if not np.isnan(table.statistic[i]) else UNDEFINED,
+            _num(table.lower[i]) if free else UNDEFINED,
+            _num(table.upper[i]) if free else UNDEFINED,
+        ]
+        rows.append(cells)
+    for j in range(len(heads)):
+        widths[j] = max([widths[j], len(heads[j]) + 1] + [len(r[j]) + 1 for r in rows])
+    width = max([len(t) for t in table.terms] + [4])
+    head = "term".ljust(width) + "".join(h.rjust(wd) for h, wd in zip(heads, widths))
     lines = [head, "-" * len(head)]
-    for i, term in enumerate(table.terms):
-        stat = table.statistic[i]
-        stat_text = f"{stat:.3f}" if np.isfinite(stat) else ("nan" if np.isnan(stat) else str(stat))
-        lines.append(
-            term.ljust(width)
-            + _fmt(table.estimate[i])
-            + _fmt(table.standard_error[i])
-            + stat_text.rjust(10)
-            + _fmt_p(table.p_value[i]).rjust(12)
-            + _fmt(table.lower[i])
-            + _fmt(table.upper[i])
-        )
+    for term, cells in zip(table.terms, rows):
+        lines.append(term.ljust(width) + "".join(c.rjust(wd) for c, wd in zip(cells, widths)))
+    notes = ([f"no {stat_label} or p where the standard error is zero"] if zero_se else []) + (
+        [f"no standard error, interval, {stat_label} or p for a coefficient that is not identified"] if loose else [])
+    if notes:
+        lines.append(f"{UNDEFINED} not defined: " + "; ".join(notes))
     return "\n".join(lines)
 
 
@@ -174,8 +215,8 @@ def _to_jsonable(value: Any) -> Any:
 
 
 @dataclass(frozen=True)
-class _FitBase:
-    """Fields and methods shared by every fit record."""
+class _FitBase(ReadOnlyArrays):
+    """Fields and methods shared by every fit record (its arrays are read-only)."""
 
     coefficients: np.ndarray
     intercept: Any
@@ -275,17 +316,23 @@ class LinearFit(_FitBase):
         """Expected response for new rows: the linear predictor."""
         return self.linear_predictor(X)
 
+    def _f_text(self) -> str:
+        fdf = self.f_degrees_of_freedom
+        if np.isfinite(self.f_statistic):
+            return f"F {self.f_statistic:.6g} on ({fdf[0]:g}, {fdf[1]:g}) df, p {_fmt_p(self.f_p_value).strip()}"
+        why = " (zero residuals: an exact fit)" if self.deviance == 0 else ""
+        return f"F not defined{why}"
+
     def report(self, level: float = 0.95) -> str:
         """Return a plain-text report: the fit's facts, then the coefficient table."""
         table = self.coefficient_table(level)
-        fdf = self.f_degrees_of_freedom
         facts = [
             f"lintools least squares fit of '{self.target}'",
             f"  observations {self.n_observations:g} ({self.weight_type} weights)   "
             f"parameters {len(table.terms)}   rank {self.rank}   residual df {self.degrees_of_freedom:g}",
             f"  residual std error {self.residual_standard_error:.7g}   "
             f"R-squared {self.r_squared:.6f}   adjusted {self.adjusted_r_squared:.6f}",
-            f"  F {self.f_statistic:.6g} on ({fdf[0]:g}, {fdf[1]:g}) df, p {_fmt_p(self.f_p_value).strip()}"
+            f"  {self._f_text()}"
             f"   log-likelihood {self.log_likelihood:.8g}   AIC {self.aic:.8g}   BIC {self.bic:.8g}",
             f"  covariance {self.covariance_type}   l2 {self.l2:g}   scaled condition number {self.condition_number:.3g}",
             f"  {self.convergence.message}",

@@ -4,6 +4,13 @@ Objective (``w`` case weights, ``l2 >= 0``; the intercept ``b`` is never penalis
 
     minimise  1/2 * sum_i w_i (y_i - b - x_i' beta)^2  +  l2/2 * |beta|^2
 
+Units.  Before any arithmetic y, the weights and every column are divided by powers of
+two (exact) so that their largest entries lie in ``[1, 2)``, and the answer is mapped
+back exactly at the end (:mod:`lintools._lsq_scale`).  Multiplying y, the weights or a
+column by a constant therefore changes the answer only as the mathematics says; a figure
+whose true value lies beyond the largest float64 number is refused with an
+:class:`InputError` that names it and the input whose scale drives it.
+
 Two paths compute the fit; a test of conditioning chooses between them.  Problems with
 at most ``_gram.SMALL_PROBLEM`` entries always take the accurate path.
 
@@ -19,8 +26,10 @@ condition number is at most ``_gram.KAPPA_MAX`` and the worst-case contraction o
 refinement is small; the certificate must also be met.  Otherwise the fit takes the
 accurate path below.
 
-Accurate path: QR.  With an intercept the columns are centred at their weighted means
-(which removes the intercept from the factorisation exactly), rows are multiplied by
+Accurate path: QR (:mod:`lintools._lsq_qr`).  With an intercept the columns are centred
+at their weighted means in two parts (the rounded mean, then the mean of what it left),
+which removes the intercept from the factorisation to the last bit of each column's
+spread, so a column far from zero (a time stamp) loses nothing; rows are multiplied by
 ``sqrt(w_i)``, and every column is scaled to unit length.  The ridge term enters as
 ``p`` extra rows ``sqrt(l2) / s_j`` (augmentation), so the penalised problem is an
 ordinary least-squares problem.  Householder QR (LAPACK ``dgeqrf`` through
@@ -28,15 +37,21 @@ ordinary least-squares problem.  Householder QR (LAPACK ``dgeqrf`` through
 refinement recomputes the residual in extended precision (``numpy.longdouble``, 80-bit
 on x86-64 Linux; plain float64 where the platform has nothing wider) and solves for a
 correction with the same factors.  The refinement works on the augmented system
-``[I M; M' 0][r; theta] = [c; 0]`` in the original coordinates (Bjorck 1967), so it also
+``[I M; M' 0][r; theta] = [c; 0]`` in centred coordinates (Bjorck 1967), so it also
 recovers digits when the residual is large, which plain refinement of the solution
-(Golub & Wilkinson 1966) does not; at most ``MAX_REFINE`` steps are taken.
+(Golub & Wilkinson 1966) does not; at most ``MAX_REFINE`` steps are taken.  The RSS, the
+sandwich covariances, Cook's distance and the gradient use those centred residuals.
 
 Rank.  Column ``j`` is aliased when the part of its scaled, centred column orthogonal
 to the columns before it has length at most ``tol = max(n, p) * eps`` (unit column
-length after scaling), and a column that is constant on the rows with positive weight is
-aliased with the intercept.  The earliest columns of a dependent set are kept.  A
-constant or aliased column always sends the fit to the QR path, which names it.
+length after scaling), and a column that is constant on the rows with positive weight,
+or whose centred length is at most ``16 eps`` of its raw length (it varies only by
+rounding: :data:`lintools.linalg.CONSTANT_TOLERANCE`), is aliased with the intercept.
+The earliest columns of a dependent set are kept.  A constant or aliased column always
+sends the fit to the QR path, which names it.  With ``rank_deficient="minimum_norm"`` the
+coefficients that are not identified (their unit vector is not orthogonal to the null
+space of the design) get NaN standard errors; the covariance is that of the
+minimum-norm estimator, valid for estimable combinations.
 
 References
 ----------
@@ -64,7 +79,9 @@ import numpy as np
 
 from . import _distributions as dist
 from . import _gram
-from ._errors import IllConditionedWarning, InputError, warn_caller
+from ._errors import InputError
+from ._lsq_qr import qr_path, refuse_leverage_one
+from ._lsq_scale import Units, scaled_sqrt, to_caller
 from ._records import Convergence, LinearFit
 from ._threads import whole_blas, with_row_threads
 from ._validate import (
@@ -76,56 +93,16 @@ from ._validate import (
     check_names,
     check_nonnegative,
 )
-from .linalg import (
-    aliased_columns,
-    condition_number,
-    default_rank_tolerance,
-    inverse_upper,
-    solve_lower,
-    solve_upper,
-    unstandardise,
-)
+from .linalg import CONSTANT_TOLERANCE, unstandardise
 
 __all__ = ["least_squares"]
 
 COVARIANCE_TYPES = ("classical", "HC0", "HC1", "HC2", "HC3")
-#: Above this scaled condition number (1 / sqrt(eps)) a warning reports the digits at risk.
-ILL_CONDITIONED = 1.0 / math.sqrt(np.finfo(float).eps)
-_EXTENDED_DIGITS = -math.log10(float(np.finfo(np.longdouble).eps))
 
 
 def _target_name(y: Any) -> str:
     name = getattr(y, "name", None)
     return str(name) if isinstance(name, str) and name else "y"
-
-
-def alias_sentences(aliased: np.ndarray, zero: np.ndarray, names: tuple[str, ...], R: np.ndarray,
-                    s: np.ndarray, intercept: bool) -> str:
-    """``"X is rank deficient: ..."``, one clause per aliased column (constant, or a combination)."""
-    keep = [j for j in range(R.shape[1]) if j not in set(aliased)]
-    lines = []
-    for j in aliased:
-        if zero[j]:
-            what = "the intercept" if intercept else "zero"
-            lines.append(f"column {j} ('{names[j]}') is constant on the rows used; it is aliased with {what}")
-        else:
-            lines.append(_describe_alias(j, names, R, keep, s, intercept))
-    return "X is rank deficient: " + "; ".join(lines)
-
-
-def _describe_alias(j, names, R, keep, xbar_scale, with_intercept):
-    """A sentence saying what column j is a combination of."""
-    before = [i for i in keep if i < j]
-    parts = []
-    if before:
-        sub = R[np.ix_(before, before)]
-        c = solve_upper(sub, R[before, j])
-        c = c * xbar_scale[j] / xbar_scale[before]
-        big = np.abs(c) > 1e-8 * max(np.abs(c).max(), 1e-300)
-        parts = [f"{c[t]:+.6g}*{names[before[t]]}" for t in np.flatnonzero(big)]
-    rhs = " ".join(parts) if parts else "0"
-    const = " + constant" if with_intercept else ""
-    return f"column {j} ('{names[j]}') = {rhs}{const} (numerically)"
 
 
 @with_row_threads
@@ -169,13 +146,20 @@ def least_squares(
     weight_type : {"case", "precision"}
         ``"case"`` (default): weights count observations; a row of weight 2 is the same as
         two copies of the row, the number of observations is ``sum(w)``, and every
-        statistic equals that of the expanded data.  ``"precision"``: weights are inverse
-        variances (analytic weights); observations are the rows with ``w > 0``.  The
-        coefficients are the same either way; degrees of freedom, standard errors and the
-        log-likelihood differ.
+        statistic equals that of the expanded data (so ``w -> c w`` multiplies the
+        observations by ``c``: the covariance scales by about ``1/c``, and the fit is refused
+        when ``c sum(w)`` is not more than the parameters).  ``"precision"``: weights are
+        inverse variances, ``Var(y_i) = sigma^2 / w_i`` (analytic weights); observations
+        are the rows with ``w > 0``; ``w -> c w`` changes only the unit of ``sigma^2``
+        (residual standard error times ``sqrt(c)``, deviance times ``c``; coefficients,
+        standard errors, covariance and log-likelihood unchanged).  The coefficients are
+        the same either way; degrees of freedom, standard errors and the log-likelihood
+        differ.
     rank_deficient : {"raise", "minimum_norm"}
         A rank-deficient design raises :class:`InputError` naming the aliased columns
-        (default), or returns the minimum-norm solution with ``rank < p`` recorded.
+        (default), or returns the minimum-norm solution (smallest ``|beta|`` in the
+        caller's units) with ``rank < p`` recorded and NaN standard errors for the
+        coefficients that are not identified.
     diagnostics : bool
         Also compute leverage (hat values) and Cook's distance per row.
 
@@ -191,6 +175,16 @@ def least_squares(
     Householder QR with refinement in extended precision.  ``convergence.message`` and
     ``convergence.solver`` ("cholesky" or "qr") say which; ``condition_number`` is
     reported either way.
+
+    Scale: y, the weights and each column are divided by powers of two before any
+    arithmetic and the answer mapped back exactly, so ``y -> c y`` scales coefficients,
+    standard errors and the residual standard error by ``c`` and variances by ``c^2``, and
+    ``x_j -> c x_j`` gives the reparametrised fit; a reported figure beyond the float64
+    range (for example the covariance of ``y * 1e300``) raises :class:`InputError` naming
+    it and the input to rescale, and one below it rounds as float64 rounds (gradual
+    underflow).  Shifted columns are centred in two parts: ``x_j -> x_j + 1e12`` changes
+    the slopes, standard errors (every covariance type), leverage and Cook's distance in
+    no more than the last few bits.
 
     Residual degrees of freedom are ``N - k`` with ``N`` the number of observations
     and ``k`` the number of estimated mean parameters (rank, plus the intercept).  The
@@ -220,10 +214,7 @@ def _fit(
     Xa, found = as_matrix(X, "X", check_finite=False)
     n, p = Xa.shape
     ya = as_vector(y, "y", n)
-    # unit weights are kept implicit (None): no arrays of length n are made for them
     w = None if weights is None else as_weights(weights, n)
-    if w is not None and bool(np.all(w == 1.0)):
-        w = None
     lam = check_nonnegative(l2, "l2")
     check_choice(covariance, "covariance", COVARIANCE_TYPES)
     check_choice(weight_type, "weight_type", ("case", "precision"))
@@ -231,13 +222,12 @@ def _fit(
     check_choice(diagnostics, "diagnostics", (True, False))
     if not isinstance(intercept, (bool, np.bool_)):
         raise InputError(f"intercept must be True or False; got {intercept!r}")
+    intercept = bool(intercept)
     names_t = check_names(names, p, found)
     target = _target_name(y)
 
     pos = None if w is None else w > 0
     n_pos = n if pos is None else int(pos.sum())
-    wsum = float(n) if w is None else float(w.sum())
-    n_obs = wsum if weight_type == "case" else float(n_pos)
     k_max = p + int(intercept)
     if lam == 0 and n_pos < k_max:
         raise InputError(
@@ -254,88 +244,141 @@ def _fit(
         raise InputError("y is zero on every row with positive weight; check the target column")
     del yp
 
-    df_full = n_obs - k_max
+    # units: y and the weights divided by powers of two (exact); the columns get theirs on
+    # the path that solves (see lintools._lsq_scale)
+    y1, ey = Units.response(ya)
+    w1, ew = Units.weights(w)
+    W1 = float(n) if w1 is None else float(w1.sum())
+    n_obs = float(to_caller(W1, ew)) if weight_type == "case" else float(n_pos)
+    if not math.isfinite(n_obs):
+        raise InputError(
+            f"the case weights add up to more than the largest float64 number (their largest is "
+            f"{float(np.max(w)):.3g}); case weights count observations: divide them by a constant, "
+            "or pass weight_type='precision' for relative weights"
+        )
+    lam_w = float(to_caller(lam, -ew))
+    if not math.isfinite(lam_w):
+        raise InputError(
+            f"l2 = {lam:g} is beyond the float64 range against weights as small as these (largest "
+            f"{float(np.max(w)):.3g}); the penalty would set every slope to 0: lower l2 or rescale the weights"
+        )
+
+    def residual_df(rank: int) -> float:
+        return _residual_df(n_obs, rank + int(intercept), weight_type, n_pos)
+
     sol = None
     use_gram = method == "gram" or (method == "auto" and n * p > _gram.SMALL_PROBLEM)
-    if use_gram and df_full > 0:
+    if use_gram and n_obs - k_max > 0:
         # a NaN, an inf or an overflow shows as non-finite sums: the path then declines
         # (returns None) and the QR path names the entry, so its arithmetic warnings are noise
-        with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
+        with np.errstate(invalid="ignore", over="ignore", divide="ignore", under="ignore"):
             sol = _gram.solve_by_gram(
-                Xa, ya, w, n_pos, lam, bool(intercept), default_rank_tolerance(n, p),
+                Xa, y1, w1, n_pos, lam_w, intercept, CONSTANT_TOLERANCE,
                 covariance=covariance, weight_type=weight_type, diagnostics=diagnostics,
-                block_rows=block_rows,
+                block_rows=block_rows, case_weights=w,
             )
     if sol is not None:
-        fit = _from_gram(sol, p)
+        fit = _from_gram(sol)
     else:
         check_finite(Xa, "X", found)
-        w_all = np.ones(n) if w is None else w
         with whole_blas():  # one LAPACK factorisation: the BLAS's own threads split it
-            fit = _qr_path(
-                Xa, ya, w_all, lam, intercept, names_t, rank_deficient, covariance, weight_type,
-                n_obs, wsum, w_all > 0,
+            fit = qr_path(
+                Xa, y1, np.ones(n) if w1 is None else w1, np.ones(n) if w is None else w, lam_w,
+                intercept, names_t, rank_deficient, covariance, weight_type, residual_df,
             )
-    beta, b0, rank, aliased = fit["beta"], fit["b0"], fit["rank"], fit["aliased"]
-    full_rank, s, xbar, G, cond = fit["full_rank"], fit["s"], fit["xbar"], fit["G"], fit["cond"]
+    units = Units(ey, ew, fit["col_exp"], names_t, target)
+    return _record(fit, units, W1, n_obs, residual_df(fit["rank"]), w, lam, intercept, names_t, covariance,
+                   weight_type, diagnostics, target)
+
+
+def _record(fit, units, W1, n_obs, df, w, lam, intercept, names_t, covariance, weight_type, diagnostics, target):
+    """The :class:`LinearFit` of a path's answer (in the units of ``units``), in the caller's units."""
+    beta, b0, rank = fit["beta"], fit["b0"], fit["rank"]
+    s, xbar, G = fit["s"], fit["xbar"], fit["G"]
     rss, tss, e, hat = fit["rss"], fit["tss"], fit["e"], fit["hat"]
-
-    # ---- summary statistics ------------------------------------------------------------
-    k = rank + int(intercept)
-    df = _residual_df(n_obs, k, weight_type, n_pos)
-    sigma2 = rss / df
-    r2 = 1.0 - rss / tss
-    adj = 1.0 - (1.0 - r2) * (n_obs - int(intercept)) / df
-
-    # ---- covariance in (centred intercept, scaled slopes) coordinates ------------------
-    Bz = np.zeros((k_max, k_max))
+    p = beta.shape[0]
     off = int(intercept)
+    k = rank + off
+    ey, ew = units.ey, units.ew
+    columns = [str(j) for j in range(p)]
+    case = weight_type == "case"
+    df_m, df_e = math.frexp(df)
+
+    # ---- summary statistics (scale-free) --------------------------------------------
+    r2 = 1.0 - rss / tss
+    adj = 1.0 - (1.0 - r2) * (n_obs - off) / df
+
+    # ---- covariance: core (unit z coordinates) times 2**es --------------------------
+    Bz = np.zeros((p + off, p + off))
     if intercept:
-        Bz[0, 0] = 1.0 / wsum
+        Bz[0, 0] = 1.0 / W1
     Bz[off:, off:] = G
     if covariance == "classical":
-        Vz = sigma2 * Bz
+        core = (rss / df_m) * Bz
+        es = -df_e
     else:
-        meat = fit["meat_z"]
-        if meat is None:
-            w_all = np.ones(n) if w is None else w
-            meat = _meat(covariance, Xa, xbar, s, intercept, w_all, e, hat, weight_type)
-        elif fit["leverage_one_row"] is not None:
-            _refuse_leverage_one(covariance, fit["leverage_one_row"])
-        Vz = Bz @ meat @ Bz
+        if fit["leverage_one_row"] is not None:
+            refuse_leverage_one(covariance, fit["leverage_one_row"])
+        core = Bz @ fit["meat_z"] @ Bz
+        es = -ew if case else 0
         if covariance == "HC1":
-            Vz = Vz * (n_obs / df)
-    V = caller_covariance(Vz, xbar, s, intercept)
-    se_all = np.sqrt(np.clip(np.diag(V), 0.0, None))
+            core = core * (n_obs / df)
 
     # ---- overall F: Wald F on the slopes with the chosen covariance ----------------
     f_df1 = float(rank if intercept else k)
-    if full_rank:
-        Vg = Vz[off:, off:]
-        theta = beta * s
+    fstat = float("nan")
+    if rss > 0 and fit["full_rank"]:
         try:
-            L = np.linalg.cholesky(Vg)
-            u = np.linalg.solve(L, theta)
-            fstat = float(u @ u) / f_df1
+            u = np.linalg.solve(np.linalg.cholesky(core[off:, off:]), beta * s)
+            fstat = units.check("overall F statistic", float(u @ u) / f_df1, -es,
+                                [("weights", 1.0 if case else 0.0)]).item()
         except np.linalg.LinAlgError:
-            fstat = float("nan")
-    else:
-        fstat = ((tss - rss) / f_df1) / sigma2
+            pass
+    elif rss > 0:
+        fstat = ((tss - rss) / f_df1) / (rss / df)
     f_p = float(dist.f_sf(fstat, f_df1, df)) if np.isfinite(fstat) else float("nan")
+
+    # ---- the caller's units --------------------------------------------------------
+    slopes_y = [("y", 1.0)] + [(c, -1.0) for c in columns]
+    coefficients = units.check("coefficients", beta, ey - units.ex, slopes_y)
+    b0_out = units.check("intercept", b0, ey, [("y", 1.0)]).item() if intercept else 0.0
+    eth = units.theta(intercept)
+    Vt = caller_covariance(core, xbar, s, intercept)
+    weights_power = -1.0 if case else 0.0
+    V = units.check("covariance of the coefficients", Vt, es + eth[:, None] + eth[None, :],
+                    [("y", 2.0), ("weights", weights_power)] + [(c, -2.0) for c in columns])
+    se_all = scaled_sqrt(np.clip(np.diag(Vt), 0.0, None), es + 2 * eth)
+    if fit["identified"] is not None:
+        se_all = np.where(fit["identified"], se_all, np.nan)
+    lam1 = fit["lam1"]
+    rss_exp = 2 * ey + ew
+    square = [("y", 2.0), ("weights", 1.0)]
+    deviance = units.check("residual sum of squares", rss, rss_exp, square).item()
+    objective = units.check("objective", 0.5 * rss + 0.5 * float(np.sum(lam1 * beta * beta)), rss_exp, square).item()
+    rse = float(scaled_sqrt(rss / df_m, rss_exp - df_e))
+    if not math.isfinite(rse):
+        units.check("residual standard error", rss / df_m, rss_exp - df_e, square)
+    g_exp = ew + ey + np.concatenate([[0] * off, units.ex])
+    grad = units.check("gradient", fit["grad"], g_exp,
+                       [("y", 1.0), ("weights", 1.0)] + [(c, 1.0) for c in columns])
 
     # ---- likelihood ------------------------------------------------------------------
     if rss > 0:
-        loglik = -0.5 * n_obs * (math.log(2.0 * math.pi * rss / n_obs) + 1.0)
-        if weight_type == "precision" and w is not None:
-            loglik += 0.5 * float(np.log(w[pos]).sum())
+        log_rss = math.log(rss) + rss_exp * math.log(2.0)
+        loglik = -0.5 * n_obs * (math.log(2.0 * math.pi) + log_rss - math.log(n_obs) + 1.0)
+        if not case and w is not None:
+            loglik += 0.5 * float(np.log(w[w > 0]).sum())
+        if not math.isfinite(loglik):
+            raise InputError(
+                f"the log-likelihood of this fit is beyond the float64 range ({n_obs:.3g} observations); "
+                "case weights count observations: divide them by a constant, or pass weight_type='precision'"
+            )
     else:
         loglik = float("inf")
     n_par = k + 1
     aic = -2.0 * loglik + 2.0 * n_par
     bic = -2.0 * loglik + math.log(n_obs) * n_par
 
-    grad = fit["grad"]
-    objective = 0.5 * rss + 0.5 * lam * float(beta @ beta)
     conv = Convergence(
         converged=True,
         iterations=fit["iterations"],
@@ -344,28 +387,28 @@ def _fit(
         solver=fit["solver"],
         message=fit["message"],
     )
-
     leverage = cooks = None
     if diagnostics:
         leverage = hat.copy()
-        with np.errstate(divide="ignore", invalid="ignore"):
-            cooks = (1.0 if w is None else w) * e * e * hat / (k * sigma2 * (1.0 - hat) ** 2)
+        w1 = 1.0 if fit.get("w1") is None else fit["w1"]
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            cooks = (w1 * e * e / rss) * (df / k) * hat / (1.0 - hat) ** 2
     return LinearFit(
-        coefficients=beta,
-        intercept=float(b0),
+        coefficients=coefficients,
+        intercept=b0_out,
         standard_errors=se_all[off:],
         intercept_standard_error=float(se_all[0]) if intercept else None,
         covariance=V,
         log_likelihood=loglik,
-        deviance=rss,
+        deviance=deviance,
         aic=aic,
         bic=bic,
         n_observations=n_obs,
         names=names_t,
         convergence=conv,
-        with_intercept=bool(intercept),
+        with_intercept=intercept,
         l2=lam,
-        residual_standard_error=math.sqrt(sigma2),
+        residual_standard_error=rse,
         r_squared=r2,
         adjusted_r_squared=adj,
         f_statistic=fstat,
@@ -375,8 +418,8 @@ def _fit(
         rank=int(k),
         covariance_type=covariance,
         weight_type=weight_type,
-        condition_number=float(cond),
-        aliased=tuple(names_t[j] for j in aliased),
+        condition_number=float(fit["cond"]),
+        aliased=tuple(names_t[j] for j in fit["aliased"]),
         leverage=leverage,
         cooks_distance=cooks,
         target=target,
@@ -402,14 +445,7 @@ def _residual_df(n_obs, k, weight_type, n_pos):
     return df
 
 
-def _refuse_leverage_one(kind, row):
-    raise InputError(
-        f"covariance='{kind}' is undefined: row {row} has leverage 1 (it alone "
-        "determines a coefficient); use covariance='HC0' or 'HC1', or drop that row"
-    )
-
-
-def _from_gram(sol, p):
+def _from_gram(sol):
     """The fast path's answer in the form the record builder uses."""
     err = f"{sol.error_estimate:.1e}"
     steps = "one corrected step" if sol.steps == 1 else f"{sol.steps} corrected steps"
@@ -418,259 +454,10 @@ def _from_gram(sol, p):
         f"from a subsample start, residuals in float64; estimated relative error {err}"
     )
     return {
-        "beta": sol.beta,
-        "b0": sol.intercept,
-        "rank": p,
-        "aliased": np.zeros(0, dtype=int),
-        "full_rank": True,
-        "s": sol.scale,
-        "xbar": sol.mean,
-        "G": sol.cov_scaled,
-        "cond": sol.condition,
-        "rss": sol.rss,
-        "tss": sol.tss,
-        "e": sol.residuals,
-        "hat": sol.hat,
-        "meat_z": sol.meat_z,
-        "leverage_one_row": sol.leverage_one_row,
-        "grad": sol.gradient,
-        "iterations": sol.steps,
-        "solver": "cholesky",
-        "message": message,
+        "beta": sol.beta, "b0": sol.intercept, "rank": sol.beta.shape[0], "aliased": np.zeros(0, dtype=int),
+        "full_rank": True, "s": sol.scale, "xbar": sol.mean, "G": sol.cov_scaled, "cond": sol.condition,
+        "rss": sol.rss, "tss": sol.tss, "e": sol.residuals, "hat": sol.hat, "meat_z": sol.meat_z,
+        "leverage_one_row": sol.leverage_one_row, "grad": sol.gradient, "lam1": sol.lam_vec,
+        "col_exp": sol.col_exp, "identified": None, "w1": sol.w1, "iterations": sol.steps,
+        "solver": "cholesky", "message": message,
     }
-
-
-def _qr_path(Xa, ya, w, lam, intercept, names_t, rank_deficient, covariance, weight_type, n_obs, wsum, pos):
-    """The accurate path: Householder QR of the centred, weighted, scaled design."""
-    n, p = Xa.shape
-    sw = np.sqrt(w)
-    if intercept:
-        xbar = (w @ Xa) / wsum
-        ybar = float(w @ ya) / wsum
-    else:
-        xbar = np.zeros(p)
-        ybar = 0.0
-    A = Xa - xbar
-    A *= sw[:, None]
-    rhs_y = sw * (ya - ybar)
-    raw_norm = np.linalg.norm(Xa * sw[:, None], axis=0)
-    s = np.linalg.norm(A, axis=0)
-    tol = default_rank_tolerance(n, p)
-    if intercept:
-        constant = np.ptp(Xa[pos], axis=0) == 0
-    else:
-        constant = np.zeros(p, dtype=bool)
-    zero = constant | (s <= tol * raw_norm) | (s == 0)
-    A[:, zero] = 0.0
-    s = np.where(zero, 1.0, s)
-    A /= s
-
-    if lam > 0:
-        A = np.vstack([A, np.diag(math.sqrt(lam) / s)])
-        rhs = np.concatenate([rhs_y, np.zeros(p)])
-        col_norm = np.sqrt(np.where(zero, 0.0, 1.0) + lam / s**2)
-    else:
-        rhs = rhs_y
-        col_norm = np.where(zero, 0.0, 1.0)
-    Q, R = np.linalg.qr(A, mode="reduced")
-    aliased = np.union1d(np.flatnonzero(zero & (lam == 0)), aliased_columns(R, np.maximum(col_norm, 1e-300), tol))
-    aliased = aliased.astype(int)
-
-    if aliased.size and rank_deficient == "raise":
-        raise InputError(
-            alias_sentences(aliased, zero, names_t, R, s, intercept)
-            + ". Drop the aliased column(s), or pass rank_deficient='minimum_norm' for the minimum-norm solution"
-        )
-
-    full_rank = aliased.size == 0
-    if full_rank:
-        beta, b0, G, cond, h_q, refine_steps = _solve_full_rank(Q, R, rhs, s, Xa, ya, w, sw, xbar, lam, intercept, n)
-        rank = p
-    else:
-        beta, b0, G, cond, h_q, rank = _solve_minimum_norm(A[:n], rhs_y, s, xbar, ybar, intercept, aliased)
-        refine_steps = 0
-        s = np.ones(p)
-    if full_rank and cond > ILL_CONDITIONED:
-        warn_caller(
-            f"the scaled design is ill-conditioned (condition number {cond:.3g}); it was solved by "
-            f"QR with {refine_steps} refinement step(s) in extended precision, but expect only about "
-            f"{max(0.0, _EXTENDED_DIGITS - math.log10(cond)):.0f} correct digits",
-            IllConditionedWarning,
-        )
-    e = _residuals(Xa, ya, beta, b0)
-    rss = float(w @ (e * e))
-    if intercept:
-        tss = float(w @ (ya - ybar) ** 2)
-    else:
-        tss = float(w @ (ya * ya))
-    # the residual df is checked before any covariance work (the front repeats it)
-    _residual_df(n_obs, rank + int(intercept), weight_type, int(pos.sum()))
-    hat = h_q + (w / wsum if intercept else 0.0)
-    grad = np.concatenate([[-(w @ e)] if intercept else [], -(Xa.T @ (w * e)) + lam * beta])
-    if full_rank:
-        message = f"solved directly: Householder QR of the scaled design, {refine_steps} refinement step(s)"
-    else:
-        message = (
-            f"rank {rank} < {p}: minimum-norm solution; the coefficients of aliased columns "
-            "are not identified and only their estimable combinations are meaningful"
-        )
-    return {
-        "beta": beta,
-        "b0": b0,
-        "rank": rank,
-        "aliased": aliased,
-        "full_rank": full_rank,
-        "s": s,
-        "xbar": xbar,
-        "G": G,
-        "cond": cond,
-        "rss": rss,
-        "tss": tss,
-        "e": e,
-        "hat": hat,
-        "meat_z": None,
-        "leverage_one_row": None,
-        "grad": grad,
-        "iterations": 1 + refine_steps if full_rank else 1,
-        "solver": "qr",
-        "message": message,
-    }
-
-
-def _residuals(Xa, ya, beta, b0):
-    """Residuals ``y - b0 - X beta`` accumulated in extended precision, rounded to float64."""
-    ld = np.longdouble
-    fitted = Xa.astype(ld) @ beta.astype(ld) + ld(b0)
-    return (ya.astype(ld) - fitted).astype(float)
-
-
-#: Refinement stops when the correction is below this relative size, or after MAX_REFINE steps.
-MAX_REFINE = 3
-_BLOCK_ROWS = 65536
-
-
-def _extended_residual(Xa, ya, sw, theta, intercept, lam, r):
-    """``f = c - r - M theta`` and ``g = -M' r`` accumulated in ``numpy.longdouble``.
-
-    ``M`` is the weighted design ``sqrt(w) * [1, X]`` (plus the ridge rows
-    ``sqrt(l2) * [0, I]``) in the ORIGINAL coordinates, so refinement converges to the
-    solution of the problem as given, not of its centred and scaled copy.  Rows are
-    processed in blocks so that no extended-precision copy of X is ever whole.
-    """
-    ld = np.longdouble
-    n, p = Xa.shape
-    off = int(intercept)
-    th = theta.astype(ld)
-    f = np.empty(r.shape[0], dtype=ld)
-    g = np.zeros(p + off, dtype=ld)
-    for lo in range(0, n, _BLOCK_ROWS):
-        hi = min(n, lo + _BLOCK_ROWS)
-        Xb = Xa[lo:hi].astype(ld)
-        swb = sw[lo:hi].astype(ld)
-        fitted = Xb @ th[off:]
-        if intercept:
-            fitted = fitted + th[0]
-        rb = r[lo:hi]
-        f[lo:hi] = swb * ya[lo:hi].astype(ld) - rb - swb * fitted
-        wr = swb * rb
-        g[off:] -= Xb.T @ wr
-        if intercept:
-            g[0] -= wr.sum()
-    if lam > 0:
-        root = ld(math.sqrt(lam))
-        f[n:] = -r[n:] - root * th[off:]
-        g[off:] -= root * r[n:]
-    return f, g
-
-
-def _solve_full_rank(Q, R, rhs, s, Xa, ya, w, sw, xbar, lam, intercept, n):
-    """QR solution, then refinement on the augmented system (Bjorck 1967).
-
-    The augmented system ``[I M; M' 0] [r; theta] = [c; 0]`` is refined with residuals in
-    extended precision; each correction is solved with the QR factors of the centred,
-    scaled design, whose intercept column ``sqrt(w)`` is orthogonal to the centred columns.
-    """
-    gamma = solve_upper(R, Q.T @ rhs)
-    off = int(intercept)
-    p = s.shape[0]
-    # map between z = (centred intercept, scaled slopes) and theta = (b0, beta)
-    T = np.zeros((p + off, p + off))
-    T[off:, off:] = np.diag(1.0 / s)
-    if intercept:
-        T[0, 0] = 1.0
-        T[0, off:] = -xbar / s
-        norm_sw = float(np.linalg.norm(sw))
-        q0 = sw / norm_sw
-        # the centred intercept is the weighted mean of y: (q0' sqrt(w) y) / |sqrt(w)|
-        z = np.concatenate([[float(sw @ (sw * ya)) / norm_sw**2], gamma])
-    else:
-        z = gamma
-    theta = T @ z
-    ld = np.longdouble
-    r = np.zeros(rhs.shape[0], dtype=ld)
-    f, g = _extended_residual(Xa, ya, sw, theta, intercept, lam, r)
-    r = f  # the residual of the QR solution, in extended precision
-    steps = 0
-    for steps in range(1, MAX_REFINE + 1):
-        f, g = _extended_residual(Xa, ya, sw, theta, intercept, lam, r)
-        f64 = f.astype(float)
-        gz = T.T @ g.astype(float)
-        qf = Q.T @ f64
-        if intercept:
-            qf0 = float(q0 @ f64[:n])
-            u0 = gz[0] / norm_sw
-            u = solve_lower(R.T, gz[1:])
-            dz = np.concatenate([[(qf0 - u0) / norm_sw], solve_upper(R, qf - u)])
-            back = Q @ (qf - u)
-            back[:n] += q0 * (qf0 - u0)
-        else:
-            u = solve_lower(R.T, gz)
-            dz = solve_upper(R, qf - u)
-            back = Q @ (qf - u)
-        dr = f64 - back
-        dtheta = T @ dz
-        theta = (theta.astype(ld) + dtheta.astype(ld)).astype(float)
-        r = r + dr.astype(ld)
-        if np.max(np.abs(dtheta)) <= 4 * np.finfo(float).eps * max(np.max(np.abs(theta)), 1e-300):
-            break
-    b0 = float(theta[0]) if intercept else 0.0
-    beta = theta[off:].copy()
-    Rinv = inverse_upper(R)
-    G = Rinv @ Rinv.T
-    h_q = np.einsum("ij,ij->i", Q[:n], Q[:n])
-    return beta, b0, G, condition_number(R), h_q, steps
-
-
-def _solve_minimum_norm(A, rhs_y, s, xbar, ybar, intercept, aliased):
-    """Minimum-norm solution in the original (unscaled) coordinates by truncated SVD."""
-    p = A.shape[1]
-    rank = p - aliased.size
-    Au = A * s  # undo the column scaling (rows already weighted and centred)
-    U, sv, Vt = np.linalg.svd(Au, full_matrices=False)
-    Ur, svr, Vr = U[:, :rank], sv[:rank], Vt[:rank].T
-    beta = Vr @ ((Ur.T @ rhs_y) / svr)
-    b0 = (ybar - float(xbar @ beta)) if intercept else 0.0
-    G = (Vr / svr**2) @ Vr.T
-    h_q = np.einsum("ij,ij->i", Ur, Ur)
-    cond = float(svr[0] / svr[-1])
-    return beta, b0, G, cond, h_q, rank
-
-
-def _meat(kind, Xa, xbar, s, intercept, w, e, hat, weight_type):
-    """HC0-HC3 meat ``Z' diag(m) Z`` in the centred, scaled coordinates (QR path)."""
-    if weight_type == "case":
-        m = w * e * e
-        lev = np.divide(hat, w, out=np.zeros_like(hat), where=w > 0)
-    else:
-        m = w * w * e * e
-        lev = hat
-    if kind in ("HC2", "HC3"):
-        used = w > 0
-        if np.any(lev[used] >= 1.0 - 1e-12):
-            _refuse_leverage_one(kind, int(np.flatnonzero(used & (lev >= 1.0 - 1e-12))[0]))
-        power = 1 if kind == "HC2" else 2
-        m = m / (1.0 - lev) ** power
-    Z = (Xa - xbar) / s
-    if intercept:
-        Z = np.hstack([np.ones((Xa.shape[0], 1)), Z])
-    return Z.T @ (Z * m[:, None])

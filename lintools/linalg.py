@@ -13,6 +13,7 @@ from typing import Sequence
 import numpy as np
 
 __all__ = [
+    "CONSTANT_TOLERANCE",
     "transposed_block",
     "unstandardise",
     "solve_upper",
@@ -22,6 +23,13 @@ __all__ = [
     "condition_number",
     "default_rank_tolerance",
 ]
+
+
+#: A column is constant to rounding (aliased with the intercept) when its centred weighted
+#: length is at most this times its raw weighted length: the spread that rounding of equal
+#: values can make.  It does not grow with the number of rows, so a column far from zero
+#: (``1e12 + N(0, 1)``: ratio ``1e-12``) is fitted however many rows it has.
+CONSTANT_TOLERANCE = 16 * float(np.finfo(float).eps)
 
 
 def transposed_block(v: np.ndarray, X: np.ndarray) -> np.ndarray:
