@@ -36,6 +36,7 @@ REMEDY_FLAGS: tuple[tuple[str, str], ...] = (
     (r"firth=True", "--firth"),
     (r"l2\s*>\s*0(?![\d.])", "--l2 above 0"),
     (r"l2\s*==?\s*0(?![\d.])", "--l2 0"),
+    (r"l2\s*=\s*", "--l2 "),
     (r"max_iter", "--max-iter"),
     (r"solver='(\w+)'", r"--solver \1"),
     (r"covariance='(\w+)'", r"--covariance \1"),
