@@ -32,11 +32,12 @@ composite hypotheses. Annals of Mathematical Statistics 9, 60-62.
 from __future__ import annotations
 
 import math
-from typing import Any
+from typing import Any, Sequence
 
 import numpy as np
 
 from . import _distributions as dist
+from ._scaling import caller_covariance
 from .solvers import LinearModelProblem, RestrictedProblem, SingularMatrixError, inverse_spd
 from .solvers.newton import newton
 
@@ -47,28 +48,34 @@ PROFILE_TOLERANCE = 1e-9
 MAX_PROFILE_STEPS = 80
 
 
-def covariance(problem: LinearModelProblem, z: np.ndarray) -> np.ndarray:
-    """Inverse penalised information in the caller's coordinates (intercept first).
+def covariance(problem: LinearModelProblem, z: np.ndarray, terms: Sequence[str]) -> np.ndarray:
+    """Inverse penalised information in the caller's coordinates and weights (intercept first).
 
-    Raises :class:`lintools.solvers.SingularMatrixError` when the information is singular.
+    The problem's information is that of its scaled weights (``problem.weight_scale``);
+    the caller's covariance is its inverse divided by that scale
+    (:func:`lintools._scaling.caller_covariance`, which refuses a variance float64 cannot
+    hold, naming ``terms[j]``).  Raises :class:`lintools.solvers.SingularMatrixError`
+    when the information is singular.
     """
-    T = problem.theta_from_z_matrix()
-    V = T @ inverse_spd(problem.fisher_information(z)) @ T.T
-    return 0.5 * (V + V.T)
+    spreads = np.concatenate([np.full(problem.off, np.nan), problem.s]) if problem.K == 1 else None
+    return caller_covariance(problem.theta_from_z_matrix(), inverse_spd(problem.fisher_information(z)),
+                             problem.weight_scale, terms, spreads)
 
 
 def null_objective(loss: Any, n: int, offset: np.ndarray | None, intercept: bool, jeffreys: bool,
-                   tol: float, max_iter: int) -> tuple[float, np.ndarray]:
-    """Minimised objective of the null model and its linear predictor."""
+                   tol: float, max_iter: int, weight_scale: float = 1.0) -> tuple[float, np.ndarray]:
+    """Minimised objective of the null model (in the caller's weights: the loss holds the
+    weights divided by ``weight_scale``) and its linear predictor."""
     if not intercept:
         eta = np.zeros(n) if offset is None else offset
-        return loss.value(eta), eta
+        return loss.value(eta) * weight_scale, eta
     closed = getattr(loss, "constant_fit", None)
     if offset is None and not jeffreys and closed is not None:
         fitted = closed(n, tol)
         if fitted is not None:
-            return fitted
-    P = LinearModelProblem(np.zeros((n, 0)), loss, intercept=True, offset=offset, jeffreys=jeffreys)
+            return fitted[0] * weight_scale, fitted[1]
+    P = LinearModelProblem(np.zeros((n, 0)), loss, intercept=True, offset=offset, jeffreys=jeffreys,
+                           weight_scale=weight_scale)
     res = newton(P, tol=tol, max_iter=max(max_iter, 50))
     return res.objective, P.eta(res.z)
 
@@ -106,8 +113,8 @@ def profile_bounds(
 ) -> np.ndarray:
     """Profile-likelihood interval ends for every parameter (caller's coordinates).
 
-    ``objective`` is the minimised objective (negative penalised log-likelihood) at
-    ``z_hat``.  Returns a (k, 2) array; an end that the profile never reaches is infinite,
+    ``objective`` is the minimised objective (negative penalised log-likelihood, in the
+    caller's weights) at ``z_hat``.  Returns a (k, 2) array; an end that the profile never reaches is infinite,
     one whose inner fits failed is NaN.
     """
     theta = problem.to_original(z_hat)

@@ -239,12 +239,13 @@ class BinomialLoss:
 
         The optimum is :math:`b = \mathrm{logit}(S / T)` with :math:`S = \sum w y` and
         :math:`T = \sum w m`, and the value there is :math:`S\,\mathrm{softplus}(-b) +
-        (T - S)\,\mathrm{softplus}(b)`.  None when the gradient :math:`T\mu(b) - S` at the
-        (clamped) rate is above ``tol`` (a rate within 1e-12 of 0 or 1); then solve."""
+        (T - S)\,\mathrm{softplus}(b)`.  None when the gradient per unit weight
+        :math:`\mu(b) - S / T` at the (clamped) rate is above ``tol`` (a rate within 1e-12 of
+        0 or 1; the stopping rule of :mod:`lintools.solvers`); then solve."""
         b = self.start_intercept()
         S, T = float(self._wy.sum()), float(self._wm.sum())
         mu = 1.0 / (1.0 + math.exp(-b))
-        if not abs(T * mu - S) <= tol:
+        if not abs(T * mu - S) <= tol * T:
             return None
         f = S * float(log1pexp(np.float64(-b))) + (T - S) * float(log1pexp(np.float64(b)))
         eta = np.full(n, b)
