@@ -10,7 +10,7 @@ import numpy as np
 from ._errors import InputError, LintoolsError, SeparationError
 from ._records import LogisticFit
 from ._scaling import check_l2_scale, scaled_back
-from ._validate import check_names, power_of_two
+from ._validate import check_names
 from .inference import covariance, likelihood_fields
 from .linalg import default_rank_tolerance, dependency_sentence, unstandardise
 from .logistic import ETA_LIMIT, convergence_record, check_fit_settings
@@ -24,7 +24,7 @@ from ._blocks_tsqr import _factor, _merge_factors
 
 def _design_kernel(X: np.ndarray, labels: dict, w: np.ndarray | None, intercept: bool) -> dict:
     """Pass 1 of the logistic fit: labels, the R factor of the weighted centred X and the
-    largest weight (which fixes the power-of-two scale of the weights for later passes)."""
+    largest weight (by which later passes divide the weights)."""
     n_rows = X.shape[0]
     Xp, _, wp = _positive_rows(X, None, w)
     out = {"n_pos": Xp.shape[0], "n_rows": n_rows, "labels": labels,
@@ -43,12 +43,12 @@ def merge_design(a: dict, b: dict, intercept: bool) -> dict:
 
 
 def weights_scale(part: dict) -> float:
-    """The power of two by which later passes divide the block weights (see
+    """The factor by which later passes divide the block weights: the largest weight (see
     :mod:`lintools._scaling`); a total weight beyond float64 is refused."""
     if not math.isfinite(part["W"]):
         raise InputError("the weights sum to more than float64 holds (beyond 1.8e308) over the blocks; "
                          "divide all weights by a common factor (the coefficients do not change)")
-    return power_of_two(part["wmax"])
+    return part["wmax"]
 
 
 def centred_block(X: np.ndarray, c: np.ndarray) -> np.ndarray:
@@ -64,7 +64,7 @@ def _evaluation_kernel(X: np.ndarray, y01: np.ndarray, w: np.ndarray | None, a: 
 
     The columns are centred first (``eta = a + (X - c) beta``, ``a`` the intercept of the
     centred columns; the gradient of the slopes is ``(X - c)' r``), so a column far from
-    zero loses no digits; the weights are divided by ``scale`` (a power of two).
+    zero loses no digits; the weights are divided by ``scale`` (the largest weight).
     ``step = (a0, beta0, da, dbeta, t)`` adds ``value(eta0 + t deta) - value(eta0)``.
     """
     loss = BinomialLoss(y01, None, None if w is None else w / scale)
@@ -95,8 +95,8 @@ class _PassProblem:
     information, and a line search whose trials evaluate their points.  Subclasses give
     ``kernel`` (the per-block evaluation), ``centred`` (the intercept of the centred
     columns and the slopes), ``coefficients`` and ``_store``; and set ``weight_scale`` (the
-    power of two the kernels divide the block weights by) and ``weight_total`` (the total
-    of the divided weights: the stopping rule is per unit of it)."""
+    largest weight, which the kernels divide the block weights by) and ``weight_total``
+    (the total of the divided weights: the stopping rule is per unit of it)."""
 
     kernel: Any = None
     weight_scale: float = 1.0
@@ -305,8 +305,8 @@ def logistic_blocks(
     -----
     Passes: one for the labels, centres, scales and rank; one per Newton iteration with
     an accepted full step (plus one per halving).  Memory: a few copies of one block plus
-    ``O(p^2)``, whatever the number of rows.  The weights are divided by a power of two
-    fixed by the largest one (pass 1) and every weight-proportional output is scaled back
+    ``O(p^2)``, whatever the number of rows.  The weights are divided by the largest one
+    (found by pass 1) and every weight-proportional output is scaled back
     (:mod:`lintools._scaling`); the columns are centred in every block before any product,
     so a column far from zero (a time stamp) loses no digits.  Firth's method, offsets and
     grouped (trials) data are left to the in-memory fit (grouped data can be passed as

@@ -1,25 +1,32 @@
-r"""Scale-free likelihood fits: case weights brought to a power-of-two scale, outputs scaled back.
+r"""Scale-free likelihood fits: case weights divided by the largest one, outputs scaled back.
 
 Multiplying every case weight by ``c`` multiplies the negative log-likelihood by ``c`` and
 leaves its minimiser unchanged (the ridge ``l2`` must be multiplied by ``c`` too for the
 penalised objective to keep its optimum; Firth's penalty does not scale, so its estimate
 does depend on ``c``, as the mathematics says).  The fits therefore divide the weights
-by a power of two ``s`` (:func:`lintools._validate.weight_scale`: exact, and the largest
-row weight lands in [1, 2)) before any arithmetic, minimise ``F / s`` (ridge ``l2 / s``,
-Firth's penalty ``1/s`` times its own), and multiply every weight-proportional output
-back once at the end:
+by the largest one, ``s = max w``, before any arithmetic, minimise ``F / s`` (ridge
+``l2 / s``, Firth's penalty ``1/s`` times its own), and multiply every
+weight-proportional output back once at the end:
 
 * ``s`` times: log-likelihood, deviance, null deviance, likelihood-ratio statistic,
   objective, number of observations (and hence AIC and BIC, which follow from them);
 * ``1 / s`` times: covariance (the inverse information);
 * unchanged: coefficients, convergence verdict, iteration count, stopping quantity.
 
-For a power of two ``c`` the iterations are then bit-for-bit those of the unscaled
-weights; for any other ``c`` they differ only by the rounding of the caller's products
-``c * w``.  Weights of 1e-300 neither underflow in ``w mu (1 - mu)`` nor do weights of
-1e300 overflow a sum over the rows.  Only a reported total that float64 cannot hold (a
-log-likelihood beyond 1.8e308, a variance below 2.2e-308) is refused, with an
-:class:`lintools.InputError` that names it and the remedy.
+Why the largest weight rather than a power of two near it: both make the iterations
+bit-for-bit those of the unscaled weights when ``c`` is a power of two (``fl(c w_i) /
+fl(c s) = fl(w_i / s)`` then), but only the largest weight does so for constant weights
+of any size (they all become exactly 1, the unweighted fit), which is how frequency
+weights of 1e-12 or 1e6 usually arrive.  The price is one rounding of each weight
+(relative 1.1e-16), far below what the fits promise.  For other weights and factors the
+caller's products ``c w_i`` are themselves rounded, so the scaled problems differ in
+their last bits: the answer agrees to the rounding level and the iteration count is the
+same unless the last step is decided by rounding (a gradient within a hair of ``tol``).
+
+Weights of 1e-300 neither underflow in ``w mu (1 - mu)`` nor do weights of 1e300 overflow
+a sum over the rows.  Only a reported total that float64 cannot hold (a log-likelihood
+beyond 1.8e308 or among the subnormal numbers, a variance outside the normal range) is
+refused, with an :class:`lintools.InputError` that names it and the remedy.
 """
 
 from __future__ import annotations
@@ -30,37 +37,32 @@ from typing import Any, Sequence
 import numpy as np
 
 from ._errors import InputError
-from ._validate import weight_scale
 
-__all__ = ["scaled_case_weights", "scaled_back", "caller_covariance", "check_solver", "check_l2_scale"]
+__all__ = ["case_weight_scale", "scaled_case_weights", "scaled_back", "caller_covariance", "check_solver",
+           "check_l2_scale"]
 
 _TINY = float(np.finfo(float).tiny)
 _REMEDY = "divide (or multiply) all weights by a common factor; the coefficients do not change"
 
 
-def scaled_case_weights(w: np.ndarray, trials: np.ndarray | None = None) -> tuple[np.ndarray, float]:
-    """``(w / s, s)`` with ``s`` a power of two and ``max(w m / s)`` in [1, 2) (``m`` the trials).
+def case_weight_scale(w: np.ndarray) -> float:
+    """The factor the fits divide the case weights by: the largest weight (1 when none is positive)."""
+    top = float(np.max(w)) if w.size else 0.0
+    return top if top > 0 else 1.0
 
-    Raises :class:`InputError` when the scale itself is beyond float64 (weights times
-    trials whose largest product exceeds 1.8e308)."""
-    s1 = weight_scale(w)
-    w1 = w / s1
-    if trials is None:
-        return w1, s1
-    s2 = weight_scale(w1 * trials)
-    s = s1 * s2
-    if not math.isfinite(s) or s == 0.0:
-        raise InputError(
-            "weights times trials exceed what float64 holds (a product beyond 1.8e308); " + _REMEDY
-        )
-    return w1 / s2, s
+
+def scaled_case_weights(w: np.ndarray) -> tuple[np.ndarray, float]:
+    """``(w / s, s)`` with ``s`` the largest weight: the weights in (0, 1], constant ones exactly 1."""
+    s = case_weight_scale(w)
+    return w / s, s
 
 
 def scaled_back(value: float, scale: float, what: str) -> float:
-    """``value * scale``, refused when the product overflows float64."""
+    """``value * scale``, refused when a normal ``value`` leaves float64's normal range."""
     out = float(value) * scale
-    if math.isfinite(value) and not math.isfinite(out):
-        raise InputError(f"the {what} ({value:.6g} x {scale:.6g}) exceeds what float64 holds; {_REMEDY}")
+    if math.isfinite(value) and abs(value) >= _TINY and not (_TINY <= abs(out) < math.inf):
+        where = "exceeds what float64 holds" if abs(out) >= 1 else "is below float64's normal range (digits lost)"
+        raise InputError(f"the {what} ({value:.6g} x {scale:.6g}) {where}; {_REMEDY}")
     return out
 
 

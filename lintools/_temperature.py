@@ -13,8 +13,8 @@ import numpy as np
 
 from ._errors import InputError, IterationLimitWarning, LintoolsWarning, SeparationError, warn_caller
 from ._outcomes import binary_outcome, case_weights, class_codes, sigmoid, vector_in
-from ._scaling import scaled_back
-from ._validate import _as_float, _check_finite, as_vector, check_positive_int, weight_scale
+from ._scaling import case_weight_scale, scaled_back
+from ._validate import _as_float, _check_finite, as_vector, check_positive_int
 
 __all__ = ["TemperatureMap", "temperature_scaling"]
 
@@ -112,7 +112,7 @@ def temperature_scaling(
     gradient per unit of total case weight with respect to :math:`\log T`, the stopping
     rule of the other fits (:mod:`lintools.solvers`) in the one coordinate that does not
     depend on the scale of the logits (multiplying every logit by ``c`` moves
-    :math:`\log T` by :math:`\log c`).  The weights are divided by a power of two first
+    :math:`\log T` by :math:`\log c`).  The weights are divided by the largest one first
     and each row of logits is shifted by its largest entry (the probabilities do not
     change), so neither the scale of the weights nor a common shift of a row's logits
     changes the answer, the verdict or the iteration count.
@@ -173,7 +173,7 @@ def temperature_scaling(
     n = Z.shape[0]
     w = case_weights(weights, n)
     live = w > 0
-    scale = weight_scale(w)
+    scale = case_weight_scale(w)
     Z, codes, w = Z[live], codes[live], w[live] / scale
     Z = Z - Z.max(axis=1, keepdims=True)  # the probabilities do not change; exact near the top
     total = float(w.sum())

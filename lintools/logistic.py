@@ -409,8 +409,8 @@ def logistic(
             "firth=True together with l2 > 0: both are remedies for separation and combining "
             "them defines neither estimate; pass one of them (firth=True with l2=0, or l2 > 0)"
         )
-    # the weights at a power-of-two scale (see lintools._scaling): outputs are scaled back
-    w, scale = scaled_case_weights(w, m if trials is not None else None)
+    # the weights divided by the largest one (see lintools._scaling): outputs are scaled back
+    w, scale = scaled_case_weights(w)
     check_l2_scale(lam, scale)
     v = w * m
     total, successes = float(v.sum()), float(w @ yy)

@@ -49,6 +49,7 @@ import numpy as np
 
 from ._errors import InputError
 from ._threads import ELEMENT_CHUNK, add_up, for_rows
+from ._scaling import case_weight_scale
 from ._validate import as_labels, as_matrix, as_weights
 
 __all__ = ["BinomialLoss", "log1pexp", "sigmoid", "unpenalised_gradient"]
@@ -393,13 +394,15 @@ def unpenalised_gradient(
     n = Xa.shape[0]
     classes, codes = as_labels(y, "y", n)
     w = as_weights(weights, n)
+    scale = case_weight_scale(w)  # products of w / scale cannot underflow; the sums are scaled back
+    w = w / scale
     b = np.asarray(beta, dtype=float)
     if model == "logistic":
         if len(classes) != 2:
             raise InputError(f"y has {len(classes)} distinct labels; a logistic model needs exactly two")
         eta = Xa @ b + (0.0 if intercept is None else float(intercept))
         g = BinomialLoss(codes.astype(float), weights=w).gradient(eta)
-        return Xa.T @ g, (float(g.sum()) if intercept is not None else 0.0)
+        return (Xa.T @ g) * scale, (float(g.sum()) * scale if intercept is not None else 0.0)
     from ._multinomial import MultinomialLoss
 
     K = len(classes)
@@ -408,4 +411,4 @@ def unpenalised_gradient(
                          f"({Xa.shape[1]}, {K}): one column per class in sorted order")
     a = np.zeros(K) if intercept is None else np.asarray(intercept, dtype=float).reshape(K)
     G = MultinomialLoss(codes, K, w, reference=False).gradient(Xa @ b + a)
-    return Xa.T @ G, (G.sum(axis=0) if intercept is not None else np.zeros(K))
+    return (Xa.T @ G) * scale, (G.sum(axis=0) * scale if intercept is not None else np.zeros(K))

@@ -15,7 +15,7 @@ import numpy as np
 from ._errors import InputError
 from ._outcomes import binary_outcome, case_weights, finite_scores, sigmoid, vector_in
 from ._temperature import TemperatureMap, temperature_scaling
-from ._validate import weight_scale
+from ._scaling import case_weight_scale
 
 __all__ = [
     "PlattMap",
@@ -207,8 +207,8 @@ def isotonic_calibration(
     weight and weighted mean outcome, then PAV pools adjacent violators (Ayer et al.
     1955; Barlow et al. 1972); the solution is also the monotone maximum-likelihood
     estimate of the event probability.  Rows of zero weight are ignored; the weights are
-    divided by a power of two first (exact), so multiplying all of them by any constant
-    leaves the fitted values unchanged.  The input ``p`` may be probabilities or any real
+    divided by the largest one first, so multiplying all of them by any constant leaves
+    the fitted values unchanged (to the rounding of the caller's products).  The input ``p`` may be probabilities or any real
     scores.
 
     ``apply`` interpolates linearly between the fitted points and clips outside them.
@@ -245,7 +245,7 @@ def isotonic_calibration(
     x = finite_scores(p, "p", o.shape[0])
     w = case_weights(weights, o.shape[0])
     live = w > 0
-    w = w / weight_scale(w)  # exact (a power of two): no sum overflows or underflows
+    w = w / case_weight_scale(w)  # no sum overflows or underflows; constant weights become 1
     points, index = np.unique(x[live], return_inverse=True)
     wx = np.bincount(index, weights=w[live], minlength=points.shape[0])
     mean = np.bincount(index, weights=(w * o)[live], minlength=points.shape[0]) / wx

@@ -238,7 +238,7 @@ def softmax(
                          "check the target column or the rows selected")
     intercept, lam, tol, max_iter = check_fit_settings(intercept, l2, tol, max_iter, on_iteration, solver)
     ref = _reference_index(reference, tuple(classes), lam)
-    # the weights at a power-of-two scale (see lintools._scaling): outputs are scaled back
+    # the weights divided by the largest one (see lintools._scaling): outputs are scaled back
     w, scale = scaled_case_weights(w)
     check_l2_scale(lam, scale)
     totals = np.bincount(codes, weights=w, minlength=K)

@@ -6,7 +6,8 @@ see only this interface::
 
     size                 length of the parameter vector z (solver coordinates)
     weight_total         total case weight W of the problem's loss
-    weight_scale         the power of two s by which the caller's weights were divided
+    weight_scale         the factor s by which the caller's weights were divided (their
+                         largest; see lintools._scaling)
                          (the problem's objective is the caller's F / s; solvers report
                          objectives times s)
     start()              starting z

@@ -160,9 +160,9 @@ class LinearModelProblem:
     centre : bool
         Centre the columns at their weighted means (with an intercept; default True).
     weight_scale : float
-        A power of two ``s`` by which the caller divided the loss's case weights (see
-        :func:`lintools._validate.weight_scale`).  The problem then minimises ``F / s``
-        exactly: the ridge enters as ``l2 / s``, Firth's penalty as
+        The factor ``s`` by which the caller divided the loss's case weights (their
+        largest, see :mod:`lintools._scaling`).  The problem then minimises ``F / s``:
+        the ridge enters as ``l2 / s``, Firth's penalty as
         ``-1/(2 s) log det I`` with ``I`` the information in the caller's weights; its
         values are ``F / s``, its gradients and Hessians those of ``F / s``.  The solvers
         report objectives times ``s`` (the caller's); the fronts scale every
