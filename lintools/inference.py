@@ -105,7 +105,6 @@ def likelihood_fields(log_likelihood: float, parameters: int, n_observations: fl
 def profile_bounds(
     problem: LinearModelProblem,
     z_hat: np.ndarray,
-    objective: float,
     standard_errors: np.ndarray,
     level: float,
     tol: float,
@@ -113,20 +112,24 @@ def profile_bounds(
 ) -> np.ndarray:
     """Profile-likelihood interval ends for every parameter (caller's coordinates).
 
-    ``objective`` is the minimised objective (negative penalised log-likelihood, in the
-    caller's weights) at ``z_hat``.  Returns a (k, 2) array; an end that the profile never reaches is infinite,
-    one whose inner fits failed is NaN.
+    ``z_hat`` is the optimum (the problem's coordinates).  The rise of the objective from
+    it to each profile point is computed directly along the line between them (the
+    problem's ``line(...).change``), not as a difference of two objective values, so the
+    ends are found however large the objective is against that rise (case weights of
+    1e77 make the objective about 1e79 and the rise at an end about 2).  Returns a (k, 2)
+    array; an end that the profile never reaches is infinite, one whose inner fits failed
+    is NaN.
     """
     theta = problem.to_original(z_hat)
     target = math.sqrt(float(dist.chi2_quantile(level, 1)))
     out = np.full((theta.size, 2), np.nan)
     for j in range(theta.size):
         for k, side in enumerate((-1.0, 1.0)):
-            out[j, k] = _one_end(problem, theta, j, side, objective, target, standard_errors[j], tol, max_iter)
+            out[j, k] = _one_end(problem, z_hat, theta, j, side, target, standard_errors[j], tol, max_iter)
     return out
 
 
-def _one_end(problem, theta, j, side, f_hat, target, se, tol, max_iter):
+def _one_end(problem, z_hat, theta, j, side, target, se, tol, max_iter):
     warm = {"u": np.delete(theta, j)}
 
     def h(delta):
@@ -139,7 +142,8 @@ def _one_end(problem, theta, j, side, f_hat, target, se, tol, max_iter):
         if res.status not in ("converged", "stalled"):
             return math.nan
         warm["u"] = res.z
-        return math.sqrt(max(2.0 * (res.objective - f_hat), 0.0)) - target
+        rise = problem.line(z_hat, R.embed(res.z) - z_hat).change(1.0) * problem.weight_scale
+        return math.sqrt(max(2.0 * rise, 0.0)) - target
 
     scale = se if math.isfinite(se) and se > 0 else 1.0 + abs(theta[j])
     lo, h_lo = 0.0, -target

@@ -346,7 +346,9 @@ def logistic(
         whether the fit stops, and it does not grow with the number of rows.  Promise: to
         first order every standardised coefficient is within ``||Hbar^{-1}||_inf * tol`` of
         the exact optimum (``Hbar`` the information per unit weight in those coordinates;
-        a caller's slope within that divided by ``s_j``).  Default 1e-13: about three
+        a caller's slope within that divided by ``s_j``).  With ``firth=True`` the divisor
+        is ``W + k/2`` (``k`` parameters): Firth's penalty does not scale with the weights
+        and weighs like ``k/2`` observations.  Default 1e-13: about three
         orders above the float64 rounding level of this quantity (which does not grow
         with the number of rows), and as tight as the earlier rule (1e-10 on the sums)
         was on a thousand rows; Newton usually ends far below it.
@@ -592,7 +594,7 @@ def _package(problem, loss, res, ev, V, z, Xa, off, names, classes, positive_cla
         lr = float("nan")
     lr = max(lr, 0.0) if math.isfinite(lr) else lr
     conv = convergence_record(res, ev, problem, z, solver)
-    bounds = profile_bounds(problem, z, objective, se, level, tol, max_iter) if profile else None
+    bounds = profile_bounds(problem, z, se, level, tol, max_iter) if profile else None
     return LogisticFit(
         coefficients=beta,
         intercept=b if intercept else 0.0,

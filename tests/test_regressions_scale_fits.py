@@ -181,3 +181,16 @@ def test_command_line_fit_with_tiny_or_huge_weights(tmp_path, c):
     doc = json.loads(proc.stdout)
     ref = lt.logistic(d[["GPA", "TUCE", "PSI"]], d["GRADE"])
     assert _rel(doc["fit"]["coefficients"], ref.coefficients) < 1e-12
+
+
+def test_profile_intervals_with_huge_weights_reach_the_wald_limit():
+    # source: statsmodels' spector data; asymptotic theory (common practice): weights of
+    # 1e14 multiply the information by 1e14, the log-likelihood is then quadratic over the
+    # interval and the profile ends equal the Wald ends.  Before: NaN ends, because the
+    # rise of the objective (about 2) was taken as a difference of two values near 1e15
+    d = sm.datasets.spector.load_pandas()
+    fit = lt.logistic(d.exog, d.endog, weights=np.full(32, 1e14), profile=True)
+    est = np.r_[fit.intercept, fit.coefficients]
+    se = np.r_[fit.intercept_standard_error, fit.standard_errors]
+    wald = est[:, None] + np.array([-1.0, 1.0]) * 1.959963984540054 * se[:, None]
+    np.testing.assert_allclose(fit.profile_intervals - est[:, None], wald - est[:, None], rtol=1e-4)

@@ -196,8 +196,12 @@ class LinearModelProblem:
         self.block_rows = max(1024, _PRODUCT_BYTES // (8 * max(p, 1)))  # blocks of X' r
         v = loss.row_weights()
         total = float(v.sum())
-        #: total case weight (of the loss's weights): the stopping rule is per unit of it
-        self.weight_total = total
+        #: total case weight W (of the loss's weights): the stopping rule is per unit of it.
+        #: With Firth's penalty W + k/2 (k parameters): the penalty's gradient sums hat values
+        #: whose total is k, so it weighs like k/2 observations whatever the weights' scale
+        #: (case weights of 1e-120 leave the penalty to decide the answer, and a rule per
+        #: unit of W alone would ask for the penalty's gradient below its rounding)
+        self.weight_total = total + (0.5 * self.size / self.weight_scale if self.jeffreys else 0.0)
         c, s, finite = column_moments(X, v, self.rows, self.intercept and centre)
         if not finite:
             raise NonFiniteDesign("the design X has a NaN or infinite entry")
@@ -213,7 +217,7 @@ class LinearModelProblem:
         self.jeffreys_weight = 1.0 / self.weight_scale
         #: the caller's gradient per standardised (uncentred) column per unit weight: the
         #: stopping rule of problems with parameters held fixed (RestrictedProblem)
-        self.unit = np.repeat(np.concatenate([np.ones(self.off), 1.0 / self.s]), self.K) / total
+        self.unit = np.repeat(np.concatenate([np.ones(self.off), 1.0 / self.s]), self.K) / self.weight_total
         #: columns far from zero against their spread, kept centred (see ShiftedColumns)
         self.shifted = ShiftedColumns(X, self.c, self.s, self.intercept and centre)
         self._last: tuple[Any, Any] | None = None  # (z, eta) of the last evaluation
