@@ -59,12 +59,14 @@ def centred_block(X: np.ndarray, c: np.ndarray) -> np.ndarray:
 
 
 def _evaluation_kernel(X: np.ndarray, y01: np.ndarray, w: np.ndarray | None, a: float, beta: np.ndarray,
-                       c: np.ndarray, step: tuple | None, scale: float) -> dict:
-    """Objective, gradient, information (unscaled) and runaway rows at ``(a, beta)``.
+                       c: np.ndarray, inv: np.ndarray, step: tuple | None, scale: float) -> dict:
+    """Objective, gradient, information and runaway rows at ``(a, beta)``.
 
     The columns are centred first (``eta = a + (X - c) beta``, ``a`` the intercept of the
     centred columns; the gradient of the slopes is ``(X - c)' r``), so a column far from
-    zero loses no digits; the weights are divided by ``scale`` (the largest weight).
+    zero loses no digits, and the information is that of the standardised rows
+    ``(1, (x - c) * inv)`` (``inv = 1 / s``), so no product of two columns of size 1e160 or
+    1e-200 overflows or underflows; the weights are divided by ``scale`` (the largest).
     ``step = (a0, beta0, da, dbeta, t)`` adds ``value(eta0 + t deta) - value(eta0)``.
     """
     loss = BinomialLoss(y01, None, None if w is None else w / scale)
@@ -82,7 +84,8 @@ def _evaluation_kernel(X: np.ndarray, y01: np.ndarray, w: np.ndarray | None, a: 
     sw = np.sqrt(W)
     B = np.empty((X.shape[0], X.shape[1] + 1))
     B[:, 0] = sw
-    np.multiply(D, sw[:, None], out=B[:, 1:])
+    np.multiply(D, inv, out=B[:, 1:])
+    B[:, 1:] *= sw[:, None]
     live = loss.row_weights() > 0
     hit = live & (((eta > ETA_LIMIT) & (y01 == 1)) | ((eta < -ETA_LIMIT) & (y01 == 0)))
     out.update(value=value, gb=float(r.sum()), gx=D.T @ r, H=B.T @ B,
@@ -111,7 +114,7 @@ class _PassProblem:
     def _pass(self, z: np.ndarray, step: tuple | None = None) -> dict:
         a, beta = self.centred(z)
         c = self.c if self.intercept else np.zeros(self.p)
-        return self.run.reduce(type(self).kernel, _add, (a, beta, c, step, self.weight_scale))
+        return self.run.reduce(type(self).kernel, _add, (a, beta, c, 1.0 / self.s, step, self.weight_scale))
 
     def evaluate(self, z: np.ndarray) -> Evaluation:
         hit = self.cache.get(z.tobytes())
@@ -191,14 +194,13 @@ class _BlockProblem(_PassProblem):
         original = np.concatenate([[Gb], Gbeta]) if self.intercept else Gbeta
         if self.intercept:
             gz = np.concatenate([[Gb], gz])
-            u = np.concatenate([[1.0], 1.0 / self.s])
-            H = part["H"] * np.multiply.outer(u, u)
+            H = part["H"].copy()  # the kernels' information is in the standardised coordinates
         else:
-            u = 1.0 / self.s
-            H = part["H"][1:, 1:] * np.multiply.outer(u, u)
-        slopes = np.arange(self.off, self.size)
-        H[slopes, slopes] += self.l2 / self.s**2
-        value = part["value"] + 0.5 * self.l2 * float(beta @ beta)
+            H = part["H"][1:, 1:].copy()
+        if self.l2:
+            slopes = np.arange(self.off, self.size)
+            H[slopes, slopes] += (self.l2 / self.s) / self.s  # no overflow of s^2
+        value = part["value"] + (0.5 * self.l2 * float(beta @ beta) if self.l2 else 0.0)
         ev = Evaluation(float(value), gz, original, None, gz / self.weight_total)  # the in-memory stopping rule
         return self._remember(z, ev, H, part)
 

@@ -43,13 +43,14 @@ def _merge_design(a: dict, b: dict, intercept: bool) -> dict:
 
 def _evaluation_kernel(X: np.ndarray, codes: np.ndarray, w: np.ndarray | None, inverse: np.ndarray, K: int,
                        reference: bool, intercept: bool, a: np.ndarray, B: np.ndarray, c: np.ndarray,
-                       step: tuple | None, scale: float) -> dict:
+                       inv: np.ndarray, step: tuple | None, scale: float) -> dict:
     """Objective, gradient, information (unscaled) and runaway rows of one block at ``(a, B)``.
 
     ``codes`` index the sorted classes, ``inverse`` maps them to the internal order (the
     reference class first).  As in the binary kernel the columns are centred first
     (``eta = a + (X - c) B``, ``a`` the intercepts of the centred columns, slope gradients
-    ``(X - c)' R``) and the weights divided by ``scale``.  ``step = (a0, B0, da, dB, t)``
+    ``(X - c)' R``, the information that of the standardised rows ``(1, (x - c) * inv)``)
+    and the weights divided by ``scale``.  ``step = (a0, B0, da, dB, t)``
     adds ``value(eta0 + t deta) - value(eta0)``, computed directly.
     """
     icodes = inverse[codes]
@@ -68,7 +69,7 @@ def _evaluation_kernel(X: np.ndarray, codes: np.ndarray, w: np.ndarray | None, i
     A = np.empty((X.shape[0], X.shape[1] + int(intercept)))
     if intercept:
         A[:, 0] = 1.0
-    A[:, int(intercept):] = D
+    np.multiply(D, inv, out=A[:, int(intercept):])
     Kf, p1 = eta.shape[1], A.shape[1]
     H = np.zeros((p1, Kf, p1, Kf))
     for k in range(Kf):
@@ -110,9 +111,9 @@ class _SoftmaxBlockProblem(_PassProblem):
         self.K = Kf
         self.size = self.p1 * Kf
         self.a_start = a_start
-        self.unit = np.repeat(np.concatenate([np.ones(self.off), 1.0 / s]), Kf)  # the standardised columns
         pen = np.zeros((self.p1, Kf))
-        pen[self.off :] = (self.l2 / s**2)[:, None]
+        if self.l2:
+            pen[self.off :] = ((self.l2 / s) / s)[:, None]  # no overflow of s^2
         self.pen = pen.ravel()
         self.cache: dict[bytes, tuple] = {}
 
@@ -150,9 +151,9 @@ class _SoftmaxBlockProblem(_PassProblem):
             gz, original = np.vstack([Gb, slopes]).ravel(), np.vstack([Gb, GB]).ravel()
         else:
             gz, original = slopes.ravel(), GB.ravel()
-        H = part["H"] * np.multiply.outer(self.unit, self.unit)
+        H = part["H"].copy()  # the kernels' information is in the standardised coordinates
         H[np.diag_indices_from(H)] += self.pen
-        value = part["value"] + 0.5 * self.l2 * float(np.sum(B * B))
+        value = part["value"] + (0.5 * self.l2 * float(np.sum(B * B)) if self.l2 else 0.0)
         ev = Evaluation(float(value), gz, original, None, gz / self.weight_total)  # the in-memory stopping rule
         return self._remember(z, ev, H, part)
 

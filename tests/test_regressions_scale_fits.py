@@ -20,7 +20,7 @@ import pytest
 import statsmodels.api as sm
 
 import lintools as lt
-from lintools.blocks import logistic_blocks
+from lintools.blocks import logistic_blocks, softmax_blocks
 
 
 def _rel(a, b) -> float:
@@ -126,16 +126,36 @@ def test_shifted_column_fits_as_the_reparametrised_problem(shift, solver):
         assert _rel(a.standard_errors, b.standard_errors) < 1e-10
 
 
+@pytest.mark.parametrize("shift", [1.7e9, 1e12])
+def test_shifted_column_in_blocks_fits_as_the_reparametrised_problem(shift):
+    # source: exact algebra, as above; the block fits formed X beta + b before (7 and 4
+    # digits at these shifts)
+    Xs, exact = _shifted(shift)
+    for fitter, y in ((logistic_blocks, Y), (softmax_blocks, YK)):
+        a = fitter(lambda: iter([(Xs[:20], y[:20]), (Xs[20:], y[20:])]))
+        b = fitter(lambda: iter([(exact[:20], y[:20]), (exact[20:], y[20:])]))
+        assert a.convergence.converged and a.convergence.iterations == b.convergence.iterations
+        slope = np.asarray(b.coefficients)[1]
+        assert _rel(a.coefficients, b.coefficients) < 1e-10
+        assert _rel(a.intercept, np.asarray(b.intercept) - shift * slope) < 1e-10
+        assert _rel(a.standard_errors, b.standard_errors) < 1e-10
+
+
 @pytest.mark.parametrize("scale,where", [(1e160, "below"), (1e-200, "above")])
 def test_extreme_column_scale_is_refused_for_its_true_cause(scale, where):
     # source: exact algebra -- the coefficient's variance scales by 1 / scale^2, beyond
     # float64 here.  Before: refused as "constant" or "a linear combination of nothing"
     Xs = X.copy()
     Xs[:, 1] *= scale
-    with pytest.raises(lt.InputError, match=rf"variance of the coefficient of 'x2'.*{where}.*rescale that column"):
-        lt.logistic(Xs, Y)
-    with pytest.raises(lt.InputError, match=r"variance of the coefficient of 'x2' for class .*rescale that column"):
-        lt.softmax(Xs, YK)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", RuntimeWarning)  # no overflow on the way either
+        with pytest.raises(lt.InputError, match=rf"variance of the coefficient of 'x2'.*{where}.*rescale that column"):
+            lt.logistic(Xs, Y)
+        with pytest.raises(lt.InputError, match=rf"variance of the coefficient of 'x2'.*{where}.*rescale that column"):
+            logistic_blocks(lambda: iter([(Xs[:20], Y[:20]), (Xs[20:], Y[20:])]))
+        for fit in (lambda: lt.softmax(Xs, YK), lambda: softmax_blocks(lambda: iter([(Xs, YK)]))):
+            with pytest.raises(lt.InputError, match=r"variance of the coefficient of 'x2' for class .*rescale that column"):
+                fit()
 
 
 @pytest.mark.parametrize("solver", [None, "Newton", 3])

@@ -674,7 +674,7 @@ class LinearModelProblem:
 
     def _penalty_diagonal(self) -> np.ndarray:
         pen = np.zeros((self.p1, self.K))
-        pen[self.off :] = (self.l2 / self.s**2)[:, None]
+        pen[self.off :] = ((self.l2 / self.s) / self.s)[:, None]  # no overflow of s^2
         return pen.ravel()
 
     def gradient_rounding(self, z: np.ndarray) -> float:
