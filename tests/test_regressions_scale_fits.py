@@ -195,12 +195,11 @@ def test_command_line_fit_with_tiny_or_huge_weights(tmp_path, c):
         fh.write("GPA,TUCE,PSI,GRADE,w\n")
         for row in d.itertuples(index=False):
             fh.write(f"{row.GPA!r},{row.TUCE!r},{row.PSI!r},{int(row.GRADE)},{c}\n")
-    proc = _cli("fit", str(path), "--target", "GRADE", "--model", "logistic", "--weights", "w",
-                "--tol", "1e-13", "--json")
+    proc = _cli("fit", str(path), "--target", "GRADE", "--model", "logistic", "--weights", "w", "--json")
     assert proc.returncode == 0, proc.stderr + proc.stdout
     doc = json.loads(proc.stdout)
     ref = lt.logistic(d[["GPA", "TUCE", "PSI"]], d["GRADE"])
-    assert _rel(doc["fit"]["coefficients"], ref.coefficients) < 1e-12
+    assert _rel(doc["fit"]["coefficients"], ref.coefficients) < 1e-10  # the command line's own tol
 
 
 def test_profile_intervals_with_huge_weights_reach_the_wald_limit():
