@@ -9,6 +9,7 @@ import numpy as np
 
 from ._errors import InputError, LintoolsError, SeparationError
 from ._records import LogisticFit
+from ._scaling import check_l2_scale, scaled_back
 from ._validate import check_names
 from .inference import covariance, likelihood_fields
 from .linalg import default_rank_tolerance, dependency_sentence, unstandardise
@@ -22,29 +23,60 @@ from ._blocks_tsqr import _factor, _merge_factors
 
 
 def _design_kernel(X: np.ndarray, labels: dict, w: np.ndarray | None, intercept: bool) -> dict:
-    """Pass 1 of the logistic fit: labels, and the R factor of the weighted centred X."""
+    """Pass 1 of the logistic fit: labels, the R factor of the weighted centred X and the
+    largest weight (by which later passes divide the weights)."""
     n_rows = X.shape[0]
     Xp, _, wp = _positive_rows(X, None, w)
-    out = {"n_pos": Xp.shape[0], "n_rows": n_rows, "labels": labels}
+    out = {"n_pos": Xp.shape[0], "n_rows": n_rows, "labels": labels,
+           "wmax": float(wp.max()) if (wp is not None and wp.size) else 1.0}
     if Xp.shape[0]:
         out["lo"], out["hi"] = Xp.min(axis=0), Xp.max(axis=0)
         out.update(_factor(np.array(Xp), wp, intercept))  # a copy: _factor works in place and blocks are read-only views
     return out
 
 
-def _evaluation_kernel(X: np.ndarray, y01: np.ndarray, w: np.ndarray | None, b: float, beta: np.ndarray,
-                       c: np.ndarray, step: tuple | None) -> dict:
-    """Objective, gradient, information (unscaled) and runaway rows at ``(b, beta)``.
+def merge_design(a: dict, b: dict, intercept: bool) -> dict:
+    """Two pass-1 summaries combined (the R factors by TSQR, the largest weight kept)."""
+    out = _merge_factors(a, b, intercept)
+    out["wmax"] = max(a["wmax"], b["wmax"])
+    return out
 
-    ``step = (b0, beta0, db, dbeta, t)`` adds ``value(eta0 + t deta) - value(eta0)``.
+
+def weights_scale(part: dict) -> float:
+    """The factor by which later passes divide the block weights: the largest weight (see
+    :mod:`lintools._scaling`); a total weight beyond float64 is refused."""
+    if not math.isfinite(part["W"]):
+        raise InputError("the weights sum to more than float64 holds (beyond 1.8e308) over the blocks; "
+                         "divide all weights by a common factor (the coefficients do not change)")
+    return part["wmax"]
+
+
+def centred_block(X: np.ndarray, c: np.ndarray) -> np.ndarray:
+    """``X - c`` for one block (exact for entries within a factor two of ``c``: Sterbenz)."""
+    D = np.empty(X.shape)
+    np.subtract(X, c, out=D)
+    return D
+
+
+def _evaluation_kernel(X: np.ndarray, y01: np.ndarray, w: np.ndarray | None, a: float, beta: np.ndarray,
+                       c: np.ndarray, inv: np.ndarray, step: tuple | None, scale: float) -> dict:
+    """Objective, gradient, information and runaway rows at ``(a, beta)``.
+
+    The columns are centred first (``eta = a + (X - c) beta``, ``a`` the intercept of the
+    centred columns; the gradient of the slopes is ``(X - c)' r``), so a column far from
+    zero loses no digits, and the information is that of the standardised rows
+    ``(1, (x - c) * inv)`` (``inv = 1 / s``), so no product of two columns of size 1e160 or
+    1e-200 overflows or underflows; the weights are divided by ``scale`` (the largest).
+    ``step = (a0, beta0, da, dbeta, t)`` adds ``value(eta0 + t deta) - value(eta0)``.
     """
-    loss = BinomialLoss(y01, None, w)
-    eta = X @ beta + b
+    loss = BinomialLoss(y01, None, None if w is None else w / scale)
+    D = centred_block(X, c)
+    eta = D @ beta + a
     out = {"finite": bool(np.all(np.isfinite(eta)))}
     if step is not None:
-        b0, beta0, db, dbeta, t = step
-        eta0 = X @ beta0 + b0
-        out["change"] = loss.value_change(eta0, t * (X @ dbeta + db)) if out["finite"] else math.inf
+        a0, beta0, da, dbeta, t = step
+        eta0 = D @ beta0 + a0
+        out["change"] = loss.value_change(eta0, t * (D @ dbeta + da)) if out["finite"] else math.inf
     if not out["finite"]:
         return out
     value, r = loss.value_and_gradient(eta)
@@ -52,11 +84,11 @@ def _evaluation_kernel(X: np.ndarray, y01: np.ndarray, w: np.ndarray | None, b: 
     sw = np.sqrt(W)
     B = np.empty((X.shape[0], X.shape[1] + 1))
     B[:, 0] = sw
-    np.subtract(X, c, out=B[:, 1:])
+    np.multiply(D, inv, out=B[:, 1:])
     B[:, 1:] *= sw[:, None]
     live = loss.row_weights() > 0
     hit = live & (((eta > ETA_LIMIT) & (y01 == 1)) | ((eta < -ETA_LIMIT) & (y01 == 0)))
-    out.update(value=value, gb=float(r.sum()), gx=X.T @ r, H=B.T @ B,
+    out.update(value=value, gb=float(r.sum()), gx=D.T @ r, H=B.T @ B,
                runaway=int(hit.sum()), top=float(np.max(np.abs(eta[hit]))) if hit.any() else 0.0)
     return out
 
@@ -64,9 +96,14 @@ def _evaluation_kernel(X: np.ndarray, y01: np.ndarray, w: np.ndarray | None, b: 
 class _PassProblem:
     """What a blocked problem shares: one pass per evaluation, cached by ``z`` with its
     information, and a line search whose trials evaluate their points.  Subclasses give
-    ``kernel`` (the per-block evaluation), ``coefficients`` and ``_store``."""
+    ``kernel`` (the per-block evaluation), ``centred`` (the intercept of the centred
+    columns and the slopes), ``coefficients`` and ``_store``; and set ``weight_scale`` (the
+    largest weight, which the kernels divide the block weights by) and ``weight_total``
+    (the total of the divided weights: the stopping rule is per unit of it)."""
 
     kernel: Any = None
+    weight_scale: float = 1.0
+    weight_total: float = 1.0
 
     def _remember(self, z: np.ndarray, ev: Evaluation, H: np.ndarray, part: dict) -> Evaluation:
         if len(self.cache) > 4:
@@ -75,9 +112,9 @@ class _PassProblem:
         return ev
 
     def _pass(self, z: np.ndarray, step: tuple | None = None) -> dict:
-        b, beta = self.coefficients(z)
+        a, beta = self.centred(z)
         c = self.c if self.intercept else np.zeros(self.p)
-        return self.run.reduce(type(self).kernel, _add, (b, beta, c, step))
+        return self.run.reduce(type(self).kernel, _add, (a, beta, c, 1.0 / self.s, step, self.weight_scale))
 
     def evaluate(self, z: np.ndarray) -> Evaluation:
         hit = self.cache.get(z.tobytes())
@@ -108,21 +145,29 @@ class _BlockProblem(_PassProblem):
     ``beta = g / s`` and ``b = a - c' beta``.  The information is that of the standardised
     design ``[1, (X - c) / s]``; evaluations (with their information) are cached by ``z``,
     and a line-search trial evaluates its point, so an accepted step costs no extra pass.
+    The kernels divide the weights by ``weight_scale``, so the objective is the caller's
+    divided by it (and the ridge enters as ``l2 / weight_scale``).
     """
 
     kernel = staticmethod(_evaluation_kernel)
+    K = 1
 
-    def __init__(self, run: Any, c: np.ndarray, s: np.ndarray, intercept: bool, lam: float, b_start: float) -> None:
+    def __init__(self, run: Any, c: np.ndarray, s: np.ndarray, intercept: bool, lam: float, b_start: float,
+                 weight_scale: float, weight_total: float) -> None:
         self.run, self.c, self.s = run, c, s
-        self.intercept, self.l2, self.off = intercept, lam, int(intercept)
+        self.weight_scale, self.weight_total = weight_scale, weight_total
+        self.intercept, self.l2, self.off = intercept, lam / weight_scale, int(intercept)
         self.p = c.shape[0]
         self.size = self.p + self.off
         self.b_start = b_start
         self.cache: dict[bytes, tuple] = {}
 
+    def centred(self, z: np.ndarray) -> tuple[float, np.ndarray]:
+        """``(a, beta)``: the intercept of the centred columns and the slopes."""
+        return (float(z[0]) if self.intercept else 0.0), z[self.off :] / self.s
+
     def coefficients(self, z: np.ndarray) -> tuple[float, np.ndarray]:
-        beta = z[self.off :] / self.s
-        a = z[0] if self.intercept else 0.0
+        a, beta = self.centred(z)
         return (a - float(self.c @ beta)) if self.intercept else 0.0, beta
 
     def to_original(self, z: np.ndarray) -> np.ndarray:
@@ -141,23 +186,22 @@ class _BlockProblem(_PassProblem):
     def _store(self, z: np.ndarray, part: dict) -> Evaluation | None:
         if not part["finite"]:
             return None
-        b, beta = self.coefficients(z)
-        Gbeta = part["gx"] + self.l2 * beta
+        _, beta = self.centred(z)
+        centred = part["gx"] + self.l2 * beta  # the kernels' products are with X - c
         Gb = part["gb"]
-        gz = (Gbeta - self.c * Gb) / self.s if self.intercept else Gbeta / self.s
+        gz = centred / self.s
+        Gbeta = centred + self.c * Gb
         original = np.concatenate([[Gb], Gbeta]) if self.intercept else Gbeta
         if self.intercept:
             gz = np.concatenate([[Gb], gz])
-            u = np.concatenate([[1.0], 1.0 / self.s])
-            H = part["H"] * np.multiply.outer(u, u)
+            H = part["H"].copy()  # the kernels' information is in the standardised coordinates
         else:
-            u = 1.0 / self.s
-            H = part["H"][1:, 1:] * np.multiply.outer(u, u)
-        slopes = np.arange(self.off, self.size)
-        H[slopes, slopes] += self.l2 / self.s**2
-        value = part["value"] + 0.5 * self.l2 * float(beta @ beta)
-        unit = np.concatenate([[1.0], 1.0 / self.s]) if self.intercept else 1.0 / self.s
-        ev = Evaluation(float(value), gz, original, None, unit)  # the in-memory, scale-free stopping rule
+            H = part["H"][1:, 1:].copy()
+        if self.l2:
+            slopes = np.arange(self.off, self.size)
+            H[slopes, slopes] += (self.l2 / self.s) / self.s  # no overflow of s^2
+        value = part["value"] + (0.5 * self.l2 * float(beta @ beta) if self.l2 else 0.0)
+        ev = Evaluation(float(value), gz, original, None, gz / self.weight_total)  # the in-memory stopping rule
         return self._remember(z, ev, H, part)
 
     def hessian(self, z: np.ndarray) -> np.ndarray:
@@ -178,9 +222,9 @@ class _BlockLine:
         z_new = z + t * d
         if np.array_equal(z_new, z):
             return 0.0  # the step is below the rounding of z: no move, no change (a stall)
-        b0, beta0 = pr.coefficients(z)
-        db, dbeta = pr.coefficients(d)
-        part = pr._pass(z_new, (b0, beta0, db, dbeta, t))
+        a0, beta0 = pr.centred(z)
+        da, dbeta = pr.centred(d)
+        part = pr._pass(z_new, (a0, beta0, da, dbeta, t))
         if not part["finite"] or not math.isfinite(part["change"]):
             return math.inf
         pr._store(z_new, part)
@@ -198,7 +242,7 @@ def logistic_blocks(
     weights: Any = None,
     intercept: bool = True,
     l2: float = 0.0,
-    tol: float = 1e-10,
+    tol: float = 1e-13,
     max_iter: int = 100,
     names: Sequence[str] | None = None,
     on_iteration: Callable[[IterationRecord], Any] | None = None,
@@ -226,8 +270,11 @@ def logistic_blocks(
     l2 : float
         Ridge strength on the slopes.
     tol : float
-        Stop when the max-abs gradient of the objective per standardised column (as in
-        :func:`lintools.logistic`) is <= tol.
+        Stop when the max-abs gradient of the objective per unit of total case weight,
+        with respect to the intercept and the coefficients of the standardised, centred
+        columns (the rule of :func:`lintools.logistic`, with its promise), is <= tol.
+        Neither the scale of the weights nor the number of rows moves this quantity's
+        rounding level, so the default holds for any number of rows.
     max_iter : int
         Newton iterations allowed; a fit that reaches the limit is marked
         ``converged=False`` and a :class:`lintools.IterationLimitWarning` is issued.
@@ -260,10 +307,12 @@ def logistic_blocks(
     -----
     Passes: one for the labels, centres, scales and rank; one per Newton iteration with
     an accepted full step (plus one per halving).  Memory: a few copies of one block plus
-    ``O(p^2)``, whatever the number of rows.  At a large number of rows the default
-    ``tol`` may lie below the float64 rounding level of the gradient (a sum over the rows);
-    the fit then stalls and says so: loosen ``tol`` in proportion to the rows.
-    Firth's method, offsets and grouped (trials) data are left to the in-memory fit.
+    ``O(p^2)``, whatever the number of rows.  The weights are divided by the largest one
+    (found by pass 1) and every weight-proportional output is scaled back
+    (:mod:`lintools._scaling`); the columns are centred in every block before any product,
+    so a column far from zero (a time stamp) loses no digits.  Firth's method, offsets and
+    grouped (trials) data are left to the in-memory fit (grouped data can be passed as
+    weighted 0/1 rows: a success row and a failure row per group).
 
     References
     ----------
@@ -272,7 +321,7 @@ def logistic_blocks(
     """
     intercept, lam, tol, max_iter = check_fit_settings(intercept, l2, tol, max_iter, on_iteration)
     run = _runner(source, X, y, weights, labels="collect")
-    part = run.reduce(_design_kernel, _merge_factors, (intercept,), (intercept,))
+    part = run.reduce(_design_kernel, merge_design, (intercept,), (intercept,))
     p = run.spec.p
     names_t = check_names(names, p, run.names)
     seen = part["labels"]
@@ -293,7 +342,9 @@ def logistic_blocks(
     c, s = _centres_and_scales(part, intercept, lam, names_t)
     rate = min(max(successes / W, 1e-12), 1.0 - 1e-12)
     b_start = math.log(rate) - math.log1p(-rate)
-    problem = _BlockProblem(_Coded(run, classes), c, s, intercept, lam, b_start)
+    scale = weights_scale(part)
+    check_l2_scale(lam, scale)
+    problem = _BlockProblem(_Coded(run, classes), c, s, intercept, lam, b_start, scale, W / scale)
 
     def monitor(z, ev):
         count, top = problem.runaway(z)
@@ -318,7 +369,7 @@ def logistic_blocks(
             "rescale or drop nearly collinear columns, or set l2 > 0"
         )
     try:
-        V = covariance(problem, res.z)
+        V = covariance(problem, res.z, [f"'{t}'" for t in (("(intercept)",) if intercept else ()) + names_t])
     except SingularMatrixError:
         raise LintoolsError(
             "the information matrix is singular at the answer: the design is full rank but too "
@@ -349,7 +400,9 @@ def _centres_and_scales(part: dict, intercept: bool, lam: float, names: tuple[st
                 f"X column {j} ('{names[j]}') is constant on the rows used; it is aliased with the "
                 "intercept: drop it, or pass intercept=False"
             )
-    norms = np.linalg.norm(R, axis=0)
+    top = np.max(np.abs(R), axis=0) if R.size else np.zeros(p)
+    safe = np.where(top > 0, top, 1.0)
+    norms = np.linalg.norm(R / safe, axis=0) * safe  # no overflow or underflow of the squares
     if lam == 0 and p:
         Rs = R / np.where(norms > 0, norms, 1.0)
         msg = dependency_sentence(Rs, norms, names, intercept, default_rank_tolerance(part["n_pos"], p))
@@ -371,14 +424,16 @@ def _logistic_record(problem: _BlockProblem, res: Any, V: np.ndarray, W: float, 
     p = k - int(intercept)
     b = float(theta[0]) if intercept else 0.0
     se = np.sqrt(np.clip(np.diag(V), 0.0, None))
-    loglik = -float(part["value"])
-    dev = 2.0 * float(part["value"])  # binary rows: the saturated log-likelihood is 0
+    scale = problem.weight_scale  # the passes' weights are the caller's / scale
+    loglik = scaled_back(-float(part["value"]), scale, "log-likelihood")
+    dev = -2.0 * loglik  # binary rows: the saturated log-likelihood is 0
     S1 = seen[classes[1]][2]
     S0 = W - S1
     if intercept:
-        null_dev = -2.0 * (S1 * math.log(S1 / W) + S0 * math.log(S0 / W))
+        null_dev = -2.0 * ((S1 / scale) * math.log(S1 / W) + (S0 / scale) * math.log(S0 / W))
     else:
-        null_dev = 2.0 * W * math.log(2.0)
+        null_dev = 2.0 * (W / scale) * math.log(2.0)
+    null_dev = scaled_back(null_dev, scale, "null deviance")
     lr = max(null_dev - dev, 0.0) if lam == 0 else float("nan")
     conv = convergence_record(res, ev, problem, z, "newton", note=f"; {passes} passes over the blocks")
     return LogisticFit(
@@ -386,6 +441,7 @@ def _logistic_record(problem: _BlockProblem, res: Any, V: np.ndarray, W: float, 
         intercept_standard_error=float(se[0]) if intercept else None, covariance=V,
         log_likelihood=loglik, deviance=dev, n_observations=float(W), names=names, convergence=conv,
         with_intercept=bool(intercept), l2=lam, classes=classes, positive_class=classes[1],
-        null_deviance=null_dev, **likelihood_fields(loglik, k, W, lr, p), firth=False, penalised_log_likelihood=-ev.value,
+        null_deviance=null_dev, **likelihood_fields(loglik, k, W, lr, p), firth=False,
+        penalised_log_likelihood=-scaled_back(ev.value, scale, "objective"),
         grouped=False, has_offset=False, target="y",
     )

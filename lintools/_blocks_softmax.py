@@ -10,18 +10,18 @@ import numpy as np
 from ._errors import InputError, LintoolsError, SeparationError
 from ._multinomial import MultinomialLoss
 from ._records import SoftmaxFit
+from ._scaling import caller_covariance, check_l2_scale, scaled_back
 from ._validate import check_names
 from .inference import likelihood_fields
 from .linalg import unstandardise
 from .logistic import ETA_LIMIT, convergence_record, check_fit_settings, check_parameters_and_rows
-from .softmax import _intercept_subspace, _reference_index, _z_covariance
+from .softmax import _intercept_subspace, _internal_terms, _reference_index, _z_covariance
 from .solvers import AffineProblem, Evaluation, IterationRecord, SingularMatrixError
 from .solvers.newton import newton
 
 from ._block_stream import COLLECT_ALL, ClassIndex, _merge_labels, _runner
-from ._blocks_newton import _PassProblem, _centres_and_scales
+from ._blocks_newton import _PassProblem, _centres_and_scales, centred_block, merge_design, weights_scale
 from ._blocks_newton import _design_kernel as _binary_design_kernel
-from ._blocks_tsqr import _merge_factors
 
 __all__ = ["softmax_blocks"]
 
@@ -35,29 +35,33 @@ def _design_kernel(X: np.ndarray, seen: dict, w: np.ndarray | None, intercept: b
 
 
 def _merge_design(a: dict, b: dict, intercept: bool) -> dict:
-    out = _merge_factors({k: v for k, v in a.items() if k != "classes"},
-                         {k: v for k, v in b.items() if k != "classes"}, intercept)
+    out = merge_design({k: v for k, v in a.items() if k != "classes"},
+                       {k: v for k, v in b.items() if k != "classes"}, intercept)
     out["classes"] = _merge_labels(a["classes"], b["classes"], keep=None)
     return out
 
 
 def _evaluation_kernel(X: np.ndarray, codes: np.ndarray, w: np.ndarray | None, inverse: np.ndarray, K: int,
-                       reference: bool, intercept: bool, b: np.ndarray, B: np.ndarray, c: np.ndarray,
-                       step: tuple | None) -> dict:
-    """Objective, gradient, information (unscaled) and runaway rows of one block at ``(b, B)``.
+                       reference: bool, intercept: bool, a: np.ndarray, B: np.ndarray, c: np.ndarray,
+                       inv: np.ndarray, step: tuple | None, scale: float) -> dict:
+    """Objective, gradient, information (unscaled) and runaway rows of one block at ``(a, B)``.
 
     ``codes`` index the sorted classes, ``inverse`` maps them to the internal order (the
-    reference class first).  ``step = (b0, B0, db, dB, t)`` adds
-    ``value(eta0 + t deta) - value(eta0)``, computed directly.
+    reference class first).  As in the binary kernel the columns are centred first
+    (``eta = a + (X - c) B``, ``a`` the intercepts of the centred columns, slope gradients
+    ``(X - c)' R``, the information that of the standardised rows ``(1, (x - c) * inv)``)
+    and the weights divided by ``scale``.  ``step = (a0, B0, da, dB, t)``
+    adds ``value(eta0 + t deta) - value(eta0)``, computed directly.
     """
     icodes = inverse[codes]
-    loss = MultinomialLoss(icodes, K, w, reference=reference)
-    eta = X @ B + b  # (m, K'), always 2-D
+    loss = MultinomialLoss(icodes, K, None if w is None else w / scale, reference=reference)
+    D = centred_block(X, c)
+    eta = D @ B + a  # (m, K'), always 2-D
     out: dict = {"finite": bool(np.all(np.isfinite(eta)))}
     if step is not None:
-        b0, B0, db, dB, t = step
-        eta0 = X @ B0 + b0
-        out["change"] = loss.value_change(eta0, t * (X @ dB + db)) if out["finite"] else math.inf
+        a0, B0, da, dB, t = step
+        eta0 = D @ B0 + a0
+        out["change"] = loss.value_change(eta0, t * (D @ dB + da)) if out["finite"] else math.inf
     if not out["finite"]:
         return out
     value, R = loss.value_and_gradient(eta)
@@ -65,7 +69,7 @@ def _evaluation_kernel(X: np.ndarray, codes: np.ndarray, w: np.ndarray | None, i
     A = np.empty((X.shape[0], X.shape[1] + int(intercept)))
     if intercept:
         A[:, 0] = 1.0
-    np.subtract(X, c, out=A[:, int(intercept):])
+    np.multiply(D, inv, out=A[:, int(intercept):])
     Kf, p1 = eta.shape[1], A.shape[1]
     H = np.zeros((p1, Kf, p1, Kf))
     for k in range(Kf):
@@ -81,7 +85,7 @@ def _evaluation_kernel(X: np.ndarray, codes: np.ndarray, w: np.ndarray | None, i
     others[rows, icodes] = -np.inf
     margin = own - others.max(axis=1)
     hit = (loss.row_weights() > 0) & (margin > ETA_LIMIT)
-    out.update(value=value, gb=R.sum(axis=0), gx=X.T @ R, H=H.reshape(p1 * Kf, p1 * Kf),
+    out.update(value=value, gb=R.sum(axis=0), gx=D.T @ R, H=H.reshape(p1 * Kf, p1 * Kf),
                runaway=int(hit.sum()), top=float(margin[hit].max()) if hit.any() else 0.0)
     return out
 
@@ -98,25 +102,29 @@ class _SoftmaxBlockProblem(_PassProblem):
     kernel = staticmethod(_evaluation_kernel)
 
     def __init__(self, run: Any, c: np.ndarray, s: np.ndarray, intercept: bool, lam: float, Kf: int,
-                 a_start: np.ndarray) -> None:
+                 a_start: np.ndarray, weight_scale: float, weight_total: float) -> None:
         self.run, self.c, self.s = run, c, s
-        self.intercept, self.l2, self.off = intercept, lam, int(intercept)
+        self.weight_scale, self.weight_total = weight_scale, weight_total
+        self.intercept, self.l2, self.off = intercept, lam / weight_scale, int(intercept)
         self.p = c.shape[0]
         self.p1 = self.p + self.off
         self.K = Kf
         self.size = self.p1 * Kf
         self.a_start = a_start
-        self.unit = np.repeat(np.concatenate([np.ones(self.off), 1.0 / s]), Kf)  # scale-free stopping rule
         pen = np.zeros((self.p1, Kf))
-        pen[self.off :] = (lam / s**2)[:, None]
+        if self.l2:
+            pen[self.off :] = ((self.l2 / s) / s)[:, None]  # no overflow of s^2
         self.pen = pen.ravel()
         self.cache: dict[bytes, tuple] = {}
 
-    def coefficients(self, z: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    def centred(self, z: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """``(a, B)``: the intercepts of the centred columns and the slopes."""
         Z = z.reshape(self.p1, self.K)
-        B = Z[self.off :] / self.s[:, None]
-        b = Z[0] - self.c @ B if self.intercept else np.zeros(self.K)
-        return b, B
+        return (Z[0].copy() if self.intercept else np.zeros(self.K)), Z[self.off :] / self.s[:, None]
+
+    def coefficients(self, z: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        a, B = self.centred(z)
+        return (a - self.c @ B if self.intercept else a), B
 
     def to_original(self, z: np.ndarray) -> np.ndarray:
         b, B = self.coefficients(z)
@@ -134,18 +142,19 @@ class _SoftmaxBlockProblem(_PassProblem):
     def _store(self, z: np.ndarray, part: dict) -> Evaluation | None:
         if not part["finite"]:
             return None
-        b, B = self.coefficients(z)
+        _, B = self.centred(z)
         Gb = np.asarray(part["gb"], dtype=float)
-        GB = part["gx"] + self.l2 * B
-        slopes = (GB - np.multiply.outer(self.c, Gb)) / self.s[:, None] if self.intercept else GB / self.s[:, None]
+        centred = part["gx"] + self.l2 * B  # the kernels' products are with X - c
+        slopes = centred / self.s[:, None]
+        GB = centred + np.multiply.outer(self.c, Gb)
         if self.intercept:
             gz, original = np.vstack([Gb, slopes]).ravel(), np.vstack([Gb, GB]).ravel()
         else:
             gz, original = slopes.ravel(), GB.ravel()
-        H = part["H"] * np.multiply.outer(self.unit, self.unit)
+        H = part["H"].copy()  # the kernels' information is in the standardised coordinates
         H[np.diag_indices_from(H)] += self.pen
-        value = part["value"] + 0.5 * self.l2 * float(np.sum(B * B))
-        ev = Evaluation(float(value), gz, original, None, self.unit)
+        value = part["value"] + (0.5 * self.l2 * float(np.sum(B * B)) if self.l2 else 0.0)
+        ev = Evaluation(float(value), gz, original, None, gz / self.weight_total)  # the in-memory stopping rule
         return self._remember(z, ev, H, part)
 
     def hessian(self, z: np.ndarray, E: np.ndarray | None = None) -> np.ndarray:
@@ -176,7 +185,7 @@ def softmax_blocks(
     intercept: bool = True,
     l2: float = 0.0,
     reference: Any = "first",
-    tol: float = 1e-10,
+    tol: float = 1e-13,
     max_iter: int = 100,
     names: Sequence[str] | None = None,
     on_iteration: Callable[[IterationRecord], Any] | None = None,
@@ -211,8 +220,9 @@ def softmax_blocks(
         intercepts with mean zero (the solver works in the subspace orthogonal to their
         shared shift, as :func:`lintools.softmax` does).
     tol : float
-        Stop when the max-abs gradient of the objective per standardised column (as in
-        :func:`lintools.softmax`) is <= tol.
+        Stop when the max-abs gradient of the objective per unit of total case weight,
+        with respect to the intercepts and the coefficients of the standardised, centred
+        columns (the rule of :func:`lintools.softmax`, with its promise), is <= tol.
     max_iter : int
         Newton iterations allowed; a fit that reaches the limit is marked
         ``converged=False`` and a :class:`lintools.IterationLimitWarning` is issued.
@@ -296,7 +306,9 @@ def softmax_blocks(
     a_start = logs[1:] - logs[0] if ref is not None else logs - logs.mean()
     Kf = K - 1 if ref is not None else K
     runner = _Indexed(run, classes, inverse, ref is not None, intercept)
-    problem = _SoftmaxBlockProblem(runner, c, s, intercept, lam, Kf, a_start)
+    scale = weights_scale(part)
+    check_l2_scale(lam, scale)
+    problem = _SoftmaxBlockProblem(runner, c, s, intercept, lam, Kf, a_start, scale, part["W"] / scale)
     target: Any = problem
     start = None
     if ref is None and intercept:
@@ -340,8 +352,9 @@ def _softmax_record(problem: _SoftmaxBlockProblem, res: Any, z: np.ndarray, Vz: 
     ev = problem.evaluate(z)
     part = problem.cache[z.tobytes()][2]
     K, Kf, p1, p = len(classes), problem.K, problem.p1, problem.p
-    T = problem.theta_from_z_matrix()
-    V = T @ Vz @ T.T
+    scale = problem.weight_scale  # the passes' weights are the caller's / scale
+    V = caller_covariance(problem.theta_from_z_matrix(), Vz, scale, _internal_terms(names, classes, order, ref, intercept),
+                          np.repeat(np.concatenate([np.full(int(intercept), np.nan), problem.s]), Kf))
     first = 0 if ref is None else 1
     full_t, full_se = np.zeros((p1, K)), np.zeros((p1, K))
     full_t[:, first:] = problem.to_original(z).reshape(p1, Kf)
@@ -355,14 +368,14 @@ def _softmax_record(problem: _SoftmaxBlockProblem, res: Any, z: np.ndarray, Vz: 
     free_sorted = [k for k in range(K) if ref is None or k != ref]
     perm = [t * Kf + internal_col[k] for k in free_sorted for t in range(p1)]
     Vc = V[np.ix_(perm, perm)]
-    Vc = 0.5 * (Vc + Vc.T)
-    loglik = -float(part["value"])
-    dev = 2.0 * float(part["value"])  # one-label rows: the saturated log-likelihood is 0
+    loglik = scaled_back(-float(part["value"]), scale, "log-likelihood")
+    dev = -2.0 * loglik  # one-label rows: the saturated log-likelihood is 0
     total = float(totals.sum())
     if intercept:
-        null_dev = -2.0 * float(np.sum(totals * np.log(totals / total)))
+        null_dev = -2.0 * float(np.sum((totals / scale) * np.log(totals / total)))
     else:
-        null_dev = 2.0 * total * math.log(K)
+        null_dev = 2.0 * (total / scale) * math.log(K)
+    null_dev = scaled_back(null_dev, scale, "null deviance")
     k_free = p1 * Kf - (1 if (ref is None and intercept) else 0)
     lr_df = p * (K - 1)
     lr = max(null_dev - dev, 0.0) if lam == 0 else float("nan")

@@ -102,6 +102,9 @@ def calibration_line(
         \mathrm{logit}\,P(y_i = 1) = \alpha_0 + \eta_i \ (\eta_i \text{ as offset}).
 
     Perfect calibration means :math:`\alpha = 0, \beta = 1`, and :math:`\alpha_0 = 0`.
+    The fits inherit :func:`lintools.logistic`'s handling of scale: multiplying every weight
+    by a constant leaves the estimates and the verdict unchanged and divides the
+    covariance by it (the standard errors by its square root).
     A slope below 1 says the forecasts are too extreme, above 1 too timid.  Standard
     errors are from the inverse Fisher information; the tests are Wald z tests
     (:math:`(\beta - 1)/SE`, :math:`\alpha/SE`, :math:`\alpha_0/SE`, two-sided normal

@@ -38,10 +38,12 @@ class Convergence:
     iterations : int
         Iterations (for direct solvers: 1 plus refinement steps).
     gradient_norm : float
-        Max-abs gradient of the objective at the returned answer, for iterative fits with
-        respect to the intercept and the coefficients of the standardised columns (each
-        slope entry divided by its column's weighted standard deviation): the quantity
-        the stopping rule compares with ``tol``, unchanged when a column is rescaled.
+        Max-abs gradient of the objective at the returned answer.  For the iterative
+        (likelihood) fits it is taken per unit of total case weight and with respect to
+        the intercept and the coefficients of the standardised, centred columns
+        ``(x_j - c_j) / s_j`` (weighted mean and standard deviation): the quantity the
+        stopping rule compares with ``tol``, unchanged when the weights or a column are
+        multiplied by a constant or a constant is added to a column.
     objective : float
         Value of the minimised objective at the answer.
     solver : str

@@ -11,8 +11,9 @@ from typing import Any
 
 import numpy as np
 
-from ._errors import InputError, IterationLimitWarning, SeparationError, warn_caller
+from ._errors import InputError, IterationLimitWarning, LintoolsWarning, SeparationError, warn_caller
 from ._outcomes import binary_outcome, case_weights, class_codes, sigmoid, vector_in
+from ._scaling import case_weight_scale, scaled_back
 from ._validate import _as_float, _check_finite, as_vector, check_positive_int
 
 __all__ = ["TemperatureMap", "temperature_scaling"]
@@ -39,8 +40,10 @@ class TemperatureMap:
         Weighted log-likelihood at the fitted temperature.
     iterations : int
     converged : bool
+        True when ``|gradient| <= tol``.
     gradient : float
-        Derivative of the mean negative log-likelihood with respect to log T at the answer.
+        Derivative of the mean negative log-likelihood (per unit of total case weight)
+        with respect to log T at the answer: the stopping rule's quantity.
     """
 
     temperature: float
@@ -105,8 +108,14 @@ def temperature_scaling(
     from :math:`T = 1`.  :math:`L` is convex in :math:`1/T`, so the minimiser is unique
     when it exists: it exists exactly when the average observed logit is above the
     average row mean (:math:`L'` < 0 at :math:`1/T = 0`) and some case's observed class
-    does not hold the largest logit.  Stops when a Newton step changes :math:`\log T` by
-    less than ``tol``.
+    does not hold the largest logit.  Stops when :math:`|dL/du| \le` ``tol``: the
+    gradient per unit of total case weight with respect to :math:`\log T`, the stopping
+    rule of the other fits (:mod:`lintools.solvers`) in the one coordinate that does not
+    depend on the scale of the logits (multiplying every logit by ``c`` moves
+    :math:`\log T` by :math:`\log c`).  The weights are divided by the largest one first
+    and each row of logits is shifted by its largest entry (the probabilities do not
+    change), so neither the scale of the weights nor a common shift of a row's logits
+    changes the answer, the verdict or the iteration count.
 
     ``logits`` is an (n, K) matrix, column k for the k-th class in sorted label order,
     or a 1-D vector of binary logits (log-odds of the positive class, read as the
@@ -121,7 +130,9 @@ def temperature_scaling(
     weights : array-like, optional
         Case weights.
     tol : float
-        Convergence tolerance on the Newton step in log T.
+        Stop when the derivative of :math:`L` with respect to :math:`\log T` is at most
+        ``tol`` in absolute value; to first order :math:`\log T` is then within
+        ``tol / L''(log T)`` of the optimum.
     max_iter : int
         Iteration limit (an ``IterationLimitWarning`` is issued when it is reached).
 
@@ -162,7 +173,9 @@ def temperature_scaling(
     n = Z.shape[0]
     w = case_weights(weights, n)
     live = w > 0
-    Z, codes, w = Z[live], codes[live], w[live]
+    scale = case_weight_scale(w)
+    Z, codes, w = Z[live], codes[live], w[live] / scale
+    Z = Z - Z.max(axis=1, keepdims=True)  # the probabilities do not change; exact near the top
     total = float(w.sum())
     zy = Z[np.arange(Z.shape[0]), codes]
     if float(w @ (Z.max(axis=1) - zy)) == 0.0:
@@ -175,39 +188,43 @@ def temperature_scaling(
             "logits give the observed classes no more than their row average, so the "
             "likelihood is best at an infinite temperature; check the column order of logits"
         )
-    u, converged, it, g1 = 0.0, False, 0, math.nan
+    u, converged, stalled, it, step = 0.0, False, False, 0, math.nan
     f, d1, d2 = _nll_parts(1.0, Z, zy, w, total)
-    for it in range(1, max_iter + 1):
+    while True:
         beta = math.exp(-u)
-        g1 = -beta * d1
+        g1 = -beta * d1  # dL/du
+        if abs(g1) <= tol:
+            converged = True
+            break
+        if it >= max_iter or stalled:
+            break
+        it += 1
         g2 = beta * beta * d2 + beta * d1
         newton = g2 > 0
         step = -g1 / g2 if newton else -math.copysign(1.0, g1)
-        step = full = max(-2.0, min(2.0, step))
+        step = max(-2.0, min(2.0, step))
         noise = 8.0 * np.finfo(float).eps * (abs(f) + 1.0)  # rounding floor of L
         for _ in range(60):
             f_new, d1_new, d2_new = _nll_parts(math.exp(-(u + step)), Z, zy, w, total)
             if f_new <= f + 1e-4 * step * g1 + noise or abs(step) < 1e-15:
                 break
             step *= 0.5
+        stalled = u + step == u  # a step below the rounding of log T: no further progress
         u += step
         f, d1, d2 = f_new, d1_new, d2_new
-        if newton and abs(full) <= tol:
-            converged = True
-            break
-    beta = math.exp(-u)
-    g1 = -beta * d1
     if not converged:
+        why = ("log T no longer moves beyond rounding" if stalled else
+               f"the iteration limit ({max_iter}) was reached; raise max_iter")
         warn_caller(
-            f"temperature_scaling stopped after {max_iter} iterations before log T settled "
-            f"(last step {step:.3g}); raise max_iter",
-            IterationLimitWarning,
+            f"temperature_scaling stopped after {it} iterations with |dL/d log T| per unit weight "
+            f"{abs(g1):.3g} > tol {tol:.3g}: {why}; NOT converged",
+            LintoolsWarning if stalled else IterationLimitWarning,
         )
     return TemperatureMap(
         temperature=math.exp(u),
         classes=Z.shape[1],
         binary=binary,
-        log_likelihood=-f * total,
+        log_likelihood=scaled_back(-f * total, scale, "log-likelihood"),
         iterations=it,
         converged=converged,
         gradient=g1,

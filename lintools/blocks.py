@@ -55,8 +55,10 @@ objective, the gradient and the information ``[1, X]' W [1, X]`` over the blocks
 standardised coordinates of :class:`lintools.solvers.LinearModelProblem`; the centres
 and scales come from a first pass, which also checks the rank).  A trial step of the line
 search is a pass that also evaluates the trial point, so an accepted full step costs one
-pass.  It stops on the rule of the in-memory fit: the max-abs gradient per standardised
-column is ``<= tol``.
+pass.  It stops on the rule of the in-memory fit: the max-abs gradient per unit of total
+case weight, with respect to the intercept and the standardised, centred columns, is
+``<= tol`` (each block is centred before any product, and the weights are divided by the
+largest one, so neither a column far from zero nor the weights' scale moves the answer).
 
 Softmax (multinomial logistic) regression (:func:`softmax_blocks`) minimises
 

@@ -32,11 +32,12 @@ composite hypotheses. Annals of Mathematical Statistics 9, 60-62.
 from __future__ import annotations
 
 import math
-from typing import Any
+from typing import Any, Sequence
 
 import numpy as np
 
 from . import _distributions as dist
+from ._scaling import caller_covariance
 from .solvers import LinearModelProblem, RestrictedProblem, SingularMatrixError, inverse_spd
 from .solvers.newton import newton
 
@@ -47,28 +48,34 @@ PROFILE_TOLERANCE = 1e-9
 MAX_PROFILE_STEPS = 80
 
 
-def covariance(problem: LinearModelProblem, z: np.ndarray) -> np.ndarray:
-    """Inverse penalised information in the caller's coordinates (intercept first).
+def covariance(problem: LinearModelProblem, z: np.ndarray, terms: Sequence[str]) -> np.ndarray:
+    """Inverse penalised information in the caller's coordinates and weights (intercept first).
 
-    Raises :class:`lintools.solvers.SingularMatrixError` when the information is singular.
+    The problem's information is that of its scaled weights (``problem.weight_scale``);
+    the caller's covariance is its inverse divided by that scale
+    (:func:`lintools._scaling.caller_covariance`, which refuses a variance float64 cannot
+    hold, naming ``terms[j]``).  Raises :class:`lintools.solvers.SingularMatrixError`
+    when the information is singular.
     """
-    T = problem.theta_from_z_matrix()
-    V = T @ inverse_spd(problem.fisher_information(z)) @ T.T
-    return 0.5 * (V + V.T)
+    spreads = np.concatenate([np.full(problem.off, np.nan), problem.s]) if problem.K == 1 else None
+    return caller_covariance(problem.theta_from_z_matrix(), inverse_spd(problem.fisher_information(z)),
+                             problem.weight_scale, terms, spreads)
 
 
 def null_objective(loss: Any, n: int, offset: np.ndarray | None, intercept: bool, jeffreys: bool,
-                   tol: float, max_iter: int) -> tuple[float, np.ndarray]:
-    """Minimised objective of the null model and its linear predictor."""
+                   tol: float, max_iter: int, weight_scale: float = 1.0) -> tuple[float, np.ndarray]:
+    """Minimised objective of the null model (in the caller's weights: the loss holds the
+    weights divided by ``weight_scale``) and its linear predictor."""
     if not intercept:
         eta = np.zeros(n) if offset is None else offset
-        return loss.value(eta), eta
+        return loss.value(eta) * weight_scale, eta
     closed = getattr(loss, "constant_fit", None)
     if offset is None and not jeffreys and closed is not None:
         fitted = closed(n, tol)
         if fitted is not None:
-            return fitted
-    P = LinearModelProblem(np.zeros((n, 0)), loss, intercept=True, offset=offset, jeffreys=jeffreys)
+            return fitted[0] * weight_scale, fitted[1]
+    P = LinearModelProblem(np.zeros((n, 0)), loss, intercept=True, offset=offset, jeffreys=jeffreys,
+                           weight_scale=weight_scale)
     res = newton(P, tol=tol, max_iter=max(max_iter, 50))
     return res.objective, P.eta(res.z)
 
@@ -98,7 +105,6 @@ def likelihood_fields(log_likelihood: float, parameters: int, n_observations: fl
 def profile_bounds(
     problem: LinearModelProblem,
     z_hat: np.ndarray,
-    objective: float,
     standard_errors: np.ndarray,
     level: float,
     tol: float,
@@ -106,20 +112,24 @@ def profile_bounds(
 ) -> np.ndarray:
     """Profile-likelihood interval ends for every parameter (caller's coordinates).
 
-    ``objective`` is the minimised objective (negative penalised log-likelihood) at
-    ``z_hat``.  Returns a (k, 2) array; an end that the profile never reaches is infinite,
-    one whose inner fits failed is NaN.
+    ``z_hat`` is the optimum (the problem's coordinates).  The rise of the objective from
+    it to each profile point is computed directly along the line between them (the
+    problem's ``line(...).change``), not as a difference of two objective values, so the
+    ends are found however large the objective is against that rise (case weights of
+    1e77 make the objective about 1e79 and the rise at an end about 2).  Returns a (k, 2)
+    array; an end that the profile never reaches is infinite, one whose inner fits failed
+    is NaN.
     """
     theta = problem.to_original(z_hat)
     target = math.sqrt(float(dist.chi2_quantile(level, 1)))
     out = np.full((theta.size, 2), np.nan)
     for j in range(theta.size):
         for k, side in enumerate((-1.0, 1.0)):
-            out[j, k] = _one_end(problem, theta, j, side, objective, target, standard_errors[j], tol, max_iter)
+            out[j, k] = _one_end(problem, z_hat, theta, j, side, target, standard_errors[j], tol, max_iter)
     return out
 
 
-def _one_end(problem, theta, j, side, f_hat, target, se, tol, max_iter):
+def _one_end(problem, z_hat, theta, j, side, target, se, tol, max_iter):
     warm = {"u": np.delete(theta, j)}
 
     def h(delta):
@@ -132,7 +142,8 @@ def _one_end(problem, theta, j, side, f_hat, target, se, tol, max_iter):
         if res.status not in ("converged", "stalled"):
             return math.nan
         warm["u"] = res.z
-        return math.sqrt(max(2.0 * (res.objective - f_hat), 0.0)) - target
+        rise = problem.line(z_hat, R.embed(res.z) - z_hat).change(1.0) * problem.weight_scale
+        return math.sqrt(max(2.0 * rise, 0.0)) - target
 
     scale = se if math.isfinite(se) and se > 0 else 1.0 + abs(theta[j])
     lo, h_lo = 0.0, -target

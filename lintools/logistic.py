@@ -32,6 +32,7 @@ import numpy as np
 
 from ._errors import InputError, IterationLimitWarning, LintoolsError, LintoolsWarning, SeparationError, warn_caller
 from ._records import Convergence, LogisticFit
+from ._scaling import check_l2_scale, check_solver, scaled_back, scaled_case_weights
 from ._threads import ELEMENT_CHUNK, for_rows, with_row_threads
 from ._validate import (
     as_labels,
@@ -39,7 +40,6 @@ from ._validate import (
     as_offset,
     as_vector,
     as_weights,
-    check_choice,
     check_finite,
     check_names,
     check_nonnegative,
@@ -59,7 +59,7 @@ from .solvers import (
     SolverResult,
     solve,
 )
-from .solvers.base import converged_message, limit_message
+from .solvers.base import MEASURED, converged_message, limit_message
 from .solvers.newton import newton
 
 __all__ = ["logistic"]
@@ -163,7 +163,7 @@ def _response(y: Any, trials: Any, positive: Any, n: int) -> tuple[np.ndarray, n
 
 def _check_tol(tol: Any) -> float:
     if isinstance(tol, bool) or not isinstance(tol, numbers.Real) or not math.isfinite(float(tol)) or tol <= 0:
-        raise InputError(f"tol must be a finite number > 0 (the max-abs gradient at which to stop); got {tol!r}")
+        raise InputError(f"tol must be a finite number > 0 (the {MEASURED} at which to stop); got {tol!r}")
     return float(tol)
 
 
@@ -183,12 +183,14 @@ def check_parameters_and_rows(k: int, rows: int) -> None:
 
 
 def check_fit_settings(intercept: Any, l2: Any, tol: Any, max_iter: Any, on_iteration: Any,
-                       solver: Any = ...) -> tuple[bool, float, float, int]:
-    """The settings every likelihood fit shares, checked: ``(intercept, l2, tol, max_iter)``."""
+                       solver: Any = "newton") -> tuple[bool, float, float, int]:
+    """The settings every likelihood fit shares, checked: ``(intercept, l2, tol, max_iter)``.
+
+    ``solver`` must name one of the solvers (None, or anything else, is an InputError
+    naming the choices; the block fits pass their only one, "newton")."""
     intercept = _check_flag(intercept, "intercept")
     lam = check_nonnegative(l2, "l2")
-    if solver is not ...:  # the blocked fits have no solver= (None is a bad solver name, not "none given")
-        check_choice(solver, "solver", SOLVERS)
+    check_solver(solver, SOLVERS)
     tol = _check_tol(tol)
     max_iter = check_positive_int(max_iter, "max_iter")
     if on_iteration is not None and not callable(on_iteration):
@@ -293,7 +295,7 @@ def logistic(
     l2: float = 0.0,
     firth: bool = False,
     solver: str = "newton",
-    tol: float = 1e-10,
+    tol: float = 1e-13,
     max_iter: int = 100,
     names: Sequence[str] | None = None,
     on_iteration: Callable[[IterationRecord], Any] | None = None,
@@ -337,10 +339,20 @@ def logistic(
         search, or accelerated gradient with backtracking and restarts.  All stop on the
         same rule; first-order solvers usually need a larger ``max_iter``.
     tol : float
-        Stop when the max-abs gradient of the objective, with respect to the intercept
-        and the coefficients of the standardised columns (slope entries divided by the
-        column's weighted standard deviation, so the rule does not depend on units), is
-        <= tol.
+        Stop when the max-abs gradient of the objective **per unit of total case weight**
+        (``sum w m``), with respect to the intercept and the coefficients of the
+        standardised, centred columns ``(x_j - c_j) / s_j`` (weighted mean and standard
+        deviation), is <= tol.  Multiplying the weights, multiplying a column or adding a
+        constant to a column does not change this quantity, so none of them decides
+        whether the fit stops, and it does not grow with the number of rows.  Promise: to
+        first order every standardised coefficient is within ``||Hbar^{-1}||_inf * tol`` of
+        the exact optimum (``Hbar`` the information per unit weight in those coordinates;
+        a caller's slope within that divided by ``s_j``).  With ``firth=True`` the divisor
+        is ``W + k/2`` (``k`` parameters): Firth's penalty does not scale with the weights
+        and weighs like ``k/2`` observations.  Default 1e-13: about three
+        orders above the float64 rounding level of this quantity (which does not grow
+        with the number of rows), and as tight as the earlier rule (1e-10 on the sums)
+        was on a thousand rows; Newton usually ends far below it.
     max_iter : int
         Iteration limit; a fit that reaches it is marked ``converged=False`` and an
         :class:`lintools.IterationLimitWarning` is issued.
@@ -400,6 +412,9 @@ def logistic(
             "firth=True together with l2 > 0: both are remedies for separation and combining "
             "them defines neither estimate; pass one of them (firth=True with l2=0, or l2 > 0)"
         )
+    # the weights divided by the largest one (see lintools._scaling): outputs are scaled back
+    w, scale = scaled_case_weights(w)
+    check_l2_scale(lam, scale)
     v = w * m
     total, successes = float(v.sum()), float(w @ yy)
     if total <= 0:
@@ -410,7 +425,8 @@ def logistic(
     if lam == 0:
         check_parameters_and_rows(p + int(intercept), int(np.count_nonzero(v > 0)))
     loss = BinomialLoss(yy, m if trials is not None else None, w)
-    problem = checked_problem(Xa, found, loss, intercept=intercept, l2=lam, offset=off, jeffreys=firth)
+    problem = checked_problem(Xa, found, loss, intercept=intercept, l2=lam, offset=off, jeffreys=firth,
+                              weight_scale=scale)
     if intercept and p and lam == 0:
         _constant_columns(Xa, v > 0, names_t, problem.spread, problem.c)
     watch = _Watch(loss, off) if (lam == 0 and not firth) else None
@@ -424,7 +440,7 @@ def logistic(
         _diagnose_singular(Xa, loss, intercept, names_t, lam, firth, watch, checked, res.message)
     z = res.z
     try:
-        V = covariance(problem, z)
+        V = covariance(problem, z, [f"'{t}'" for t in (("(intercept)",) if intercept else ()) + names_t])
     except SingularMatrixError:
         _diagnose_singular(Xa, loss, intercept, names_t, lam, firth, watch, checked,
                            "the information matrix is singular at the answer")
@@ -507,7 +523,7 @@ def _final_check(res, ev, V, problem, watch, Xa, loss, intercept, names):
     suspicious = res.status in ("iteration_limit", "stalled") and (count > 0 or Xa.size <= SMALL_PROBLEM)
     move = 0.0
     if count:
-        d = -(V @ ev.original_gradient)
+        d = -(V @ ev.original_gradient) * problem.weight_scale  # the Newton step (scaled gradient)
         db = d[0] if intercept else 0.0
         move = float(np.max(np.abs(Xa @ d[int(intercept):] + db)))
         suspicious = suspicious or move > MOVE_SUSPECT
@@ -545,7 +561,7 @@ def convergence_record(res: SolverResult, ev: Evaluation, problem: Any, z: np.nd
     message += note
     conv = Convergence(
         converged=bool(res.converged), iterations=int(res.iterations), gradient_norm=ev.gradient_norm,
-        objective=ev.value, solver=solver, message=message,
+        objective=scaled_back(ev.value, problem.weight_scale, "objective"), solver=solver, message=message,
     )
     if res.status == "iteration_limit":
         warn_caller(message, IterationLimitWarning)
@@ -563,21 +579,23 @@ def _package(problem, loss, res, ev, V, z, Xa, off, names, classes, positive_cla
     beta = theta[int(intercept):].copy()
     se = np.sqrt(np.clip(np.diag(V), 0.0, None))
     eta = ev.eta
-    loglik = loss.log_likelihood(eta)
-    dev = loss.deviance(eta)
-    n_obs = float(loss.row_weights().sum())
-    f0, eta0 = null_objective(loss, n, off, intercept, firth, tol, max_iter)
-    null_dev = loss.deviance(eta0)
+    scale = problem.weight_scale  # the loss holds the caller's weights / scale (lintools._scaling)
+    loglik = scaled_back(loss.log_likelihood(eta), scale, "log-likelihood")
+    dev = scaled_back(loss.deviance(eta), scale, "deviance")
+    n_obs = scaled_back(float(loss.row_weights().sum()), scale, "number of observations (sum of weights times trials)")
+    objective = ev.value * scale
+    f0, eta0 = null_objective(loss, n, off, intercept, firth, tol, max_iter, scale)
+    null_dev = scaled_back(loss.deviance(eta0), scale, "null deviance")
     lr_df = p
     if firth:
-        lr = 2.0 * (f0 - ev.value)
+        lr = 2.0 * (f0 - objective)
     elif lam == 0:
         lr = null_dev - dev
     else:
         lr = float("nan")
     lr = max(lr, 0.0) if math.isfinite(lr) else lr
     conv = convergence_record(res, ev, problem, z, solver)
-    bounds = profile_bounds(problem, z, ev.value, se, level, tol, max_iter) if profile else None
+    bounds = profile_bounds(problem, z, se, level, tol, max_iter) if profile else None
     return LogisticFit(
         coefficients=beta,
         intercept=b if intercept else 0.0,
@@ -596,7 +614,7 @@ def _package(problem, loss, res, ev, V, z, Xa, off, names, classes, positive_cla
         null_deviance=null_dev,
         **likelihood_fields(loglik, k, n_obs, lr, lr_df),
         firth=bool(firth),
-        penalised_log_likelihood=loss.log_binomial_total() - ev.value,
+        penalised_log_likelihood=loss.log_binomial_total() * scale - objective,
         profile_intervals=bounds,
         profile_level=level if profile else float("nan"),
         grouped=bool(grouped),
@@ -620,14 +638,14 @@ def score_and_information(fit: LogisticFit, X: Any, y: Any, weights: Any, coef: 
     yy, _, classes, _ = _response(y, None, fit.positive_class, n)
     if tuple(classes) != tuple(fit.classes):
         raise InputError(f"y has the labels {classes} but the fit was made on {fit.classes}; pass the same labels")
-    w = as_weights(weights, n)
+    w, scale = scaled_case_weights(as_weights(weights, n))
     loss = BinomialLoss(yy, None, w)
     coef = np.asarray(coef, dtype=float)
     eta = Xa @ coef
     if fit.with_intercept:
         if free_intercept:
             P = LinearModelProblem(np.zeros((n, 0)), loss, intercept=True, offset=eta)
-            b = float(P.to_original(newton(P, tol=1e-10, max_iter=100).z)[0])
+            b = float(P.to_original(newton(P, tol=1e-13, max_iter=100).z)[0])
         eta = eta + float(b)
         A = np.column_stack([np.ones(n), Xa])
         theta = np.concatenate([[float(b)], coef])
@@ -637,6 +655,6 @@ def score_and_information(fit: LogisticFit, X: Any, y: Any, weights: Any, coef: 
     pen = np.full(theta.size, fit.l2)
     if fit.with_intercept:
         pen[0] = 0.0
-    U = -(A.T @ r + pen * theta)
-    info = A.T @ (A * W[:, None]) + np.diag(pen)
+    U = -((A.T @ r) * scale + pen * theta)  # the loss holds the weights / scale
+    info = (A.T @ (A * W[:, None])) * scale + np.diag(pen)
     return U, info

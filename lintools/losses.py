@@ -49,6 +49,7 @@ import numpy as np
 
 from ._errors import InputError
 from ._threads import ELEMENT_CHUNK, add_up, for_rows
+from ._scaling import case_weight_scale
 from ._validate import as_labels, as_matrix, as_weights
 
 __all__ = ["BinomialLoss", "log1pexp", "sigmoid", "unpenalised_gradient"]
@@ -239,12 +240,13 @@ class BinomialLoss:
 
         The optimum is :math:`b = \mathrm{logit}(S / T)` with :math:`S = \sum w y` and
         :math:`T = \sum w m`, and the value there is :math:`S\,\mathrm{softplus}(-b) +
-        (T - S)\,\mathrm{softplus}(b)`.  None when the gradient :math:`T\mu(b) - S` at the
-        (clamped) rate is above ``tol`` (a rate within 1e-12 of 0 or 1); then solve."""
+        (T - S)\,\mathrm{softplus}(b)`.  None when the gradient per unit weight
+        :math:`\mu(b) - S / T` at the (clamped) rate is above ``tol`` (a rate within 1e-12 of
+        0 or 1; the stopping rule of :mod:`lintools.solvers`); then solve."""
         b = self.start_intercept()
         S, T = float(self._wy.sum()), float(self._wm.sum())
         mu = 1.0 / (1.0 + math.exp(-b))
-        if not abs(T * mu - S) <= tol:
+        if not abs(T * mu - S) <= tol * T:
             return None
         f = S * float(log1pexp(np.float64(-b))) + (T - S) * float(log1pexp(np.float64(b)))
         eta = np.full(n, b)
@@ -392,13 +394,15 @@ def unpenalised_gradient(
     n = Xa.shape[0]
     classes, codes = as_labels(y, "y", n)
     w = as_weights(weights, n)
+    scale = case_weight_scale(w)  # products of w / scale cannot underflow; the sums are scaled back
+    w = w / scale
     b = np.asarray(beta, dtype=float)
     if model == "logistic":
         if len(classes) != 2:
             raise InputError(f"y has {len(classes)} distinct labels; a logistic model needs exactly two")
         eta = Xa @ b + (0.0 if intercept is None else float(intercept))
         g = BinomialLoss(codes.astype(float), weights=w).gradient(eta)
-        return Xa.T @ g, (float(g.sum()) if intercept is not None else 0.0)
+        return (Xa.T @ g) * scale, (float(g.sum()) * scale if intercept is not None else 0.0)
     from ._multinomial import MultinomialLoss
 
     K = len(classes)
@@ -407,4 +411,4 @@ def unpenalised_gradient(
                          f"({Xa.shape[1]}, {K}): one column per class in sorted order")
     a = np.zeros(K) if intercept is None else np.asarray(intercept, dtype=float).reshape(K)
     G = MultinomialLoss(codes, K, w, reference=False).gradient(Xa @ b + a)
-    return Xa.T @ G, (G.sum(axis=0) if intercept is not None else np.zeros(K))
+    return (Xa.T @ G) * scale, (G.sum(axis=0) * scale if intercept is not None else np.zeros(K))

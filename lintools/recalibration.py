@@ -15,6 +15,7 @@ import numpy as np
 from ._errors import InputError
 from ._outcomes import binary_outcome, case_weights, finite_scores, sigmoid, vector_in
 from ._temperature import TemperatureMap, temperature_scaling
+from ._scaling import case_weight_scale
 
 __all__ = [
     "PlattMap",
@@ -73,7 +74,12 @@ def platt_scaling(
     classes.  ``smoothing=False`` uses :math:`t_i = y_i` (plain logistic regression on
     the score; may meet separation).  The fractional targets are fitted with
     :func:`lintools.logistic` by giving each case a positive row of weight
-    :math:`w_i t_i` and a negative row of weight :math:`w_i (1 - t_i)`.
+    :math:`w_i t_i` and a negative row of weight :math:`w_i (1 - t_i)`; that fit's stopping
+    rule (gradient per unit of total weight, standardised score column) and its scale
+    handling apply, so with ``smoothing=False`` multiplying every weight by a constant
+    changes neither the map nor the verdict.  With smoothing the targets count the
+    weighted cases, so they, and the map, change with the weights' scale as the formula
+    says.
 
     Parameters
     ----------
@@ -200,8 +206,10 @@ def isotonic_calibration(
     the 0/1 outcome.  Tied inputs are first merged into one point carrying their total
     weight and weighted mean outcome, then PAV pools adjacent violators (Ayer et al.
     1955; Barlow et al. 1972); the solution is also the monotone maximum-likelihood
-    estimate of the event probability.  Rows of zero weight are ignored.  The input
-    ``p`` may be probabilities or any real scores.
+    estimate of the event probability.  Rows of zero weight are ignored; the weights are
+    divided by the largest one first, so multiplying all of them by any constant leaves
+    the fitted values unchanged (to the rounding of the caller's products).  The input ``p`` may be probabilities or any real
+    scores.
 
     ``apply`` interpolates linearly between the fitted points and clips outside them.
 
@@ -237,6 +245,7 @@ def isotonic_calibration(
     x = finite_scores(p, "p", o.shape[0])
     w = case_weights(weights, o.shape[0])
     live = w > 0
+    w = w / case_weight_scale(w)  # no sum overflows or underflows; constant weights become 1
     points, index = np.unique(x[live], return_inverse=True)
     wx = np.bincount(index, weights=w[live], minlength=points.shape[0])
     mean = np.bincount(index, weights=(w * o)[live], minlength=points.shape[0]) / wx

@@ -31,6 +31,7 @@ import numpy as np
 from ._errors import InputError, LintoolsError, SeparationError
 from ._multinomial import ROWS, MultinomialLoss
 from ._records import SoftmaxFit
+from ._scaling import caller_covariance, check_l2_scale, scaled_back, scaled_case_weights
 from ._threads import with_row_threads
 from ._validate import as_matrix, as_offset, as_weights, check_names, is_one_of
 from .inference import likelihood_fields
@@ -161,7 +162,7 @@ def softmax(
     l2: float = 0.0,
     reference: Any = "first",
     solver: str = "newton",
-    tol: float = 1e-10,
+    tol: float = 1e-13,
     max_iter: int = 100,
     names: Sequence[str] | None = None,
     on_iteration: Callable[[IterationRecord], Any] | None = None,
@@ -195,10 +196,11 @@ def softmax(
         As for :func:`lintools.logistic`; first-order solvers usually need a larger
         ``max_iter``.
     tol : float
-        Stop when the max-abs gradient of the objective, with respect to the intercept
-        and the coefficients of the standardised columns (slope entries divided by the
-        column's weighted standard deviation, so the rule does not depend on units), is
-        <= tol.
+        Stop when the max-abs gradient of the objective per unit of total case weight,
+        with respect to the intercepts and the coefficients of the standardised, centred
+        columns, is <= tol (the rule and the promise of :func:`lintools.logistic`: to
+        first order the standardised coefficients are within ``||Hbar^{-1}||_inf * tol``
+        of the exact optimum).  Default 1e-13.
     max_iter : int
         Iteration limit; reaching it gives ``converged=False`` and an
         :class:`lintools.IterationLimitWarning`.
@@ -235,6 +237,9 @@ def softmax(
                          "check the target column or the rows selected")
     intercept, lam, tol, max_iter = check_fit_settings(intercept, l2, tol, max_iter, on_iteration, solver)
     ref = _reference_index(reference, tuple(classes), lam)
+    # the weights divided by the largest one (see lintools._scaling): outputs are scaled back
+    w, scale = scaled_case_weights(w)
+    check_l2_scale(lam, scale)
     totals = np.bincount(codes, weights=w, minlength=K)
     if np.any(totals <= 0):
         k = int(np.argmin(totals > 0))
@@ -259,7 +264,7 @@ def softmax(
         off = off[:, 1:] - off[:, :1] if ref is not None else off
         if off.shape[1] == 1:
             off = off[:, 0]  # one output (two classes, a reference): the problem's eta is (n,)
-    problem = checked_problem(Xa, found, loss, intercept=intercept, l2=lam, offset=off)
+    problem = checked_problem(Xa, found, loss, intercept=intercept, l2=lam, offset=off, weight_scale=scale)
     if intercept and p and lam == 0:
         _constant_columns(Xa, w > 0, names_t, problem.spread, problem.c)
     target = problem
@@ -349,8 +354,9 @@ def _package(problem, loss, ev, Vz, z, order, ref, classes, names, lam, intercep
              tol, max_iter, y) -> SoftmaxFit:
     n, p = problem.X.shape
     K, Kf, p1 = len(classes), problem.K, problem.p1
-    T = problem.theta_from_z_matrix()
-    V = T @ Vz @ T.T
+    scale = problem.weight_scale  # the loss holds the caller's weights / scale (lintools._scaling)
+    V = caller_covariance(problem.theta_from_z_matrix(), Vz, scale, _internal_terms(names, classes, order, ref, intercept),
+                          np.repeat(np.concatenate([np.full(int(intercept), np.nan), problem.s]), Kf))
     theta = problem.to_original(z).reshape(p1, Kf)  # internal free columns
     se_int = np.sqrt(np.clip(np.diag(V), 0.0, None)).reshape(p1, Kf)
     full_t = np.zeros((p1, K))
@@ -367,14 +373,13 @@ def _package(problem, loss, ev, Vz, z, order, ref, classes, names, lam, intercep
     internal_col = {int(order[j]): j - first for j in range(first, K)}
     perm = [t * Kf + internal_col[k] for k in free_sorted for t in range(p1)]
     Vc = V[np.ix_(perm, perm)]
-    Vc = 0.5 * (Vc + Vc.T)
     b = full_t[0] if intercept else np.zeros(K)
     B = full_t[int(intercept):]
     eta = ev.eta
-    loglik = loss.log_likelihood(eta)
-    dev = loss.deviance(eta)
-    n_obs = float(loss.row_weights().sum())
-    null_dev = _null_deviance(loss, n, off, intercept, tol, max_iter)
+    loglik = scaled_back(loss.log_likelihood(eta), scale, "log-likelihood")
+    dev = scaled_back(loss.deviance(eta), scale, "deviance")
+    n_obs = scaled_back(float(loss.row_weights().sum()), scale, "number of observations (sum of weights)")
+    null_dev = scaled_back(_null_deviance(loss, n, off, intercept, tol, max_iter), scale, "null deviance")
     k_free = p1 * Kf - (1 if (ref is None and intercept) else 0)
     lr_df = p * (K - 1)
     lr = max(null_dev - dev, 0.0) if lam == 0 else float("nan")
@@ -398,6 +403,13 @@ def _package(problem, loss, ev, Vz, z, order, ref, classes, names, lam, intercep
         has_offset=has_offset,
         target=_target_name(y),
     )
+
+
+def _internal_terms(names: tuple, classes: tuple, order: np.ndarray, ref: int | None, intercept: bool) -> list[str]:
+    """Names of the free parameters in the problem's order (term-major, internal classes)."""
+    first = 0 if ref is None else 1
+    terms = (("(intercept)",) if intercept else ()) + tuple(names)
+    return [f"'{t}' for class {classes[int(order[j])]!r}" for t in terms for j in range(first, len(classes))]
 
 
 def _null_deviance(loss: MultinomialLoss, n: int, off: np.ndarray | None, intercept: bool, tol: float,
@@ -436,7 +448,7 @@ def score_and_information(fit: SoftmaxFit, X: Any, y: Any, weights: Any, coef: A
     classes, codes = _labels(y, n)
     if tuple(classes) != tuple(fit.classes):
         raise InputError(f"y has the classes {classes} but the fit was made on {fit.classes}; pass the same labels")
-    w = as_weights(weights, n)
+    w, scale = scaled_case_weights(as_weights(weights, n))  # the sums are scaled back below
     theta, _ = fit._free_parameters(coef, b)
     K = len(classes)
     cols = fit._free_columns()
@@ -459,7 +471,7 @@ def score_and_information(fit: SoftmaxFit, X: Any, y: Any, weights: Any, coef: A
             if ref is None:
                 E = _intercept_subspace(P)
                 base, start = AffineProblem(P, np.zeros(P.size), E), E.T @ P.start()
-            r = newton(base, tol=1e-11, max_iter=100, start=start)
+            r = newton(base, tol=1e-13, max_iter=100, start=start)
             zb = base.embed(r.z) if base is not P else r.z
             Tint = Tint.copy()
             Tint[0] = P.to_original(zb)
@@ -491,9 +503,10 @@ def score_and_information(fit: SoftmaxFit, X: Any, y: Any, weights: Any, coef: A
                 info[:, k, :, m] += G
                 if m != k:
                     info[:, m, :, k] += G.T
+    info *= scale
     for k in range(Kf):
         info[:, k, :, k] += np.diag(pen)
-    U = -(AR + pen[:, None] * Tint)  # (per, Kf)
+    U = -(AR * scale + pen[:, None] * Tint)  # (per, Kf)
     # internal columns -> classes order, class-major
     internal_col = {int(order[j]): j - first for j in range(first, K)}
     sel = [internal_col[k] for k in cols]

@@ -6,7 +6,10 @@ Both read ``X`` once, in cache-sized row blocks, and never copy it whole.
   sums :math:`\sum_i v_i x_{ij}` and :math:`\sum_i v_i x_{ij}^2`; a column whose spread is
   small against its mean (where that difference would cancel) is redone exactly, around
   its mean.  A non-finite sum (a NaN or infinity in ``X``, or an overflow) is reported, so
-  the caller can name the entry.
+  the caller can name the entry.  Columns whose sums overflow, or whose squares
+  underflow (entries below about 1e-90), are redone on a power-of-two scale of their own,
+  so a column multiplied by 1e-200 or 1e200 gets the moments of the unscaled one times
+  that factor.
 * :func:`weighted_gram` gives :math:`A' W A` for the standardised rows
   :math:`a_i = (1, (x_i - c)/s)` without forming ``x_i - c``: it accumulates the
   uncentred products of :math:`\sqrt{w_i}\,x_i` (one scaling and one symmetric BLAS
@@ -38,6 +41,9 @@ __all__ = ["column_moments", "weighted_gram", "uncentred_ok", "UNCENTRED_LIMIT"]
 UNCENTRED_LIMIT = 1.0
 #: A column whose uncentred spread is below this times its |mean| is recomputed around its mean.
 _MOMENT_CANCELLATION = 1e-3
+#: A column whose weighted mean square is below this gets its moments on its own power-of-two
+#: scale (its squares would underflow, or lose digits as subnormal numbers).
+_TINY_SQUARES = 2.0**-600
 #: float32 rows are scaled before the conversion unless the raw values stay in this range.
 _SINGLE_RANGE = 1e15
 
@@ -75,11 +81,18 @@ def column_moments(X: np.ndarray, v: np.ndarray, rows: int, centre: bool) -> tup
         if not np.all(np.isfinite(X)):
             return np.zeros(p), np.ones(p), False
         return _scaled_moments(X, v, rows, centre)
-    with np.errstate(over="ignore", invalid="ignore"):
+    with np.errstate(over="ignore", invalid="ignore", under="ignore"):
         mean = sums / total
         c = mean if centre else np.zeros(p)
         ss = squares / total - c * c
+    # columns of tiny entries (whose squares underflow or lose digits as subnormals): redone
+    # on a power-of-two scale of their own
+    tiny = np.flatnonzero(~(squares > _TINY_SQUARES * total))
+    if tiny.size:
+        ct, st, _ = _scaled_moments(X[:, tiny], v, rows, centre)
+        c[tiny], ss[tiny] = ct, st * st
     redo = np.flatnonzero(~(ss > (_MOMENT_CANCELLATION * mean) ** 2))
+    redo = np.setdiff1d(redo, tiny)
     if redo.size:
         around = mean[redo] if centre else np.zeros(redo.size)
         squares_r, shift = _centred_squares(X[:, redo], v, around, rows)
@@ -87,7 +100,10 @@ def column_moments(X: np.ndarray, v: np.ndarray, rows: int, centre: bool) -> tup
             c[redo] = around + shift / total
             squares_r = squares_r - shift * shift / total
         ss[redo] = squares_r / total
-    return c, np.sqrt(np.maximum(ss, 0.0)), True
+    s = np.sqrt(np.maximum(ss, 0.0))
+    if tiny.size:
+        s[tiny] = st  # its square may underflow
+    return c, s, True
 
 
 def _scaled_moments(X: np.ndarray, v: np.ndarray, rows: int, centre: bool) -> tuple[np.ndarray, np.ndarray, bool]:

@@ -13,9 +13,11 @@ __all__ = ["AffineProblem", "RestrictedProblem"]
 class AffineProblem:
     """The problem restricted to an affine subspace ``z = z0 + E u`` of its coordinates.
 
-    The gradient in ``u`` is ``E' grad``; the stopping rule uses the entries ``keep`` of the
-    original gradient (all of them when ``keep`` is None), and :meth:`to_original` returns
-    the same entries of the caller's parameters.  Two uses: holding parameters fixed
+    The gradient in ``u`` is ``E' grad``.  The stopping rule is the base problem's (the
+    gradient per unit weight in its standardised, centred coordinates) when ``keep`` is
+    None; with ``keep`` it uses those entries of the caller's gradient, per standardised
+    column and unit weight (``LinearModelProblem.unit``), since the other parameters are
+    held.  :meth:`to_original` returns the same entries of the caller's parameters.  Two uses: holding parameters fixed
     (:class:`RestrictedProblem`, for profile likelihoods) and removing a direction along
     which the objective is exactly constant (the shared shift of the intercepts of a
     symmetric softmax model), which makes the Hessian non-singular.
@@ -25,6 +27,7 @@ class AffineProblem:
                  keep: np.ndarray | None = None) -> None:
         self.base, self.z0, self.E, self.keep = problem, z0, E, keep
         self.size = E.shape[1]
+        self.weight_total, self.weight_scale = problem.weight_total, problem.weight_scale
 
     def embed(self, u: np.ndarray) -> np.ndarray:
         return self.z0 + self.E @ u
@@ -37,8 +40,8 @@ class AffineProblem:
 
     def evaluate(self, u: np.ndarray) -> Evaluation:
         ev = self.base.evaluate(self.embed(u))
-        unit = None if ev.unit is None else self._kept(ev.unit)
-        return Evaluation(lambda: ev.value, self.E.T @ ev.gradient, self._kept(ev.original_gradient), ev.eta, unit)
+        measure = ev.measure if self.keep is None else (ev.original_gradient * self.base.unit)[self.keep]
+        return Evaluation(lambda: ev.value, self.E.T @ ev.gradient, self._kept(ev.original_gradient), ev.eta, measure)
 
     def hessian(self, u: np.ndarray) -> np.ndarray:
         return self.base.hessian(self.embed(u), E=self.E)
@@ -57,7 +60,8 @@ class RestrictedProblem(AffineProblem):
     """A problem with some caller's-coordinate parameters held at fixed values.
 
     The free parameters ``u`` enter as ``z = z0 + E u`` (an affine map); the gradient is
-    ``E' grad`` and the stopping rule uses the free entries of the original gradient.
+    ``E' grad`` and the stopping rule uses the free entries of the caller's gradient per
+    standardised column and unit weight.
     Used for profile likelihoods (each parameter in turn held fixed).
     """
 

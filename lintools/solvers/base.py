@@ -11,7 +11,8 @@ from ..linalg import solve_lower, solve_upper
 
 __all__ = ["EPS", "PIVOT_TOLERANCE", "IterationRecord", "SolverResult", "Evaluation", "finish",
            "SingularMatrixError", "NonFiniteDesign", "cholesky", "solve_spd", "solve_factored", "inverse_spd",
-           "converged_message", "limit_message", "stalled_message", "stop_before_step", "report_step"]
+           "converged_message", "limit_message", "stalled_message", "stop_before_step", "report_step",
+           "MEASURED"]
 
 EPS = float(np.finfo(float).eps)
 #: A Jacobi-scaled Cholesky pivot at or below this counts as singular.
@@ -27,9 +28,11 @@ class IterationRecord:
     iteration : int
         Iterations completed so far (1 after the first).
     objective : float
-        Objective at the new point.
+        Objective at the new point (the caller's objective, with the caller's weights).
     gradient_norm : float
-        Max-abs gradient of the objective (caller's coordinates) at the new point.
+        The stopping rule's quantity at the new point (see :class:`Evaluation`): the
+        max-abs gradient per unit of total case weight, with respect to the intercept and
+        the coefficients of the standardised, centred columns.
     step : float
         Max-abs change of the parameters (caller's coordinates) in this iteration.
     """
@@ -45,7 +48,9 @@ class SolverResult:
     """How a solver ended: the answer ``z`` (solver coordinates) and its account.
 
     ``status`` is one of ``"converged"``, ``"iteration_limit"``, ``"stalled"``,
-    ``"singular"``, ``"diverging"``.
+    ``"singular"``, ``"diverging"``.  ``objective`` is the caller's objective (the
+    problem's value times its ``weight_scale``); ``gradient_norm`` the stopping rule's
+    quantity.
     """
 
     z: np.ndarray
@@ -62,12 +67,23 @@ class SolverResult:
 
 @dataclass(frozen=True)
 class Evaluation:
-    """Objective, gradient in solver coordinates, gradient in the caller's, and eta.
+    r"""Objective, gradient in solver coordinates, gradient in the caller's, and eta.
 
-    ``unit`` (optional) converts the caller's gradient into the gradient with respect to
-    the intercept and the coefficients of the standardised columns ``x_j / s_j``
-    (``unit_j = 1 / s_j``); ``gradient_norm``, the quantity of the stopping rule, is the
-    max-abs of that product, which does not change when a column is rescaled.
+    ``measure`` is the vector of the stopping rule: the gradient of the objective **per
+    unit of total case weight** with respect to the intercept and the coefficients of the
+    standardised, centred columns ``(x_j - c_j) / s_j`` (``c_j``, ``s_j`` the weighted mean
+    and standard deviation; ``c_j = 0`` without an intercept), that is
+    :math:`\nabla_z F / W` with ``z`` the problem's standardised coordinates and ``W``
+    the total case weight.  ``gradient_norm`` (what ``tol`` is compared with) is its
+    max-abs; when ``measure`` is None it is the max-abs of ``gradient``.
+
+    Multiplying every weight by ``c`` multiplies ``F`` and ``W`` by ``c``; multiplying a
+    column by ``c`` multiplies its ``s_j`` and divides its coefficient by ``c``; adding a
+    constant to a column moves only ``c_j`` and the intercept: none of them changes
+    ``measure``.  Its size needs no units either: with ``Hbar`` the information per unit
+    weight in these coordinates, the distance of ``z`` from the optimum is, to first
+    order, ``Hbar^{-1} measure``, so ``gradient_norm <= tol`` puts every standardised
+    coefficient within ``||Hbar^{-1}||_inf * tol`` of it.
 
     ``objective`` is the value, or a function of no arguments that gives it: the value is
     then formed only when first asked for (``value``), since a Newton iteration that
@@ -78,7 +94,7 @@ class Evaluation:
     gradient: np.ndarray
     original_gradient: np.ndarray
     eta: Any
-    unit: np.ndarray | None = None
+    measure: np.ndarray | None = None
     #: False when ``eta`` was carried forward from a line search (``eta0 + t X d``) rather
     #: than formed afresh as ``X beta + b``; solvers re-evaluate before they report
     fresh: bool = True
@@ -94,21 +110,21 @@ class Evaluation:
 
     @property
     def gradient_norm(self) -> float:
-        g = self.original_gradient if self.unit is None else self.original_gradient * self.unit
+        g = self.gradient if self.measure is None else self.measure
         return float(np.max(np.abs(g))) if g.size else 0.0
 
 
 def finish(name: str, z: np.ndarray, ev: "Evaluation", it: int, status: str, message: str,
-           problem: Any = None) -> SolverResult:
+           problem: Any) -> SolverResult:
     """The :class:`SolverResult` of a solver that stops at ``z`` with evaluation ``ev``.
 
-    With ``problem`` given, an evaluation made on a carried-forward linear predictor is
-    formed afresh first: the reported one always is.
+    An evaluation made on a carried-forward linear predictor is formed afresh first: the
+    reported one always is.  The objective is reported in the caller's weights.
     """
-    if problem is not None and not ev.fresh:
+    if not ev.fresh:
         ev = problem.evaluate(z, fresh=True)
     return SolverResult(
-        z=z, converged=status == "converged", iterations=it, objective=ev.value,
+        z=z, converged=status == "converged", iterations=it, objective=ev.value * problem.weight_scale,
         gradient_norm=ev.gradient_norm, status=status, message=message, solver=name,
         evaluation=ev,
     )
@@ -164,14 +180,18 @@ def inverse_spd(H: np.ndarray) -> np.ndarray:
 
 
 # ---- what the three solvers share in their loops ----------------------------------------
+#: What ``gradient_norm`` measures, as the messages say it.
+MEASURED = "max |gradient| per unit case weight (intercept, standardised centred columns)"
+
+
 def converged_message(name: str, it: int, gnorm: float, tol: float) -> str:
-    return f"{name}: converged in {it} iteration(s); max |gradient| {gnorm:.3g} <= tol {tol:.3g}"
+    return f"{name}: converged in {it} iteration(s); {MEASURED} {gnorm:.3g} <= tol {tol:.3g}"
 
 
 def limit_message(name: str, it: int, gnorm: float, tol: float) -> str:
     advice = "raise max_iter" if name == "newton" else "raise max_iter or choose solver='newton'"
     return (
-        f"{name}: stopped at the iteration limit ({it}) with max |gradient| {gnorm:.3g} > tol "
+        f"{name}: stopped at the iteration limit ({it}) with {MEASURED} {gnorm:.3g} > tol "
         f"{tol:.3g}; NOT converged: {advice}"
     )
 
@@ -179,9 +199,9 @@ def limit_message(name: str, it: int, gnorm: float, tol: float) -> str:
 def stalled_message(name: str, it: int, gnorm: float, tol: float) -> str:
     return (
         f"{name}: stalled after {it} iteration(s): the objective no longer decreases beyond "
-        f"rounding while max |gradient| is {gnorm:.3g} > tol {tol:.3g}; NOT converged: tol is "
-        "probably below what float64 rounding allows for this problem (loosen tol, or "
-        "rescale the columns)"
+        f"rounding while {MEASURED} is {gnorm:.3g} > tol {tol:.3g}; NOT converged: tol is "
+        "probably below what float64 rounding allows for this problem (loosen tol; nearly "
+        "collinear columns raise that level)"
     )
 
 
@@ -203,7 +223,7 @@ def report_step(problem: Any, it: int, z_old: np.ndarray, z: np.ndarray, ev: Eva
     converged); returns the monitor's alarm, if it raised one."""
     if on_iteration is not None:
         step = float(np.max(np.abs(problem.to_original(z) - problem.to_original(z_old)))) if z.size else 0.0
-        on_iteration(IterationRecord(it, ev.value, ev.gradient_norm, step))
+        on_iteration(IterationRecord(it, ev.value * problem.weight_scale, ev.gradient_norm, step))
     if monitor is not None and ev.gradient_norm > tol:
         return monitor(z, ev) or None
     return None

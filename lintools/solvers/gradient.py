@@ -8,8 +8,9 @@ again.  The momentum :math:`y_{k+1} = x_{k+1} + \frac{t_k - 1}{t_{k+1}}(x_{k+1} 
 :math:`t_{k+1} = (1 + \sqrt{1 + 4 t_k^2})/2`, is reset (:math:`t = 1`) whenever
 :math:`\nabla F(y_k)'(x_{k+1} - x_k) > 0` (the gradient restart scheme of O'Donoghue &
 Candes 2015), which restores linear convergence on
-strongly convex problems.  The returned answer is the last point whose gradient was
-evaluated; the stopping rule is on its max-abs gradient (caller's coordinates).
+strongly convex problems.  :math:`L` starts at the total case weight :math:`W`.  The
+returned answer is the last point whose gradient was evaluated; the stopping rule is on
+its gradient per unit case weight (see :class:`lintools.solvers.Evaluation`).
 
 References
 ----------
@@ -52,12 +53,14 @@ def accelerated_gradient(
     name = "gradient"
     x = problem.start() if start is None else np.array(start, dtype=float)
     y, ev = x, problem.evaluate(x)
-    L, tk = 1.0, 1.0
+    # the Lipschitz constant starts at the total case weight W (the Hessian per unit weight
+    # is O(1) in standardised coordinates): the path does not depend on the weights' scale
+    L, tk = float(problem.weight_total), 1.0
     it = stall = 0
     best_g = ev.gradient_norm
 
     def done(status, message):
-        return finish(name, y, ev, it, status, message)
+        return finish(name, y, ev, it, status, message, problem)
 
     while True:
         gnorm = ev.gradient_norm

@@ -14,6 +14,10 @@ found by bracketing and a safeguarded cubic-interpolation zoom (Algorithms 3.5 a
 the change :math:`F(z + t d) - F(z)` is computed directly rather than as a difference of
 rounded values (in the spirit of Hager & Zhang 2005), so the search still works where
 decreases are far below ``eps |F|``.  Trial steps reuse ``X d``: no pass over the design.
+The first step (and a restart) is :math:`-\nabla F / \max(W, \lVert\nabla F\rVert_\infty)`
+with ``W`` the total case weight, so the path does not depend on the scale of the
+weights.  It stops when the gradient per unit case weight (see
+:class:`lintools.solvers.Evaluation`) has max-abs at most ``tol``.
 
 References
 ----------
@@ -142,7 +146,15 @@ def lbfgs(
     best = ev.gradient_norm
 
     def done(status, message):
-        return finish(name, z, ev, it, status, message)
+        return finish(name, z, ev, it, status, message, problem)
+
+    # a first (or restarted) steepest-descent step of -g / W (the Hessian per unit case
+    # weight is O(1) in the standardised coordinates), or of unit length when that is
+    # longer: the same path whatever the scale of the weights
+    total = float(problem.weight_total)
+
+    def first_step(g: np.ndarray) -> float:
+        return 1.0 / max(total, float(np.max(np.abs(g))))
 
     while True:
         gnorm = ev.gradient_norm
@@ -153,18 +165,16 @@ def lbfgs(
         if S:
             d, t0 = _two_loop(g, S, Y), 1.0
         else:
-            d = -g
-            t0 = 1.0 / max(1.0, float(np.max(np.abs(g))))
+            d, t0 = -g, first_step(g)
         slope = float(g @ d)
         if not slope < 0:  # memory gone bad: restart with steepest descent
             S.clear(), Y.clear()
-            d, slope = -g, -float(g @ g)
-            t0 = 1.0 / max(1.0, float(np.max(np.abs(g))))
+            d, slope, t0 = -g, -float(g @ g), first_step(g)
         t, ft, ok = wolfe_search(problem.line(z, d), slope, t0)
         if not ok and S:
             S.clear(), Y.clear()
             d, slope = -g, -float(g @ g)
-            t, ft, ok = wolfe_search(problem.line(z, d), slope, 1.0 / max(1.0, float(np.max(np.abs(g)))))
+            t, ft, ok = wolfe_search(problem.line(z, d), slope, first_step(g))
         if not ok:
             return done("stalled", stalled_message(name, it, gnorm, tol))
         z_new = z + t * d

@@ -7,7 +7,9 @@ halves the step until the Armijo condition
 :math:`F(z + t d) - F(z) \le 10^{-4}\, t\, \nabla F' d` holds; the change on the left is
 computed directly (not as a difference of two rounded objective values), so the test
 stays meaningful down to the rounding level of the gradient.  It stops when the max-abs
-gradient in the caller's coordinates is at most ``tol``.
+gradient per unit case weight in the standardised, centred coordinates (the rule of
+:mod:`lintools.solvers`) is at most ``tol``.  Its steps, tests and stopping rule are
+invariant to a common factor on the weights.
 
 For large problems (see ``LinearModelProblem.sketch_hessian``) the first iterations use
 a Hessian from a fixed row subsample (Newton sketch, Pilanci & Wainwright 2017) until the

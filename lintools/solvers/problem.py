@@ -40,6 +40,7 @@ from .._threads import ELEMENT_CHUNK, add_up, for_rows
 from ._kernels import column_moments, uncentred_ok, weighted_gram
 from ._kernels_multi import PairWeights, multi_output_information
 from ._samples import sample_rows, take_rows
+from ._shifted import ShiftedColumns
 from .base import EPS, Evaluation, NonFiniteDesign, SingularMatrixError, cholesky
 
 __all__ = ["LinearModelProblem"]
@@ -75,6 +76,9 @@ WARM_ETA_LIMIT = 30.0
 #: for the Jacobi-scaled Hessian ``Hs`` (``SINGLE_LEVEL``: the rounding level of one scaled
 #: entry of a float32 product, with room): the relative error of the step stays below 1e-2.
 SINGLE_LEVEL = 64 * float(np.finfo(np.float32).eps)
+#: Columns whose weighted spread lies outside this range are standardised block by block
+#: before any product of two columns (whose entries would overflow or underflow).
+SCALE_RANGE = (2.0**-100, 2.0**100)
 
 
 class _Line:
@@ -155,6 +159,14 @@ class LinearModelProblem:
         Firth's penalty ``-1/2 log det I`` instead of the ridge (``l2`` must be 0).
     centre : bool
         Centre the columns at their weighted means (with an intercept; default True).
+    weight_scale : float
+        The factor ``s`` by which the caller divided the loss's case weights (their
+        largest, see :mod:`lintools._scaling`).  The problem then minimises ``F / s``:
+        the ridge enters as ``l2 / s``, Firth's penalty as
+        ``-1/(2 s) log det I`` with ``I`` the information in the caller's weights; its
+        values are ``F / s``, its gradients and Hessians those of ``F / s``.  The solvers
+        report objectives times ``s`` (the caller's); the fronts scale every
+        weight-proportional output back.
     """
 
     def __init__(
@@ -167,9 +179,11 @@ class LinearModelProblem:
         offset: np.ndarray | None = None,
         jeffreys: bool = False,
         centre: bool = True,
+        weight_scale: float = 1.0,
     ) -> None:
         self.X, self.loss, self.intercept = X, loss, bool(intercept)
-        self.l2, self.offset, self.jeffreys = float(l2), offset, bool(jeffreys)
+        self.weight_scale = float(weight_scale)
+        self.l2, self.offset, self.jeffreys = float(l2) / self.weight_scale, offset, bool(jeffreys)
         if self.jeffreys and (self.l2 != 0 or loss.outputs != 1):
             raise ValueError("the Jeffreys (Firth) penalty is implemented for one output and l2 = 0")
         n, p = X.shape
@@ -182,6 +196,12 @@ class LinearModelProblem:
         self.block_rows = max(1024, _PRODUCT_BYTES // (8 * max(p, 1)))  # blocks of X' r
         v = loss.row_weights()
         total = float(v.sum())
+        #: total case weight W (of the loss's weights): the stopping rule is per unit of it.
+        #: With Firth's penalty W + k/2 (k parameters): the penalty's gradient sums hat values
+        #: whose total is k, so it weighs like k/2 observations whatever the weights' scale
+        #: (case weights of 1e-120 leave the penalty to decide the answer, and a rule per
+        #: unit of W alone would ask for the penalty's gradient below its rounding)
+        self.weight_total = total + (0.5 * self.size / self.weight_scale if self.jeffreys else 0.0)
         c, s, finite = column_moments(X, v, self.rows, self.intercept and centre)
         if not finite:
             raise NonFiniteDesign("the design X has a NaN or infinite entry")
@@ -190,9 +210,16 @@ class LinearModelProblem:
         self.spread = s
         # a column whose spread is rounding noise around its centre is treated as constant
         self.s = np.where((s > 1e-13 * np.abs(self.c)) & (s > 0) & np.isfinite(s), s, 1.0)
-        self.log_det_T = -self.K * float(np.sum(np.log(self.s)))  # log |d theta / d z|
-        # stopping rule: caller's gradient per standardised column (see the module doc)
-        self.unit = np.repeat(np.concatenate([np.ones(self.off), 1.0 / self.s]), self.K)
+        # log |d theta / d z|, and the log det of the information's weight scale (Firth)
+        self.log_det_T = -self.K * float(np.sum(np.log(self.s)))
+        self.log_det_weights = self.size * math.log(self.weight_scale)
+        #: the multiplier of Firth's penalty in the scaled objective F / weight_scale
+        self.jeffreys_weight = 1.0 / self.weight_scale
+        #: the caller's gradient per standardised (uncentred) column per unit weight: the
+        #: stopping rule of problems with parameters held fixed (RestrictedProblem)
+        self.unit = np.repeat(np.concatenate([np.ones(self.off), 1.0 / self.s]), self.K) / self.weight_total
+        #: columns far from zero against their spread, kept centred (see ShiftedColumns)
+        self.shifted = ShiftedColumns(X, self.c, self.s, self.intercept and centre)
         self._last: tuple[Any, Any] | None = None  # (z, eta) of the last evaluation
         self._carried = False  # whether that eta came from a line search
         self._warm = True  # whether warm_start may run (not on its own subsample)
@@ -208,8 +235,10 @@ class LinearModelProblem:
             self.single = bool(vmin > 0 and total / vmin < 1e30)
             if self.single:
                 self.row_bound = math.sqrt(total / vmin)
-        # curvature passes may centre their accumulated products afterwards (see _kernels)
-        self.uncentred = bool(p) and uncentred_ok(self.c, self.s)
+        # curvature passes may centre their accumulated products afterwards (see _kernels),
+        # while the column scales are moderate (else each block is standardised first)
+        self.extreme = bool(p) and not bool(np.all((self.s >= SCALE_RANGE[0]) & (self.s <= SCALE_RANGE[1])))
+        self.uncentred = bool(p) and uncentred_ok(self.c, self.s) and not self.extreme
 
     # ---- coordinates ----------------------------------------------------------------
     def _parts(self, z: np.ndarray) -> tuple[Any, np.ndarray]:
@@ -276,6 +305,9 @@ class LinearModelProblem:
         sub = copy.copy(self)
         sub.X, sub.n, sub.loss = take_rows(self.X, rows), int(rows.size), self.loss.subset(rows)
         sub.offset = None if self.offset is None else self.offset[rows]
+        sub.shifted = self.shifted.subset(rows)
+        sub.weight_total = float(sub.loss.row_weights().sum())
+        sub.unit = self.unit * (self.weight_total / sub.weight_total) if sub.weight_total > 0 else self.unit
         sub._last, sub._carried, sub._sketch, sub._warm, sub._line = None, False, None, False, None
         return sub
 
@@ -313,19 +345,25 @@ class LinearModelProblem:
         return res.z if float(np.max(np.abs(lin))) <= WARM_ETA_LIMIT else None
 
     def eta(self, z: np.ndarray, with_offset: bool = True) -> Any:
-        """Linear predictor at ``z`` (one product with X; the last one is remembered)."""
+        """Linear predictor at ``z`` (one product with X; the last one is remembered).
+
+        Far-shifted columns enter through their centred copy (:mod:`._shifted`)."""
         key = (z.tobytes(), with_offset)
         if self._last is not None and self._last[0] == key:
             return self._last[1]
         if with_offset:
             self._carried = False
-        b, beta = self.coefficients(z)
+        if self.shifted:
+            a, g = self._parts(z)
+            b, beta, far = self.shifted.split(a, g / (self.s[:, None] if self.K > 1 else self.s), self.c)
+        else:
+            (b, beta), far = self.coefficients(z), None
         if self.K > 1:
             if with_offset:
                 self._forget()
-            e = self._products(beta, b, self.offset if with_offset else None)
+            e = self._products(beta, b, self.offset if with_offset else None, far)
         else:
-            e = self._product(beta, b, self.offset if with_offset else None)
+            e = self._product(beta, b, self.offset if with_offset else None, far)
         if with_offset:
             self._last = (key, e)
         return e
@@ -345,10 +383,10 @@ class LinearModelProblem:
         return self.l2 * float(np.sum(beta * dbeta))
 
     def _log_det_information(self, eta: Any) -> tuple[float, Any, Any]:
-        """``log det I`` in the caller's coordinates, with the scaled Cholesky factors."""
+        """``log det I`` in the caller's coordinates and weights, with the scaled Cholesky factors."""
         L, d = cholesky(self._information(self.loss.curvature(eta)))
         logdet = 2.0 * float(np.sum(np.log(np.diag(L))) + np.sum(np.log(d)))
-        return logdet - 2.0 * self.log_det_T, L, d
+        return logdet - 2.0 * self.log_det_T + self.log_det_weights, L, d
 
     def _inverse_root(self, eta: Any) -> np.ndarray | None:
         """``Li`` with ``I^{-1} = Li' Li`` at ``eta`` (None when I is singular)."""
@@ -366,11 +404,11 @@ class LinearModelProblem:
         return 0.5 * (H + H.T)
 
     def _residual(self, eta: Any, factors: Any = None) -> Any:
-        """Derivative of the objective in eta (Firth adds ``-1/2 q dW/deta``)."""
+        """Derivative of the objective in eta (Firth adds ``-1/(2 s) q dW/deta``, ``s`` the weight scale)."""
         r = self.loss.gradient(eta)
         if self.jeffreys:
             L, d = factors
-            r = r - 0.5 * self._leverage_factor(L, d) * self.loss.curvature_slope(eta)
+            r = r - (0.5 * self.jeffreys_weight) * self._leverage_factor(L, d) * self.loss.curvature_slope(eta)
         return r
 
     def _value_at(self, z: np.ndarray, eta: Any) -> tuple[float, Any]:
@@ -382,7 +420,7 @@ class LinearModelProblem:
         factors = None
         if self.jeffreys:
             logdet, L, d = self._log_det_information(eta)
-            f -= 0.5 * logdet
+            f -= 0.5 * self.jeffreys_weight * logdet
             factors = (L, d)
         return f, self._residual(eta, factors)
 
@@ -417,7 +455,7 @@ class LinearModelProblem:
             lam = np.linalg.eigvalsh(line.root0 @ dI @ line.root0.T)
             if lam.size and lam.min() <= -1.0:
                 return math.inf, math.nan
-            c -= 0.5 * float(np.sum(np.log1p(lam)))
+            c -= 0.5 * self.jeffreys_weight * float(np.sum(np.log1p(lam)))
             if need_slope:
                 try:
                     factors = cholesky(self._information(self.loss.curvature(eta)))
@@ -465,47 +503,63 @@ class LinearModelProblem:
             f = self._deferred_value(z, eta)
         b, beta = self.coefficients(z)
         Gb = r.sum(axis=0)
-        Gbeta = self._transposed_product(r)
-        if self.l2:
-            Gbeta = Gbeta + self.l2 * beta
+        XR = self._transposed_product(r)
+        Gbeta = XR + self.l2 * beta if self.l2 else XR
         sc = self.s[:, None] if self.K > 1 else self.s
-        gz_slopes = (Gbeta - np.multiply.outer(self.c, Gb)) / sc
+        centred = self._centred_slopes(r, XR, Gb)
+        gz_slopes = (centred + self.l2 * beta if self.l2 else centred) / sc
         if self.intercept:
             original = np.concatenate([np.atleast_1d(Gb), np.ravel(Gbeta)]) if self.K == 1 else np.vstack([Gb, Gbeta]).ravel()
             gz = np.concatenate([np.atleast_1d(Gb), np.ravel(gz_slopes)]) if self.K == 1 else np.vstack([Gb, gz_slopes]).ravel()
         else:
             original, gz = np.ravel(Gbeta).astype(float), np.ravel(gz_slopes).astype(float)
-        return Evaluation(f, gz, original, eta, self.unit, fresh=not carried)
+        # the stopping rule: the gradient in the standardised, centred coordinates per unit weight
+        return Evaluation(f, gz, original, eta, gz / self.weight_total, fresh=not carried)
 
-    def _product(self, beta: np.ndarray, b: float, offset: np.ndarray | None) -> np.ndarray:
-        """``X beta + b (+ offset)`` for one output, in chunks of rows on the row threads."""
-        X, e = self.X, np.empty(self.n)
+    def _product(self, beta: np.ndarray, b: float, offset: np.ndarray | None,
+                 far: np.ndarray | None = None) -> np.ndarray:
+        """``X beta + b (+ offset)`` for one output (``+ C far`` with the centred copy of the
+        far-shifted columns), in chunks of rows on the row threads."""
+        X, e, shifted = self.X, np.empty(self.n), self.shifted
 
         def part(lo: int, hi: int) -> None:
             out = e[lo:hi]
             np.matmul(X[lo:hi], beta, out=out)
             out += b
+            if far is not None:
+                shifted.add_product(out, lo, hi, far)
             if offset is not None:
                 out += offset[lo:hi]
 
         for_rows(part, self.n, self.block_rows)
         return e
 
-    def _products(self, B: np.ndarray, b: np.ndarray, offset: np.ndarray | None) -> np.ndarray:
-        """``X B + 1 b' (+ offset)`` for K outputs, (n, K) stored column by column (the
-        transpose of a (K, n) array: the loss reads it in row blocks); in chunks of rows on
-        the row threads."""
-        X, Et = self.X, np.empty((self.K, self.n))
+    def _products(self, B: np.ndarray, b: np.ndarray, offset: np.ndarray | None,
+                  far: np.ndarray | None = None) -> np.ndarray:
+        """``X B + 1 b' (+ offset)`` for K outputs (``+ C far`` as in :meth:`_product`), (n, K)
+        stored column by column (the transpose of a (K, n) array: the loss reads it in row
+        blocks); in chunks of rows on the row threads."""
+        X, Et, shifted = self.X, np.empty((self.K, self.n)), self.shifted
 
         def part(lo: int, hi: int) -> None:
             out = Et[:, lo:hi]
             np.matmul(B.T, X[lo:hi].T, out=out)
             out += b[:, None]
+            if far is not None:
+                shifted.add_product(out, lo, hi, far)
             if offset is not None:
                 out += offset[lo:hi].T
 
         for_rows(part, self.n, self.block_rows)
         return Et.T
+
+    def _centred_slopes(self, r: Any, XR: np.ndarray, Gb: Any) -> np.ndarray:
+        """``(X - c)' r`` from ``XR = X' r`` and ``Gb = sum r``; the far-shifted columns'
+        entries from their centred copy (no cancellation)."""
+        out = XR - np.multiply.outer(self.c, Gb)
+        if self.shifted:
+            out[self.shifted.far] = self.shifted.transposed(r)
+        return out
 
     def _transposed_product(self, r: Any) -> np.ndarray:
         """``X' r``, summed over row blocks of about 6 MB in their order, on the row threads.
@@ -592,6 +646,7 @@ class LinearModelProblem:
             H *= top * top
             return 0.5 * (H + H.T)
         buf = np.empty((min(rows, n), p1))
+        inv = 1.0 / self.s if self.extreme else None  # scales far from 1: standardise first
         for lo in range(0, n, rows):
             Xb = self.X[lo : lo + rows]
             B = buf[: Xb.shape[0]]
@@ -599,10 +654,13 @@ class LinearModelProblem:
             if self.intercept:
                 B[:, 0] = r
             np.subtract(Xb, self.c, out=B[:, off:])
+            if inv is not None:
+                B[:, off:] *= inv
             B[:, off:] *= r[:, None]
             H += B.T @ B
-        u = self._unit_scale()
-        H *= np.multiply.outer(u, u)
+        if inv is None:
+            u = self._unit_scale()
+            H *= np.multiply.outer(u, u)
         return 0.5 * (H + H.T)
 
     def _leverage_factor(self, L: np.ndarray, d: np.ndarray) -> np.ndarray:
@@ -616,33 +674,46 @@ class LinearModelProblem:
 
     def _penalty_diagonal(self) -> np.ndarray:
         pen = np.zeros((self.p1, self.K))
-        pen[self.off :] = (self.l2 / self.s**2)[:, None]
+        pen[self.off :] = ((self.l2 / self.s) / self.s)[:, None]  # no overflow of s^2
         return pen.ravel()
 
     def gradient_rounding(self, z: np.ndarray) -> float:
         """Estimated float64 rounding level of ``Evaluation.gradient_norm`` at ``z``.
 
-        ``eps * max_j sum_i |a_ij| (|r_i| + W_i e_i)`` with ``a_i = (1, x_i)``, ``r`` the
-        derivative in eta, ``W`` the curvature and ``e_i = |x_i||beta| + |b| + |o_i|`` the
-        size of the terms summed into eta (one output; NaN otherwise).  Blocked: no copy of X.
+        ``eps * max_j sum_i |a_ij| (|r_i| + W_i e_i) / (s_j W)`` with ``a_ij = |x_ij| + |c_j|``
+        (``|x_ij - c_j|`` for a far-shifted column, which is kept centred), ``r`` the
+        derivative in eta, ``W_i`` the curvature, ``e_i`` the size of the terms summed into
+        eta, ``s_j`` the column's spread and ``W`` the total weight: the units of the
+        stopping rule (one output; NaN otherwise).  Blocked: no copy of X.
         """
         if self.K != 1:
             return math.nan
         eta = self.eta(z)
         r, W = np.abs(self.loss.gradient(eta)), self.loss.curvature(eta)
-        b, beta = self.coefficients(z)
+        a, g = self._parts(z)
+        beta = g / self.s
+        if self.shifted:
+            b, beta, far = self.shifted.split(a, beta, self.c)
+        else:
+            b, far = a - self.c @ beta, None
         e = np.full(self.n, abs(float(b)))
         if self.offset is not None:
             e += np.abs(self.offset)
+        if far is not None:
+            e += np.abs(self.shifted.C) @ np.abs(far)
         out = np.zeros(self.p)
         for lo in range(0, self.n, self.block):
             Ab = np.abs(self.X[lo : lo + self.block])
             sl = slice(lo, lo + Ab.shape[0])
             e[sl] += Ab @ np.abs(beta)
             out += Ab.T @ (r[sl] + W[sl] * e[sl])
-        first = float(np.sum(r + W * e)) if self.intercept else 0.0
-        out /= self.s  # the stopping rule's scale-free units (see the module doc)
-        return EPS * max(first, float(out.max()) if out.size else 0.0)
+        first = float(np.sum(r + W * e))
+        out += np.abs(self.c) * first
+        if far is not None:
+            out[self.shifted.far] = np.abs(self.shifted.C).T @ (r + W * e)
+        out /= self.s
+        level = max(first if self.intercept else 0.0, float(out.max()) if out.size else 0.0)
+        return EPS * level / self.weight_total
 
     def fisher_information(self, z: np.ndarray) -> np.ndarray:
         """Penalised Fisher information ``A'WA + l2 D`` in z (the covariance uses its inverse)."""
@@ -779,7 +850,7 @@ class LinearModelProblem:
             q = np.einsum("ij,ij->i", Y, Y)
             T1 += A.T @ (A * (q * W2[lo:hi])[:, None])
             N += (A * W1[lo:hi, None]).T @ np.einsum("ij,ik->ijk", Y, Y).reshape(hi - lo, k * k)
-        H = info - 0.5 * T1 + 0.5 * (N @ N.T)
+        H = info + (0.5 * self.jeffreys_weight) * (N @ N.T - T1)
         return 0.5 * (H + H.T)
 
     def hessian_vector(self, z: np.ndarray, v: np.ndarray) -> np.ndarray:
@@ -788,7 +859,7 @@ class LinearModelProblem:
         u = self.loss.hessian_vector(eta, self.eta(v, with_offset=False))
         Gb = u.sum(axis=0)
         sc = self.s[:, None] if self.K > 1 else self.s
-        Gs = (self.X.T @ u - np.multiply.outer(self.c, Gb)) / sc
+        Gs = self._centred_slopes(u, self.X.T @ u, Gb) / sc
         out = np.concatenate([np.atleast_1d(Gb), np.ravel(Gs)]) if self.K == 1 else np.vstack([Gb, Gs]).ravel()
         if not self.intercept:
             out = np.ravel(Gs)
