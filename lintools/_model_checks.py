@@ -64,12 +64,28 @@ def _array(value: Any, shape: tuple, field: str, refuse: Refuse, *, nonnegative:
         raise refuse(field, f"has shape {arr.shape} but the model's names and classes give {shape}")
     finite = np.isfinite(arr)
     if not finite.all():
-        index = tuple(int(i) for i in np.argwhere(~finite)[0])
-        raise refuse(field, f"holds {arr[index]} at {index}; it must be finite")
+        raise refuse(field, f"holds {_at(arr, ~finite)}; it must be finite")
     if nonnegative and arr.size and arr.min() < 0:
-        index = tuple(int(i) for i in np.argwhere(arr < 0)[0])
-        raise refuse(field, f"holds {arr[index]!r} at {index}; it must be >= 0")
+        raise refuse(field, f"holds {_at(arr, arr < 0)}; it must be >= 0")
     return arr
+
+
+def _at(arr: np.ndarray, mask: np.ndarray) -> str:
+    """The first entry where ``mask`` holds, as 'value at entry i' (or '(i, j)')."""
+    index = tuple(int(i) for i in np.argwhere(mask)[0])
+    where = "" if not index else f" at entry {index[0] if len(index) == 1 else index}"
+    return f"{float(arr[index])!r}{where}"
+
+
+def _as_floats(value: Any, shape: tuple, field: str, refuse: Refuse) -> np.ndarray:
+    """A field typed ``Any`` (intercepts and their standard errors): a number for a
+    single-output model, a float64 array of one entry per class for softmax."""
+    if shape == () and isinstance(value, (int, float)) and not isinstance(value, bool):
+        return np.asarray(float(value))
+    if shape != () and isinstance(value, np.ndarray):
+        return value
+    need = "a number" if shape == () else f"an array of {shape[0]} numbers, one per class"
+    raise refuse(field, f"holds a {type(value).__name__}; the model needs {need}")
 
 
 def _integer(value: int, field: str, refuse: Refuse, low: int, high: int) -> None:
@@ -90,6 +106,11 @@ def _labels(classes: tuple, field: str, refuse: Refuse, *, exactly: int | None =
         raise refuse(field, f"has {len(classes)} label(s); a classifier needs at least 2")
 
 
+def _label_in(label: Any, classes: tuple) -> bool:
+    """Whether ``label`` (a field typed ``Any``) is a label and one of ``classes``."""
+    return isinstance(label, (str, int, float, bool)) and label in classes
+
+
 def check_record(rec: Any, refuse: Refuse) -> None:
     """Raise ``refuse(field, problem)`` for the first field of ``rec`` that disagrees with
     the others (see the module docstring); return None when the record is consistent."""
@@ -108,7 +129,7 @@ def check_record(rec: Any, refuse: Refuse) -> None:
                 raise refuse("record.reference_class", "is null (the symmetric form) but l2 is 0; the symmetric "
                                                        "form is identified only with l2 > 0")
             free = list(range(K))
-        elif rec.reference_class not in rec.classes:
+        elif not _label_in(rec.reference_class, rec.classes):
             raise refuse("record.reference_class", f"{rec.reference_class!r:.80} is not one of the classes")
         else:
             ref = rec.classes.index(rec.reference_class)
@@ -118,20 +139,17 @@ def check_record(rec: Any, refuse: Refuse) -> None:
         coef_shape, b_shape, n_free = (p,), (), p + wi
         if kind == "logistic":
             _labels(rec.classes, "record.classes", refuse, exactly=2)
-            if rec.positive_class not in rec.classes:
+            if not _label_in(rec.positive_class, rec.classes):
                 raise refuse("record.positive_class", f"{rec.positive_class!r:.80} is not one of the classes "
                                                       f"{rec.classes!r:.80}")
     B = _array(rec.coefficients, coef_shape, "record.coefficients", refuse)
     S = _array(rec.standard_errors, coef_shape, "record.standard_errors", refuse, nonnegative=True)
-    b = np.asarray(rec.intercept, dtype=float) if isinstance(rec.intercept, (float, int, np.ndarray)) else None
-    if b is None or b.shape != b_shape:
-        raise refuse("record.intercept", f"has the wrong shape or type; the model needs {'one per class' if b_shape else 'a number'}")
-    _array(b, b_shape, "record.intercept", refuse)
+    b = _array(_as_floats(rec.intercept, b_shape, "record.intercept", refuse), b_shape, "record.intercept", refuse)
     if wi:
         if rec.intercept_standard_error is None:
             raise refuse("record.intercept_standard_error", "is missing but with_intercept is true")
-        se_b = np.asarray(rec.intercept_standard_error, dtype=float)
-        _array(se_b, b_shape, "record.intercept_standard_error", refuse, nonnegative=True)
+        se_b = _array(_as_floats(rec.intercept_standard_error, b_shape, "record.intercept_standard_error", refuse),
+                      b_shape, "record.intercept_standard_error", refuse, nonnegative=True)
     else:
         if np.any(b != 0.0):
             raise refuse("record.intercept", f"is {rec.intercept!r:.80} but with_intercept is false; a model "
@@ -188,7 +206,9 @@ _COVARIANCE_TYPES = ("classical", "HC0", "HC1", "HC2", "HC3")
 
 
 def _check_linear(rec: Any, p: int, wi: bool, refuse: Refuse) -> None:
-    _number(rec.degrees_of_freedom, "record.degrees_of_freedom", refuse, positive=True)
+    # the residual degrees of freedom of a t reference distribution; below 0.01 the t
+    # quantile is not computed (and no fit of a sensible size has so few)
+    _number(rec.degrees_of_freedom, "record.degrees_of_freedom", refuse, low=0.01)
     _number(rec.residual_standard_error, "record.residual_standard_error", refuse, low=0.0)
     _integer(rec.rank, "record.rank", refuse, 0, p + wi)
     if rec.covariance_type not in _COVARIANCE_TYPES:

@@ -22,11 +22,12 @@ refused with the file, the field and the remedy named.
 Memory: the lists of numbers behind float arrays are parsed straight into NumPy arrays
 (a strict JSON-number scan, then NumPy's text parser on pieces of at most
 :data:`_PIECE` bytes), never as Python lists, and everything else in the file may hold
-at most one JSON value per 128 bytes of file (plus 10 000).  Peak memory while loading is
-therefore the file's bytes, 8 bytes per number and a bounded remainder: measured at
-1.5 times the file's size for a 100 MB file written by :func:`save`, and at most 6 times
-for any file (6 is reached by a file of 2-byte numbers such as ``1,1,1,...``, whose
-8-byte doubles alone take 4 times the file); tests/test_model_memory.py checks both.
+at most one JSON value per 128 bytes of file (plus 10 000), counted before it is parsed.
+Peak memory while loading is about 2 times the file's size for a file written by
+:func:`save` (measured 2.0x for a 100 MB file: the bounded reader holds the file twice
+while it joins its pieces; then the file's bytes and 8 bytes per number) and at most 6
+times for any file (measured 5.1x for a 100 MB file of 2-byte numbers, ``1,1,1,...``,
+whose doubles alone take 4 times the file); tests/test_model_memory.py checks both.
 """
 
 from __future__ import annotations
@@ -93,26 +94,27 @@ class _Context:
         return InputError(f"model file {self.path!r}: {where} {problem}; {_REMEDY}")
 
 
-def _scan_arrays(raw: bytes, nonce: str, path: str) -> tuple[bytes, list]:
+def _scan_arrays(raw: bytes, nonce: str) -> tuple[bytes | bytearray, list]:
     """Replace every list of numbers behind ``"$array"`` by a placeholder, and parse it.
 
     Returns the document with placeholders (``{"$parsed": nonce, "$index": k}``) and
     the parsed lists (a :class:`_Parsed`, or the text of a problem).  The nonce is new
     for each file, so a file cannot imitate a placeholder.
     """
-    out: list[bytes] = []
+    out = bytearray()
     parsed: list = []
     last = 0
-    for m in _ARRAY_LIST.finditer(raw):
-        start, stop = m.span(1)
-        out.append(raw[last:start - 1])
-        out.append(b'{"$parsed": "%s", "$index": %d}' % (nonce.encode(), len(parsed)))
-        last = stop + 1
-        parsed.append(_parse_numbers(raw, start, stop))
-    if not parsed:
-        return raw, parsed
-    out.append(raw[last:])
-    return b"".join(out), parsed
+    with memoryview(raw) as view:
+        for m in _ARRAY_LIST.finditer(raw):
+            start, stop = m.span(1)
+            out += view[last:start - 1]
+            out += b'{"$parsed": "%s", "$index": %d}' % (nonce.encode(), len(parsed))
+            last = stop + 1
+            parsed.append(_parse_numbers(raw, start, stop))
+        if not parsed:
+            return raw, parsed
+        out += view[last:]
+    return out, parsed
 
 
 def _parse_numbers(raw: bytes, start: int, stop: int) -> Any:
@@ -353,8 +355,8 @@ def load(path: str | os.PathLike) -> Any:
     Every field is type-checked and checked against the others (shapes of coefficients,
     names, standard errors and covariance; the intercept present exactly when declared;
     classes for the kind; finite, non-negative standard errors and counts; l2; integers
-    in range; printable names).  Peak memory is at most about 6 times the file's size
-    (1.5 times for files written by :func:`save`; see the module docstring).
+    in range; printable names).  Peak memory is at most 6 times the file's size (about
+    2 times for files written by :func:`save`; see the module docstring).
 
     Raises
     ------
@@ -370,8 +372,8 @@ def load_bytes(raw: bytes, where: str) -> Any:
     """The record in the bytes ``raw`` of the model file ``where`` (see :func:`load`)."""
     size = len(raw)
     nonce = secrets.token_hex(16)
-    text, parsed = _scan_arrays(raw, nonce, where)
-    del raw
+    text, parsed = _scan_arrays(raw, nonce)
+    del raw  # the caller passes the bytes on (load keeps no reference): freed here
     values = text.count(b",") + text.count(b"[") + text.count(b"{") + 2 * text.count(b":") + 1
     limit = size // _BYTES_PER_VALUE + _SLACK
     if values > limit:
@@ -380,13 +382,14 @@ def load_bytes(raw: bytes, where: str) -> Any:
             f"than the {limit} a model file of {size} bytes may hold; {_REMEDY}"
         )
     try:
-        doc = json.loads(text.decode("utf-8"), parse_constant=_refuse_constant, parse_float=_finite_float,
-                         parse_int=_bounded_int)
+        decoded = text.decode("utf-8")
+        del text
+        doc = json.loads(decoded, parse_constant=_refuse_constant, parse_float=_finite_float, parse_int=_bounded_int)
     except (UnicodeDecodeError, json.JSONDecodeError, RecursionError) as exc:
         raise InputError(f"model file {where!r} is not valid JSON ({exc}); {_REMEDY}") from None
     except InputError as exc:
         raise InputError(f"model file {where!r} {exc}") from None
-    del text
+    del decoded
     if not isinstance(doc, dict) or doc.get("format") != FORMAT:
         raise InputError(f"{where!r} is not a lintools model file (no \"format\": \"{FORMAT}\")")
     version = doc.get("schema_version")
