@@ -1,6 +1,9 @@
 """Hostile and damaged JSON model files give clear errors, never a crash or a wrong model."""
 
 import json
+import subprocess
+import sys
+import textwrap
 
 import pytest
 import statsmodels.api as sm
@@ -9,6 +12,7 @@ from hypothesis import strategies as st
 
 import lintools as lt
 from lintools import InputError
+from lintools.pmml import write_pmml
 
 
 @pytest.fixture(scope="module")
@@ -114,3 +118,39 @@ def test_an_array_with_a_list_as_its_dtype_is_refused(tmp_path):
     with pytest.raises(lt.InputError, match="malformed array"):
         lt.load(path)
     json.loads(text)  # the file itself is valid JSON: the refusal is the schema's
+
+
+@pytest.mark.skipif(sys.platform == "win32", reason="needs resource limits")
+@pytest.mark.parametrize("writer", ["save", "write_pmml"])
+def test_a_save_cut_short_leaves_the_previous_model_file_byte_identical(tmp_path, saved, writer):
+    """save and write_pmml, interrupted by a file-size limit (RLIMIT_FSIZE in a child
+    process) while replacing a model file, leave the old file byte-identical and no
+    temporary file behind.  Source: common practice (write to a temporary file in the same
+    folder, then rename; POSIX rename(2) is atomic)."""
+    path, _ = saved  # statsmodels' stack-loss fit with diagnostics: the new model
+    target = tmp_path / ("model.json" if writer == "save" else "model.pmml")
+    small = lt.least_squares([[0.0], [1.0], [2.0], [4.0]], [1.0, 2.0, 2.5, 5.0])  # the previous model
+    (lt.save if writer == "save" else write_pmml)(small, target)
+    old = target.read_bytes()
+    probe = tmp_path / "probe" / target.name
+    probe.parent.mkdir()
+    (lt.save if writer == "save" else write_pmml)(lt.load(path), probe)
+    limit = max(len(old), probe.stat().st_size // 2)
+    assert probe.stat().st_size > limit >= len(old)
+    code = textwrap.dedent(f"""
+        import resource, sys
+        import lintools as lt
+        from lintools.pmml import write_pmml
+        fit = lt.load({str(path)!r})
+        resource.setrlimit(resource.RLIMIT_FSIZE, ({limit}, {limit}))
+        try:
+            {"lt.save" if writer == "save" else "write_pmml"}(fit, {str(target)!r}, replace=True)
+        except lt.InputError as exc:
+            print("refused:", exc)
+            sys.exit(3)
+    """)
+    run = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120)
+    assert run.returncode == 3, run.stdout + run.stderr
+    assert "cannot be written" in run.stdout and "nothing was changed" in run.stdout
+    assert target.read_bytes() == old
+    assert sorted(p.name for p in tmp_path.iterdir()) == sorted(["probe", target.name])
