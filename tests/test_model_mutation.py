@@ -163,6 +163,7 @@ def _paths(node: Any, prefix: tuple = ()) -> list[tuple]:
 
 
 def _mutate(doc: dict, draw) -> dict:
+    fields = doc["record"]["fields"]  # the original's: sources for the swap below
     doc = copy.deepcopy(doc)
     for _ in range(draw(st.integers(1, 3))):
         path = draw(st.sampled_from([p for p in _paths(doc) if p]))
@@ -172,7 +173,7 @@ def _mutate(doc: dict, draw) -> dict:
         key, value = path[-1], parent[path[-1]]
         op = draw(st.sampled_from(["hostile", "scale", "delete", "grow", "shrink", "swap"]))
         if op == "hostile":
-            parent[key] = draw(st.sampled_from(HOSTILE + MORE))
+            parent[key] = copy.deepcopy(draw(st.sampled_from(HOSTILE + MORE)))
         elif op == "scale" and isinstance(value, (int, float)) and not isinstance(value, bool):
             parent[key] = value * draw(st.sampled_from([-1, 2, 0.5, 1e300, 1e-300, 0]))
         elif op == "delete":
@@ -185,7 +186,6 @@ def _mutate(doc: dict, draw) -> dict:
         elif op == "shrink" and isinstance(value, list) and value:
             value.pop()
         elif op == "swap":  # another field's value in this place (type and shape confusion)
-            fields = doc["record"]["fields"]
             parent[key] = copy.deepcopy(fields[draw(st.sampled_from(sorted(fields)))])
     return doc
 
