@@ -26,6 +26,7 @@ from __future__ import annotations
 
 import dataclasses
 import json
+import os
 import re
 import subprocess
 import sys
@@ -152,6 +153,18 @@ def test_cli_check_refuses_an_intercept_the_file_says_it_does_not_have(tmp_path)
     proc = run("check", str(write_doc(doc, tmp_path)), str(data))
     assert proc.returncode == 2, proc.stdout + proc.stderr
     assert "with_intercept is false" in proc.stderr and "Verdict" not in proc.stdout
+
+
+@pytest.mark.skipif(not hasattr(os, "mkfifo"), reason="needs FIFOs")
+def test_cli_check_refuses_a_fifo_as_model_file_instead_of_waiting(tmp_path):
+    # source: issue #17 (a FIFO hung the model reader on main); common practice
+    data = tmp_path / "spector.csv"
+    SPECTOR.to_csv(data, index=False)
+    fifo = tmp_path / "model.json"
+    os.mkfifo(fifo)
+    proc = subprocess.run([sys.executable, "-m", "lintools", "check", str(fifo), str(data)], capture_output=True,
+                          text=True, timeout=60)
+    assert proc.returncode == 2 and "is a pipe (FIFO)" in proc.stderr, proc.stderr
 
 
 def test_save_refuses_a_record_that_load_would_refuse(tmp_path):
