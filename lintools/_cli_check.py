@@ -51,18 +51,22 @@ class Delivered:
 
 
 def read_delivered(path: str) -> Delivered:
-    """Read a lintools JSON model file or a PMML document, recognised by its first byte."""
-    from .io import load
-    from .pmml import read_pmml
+    """Read a lintools JSON model file or a PMML document, recognised by its first byte.
+
+    The file is read once, through the bounded reader (a FIFO or a device is refused, not
+    waited on), and checked for consistency by the JSON or PMML reader.
+    """
+    from . import io as model_io
+    from . import pmml
+    from ._files import read_bounded
 
     try:
-        with open(path, "rb") as fh:
-            head = fh.read(256)
-    except OSError as exc:
-        raise InputError(f"cannot read the model file {path!r}: {exc.strerror}") from None
-    head = head.removeprefix(b"\xef\xbb\xbf").lstrip()
+        raw = read_bounded(path, "model file", max(model_io.MAX_BYTES, pmml.MAX_BYTES))
+    except InputError as exc:
+        raise InputError(f"cannot read the model file ({exc})") from None
+    head = raw[:256].removeprefix(b"\xef\xbb\xbf").lstrip()
     if head.startswith(b"{"):
-        fit = load(path)
+        fit = model_io.load_bytes(raw, path)
         if fit.kind not in ("least_squares", "logistic", "softmax"):
             raise InputError(f"model file {path!r} holds a {fit.kind!r} record, not a fitted model")
         return Delivered(
@@ -72,8 +76,8 @@ def read_delivered(path: str) -> Delivered:
             covariance_type=getattr(fit, "covariance_type", None), file_format="lintools JSON model file",
             reference=getattr(fit, "reference_class", "first"),
         )
-    if head.startswith(b"<"):
-        m = read_pmml(path)
+    if head.startswith(b"<") or head.startswith((b"\xff\xfe", b"\xfe\xff")):  # XML, also in UTF-16
+        m = pmml.read_pmml_bytes(raw, path)
         reference: Any = "first"
         if m.kind == "softmax":  # a class whose table is all zero was the reference class
             zero = [c for k, c in enumerate(m.classes)

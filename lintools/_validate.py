@@ -48,6 +48,9 @@ __all__ = [
     "read_only",
     "ReadOnlyArrays",
     "check_names",
+    "name_problem",
+    "text_problem",
+    "MAX_NAME_LENGTH",
     "check_nonnegative",
     "check_choice",
     "is_one_of",
@@ -419,18 +422,83 @@ def as_offset(offset: Any, n: int, k: int | None = None, name: str = "offset") -
     return arr
 
 
+#: Longest coefficient, target or class name accepted (characters).
+MAX_NAME_LENGTH = 1000
+#: Unicode categories a name may not contain: control (Cc) and format (Cf) characters,
+#: lone surrogates (Cs), line and paragraph separators (Zl, Zp).
+_UNPRINTABLE = frozenset({"Cc", "Cf", "Cs", "Zl", "Zp"})
+
+
+def text_problem(text: str) -> str | None:
+    """Why ``text`` cannot be written to and read back from a model file, or None.
+
+    Refused are the characters of Unicode categories Cc, Cf, Cs, Zl and Zp (controls,
+    invisible format characters, lone surrogates, line separators) and the Unicode
+    noncharacters (U+FDD0..U+FDEF and the last two code points of every plane): XML 1.0
+    cannot hold some of them at all, and the others print as nothing or break lines.
+    """
+    if text.isprintable():  # the usual case, in C
+        return None
+    import unicodedata
+
+    for i, ch in enumerate(text):
+        code = ord(ch)
+        category = unicodedata.category(ch)
+        if category in _UNPRINTABLE or 0xFDD0 <= code <= 0xFDEF or (code & 0xFFFE) == 0xFFFE:
+            kind = {"Cc": "a control character", "Cf": "an invisible format character",
+                    "Cs": "a lone surrogate", "Zl": "a line separator", "Zp": "a paragraph separator"}
+            return f"holds {kind.get(category, 'a Unicode noncharacter')} (U+{code:04X}) at position {i}"
+    return None
+
+
+def name_problem(name: str) -> str | None:
+    """Why ``name`` cannot be a coefficient or target name, or None: it must be a non-empty,
+    printable (:func:`text_problem`) string of at most :data:`MAX_NAME_LENGTH` characters
+    that is not only white space."""
+    if not name or name.isspace():
+        return "is empty" if not name else "is only white space"
+    if len(name) > MAX_NAME_LENGTH:
+        return f"has {len(name)} characters, more than the {MAX_NAME_LENGTH} allowed"
+    return text_problem(name)
+
+
 def check_names(names: Any, p: int, found: tuple[str, ...] | None, prefix: str = "x") -> tuple[str, ...]:
-    """Return coefficient names: ``names`` if given, else the column names found, else x1..xp."""
+    """Return coefficient names: ``names`` if given, else the column names found, else x1..xp.
+
+    Names given or found must be usable in every model file lintools writes: one per
+    column, distinct, non-empty, printable and not too long (:func:`name_problem`), and
+    not ``"(intercept)"``, the intercept's own name.  Checking them here, at fit time,
+    means :func:`lintools.save` and :func:`lintools.pmml.write_pmml` never write a file
+    that :func:`lintools.load` or :func:`lintools.pmml.read_pmml` refuse.
+    """
     if names is None:
-        return found if found is not None else tuple(f"{prefix}{j + 1}" for j in range(p))
-    if isinstance(names, str):
-        raise InputError("names is a single string; pass a sequence with one name per column")
-    out = tuple(str(v) for v in names)
-    if len(out) != p:
-        raise InputError(f"names has {len(out)} entries but X has {p} columns; pass one name per column")
+        if found is None:
+            return tuple(f"{prefix}{j + 1}" for j in range(p))
+        out, what = tuple(found), "X has column names that cannot be used"
+        remedy = "rename the columns of X, or pass names= with one distinct name per column"
+    else:
+        if isinstance(names, str):
+            raise InputError("names is a single string; pass a sequence with one name per column")
+        out, what = tuple(str(v) for v in names), "names cannot be used"
+        remedy = "pass one distinct, non-empty, printable name per column"
+        if len(out) != p:
+            raise InputError(f"names has {len(out)} entries but X has {p} columns; pass one name per column")
+    for j, name in enumerate(out):
+        problem = name_problem(name)
+        if problem is not None:
+            raise InputError(f"{what}: the name of column {j} ({name[:80]!r}) {problem}; {remedy}")
     if len(set(out)) != len(out):
-        dup = next(v for v in out if out.count(v) > 1)
-        raise InputError(f"names has the name '{dup}' more than once; names must be distinct")
+        seen: dict[str, int] = {}
+        for j, name in enumerate(out):
+            if name in seen:
+                raise InputError(f"{what}: the name {name[:80]!r} appears more than once (columns {seen[name]} "
+                                 f"and {j}); names must be distinct: {remedy}")
+            seen[name] = j
+    from ._records import INTERCEPT_NAME
+
+    if INTERCEPT_NAME in out:
+        raise InputError(f"{what}: column {out.index(INTERCEPT_NAME)} is named {INTERCEPT_NAME!r}, the "
+                         f"intercept's own name; {remedy}")
     return out
 
 

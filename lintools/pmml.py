@@ -13,9 +13,13 @@ part of it that its fits correspond to:
 
 Only ``NumericPredictor`` terms with exponent 1 are read; anything else (categorical
 predictors, interaction terms, other model types) is refused with a message rather than
-misread.  Parsing refuses any document with a DTD (``<!DOCTYPE``) or an entity
-declaration, so external entities and entity expansion cannot occur, and reads no file
-other than the one named.
+misread.  Reading checks that the document agrees with itself (namespace, required
+attributes, a strict number grammar, one table per declared target category: see
+:mod:`lintools._pmml_read`), refuses any document with a DTD or an entity declaration,
+so external entities and entity expansion cannot occur, and reads no file other than
+the one named.  Writing refuses what reading would refuse (unusable names, a target
+named like a predictor, class labels that XML cannot hold or that print alike), so
+:func:`write_pmml` never writes a file :func:`read_pmml` refuses.
 
 Reference: Data Mining Group, PMML 4.4 - Regression
 (``RegressionModel``, ``RegressionTable``, ``NumericPredictor``).
@@ -24,10 +28,8 @@ Reference: Data Mining Group, PMML 4.4 - Regression
 from __future__ import annotations
 
 import io
-import math
 import os
 import xml.etree.ElementTree as ET
-from xml.parsers import expat
 from dataclasses import dataclass
 from typing import Any
 
@@ -35,10 +37,12 @@ import numpy as np
 
 from ._errors import InputError
 from ._files import file_path, read_bounded, write_atomic
+from ._pmml_read import NAMESPACES, parse_pmml
+from ._validate import as_matrix, check_names, name_problem, text_problem
 
 __all__ = ["DeliveredModel", "read_pmml", "write_pmml"]
 
-NS = "http://www.dmg.org/PMML-4_4"
+NS = NAMESPACES[-1]
 MAX_BYTES = 64 * 1024 * 1024
 
 
@@ -49,6 +53,10 @@ class DeliveredModel:
     ``coefficients`` is (p,) for ``kind`` "least_squares" and "logistic", (p, K) for
     "softmax"; ``intercept`` is a float or (K,).  ``classes`` lists the target
     categories (the positive class first for "logistic").
+
+    ``linear_predictor(X)`` is ``intercept + X @ coefficients``; ``mean(X)`` applies the
+    document's normalisation: none (least squares), the logistic function (logit: the
+    probability of ``classes[0]``) or softmax (one column per class).
     """
 
     kind: str
@@ -59,21 +67,89 @@ class DeliveredModel:
     target: str = "y"
     source: str = ""
 
+    def linear_predictor(self, X: Any) -> np.ndarray:
+        """``intercept + X @ coefficients`` for new rows ``X`` (columns in ``names`` order)."""
+        arr, _ = as_matrix(X, "X")
+        if arr.shape[1] != len(self.names):
+            raise InputError(f"X has {arr.shape[1]} columns but the model has {len(self.names)} predictors "
+                             f"({', '.join(self.names)}); pass the same columns in the same order")
+        return arr @ self.coefficients + self.intercept
+
+    def mean(self, X: Any) -> np.ndarray:
+        """The model's prediction for new rows: the response (least squares), the
+        probability of ``classes[0]`` (logistic) or the class probabilities (softmax)."""
+        eta = self.linear_predictor(X)
+        if self.kind == "logistic":
+            from .losses import sigmoid
+
+            return sigmoid(eta)
+        if self.kind == "softmax":
+            from ._multinomial import softmax_parts
+
+            return softmax_parts(np.asarray(eta, dtype=float))[0]
+        return eta
+
+    def report(self) -> str:
+        """A plain-text account of the model: its kind, target, classes and coefficients."""
+        head = f"delivered {self.kind} model of '{self.target}'" + (f" from {self.source}" if self.source else "")
+        if self.kind == "logistic":
+            head += f": probability of {self.classes[0]!s} (classes {', '.join(map(str, self.classes))})"
+        elif self.kind == "softmax":
+            head += f": {len(self.classes)} classes ({', '.join(map(str, self.classes))})"
+        B = np.asarray(self.coefficients, dtype=float).reshape(len(self.names), -1)
+        b = np.atleast_1d(np.asarray(self.intercept, dtype=float))
+        cols = [str(c) for c in self.classes] if self.kind == "softmax" else ["coefficient"]
+        width = max([len(n) for n in self.names] + [len("(intercept)"), 4])
+        lines = [head, "", "term".ljust(width) + "".join(c[:20].rjust(22) for c in cols)]
+        lines.append("-" * len(lines[-1]))
+        for term, row in [("(intercept)", b)] + list(zip(self.names, B)):
+            lines.append(term.ljust(width) + "".join(f"{v:22.15g}" for v in row))
+        return "\n".join(lines) + "\n"
+
 
 def _num(x: float) -> str:
     return repr(float(x))
+
+
+def _writable(fit: Any, target: str) -> list[str]:
+    """The class labels as written (``str``), after refusing what read_pmml would refuse."""
+    try:
+        check_names(fit.names, len(fit.names), None)
+    except InputError as exc:
+        raise InputError(f"write_pmml: the fit's names cannot be written ({exc})") from None
+    problem = name_problem(target)
+    if problem is not None:
+        raise InputError(f"write_pmml: the target name {target[:80]!r} {problem}; pass target= with a usable name")
+    if target in fit.names:
+        raise InputError(f"write_pmml: the target name {target!r} is also the name of a predictor; pass target= "
+                         "with another name")
+    labels = [str(c) for c in getattr(fit, "classes", ())]
+    for label in labels:
+        problem = text_problem(label)
+        if problem is not None:
+            raise InputError(f"write_pmml: the class label {label[:80]!r} {problem}; XML cannot hold it as "
+                             "written: relabel the classes before fitting")
+    if len(set(labels)) != len(labels):
+        dup = next(lab for lab in labels if labels.count(lab) > 1)
+        raise InputError(f"write_pmml: two class labels are both written {dup!r}; relabel the classes before fitting")
+    return labels
 
 
 def write_pmml(fit: Any, path: str | os.PathLike, *, target: str | None = None, replace: bool = False) -> None:
     """Write a lintools fit (least squares, logistic or softmax) as a PMML 4.4 document.
 
     The file is written atomically (a temporary file in the same folder, renamed into
-    place); an existing ``path`` is refused unless ``replace=True``.
+    place); an existing ``path`` is refused unless ``replace=True``.  Names, the target
+    and class labels that :func:`read_pmml` would refuse are refused here, with the
+    remedy, before anything is written.
     """
     kind = getattr(fit, "kind", None)
     if kind not in ("least_squares", "logistic", "softmax"):
         raise InputError(f"write_pmml() takes a lintools fit record; got {type(fit).__name__}")
     target = target or getattr(fit, "target", None) or "y"
+    if not isinstance(target, str):
+        raise InputError(f"write_pmml: target must be a str; got {type(target).__name__}")
+    labels = _writable(fit, target)
     ET.register_namespace("", NS)
     root = ET.Element(f"{{{NS}}}PMML", {"version": "4.4"})
     header = ET.SubElement(root, f"{{{NS}}}Header", {"description": f"lintools {kind} fit"})
@@ -88,8 +164,8 @@ def write_pmml(fit: Any, path: str | os.PathLike, *, target: str | None = None, 
         attrs = {"functionName": "regression", "normalizationMethod": "none"}
     else:
         field = ET.SubElement(dd, f"{{{NS}}}DataField", {"name": target, "optype": "categorical", "dataType": "string"})
-        for c in fit.classes:
-            ET.SubElement(field, f"{{{NS}}}Value", {"value": str(c)})
+        for label in labels:
+            ET.SubElement(field, f"{{{NS}}}Value", {"value": label})
         attrs = {"functionName": "classification", "normalizationMethod": "logit" if kind == "logistic" else "softmax"}
     model = ET.SubElement(root, f"{{{NS}}}RegressionModel", {"modelName": f"lintools {kind}", **attrs})
     schema = ET.SubElement(model, f"{{{NS}}}MiningSchema")
@@ -97,10 +173,10 @@ def write_pmml(fit: Any, path: str | os.PathLike, *, target: str | None = None, 
         ET.SubElement(schema, f"{{{NS}}}MiningField", {"name": name})
     ET.SubElement(schema, f"{{{NS}}}MiningField", {"name": target, "usageType": "target"})
 
-    def table(intercept: float, coefs: np.ndarray | None, category: Any = None) -> None:
+    def table(intercept: float, coefs: np.ndarray | None, category: str | None = None) -> None:
         a = {"intercept": _num(intercept)}
         if category is not None:
-            a["targetCategory"] = str(category)
+            a["targetCategory"] = category
         t = ET.SubElement(model, f"{{{NS}}}RegressionTable", a)
         if coefs is not None:
             for name, c in zip(fit.names, coefs):
@@ -109,136 +185,35 @@ def write_pmml(fit: Any, path: str | os.PathLike, *, target: str | None = None, 
     if kind == "least_squares":
         table(fit.intercept, fit.coefficients)
     elif kind == "logistic":
-        positive = fit.positive_class
-        other = next(c for c in fit.classes if c != positive)
-        table(fit.intercept, fit.coefficients, positive)
-        table(0.0, None, other)
+        pos = list(fit.classes).index(fit.positive_class)
+        table(fit.intercept, fit.coefficients, labels[pos])
+        table(0.0, None, labels[1 - pos])
     else:
-        for k, c in enumerate(fit.classes):
-            table(float(np.asarray(fit.intercept)[k]), np.asarray(fit.coefficients)[:, k], c)
+        for k, label in enumerate(labels):
+            table(float(np.asarray(fit.intercept)[k]), np.asarray(fit.coefficients)[:, k], label)
     file_path(path, "PMML file")
     buffer = io.BytesIO()
     ET.ElementTree(root).write(buffer, encoding="utf-8", xml_declaration=True)
     write_atomic(path, buffer.getvalue(), replace=replace, label="PMML file")
 
 
-def _strip(tag: str) -> str:
-    return tag.rsplit("}", 1)[-1]
-
-
-def _float_attr(el: ET.Element, name: str, where: str, default: str | None = None) -> float:
-    raw = el.get(name, default)
-    if raw is None:
-        raise InputError(f"PMML {where}: attribute '{name}' is missing")
-    try:
-        v = float(raw)
-    except ValueError:
-        raise InputError(f"PMML {where}: attribute '{name}' = {raw!r} is not a number") from None
-    if not math.isfinite(v):
-        raise InputError(f"PMML {where}: attribute '{name}' = {raw!r} is not finite")
-    return v
-
-
-class _Declaration(Exception):
-    pass
-
-
-def _refuse_declarations(raw: bytes, where: str) -> None:
-    """Refuse a DTD or entity declaration in any encoding (the byte test above sees only
-    ASCII-compatible ones): expat reports the declaration before anything is expanded."""
-
-    def stop(*_: Any) -> None:
-        raise _Declaration
-
-    parser = expat.ParserCreate()
-    parser.SetParamEntityParsing(expat.XML_PARAM_ENTITY_PARSING_NEVER)
-    parser.StartDoctypeDeclHandler = stop
-    parser.EntityDeclHandler = stop
-    parser.ExternalEntityRefHandler = stop
-    try:
-        parser.Parse(raw, True)
-    except _Declaration:
-        raise InputError(
-            f"{where!r} declares a DTD or entities; lintools refuses such XML (external entities, entity expansion)"
-        ) from None
-    except expat.ExpatError as exc:
-        raise InputError(f"{where!r} is not well-formed XML ({expat.ErrorString(exc.code)}, line {exc.lineno})") from None
-    except (LookupError, ValueError) as exc:  # an unknown or broken encoding declaration
-        raise InputError(f"{where!r} cannot be decoded as XML ({exc}); save it as UTF-8") from None
-
-
 def read_pmml(path: str | os.PathLike) -> DeliveredModel:
-    """Read a PMML ``RegressionModel`` and return its coefficients as a :class:`DeliveredModel`."""
+    """Read a PMML ``RegressionModel`` and return its coefficients as a :class:`DeliveredModel`.
+
+    Raises
+    ------
+    InputError
+        If the file is not a PMML 4.x document, declares a DTD or entities, or does not
+        agree with itself (see :mod:`lintools._pmml_read`); the message names the file,
+        the element or attribute, and the remedy.
+    """
     where = file_path(path, "PMML file")
-    raw = read_bounded(where, "PMML file", MAX_BYTES)
-    upper = raw.upper()
-    if b"<!DOCTYPE" in upper or b"<!ENTITY" in upper:
-        raise InputError(f"{where!r} declares a DTD or entities; lintools refuses such XML (external entities, entity expansion)")
-    _refuse_declarations(raw, where)
-    try:
-        root = ET.fromstring(raw)
-    except (ET.ParseError, LookupError, ValueError) as exc:
-        raise InputError(f"{where!r} is not well-formed XML ({exc})") from None
-    if _strip(root.tag) != "PMML":
-        raise InputError(f"{where!r} is not a PMML document (root element <{_strip(root.tag)}>)")
-    models = [el for el in root if _strip(el.tag) == "RegressionModel"]
-    others = [_strip(el.tag) for el in root if _strip(el.tag).endswith("Model") and _strip(el.tag) != "RegressionModel"]
-    if len(models) != 1:
-        found = f" (found: {', '.join(others)})" if others else ""
-        raise InputError(f"{where!r} must hold exactly one RegressionModel{found}")
-    model = models[0]
-    function = model.get("functionName")
-    norm = model.get("normalizationMethod", "none")
-    target = next(
-        (mf.get("name") for el in model if _strip(el.tag) == "MiningSchema" for mf in el
-         if _strip(mf.tag) == "MiningField" and mf.get("usageType") in ("target", "predicted")),
-        "y",
-    )
-    tables = [el for el in model if _strip(el.tag) == "RegressionTable"]
-    if not tables:
-        raise InputError(f"{where!r}: the RegressionModel has no RegressionTable")
-    names: list[str] | None = None
-    parsed = []
-    for t_index, t in enumerate(tables):
-        label = f"RegressionTable {t_index + 1}"
-        terms: dict[str, float] = {}
-        for el in t:
-            tag = _strip(el.tag)
-            if tag == "NumericPredictor":
-                name = el.get("name")
-                if not name:
-                    raise InputError(f"PMML {label}: a NumericPredictor has no name")
-                if _float_attr(el, "exponent", label, "1") != 1:
-                    raise InputError(f"PMML {label}: predictor '{name}' has an exponent other than 1; lintools reads linear terms only")
-                if name in terms:
-                    raise InputError(f"PMML {label}: predictor '{name}' appears twice")
-                terms[name] = _float_attr(el, "coefficient", f"{label}, predictor '{name}'")
-            elif tag in ("CategoricalPredictor", "PredictorTerm"):
-                raise InputError(f"PMML {label}: {tag} terms are not supported; encode them as numeric indicator columns")
-        parsed.append((t.get("targetCategory"), _float_attr(t, "intercept", label, "0"), terms))
-        if terms:
-            if names is None:
-                names = list(terms)
-            elif set(terms) != set(names):
-                raise InputError(f"PMML {label} has other predictors than the first table")
-    names = names or []
-    if function == "regression":
-        if norm != "none" or len(parsed) != 1:
-            raise InputError(f"{where!r}: a regression model must have one table and normalizationMethod 'none'")
-        _, b0, terms = parsed[0]
-        return DeliveredModel("least_squares", tuple(names), np.array([terms[n] for n in names]), b0, (), target, where)
-    if function != "classification":
-        raise InputError(f"{where!r}: functionName {function!r} is not 'regression' or 'classification'")
-    cats = tuple(c for c, _, _ in parsed)
-    if any(c is None for c in cats):
-        raise InputError(f"{where!r}: every RegressionTable of a classification model needs a targetCategory")
-    if norm == "logit":
-        if len(parsed) != 2 or any(parsed[1][2].values()) or parsed[1][1] != 0:
-            raise InputError(f"{where!r}: a logit model must have two tables, the second empty (the reference category)")
-        _, b0, terms = parsed[0]
-        return DeliveredModel("logistic", tuple(names), np.array([terms.get(n, 0.0) for n in names]), b0, cats, target, where)
-    if norm == "softmax":
-        B = np.array([[terms.get(n, 0.0) for (_, _, terms) in parsed] for n in names]).reshape(len(names), len(parsed))
-        b0 = np.array([b for _, b, _ in parsed])
-        return DeliveredModel("softmax", tuple(names), B, b0, cats, target, where)
-    raise InputError(f"{where!r}: normalizationMethod {norm!r} is not supported (lintools reads none, logit, softmax)")
+    return read_pmml_bytes(read_bounded(where, "PMML file", MAX_BYTES), where)
+
+
+def read_pmml_bytes(raw: bytes, where: str) -> DeliveredModel:
+    """The model in the bytes ``raw`` of the PMML file ``where`` (see :func:`read_pmml`)."""
+    if len(raw) > MAX_BYTES:
+        raise InputError(f"PMML file {where!r} is larger than the {MAX_BYTES} bytes allowed; check that this "
+                         "is the intended file")
+    return DeliveredModel(**parse_pmml(raw, where), source=where)

@@ -71,13 +71,15 @@ def test_dtd_and_entities_are_refused(tmp_path, name):
 BAD = [
     ("<PMML><RegressionModel", "not well-formed XML"),
     ("<Other/>", "not a PMML document"),
-    ('<PMML version="4.4"><TreeModel/></PMML>', "exactly one RegressionModel .found: TreeModel"),
+    ('<PMML xmlns="http://www.dmg.org/PMML-4_4" version="4.4"><DataDictionary/><TreeModel/></PMML>',
+     "exactly one RegressionModel .found: TreeModel"),
     (HAND_WRITTEN.replace('exponent="1" coefficient="0.75"', 'exponent="2" coefficient="0.75"'), "exponent other than 1"),
     (HAND_WRITTEN.replace('coefficient="0.75"', 'coefficient="abc"'), "is not a number"),
-    (HAND_WRITTEN.replace('coefficient="0.75"', 'coefficient="inf"'), "is not finite"),
+    (HAND_WRITTEN.replace('coefficient="0.75"', 'coefficient="inf"'), "is not a number"),
+    (HAND_WRITTEN.replace('coefficient="0.75"', 'coefficient="1e999"'), "is not finite"),
     (HAND_WRITTEN.replace('normalizationMethod="none"', 'normalizationMethod="exp"'), "normalizationMethod 'none'"),
-    (HAND_WRITTEN.replace('functionName="regression"', 'functionName="clustering"'), "is not 'regression' or 'classification'"),
-    (HAND_WRITTEN.replace('<NumericPredictor name="b" coefficient="-1.25"/>', '<CategoricalPredictor name="b" value="x" coefficient="1"/>'), "CategoricalPredictor terms are not supported"),
+    (HAND_WRITTEN.replace('functionName="regression"', 'functionName="clustering"'), "not 'regression' or 'classification'"),
+    (HAND_WRITTEN.replace('<NumericPredictor name="b" coefficient="-1.25"/>', '<CategoricalPredictor name="b" value="x" coefficient="1"/>'), "CategoricalPredictor terms in RegressionTable 1"),
 ]
 
 

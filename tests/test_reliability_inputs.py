@@ -52,7 +52,12 @@ with warnings.catch_warnings():
 
 PMML_OK = """<?xml version="1.0" encoding="UTF-8"?>
 <PMML xmlns="http://www.dmg.org/PMML-4_4" version="4.4">
+ <DataDictionary>
+  <DataField name="x1" optype="continuous" dataType="double"/>
+  <DataField name="y" optype="continuous" dataType="double"/>
+ </DataDictionary>
  <RegressionModel functionName="regression" normalizationMethod="none">
+  <MiningSchema><MiningField name="x1"/><MiningField name="y" usageType="target"/></MiningSchema>
   <RegressionTable intercept="0.5">
    <NumericPredictor name="x1" exponent="{exp}" coefficient="{coef}"/>
   </RegressionTable>
