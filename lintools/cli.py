@@ -32,6 +32,7 @@ from ._cli_calibration import add_calibration_parser
 from ._cli_check import add_check_parser
 from ._cli_common import CAUTION, Progress, column_list, emit_json
 from ._cli_demo import add_demo_parser
+from ._cli_table import add_table_options, table_options
 from ._errors import InputError, IterationLimitWarning, LintoolsError
 
 __all__ = ["CAUTION", "build_parser", "main"]
@@ -69,7 +70,7 @@ def _cmd_fit(args: argparse.Namespace) -> int:
 
     table = read_table(
         args.csv, target=args.target, features=column_list(args.features), weights=args.weights,
-        drop_missing=args.drop_missing,
+        drop_missing=args.drop_missing, **table_options(args, "categorical", "exclude"),
     )
     progress = Progress(args.quiet, "fit")
     with warnings.catch_warnings(record=True) as caught:
@@ -111,7 +112,7 @@ def _cmd_folds(args: argparse.Namespace) -> int:
     from .table import read_table
 
     extra = [args.label] + ([args.groups] if args.groups else [])
-    table = read_table(args.csv, target=None, features=[], extra=extra)
+    table = read_table(args.csv, target=None, features=[], extra=extra, **table_options(args))
     groups = table.extra[args.groups] if args.groups else None
     folds = stratified_folds(list(table.extra[args.label]), k=args.k, seed=args.seed, groups=groups)
     with open(args.csv, newline="", encoding="utf-8-sig") as fh:
@@ -141,6 +142,8 @@ def build_parser() -> argparse.ArgumentParser:
     def common(p: argparse.ArgumentParser) -> None:
         p.add_argument("--json", action="store_true", help="print one JSON document instead of text")
         p.add_argument("--quiet", action="store_true", help="no progress lines on standard error")
+        if p.prog.split()[-1] != "demo":  # every other command reads a CSV file
+            add_table_options(p)
 
     add_demo_parser(sub, common)
 
