@@ -80,11 +80,13 @@ class Piece:
     stripped tokens are given there); ``tokens[c]`` holds every stripped token of column
     ``c``.  ``lines`` is the file line on which each record starts.  ``integers[c]`` says
     whether every cell of column ``c`` in ``numbers`` was written as an integer.
+    ``matrix`` holds every column's values when the whole chunk was read as numbers.
     """
 
     lines: np.ndarray
     numbers: dict[int, np.ndarray] = field(default_factory=dict)
     integers: dict[int, bool] = field(default_factory=dict)
+    matrix: np.ndarray | None = None  # every column's values, when the whole chunk was numbers
     exceptions: dict[int, tuple[np.ndarray, np.ndarray]] = field(default_factory=dict)
     tokens: dict[int, np.ndarray] = field(default_factory=dict)
 
@@ -354,10 +356,11 @@ def _plain(lay: Layout, chunk: bytes, line0: int, plan: Plan) -> tuple[Piece, in
             cells = _Fields(chunk, a, np.flatnonzero((a == lay.delimiter[0]) | (a == 10)), k)
         return cells
 
-    if plan.numeric == every and k > 1:
+    if plan.numeric == every and k > 1 and chunk.strip(STRIP + b"\n"):  # (NumPy warns on no data)
         v = _loadtxt(lay, io.BytesIO(_for_numbers(lay, chunk)), n, None, k)
         if v is not None and longest <= lay.max_field:
-            piece = Piece(lines=np.arange(line0, line0 + n, dtype=np.int64), numbers={c: v[:, c] for c in every})
+            piece = Piece(lines=np.arange(line0, line0 + n, dtype=np.int64), numbers={c: v[:, c] for c in every},
+                          matrix=v)
             _integers(lay, piece, plan, a, ends, fields)
             return piece, n
         whole_failed = v is None
@@ -399,14 +402,15 @@ def _integers(lay: Layout, piece: Piece, plan: Plan, a: np.ndarray, ends: np.nda
     for c in plan.whole:
         if c not in piece.numbers:
             continue
-        v = piece.numbers[c]
-        finite = np.isfinite(v)
-        w = v[finite]
-        if not np.array_equal(w, np.trunc(w)) or not np.all(np.abs(w) < 2.0**53):
+        v = np.ascontiguousarray(piece.numbers[c])
+        finite = piece.matrix is not None or bool(np.isfinite(v).all())  # NaN marks a refused row
+        w = v if finite else v[np.isfinite(v)]
+        size_all = np.abs(w)
+        if not np.array_equal(w, np.trunc(w)) or not size_all.max(initial=0.0) < 2.0**53:
             piece.integers[c] = False
             continue
-        if finite.all() and c in (0, lay.k - 1):
-            size = np.searchsorted(_POWERS, np.abs(v), side="right") + 1 + (v < 0)
+        if finite and c in (0, lay.k - 1):
+            size = (1 if size_all.max(initial=0.0) < 10 else np.searchsorted(_POWERS, size_all, side="right") + 1) + (v < 0)
             if c == 0:
                 start = np.concatenate(([0], ends[:-1] + 1))
                 edge = a[np.minimum(start + size, last)]

@@ -105,9 +105,10 @@ class _Store:
         self.fill: dict[str, Any] = {}
         self.capacity = 0
 
-    def add(self, name: str, dtype: Any, fill: Any, width: int | None = None) -> None:
+    def add(self, name: str, dtype: Any, fill: Any = None, width: int | None = None) -> None:
+        """A new array; ``fill`` is the value of rows not yet written (None: every row is written)."""
         shape = (self.capacity,) if width is None else (self.capacity, width)
-        self.arrays[name] = np.full(shape, fill, dtype=dtype)
+        self.arrays[name] = np.empty(shape, dtype=dtype) if fill is None else np.full(shape, fill, dtype=dtype)
         self.fill[name] = fill
 
     def reserve(self, rows: int, estimate: int) -> None:
@@ -115,8 +116,11 @@ class _Store:
             return
         new = max(rows, estimate, int(self.capacity * 1.5) + 16)
         for name, arr in self.arrays.items():
-            arr.resize((new,) + arr.shape[1:], refcheck=False)
-            if self.fill[name] != 0:
+            if self.capacity == 0:  # the first reservation: no zero filling to pay for
+                arr = self.arrays[name] = np.empty((new,) + arr.shape[1:], dtype=arr.dtype)
+            else:
+                arr.resize((new,) + arr.shape[1:], refcheck=False)
+            if self.fill[name] is not None:
                 arr[self.capacity:] = self.fill[name]
         self.capacity = new
 
@@ -137,18 +141,19 @@ class Columns:
         self.rows = 0
         self._pending: list[tuple[int, int, str]] = []
         self.store = _Store()
-        self.store.add("lines", np.int64, 0)
+        self.store.add("lines", np.int64)
         if drop_missing:
             self.store.add("missing", np.bool_, False)
         block = [c for c in self.cols if c.spec.role == "feature" and c.numeric]
+        self._block_columns = [c.spec.index for c in block]
         if block:
-            self.store.add("block", np.float64, 0.0, len(block))
+            self.store.add("block", np.float64, width=len(block))
             for j, c in enumerate(block):
                 c.values, c.slot = "block", j
         for c in self.cols:
             if c.spec.role in ("target", "weights") and not c.spec.categorical:
                 c.values = f"values {c.spec.index}"
-                self.store.add(c.values, np.float64, 0.0)
+                self.store.add(c.values, np.float64)
 
     # ------------------------------------------------------------------ filling
     def plan(self) -> Plan:
@@ -164,6 +169,9 @@ class Columns:
         r0 = self.rows
         self.store.reserve(r0 + r, estimate)
         self.store["lines"][r0:r0 + r] = piece.lines
+        whole = piece.matrix is not None and bool(self._block_columns)
+        if whole:  # the block's rows in one copy
+            np.take(piece.matrix, self._block_columns, axis=1, out=self.store["block"][r0:r0 + r])
         for col in self.cols:
             c = col.spec.index
             if c in piece.numbers:
@@ -177,7 +185,8 @@ class Columns:
                         while rows is not None and i < rows.size and rows[i] == i:
                             i += 1
                         col.first_num = (int(piece.lines[i]), float(piece.numbers[c][i]))
-                    self._values(col)[r0:r0 + r] = piece.numbers[c]
+                    if not (whole and col.values == "block"):
+                        self._values(col)[r0:r0 + r] = piece.numbers[c]
                 if rows is not None:
                     self._cells(col, piece.lines, r0, rows, toks)
             elif c in piece.tokens:
@@ -271,25 +280,21 @@ class Columns:
         )
 
     def _mixed(self, col: _Col) -> str:
+        """A column of numbers and text: name its first text cell, and its first number."""
         spec = col.spec
         declare = _both(f"categorical=[{spec.name!r}]", "--categorical " + _cli_value(spec.name))
         assert col.first_text is not None and col.first_num is not None
         line_t, tok = col.first_text
-        shown = tok.decode("utf-8", "replace")
-        if col.n_text <= col.n_num:
-            others = f" ({col.n_text} cells are not numbers)" if col.n_text > 1 else ""
-            return (
-                f"{self.where!r} line {line_t}, {spec.label()}: {shown!r} is not a number, but {col.n_num} other "
-                f"cells of the column are numbers{others}. Fix the cell; if {shown!r} marks a missing value, add "
-                f"it to the missing-value tokens ({_both('missing_values=[...]', '--missing-values')}) and fill "
-                f"those cells in or drop their lines ({_both('drop_missing=True', '--drop-missing')}); if the "
-                f"column holds labels, declare it categorical ({declare})"
-            )
         line_n, value = col.first_num
+        shown = tok.decode("utf-8", "replace")
+        others = f"{col.n_text} cells are not numbers, " if col.n_text > 1 else ""
         return (
-            f"{self.where!r} line {line_n}, {spec.label()}: the cell is a number ({value:.17g}), but {col.n_text} "
-            f"other cells of the column are text (the first, {shown!r}, on line {line_t}). If the column holds "
-            f"labels, declare it categorical ({declare}); otherwise fix the cells"
+            f"{self.where!r} line {line_t}, {spec.label()}: {shown!r} is not a number, but the column holds "
+            f"numbers ({others}{col.n_num} are numbers, the first on line {line_n}: {value:.17g}). Fix the "
+            f"cell; if {shown!r} marks a missing value, add it to the missing-value tokens "
+            f"({_both('missing_values=[...]', '--missing-values')}) and fill those cells in or drop their lines "
+            f"({_both('drop_missing=True', '--drop-missing')}); if the column holds labels, declare it "
+            f"categorical ({declare})"
         )
 
     def _text_rules(self, col: _Col, names: list[str], rows: int) -> None:

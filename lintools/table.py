@@ -47,10 +47,22 @@ its options are named beside the Python arguments):
   for its number of levels; the remedy is ``exclude=[...]`` (``--exclude NAME``) or
   declaring it.  An undeclared column of dates or times (ISO dates and date-times,
   d/m/y or m/d/y dates, clock times) is refused; exclude it.
-* **Target and others.** The target column is numeric (returned as ints when every value
-  is a whole number below 2**53 in magnitude, else as floats) or text labels (returned as
-  str; declaring the target categorical reads numbers as labels too).  The weights
-  column must be numeric.  Extra columns are returned as their stripped text.
+* **Target and others.** The target column is numeric (returned as ints when every cell
+  is written as an integer, without decimal mark or exponent, and below 2**53 in
+  magnitude, else as floats) or text labels (returned as str; declaring the target
+  categorical reads numbers as labels too).  The weights column must be numeric.  Extra
+  columns are returned as their stripped text.  Unused columns are only split, never
+  typed.
+* **Memory and speed.** The file's bytes are held once; its cells are converted about
+  1 MB at a time straight into the arrays returned (numbers into one float64 block, text
+  into small integer codes of its levels).  Peak memory is at most the returned arrays
+  plus 2.5 times the file's size (measured: 1.4 times for a numeric file of 8-byte
+  cells, 1.6 times for one-character numbers, 2.1 times for one-character text; the
+  returned float64 matrix is itself 4 times the file for one-character cells).  Numeric
+  columns are parsed by NumPy's compiled text reader (:func:`numpy.loadtxt`), which on
+  the bytes these columns may hold accepts exactly the grammar above once its result is
+  required to be finite; rows it refuses are found by halving and their cells read one by
+  one, so the errors and values are those of the rules, never of the reader.
 """
 
 from __future__ import annotations
