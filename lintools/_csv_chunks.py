@@ -40,6 +40,7 @@ _NARROW = 32  # cells up to this many bytes are cut out as fixed-width byte stri
 _SMALL = 8  # rows refused by the compiled reader are looked at one by one below this many
 _LINE = re.compile(rb"[^\r\n]*(?:\r\n|\r|\n)?")
 _STRIP_TEXT = STRIP.decode()
+_NUMBER_BYTES = b"0123456789.,+-eE\n" + STRIP  # what cells of numbers, and their line ends, may hold
 _DECIMAL_COMMA = bytes.maketrans(b",.", b".#")  # '.' becomes a byte no number holds
 
 
@@ -203,7 +204,11 @@ def _rows_to_piece(rows: list[list[bytes]], lines: list[int], plan: Plan) -> Pie
 
 
 def _ragged(lay: Layout, line: int, got: int) -> InputError:
-    return InputError(f"{lay.where!r} line {line} has {got} fields but the header has {lay.k}")
+    hint = ""
+    if got > lay.k and lay.delimiter == b",":
+        hint = ("; a number written with a decimal comma or a thousands separator splits a cell in two: quote "
+                "such cells, or separate the file with ';' and pass decimal=',' (--decimal ,)")
+    return InputError(f"{lay.where!r} line {line} has {got} fields but the header has {lay.k}{hint}")
 
 
 def _quoted(lay: Layout, pos: int, line: int, plan: Plan) -> tuple[Piece, int, int]:
@@ -305,29 +310,65 @@ class _Fields:
         return int(lengths[i]), i // self.k
 
 
-def _numbers(lay: Layout, chunk: bytes, cols: tuple[int, ...], whole_failed: bool) -> tuple[np.ndarray, np.ndarray]:
-    """Values of ``cols`` for every line (NaN where refused) and the refused rows."""
+def _suspects(lay: Layout, chunk: bytes, a: np.ndarray, cells: _Fields, cols: tuple[int, ...]) -> np.ndarray:
+    """Rows with a cell of ``cols`` that cannot be a number: empty, or holding a byte no
+    number holds (found without parsing, so that the compiled reader is not tried on them)."""
+    grid = cells.grid
+    starts = np.empty_like(grid)
+    starts[:, 1:] = grid[:, :-1] + 1
+    starts[0, 0] = 0
+    starts[1:, 0] = grid[:-1, -1] + 1
+    lengths = (grid - starts)[:, cols]
+    bad = (lengths == 0).any(axis=1)
+    if chunk.translate(None, _NUMBER_BYTES + lay.delimiter):
+        lut = np.ones(256, dtype=bool)
+        lut[np.frombuffer(_NUMBER_BYTES + lay.delimiter, dtype=np.uint8)] = False
+        at = np.searchsorted(cells.bounds, np.flatnonzero(lut[a]))  # the cell of each such byte
+        hit = np.zeros(cells.grid.size, dtype=bool)
+        hit[at] = True
+        bad |= hit.reshape(grid.shape)[:, cols].any(axis=1)
+    return np.flatnonzero(bad)
+
+
+def _numbers(lay: Layout, chunk: bytes, cols: tuple[int, ...], suspects: Callable[[], np.ndarray],
+             tried: bool) -> tuple[np.ndarray, np.ndarray]:
+    """Values of ``cols`` for every line (NaN where refused) and the refused rows.
+
+    Every line goes to the compiled reader at once (unless ``tried``: it refused them
+    already); if it refuses, the ``suspects()`` rows
+    are set aside without a try, the others go to the reader together, and where it
+    refuses a stretch, the stretch is halved until the refused rows are found (at most
+    ``_SMALL`` rows are then looked at one by one).
+    """
     usecols = None if cols == tuple(range(lay.k)) else cols
     lines = _for_numbers(lay, chunk).split(b"\n")
     lines.pop()
     n = len(lines)
+    v = None if tried else _loadtxt(lay, lines, n, usecols, len(cols))
+    if v is not None:
+        return v, np.zeros(0, dtype=np.int64)
+    skip = suspects()
     values = np.full((n, len(cols)), np.nan)
-    refused: list[int] = []
-    stack = [(n // 2, n), (0, n // 2)] if whole_failed else [(0, n)]
+    keep = np.ones(n, dtype=bool)
+    keep[skip] = False
+    order = np.flatnonzero(keep)
+    chosen = lines if order.size == n else [lines[i] for i in order.tolist()]
+    refused: list[int] = skip.tolist()
+    stack = [(0, order.size)]
     while stack:
         lo, hi = stack.pop()
         if hi <= lo:
             continue
-        v = _loadtxt(lay, lines[lo:hi], hi - lo, usecols, len(cols))
+        v = _loadtxt(lay, chosen[lo:hi], hi - lo, usecols, len(cols))
         if v is not None:
-            values[lo:hi] = v
+            values[order[lo:hi]] = v
         elif hi - lo <= _SMALL:
-            refused.extend(range(lo, hi))
+            refused.extend(order[lo:hi].tolist())
         else:
             mid = (lo + hi) // 2
             stack.append((mid, hi))
             stack.append((lo, mid))
-    return values, np.array(refused, dtype=np.int64)
+    return values, np.array(sorted(refused), dtype=np.int64)
 
 
 def _for_numbers(lay: Layout, chunk: bytes) -> bytes:
@@ -342,12 +383,11 @@ def _plain(lay: Layout, chunk: bytes, line0: int, plan: Plan) -> tuple[Piece, in
     a = np.frombuffer(chunk, dtype=np.uint8)
     ends = np.flatnonzero(a == 10)
     n, k = ends.size, lay.k
-    lengths = np.diff(ends, prepend=-1) - 1
+    lengths = np.diff(ends, prepend=-1) - 1 - (a[ends - 1] == 13)  # without the line end
     longest = int(lengths.max())
     if longest > lay.max_line:
         raise _too_long(lay, line0 + int(np.argmax(lengths > lay.max_line)))
     every = tuple(range(k))
-    whole_failed = False
     cells: _Fields | None = None
 
     def fields() -> _Fields:
@@ -356,14 +396,15 @@ def _plain(lay: Layout, chunk: bytes, line0: int, plan: Plan) -> tuple[Piece, in
             cells = _Fields(chunk, a, np.flatnonzero((a == lay.delimiter[0]) | (a == 10)), k)
         return cells
 
+    tried = False
     if plan.numeric == every and k > 1 and chunk.strip(STRIP + b"\n"):  # (NumPy warns on no data)
         v = _loadtxt(lay, io.BytesIO(_for_numbers(lay, chunk)), n, None, k)
+        tried = True
         if v is not None and longest <= lay.max_field:
             piece = Piece(lines=np.arange(line0, line0 + n, dtype=np.int64), numbers={c: v[:, c] for c in every},
                           matrix=v)
             _integers(lay, piece, plan, a, ends, fields)
             return piece, n
-        whole_failed = v is None
     bounds = fields().bounds
     if k == 1 or bounds.size != n * k or not np.all(a[bounds[k - 1 :: k]] == 10):
         return _split_lines(lay, chunk, line0, plan), n
@@ -375,7 +416,7 @@ def _plain(lay: Layout, chunk: bytes, line0: int, plan: Plan) -> tuple[Piece, in
     for c in plan.tokens:
         piece.tokens[c] = fields().tokens(c)
     if plan.numeric:
-        values, refused = _numbers(lay, chunk, plan.numeric, whole_failed)
+        values, refused = _numbers(lay, chunk, plan.numeric, lambda: _suspects(lay, chunk, a, fields(), plan.numeric), tried)
         for j, c in enumerate(plan.numeric):
             piece.numbers[c] = values[:, j]
             if refused.size:

@@ -417,20 +417,26 @@ class Columns:
             X = self.store["block"][:rows]
         else:
             X = np.empty((rows, len(names)))
-            j = 0
+            parts = []  # (numbers, None) or (codes, the codes of the indicator columns)
             for col, text in blocks:
                 if text is None:
-                    X[:, j] = self._values(col)[:rows]
-                    j += 1
-                    continue
-                levels, ids, ref = text
-                codes = self.store[col.codes][:rows]
-                wanted = [code for i, code in enumerate(ids) if i != ref]
-                pattern = np.zeros((len(col.levels), len(wanted)))  # the indicator row of each code
-                pattern[wanted, np.arange(len(wanted))] = 1.0
-                for lo in range(0, rows, 1 << 16):
-                    X[lo:lo + (1 << 16), j:j + len(wanted)] = pattern[codes[lo:lo + (1 << 16)]]
-                j += len(wanted)
+                    parts.append((self._values(col), None))
+                else:
+                    _, ids, ref = text
+                    parts.append((self.store[col.codes], [code for i, code in enumerate(ids) if i != ref]))
+            step = max(1, (1 << 20) // (8 * max(1, len(names))))  # rows of about 1 MB of X at a time
+            for lo in range(0, rows, step):
+                hi = min(rows, lo + step)
+                j = 0
+                for source, wanted in parts:
+                    if wanted is None:
+                        X[lo:hi, j] = source[lo:hi]
+                        j += 1
+                        continue
+                    cut = source[lo:hi]
+                    for code in wanted:
+                        X[lo:hi, j] = cut == code
+                        j += 1
             self.store.arrays.pop("block", None)
         X.flags.writeable = False
         return X, tuple(names)
