@@ -32,7 +32,7 @@ from numpy.lib.stride_tricks import as_strided
 from ._csv_cells import STRIP
 from ._errors import InputError
 
-__all__ = ["CHUNK", "Layout", "Plan", "Piece", "pieces", "header_record", "line_of"]
+__all__ = ["CHUNK", "Layout", "Plan", "Piece", "pieces", "header_record"]
 
 #: Bytes per chunk (a chunk ends at the first line end after this many bytes).
 CHUNK = 1 << 20
@@ -90,11 +90,6 @@ class Piece:
     matrix: np.ndarray | None = None  # every column's values, when the whole chunk was numbers
     exceptions: dict[int, tuple[np.ndarray, np.ndarray]] = field(default_factory=dict)
     tokens: dict[int, np.ndarray] = field(default_factory=dict)
-
-
-def line_of(raw: bytes, pos: int) -> int:
-    """The 1-based line number of byte ``pos`` (line ends: LF, CRLF or a lone CR)."""
-    return raw.count(b"\n", 0, pos) + raw.count(b"\r", 0, pos) - raw.count(b"\r\n", 0, pos) + 1
 
 
 def _too_long(lay: Layout, line: int) -> InputError:
@@ -239,7 +234,7 @@ def _split_lines(lay: Layout, chunk: bytes, line0: int, plan: Plan) -> Piece:
     rows: list[list[bytes]] = []
     lines: list[int] = []
     for i, text in enumerate(chunk.split(b"\n")[:-1]):
-        if not text.strip(STRIP):
+        if not text.strip(STRIP) and lay.delimiter not in text:  # blank (a tab may be the separator)
             continue
         cells = text.split(lay.delimiter)
         if len(cells) != lay.k:
@@ -416,7 +411,8 @@ def _plain(lay: Layout, chunk: bytes, line0: int, plan: Plan) -> tuple[Piece, in
     for c in plan.tokens:
         piece.tokens[c] = fields().tokens(c)
     if plan.numeric:
-        values, refused = _numbers(lay, chunk, plan.numeric, lambda: _suspects(lay, chunk, a, fields(), plan.numeric), tried)
+        values, refused = _numbers(lay, chunk, plan.numeric,
+                                   lambda: _suspects(lay, chunk, a, fields(), plan.numeric), tried)
         for j, c in enumerate(plan.numeric):
             piece.numbers[c] = values[:, j]
             if refused.size:
@@ -451,7 +447,8 @@ def _integers(lay: Layout, piece: Piece, plan: Plan, a: np.ndarray, ends: np.nda
             piece.integers[c] = False
             continue
         if finite and c in (0, lay.k - 1):
-            size = (1 if size_all.max(initial=0.0) < 10 else np.searchsorted(_POWERS, size_all, side="right") + 1) + (v < 0)
+            digits = 1 if size_all.max(initial=0.0) < 10 else np.searchsorted(_POWERS, size_all, side="right") + 1
+            size = digits + (v < 0)
             if c == 0:
                 start = np.concatenate(([0], ends[:-1] + 1))
                 edge = a[np.minimum(start + size, last)]
@@ -466,7 +463,9 @@ def _integers(lay: Layout, piece: Piece, plan: Plan, a: np.ndarray, ends: np.nda
                     marked = marked or bool(np.isin(a[at], marks).any())
                 piece.integers[c] = not marked
                 continue
-        piece.integers[c] = not _marked(fields().tokens(c), lay.decimal)
+        refused = piece.exceptions[c][0] if c in piece.exceptions else np.zeros(0, dtype=np.int64)
+        read = np.setdiff1d(np.arange(v.size), refused)  # the refused rows' cells are classified apart
+        piece.integers[c] = not _marked(fields().tokens(c, read), lay.decimal)
 
 
 def _marked(tokens: np.ndarray, decimal: bytes) -> bool:

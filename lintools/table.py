@@ -305,6 +305,13 @@ def read_table(
     Returns
     -------
     Table
+
+    References
+    ----------
+    Shafranovich, Y. (2005). Common Format and MIME Type for Comma-Separated Values (CSV)
+    Files. RFC 4180 (the quoting rules).  Gay, D. M. (1990). Correctly rounded
+    binary-decimal and decimal-binary conversions. AT&T Bell Laboratories Numerical
+    Analysis Manuscript 90-10 (the conversion behind Python's ``float`` and NumPy's reader).
     """
     lay, pos, line = _read(path, delimiter, decimal, max_bytes, max_line_bytes)
     where, header = lay.where, list(lay.names)
@@ -318,11 +325,12 @@ def read_table(
             raise InputError(f"{role} column '{name}' is not in {where!r}; its columns are: {', '.join(header)}{hint}")
         return index[name]
 
-    extras = _names(extra, "extra")
-    special = [c for c in [target, weights, *extras] if c is not None]
-    for c, role in zip(special, (["target"] if target is not None else []) + (["weights"] if weights is not None
-                                                                              else []) + ["extra"] * len(extras)):
+    roles = ([(target, "target")] if target is not None else []) + ([(weights, "weights")] if weights is not None
+                                                                    else [])
+    roles += [(c, "extra") for c in _names(extra, "extra")]
+    for c, role in roles:
         column(c, role)
+    special = [c for c, _ in roles]
     if len(set(special)) != len(special):
         dup = next(c for c in special if special.count(c) > 1)
         raise InputError(f"column '{dup}' is named twice among the target, weights and extra columns")
@@ -338,7 +346,8 @@ def read_table(
         for f in feats:
             column(f, "feature")
             if f in special:
-                raise InputError(f"column '{f}' is named both as a feature and as the target, weights or an extra column")
+                raise InputError(f"column '{f}' is named both as a feature and as the target, weights or an extra "
+                                 "column")
             if f in excluded:
                 raise InputError(f"column '{f}' is named both as a feature and as excluded")
         if len(set(feats)) != len(feats):
@@ -353,9 +362,7 @@ def read_table(
     for name in refs:
         if name not in feats:
             raise InputError(f"reference level given for '{name}', which is not a feature column")
-    specs = [Spec(index[c], c, role, c in declared) for c, role in
-             [(target, "target")] * (target is not None) + [(weights, "weights")] * (weights is not None)
-             + [(c, "extra") for c in extras] + [(f, "feature") for f in feats]]
+    specs = [Spec(index[c], c, role, c in declared) for c, role in roles + [(f, "feature") for f in feats]]
 
     missing = _missing(missing_values)
     text_first = _text_first(lay, pos, specs, missing)
