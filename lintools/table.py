@@ -152,10 +152,11 @@ def _limit(value: object, label: str) -> int:
 def _delimiter(value: str | None, decimal: str) -> str | None:
     if value is None:
         return None
-    if not isinstance(value, str) or len(value) != 1 or value in "\"\r\n\x00 .+-" or value.isalnum():
+    if (not isinstance(value, str) or len(value) != 1 or not value.isascii() or value in "\"\r\n\x00 .+-"
+            or value.isalnum()):
         raise InputError(
-            f"delimiter must be one character other than a letter, digit, quote, space, line end, '.', '+' or "
-            f"'-'; got {value!r}"
+            f"delimiter must be one ASCII character other than a letter, digit, quote, space, line end, '.', '+' "
+            f"or '-'; got {value!r}"
         )
     if value == decimal:
         raise InputError(f"the separator and the decimal mark are both {value!r}; they must differ")

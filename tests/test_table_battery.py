@@ -130,8 +130,7 @@ LOCATION = re.compile(r"line (\d+), (?:target |weights )?column '([^']*)'")
 def test_every_file_is_refused_at_a_bad_cell_or_read_exactly_as_the_reference(tmp_path, monkeypatch, case, chunked):
     # oracle: the standard library's csv module plus the strict float parser above
     delimiter, text = case
-    if chunked:
-        monkeypatch.setattr(_csv_chunks, "CHUNK", 48)
+    monkeypatch.setattr(_csv_chunks, "CHUNK", 48 if chunked else 1 << 20)  # set in every example
     path = tmp_path / "battery.csv"
     path.write_bytes(text.encode("utf-8"))
     kind, expected = reference(text, delimiter, "y")
@@ -157,8 +156,7 @@ def test_every_file_is_refused_at_a_bad_cell_or_read_exactly_as_the_reference(tm
 def test_dropping_missing_values_keeps_exactly_the_complete_lines(tmp_path, monkeypatch, case, chunked):
     # oracle: the reference parser above, dropping the lines that hold a missing cell
     delimiter, text = case
-    if chunked:
-        monkeypatch.setattr(_csv_chunks, "CHUNK", 48)
+    monkeypatch.setattr(_csv_chunks, "CHUNK", 48 if chunked else 1 << 20)  # set in every example
     path = tmp_path / "battery.csv"
     path.write_bytes(text.encode("utf-8"))
     kind, expected = reference(text, delimiter, "y", frozenset(MISSING_VALUES) | {""}, drop=True)
