@@ -167,6 +167,7 @@ def swapped_class_warning(rep: CalibrationReport) -> str | None:
 def run_calibration(args: argparse.Namespace) -> int:
     """The ``calibration`` subcommand."""
     from ._files import write_atomic
+    from ._cli_table import table_options
     from .table import read_table
 
     if args.plot is not None:  # fail before any work when the extra is missing
@@ -178,7 +179,8 @@ def run_calibration(args: argparse.Namespace) -> int:
     if args.label == args.probability:
         raise InputError("--label and --probability name the same column; pass two columns")
     extra = [args.probability] + ([args.weights] if args.weights else [])
-    table = read_table(args.csv, target=args.label, features=[], extra=extra, drop_missing=args.drop_missing)
+    table = read_table(args.csv, target=args.label, features=[], extra=extra, drop_missing=args.drop_missing,
+                       **table_options(args, "categorical"))
     p = probabilities_from_text(table.extra[args.probability], table.lines, args.probability, args.csv)
     w = _weights(table, args) if args.weights else None
     y = list(table.target)

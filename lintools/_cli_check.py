@@ -15,7 +15,6 @@ with the delivered model's feature names as columns and its target column.  The 
 from __future__ import annotations
 
 import argparse
-import csv
 import dataclasses
 import sys
 from dataclasses import dataclass
@@ -94,17 +93,6 @@ def read_delivered(path: str) -> Delivered:
     )
 
 
-def _header(path: str) -> list[str]:
-    try:
-        with open(path, newline="", encoding="utf-8-sig") as fh:
-            row = next(csv.reader(fh), [])
-    except OSError as exc:
-        raise InputError(f"cannot read {path!r}: {exc.strerror}") from None
-    except (csv.Error, UnicodeDecodeError) as exc:
-        raise InputError(f"{path!r} is not a readable CSV file ({exc})") from None
-    return [h.strip() for h in row]
-
-
 def _columns_for(names: tuple[str, ...], header: list[str], where: str) -> list[str]:
     """CSV columns behind the delivered names (``col=level`` names come from text column ``col``)."""
     cols: list[str] = []
@@ -124,12 +112,14 @@ def _columns_for(names: tuple[str, ...], header: list[str], where: str) -> list[
 
 def read_refit_data(args: argparse.Namespace, d: Delivered) -> tuple[Any, np.ndarray, str]:
     """Read the target and the delivered features; return (table, X in delivered order, target)."""
-    from .table import read_table
+    from ._cli_table import table_options
+    from .table import read_header, read_table
 
     target = args.target or d.target
-    header = _header(args.csv)
+    header = list(read_header(args.csv, **table_options(args, "categorical", header=True)))
     cols = _columns_for(d.names, header, args.csv)
-    kwargs = dict(target=target, features=cols, weights=args.weights, drop_missing=args.drop_missing)
+    kwargs = dict(target=target, features=cols, weights=args.weights, drop_missing=args.drop_missing,
+                  **table_options(args, "categorical"))
     table = read_table(args.csv, **kwargs)
     extra = [n for n in table.names if n not in d.names]
     if extra:  # a text column whose reference level differs from the delivered model's

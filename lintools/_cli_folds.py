@@ -18,17 +18,17 @@ from typing import Any
 import numpy as np
 
 from ._cli_common import MAX_SEED, check_output_paths, emit_json, whole
+from ._cli_table import table_options
 from ._errors import InputError
 
 
-def _raw_rows(path: str) -> list[list[str]]:
+def _raw_rows(path: str, delimiter: str, max_bytes: int) -> list[list[str]]:
     """The fields of every line of the CSV file, as written (header first)."""
     from ._files import read_bounded
-    from .table import MAX_BYTES
 
-    raw = read_bounded(path, "CSV file", MAX_BYTES)
+    raw = read_bounded(path, "CSV file", max_bytes)
     try:
-        return list(csv.reader(io.StringIO(raw.decode("utf-8-sig"), newline="")))
+        return list(csv.reader(io.StringIO(raw.decode("utf-8-sig"), newline=""), delimiter=delimiter))
     except (csv.Error, UnicodeDecodeError) as exc:
         raise InputError(f"{path!r} is not a readable CSV file ({exc})") from None
 
@@ -59,18 +59,19 @@ def run_folds(args: argparse.Namespace) -> int:
     from .table import read_table
 
     check_output_paths([("CSV file", args.csv)], [("--out", args.out)], args.replace)
-    rows = _raw_rows(args.csv)
+    extra = [args.label] + ([args.groups] if args.groups else [])
+    options = table_options(args)
+    table = read_table(args.csv, target=None, features=[], extra=extra, **options)
+    rows = _raw_rows(args.csv, table.delimiter, options["max_bytes"])
     header = rows[0] if rows else []
     if args.column in [h.strip() for h in header]:
         raise InputError(f"the file already has a column named '{args.column}'; pass another --column")
-    extra = [args.label] + ([args.groups] if args.groups else [])
-    table = read_table(args.csv, target=None, features=[], extra=extra)
     groups = table.extra[args.groups] if args.groups else None
     labels = list(table.extra[args.label])
     folds = stratified_folds(labels, k=args.k, seed=args.seed, groups=groups)
     by_line = dict(zip(table.lines.tolist(), folds.tolist()))
     text = io.StringIO(newline="")
-    writer = csv.writer(text)
+    writer = csv.writer(text, delimiter=table.delimiter)  # the input's own separator
     writer.writerow(header + [args.column])
     for lineno, row in enumerate(rows[1:], start=2):
         if lineno in by_line:

@@ -44,6 +44,7 @@ from ._cli_common import (
 from ._cli_console import CAUTION, Console, QuietPipe, report_text, translate, warnings_to_stderr
 from ._cli_demo import add_demo_parser
 from ._cli_folds import add_folds_parser
+from ._cli_table import add_table_options, table_options
 from ._errors import InputError, IterationLimitWarning, LintoolsError
 
 __all__ = ["CAUTION", "build_parser", "main"]
@@ -99,7 +100,7 @@ def _cmd_fit(args: argparse.Namespace) -> int:
                        args.replace)
     table = read_table(
         args.csv, target=args.target, features=column_list(args.features), weights=args.weights,
-        drop_missing=args.drop_missing,
+        drop_missing=args.drop_missing, **table_options(args, "categorical", "exclude"),
     )
     fit = _fit_table(table, args, Progress(args.quiet, "fit"))
     if any(f.name == "target" for f in dataclasses.fields(fit)):
@@ -151,6 +152,8 @@ def build_parser() -> argparse.ArgumentParser:
         p.add_argument("--json", action="store_true", help="print one JSON document instead of text")
         p.add_argument("--quiet", action="store_true",
                        help="nothing on standard error but errors: no notes, warnings, progress or caution")
+        if p.prog.split()[-1] != "demo":  # every other command reads a CSV file
+            add_table_options(p)
 
     add_demo_parser(sub, common)
 

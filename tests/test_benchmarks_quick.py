@@ -29,3 +29,16 @@ def test_out_of_core_benchmark_quick_mode_runs():
     for row in rows:
         assert min(float(v) for v in row[-3:]) >= 10, row  # digits of agreement (LRE)
     assert "all converged: True" in proc.stdout
+
+
+def test_read_table_benchmark_quick_mode_runs():
+    # the CSV benchmark in its tiny mode: read_table, numpy.loadtxt and pandas read the same
+    # files in child processes; read_table's values equal numpy.loadtxt's (no timing is asserted)
+    proc = subprocess.run(
+        [sys.executable, str(ROOT / "benchmarks" / "read_table.py"), "--quick"],
+        capture_output=True, text=True, timeout=300,
+    )
+    assert proc.returncode == 0, proc.stderr
+    for reader in ("read_table", "numpy.loadtxt", "pandas.read_csv"):
+        assert proc.stdout.count(reader) >= 2, proc.stdout
+    assert proc.stdout.count("read_table agrees with numpy.loadtxt (every value, exactly): True") == 2, proc.stdout

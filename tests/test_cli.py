@@ -55,7 +55,7 @@ def test_bad_input_exits_2_with_a_message(tmp_path):
     assert proc.returncode == 2
     assert "target column 'NOPE' is not in" in proc.stderr or "the column 'NOPE' is not in" in proc.stderr
     proc = run("fit", str(tmp_path / "missing.csv"), "--target", "y")
-    assert proc.returncode == 2 and "cannot read" in proc.stderr
+    assert proc.returncode == 2 and "cannot be read" in proc.stderr
     proc = run("fit")
     assert proc.returncode == 2
 

@@ -69,7 +69,7 @@ def test_bad_files_are_refused(tmp_path, text, fragment):
 
 
 def test_a_missing_file_is_an_input_error(tmp_path):
-    with pytest.raises(InputError, match="cannot read"):
+    with pytest.raises(InputError, match="cannot be read"):
         read_table(tmp_path / "nope.csv", target="y")
 
 
