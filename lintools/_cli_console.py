@@ -39,6 +39,8 @@ REMEDY_FLAGS: tuple[tuple[str, str], ...] = (
     (r"l2\s*=\s*", "--l2 "),
     (r"max_iter", "--max-iter"),
     (r"solver='(\w+)'", r"--solver \1"),
+    (r"solver=", "--solver "),
+    (r"target=", "--target "),
     (r"covariance='(\w+)'", r"--covariance \1"),
     (r"reference=None", "--symmetric"),
     (r"reference='first'", "--reference first"),
@@ -48,6 +50,17 @@ REMEDY_FLAGS: tuple[tuple[str, str], ...] = (
     (r"intercept=False", "--no-intercept"),
     (r"intercept=True", "an intercept (leave out --no-intercept)"),
     (r"drop_missing(=True)?", "--drop-missing"),
+    (r"decimal='([^']*)'", r"--decimal '\1'"),
+    (r"delimiter=(\S+) \(--delimiter \S+\)", r"--delimiter \1"),
+    (r"delimiter='([^']*)'", r"--delimiter '\1'"),
+    (r"delimiter=", "--delimiter "),
+    (r"missing_values=\[\.\.\.\]", "--missing-values TOKENS"),
+    (r"missing_values=?", "--missing-values"),
+    (r"categorical=\[([^\]]*)\]", r"--categorical \1"),
+    (r"exclude=\[([^\]]*)\]", r"--exclude \1"),
+    (r"features=\[\.\.\.\]", "--features NAMES"),
+    (r"max_line_bytes=?", "--max-line-bytes"),
+    (r"max_bytes=?", "--max-bytes"),
     (r"leave bins=None", "leave out --bins"),
     (r"bins=None", "no --bins"),
     (r"positive=<label of the positive class>", "--positive LABEL"),
@@ -59,24 +72,25 @@ REMEDY_FLAGS: tuple[tuple[str, str], ...] = (
     (r"seed\b", "--seed"),
 )
 
-_RULES = [(re.compile(r"(?<![\w-])" + pattern), replacement) for pattern, replacement in REMEDY_FLAGS]
-_QUOTED = re.compile(r"""(?<![=\w])'[^'\n]*'|(?<![=\w])"[^"\n]*\"""")
+_RULES = [re.compile(r"(?<![\w.-])" + pattern) for pattern, _ in REMEDY_FLAGS]
+#: One scan from left to right: at each place the first rule that matches there wins, and
+#: text in quotes that is not the value of a ``name='value'`` phrase (labels, column
+#: names, paths) is passed over whole, so a quote inside it never starts a phrase.
+_SCAN = re.compile("|".join([r"(?P<quoted>(?<![=\w])'[^'\n]*'|(?<![=\w])\"[^\"\n]*\")"]
+                            + [f"(?P<r{i}>{rule.pattern})" for i, rule in enumerate(_RULES)]))
 
 
-def _flags(text: str) -> str:
-    for rule, replacement in _RULES:
-        text = rule.sub(replacement, text)
-    return text
+def _replace(m: re.Match) -> str:
+    if m.group("quoted") is not None:
+        return m.group()
+    i = int(m.lastgroup[1:]) if m.lastgroup else next(
+        j for j in range(len(_RULES)) if m.group(f"r{j}") is not None)
+    return _RULES[i].sub(REMEDY_FLAGS[i][1], m.group(), count=1)
 
 
 def translate(message: str) -> str:
     """``message`` with the library's Python-argument phrases replaced by command-line options."""
-    out, pos = [], 0
-    for quoted in _QUOTED.finditer(message):
-        out += [_flags(message[pos:quoted.start()]), quoted.group()]
-        pos = quoted.end()
-    out.append(_flags(message[pos:]))
-    return "".join(out)
+    return _SCAN.sub(_replace, message)
 
 
 def report_text(fit: Any) -> str:

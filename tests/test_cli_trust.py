@@ -296,7 +296,7 @@ def test_every_remedy_phrase_of_the_library_names_an_option_under_the_command_li
     parser = build_parser()
     subs = next(a for a in parser._actions if a.dest == "command").choices.values()
     options = {a.dest for p in subs for a in p._actions} | {"intercept"}
-    phrase = re.compile(r"(?<![\w-])([A-Za-z_]\w*)(?:\s*(?:==|>=|<=|=|>|<)|(?=\b))")
+    phrase = re.compile(r"(?<![\w.-])([A-Za-z_]\w*)(?:\s*(?:==|>=|<=|=|>|<)|(?=\b))")
     found = 0
     for file, line, text in _library_messages():
         for m in phrase.finditer(text):
@@ -308,7 +308,7 @@ def test_every_remedy_phrase_of_the_library_names_an_option_under_the_command_li
             if name in NO_OPTION:
                 assert name not in options, f"{name} is now an option: translate it ({file}:{line})"
                 continue
-            again = re.compile(r"(?<![\w-])" + re.escape(m.group(0)))
+            again = re.compile(r"(?<![\w.-])" + re.escape(m.group(0)))
             assert not again.search(translate(text)), f"{file}:{line}: {text!r} -> {translate(text)!r}"
     assert found >= 30  # the scan saw the library's phrases (firth=True, l2 > 0, max_iter, positive=, ...)
 
