@@ -125,28 +125,7 @@ def _check_two(seen: dict) -> None:
     )
 
 
-#: Largest sum of magnitudes (of a column of X, of y, of the weights) over all blocks that
-#: the blocked fits accept: 2**500, about 3e150.  Their sums of weighted squares (R factors,
-#: information matrices, residual sums) stay below the float64 range for data within it.
-SUM_LIMIT = 2.0**500
-
-
-def _too_large(what: str, column: int | None = None, names: Any = None, total: float = math.inf,
-               index: int | None = None) -> None:
-    """Refuse a column of X, y or the weights whose magnitudes sum beyond :data:`SUM_LIMIT`
-    (over the rows of block ``index``, or over all blocks)."""
-    if column is not None:
-        what += f" column {column}" + (f" ('{names[column]}')" if names is not None and column < len(names) else "")
-    where, over = (f"block {index}: ", "the rows of the block") if index is not None else ("", "the blocks")
-    raise InputError(
-        f"{where}{what} is too large for a blocked fit: its magnitudes sum to {total:.3g} over {over}, "
-        f"beyond {SUM_LIMIT:.3g}, where the fit's weighted sums of squares would overflow; rescale "
-        f"{what} (divide by a power of ten; the fit changes only as the mathematics says), or fit "
-        "in memory"
-    )
-
-
-def check_block(index: int, item: Any, spec: BlockSpec, first: bool = False) -> tuple:
+def check_block(index: int, item: Any, spec: BlockSpec) -> tuple:
     """Validate one block; return ``(X, y, weights or None, column names or None, sums)``.
 
     ``y`` is a float array (numeric response), a label summary (``spec.labels ==
@@ -163,10 +142,10 @@ def check_block(index: int, item: Any, spec: BlockSpec, first: bool = False) -> 
         )
     try:
         X, found = as_matrix(item[0], "X", check_finite=False)
-        sums = block_sums(X, first)
-        if not np.isfinite(sums[0][0]):
+        sums = block_sums(X)
+        if not np.isfinite(sums[0]):
             check_finite(X, "X", found)  # names the first NaN or infinity
-            _too_large("X", index=index)
+            sums = block_sums(X, _HUGE_SCALE)  # finite values whose sum overflows
     except InputError as exc:
         raise _prefixed(index, exc) from None
     m, q = X.shape
@@ -195,17 +174,11 @@ def check_block(index: int, item: Any, spec: BlockSpec, first: bool = False) -> 
                 f"block {index}: weights has a negative value ({w[i]:g}) at row {i} of the block; "
                 "weights must be >= 0"
             )
-        with np.errstate(over="ignore"):
-            if not np.isfinite(np.add.reduce(w)):
-                _too_large("weights", index=index)
     if spec.labels is None:
         try:
             y = as_vector(item[1], "y", m)
         except InputError as exc:
             raise _prefixed(index, exc) from None
-        with np.errstate(over="ignore"):
-            if not np.isfinite(np.add.reduce(y)):
-                _too_large("y", index=index)
     elif isinstance(spec.labels, str) and spec.labels == "collect":
         y = _label_summary(index, item[1], m, w)
     elif isinstance(spec.labels, str) and spec.labels == COLLECT_ALL:
@@ -232,9 +205,14 @@ _PIECE = 1 << 15
 _STRIDE = 7
 
 
-def block_sums(X: np.ndarray, first: bool) -> tuple[np.ndarray, float | None]:
-    """The sums of a block's X: of all values, of every ``_STRIDE``-th value (row-major
-    order), and on the ``first`` pass of the magnitudes.
+#: Blocks whose values sum beyond the float64 range have their checksum sums formed on the
+#: values times this power of two (exact for all but values below about 1e-154).
+_HUGE_SCALE = 2.0**-512
+
+
+def block_sums(X: np.ndarray, scale: float = 1.0) -> np.ndarray:
+    """The sums of a block's X (times ``scale``): of all values and of every
+    ``_STRIDE``-th value (row-major order).
 
     The values are taken in row-major order, in pieces of a fixed number of rows (a view
     of a row-major block, a copy of one piece otherwise), and each piece's sums are added
@@ -246,14 +224,13 @@ def block_sums(X: np.ndarray, first: bool) -> tuple[np.ndarray, float | None]:
     m, p = X.shape
     rows = max(1, _PIECE // max(p, 1))
     sums = np.zeros(2)
-    mag = 0.0 if first else None
     with np.errstate(over="ignore", invalid="ignore"):
         for lo in range(0, m, rows):
             flat = np.ravel(X[lo : lo + rows])
+            if scale != 1.0:
+                flat = flat * scale
             sums += (np.add.reduce(flat), np.add.reduce(flat[::_STRIDE]))
-            if mag is not None:
-                mag += float(np.add.reduce(np.abs(flat)))
-    return sums, mag
+    return sums
 
 
 def _vector_sums(v: np.ndarray) -> np.ndarray:
@@ -270,8 +247,6 @@ class BlockPrint:
     rows: int
     x_sums: np.ndarray
     x_ends: np.ndarray
-    x_mag: float | None = None  # first pass only: the sums of |X| and of |y|
-    y_mag: float | None = None
     w_sums: np.ndarray | None = None
     y_sums: np.ndarray | None = None
     labels: dict | None = None  # first pass of a classifier: label -> (first row, total weight)
@@ -280,21 +255,18 @@ class BlockPrint:
     code_totals: np.ndarray | None = None
 
 
-def block_print(X: np.ndarray, sums: tuple, y: Any, w: np.ndarray | None, spec: BlockSpec) -> BlockPrint:
+def block_print(X: np.ndarray, sums: np.ndarray, y: Any, w: np.ndarray | None, spec: BlockSpec) -> BlockPrint:
     """The checksum of a checked block (``sums`` and ``y`` as :func:`check_block` returns
     them for ``spec``)."""
     m = X.shape[0]
     ends = np.stack([X[0], X[-1]]) if m else np.zeros((2, X.shape[1]))
-    pr = BlockPrint(m, sums[0], ends, sums[1])
+    pr = BlockPrint(m, sums, ends)
     if w is not None:
         pr.w_sums = _vector_sums(w)
     if isinstance(y, dict):  # the first pass of a classifier: the labels of the block
         pr.labels = {c: (v[1], v[2]) for c, v in y.items()}
     elif spec.labels is None:  # a numeric response
         pr.y_sums = _vector_sums(y)
-        if sums[1] is not None:
-            with np.errstate(over="ignore"):
-                pr.y_mag = float(np.add.reduce(np.abs(y)))
     else:  # class codes: 0/1 for the binary fit, indices into the classes for softmax
         c = y.astype(np.int64)  # exact integer sums; the row-number-weighted one sees any move of a label
         pr.code_sums = np.array([c.sum(), np.arange(1, m + 1, dtype=np.int64) @ c], dtype=np.int64)
@@ -318,23 +290,18 @@ class BlockChecksums:
     the checksums are compared exactly: changed values, values or labels moved to other
     rows (unless only between rows seven apart) are refused, whatever the memory layout
     or float type the block comes in.  Cost per pass: one sum over X in cache-sized
-    pieces (shared with the finiteness check) with a sum over a seventh of it, sums over
-    y and the weights, and on the first pass a sum of ``|X|`` (measured by
-    ``benchmarks/block_checksum.py``).
+    pieces (shared with the finiteness check) with a sum over a seventh of it, and sums
+    over y and the weights (measured by ``benchmarks/block_checksum.py``).
     """
 
     prints: dict[int, BlockPrint] = field(default_factory=dict)
-    totals: dict[str, Any] = field(default_factory=dict)
 
     def compare(self, index: int, passes: int, new: BlockPrint, spec: BlockSpec, names: Any) -> None:
         """Keep the print of pass 1; on a later pass raise an InputError naming the block
-        and what changed when ``new`` is not the print of the same block.  On pass 1 the
-        magnitudes are added up over the blocks, and a total beyond :data:`SUM_LIMIT` is
-        refused."""
+        and what changed when ``new`` is not the print of the same block."""
         old = self.prints.get(index)
         if old is None:
             self.prints[index] = new
-            self._add_up(new, names)
             return
         where = f"block {index} on pass {passes} differs from the same block on pass 1"
         if not (np.array_equal(new.x_sums, old.x_sums) and np.array_equal(new.x_ends, old.x_ends)):
@@ -360,24 +327,11 @@ class BlockChecksums:
                     )
             old.code_sums = new.code_sums  # later passes compare the codes directly
 
-    def _add_up(self, pr: BlockPrint, names: Any) -> None:
-        """Sums of magnitudes over the blocks of pass 1 (X columns, y, weights); refuse one
-        beyond :data:`SUM_LIMIT`, where the fits' weighted sums of squares would overflow."""
-        with np.errstate(over="ignore", invalid="ignore"):
-            for key, value in (("X", pr.x_mag), ("y", pr.y_mag),
-                               ("weights", None if pr.w_sums is None else float(pr.w_sums[0]))):
-                if value is None:
-                    continue
-                total = self.totals.get(key, 0.0) + value
-                if not total <= SUM_LIMIT:
-                    _too_large(key, total=total)
-                self.totals[key] = total
 
-
-def run_task(kernel: Callable, index: int, item: Any, spec: BlockSpec, args: tuple, first: bool) -> tuple[dict, dict]:
+def run_task(kernel: Callable, index: int, item: Any, spec: BlockSpec, args: tuple) -> tuple[dict, dict]:
     """Check a block and apply ``kernel(X, y, w, *args)`` to it (the map step of a pass);
     return the kernel's summary and ``{index: checksum of the block}``."""
-    X, y, w, _, sums = check_block(index, item, spec, first)
+    X, y, w, _, sums = check_block(index, item, spec)
     pr = block_print(X, sums, y, w, spec)
     out = kernel(X, y, w, *args)
     out["rows"] = X.shape[0]
@@ -467,7 +421,7 @@ class _StreamRunner:
 
         def parts():
             for index, item in enumerate(iterator):
-                X, y, w, found, sums = check_block(index, item, self.spec, first)
+                X, y, w, found, sums = check_block(index, item, self.spec)
                 if index == 0 and first:
                     self.spec = BlockSpec(X.shape[1], self.spec.labels, w is not None)
                     self.names = found

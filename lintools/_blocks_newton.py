@@ -18,26 +18,24 @@ from .losses import BinomialLoss
 from .solvers import Evaluation, IterationRecord, SingularMatrixError
 from .solvers.newton import newton
 
-from ._block_stream import _add, _check_two, _positive_rows, _runner
-from ._blocks_tsqr import _factor, _merge_factors
+from ._block_stream import _add, _check_two, _runner
+from ._blocks_tsqr import _ls_factor_kernel, _ls_merge, in_caller_units
 
 
 def _design_kernel(X: np.ndarray, labels: dict, w: np.ndarray | None, intercept: bool) -> dict:
-    """Pass 1 of the logistic fit: labels, the R factor of the weighted centred X and the
+    """Pass 1 of the logistic fit: labels, the R factor of the weighted centred X in the
+    block's own units (see :func:`lintools._blocks_tsqr._ls_factor_kernel`) and the
     largest weight (by which later passes divide the weights)."""
-    n_rows = X.shape[0]
-    Xp, _, wp = _positive_rows(X, None, w)
-    out = {"n_pos": Xp.shape[0], "n_rows": n_rows, "labels": labels,
-           "wmax": float(wp.max()) if (wp is not None and wp.size) else 1.0}
-    if Xp.shape[0]:
-        out["lo"], out["hi"] = Xp.min(axis=0), Xp.max(axis=0)
-        out.update(_factor(np.array(Xp), wp, intercept))  # a copy: _factor works in place and blocks are read-only views
+    out = _ls_factor_kernel(X, None, w, intercept)
+    wp = None if w is None else w[w > 0]
+    out.update(labels=labels, wmax=float(wp.max()) if (wp is not None and wp.size) else 1.0)
     return out
 
 
 def merge_design(a: dict, b: dict, intercept: bool) -> dict:
-    """Two pass-1 summaries combined (the R factors by TSQR, the largest weight kept)."""
-    out = _merge_factors(a, b, intercept)
+    """Two pass-1 summaries combined (the R factors by TSQR in common units, the largest
+    weight kept)."""
+    out = _ls_merge(a, b, intercept)
     out["wmax"] = max(a["wmax"], b["wmax"])
     return out
 
@@ -321,7 +319,7 @@ def logistic_blocks(
     """
     intercept, lam, tol, max_iter = check_fit_settings(intercept, l2, tol, max_iter, on_iteration)
     run = _runner(source, X, y, weights, labels="collect")
-    part = run.reduce(_design_kernel, merge_design, (intercept,), (intercept,))
+    part = in_caller_units(run.reduce(_design_kernel, merge_design, (intercept,), (intercept,)))
     p = run.spec.p
     names_t = check_names(names, p, run.names)
     seen = part["labels"]
@@ -334,6 +332,7 @@ def logistic_blocks(
         )
     if part["n_pos"] == 0:
         raise InputError("weights are zero in every block; at least one row needs a positive weight")
+    scale = weights_scale(part)  # refuses a total weight beyond float64 before any share of it
     W = part["W"]
     successes = seen[classes[1]][2]
     if successes <= 0 or successes >= W:
@@ -342,7 +341,6 @@ def logistic_blocks(
     c, s = _centres_and_scales(part, intercept, lam, names_t)
     rate = min(max(successes / W, 1e-12), 1.0 - 1e-12)
     b_start = math.log(rate) - math.log1p(-rate)
-    scale = weights_scale(part)
     check_l2_scale(lam, scale)
     problem = _BlockProblem(_Coded(run, classes), c, s, intercept, lam, b_start, scale, W / scale)
 
@@ -389,8 +387,12 @@ class _Coded:
 
 
 def _centres_and_scales(part: dict, intercept: bool, lam: float, names: tuple[str, ...]) -> tuple[np.ndarray, np.ndarray]:
-    """Weighted means and standard deviations of the columns; constant and aliased columns."""
-    R, W, mean = part["R"], part["W"], part["mean"]
+    """Weighted means and standard deviations of the columns (``part`` as
+    :func:`lintools._blocks_tsqr.in_caller_units` returns it); constant and aliased columns.
+
+    The spreads come from the unit-scale R factor and are moved to the caller's units
+    exactly, so columns of size 1e300 or 1e-300 neither overflow nor underflow."""
+    R, mean = part["R_units"], part["mean"]
     p = R.shape[1]
     if intercept and p and lam == 0:
         const = np.flatnonzero(part["lo"] == part["hi"])
@@ -409,7 +411,9 @@ def _centres_and_scales(part: dict, intercept: bool, lam: float, names: tuple[st
         if msg:
             raise InputError(msg)
     c = mean if intercept else np.zeros(p)
-    sd = norms / math.sqrt(W)  # without an intercept: the root mean square, as LinearModelProblem
+    with np.errstate(over="ignore", under="ignore"):
+        # without an intercept: the root mean square, as LinearModelProblem
+        sd = np.ldexp(norms / math.sqrt(part["W_units"]), part["ez"])
     s = np.where((sd > 1e-13 * np.abs(c)) & (sd > 0) & np.isfinite(sd), sd, 1.0)
     return c, s
 

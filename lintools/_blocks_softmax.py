@@ -21,6 +21,7 @@ from .solvers.newton import newton
 
 from ._block_stream import COLLECT_ALL, ClassIndex, _merge_labels, _runner
 from ._blocks_newton import _PassProblem, _centres_and_scales, centred_block, merge_design, weights_scale
+from ._blocks_tsqr import in_caller_units
 from ._blocks_newton import _design_kernel as _binary_design_kernel
 
 __all__ = ["softmax_blocks"]
@@ -275,7 +276,7 @@ def softmax_blocks(
     if reference is None:
         _reference_index(None, (), lam)  # the symmetric form needs l2 > 0: say so before any pass
     run = _runner(source, X, y, weights, labels=COLLECT_ALL)
-    part = run.reduce(_design_kernel, _merge_design, (intercept,), (intercept,))
+    part = in_caller_units(run.reduce(_design_kernel, _merge_design, (intercept,), (intercept,)))
     p = run.spec.p
     names_t = check_names(names, p, run.names)
     seen = part["classes"]
@@ -286,6 +287,7 @@ def softmax_blocks(
                          "two: check the target column or the rows selected")
     if part["n_pos"] == 0:
         raise InputError("weights are zero in every block; at least one row needs a positive weight")
+    scale = weights_scale(part)  # refuses a total weight beyond float64 before any share of it
     totals = np.array([seen[c][2] for c in classes])
     if np.any(totals <= 0):
         label = classes[int(np.argmin(totals > 0))]
@@ -306,7 +308,6 @@ def softmax_blocks(
     a_start = logs[1:] - logs[0] if ref is not None else logs - logs.mean()
     Kf = K - 1 if ref is not None else K
     runner = _Indexed(run, classes, inverse, ref is not None, intercept)
-    scale = weights_scale(part)
     check_l2_scale(lam, scale)
     problem = _SoftmaxBlockProblem(runner, c, s, intercept, lam, Kf, a_start, scale, part["W"] / scale)
     target: Any = problem

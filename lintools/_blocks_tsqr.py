@@ -89,19 +89,21 @@ def _merge_factors(a: dict, b: dict, intercept: bool) -> dict:
     return out
 
 
-def _ls_factor_kernel(X: np.ndarray, y: np.ndarray, w: np.ndarray | None, intercept: bool) -> dict:
-    """Pass 1 of least squares: R factor of ``[X, y]`` in the block's own units (each column
-    and the weights divided by a power of two, exactly; see :mod:`lintools._lsq_scale`),
-    and the extremes of each column."""
+def _ls_factor_kernel(X: np.ndarray, y: np.ndarray | None, w: np.ndarray | None, intercept: bool) -> dict:
+    """Pass 1 of least squares (and, with ``y=None``, the design pass of the likelihood
+    fits): R factor of ``[X, y]`` in the block's own units (each column and the weights
+    divided by a power of two, exactly; see :mod:`lintools._lsq_scale`), and the extremes
+    of each column."""
     n_rows = X.shape[0]
     X, y, w = _positive_rows(X, y, w)
     m, p = X.shape
     out = {"n_pos": m, "n_rows": n_rows}
     if m == 0:
         return out
-    Z = np.empty((m, p + 1))
+    Z = np.empty((m, p + (y is not None)))
     Z[:, :p] = X
-    Z[:, p] = y
+    if y is not None:
+        Z[:, p] = y
     out["lo"], out["hi"] = Z.min(axis=0), Z.max(axis=0)
     ez = column_exponents(Z)
     np.ldexp(Z, -ez, out=Z)
@@ -111,6 +113,24 @@ def _ls_factor_kernel(X: np.ndarray, y: np.ndarray, w: np.ndarray | None, interc
         ew += ew % 2  # even: the R factor carries sqrt(w), rescaled exactly by 2**(ew / 2)
         w = np.ldexp(w, -ew)
     out.update(_factor(Z, w, intercept), ez=ez, ew=ew)
+    return out
+
+
+def in_caller_units(part: dict) -> dict:
+    """``W``, ``mean`` and ``R`` of a merged pass-1 summary in the caller's units (``W``
+    may overflow to inf: the caller refuses a total weight beyond float64), keeping the
+    unit-scale ``R`` (``R_units``) and the column exponents for overflow-free norms."""
+    out = dict(part)
+    if "R" not in part:
+        return out
+    ez, ew = part["ez"], part["ew"]
+    with np.errstate(over="ignore", under="ignore"):
+        out["W"] = float(np.ldexp(part["W"], ew))
+        out["mean"] = np.ldexp(part["mean"], ez)
+        out["mean_lo"] = np.ldexp(part["mean_lo"], ez)
+        out["R"] = np.ldexp(part["R"], ez[None, :] + ew // 2)
+    out["R_units"] = part["R"]
+    out["W_units"] = part["W"]
     return out
 
 

@@ -80,10 +80,9 @@ class DaskRunner:
         if labels != "same":
             self.spec = BlockSpec(self.p, labels, self.spec.weights)
         self.passes += 1
-        first = self.passes == 1
         task = dask.delayed(run_task, pure=True)
         merge = dask.delayed(combine_task, pure=True)
-        level = [task(kernel, i, item, self.spec, args, first) for i, item in enumerate(self.items)]
+        level = [task(kernel, i, item, self.spec, args) for i, item in enumerate(self.items)]
         while len(level) > 1:
             pairs = [merge(combine, level[i], level[i + 1], *cargs) for i in range(0, len(level) - 1, 2)]
             if len(level) % 2:

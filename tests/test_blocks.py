@@ -476,11 +476,14 @@ def test_the_same_values_in_another_memory_layout_are_the_same_block():
 
 def test_weights_too_large_for_a_blocked_fit_are_refused():
     # issue #16: weights of 1e308 raised numpy's LinAlgError "SVD did not converge"
+    # the total weight leaves float64: refused by that reason, as in memory
     w = np.full(DX.shape[0], 1e308)
-    with pytest.raises(InputError, match="too large for a blocked fit"):
+    with pytest.raises(InputError, match="case weights add up to more than the largest float64 number"):
         least_squares_blocks(blocks(DX, DY, w))
-    with pytest.raises(InputError, match="block 0: weights is too large for a blocked fit"):
+    with pytest.raises(InputError, match="weights sum to more than float64 holds"):
         logistic_blocks(blocks(BX, BY, np.full(BX.shape[0], 1e308)))
+    with pytest.raises(InputError, match="weights sum to more than float64 holds"):
+        lt.softmax_blocks(blocks(BX, BY, np.full(BX.shape[0], 1e308)))
 
 
 def test_a_source_that_needs_arguments_is_refused_before_the_first_pass():

@@ -416,6 +416,14 @@ def dask_spec(name: str, fn: Callable[..., Any], y: np.ndarray, **extra_args: An
     return spec(name, fn, args=args, extra=extra, only=("X", "y", "weights"))
 
 
+def DELIVERED(tmp: Path) -> Any:
+    """The logistic baseline as a supplier's PMML file would deliver it (read back)."""
+    path = tmp / "delivered.pmml"
+    if not path.exists():
+        lt.write_pmml(LOGI, path)
+    return lt.read_pmml(path)
+
+
 def specs(tmp: Path) -> list[Spec]:
     """Every public callable with its valid baseline (files are made in ``tmp``)."""
     model = tmp / "model.json"
@@ -518,6 +526,9 @@ def specs(tmp: Path) -> list[Spec]:
         spec("TemperatureMap.apply[multiclass]", TEMP3.apply, ("logits",), args={"logits": Z3}),
         spec("IsotonicMap.apply", ISO.apply, ("p",), args={"p": P}),
         spec("SeparationCheck.describe", SEP.describe),
+        spec("DeliveredModel.linear_predictor", DELIVERED(tmp).linear_predictor, ("X",), args={"X": X}),
+        spec("DeliveredModel.mean", DELIVERED(tmp).mean, ("X",), args={"X": X}),
+        spec("DeliveredModel.report", DELIVERED(tmp).report),
         spec("MultinomialSeparationCheck.describe", SEP3.describe),
     ]
     return out
@@ -572,12 +583,6 @@ KNOWN: list[Known] = [
           "(~line 225): np.ndim of a ragged list raises numpy's ValueError"),
     Known(("LinearFit.mean", "LinearFit.linear_predictor"), "X", EXTREME, "_records.py linear_predictor: X near "
           "1e308 overflows in X @ coefficients (RuntimeWarning)"),
-    Known(LEAST_SQUARES, "y", EXTREME, "least_squares.py: y of 1e-300 and below raises ZeroDivisionError "
-          "(r2 = 1 - rss / tss); y near 1e300-1e308 overflows (RuntimeWarning)"),
-    Known(LEAST_SQUARES, "X", EXTREME, "least_squares.py: X near 1e300-1e308 overflows in the Gram and norm passes "
-          "(RuntimeWarning)"),
-    Known(("least_squares",), "weights", EXTREME, "least_squares.py / linalg.py: weights of 1e308 raise numpy "
-          "LinAlgError 'SVD did not converge'; one weight of 1e308 overflows (RuntimeWarning)"),
     Known(LOGISTIC + ("softmax", "softmax[[]*"), "X", EXTREME, "solvers/_kernels.py, solvers/problem.py (logistic "
           "and softmax fronts): X near 1e300-1e308 overflows in exp2, matmul or square (RuntimeWarning)"),
     Known(LOGISTIC + ("softmax",), "weights", EXTREME, "logistic.py (~404), solvers/problem.py (~184), "
@@ -587,16 +592,10 @@ KNOWN: list[Known] = [
     Known(("logistic",), "offset", EXTREME, "losses.py (~234): an offset of 1e308 overflows in matmul (RuntimeWarning)"),
     Known(("logistic[[]firth]",), "profile", ("True", "np.bool"), "solvers/base.py (~131): the profile intervals of "
           "a Firth fit on separated data take the square root of a negative number (RuntimeWarning)"),
-    Known(("calibration_line",), "weights", EXTREME, "logistic.py (~404), solvers/base.py (~162) through "
-          "calibration_line's logistic fit: extreme weights overflow (RuntimeWarning)"),
     Known(("platt_scaling",), "scores", EXTREME, "solvers/_kernels.py through platt_scaling: scores near 1e300 "
           "overflow (RuntimeWarning)"),
     Known(("platt_scaling",), "weights", EXTREME, "recalibration.py (~107), solvers/base.py (~162): extreme "
           "weights overflow (RuntimeWarning)"),
-    Known(("isotonic_calibration",), "weights", EXTREME, "recalibration.py (~190): weights of 1e308 give 0/0 "
-          "(RuntimeWarning)"),
-    Known(("temperature_scaling*",), "weights", EXTREME, "_temperature.py (~166, 168): weights of 1e308 overflow "
-          "(RuntimeWarning)"),
     Known(("temperature_scaling*",), "logits", EXTREME, "_temperature.py (~86, 168): logits near 1e300 overflow "
           "(RuntimeWarning)"),
 ]
@@ -739,6 +738,7 @@ SPEC_NAMES = [
     "LogisticFit.report", "LogisticFit.coefficient_table", "SoftmaxFit.mean", "SoftmaxFit.linear_predictor",
     "SoftmaxFit.labels", "SoftmaxFit.report", "SoftmaxFit.coefficient_table", "PlattMap.apply",
     "TemperatureMap.apply", "TemperatureMap.apply[multiclass]", "IsotonicMap.apply", "SeparationCheck.describe",
+    "DeliveredModel.linear_predictor", "DeliveredModel.mean", "DeliveredModel.report",
     "MultinomialSeparationCheck.describe",
 ]
 
