@@ -779,8 +779,9 @@ def _t_sf_array(t: np.ndarray, df: np.ndarray) -> np.ndarray:
     if huge.any():
         # Fisher (1925): Pr(T > t) = Q(t) + phi(t) (t^3 + t) / (4 df) + O(df^-2)
         th = t[huge]
-        phi = np.exp(-0.5 * th * th) / _SQRT_2PI
-        out[huge] = _normal_sf(th) + phi * (th * th + 1.0) * th / (4.0 * df[huge])
+        tc = np.clip(th, -40.0, 40.0)  # beyond |t| = 40 the correction is below 1e-340: zero
+        phi = np.where(np.abs(th) < 40.0, np.exp(-0.5 * tc * tc) / _SQRT_2PI, 0.0)
+        out[huge] = _normal_sf(th) + phi * (tc * tc + 1.0) * tc / 4.0 / df[huge]  # no overflow of 4 df
     rest = fin & ~zero & ~inf & ~huge
     if rest.any():
         two_tail, central, _ = _t_parts(t[rest], df[rest])

@@ -20,7 +20,7 @@ import numpy as np
 
 from . import _distributions as dist
 from ._errors import InputError
-from ._validate import ReadOnlyArrays, as_matrix
+from ._validate import ReadOnlyArrays, as_matrix, scored
 
 __all__ = ["Convergence", "CoefficientTable", "LinearFit"]
 
@@ -250,8 +250,7 @@ class _FitBase(ReadOnlyArrays):
 
     def linear_predictor(self, X: Any) -> np.ndarray:
         """Return ``intercept + X @ coefficients`` for new rows ``X``."""
-        arr = self._design(X)
-        return arr @ self.coefficients + self.intercept
+        return scored(self._design(X), self.coefficients, self.intercept)
 
     def to_dict(self) -> dict[str, Any]:
         """Return the record as a dictionary of plain Python values (lists for arrays)."""
@@ -378,12 +377,12 @@ class LogisticFit(_FitBase):
 
     def linear_predictor(self, X: Any, offset: Any = None) -> np.ndarray:
         """``intercept + X @ coefficients (+ offset)`` for new rows ``X``."""
-        eta = super().linear_predictor(X)
+        arr = self._design(X)
         if offset is not None:
             from ._validate import as_offset
 
-            eta = eta + as_offset(offset, eta.shape[0])
-        return eta
+            offset = as_offset(offset, arr.shape[0])
+        return scored(arr, self.coefficients, self.intercept, offset)
 
     def _mean_from(self, eta: np.ndarray) -> np.ndarray:
         from .losses import sigmoid

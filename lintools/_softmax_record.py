@@ -9,6 +9,7 @@ import numpy as np
 
 from ._errors import InputError
 from ._records import INTERCEPT_NAME, CoefficientTable, _FitBase, _fmt_p, _wald_table, render_table
+from ._validate import scored
 
 __all__ = ["SoftmaxFit"]
 
@@ -97,12 +98,12 @@ class SoftmaxFit(_FitBase):
     # ----- evaluation on new rows ---------------------------------------------------------
     def linear_predictor(self, X: Any, offset: Any = None) -> np.ndarray:
         """``intercept + X @ coefficients (+ offset)``, (n, K)."""
-        E = self._design(X) @ self.coefficients + self.intercept
+        arr = self._design(X)
         if offset is not None:
             from ._validate import as_offset
 
-            E = E + as_offset(offset, E.shape[0], len(self.classes))
-        return E
+            offset = as_offset(offset, arr.shape[0], len(self.classes))
+        return scored(arr, self.coefficients, self.intercept, offset)
 
     def _mean_from(self, E: np.ndarray) -> np.ndarray:
         from ._multinomial import softmax_parts

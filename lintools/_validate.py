@@ -629,3 +629,24 @@ class ReadOnlyArrays:
             frozen = read_only(v)
             if frozen is not v:
                 object.__setattr__(self, f.name, frozen)
+
+
+def scored(X: np.ndarray, coefficients: np.ndarray, intercept: Any, offset: np.ndarray | None = None) -> np.ndarray:
+    """``X @ coefficients + intercept (+ offset)``: a model's linear predictor on new rows.
+
+    A row whose linear predictor leaves the float64 range (values or coefficients near
+    1e308) is refused by name rather than returned as inf or NaN: every number a model
+    scores is one the rows and the coefficients imply.
+    """
+    with np.errstate(over="ignore", invalid="ignore"):
+        eta = X @ coefficients + intercept
+        if offset is not None:
+            eta = eta + offset
+        quick = np.isfinite(np.add.reduce(eta, axis=None))
+    if not quick and not np.all(np.isfinite(eta)):
+        row = int(np.argwhere(~np.isfinite(eta))[0][0])
+        raise InputError(
+            f"X row {row}: the linear predictor leaves the float64 range (its values or the "
+            "coefficients are near 1e308); rescale the columns of X (and refit) before scoring"
+        )
+    return eta

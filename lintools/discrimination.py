@@ -116,14 +116,15 @@ def _placements(o: np.ndarray, s: np.ndarray, u: np.ndarray):
     """
     pos, neg = o == 1.0, o == 0.0
     sp, wp, sn, wn = s[pos], u[pos], s[neg], u[neg]
-    W1, W0 = float(wp.sum()), float(wn.sum())
     order_n = np.argsort(sn, kind="mergesort")
     cum_n = np.concatenate(([0.0], np.cumsum(wn[order_n])))
     order_p = np.argsort(sp, kind="mergesort")
     cum_p = np.concatenate(([0.0], np.cumsum(wp[order_p])))
-    v10 = _below_half(sn[order_n], cum_n, sp) / W0
-    v01 = 1.0 - _below_half(sp[order_p], cum_p, sn) / W1
-    area = float(wp @ v10) / W1
+    # the class totals are the running sums' last terms, so a share of all of them is 1 exactly
+    W1, W0 = float(cum_p[-1]), float(cum_n[-1])
+    v10 = np.clip(_below_half(sn[order_n], cum_n, sp) / W0, 0.0, 1.0)
+    v01 = np.clip(1.0 - _below_half(sp[order_p], cum_p, sn) / W1, 0.0, 1.0)
+    area = min(max(float(wp @ v10) / W1, 0.0), 1.0)  # a mean of shares in [0, 1], rounding aside
     return v10, v01, wp, wn, W1, W0, area
 
 

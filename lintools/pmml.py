@@ -38,7 +38,7 @@ import numpy as np
 from ._errors import InputError
 from ._files import file_path, read_bounded, write_atomic
 from ._pmml_read import NAMESPACES, parse_pmml
-from ._validate import as_matrix, check_names, name_problem, text_problem
+from ._validate import as_matrix, check_names, name_problem, scored, text_problem
 
 __all__ = ["DeliveredModel", "read_pmml", "write_pmml"]
 
@@ -73,7 +73,7 @@ class DeliveredModel:
         if arr.shape[1] != len(self.names):
             raise InputError(f"X has {arr.shape[1]} columns but the model has {len(self.names)} predictors "
                              f"({', '.join(self.names)}); pass the same columns in the same order")
-        return arr @ self.coefficients + self.intercept
+        return scored(arr, self.coefficients, self.intercept)
 
     def mean(self, X: Any) -> np.ndarray:
         """The model's prediction for new rows: the response (least squares), the

@@ -2,10 +2,18 @@
 
 Oracle tests import their oracle at module level, so a missing oracle is a collection
 error.  On top of that, any skipped test turns the run into a failure: this suite has no
-optional parts, and a skip would hide a missing oracle.
+optional parts, and a skip would hide a missing oracle.  Hypothesis runs from a fixed seed
+unless the "explore" profile is asked for.
 """
 
 import pytest
+from hypothesis import settings
+
+# Property tests draw their examples from a fixed seed, so a run of the suite (and CI) is
+# reproducible; `pytest --hypothesis-profile explore` draws new examples on every run.
+settings.register_profile("repeatable", derandomize=True)
+settings.register_profile("explore", derandomize=False)
+settings.load_profile("repeatable")
 
 _skipped: list[str] = []
 

@@ -101,7 +101,7 @@ def test_declared_categorical_and_limits(tmp_path):
      "--exclude does not apply"),
     (["folds", "{csv}", "--label", "leak", "--out", "{out}", "--categorical", "leak"], "--categorical does not apply"),
     (["fit", "{csv}", "--target", "leak", "--delimiter", "ab"], "delimiter must be one ASCII character"),
-    (["fit", "{csv}", "--target", "leak", "--max-line-bytes", "0"], "max_line_bytes must be a whole number"),
+    (["fit", "{csv}", "--target", "leak", "--max-line-bytes", "0"], "--max-line-bytes must be a whole number"),
 ])
 def test_options_that_do_not_apply_or_are_bad_exit_2(tmp_path, args, fragment):
     path = write(tmp_path)

@@ -581,8 +581,6 @@ KNOWN: list[Known] = [
           "2**63 run for ever (no upper bound on groups)", hang=True),
     Known(("PlattMap.apply", "IsotonicMap.apply", "TemperatureMap.apply*"), "*", ("ragged",), "_outcomes.py "
           "(~line 225): np.ndim of a ragged list raises numpy's ValueError"),
-    Known(("LinearFit.mean", "LinearFit.linear_predictor"), "X", EXTREME, "_records.py linear_predictor: X near "
-          "1e308 overflows in X @ coefficients (RuntimeWarning)"),
     Known(LOGISTIC + ("softmax", "softmax[[]*"), "X", EXTREME, "solvers/_kernels.py, solvers/problem.py (logistic "
           "and softmax fronts): X near 1e300-1e308 overflows in exp2, matmul or square (RuntimeWarning)"),
     Known(LOGISTIC + ("softmax",), "weights", EXTREME, "logistic.py (~404), solvers/problem.py (~184), "
