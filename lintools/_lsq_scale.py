@@ -36,6 +36,7 @@ from ._validate import power_of_two, weight_scale
 
 __all__ = ["Units", "exponent", "column_exponents", "scaled_sqrt", "to_caller"]
 
+_TINY = float(np.finfo(float).tiny)
 _LOG10_2 = math.log10(2.0)
 
 
@@ -106,10 +107,14 @@ class Units:
         return np.concatenate([[self.ey], slopes]) if intercept else slopes
 
     # ----- refusals -------------------------------------------------------------------
-    def check(self, figure: str, unit_value, exp, sources: Sequence[tuple[str, float]]) -> np.ndarray:
+    def check(self, figure: str, unit_value, exp, sources: Sequence[tuple[str, float]], *,
+              underflow_ok: bool = False) -> np.ndarray:
         """``unit_value * 2**exp``, or an InputError when a finite unit value leaves the float64
-        range.  ``sources``: (input, power) pairs, the inputs whose scale drives ``exp`` and
-        how (e.g. ``("y", 2)`` for a variance); the message names the one that pushes most."""
+        range: above it, or (unless ``underflow_ok``: a figure such as the gradient at the
+        optimum, whose size is rounding anyway) wholly below the normal range, where it would
+        read as 0 or keep few digits.  ``sources``: (input, power) pairs, the inputs whose
+        scale drives ``exp`` and how (e.g. ``("y", 2)`` for a variance); the message names the
+        one that pushes most."""
         out = to_caller(unit_value, exp)
         uv = np.asarray(unit_value, dtype=float)
         if not np.all(np.isfinite(uv)):
@@ -120,11 +125,32 @@ class Units:
             )
         bad = ~np.isfinite(out)
         if not bad.any():
+            top = float(np.max(np.abs(out))) if out.size else 0.0
+            if top < _TINY and not underflow_ok and np.any(uv != 0):  # the figure as a whole below the normal range
+                at = int(np.argmax(np.ravel(np.abs(uv) * np.ldexp(1.0, np.broadcast_to(np.asarray(exp), uv.shape)))))
+                e = int(np.ravel(np.broadcast_to(np.asarray(exp), uv.shape))[at])
+                size = math.log10(abs(float(np.ravel(uv)[at]))) + e * _LOG10_2
+                raise InputError(self._underflow_message(figure, size, sources))
             return out
         at = np.flatnonzero(np.ravel(bad))[0]
         e = int(np.ravel(np.broadcast_to(np.asarray(exp), uv.shape))[at])
         size = math.log10(abs(float(np.ravel(uv)[at]))) + e * _LOG10_2
         raise InputError(self._overflow_message(figure, size, sources))
+
+    def _underflow_message(self, figure: str, size: float, sources: Sequence[tuple[str, float]]) -> str:
+        push = []
+        for source, power in sources:
+            e, label = self._exponent_of(source)
+            push.append((power * e, label))
+        push.sort(key=lambda t: t[0])
+        label = push[0][1] if push and push[0][0] < 0 else "the data"
+        what = label.split(" (")[0]
+        return (
+            f"the {figure} of this least-squares fit would be about 1e{size:+.0f}, below the "
+            f"smallest normal float64 number (about 2.2e-308), where it would be stored as 0 or "
+            f"with few digits; it is the scale of {label} that takes it there. Rescale {what} by "
+            "a power of ten before fitting and scale the answer back"
+        )
 
     def _exponent_of(self, source: str) -> tuple[int, str]:
         if source == "y":

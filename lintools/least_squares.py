@@ -360,7 +360,7 @@ def _record(fit, units, W1, n_obs, df, w, lam, intercept, names_t, covariance, w
         units.check("residual standard error", rss / df_m, rss_exp - df_e, square)
     g_exp = ew + ey + np.concatenate([[0] * off, units.ex])
     grad = units.check("gradient", fit["grad"], g_exp,
-                       [("y", 1.0), ("weights", 1.0)] + [(c, 1.0) for c in columns])
+                       [("y", 1.0), ("weights", 1.0)] + [(c, 1.0) for c in columns], underflow_ok=True)
 
     # ---- likelihood ------------------------------------------------------------------
     if rss > 0:

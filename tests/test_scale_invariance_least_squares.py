@@ -108,18 +108,21 @@ def test_property_scaling_y_scales_coefficients_and_errors_by_c_and_variances_by
     """Invariance: y -> c y (c in [1e-300, 1e300], either sign) gives coefficients,
     intercept, standard errors and residual standard error times c, covariance and
     deviance times c^2, log-likelihood minus n log|c|, the same R^2, F, p, leverage and
-    Cook's distance; or, where a figure leaves the float64 range, a named refusal."""
+    Cook's distance; or, where a figure leaves the float64 range (above it, or wholly
+    below its normal numbers), a named refusal."""
     X, y, _ = prob
     c = _number(cs)
     base = _fitted(X, y, covariance=cov, diagnostics=True, method=method)
     size = max(_log10(np.abs(base.covariance).max()), _log10(base.deviance)) + 2 * math.log10(abs(c))
+    low = min(_log10(np.abs(base.covariance).max()), _log10(base.deviance)) + 2 * math.log10(abs(c))
     try:
         fit = _fitted(X, y * c, covariance=cov, diagnostics=True, method=method)
     except InputError as exc:
-        assert size > 307, (size, str(exc))
-        assert "beyond the largest float64" in str(exc) and "scale of y" in str(exc)
+        assert size > 307 or low < -307, (size, low, str(exc))
+        assert ("beyond the largest float64" in str(exc) or "below the smallest normal float64" in str(exc))
+        assert "scale of y" in str(exc)
         return
-    assert size < 309
+    assert size < 309 and low > -309
     assert fit.convergence.converged and fit.convergence.solver == base.convergence.solver
     se = base.standard_errors
     _close(fit.coefficients / c, base.coefficients, 1e-12, floor=se)
@@ -143,13 +146,15 @@ def test_property_scaling_y_scales_coefficients_and_errors_by_c_and_variances_by
 def test_property_y_times_a_power_of_two_gives_the_bits_times_that_power(prob, k, cov):
     """Invariance, exactly: y -> 2^k y changes no digit of the coefficients, standard errors
     or covariance, only their exponents (multiplication by 2^k is exact in IEEE 754), while
-    every figure stays in range (k in [-1000, 1000] and the fit not refused)."""
+    every figure stays in range (k in [-1000, 1000] and the fit not refused: refusals only
+    where a figure leaves the range)."""
     X, y, _ = prob
     base = _fitted(X, y, covariance=cov)
     try:
         fit = _fitted(X, np.ldexp(y, k), covariance=cov)
     except InputError as exc:
-        assert k > 400 and "beyond the largest float64" in str(exc)
+        assert (k > 400 and "beyond the largest float64" in str(exc)) or (
+            k < -400 and "below the smallest normal float64" in str(exc))
         return
     assert np.array_equal(fit.coefficients, np.ldexp(base.coefficients, k))
     assert fit.intercept == math.ldexp(base.intercept, k)
@@ -510,8 +515,18 @@ def _data(n=50, seed=0):
 
 
 @pytest.mark.parametrize("c", [1e-170, 1e-300])
-def test_tiny_y_is_fitted_not_a_division_by_zero(c):
-    """Regression: y * 1e-170 raised ZeroDivisionError.  Expected: the fit of y times c."""
+def test_tiny_y_is_refused_by_name_not_a_division_by_zero(c):
+    """Regression: y * 1e-170 raised ZeroDivisionError.  Its covariance (about 1e-340)
+    would be stored as 0 or a subnormal with few digits: refused, naming the covariance,
+    y and the remedy, as y * 1e300 is above the range."""
+    X, y = _data()
+    with pytest.raises(InputError, match=r"covariance of the coefficients .* below the smallest normal .* scale of y"):
+        lt.least_squares(X, y * c)
+
+
+def test_small_y_within_the_range_is_the_fit_of_y_times_c():
+    """y * 1e-150: every figure in the normal range; the fit of y times c."""
+    c = 1e-150
     X, y = _data()
     base, fit = lt.least_squares(X, y), lt.least_squares(X, y * c)
     _close(fit.coefficients / c, base.coefficients, 1e-13)
@@ -536,14 +551,18 @@ def test_huge_y_is_refused_by_name_not_given_nan_standard_errors():
 def test_tiniest_weights_give_the_unweighted_coefficients(weight_type):
     """Regression: precision weights of 5e-324 (the smallest float64) gave coefficients off
     in the 3rd digit, 'converged'.  Equal weights are no weights: the same coefficients
-    (1e-12); case weights that small count fewer observations than parameters: refused."""
+    (1e-12) at 1e-300; case weights that small count fewer observations than parameters,
+    and precision weights of 5e-324 a weighted residual sum of squares below the normal
+    float64 range: refused by name."""
     X, y = _data()
     base = lt.least_squares(X, y)
     if weight_type == "case":
         with pytest.raises(InputError, match="observations"):
             lt.least_squares(X, y, weights=np.full(50, 5e-324))
         return
-    fit = lt.least_squares(X, y, weights=np.full(50, 5e-324), weight_type="precision")
+    with pytest.raises(InputError, match=r"residual sum of squares .* below the smallest normal .* weights"):
+        lt.least_squares(X, y, weights=np.full(50, 5e-324), weight_type="precision")
+    fit = lt.least_squares(X, y, weights=np.full(50, 1e-300), weight_type="precision")
     _close(fit.coefficients, base.coefficients, 1e-12)
     _close(fit.standard_errors, base.standard_errors, 1e-12)
 
