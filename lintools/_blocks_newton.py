@@ -13,7 +13,7 @@ from ._scaling import check_l2_scale, scaled_back
 from ._validate import check_names
 from .inference import covariance, likelihood_fields
 from .linalg import default_rank_tolerance, dependency_sentence, unstandardise
-from .logistic import ETA_LIMIT, convergence_record, check_fit_settings
+from .logistic import DEFAULT_TOL, ETA_LIMIT, convergence_record, check_fit_settings
 from .losses import BinomialLoss
 from .solvers import Evaluation, IterationRecord, SingularMatrixError
 from .solvers.newton import newton
@@ -240,7 +240,7 @@ def logistic_blocks(
     weights: Any = None,
     intercept: bool = True,
     l2: float = 0.0,
-    tol: float = 1e-13,
+    tol: float = DEFAULT_TOL,
     max_iter: int = 100,
     names: Sequence[str] | None = None,
     on_iteration: Callable[[IterationRecord], Any] | None = None,

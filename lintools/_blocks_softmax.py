@@ -14,7 +14,7 @@ from ._scaling import caller_covariance, check_l2_scale, scaled_back
 from ._validate import check_names
 from .inference import likelihood_fields
 from .linalg import unstandardise
-from .logistic import ETA_LIMIT, convergence_record, check_fit_settings, check_parameters_and_rows
+from .logistic import DEFAULT_TOL, ETA_LIMIT, convergence_record, check_fit_settings, check_parameters_and_rows
 from .softmax import _intercept_subspace, _internal_terms, _reference_index, _z_covariance
 from .solvers import AffineProblem, Evaluation, IterationRecord, SingularMatrixError
 from .solvers.newton import newton
@@ -186,7 +186,7 @@ def softmax_blocks(
     intercept: bool = True,
     l2: float = 0.0,
     reference: Any = "first",
-    tol: float = 1e-13,
+    tol: float = DEFAULT_TOL,
     max_iter: int = 100,
     names: Sequence[str] | None = None,
     on_iteration: Callable[[IterationRecord], Any] | None = None,

@@ -20,7 +20,7 @@ from typing import Any
 
 import numpy as np
 
-from ._cli_common import check_output_paths, emit_json, match_label, probabilities_from_text, whole
+from ._cli_common import check_output_paths, emit_json, match_label, probabilities_in_range, whole
 from ._errors import InputError, LintoolsError
 
 PLOT_EXTRA = ('the plot extra: python -m pip install -e ".[plot]" in a checkout of lintools, '
@@ -143,19 +143,6 @@ def plot_reliability(table: Any, path: str, title: str = "Reliability diagram") 
     fig.savefig(path, format="png", dpi=100)
 
 
-def _weights(table: Any, args: argparse.Namespace) -> np.ndarray:
-    out = []
-    for text, line in zip(table.extra[args.weights], table.lines):
-        try:
-            v = float(text)
-        except ValueError:
-            v = float("nan")
-        if not np.isfinite(v):
-            raise InputError(f"{args.csv!r} line {line}, weights column '{args.weights}': {text!r} is not a finite number")
-        out.append(v)
-    return np.array(out)
-
-
 def swapped_class_warning(rep: CalibrationReport) -> str | None:
     """The warning for a ROC area below 0.5: the forecasts rank the other class higher."""
     if rep.roc_area is None or not rep.roc_area.area < 0.5:
@@ -178,11 +165,15 @@ def run_calibration(args: argparse.Namespace) -> int:
     check_output_paths([("CSV file", args.csv)], [("--plot", args.plot)], args.replace)
     if args.label == args.probability:
         raise InputError("--label and --probability name the same column; pass two columns")
-    extra = [args.probability] + ([args.weights] if args.weights else [])
-    table = read_table(args.csv, target=args.label, features=[], extra=extra, drop_missing=args.drop_missing,
-                       **table_options(args, "categorical"))
-    p = probabilities_from_text(table.extra[args.probability], table.lines, args.probability, args.csv)
-    w = _weights(table, args) if args.weights else None
+    # the probability column is read as a feature and the weights as weights: the reader's
+    # strict number rules (and --decimal, --missing-values) hold for them as for a fit
+    table = read_table(args.csv, target=args.label, features=[args.probability], weights=args.weights,
+                       drop_missing=args.drop_missing, **table_options(args, "categorical"))
+    if table.names != (args.probability,):
+        raise InputError(f"{args.csv!r}: the probability column '{args.probability}' holds text, not numbers; "
+                         "pass the column of predicted probabilities with --probability")
+    p = probabilities_in_range(table.X[:, 0], table.lines, args.probability, args.csv)
+    w = table.weights
     y = list(table.target)
     positive = match_label(args.positive, sorted(set(y), key=str), "--positive") if args.positive else None
     rep = calibration_report(y, p, positive=positive, bins=args.bins, strategy=args.strategy,

@@ -92,7 +92,7 @@ class Progress:
             return
         print(
             f"  {self.label}: iteration {record.iteration}, {elapsed:.1f} s: objective "
-            f"{record.objective:.12g}, max |gradient| {record.gradient_norm:.3g}",
+            f"{record.objective:.12g}, max |gradient| per unit weight {record.gradient_norm:.3g}",
             file=self.stream or sys.stderr,
             flush=True,
         )
@@ -118,20 +118,14 @@ def match_label(text: str, labels: Sequence[Any], option: str) -> Any:
     raise InputError(f"{option} {text!r} is not one of the labels in the file ({shown}); pass one of them")
 
 
-def probabilities_from_text(values: Sequence[str], lines: Sequence[int], column: str, where: str) -> np.ndarray:
-    """Parse a column of probabilities, naming the line of the first bad value."""
-    out = np.empty(len(values))
-    for i, (text, line) in enumerate(zip(values, lines)):
-        try:
-            v = float(text)
-        except ValueError:
-            raise InputError(f"{where!r} line {line}, column '{column}': {text!r} is not a number") from None
-        if not (0.0 <= v <= 1.0):
-            raise InputError(
-                f"{where!r} line {line}, column '{column}': {text!r} is not a probability in [0, 1]"
-            )
-        out[i] = v
-    return out
+def probabilities_in_range(values: np.ndarray, lines: Sequence[int], column: str, where: str) -> np.ndarray:
+    """``values`` (a numeric column read by :func:`lintools.read_table`), checked to be
+    probabilities in [0, 1]; the message names the line of the first that is not."""
+    bad = np.flatnonzero(~((values >= 0.0) & (values <= 1.0)))
+    if bad.size:
+        i = int(bad[0])
+        raise InputError(f"{where!r} line {int(lines[i])}, column '{column}': {float(values[i])!r} is not a probability in [0, 1]")
+    return values
 
 
 def implied_words(implied: Any, total_weight: float) -> str:
@@ -255,9 +249,11 @@ def add_fit_options(p: argparse.ArgumentParser, positive_help: str) -> None:
                    help="least squares: --weights are case weights (default; a weight of 2 is two copies of the "
                         "row) or precision weights (relative; only their ratios matter)")
     p.add_argument("--solver", choices=SOLVERS, help="logistic and softmax: newton (default), lbfgs or gradient")
+    from .logistic import DEFAULT_TOL
+
     p.add_argument("--tol", type=positive_number,
-                   help="logistic and softmax: stop when the max-abs (scale-free) gradient is below this "
-                        "(default 1e-10)")
+                   help="logistic and softmax: stop when the max-abs gradient per unit case weight (intercept "
+                        f"and standardised, centred columns) is at most this (default {DEFAULT_TOL:g})")
     p.add_argument("--max-iter", type=whole(1),
                    help="logistic and softmax: iteration limit (default 100; the gradient solvers need more)")
     p.add_argument("--firth", action="store_true",

@@ -54,8 +54,8 @@ def _kind(mode: int) -> str:
     return "not a regular file"
 
 
-def read_bounded(path: Any, label: str, limit: int, *, limit_hint: str = "") -> bytes:
-    """Return the bytes of the regular file ``path``, at most ``limit`` of them.
+def read_bounded(path: Any, label: str, limit: int, *, limit_hint: str = "") -> bytearray:
+    """Return the bytes of the regular file ``path`` (a bytearray), at most ``limit`` of them.
 
     Raises :class:`InputError` (naming ``label``, the path and the remedy) when the path
     is missing, unreadable, not a regular file, or holds more than ``limit`` bytes;
@@ -75,21 +75,26 @@ def read_bounded(path: Any, label: str, limit: int, *, limit_hint: str = "") -> 
             raise InputError(f"{label} {where!r} is a directory; pass the path of a file")
         if not stat.S_ISREG(mode):
             raise InputError(f"{label} {where!r} is {_kind(mode)}; pass the path of a regular file")
-        parts: list[bytes] = []
+        # one buffer, sized by the reported size and grown if the file grows: the file is
+        # held once in memory while reading (the size reported is a hint, never a limit)
+        hint = os.fstat(fd).st_size
+        buf = bytearray(min(max(hint, 0), limit) + 1)
         total = 0
         while True:
-            piece = os.read(fd, min(_CHUNK, limit + 1 - total))
-            if not piece:
+            if total == len(buf):
+                if total > limit:
+                    hint_text = f" ({limit_hint})" if limit_hint else ""
+                    raise InputError(
+                        f"{label} {where!r} is larger than the {limit} bytes allowed{hint_text}; "
+                        "check that this is the intended file"
+                    )
+                buf.extend(bytes(min(max(_CHUNK, total), limit + 1 - total)))
+            got = os.readv(fd, [memoryview(buf)[total:]])
+            if not got:
                 break
-            parts.append(piece)
-            total += len(piece)
-            if total > limit:
-                hint = f" ({limit_hint})" if limit_hint else ""
-                raise InputError(
-                    f"{label} {where!r} is larger than the {limit} bytes allowed{hint}; "
-                    "check that this is the intended file"
-                )
-        return b"".join(parts)
+            total += got
+        del buf[total:]
+        return buf
     except OSError as exc:
         raise InputError(f"{label} {where!r} cannot be read: {exc.strerror or exc}") from None
     finally:

@@ -285,7 +285,6 @@ def _mean(fit: Any, Xa: np.ndarray, coef: np.ndarray, b: Any) -> np.ndarray:
 
 def _score_statistic(fit, Xa, y, weights, coef, b, idx) -> float:
     """``U' I^{-1} U`` at the delivered coefficients (penalised objective when l2 > 0)."""
-    n = Xa.shape[0]
     free_intercept = fit.with_intercept and 0 not in idx
     with np.errstate(all="ignore"):  # an overflow shows as a non-finite score, refused below
         if fit.kind != "least_squares":
@@ -317,7 +316,6 @@ def _score_statistic(fit, Xa, y, weights, coef, b, idx) -> float:
 
 def _linear_score(fit, Xa, y, weights, coef, b, free_intercept) -> tuple[np.ndarray, np.ndarray]:
     """Score and information of least squares at the delivered coefficients (restricted variance)."""
-    n = Xa.shape[0]
     ya = as_vector(y, "y", n)
     w = as_weights(weights, n)
     if free_intercept:  # constrained estimate of the nuisance intercept
@@ -373,7 +371,6 @@ def implied_l2(
     """
     check_choice(model, "model", ("least_squares", "logistic", "softmax"))
     Xa, _ = as_matrix(X, "X")
-    n = Xa.shape[0]
     w = as_weights(weights, n)
     beta = _numbers(coefficients, "coefficients", vector=True)
     if intercept is not None:

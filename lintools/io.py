@@ -133,7 +133,7 @@ def _parse_numbers(raw: bytes, start: int, stop: int) -> Any:
         if markers:
             piece = _MARKERS.sub(lambda g: g.group(1), piece)
         try:
-            got = np.fromstring(piece, dtype=np.float64, sep=",")
+            got = np.fromstring(bytes(piece), dtype=np.float64, sep=",")
         except ValueError:
             return "holds a number NumPy cannot read"
         if done + got.size > count:

@@ -64,6 +64,11 @@ from .solvers.newton import newton
 
 __all__ = ["logistic"]
 
+#: The default stopping tolerance of every likelihood fit: the max-abs gradient per unit
+#: case weight with respect to the intercept and the standardised, centred columns
+#: (see :mod:`lintools.solvers`).
+DEFAULT_TOL = 1e-13
+
 #: |linear predictor| beyond which a row on the side of its outcome is a sign of divergence.
 ETA_LIMIT = 30.0
 #: At the answer, rows beyond this |eta| plus a large remaining Newton move call for the check.
@@ -295,7 +300,7 @@ def logistic(
     l2: float = 0.0,
     firth: bool = False,
     solver: str = "newton",
-    tol: float = 1e-13,
+    tol: float = DEFAULT_TOL,
     max_iter: int = 100,
     names: Sequence[str] | None = None,
     on_iteration: Callable[[IterationRecord], Any] | None = None,
@@ -645,7 +650,7 @@ def score_and_information(fit: LogisticFit, X: Any, y: Any, weights: Any, coef: 
     if fit.with_intercept:
         if free_intercept:
             P = LinearModelProblem(np.zeros((n, 0)), loss, intercept=True, offset=eta)
-            b = float(P.to_original(newton(P, tol=1e-13, max_iter=100).z)[0])
+            b = float(P.to_original(newton(P, tol=DEFAULT_TOL, max_iter=100).z)[0])
         eta = eta + float(b)
         A = np.column_stack([np.ones(n), Xa])
         theta = np.concatenate([[float(b)], coef])

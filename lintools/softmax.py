@@ -37,6 +37,7 @@ from ._validate import as_matrix, as_offset, as_weights, check_names, is_one_of
 from .inference import likelihood_fields
 from .logistic import _Watch as _BinaryWatch
 from .logistic import (
+    DEFAULT_TOL,
     ETA_SUSPECT,
     MOVE_SUSPECT,
     SMALL_PROBLEM,
@@ -162,7 +163,7 @@ def softmax(
     l2: float = 0.0,
     reference: Any = "first",
     solver: str = "newton",
-    tol: float = 1e-13,
+    tol: float = DEFAULT_TOL,
     max_iter: int = 100,
     names: Sequence[str] | None = None,
     on_iteration: Callable[[IterationRecord], Any] | None = None,
@@ -471,7 +472,7 @@ def score_and_information(fit: SoftmaxFit, X: Any, y: Any, weights: Any, coef: A
             if ref is None:
                 E = _intercept_subspace(P)
                 base, start = AffineProblem(P, np.zeros(P.size), E), E.T @ P.start()
-            r = newton(base, tol=1e-13, max_iter=100, start=start)
+            r = newton(base, tol=DEFAULT_TOL, max_iter=100, start=start)
             zb = base.embed(r.z) if base is not P else r.z
             Tint = Tint.copy()
             Tint[0] = P.to_original(zb)

@@ -109,7 +109,7 @@ def test_bad_input_exits_2_naming_the_line_or_column(tmp_path):
     bad = tmp_path / "bad.csv"
     bad.write_text("y,p\n1,0.2\n0,1.5\n1,0.7\n")
     proc = run("calibration", str(bad), "--label", "y", "--probability", "p")
-    assert proc.returncode == 2 and "line 3, column 'p': '1.5' is not a probability" in proc.stderr
+    assert proc.returncode == 2 and "line 3, column 'p': 1.5 is not a probability" in proc.stderr
     three = tmp_path / "three.csv"
     three.write_text("y,p\na,0.2\nb,0.5\nc,0.7\n")
     proc = run("calibration", str(three), "--label", "y", "--probability", "p")
@@ -123,3 +123,22 @@ def test_bad_input_exits_2_naming_the_line_or_column(tmp_path):
     proc = run("calibration", str(gaps), "--label", "y", "--probability", "p", "--drop-missing", "--json")
     assert proc.returncode == 0, proc.stderr
     assert json.loads(proc.stdout)["dropped_rows"] == 1
+
+
+def test_probability_and_weight_cells_follow_the_strict_number_rules(tmp_path):
+    """Issue #17: the calibration command read its probability and weight cells with
+    Python's float(), so '0_5' and Arabic-Indic digits were numbers; they are now read by
+    the CSV reader's strict grammar (common practice: one number grammar per program),
+    and --decimal applies to them."""
+    odd = tmp_path / "odd.csv"
+    odd.write_text("y,p,w\n1,0.2,1\n0,0_5,1\n1,0.7,1\n0,0.4,1\n", encoding="utf-8")
+    proc = run("calibration", str(odd), "--label", "y", "--probability", "p")
+    assert proc.returncode == 2 and "line 3" in proc.stderr and "'_'" in proc.stderr
+    arabic = tmp_path / "arabic.csv"
+    arabic.write_text("y,p,w\n1,0.2,1\n0,0.5,\u0661\n1,0.7,1\n0,0.4,1\n", encoding="utf-8")
+    proc = run("calibration", str(arabic), "--label", "y", "--probability", "p", "--weights", "w")
+    assert proc.returncode == 2 and "line 3" in proc.stderr and "ASCII digits" in proc.stderr
+    comma = tmp_path / "comma.csv"
+    comma.write_text("y;p\n1;0,2\n0;0,5\n1;0,7\n0;0,4\n", encoding="utf-8")
+    proc = run("calibration", str(comma), "--label", "y", "--probability", "p", "--decimal", ",", "--json")
+    assert proc.returncode == 0, proc.stderr
