@@ -316,6 +316,7 @@ def _score_statistic(fit, Xa, y, weights, coef, b, idx) -> float:
 
 def _linear_score(fit, Xa, y, weights, coef, b, free_intercept) -> tuple[np.ndarray, np.ndarray]:
     """Score and information of least squares at the delivered coefficients (restricted variance)."""
+    n = Xa.shape[0]
     ya = as_vector(y, "y", n)
     w = as_weights(weights, n)
     if free_intercept:  # constrained estimate of the nuisance intercept
@@ -371,6 +372,7 @@ def implied_l2(
     """
     check_choice(model, "model", ("least_squares", "logistic", "softmax"))
     Xa, _ = as_matrix(X, "X")
+    n = Xa.shape[0]
     w = as_weights(weights, n)
     beta = _numbers(coefficients, "coefficients", vector=True)
     if intercept is not None:
