@@ -7,7 +7,8 @@ input is a text column whose cells are mapped to the model's indicator columns. 
 by name, before anything is written: an input with no column, a column that is neither
 an input, the ``--id`` column, the model's target nor ``--exclude``d (so that a file
 meant for another model is not scored by accident), a cell that is not a number in a
-numeric input, and a category the model does not list (file, line, column and cell).
+numeric input, a category the model does not list (file, line, column and cell), and an
+``--id`` value that two rows share.
 
 A row with a missing value in an input cannot be scored: it is an error naming its line
 and column, unless ``--blank-missing`` is given, which writes the row with empty score
@@ -88,6 +89,17 @@ def _check_columns(path: str, header: list[str], needed: tuple[str, ...], allowe
                          "outcome), or check that the file is meant for this model")
 
 
+def _refuse_repeated(path: str, column: str, lines: list[int], ids: list[str]) -> None:
+    """Refuse an identifier that two rows share: the scores could not be told apart."""
+    first: dict[str, int] = {}
+    for line, value in zip(lines, ids):
+        if value in first:
+            raise InputError(f"{path!r} line {line}: the --id column '{column}' repeats {value[:80]!r} (first on line "
+                             f"{first[value]}); every row needs its own identifier: correct the file, or leave out "
+                             "--id to identify the rows by their line")
+        first[value] = line
+
+
 def run_score(args: argparse.Namespace) -> int:
     """The ``score`` subcommand."""
     from ._cli_table import table_options
@@ -130,6 +142,7 @@ def run_score(args: argparse.Namespace) -> int:
             raise InputError(f"{args.csv!r} line {line}: the --id column '{args.id}' is empty; every row needs "
                              "its identifier: fill it in")
         every, labels = ids.lines, list(ids.extra[args.id])
+        _refuse_repeated(args.csv, args.id, every.tolist(), labels)
     elif table.dropped:
         every = read_table(args.csv, target=None, features=[], extra=[], **plain).lines
         labels = [str(v) for v in every.tolist()]
