@@ -47,49 +47,34 @@ class Delivered:
     covariance_type: str | None
     file_format: str
     reference: Any = "first"  # softmax: the class pinned at zero (None: symmetric form)
+    categorical_fields: tuple = ()  # the text columns behind indicator columns 'column=level'
 
 
 def read_delivered(path: str) -> Delivered:
-    """Read a lintools JSON model file or a PMML document, recognised by its first byte.
+    """Read a lintools JSON model file or a PMML document, recognised by its first byte
+    (see :func:`lintools._scoring.read_model`)."""
+    from ._scoring import read_model
 
-    The file is read once, through the bounded reader (a FIFO or a device is refused, not
-    waited on), and checked for consistency by the JSON or PMML reader.
-    """
-    from . import io as model_io
-    from . import pmml
-    from ._files import read_bounded
-
-    try:
-        raw = read_bounded(path, "model file", max(model_io.MAX_BYTES, pmml.MAX_BYTES))
-    except InputError as exc:
-        raise InputError(f"cannot read the model file ({exc})") from None
-    head = raw[:256].removeprefix(b"\xef\xbb\xbf").lstrip()
-    if head.startswith(b"{"):
-        fit = model_io.load_bytes(raw, path)
-        if fit.kind not in ("least_squares", "logistic", "softmax"):
-            raise InputError(f"model file {path!r} holds a {fit.kind!r} record, not a fitted model")
+    m = read_model(path)
+    if not hasattr(m, "source"):  # a fit record from a lintools JSON model file
+        fit = m
         return Delivered(
             kind=fit.kind, names=tuple(fit.names), coefficients=np.asarray(fit.coefficients),
             intercept=fit.intercept if fit.with_intercept else None, classes=tuple(getattr(fit, "classes", ())),
             positive=getattr(fit, "positive_class", None), target=getattr(fit, "target", "y"), l2=float(fit.l2),
             covariance_type=getattr(fit, "covariance_type", None), file_format="lintools JSON model file",
-            reference=getattr(fit, "reference_class", "first"),
+            reference=getattr(fit, "reference_class", "first"), categorical_fields=tuple(fit.categorical_fields),
         )
-    if head.startswith(b"<") or head.startswith((b"\xff\xfe", b"\xfe\xff")):  # XML, also in UTF-16
-        m = pmml.read_pmml_bytes(raw, path)
-        reference: Any = "first"
-        if m.kind == "softmax":  # a class whose table is all zero was the reference class
-            zero = [c for k, c in enumerate(m.classes)
-                    if not np.any(np.asarray(m.coefficients)[:, k]) and np.asarray(m.intercept)[k] == 0.0]
-            reference = zero[0] if len(zero) == 1 else "first"
-        return Delivered(
-            kind=m.kind, names=tuple(m.names), coefficients=np.asarray(m.coefficients), intercept=m.intercept,
-            classes=tuple(m.classes), positive=m.classes[0] if m.kind == "logistic" else None, target=m.target,
-            l2=None, covariance_type=None, file_format="PMML 4.4 RegressionModel", reference=reference,
-        )
-    raise InputError(
-        f"{path!r} is neither a lintools JSON model file (starts with '{{') nor a PMML document "
-        "(XML, starts with '<'); pass the delivered model file"
+    reference: Any = "first"
+    if m.kind == "softmax":  # a class whose table is all zero was the reference class
+        zero = [c for k, c in enumerate(m.classes)
+                if not np.any(np.asarray(m.coefficients)[:, k]) and np.asarray(m.intercept)[k] == 0.0]
+        reference = zero[0] if len(zero) == 1 else "first"
+    return Delivered(
+        kind=m.kind, names=tuple(m.names), coefficients=np.asarray(m.coefficients), intercept=m.intercept,
+        classes=tuple(m.classes), positive=m.classes[0] if m.kind == "logistic" else None, target=m.target,
+        l2=None, covariance_type=None, file_format="PMML 4.4 RegressionModel", reference=reference,
+        categorical_fields=tuple(m.categorical_fields),
     )
 
 
@@ -117,6 +102,17 @@ def read_refit_data(args: argparse.Namespace, d: Delivered) -> tuple[Any, np.nda
 
     target = args.target or d.target
     header = list(read_header(args.csv, **table_options(args, "categorical", header=True)))
+    if d.categorical_fields:  # the text columns are known: read them as the model does when it scores
+        from ._scoring import model_inputs, read_inputs
+
+        inputs = model_inputs(d.names, d.categorical_fields)
+        absent = [c for c in inputs.columns if c not in header]
+        if absent:
+            raise InputError(f"the delivered model's input '{absent[0]}' is not a column of {args.csv!r} (its "
+                             f"columns: {', '.join(header)}); the refit needs every input the model uses")
+        table, X = read_inputs(args.csv, inputs, table_options(args, "categorical"), target=target,
+                               weights=args.weights, drop_missing=args.drop_missing)
+        return table, X, target
     cols = _columns_for(d.names, header, args.csv)
     kwargs = dict(target=target, features=cols, weights=args.weights, drop_missing=args.drop_missing,
                   **table_options(args, "categorical"))

@@ -19,7 +19,8 @@ with the field named:
   symmetric form with l2 > 0;
 * integers (rank, iterations, degrees of freedom) within their ranges; names usable
   (:func:`lintools._validate.check_names`); choices (covariance type, weight type)
-  known.
+  known;
+* categorical fields agree with the names (:func:`lintools._categories.field_layout`).
 """
 
 from __future__ import annotations
@@ -29,6 +30,7 @@ from typing import Any, Callable
 
 import numpy as np
 
+from ._categories import field_layout
 from ._errors import InputError
 from ._validate import check_names
 
@@ -200,6 +202,11 @@ def check_record(rec: Any, refuse: Refuse) -> None:
                                                          f"coefficient gives {(p + wi, 2)}")
     else:
         _integer(rec.lr_degrees_of_freedom, "record.lr_degrees_of_freedom", refuse, 0, p * len(rec.classes))
+    if getattr(rec, "categorical_fields", ()):
+        try:
+            field_layout(rec.names, rec.categorical_fields)
+        except InputError as exc:
+            raise refuse("record.categorical_fields", f"disagree with the names ({exc})") from None
 
 
 _COVARIANCE_TYPES = ("classical", "HC0", "HC1", "HC2", "HC3")

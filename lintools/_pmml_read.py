@@ -9,13 +9,19 @@ declaration before anything is expanded); a comment or a text that merely contai
 * the required attributes are present: ``DataField`` name, optype and dataType;
   ``MiningField`` name; ``RegressionModel`` functionName; ``RegressionTable`` intercept
   (PMML 4.4 declares it ``use="required"``: a missing intercept is an error, never 0);
-  ``NumericPredictor`` name and coefficient; ``Value`` value;
+  ``NumericPredictor`` name and coefficient; ``CategoricalPredictor`` name, value and
+  coefficient; ``Value`` value;
 * numbers follow one strict grammar (:data:`REAL`): an optional sign, digits with at most
   one ``.``, an optional exponent, ASCII digits only; no ``1_000``, no ``inf`` or ``nan``
   words, no hexadecimal; XML white space around it is allowed (XML Schema collapses it);
 * the model has exactly one target field (MiningField usageType ``target``), declared in
   the DataDictionary; every predictor is an active MiningField and a DataField, named
-  as a lintools fit would accept it;
+  as a lintools fit would accept it; a ``CategoricalPredictor`` refers to a categorical
+  field and one of its values (:mod:`lintools._pmml_categories`), and the inputs come in
+  the order of the MiningSchema;
+* nothing that would change the scores is ignored: an active field with an ``outliers``
+  treatment other than ``asIs``, and a ``Targets`` element that rescales, casts or
+  bounds the prediction, are refused;
 * a classification model has one table per target category (PMML 4.4 Regression: "These
   models should contain exactly one regression table for each targetCategory"): the
   categories are the target DataField's valid ``Value`` elements, every table names one
@@ -36,6 +42,7 @@ from xml.parsers import expat
 import numpy as np
 
 from ._errors import InputError
+from ._pmml_categories import read_inputs
 from ._validate import check_names, name_problem
 
 __all__ = ["parse_pmml", "NAMESPACES", "REAL"]
@@ -157,14 +164,17 @@ def parse_pmml(raw: bytes, where: str) -> dict[str, Any]:
     tables = doc.children(model, "RegressionTable")
     if not tables:
         raise doc.refuse("has a RegressionModel without a RegressionTable")
-    parsed = [_table(doc, t, f"RegressionTable {i + 1}", active) for i, t in enumerate(tables)]
-    names: list[str] = []
-    for label, (_, _, terms) in zip(range(1, len(parsed) + 1), parsed):
+    _refuse_rescaled_targets(doc, model)
+    full = [_table(doc, t, f"RegressionTable {i + 1}", active) for i, t in enumerate(tables)]
+    first: set[str] | None = None
+    for label, (_, _, terms, _) in zip(range(1, len(full) + 1), full):
         if terms:
-            if not names:
-                names = list(terms)
-            elif set(terms) != set(names):
+            if first is None:
+                first = set(terms)
+            elif set(terms) != first:
                 raise doc.refuse(f"has other predictors in RegressionTable {label} than in the first table")
+    names, categorical = read_inputs(doc, fields, active, full)
+    parsed = [(c, b0, terms) for c, b0, terms, _ in full]
     try:
         check_names(names, len(names), None)
     except InputError as exc:
@@ -177,7 +187,7 @@ def parse_pmml(raw: bytes, where: str) -> dict[str, Any]:
             raise doc.refuse(f"has a regression model whose target '{target}' has optype {optype!r}, not 'continuous'")
         _, b0, terms = parsed[0]
         return dict(kind="least_squares", names=tuple(names), coefficients=np.array([terms[n] for n in names]),
-                    intercept=b0, classes=(), target=target)
+                    intercept=b0, classes=(), target=target, categorical_fields=categorical)
     if function != "classification":
         raise doc.refuse(f"has functionName {function!r:.40}, not 'regression' or 'classification'")
     if optype not in ("categorical", "ordinal"):
@@ -189,11 +199,11 @@ def parse_pmml(raw: bytes, where: str) -> dict[str, Any]:
             raise doc.refuse("has a logit model that is not two tables with the second empty (the reference category)")
         _, b0, terms = parsed[0]
         return dict(kind="logistic", names=tuple(names), coefficients=np.array([terms.get(n, 0.0) for n in names]),
-                    intercept=b0, classes=cats, target=target)
+                    intercept=b0, classes=cats, target=target, categorical_fields=categorical)
     if norm == "softmax":
         B = np.array([[terms.get(n, 0.0) for (_, _, terms) in parsed] for n in names]).reshape(len(names), len(parsed))
         return dict(kind="softmax", names=tuple(names), coefficients=B, intercept=np.array([b for _, b, _ in parsed]),
-                    classes=cats, target=target)
+                    classes=cats, target=target, categorical_fields=categorical)
     raise doc.refuse(f"has normalizationMethod {norm!r:.40}, which lintools does not read (it reads none, logit, softmax)")
 
 
@@ -215,14 +225,21 @@ def _data_fields(doc: _Doc) -> dict[str, ET.Element]:
     return fields
 
 
-def _mining_schema(doc: _Doc, model: ET.Element, fields: dict[str, ET.Element]) -> tuple[str, set[str]]:
-    """The target field and the active fields of the model's MiningSchema."""
+def _mining_schema(doc: _Doc, model: ET.Element, fields: dict[str, ET.Element]) -> tuple[str, dict[str, ET.Element]]:
+    """The target field and the active fields (name -> MiningField, in the schema's order)
+    of the model's MiningSchema."""
     usage: dict[str, str] = {}
+    elements: dict[str, ET.Element] = {}
     for mf in doc.children(doc.one(model, "MiningSchema", "the RegressionModel"), "MiningField"):
         name = doc.required(mf, "name", "a MiningField")
         if name in usage:
             raise doc.refuse(f"lists the MiningField '{name}' twice")
         usage[name] = mf.get("usageType", "active")
+        elements[name] = mf
+        outliers = mf.get("outliers", "asIs")
+        if usage[name] == "active" and outliers != "asIs":
+            raise doc.refuse(f"has outliers={outliers!r:.40} on the MiningField '{name}'; lintools does not apply "
+                             "outlier treatments (it would score such values differently)")
     targets = [n for n, u in usage.items() if u in ("target", "predicted")]
     if len(targets) != 1:
         raise doc.refuse(f"has {len(targets)} target fields in its MiningSchema; lintools reads models with exactly "
@@ -233,12 +250,28 @@ def _mining_schema(doc: _Doc, model: ET.Element, fields: dict[str, ET.Element]) 
     problem = name_problem(target)
     if problem is not None:
         raise doc.refuse(f"has a target name {target[:80]!r} that {problem}")
-    return target, {n for n, u in usage.items() if u == "active"}
+    return target, {n: elements[n] for n, u in usage.items() if u == "active"}
 
 
-def _table(doc: _Doc, t: ET.Element, label: str, active: set[str]) -> tuple[Any, float, dict[str, float]]:
+def _refuse_rescaled_targets(doc: _Doc, model: ET.Element) -> None:
+    """A Targets element that changes the prediction (PMML 4.4 Targets: rescaleFactor,
+    rescaleConstant, min, max, castInteger) is refused: lintools would ignore it."""
+    for targets in doc.children(model, "Targets"):
+        for t in doc.children(targets, "Target"):
+            changes = [a for a in ("rescaleFactor", "rescaleConstant", "min", "max", "castInteger") if a in t.attrib]
+            if changes:
+                raise doc.refuse(f"has a Target with {changes[0]}={t.get(changes[0])!r:.40}, which changes the "
+                                 "prediction; lintools scores the regression equations as they stand and does "
+                                 "not apply it")
+
+
+def _table(doc: _Doc, t: ET.Element, label: str, active: dict[str, ET.Element]
+           ) -> tuple[Any, float, dict[str, float], dict[str, tuple[str, str]]]:
+    """A RegressionTable: its target category, intercept, terms (name -> coefficient;
+    a CategoricalPredictor is named ``field=value``) and which terms are categorical."""
     intercept = doc.real(t, "intercept", label)
     terms: dict[str, float] = {}
+    indicators: dict[str, tuple[str, str]] = {}
     for el in t:
         local = _local(el.tag)
         if el.tag == doc.tag("NumericPredictor"):
@@ -255,12 +288,24 @@ def _table(doc: _Doc, t: ET.Element, label: str, active: set[str]) -> tuple[Any,
                 raise doc.refuse(f"has {what}, which is not an active MiningField of the model (a derived field?); "
                                  "lintools reads predictors that are data fields")
             terms[name] = doc.real(el, "coefficient", what)
-        elif local in ("CategoricalPredictor", "PredictorTerm"):
-            raise doc.refuse(f"has {local} terms in {label}, which lintools does not read",
-                             fix="encode them as numeric indicator columns")
+        elif el.tag == doc.tag("CategoricalPredictor"):
+            field = doc.required(el, "name", f"a CategoricalPredictor of {label}")
+            value = doc.required(el, "value", f"the CategoricalPredictor '{field[:80]}' of {label}")
+            what = f"predictor '{field[:80]}' = {value[:80]!r} of {label}"
+            name = f"{field}={value}"
+            if name in terms:
+                raise doc.refuse(f"has {what} twice" if name in indicators else
+                                 f"has {what} and a NumericPredictor named '{name[:80]}'")
+            if field not in active:
+                raise doc.refuse(f"has {what}, whose field is not an active MiningField of the model")
+            terms[name] = doc.real(el, "coefficient", what)
+            indicators[name] = (field, value)
+        elif local == "PredictorTerm":
+            raise doc.refuse(f"has {local} terms (interactions) in {label}, which lintools does not read",
+                             fix="ask for a model without interaction terms")
         elif el.tag != doc.tag("Extension"):
             raise doc.refuse(f"has an element <{local}> in {label}, which a RegressionTable does not hold")
-    return t.get("targetCategory"), intercept, terms
+    return t.get("targetCategory"), intercept, terms, indicators
 
 
 def _categories(doc: _Doc, cats: list, field: ET.Element, target: str) -> tuple[str, ...]:

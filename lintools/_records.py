@@ -19,10 +19,11 @@ from typing import Any
 import numpy as np
 
 from . import _distributions as dist
+from ._categories import CategoricalField
 from ._errors import InputError
 from ._validate import ReadOnlyArrays, as_matrix, scored
 
-__all__ = ["Convergence", "CoefficientTable", "LinearFit"]
+__all__ = ["CategoricalField", "Convergence", "CoefficientTable", "LinearFit"]
 
 INTERCEPT_NAME = "(intercept)"
 
@@ -218,7 +219,14 @@ def _to_jsonable(value: Any) -> Any:
 
 @dataclass(frozen=True)
 class _FitBase(ReadOnlyArrays):
-    """Fields and methods shared by every fit record (its arrays are read-only)."""
+    """Fields and methods shared by every fit record (its arrays are read-only).
+
+    ``categorical_fields`` names the text columns behind indicator columns ``column=level``
+    among ``names``, with their levels (see :class:`lintools._categories.CategoricalField`);
+    empty unless set (``lintools fit`` sets it from the table, :func:`lintools.save` and
+    :func:`lintools.write_pmml` from ``reference_levels=``).  The methods take the
+    indicator columns themselves.
+    """
 
     coefficients: np.ndarray
     intercept: Any
@@ -234,6 +242,7 @@ class _FitBase(ReadOnlyArrays):
     convergence: Convergence
     with_intercept: bool
     l2: float
+    categorical_fields: tuple[CategoricalField, ...] = ()
 
     kind = "fit"
 

@@ -7,6 +7,7 @@ fit          fit a model to a CSV file, print the report, optionally write the m
 check        check a delivered model file (lintools JSON or PMML) against a refit on a CSV file
 calibration  calibration report of a probability column; a reliability diagram with ``--plot``
 folds        write a CSV file with a stratified fold-id column added
+score        apply a model file (lintools JSON or PMML) to a CSV file and write the scores
 
 Exit codes: 0 success, 1 a check failed (or a fit did not converge), 2 bad input.
 Standard output carries only the requested output: the report, or with ``--json`` one
@@ -21,8 +22,9 @@ work is done), and every file is written to a temporary file and renamed into pl
 An option that does not apply to the chosen model is refused.  Messages from the library
 name the options, not its Python arguments (:mod:`lintools._cli_console`).
 
-The subcommands live in ``_cli_check.py``, ``_cli_calibration.py``, ``_cli_demo.py`` and
-``_cli_folds.py``; shared pieces in ``_cli_common.py`` and ``_cli_console.py``.
+The subcommands live in ``_cli_check.py``, ``_cli_calibration.py``, ``_cli_demo.py``,
+``_cli_folds.py`` and ``_cli_score.py``; shared pieces in ``_cli_common.py`` and
+``_cli_console.py``.
 """
 
 from __future__ import annotations
@@ -44,6 +46,7 @@ from ._cli_common import (
 from ._cli_console import CAUTION, Console, QuietPipe, report_text, translate, warnings_to_stderr
 from ._cli_demo import add_demo_parser
 from ._cli_folds import add_folds_parser
+from ._cli_score import add_score_parser
 from ._cli_table import add_table_options, table_options
 from ._errors import InputError, IterationLimitWarning, LintoolsError
 
@@ -105,6 +108,10 @@ def _cmd_fit(args: argparse.Namespace) -> int:
     fit = _fit_table(table, args, Progress(args.quiet, "fit"))
     if any(f.name == "target" for f in dataclasses.fields(fit)):
         fit = dataclasses.replace(fit, target=args.target)  # so that a model file names its target column
+    if table.reference_levels:  # so that model files name the text columns behind the indicator columns
+        from ._categories import with_references
+
+        fit = with_references(fit, table.reference_levels, "fit")
     note = class_note(fit, {"logistic": "choose with --positive",
                             "softmax": "choose with --reference, or --symmetric with --l2"})
     if note:
@@ -180,6 +187,7 @@ def build_parser() -> argparse.ArgumentParser:
     add_check_parser(sub, common)
     add_calibration_parser(sub, common)
     add_folds_parser(sub, common)
+    add_score_parser(sub, common)
     return parser
 
 

@@ -231,14 +231,15 @@ def _decode(value: Any, where: str, ctx: _Context) -> Any:
         if cls is None or not isinstance(fields, dict):
             raise ctx.refuse(where, f"names an unknown record type {name!r:.80}")
         expected = {f.name for f in dataclasses.fields(cls)}
-        missing = expected - set(fields)
+        missing = expected - set(fields) - _ADDED_FIELDS
         extra = set(fields) - expected
         if missing or extra:
             raise ctx.refuse(where, f"({name}) has missing fields {sorted(missing)} and unknown fields "
                                     f"{sorted(extra)[:10]}; the file may be from another schema")
         kwargs = {k: _decode(v, f"{where}.{k}", ctx) for k, v in fields.items()}
         for f in dataclasses.fields(cls):
-            _check_type(kwargs[f.name], f.type, f"{where}.{f.name}", ctx)
+            if f.name in kwargs:  # a field added later takes its default when absent
+                _check_type(kwargs[f.name], f.type, f"{where}.{f.name}", ctx)
         try:
             return cls(**kwargs)
         except (TypeError, ValueError) as exc:
@@ -259,7 +260,12 @@ _SIMPLE = {
     "tuple[str, ...]": lambda v: isinstance(v, tuple) and all(isinstance(x, str) for x in v),
     "tuple[float, float]": lambda v: isinstance(v, tuple) and len(v) == 2 and all(_is_number(x) for x in v),
     "tuple": lambda v: isinstance(v, tuple) and all(isinstance(x, (str, int, float, bool)) for x in v),
+    "tuple[CategoricalField, ...]": lambda v: isinstance(v, tuple) and all(
+        type(x).__name__ == "CategoricalField" for x in v),
 }
+#: Record fields added after schema version 1 was first written: a file without them
+#: (written by an earlier lintools) takes their defaults (no categorical fields).
+_ADDED_FIELDS = frozenset({"categorical_fields"})
 
 
 def _check_type(value: Any, annotation: Any, where: str, ctx: _Context) -> None:
@@ -322,7 +328,7 @@ def _decode_array(value: dict, where: str, ctx: _Context) -> np.ndarray:
 
 
 # ---------------------------------------------------------------- save and load
-def save(fit: Any, path: str | os.PathLike, *, replace: bool = False) -> None:
+def save(fit: Any, path: str | os.PathLike, *, reference_levels: Any = None, replace: bool = False) -> None:
     """Write a fit record to ``path`` as a lintools JSON model file (schema version 1).
 
     The file is written atomically (a temporary file in the same folder, renamed into
@@ -330,10 +336,20 @@ def save(fit: Any, path: str | os.PathLike, *, replace: bool = False) -> None:
     unless ``replace=True``.  A record that :func:`load` would refuse (one edited into
     inconsistency, for example with ``dataclasses.replace``) is refused before anything
     is written.
+
+    ``reference_levels`` (``{text column: reference level}``, as
+    :attr:`lintools.Table.reference_levels` of the table the fit was fitted on) records
+    which inputs are the indicator columns ``column=level`` of a text column, so that the
+    model can score a CSV file holding the text column (``lintools score``); by default
+    the fit's own ``categorical_fields`` are written.
     """
     types = _record_types()
     if type(fit).__name__ not in types or not hasattr(fit, "kind"):
         raise InputError(f"save() takes a lintools fit record; got {type(fit).__name__}")
+    if reference_levels is not None:
+        from ._categories import with_references
+
+        fit = with_references(fit, reference_levels, "save")
     check_record(fit, lambda field, problem: InputError(
         f"save: this record cannot be written, its {field.removeprefix('record.')} {problem}"))
     from . import __version__

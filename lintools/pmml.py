@@ -11,9 +11,11 @@ part of it that its fits correspond to:
   ``1 - sum`` of the others);
 * softmax regression: ``normalizationMethod="softmax"``, one table per class.
 
-Only ``NumericPredictor`` terms with exponent 1 are read; anything else (categorical
-predictors, interaction terms, other model types) is refused with a message rather than
-misread.  Reading checks that the document agrees with itself (namespace, required
+``NumericPredictor`` terms with exponent 1 and ``CategoricalPredictor`` terms are read
+and written; a fit's indicator columns ``column=level`` of a text column (see
+:attr:`lintools.Table.reference_levels`) are written as the categorical field they come
+from (:mod:`lintools._pmml_categories`).  Anything else (interaction terms, other
+exponents, other model types) is refused with a message rather than misread.  Reading checks that the document agrees with itself (namespace, required
 attributes, a strict number grammar, one table per declared target category: see
 :mod:`lintools._pmml_read`), refuses any document with a DTD or an entity declaration,
 so external entities and entity expansion cannot occur, and reads no file other than
@@ -22,7 +24,7 @@ named like a predictor, class labels that XML cannot hold or that print alike), 
 :func:`write_pmml` never writes a file :func:`read_pmml` refuses.
 
 Reference: Data Mining Group, PMML 4.4 - Regression
-(``RegressionModel``, ``RegressionTable``, ``NumericPredictor``).
+(``RegressionModel``, ``RegressionTable``, ``NumericPredictor``, ``CategoricalPredictor``).
 """
 
 from __future__ import annotations
@@ -37,6 +39,8 @@ import numpy as np
 
 from ._errors import InputError
 from ._files import file_path, read_bounded, write_atomic
+from ._categories import CategoricalField
+from ._pmml_categories import write_inputs, write_terms
 from ._pmml_read import NAMESPACES, parse_pmml
 from ._validate import as_matrix, check_names, name_problem, scored, text_problem
 
@@ -56,7 +60,13 @@ class DeliveredModel:
 
     ``linear_predictor(X)`` is ``intercept + X @ coefficients``; ``mean(X)`` applies the
     document's normalisation: none (least squares), the logistic function (logit: the
-    probability of ``classes[0]``) or softmax (one column per class).
+    probability of ``classes[0]``) or softmax (one column per class); ``labels(X)`` gives
+    the most probable class.
+
+    ``categorical_fields`` lists the document's categorical inputs with their valid values
+    (:class:`lintools._categories.CategoricalField`); each value with a
+    ``CategoricalPredictor`` is an input column named ``field=value`` (1 where the field
+    has that value, else 0), and the values without one add nothing.
     """
 
     kind: str
@@ -66,6 +76,7 @@ class DeliveredModel:
     classes: tuple = ()
     target: str = "y"
     source: str = ""
+    categorical_fields: tuple[CategoricalField, ...] = ()
 
     def linear_predictor(self, X: Any) -> np.ndarray:
         """``intercept + X @ coefficients`` for new rows ``X`` (columns in ``names`` order)."""
@@ -89,6 +100,17 @@ class DeliveredModel:
             return softmax_parts(np.asarray(eta, dtype=float))[0]
         return eta
 
+    def labels(self, X: Any) -> np.ndarray:
+        """The most probable class of each row (a classifier's): for logit ``classes[0]``
+        where its linear predictor is above 0, else ``classes[1]``; for softmax the class
+        with the largest linear predictor (the first of equal ones)."""
+        if self.kind not in ("logistic", "softmax"):
+            raise InputError(f"labels() applies to classification models; this is a {self.kind} model")
+        eta = self.linear_predictor(X)
+        if self.kind == "logistic":
+            return np.asarray(self.classes)[np.where(eta > 0, 0, 1)]
+        return np.asarray(self.classes)[np.argmax(eta, axis=1)]
+
     def report(self) -> str:
         """A plain-text account of the model: its kind, target, classes and coefficients."""
         head = f"delivered {self.kind} model of '{self.target}'" + (f" from {self.source}" if self.source else "")
@@ -104,6 +126,9 @@ class DeliveredModel:
         lines.append("-" * len(lines[-1]))
         for term, row in [("(intercept)", b)] + list(zip(self.names, B)):
             lines.append(term.ljust(width) + "".join(f"{v:22.15g}" for v in row))
+        for f in self.categorical_fields:
+            lines.append(f"categorical input '{f.name}': values {', '.join(map(repr, f.levels))}; a value without a "
+                         f"term '{f.name}=<value>' adds nothing")
         return "\n".join(lines) + "\n"
 
 
@@ -135,13 +160,20 @@ def _writable(fit: Any, target: str) -> list[str]:
     return labels
 
 
-def write_pmml(fit: Any, path: str | os.PathLike, *, target: str | None = None, replace: bool = False) -> None:
+def write_pmml(fit: Any, path: str | os.PathLike, *, target: str | None = None, reference_levels: Any = None,
+               replace: bool = False) -> None:
     """Write a lintools fit (least squares, logistic or softmax) as a PMML 4.4 document.
 
     The file is written atomically (a temporary file in the same folder, renamed into
     place); an existing ``path`` is refused unless ``replace=True``.  Names, the target
     and class labels that :func:`read_pmml` would refuse are refused here, with the
     remedy, before anything is written.
+
+    The indicator columns ``column=level`` of a text column are written as one
+    categorical field with its levels and a ``CategoricalPredictor`` per indicator column
+    when the fit's ``categorical_fields`` say so, or ``reference_levels`` (``{column:
+    reference level}``, as :attr:`lintools.Table.reference_levels` of the table the fit
+    was fitted on) does; other inputs are continuous fields.
     """
     kind = getattr(fit, "kind", None)
     if kind not in ("least_squares", "logistic", "softmax"):
@@ -150,15 +182,27 @@ def write_pmml(fit: Any, path: str | os.PathLike, *, target: str | None = None, 
     if not isinstance(target, str):
         raise InputError(f"write_pmml: target must be a str; got {type(target).__name__}")
     labels = _writable(fit, target)
+    if reference_levels is not None:
+        from ._categories import with_references
+
+        fit = with_references(fit, reference_levels, "write_pmml")
+    fields = tuple(getattr(fit, "categorical_fields", ()))
+    if target in {f.name for f in fields if isinstance(f, CategoricalField)}:
+        raise InputError(f"write_pmml: the target name {target!r} is also the name of a categorical input; pass "
+                         "target= with another name")
     ET.register_namespace("", NS)
     root = ET.Element(f"{{{NS}}}PMML", {"version": "4.4"})
     header = ET.SubElement(root, f"{{{NS}}}Header", {"description": f"lintools {kind} fit"})
     from . import __version__
 
     ET.SubElement(header, f"{{{NS}}}Application", {"name": "lintools", "version": __version__})
-    dd = ET.SubElement(root, f"{{{NS}}}DataDictionary", {"numberOfFields": str(len(fit.names) + 1)})
-    for name in fit.names:
-        ET.SubElement(dd, f"{{{NS}}}DataField", {"name": name, "optype": "continuous", "dataType": "double"})
+    dd = ET.SubElement(root, f"{{{NS}}}DataDictionary")
+    holder = ET.Element("MiningSchema")  # the inputs' MiningFields, moved into the model below
+    try:
+        layout = write_inputs(dd, holder, lambda name: f"{{{NS}}}{name}", fit.names, fields)
+    except InputError as exc:
+        raise InputError(f"write_pmml: the fit's categorical fields cannot be written ({exc})") from None
+    dd.set("numberOfFields", str(len(dd) + 1))
     if kind == "least_squares":
         ET.SubElement(dd, f"{{{NS}}}DataField", {"name": target, "optype": "continuous", "dataType": "double"})
         attrs = {"functionName": "regression", "normalizationMethod": "none"}
@@ -169,8 +213,7 @@ def write_pmml(fit: Any, path: str | os.PathLike, *, target: str | None = None, 
         attrs = {"functionName": "classification", "normalizationMethod": "logit" if kind == "logistic" else "softmax"}
     model = ET.SubElement(root, f"{{{NS}}}RegressionModel", {"modelName": f"lintools {kind}", **attrs})
     schema = ET.SubElement(model, f"{{{NS}}}MiningSchema")
-    for name in fit.names:
-        ET.SubElement(schema, f"{{{NS}}}MiningField", {"name": name})
+    schema.extend(holder)
     ET.SubElement(schema, f"{{{NS}}}MiningField", {"name": target, "usageType": "target"})
 
     def table(intercept: float, coefs: np.ndarray | None, category: str | None = None) -> None:
@@ -179,8 +222,7 @@ def write_pmml(fit: Any, path: str | os.PathLike, *, target: str | None = None, 
             a["targetCategory"] = category
         t = ET.SubElement(model, f"{{{NS}}}RegressionTable", a)
         if coefs is not None:
-            for name, c in zip(fit.names, coefs):
-                ET.SubElement(t, f"{{{NS}}}NumericPredictor", {"name": name, "exponent": "1", "coefficient": _num(c)})
+            write_terms(t, lambda name: f"{{{NS}}}{name}", fit.names, coefs, layout, _num)
 
     if kind == "least_squares":
         table(fit.intercept, fit.coefficients)

@@ -79,7 +79,8 @@ BAD = [
     (HAND_WRITTEN.replace('coefficient="0.75"', 'coefficient="1e999"'), "is not finite"),
     (HAND_WRITTEN.replace('normalizationMethod="none"', 'normalizationMethod="exp"'), "normalizationMethod 'none'"),
     (HAND_WRITTEN.replace('functionName="regression"', 'functionName="clustering"'), "not 'regression' or 'classification'"),
-    (HAND_WRITTEN.replace('<NumericPredictor name="b" coefficient="-1.25"/>', '<CategoricalPredictor name="b" value="x" coefficient="1"/>'), "CategoricalPredictor terms in RegressionTable 1"),
+    (HAND_WRITTEN.replace('<NumericPredictor name="b" coefficient="-1.25"/>', '<CategoricalPredictor name="b" value="x" coefficient="1"/>'), "CategoricalPredictor on 'b', whose DataField has optype 'continuous'"),
+    (HAND_WRITTEN.replace('<NumericPredictor name="b" coefficient="-1.25"/>', '<PredictorTerm coefficient="1"/>'), "PredictorTerm terms .interactions. in RegressionTable 1"),
 ]
 
 

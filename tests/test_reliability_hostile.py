@@ -528,6 +528,7 @@ def specs(tmp: Path) -> list[Spec]:
         spec("SeparationCheck.describe", SEP.describe),
         spec("DeliveredModel.linear_predictor", DELIVERED(tmp).linear_predictor, ("X",), args={"X": X}),
         spec("DeliveredModel.mean", DELIVERED(tmp).mean, ("X",), args={"X": X}),
+        spec("DeliveredModel.labels", DELIVERED(tmp).labels, ("X",), args={"X": X}),
         spec("DeliveredModel.report", DELIVERED(tmp).report),
         spec("MultinomialSeparationCheck.describe", SEP3.describe),
     ]
@@ -736,7 +737,7 @@ SPEC_NAMES = [
     "LogisticFit.report", "LogisticFit.coefficient_table", "SoftmaxFit.mean", "SoftmaxFit.linear_predictor",
     "SoftmaxFit.labels", "SoftmaxFit.report", "SoftmaxFit.coefficient_table", "PlattMap.apply",
     "TemperatureMap.apply", "TemperatureMap.apply[multiclass]", "IsotonicMap.apply", "SeparationCheck.describe",
-    "DeliveredModel.linear_predictor", "DeliveredModel.mean", "DeliveredModel.report",
+    "DeliveredModel.linear_predictor", "DeliveredModel.mean", "DeliveredModel.labels", "DeliveredModel.report",
     "MultinomialSeparationCheck.describe",
 ]
 
