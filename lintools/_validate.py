@@ -48,6 +48,8 @@ __all__ = [
     "read_only",
     "ReadOnlyArrays",
     "check_names",
+    "check_flag",
+    "as_texts",
     "name_problem",
     "text_problem",
     "MAX_NAME_LENGTH",
@@ -479,7 +481,7 @@ def check_names(names: Any, p: int, found: tuple[str, ...] | None, prefix: str =
     else:
         if isinstance(names, str):
             raise InputError("names is a single string; pass a sequence with one name per column")
-        out, what = tuple(str(v) for v in names), "names cannot be used"
+        out, what = as_texts(names, "names", "one name per column"), "names cannot be used"
         remedy = "pass one distinct, non-empty, printable name per column"
         if len(out) != p:
             raise InputError(f"names has {len(out)} entries but X has {p} columns; pass one name per column")
@@ -500,6 +502,37 @@ def check_names(names: Any, p: int, found: tuple[str, ...] | None, prefix: str =
         raise InputError(f"{what}: column {out.index(INTERCEPT_NAME)} is named {INTERCEPT_NAME!r}, the "
                          f"intercept's own name; {remedy}")
     return out
+
+
+def as_texts(value: Any, name: str, remedy: str, *, ordered: bool = True) -> tuple[str, ...]:
+    """``value`` as a tuple of str: any iterable (list, tuple, array, generator) of text.
+
+    Refused by name, with ``remedy`` (what to pass instead): a single value that is not a
+    collection (a number, a bool, ``None``, a 0-d array, a str or bytes), an entry that is
+    not text (``str(1.5)`` would make up a name nobody gave), and, with ``ordered``, a set
+    or a mapping, whose order is not the caller's (a set of str changes its order from one
+    run of Python to the next).
+    """
+    if isinstance(value, (str, bytes)):
+        raise InputError(f"{name} is a single {type(value).__name__} ({_short(value)}); pass a list: {remedy}")
+    if ordered and isinstance(value, (set, frozenset, dict)):
+        raise InputError(f"{name} is a {type(value).__name__}, which has no order of its own; pass a list: {remedy}")
+    try:
+        items = tuple(value)
+    except TypeError:  # not iterable: a number, a bool, None, object(), a 0-d array
+        raise InputError(f"{name} must be a list of str; got {_short(value)}: {remedy}") from None
+    for j, item in enumerate(items):
+        if not isinstance(item, str):
+            raise InputError(f"{name} entry {j} is {_short(item)} ({type(item).__name__}), not text: {remedy}")
+    return tuple(str(item) for item in items)
+
+
+def check_flag(value: Any, name: str) -> bool:
+    """``value`` as a bool: ``True``/``False`` (or NumPy's), nothing else (an array, ``pd.NA``,
+    1, "yes" and None have no single agreed truth value)."""
+    if not isinstance(value, (bool, np.bool_)):
+        raise InputError(f"{name} must be True or False; got {_short(value)}")
+    return bool(value)
 
 
 def check_nonnegative(value: Any, name: str) -> float:
@@ -558,12 +591,16 @@ def _short(value: Any) -> str:
     return text if len(text) <= 60 else text[:57] + "..."
 
 
-def check_positive_int(value: Any, name: str, minimum: int = 1) -> int:
-    """Check that ``value`` is an integer >= ``minimum``."""
+def check_positive_int(value: Any, name: str, minimum: int = 1, maximum: int | None = None,
+                       why: str = "") -> int:
+    """Check that ``value`` is an integer >= ``minimum`` (and <= ``maximum`` when given;
+    ``why`` then says what a larger value would do)."""
     if isinstance(value, bool) or not isinstance(value, numbers.Integral):
         raise InputError(f"{name} must be an integer >= {minimum}; got {_short(value)}")
     if value < minimum:
         raise InputError(f"{name} must be >= {minimum}; got {value}")
+    if maximum is not None and value > maximum:
+        raise InputError(f"{name} must be at most {maximum}; got {value}{why}")
     return int(value)
 
 

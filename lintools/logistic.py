@@ -41,6 +41,7 @@ from ._validate import (
     as_vector,
     as_weights,
     check_finite,
+    check_flag,
     check_names,
     check_nonnegative,
     check_positive_int,
@@ -172,12 +173,6 @@ def _check_tol(tol: Any) -> float:
     return float(tol)
 
 
-def _check_flag(value: Any, name: str) -> bool:
-    if not isinstance(value, (bool, np.bool_)):
-        raise InputError(f"{name} must be True or False; got {value!r}")
-    return bool(value)
-
-
 def check_parameters_and_rows(k: int, rows: int) -> None:
     """Without a penalty the design needs at least as many rows as parameters."""
     if k > rows:
@@ -193,7 +188,7 @@ def check_fit_settings(intercept: Any, l2: Any, tol: Any, max_iter: Any, on_iter
 
     ``solver`` must name one of the solvers (None, or anything else, is an InputError
     naming the choices; the block fits pass their only one, "newton")."""
-    intercept = _check_flag(intercept, "intercept")
+    intercept = check_flag(intercept, "intercept")
     lam = check_nonnegative(l2, "l2")
     check_solver(solver, SOLVERS)
     tol = _check_tol(tol)
@@ -408,8 +403,8 @@ def logistic(
     off = None if offset is None else as_offset(offset, n)
     yy, m, classes, positive_class = _response(y, trials, positive, n)
     intercept, lam, tol, max_iter = check_fit_settings(intercept, l2, tol, max_iter, on_iteration, solver)
-    firth = _check_flag(firth, "firth")
-    profile = _check_flag(profile, "profile")
+    firth = check_flag(firth, "firth")
+    profile = check_flag(profile, "profile")
     if not (isinstance(profile_level, numbers.Real) and 0.0 < float(profile_level) < 1.0):
         raise InputError(f"profile_level must lie strictly between 0 and 1; got {profile_level!r}")
     if firth and lam > 0:

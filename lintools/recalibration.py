@@ -16,6 +16,7 @@ from ._errors import InputError
 from ._outcomes import binary_outcome, case_weights, finite_scores, sigmoid, vector_in
 from ._temperature import TemperatureMap, temperature_scaling
 from ._scaling import case_weight_scale
+from ._validate import check_flag
 
 __all__ = [
     "PlattMap",
@@ -105,8 +106,7 @@ def platt_scaling(
     Lin, H.-T., Lin, C.-J. & Weng, R. C. (2007). A note on Platt's probabilistic outputs
     for support vector machines. Machine Learning 68, 267-276.
     """
-    if not isinstance(smoothing, (bool, np.bool_)):
-        raise InputError(f"smoothing must be True or False; got {smoothing!r}")
+    check_flag(smoothing, "smoothing")
     o, _ = binary_outcome(y, positive)
     s = finite_scores(scores, "scores", o.shape[0])
     w = case_weights(weights, o.shape[0])
@@ -239,8 +239,7 @@ def isotonic_calibration(
     Zadrozny, B. & Elkan, C. (2002). Transforming classifier scores into accurate
     multiclass probability estimates. KDD 2002, 694-699.
     """
-    if not isinstance(increasing, (bool, np.bool_)):
-        raise InputError(f"increasing must be True or False; got {increasing!r}")
+    increasing = check_flag(increasing, "increasing")
     o, _ = binary_outcome(y, positive)
     x = finite_scores(p, "p", o.shape[0])
     w = case_weights(weights, o.shape[0])
