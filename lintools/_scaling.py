@@ -39,7 +39,7 @@ import numpy as np
 from ._errors import InputError
 
 __all__ = ["case_weight_scale", "scaled_case_weights", "scaled_back", "caller_covariance", "check_solver",
-           "check_l2_scale"]
+           "check_l2_scale", "check_firth_scale", "FIRTH_MIN_SCALE"]
 
 _TINY = float(np.finfo(float).tiny)
 _REMEDY = "divide (or multiply) all weights by a common factor; the coefficients do not change"
@@ -72,6 +72,23 @@ def check_l2_scale(lam: float, scale: float) -> None:
         raise InputError(
             f"l2 = {lam:g} is beyond float64 range relative to the case weights (largest about {scale:.3g}); "
             "the penalty would swamp the data: use a smaller l2 or larger weights"
+        )
+
+
+#: Firth fits refuse case weights whose largest is below this (their penalty's weight 1 / s
+#: in the scaled objective would pass 2**1000, and its sums float64's range).
+FIRTH_MIN_SCALE = 2.0**-1000
+
+
+def check_firth_scale(scale: float) -> None:
+    """Firth's penalty enters the scaled objective ``F / s`` with weight ``1 / s``: refuse a
+    weight scale ``s`` so small that the penalty outweighs the data beyond float64's range."""
+    if scale < FIRTH_MIN_SCALE:
+        raise InputError(
+            f"firth=True with case weights whose largest is {scale:.3g}: Firth's penalty does not scale with "
+            "the weights, and against weights below 2**-1000 (9.3e-302) it outweighs the log-likelihood beyond "
+            "float64's range (the estimate would be the penalty's alone); multiply all weights by a common "
+            "factor (for example divide them by their largest, or pass case counts)"
         )
 
 

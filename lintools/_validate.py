@@ -408,19 +408,38 @@ def weight_scale(w: np.ndarray) -> float:
     return power_of_two(float(np.max(w))) if w.size else 1.0
 
 
+#: The largest |offset| accepted: beyond 2**52 consecutive doubles are at least 1 apart.
+MAX_OFFSET = 2.0**52
+
+
 def as_offset(offset: Any, n: int, k: int | None = None, name: str = "offset") -> np.ndarray:
-    """Return an offset of shape (n,) (or (n, k) when ``k`` is given); zeros when None."""
+    """Return an offset of shape (n,) (or (n, k) when ``k`` is given); zeros when None.
+
+    An offset is a known part of the linear predictor, in logits.  Entries beyond
+    :data:`MAX_OFFSET` (2**52, about 4.5e15) in magnitude are refused: there consecutive
+    doubles are at least 1 apart, so the linear predictor ``offset + b + x'beta`` cannot be
+    formed to any useful digit (and sums of such offsets over the rows may overflow)."""
     if offset is None:
         return np.zeros(n) if k is None else np.zeros((n, k))
     if k is None:
-        return as_vector(offset, name, n)
-    arr = _as_float(offset, name)
-    if arr.shape != (n, k):
+        arr = as_vector(offset, name, n)
+    else:
+        arr = _as_float(offset, name)
+        if arr.shape != (n, k):
+            raise InputError(
+                f"{name} has shape {arr.shape}; pass an array of shape ({n}, {k}) "
+                "(one column per class)"
+            )
+        _check_finite(arr, name)
+    big = np.abs(arr) > MAX_OFFSET
+    if big.any():
+        index = tuple(int(i) for i in np.argwhere(big)[0])
         raise InputError(
-            f"{name} has shape {arr.shape}; pass an array of shape ({n}, {k}) "
-            "(one column per class)"
+            f"{name} has {arr[index]:.6g} at {_position(index, None)}, beyond 2**52 (4.5e15) in magnitude, where "
+            "doubles are at least 1 apart: the linear predictor (offset + intercept + x'beta, in logits) cannot "
+            "be formed to any useful digit; check the offset's units (a logit, or the log of an exposure, not "
+            "the exposure itself)"
         )
-    _check_finite(arr, name)
     return arr
 
 
