@@ -28,22 +28,19 @@ The battery makes about 31,000 hostile calls (``pytest -s`` prints the count) in
 25 s of CPU time.  A failure names the argument, the value, the exception or warning and
 the innermost lintools line it came from (``[at file.py:line]``), so it can be routed.
 
-Known defects in files the battery's owner may not edit are listed in ``KNOWN``: glob
-patterns of spec, argument and value id, with ``"file: what"``.  They run as strict
-expected failures written out (``pytest.mark.xfail`` is not used because
-tests/conftest.py counts an xfail as a skip and fails the run):
-``test_known_defects_still_fail`` fails once an entry no longer matches any failure, and
-then the entry is to be removed.
+Every hostile call passes: the defects this battery once carried as known failures (its
+``KNOWN`` list) are fixed, and the mechanism went with the last of them; a new failure is
+a defect to fix, not to list.
 
 The regression tests at the end check the named refusals that replaced the foreign
-exceptions of issue #16, each failing on the code before the fix.
+exceptions of issue #16 and the defects the battery found, each failing on the code
+before the fix.
 """
 
 from __future__ import annotations
 
 import datetime
 import decimal
-import fnmatch
 import fractions
 import inspect
 import io
@@ -64,7 +61,6 @@ import scipy.sparse
 import lintools as lt
 
 HANG_SECONDS = 3.0
-HANG_KNOWN = 0.3
 
 # ------------------------------------------------------------------------------ data
 RNG = np.random.default_rng(16016)
@@ -542,46 +538,6 @@ FOLLOW_UP = {f"{c}.{m}" for c in ("SplitBalance", "BrierScore", "ReliabilityTabl
              for m in ("report",)} | {f"{c}.to_dict" for c in ("LinearFit", "LogisticFit", "SoftmaxFit")} | {
     "SoftmaxFit.parameter_terms"}
 
-@dataclass(frozen=True)
-class Known:
-    """A defect in a file the battery's owner may not edit: the specs, argument and value ids
-    (glob patterns) where it shows, and ``"file: what"`` for the lead to route it."""
-
-    specs: tuple[str, ...]
-    arg: str
-    values: tuple[str, ...]
-    reason: str
-    hang: bool = False  # a call that never returns: cut after HANG_KNOWN seconds to keep the battery fast
-
-    def matches(self, key: tuple[str, str, str]) -> bool:
-        name, arg, vid = key
-        vid = vid.split(" then ")[0]
-        return (any(fnmatch.fnmatchcase(name, g) for g in self.specs) and fnmatch.fnmatchcase(arg, self.arg)
-                and any(fnmatch.fnmatchcase(vid, g) for g in self.values))
-
-
-#: the magnitudes at the ends of the float64 range among the hostile values
-EXTREME = ("*1e308*", "*1e300*", "huge-array", "*1e-320*", "*5e-324*", "tiny-array", "*1e-300*")
-LOGISTIC = ("logistic", "logistic[[]*")
-LEAST_SQUARES = ("least_squares", "least_squares[[]*")
-KNOWN: list[Known] = [
-    Known(LOGISTIC + ("softmax", "softmax[[]*"), "X", EXTREME, "solvers/_kernels.py, solvers/problem.py (logistic "
-          "and softmax fronts): X near 1e300-1e308 overflows in exp2, matmul or square (RuntimeWarning)"),
-    Known(LOGISTIC + ("softmax",), "weights", EXTREME, "logistic.py (~404), solvers/problem.py (~184), "
-          "solvers/base.py (~162): weights of 1e308 overflow a sum, weights of 1e-320 a division (RuntimeWarning)"),
-    Known(LOGISTIC, "trials", EXTREME, "logistic.py (~403): trials of 1e308 overflow (RuntimeWarning); with "
-          "firth=True losses.py (~95) raises OverflowError 'math range error' from math.lgamma"),
-    Known(("logistic",), "offset", EXTREME, "losses.py (~234): an offset of 1e308 overflows in matmul (RuntimeWarning)"),
-    Known(("logistic[[]firth]",), "profile", ("True", "np.bool"), "solvers/base.py (~131): the profile intervals of "
-          "a Firth fit on separated data take the square root of a negative number (RuntimeWarning)"),
-    Known(("platt_scaling",), "scores", EXTREME, "solvers/_kernels.py through platt_scaling: scores near 1e300 "
-          "overflow (RuntimeWarning)"),
-    Known(("platt_scaling",), "weights", EXTREME, "recalibration.py (~107), solvers/base.py (~162): extreme "
-          "weights overflow (RuntimeWarning)"),
-    Known(("temperature_scaling*",), "logits", EXTREME, "_temperature.py (~86, 168): logits near 1e300 overflow "
-          "(RuntimeWarning)"),
-]
-
 
 # ----------------------------------------------------------------- running calls
 #: Words of a solver or an internal function that must not reach a user (issue #16)
@@ -689,8 +645,7 @@ def run_spec(s: Spec, tmp: Path, tally: Tally) -> None:
                 warnings.simplefilter("ignore")
                 args[arg] = make()
         tally.calls += 1
-        hangs = any(d.hang and d.matches((s.name, arg, vid)) for d in KNOWN)
-        problem, result = _outcome(lambda: s.call(args), HANG_KNOWN if hangs else HANG_SECONDS)
+        problem, result = _outcome(lambda: s.call(args))
         if problem is not None:
             tally.failures[(s.name, arg, vid)] = problem
             continue
@@ -734,8 +689,7 @@ def test_hostile_values_raise_only_lintools_errors(name: str, tmp_path: Path, mo
     tally = Tally()
     run_spec(s, tmp_path, tally)
     TALLY[name] = tally
-    unexpected = {k: v for k, v in tally.failures.items() if not any(d.matches(k) for d in KNOWN)}
-    lines = [f"{k[1]}={k[2]}: {v}" for k, v in sorted(unexpected.items())]
+    lines = [f"{k[1]}={k[2]}: {v}" for k, v in sorted(tally.failures.items())]
     assert not lines, f"{len(lines)} of {tally.calls} hostile calls of {name} failed:\n" + "\n".join(lines)
 
 
@@ -760,24 +714,12 @@ def test_every_public_callable_is_covered(tmp_path: Path) -> None:
     assert not missing, f"add hostile specs for: {sorted(missing)}"
 
 
-def test_known_defects_still_fail() -> None:
-    """Strict expected failures, written out: every entry of KNOWN must still show in a spec
-    test of this run (an entry whose specs did not run is not judged).  Once a defect is
-    fixed, this fails: remove its entry."""
-    fixed = []
-    for d in KNOWN:
-        ran = [name for name in TALLY if any(fnmatch.fnmatchcase(name, g) for g in d.specs)]
-        if ran and not any(d.matches(k) for name in ran for k in TALLY[name].failures):
-            fixed.append(d.reason)
-    assert not fixed, "fixed, remove from KNOWN:\n" + "\n".join(fixed)
-
-
 def test_battery_size() -> None:
     """The battery makes tens of thousands of hostile calls (counted by the spec tests of
     this run; the count is printed with pytest -s)."""
     total = sum(t.calls for t in TALLY.values())
-    known = sum(1 for t in TALLY.values() for k in t.failures if any(d.matches(k) for d in KNOWN))
-    print(f"hostile calls: {total} over {len(TALLY)} callables; {known} fail as known defects of other files")
+    failed = sum(len(t.failures) for t in TALLY.values())
+    print(f"hostile calls: {total} over {len(TALLY)} callables; {failed} failed")
     if len(TALLY) == len(SPEC_NAMES):
         assert total > 20000
 
@@ -952,9 +894,9 @@ def test_distribution_messages_are_plain_words() -> None:
     assert "chi2_sf" not in message
 
 
-# The defects the battery listed as known (KNOWN) until they were fixed; each test fails on
-# the code before the fix (a TypeError, a KeyError, numpy's ValueError, an AttributeError,
-# a RuntimeWarning or a call that never returned).
+# The defects the battery listed as known (its former KNOWN list) until they were fixed;
+# each test fails on the code before the fix (a TypeError, a KeyError, numpy's ValueError,
+# an AttributeError, an OverflowError, a RuntimeWarning or a call that never returned).
 
 
 @pytest.mark.parametrize("names, fragment", [
