@@ -39,7 +39,7 @@ import numpy as np
 from ._errors import InputError
 
 __all__ = ["case_weight_scale", "scaled_case_weights", "scaled_back", "caller_covariance", "check_solver",
-           "check_l2_scale", "check_firth_scale", "FIRTH_MIN_SCALE"]
+           "check_l2_scale", "check_firth_scale", "FIRTH_MIN_SCALE", "SUM_LIMIT", "wide_column_error"]
 
 _TINY = float(np.finfo(float).tiny)
 _REMEDY = "divide (or multiply) all weights by a common factor; the coefficients do not change"
@@ -90,6 +90,23 @@ def check_firth_scale(scale: float) -> None:
             "float64's range (the estimate would be the penalty's alone); multiply all weights by a common "
             "factor (for example divide them by their largest, or pass case counts)"
         )
+
+
+#: The largest bound accepted on a fit's sums over the rows of entry times residual
+#: (2**1020, 1/8 of float64's largest): a column whose largest magnitude times the total
+#: weight (the sum of |residual| is at most that) passes it is refused by name.
+SUM_LIMIT = 2.0**1020
+
+
+def wide_column_error(column: int, name: str, top: float) -> InputError:
+    """The refusal of X column ``column`` (``name``), whose entries up to ``top`` times the
+    residuals, summed over the rows, would pass float64's range (see :data:`SUM_LIMIT`)."""
+    return InputError(
+        f"X column {column} ('{name}') has entries up to {top:.3g} in magnitude: the fit's sums over the "
+        "rows of entry times residual would pass 1.8e308, which float64 cannot hold: rescale that column "
+        "by a power of ten so that its entries are nearer 1 (its coefficient and standard error then scale by "
+        "the inverse factor)"
+    )
 
 
 def caller_covariance(T: np.ndarray, Vz: np.ndarray, scale: float, terms: Sequence[str],

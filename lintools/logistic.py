@@ -32,7 +32,8 @@ import numpy as np
 
 from ._errors import InputError, IterationLimitWarning, LintoolsError, LintoolsWarning, SeparationError, warn_caller
 from ._records import Convergence, LogisticFit
-from ._scaling import check_firth_scale, check_l2_scale, check_solver, scaled_back, scaled_case_weights
+from ._scaling import (check_firth_scale, check_l2_scale, check_solver, scaled_back, scaled_case_weights,
+                       wide_column_error)
 from ._threads import ELEMENT_CHUNK, for_rows, with_row_threads
 from ._validate import (
     as_labels,
@@ -156,7 +157,7 @@ def _response(y: Any, trials: Any, positive: Any, n: int) -> tuple[np.ndarray, n
             raise InputError(
                 f"{name} is {arr[i]:.6g} at row {i}, beyond 2**53 (9.0e15), above which doubles do not hold every "
                 f"whole number, so it cannot be exactly {what}: pass counts up to 2**53 (a row "
-                "that stands for many identical groups takes their number as its case weight, weights=)"
+                "that stands for many identical groups takes their number as its case weight instead)"
             )
         bad = ~_whole(arr)
         if bad.any():
@@ -478,6 +479,8 @@ def checked_problem(Xa: np.ndarray, found: Any, names: tuple[str, ...], loss: An
         raise
     except ExtremeSpread as exc:
         term = f"'{names[exc.column]}'"
+        if exc.top is not None:
+            raise wide_column_error(exc.column, names[exc.column], exc.top) from None
         if exc.log10_variance is None:
             raise InputError(
                 f"X column {exc.column} ({term}) has a weighted spread of {exc.spread:.3g}, so small that the ridge "

@@ -91,15 +91,34 @@ FITS = {
 }
 
 
-@pytest.mark.parametrize("fit", [f for f in FITS if f != "softmax"])  # softmax: that row is separated
-def test_a_column_with_an_entry_of_1e308_is_refused_for_its_variance(fit):
-    # source: exact algebra -- the coefficient of a column of spread s has a variance of
-    # order 1 / (W s^2), here about 1e-600, below float64's range.  Before: RuntimeWarning
-    # "overflow encountered in exp2" while the column's moments were formed
-    Xs = X.copy()
+WIDE_FITS = dict(FITS, **{
+    "logistic_blocks": lambda Xs: lt.logistic_blocks(lambda: iter([(Xs[:20], Y[:20]), (Xs[20:], Y[20:])])),
+    "softmax_blocks": lambda Xs: lt.softmax_blocks(lambda: iter([(Xs[:20], YK[:20]), (Xs[20:], YK[20:])])),
+})
+
+
+def _one_entry(Xs):
     Xs[3, 0] = 1e308
-    with pytest.raises(lt.InputError, match=r"variance of the coefficient of '(x1|\(intercept\))'.*below 2\.2e-308"):
-        FITS[fit](Xs)
+
+
+def _every_entry(Xs):
+    Xs[:, 0] = np.ldexp(Xs[:, 0] / 2.0, 1023)  # exact; the largest entry is about 9.6e307
+
+
+@pytest.mark.parametrize("design", [_one_entry, _every_entry], ids=["one-entry", "every-entry"])
+@pytest.mark.parametrize("fit", list(WIDE_FITS))
+def test_a_column_with_entries_near_1e308_is_refused_for_its_sums(fit, design):
+    # source: IEEE 754 double -- an entry of 1e308 times a residual of order 1, summed
+    # with 49 more rows, can pass 1.8e308 (the refusal bounds the sums by the largest entry
+    # times the total weight).  Before: RuntimeWarning "overflow encountered in exp2" while
+    # the column's moments were formed (one entry, the battery's case), or "in matmul" in
+    # the gradient X' r (every entry: found while writing these tests)
+    Xs = X.copy()
+    design(Xs)
+    top = re.escape(f"{np.max(np.abs(Xs[:, 0])):.3g}")
+    with pytest.raises(lt.InputError, match=rf"X column 0 \('x1'\) has entries up to {top} in magnitude: "
+                                            r"the fit's sums .* pass 1\.8e308.*rescale that column"):
+        WIDE_FITS[fit](Xs)
 
 
 @pytest.mark.parametrize("factor", [1e-320, 5e-324])

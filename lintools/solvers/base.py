@@ -148,12 +148,14 @@ class ExtremeSpread(ValueError):
     ``log10_variance`` is a lower bound (log10) of its coefficient's variance in the
     caller's weights, ``4 / (W spread^2)`` (without a ridge the inverse information's
     diagonal is at least the inverse of its diagonal, at most ``W / 4`` per standardised
-    column); it is None with a ridge, whose penalty ``l2 / spread^2`` is what overflows.
-    Callers name the column and the remedy."""
+    column); it is None with a ridge, whose penalty ``l2 / spread^2`` is what overflows,
+    and when ``top`` is set: the column's largest magnitude, whose products with the
+    residuals summed over the rows would pass float64's range.  Callers name the column
+    and the remedy."""
 
-    def __init__(self, column: int, spread: float, log10_variance: float | None) -> None:
+    def __init__(self, column: int, spread: float, log10_variance: float | None, top: float | None = None) -> None:
         super().__init__(f"column {column} has a weighted spread of {spread:.3g}, beyond float64's range")
-        self.column, self.spread, self.log10_variance = column, spread, log10_variance
+        self.column, self.spread, self.log10_variance, self.top = column, spread, log10_variance, top
 
 
 def cholesky(H: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
