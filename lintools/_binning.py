@@ -12,6 +12,10 @@ Edge rules (one rule for every binned metric):
 - Bins are closed on the right, ``(e[j], e[j+1]]``, except the first, ``[e[0], e[1]]``;
   so p = 0 falls in the first bin, p = 1 in the last, and a forecast equal to an inner
   edge belongs to the bin below that edge.
+
+The number of bins (and of Hosmer-Lemeshow groups) is at most :data:`MAX_BINS`, one
+million: every bin costs memory in the result whether or not a forecast falls in it, and
+beyond that almost every bin is empty for any data that fit in memory.
 """
 
 from __future__ import annotations
@@ -21,14 +25,24 @@ import numpy as np
 from . import _distributions as dist
 from ._validate import check_choice, check_positive_int
 
-__all__ = ["STRATEGIES", "edges_for", "assign", "group_sums", "group_shares", "wilson_interval"]
+__all__ = ["STRATEGIES", "MAX_BINS", "check_bins", "edges_for", "assign", "group_sums", "group_shares",
+           "wilson_interval"]
 
 STRATEGIES = ("width", "count")
+#: The largest number of bins (or risk groups) a binned metric accepts.
+MAX_BINS = 1_000_000
+
+
+def check_bins(value: object, name: str = "bins", minimum: int = 1) -> int:
+    """A number of bins (or groups): an integer from ``minimum`` to :data:`MAX_BINS`."""
+    return check_positive_int(value, name, minimum, MAX_BINS,
+                              f"; every {name[:-1]} costs memory, and beyond {MAX_BINS} almost all of them are "
+                              f"empty: pass fewer {name}")
 
 
 def edges_for(p: np.ndarray, bins: int, strategy: str) -> np.ndarray:
     """Return the ``bins + 1`` bin edges for the forecasts ``p`` (see module notes)."""
-    check_positive_int(bins, "bins")
+    check_bins(bins)
     check_choice(strategy, "strategy", STRATEGIES)
     if strategy == "width":
         return np.linspace(0.0, 1.0, bins + 1)

@@ -9,7 +9,7 @@ import numpy as np
 
 from ._errors import InputError, LintoolsError, SeparationError
 from ._records import LogisticFit
-from ._scaling import check_l2_scale, scaled_back
+from ._scaling import SUM_LIMIT, check_l2_scale, scaled_back, wide_column_error
 from ._validate import check_names
 from .inference import covariance, likelihood_fields
 from .linalg import default_rank_tolerance, dependency_sentence, unstandardise
@@ -415,6 +415,13 @@ def _centres_and_scales(part: dict, intercept: bool, lam: float, names: tuple[st
         # without an intercept: the root mean square, as LinearModelProblem
         sd = np.ldexp(norms / math.sqrt(part["W_units"]), part["ez"])
     s = np.where((sd > 1e-13 * np.abs(c)) & (sd > 0) & np.isfinite(sd), sd, 1.0)
+    # the kernels' sums (X - c)' r: |x - c| <= 2 top and |r| sums to at most W / wmax (the
+    # weights divided by the largest), so below SUM_LIMIT (1/8 of float64's largest) no overflow
+    top = np.maximum(np.abs(part["hi"]), np.abs(part["lo"]))
+    over = np.flatnonzero(~(top <= SUM_LIMIT / (part["W"] / part["wmax"])))
+    if over.size:
+        j = int(over[0])
+        raise wide_column_error(j, names[j], float(top[j]))
     return c, s
 
 

@@ -14,11 +14,10 @@ from ._errors import (
     )
 from ._lsq_qr import ILL_CONDITIONED, alias_sentences
 from ._lsq_scale import Units, column_exponents, exponent, to_caller
-from ._validate import check_names, check_nonnegative, weight_scale
+from ._validate import check_flag, check_names, check_nonnegative, weight_scale
 from ._records import LinearFit
 from .least_squares import _record, _residual_df
 from .linalg import CONSTANT_TOLERANCE, aliased_columns, condition_number, default_rank_tolerance, inverse_upper, solve_lower, solve_upper
-from .logistic import _check_flag
 
 from ._block_stream import _add, _merge_labels, _positive_rows, _runner
 
@@ -265,7 +264,7 @@ def least_squares_blocks(
     Bjorck (1987), Linear Algebra Appl. 88/89, 31-48 (corrected semi-normal equations).
     Knuth (1997), The Art of Computer Programming 2, 3rd ed., sec. 4.2.2 (TwoSum).
     """
-    intercept = _check_flag(intercept, "intercept")
+    intercept = check_flag(intercept, "intercept")
     lam = check_nonnegative(l2, "l2")
     run = _runner(source, X, y, weights)
     part = run.reduce(_ls_factor_kernel, _ls_merge, (intercept,), (intercept,))

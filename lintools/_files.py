@@ -26,6 +26,7 @@ import tempfile
 from typing import Any, Iterable
 
 from ._errors import InputError
+from ._validate import check_flag
 
 __all__ = ["file_path", "read_bounded", "write_atomic", "check_outputs", "same_file"]
 
@@ -138,8 +139,10 @@ def write_atomic(path: Any, data: bytes | str, *, replace: bool = False, label: 
     The bytes go to a temporary file in the same folder, are flushed and synced, and the
     file is renamed into place.  An existing ``path`` is refused (InputError naming
     ``replace_hint``, the way to allow it) unless ``replace`` is true.  On any failure
-    the temporary file is removed and ``path`` is left as it was.
+    the temporary file is removed and ``path`` is left as it was.  ``replace`` must be a
+    bool (an array or ``pd.NA`` has no single truth value; "no" would be true).
     """
+    replace = check_flag(replace, "replace")
     where = file_path(path, label)
     if isinstance(data, str):
         data = data.encode("utf-8")

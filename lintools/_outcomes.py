@@ -224,7 +224,8 @@ def vector_in(x: Any, name: str) -> tuple[np.ndarray, bool]:
     """A finite 1-D input of a map's ``apply`` and whether it was a scalar."""
     if isinstance(x, (bool, np.bool_)):
         raise InputError(f"{name} is a bool ({x!r}); pass a number or an array of numbers")
-    if np.ndim(x) == 0 and not hasattr(x, "__len__"):
+    # a collection goes to as_vector whole (np.ndim would raise on a ragged list)
+    if not hasattr(x, "__len__") and np.ndim(x) == 0:
         return as_vector([x], name), True
     return as_vector(x, name), False
 

@@ -364,8 +364,10 @@ class LogisticFit(_FitBase):
     under an l2 penalty, penalised-likelihood ratio for Firth fits), ``firth``,
     ``penalised_log_likelihood`` (the maximised objective with its sign flipped), and
     ``profile_intervals`` ((k, 2), intercept first; None unless requested) at
-    ``profile_level``.  ``n_observations`` is ``sum(w * m)``: the number of Bernoulli
-    trials the rows stand for.
+    ``profile_level``: an end the profile does not reach (within 1e8 times the standard
+    error) is infinite, and an end that was not found (a fit with the coefficient held
+    fixed did not converge) is NaN, with a :class:`LintoolsWarning` naming the term.
+    ``n_observations`` is ``sum(w * m)``: the number of Bernoulli trials the rows stand for.
     """
 
     classes: tuple = ()

@@ -39,7 +39,7 @@ import numpy as np
 from ._errors import InputError
 
 __all__ = ["case_weight_scale", "scaled_case_weights", "scaled_back", "caller_covariance", "check_solver",
-           "check_l2_scale"]
+           "check_l2_scale", "check_firth_scale", "FIRTH_MIN_SCALE", "SUM_LIMIT", "wide_column_error"]
 
 _TINY = float(np.finfo(float).tiny)
 _REMEDY = "divide (or multiply) all weights by a common factor; the coefficients do not change"
@@ -73,6 +73,40 @@ def check_l2_scale(lam: float, scale: float) -> None:
             f"l2 = {lam:g} is beyond float64 range relative to the case weights (largest about {scale:.3g}); "
             "the penalty would swamp the data: use a smaller l2 or larger weights"
         )
+
+
+#: Firth fits refuse case weights whose largest is below this (their penalty's weight 1 / s
+#: in the scaled objective would pass 2**1000, and its sums float64's range).
+FIRTH_MIN_SCALE = 2.0**-1000
+
+
+def check_firth_scale(scale: float) -> None:
+    """Firth's penalty enters the scaled objective ``F / s`` with weight ``1 / s``: refuse a
+    weight scale ``s`` so small that the penalty outweighs the data beyond float64's range."""
+    if scale < FIRTH_MIN_SCALE:
+        raise InputError(
+            f"firth=True with case weights whose largest is {scale:.3g}: Firth's penalty does not scale with "
+            "the weights, and against weights below 2**-1000 (9.3e-302) it outweighs the log-likelihood beyond "
+            "float64's range (the estimate would be the penalty's alone); multiply all weights by a common "
+            "factor (for example divide them by their largest, or pass case counts)"
+        )
+
+
+#: The largest bound accepted on a fit's sums over the rows of entry times residual
+#: (2**1020, 1/8 of float64's largest): a column whose largest magnitude times the total
+#: weight (the sum of |residual| is at most that) passes it is refused by name.
+SUM_LIMIT = 2.0**1020
+
+
+def wide_column_error(column: int, name: str, top: float) -> InputError:
+    """The refusal of X column ``column`` (``name``), whose entries up to ``top`` times the
+    residuals, summed over the rows, would pass float64's range (see :data:`SUM_LIMIT`)."""
+    return InputError(
+        f"X column {column} ('{name}') has entries up to {top:.3g} in magnitude: the fit's sums over the "
+        "rows of entry times residual would pass 1.8e308, which float64 cannot hold: rescale that column "
+        "by a power of ten so that its entries are nearer 1 (its coefficient and standard error then scale by "
+        "the inverse factor)"
+    )
 
 
 def caller_covariance(T: np.ndarray, Vz: np.ndarray, scale: float, terms: Sequence[str],

@@ -93,6 +93,36 @@ def _nll_parts(beta: float, Z: np.ndarray, zy: np.ndarray, w: np.ndarray, total:
     return f, d1, d2
 
 
+def _unit_logits(Z: np.ndarray) -> tuple[np.ndarray, int]:
+    """``(Z', k)``: the logits divided by ``2**k`` and each row shifted by its largest entry,
+    so that the largest magnitude of ``Z'`` lies in [1, 2) (the probabilities at ``T`` on
+    ``Z`` are those at ``T / 2**k`` on ``Z'``).  The divisions are exact (``ldexp``), and
+    dividing before shifting keeps a row of logits near -1e308 and 1e308 finite."""
+    def exponent(top: float) -> int:
+        return math.frexp(top)[1] - 1 if top > 0 and math.isfinite(top) else 0
+
+    k0 = exponent(float(np.max(np.abs(Z))) if Z.size else 0.0)
+    Z = np.ldexp(Z, -k0)
+    Z = Z - Z.max(axis=1, keepdims=True)  # the probabilities do not change; exact near the top
+    k1 = exponent(float(-Z.min()) if Z.size else 0.0)
+    return np.ldexp(Z, -k1), k0 + k1
+
+
+def _temperature(u: float, shift: int) -> float:
+    """``exp(u) * 2**shift``: the temperature on the caller's logits, refused when float64
+    cannot hold it (logits near 1e308 or below 1e-300 and a temperature far from 1 on them)."""
+    try:
+        t = math.ldexp(math.exp(u), shift)
+    except OverflowError:
+        t = math.inf
+    if not (np.finfo(float).tiny <= t < math.inf):
+        raise InputError(
+            f"the fitted temperature is about 1e{(u + shift * math.log(2.0)) / math.log(10.0):.0f}, beyond what "
+            "float64 holds; multiply (or divide) the logits by a power of ten (the temperature scales with them)"
+        )
+    return t
+
+
 def temperature_scaling(
     y: Any, logits: Any, *, weights: Any = None, tol: float = 1e-12, max_iter: int = 100
 ) -> TemperatureMap:
@@ -112,10 +142,14 @@ def temperature_scaling(
     gradient per unit of total case weight with respect to :math:`\log T`, the stopping
     rule of the other fits (:mod:`lintools.solvers`) in the one coordinate that does not
     depend on the scale of the logits (multiplying every logit by ``c`` moves
-    :math:`\log T` by :math:`\log c`).  The weights are divided by the largest one first
-    and each row of logits is shifted by its largest entry (the probabilities do not
-    change), so neither the scale of the weights nor a common shift of a row's logits
-    changes the answer, the verdict or the iteration count.
+    :math:`\log T` by :math:`\log c`).  The weights are divided by the largest one first,
+    each row of logits is shifted by its largest entry (the probabilities do not
+    change), and the shifted logits are divided by the power of two that brings their
+    largest magnitude into [1, 2) (exactly; the iterations start from :math:`T` equal to
+    that power), so neither the scale of the weights, nor a common shift of a row's
+    logits, nor the scale of the logits (logits of 1e-300 or 1e300 included) changes the
+    answer beyond the factor, the verdict or the iteration count.  A temperature that
+    float64 cannot hold is refused.
 
     ``logits`` is an (n, K) matrix, column k for the k-th class in sorted label order,
     or a 1-D vector of binary logits (log-odds of the positive class, read as the
@@ -175,7 +209,7 @@ def temperature_scaling(
     live = w > 0
     scale = case_weight_scale(w)
     Z, codes, w = Z[live], codes[live], w[live] / scale
-    Z = Z - Z.max(axis=1, keepdims=True)  # the probabilities do not change; exact near the top
+    Z, shift = _unit_logits(Z)
     total = float(w.sum())
     zy = Z[np.arange(Z.shape[0]), codes]
     if float(w @ (Z.max(axis=1) - zy)) == 0.0:
@@ -221,7 +255,7 @@ def temperature_scaling(
             LintoolsWarning if stalled else IterationLimitWarning,
         )
     return TemperatureMap(
-        temperature=math.exp(u),
+        temperature=_temperature(u, shift),
         classes=Z.shape[1],
         binary=binary,
         log_likelihood=scaled_back(-f * total, scale, "log-likelihood"),

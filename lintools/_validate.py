@@ -48,6 +48,8 @@ __all__ = [
     "read_only",
     "ReadOnlyArrays",
     "check_names",
+    "check_flag",
+    "as_texts",
     "name_problem",
     "text_problem",
     "MAX_NAME_LENGTH",
@@ -406,19 +408,38 @@ def weight_scale(w: np.ndarray) -> float:
     return power_of_two(float(np.max(w))) if w.size else 1.0
 
 
+#: The largest |offset| accepted: beyond 2**52 consecutive doubles are at least 1 apart.
+MAX_OFFSET = 2.0**52
+
+
 def as_offset(offset: Any, n: int, k: int | None = None, name: str = "offset") -> np.ndarray:
-    """Return an offset of shape (n,) (or (n, k) when ``k`` is given); zeros when None."""
+    """Return an offset of shape (n,) (or (n, k) when ``k`` is given); zeros when None.
+
+    An offset is a known part of the linear predictor, in logits.  Entries beyond
+    :data:`MAX_OFFSET` (2**52, about 4.5e15) in magnitude are refused: there consecutive
+    doubles are at least 1 apart, so the linear predictor ``offset + b + x'beta`` cannot be
+    formed to any useful digit (and sums of such offsets over the rows may overflow)."""
     if offset is None:
         return np.zeros(n) if k is None else np.zeros((n, k))
     if k is None:
-        return as_vector(offset, name, n)
-    arr = _as_float(offset, name)
-    if arr.shape != (n, k):
+        arr = as_vector(offset, name, n)
+    else:
+        arr = _as_float(offset, name)
+        if arr.shape != (n, k):
+            raise InputError(
+                f"{name} has shape {arr.shape}; pass an array of shape ({n}, {k}) "
+                "(one column per class)"
+            )
+        _check_finite(arr, name)
+    big = np.abs(arr) > MAX_OFFSET
+    if big.any():
+        index = tuple(int(i) for i in np.argwhere(big)[0])
         raise InputError(
-            f"{name} has shape {arr.shape}; pass an array of shape ({n}, {k}) "
-            "(one column per class)"
+            f"{name} has {arr[index]:.6g} at {_position(index, None)}, beyond 2**52 (4.5e15) in magnitude, where "
+            "doubles are at least 1 apart: the linear predictor (offset + intercept + x'beta, in logits) cannot "
+            "be formed to any useful digit; check the offset's units (a logit, or the log of an exposure, not "
+            "the exposure itself)"
         )
-    _check_finite(arr, name)
     return arr
 
 
@@ -479,7 +500,7 @@ def check_names(names: Any, p: int, found: tuple[str, ...] | None, prefix: str =
     else:
         if isinstance(names, str):
             raise InputError("names is a single string; pass a sequence with one name per column")
-        out, what = tuple(str(v) for v in names), "names cannot be used"
+        out, what = as_texts(names, "names", "one name per column"), "names cannot be used"
         remedy = "pass one distinct, non-empty, printable name per column"
         if len(out) != p:
             raise InputError(f"names has {len(out)} entries but X has {p} columns; pass one name per column")
@@ -500,6 +521,37 @@ def check_names(names: Any, p: int, found: tuple[str, ...] | None, prefix: str =
         raise InputError(f"{what}: column {out.index(INTERCEPT_NAME)} is named {INTERCEPT_NAME!r}, the "
                          f"intercept's own name; {remedy}")
     return out
+
+
+def as_texts(value: Any, name: str, remedy: str, *, ordered: bool = True) -> tuple[str, ...]:
+    """``value`` as a tuple of str: any iterable (list, tuple, array, generator) of text.
+
+    Refused by name, with ``remedy`` (what to pass instead): a single value that is not a
+    collection (a number, a bool, ``None``, a 0-d array, a str or bytes), an entry that is
+    not text (``str(1.5)`` would make up a name nobody gave), and, with ``ordered``, a set
+    or a mapping, whose order is not the caller's (a set of str changes its order from one
+    run of Python to the next).
+    """
+    if isinstance(value, (str, bytes)):
+        raise InputError(f"{name} is a single {type(value).__name__} ({_short(value)}); pass a list: {remedy}")
+    if ordered and isinstance(value, (set, frozenset, dict)):
+        raise InputError(f"{name} is a {type(value).__name__}, which has no order of its own; pass a list: {remedy}")
+    try:
+        items = tuple(value)
+    except TypeError:  # not iterable: a number, a bool, None, object(), a 0-d array
+        raise InputError(f"{name} must be a list of str; got {_short(value)}: {remedy}") from None
+    for j, item in enumerate(items):
+        if not isinstance(item, str):
+            raise InputError(f"{name} entry {j} is {_short(item)} ({type(item).__name__}), not text: {remedy}")
+    return tuple(str(item) for item in items)
+
+
+def check_flag(value: Any, name: str) -> bool:
+    """``value`` as a bool: ``True``/``False`` (or NumPy's), nothing else (an array, ``pd.NA``,
+    1, "yes" and None have no single agreed truth value)."""
+    if not isinstance(value, (bool, np.bool_)):
+        raise InputError(f"{name} must be True or False; got {_short(value)}")
+    return bool(value)
 
 
 def check_nonnegative(value: Any, name: str) -> float:
@@ -558,12 +610,16 @@ def _short(value: Any) -> str:
     return text if len(text) <= 60 else text[:57] + "..."
 
 
-def check_positive_int(value: Any, name: str, minimum: int = 1) -> int:
-    """Check that ``value`` is an integer >= ``minimum``."""
+def check_positive_int(value: Any, name: str, minimum: int = 1, maximum: int | None = None,
+                       why: str = "") -> int:
+    """Check that ``value`` is an integer >= ``minimum`` (and <= ``maximum`` when given;
+    ``why`` then says what a larger value would do)."""
     if isinstance(value, bool) or not isinstance(value, numbers.Integral):
         raise InputError(f"{name} must be an integer >= {minimum}; got {_short(value)}")
     if value < minimum:
         raise InputError(f"{name} must be >= {minimum}; got {value}")
+    if maximum is not None and value > maximum:
+        raise InputError(f"{name} must be at most {maximum}; got {value}{why}")
     return int(value)
 
 

@@ -20,10 +20,10 @@ from typing import Any
 
 import numpy as np
 
-from ._binning import assign, edges_for, group_shares, group_sums
+from ._binning import assign, check_bins, edges_for, group_shares, group_sums
 from ._errors import InputError
 from ._outcomes import forecast, scaled_weights, unscale
-from ._validate import ReadOnlyArrays, check_positive_int
+from ._validate import ReadOnlyArrays
 
 __all__ = ["BrierScore", "brier", "cross_entropy"]
 
@@ -135,7 +135,8 @@ def brier(
         ``total_weight`` (the weights are divided by a power of two before any sum, so
         weights of any magnitude give the same digits).
     bins : int, optional
-        Group binary forecasts into this many equal-width bins instead of by value.
+        Group binary forecasts into this many equal-width bins instead of by value (1 to
+        1,000,000, ``lintools._binning.MAX_BINS``).
     positive : label, optional
         The positive label (binary); default the larger label.
 
@@ -175,7 +176,7 @@ def brier(
                 "bins applies to a binary forecast only; for an (n, K) matrix the "
                 "decomposition groups the distinct forecast vectors (leave bins=None)"
             )
-        nbins = check_positive_int(bins, "bins")
+        nbins = check_bins(bins)
         index = assign(f, edges_for(f, nbins, "width"))
         values, grouping = None, "bins"
     m = int(index.max()) + 1 if bins is None else nbins

@@ -13,10 +13,10 @@ from typing import Any
 
 import numpy as np
 
-from ._binning import STRATEGIES, assign, edges_for, group_shares, group_sums, wilson_interval
+from ._binning import STRATEGIES, assign, check_bins, edges_for, group_shares, group_sums, wilson_interval
 from ._errors import InputError
 from ._outcomes import binary_forecast, binary_outcome, case_weights, check_level, class_forecast, fmt_number, unscale
-from ._validate import ReadOnlyArrays, check_choice, check_positive_int, check_probabilities, is_one_of
+from ._validate import ReadOnlyArrays, check_choice, check_probabilities, is_one_of
 
 __all__ = ["ReliabilityTable", "reliability", "calibration_error"]
 
@@ -112,7 +112,7 @@ def reliability(
     p : array-like
         Probability of the positive class.
     bins : int
-        Number of bins (>= 1).
+        Number of bins, 1 to 1,000,000 (``lintools._binning.MAX_BINS``).
     strategy : {"width", "count"}
     weights : array-like, optional
         Case weights, counted as cases by the interval: multiplying all weights by
@@ -146,7 +146,7 @@ def reliability(
     o, _ = binary_outcome(y, positive, n=f.shape[0])
     w = case_weights(weights, f.shape[0])
     level = check_level(level)
-    nbins = check_positive_int(bins, "bins")
+    nbins = check_bins(bins)
     edges = edges_for(f, nbins, strategy)
     idx = assign(f, edges)
     scale, wk, fbar, obar = _bin_means(f, o, w, idx, nbins)
@@ -218,7 +218,7 @@ def calibration_error(
     y, p : array-like
         Labels and forecasts.
     bins : int
-        Number of bins (>= 1).
+        Number of bins, 1 to 1,000,000 (``lintools._binning.MAX_BINS``).
     norm : {1, 2, "max"}
     strategy : {"width", "count"}
     multiclass : {"top-label", "class-wise"}
@@ -244,7 +244,7 @@ def calibration_error(
     """
     if isinstance(norm, bool) or not is_one_of(norm, NORMS):
         raise InputError(f"norm={norm!r} is not one of 1, 2, 'max'")
-    nbins = check_positive_int(bins, "bins")
+    nbins = check_bins(bins)
     check_choice(strategy, "strategy", STRATEGIES)
     check_choice(multiclass, "multiclass", ("top-label", "class-wise"))
     arr = check_probabilities(p, "p")

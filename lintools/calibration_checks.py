@@ -15,9 +15,9 @@ import numpy as np
 
 from . import _distributions as dist
 from ._errors import InputError
-from ._binning import group_sums
+from ._binning import check_bins, group_sums
 from ._outcomes import binary_forecast, binary_outcome, fmt_number, fmt_p, scaled_weights, two_sided, unscale
-from ._validate import ReadOnlyArrays, check_positive_int
+from ._validate import ReadOnlyArrays
 from ._calibration_line import CalibrationLine, calibration_line
 
 __all__ = [
@@ -97,9 +97,11 @@ def _risk_groups(f: np.ndarray, u: np.ndarray, groups: int) -> np.ndarray:
     total = cum[-1]
     slack = 1.0 - 4.0 * (f.shape[0] + 1) * 2.0**-53
     # cut point j (1..groups-1): the smallest distinct forecast whose cumulative weight
-    # share reaches j / groups, compared as cum * groups >= j * total (less the slack)
-    cuts = [values[int(np.argmax(cum * groups >= j * total * slack))] for j in range(1, groups)]
-    group_of_value = np.searchsorted(np.asarray(cuts), values, side="left")
+    # share reaches j / groups, compared as cum * groups >= j * total (less the slack);
+    # cum is non-decreasing, so one sorted search finds every cut in O(groups log n)
+    first = np.searchsorted(cum * groups, np.arange(1, groups) * total * slack, side="left")
+    cuts = values[np.minimum(first, values.shape[0] - 1)]
+    group_of_value = np.searchsorted(cuts, values, side="left")
     return group_of_value[index]
 
 
@@ -132,7 +134,7 @@ def hosmer_lemeshow(
     p : array-like
         Probability of the positive class.
     groups : int
-        Number of groups wanted (>= 3).
+        Number of groups wanted, 3 to 1,000,000 (``lintools._binning.MAX_BINS``).
     weights : array-like, optional
         Case weights, counted as cases: multiplying all weights by :math:`c` leaves the
         groups unchanged and multiplies the statistic and every observed and expected
@@ -160,7 +162,7 @@ def hosmer_lemeshow(
     f = binary_forecast(p)
     o, _ = binary_outcome(y, positive, n=f.shape[0])
     w, u, _ = scaled_weights(weights, f.shape[0])
-    g_wanted = check_positive_int(groups, "groups", minimum=3)
+    g_wanted = check_bins(groups, "groups", minimum=3)
     gid = _risk_groups(f, u, g_wanted)
     m = g_wanted
     scale, wk, (obs, exp, obs0, exp0) = group_sums(gid, m, w, [o, f, 1.0 - o, 1.0 - f])
@@ -171,8 +173,10 @@ def hosmer_lemeshow(
             f"(formed {int(keep.sum())}); the Hosmer-Lemeshow test needs at least 3 groups"
         )
     count = np.bincount(gid, minlength=m)
-    lower = np.array([f[gid == g].min() if count[g] else np.nan for g in range(m)])
-    upper = np.array([f[gid == g].max() if count[g] else np.nan for g in range(m)])
+    lower, upper = np.full(m, np.inf), np.full(m, -np.inf)
+    np.minimum.at(lower, gid, f)
+    np.maximum.at(upper, gid, f)
+    lower[count == 0] = upper[count == 0] = np.nan
 
     def part(a: np.ndarray, e: np.ndarray) -> np.ndarray:
         with np.errstate(divide="ignore", invalid="ignore", over="ignore"):

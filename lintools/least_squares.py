@@ -90,6 +90,7 @@ from ._validate import (
     as_vector,
     as_weights,
     check_choice,
+    check_flag,
     check_names,
     check_nonnegative,
 )
@@ -220,9 +221,7 @@ def _fit(
     check_choice(weight_type, "weight_type", ("case", "precision"))
     check_choice(rank_deficient, "rank_deficient", ("raise", "minimum_norm"))
     check_choice(diagnostics, "diagnostics", (True, False))
-    if not isinstance(intercept, (bool, np.bool_)):
-        raise InputError(f"intercept must be True or False; got {intercept!r}")
-    intercept = bool(intercept)
+    intercept = check_flag(intercept, "intercept")
     names_t = check_names(names, p, found)
     target = _target_name(y)
 

@@ -32,7 +32,8 @@ import numpy as np
 
 from ._errors import InputError, IterationLimitWarning, LintoolsError, LintoolsWarning, SeparationError, warn_caller
 from ._records import Convergence, LogisticFit
-from ._scaling import check_l2_scale, check_solver, scaled_back, scaled_case_weights
+from ._scaling import (check_firth_scale, check_l2_scale, check_solver, scaled_back, scaled_case_weights,
+                       wide_column_error)
 from ._threads import ELEMENT_CHUNK, for_rows, with_row_threads
 from ._validate import (
     as_labels,
@@ -41,6 +42,7 @@ from ._validate import (
     as_vector,
     as_weights,
     check_finite,
+    check_flag,
     check_names,
     check_nonnegative,
     check_positive_int,
@@ -52,6 +54,7 @@ from .losses import BinomialLoss
 from .solvers import (
     SOLVERS,
     Evaluation,
+    ExtremeSpread,
     IterationRecord,
     LinearModelProblem,
     NonFiniteDesign,
@@ -148,6 +151,14 @@ def _response(y: Any, trials: Any, positive: Any, n: int) -> tuple[np.ndarray, n
         if bad.any():
             i = int(np.argmax(bad))
             raise InputError(f"{name} is negative ({arr[i]:g}) at row {i}; {name} must count {what} (>= 0)")
+        bad = arr > MAX_COUNT
+        if bad.any():
+            i = int(np.argmax(bad))
+            raise InputError(
+                f"{name} is {arr[i]:.6g} at row {i}, beyond 2**53 (9.0e15), above which doubles do not hold every "
+                f"whole number, so it cannot be exactly {what}: pass counts up to 2**53 (a row "
+                "that stands for many identical groups takes their number as its case weight instead)"
+            )
         bad = ~_whole(arr)
         if bad.any():
             i = int(np.argmax(bad))
@@ -166,16 +177,14 @@ def _response(y: Any, trials: Any, positive: Any, n: int) -> tuple[np.ndarray, n
     return yy, m, (0, 1), 1
 
 
+#: The largest count of trials (or successes): 2**53, below which doubles hold every whole number.
+MAX_COUNT = 2.0**53
+
+
 def _check_tol(tol: Any) -> float:
     if isinstance(tol, bool) or not isinstance(tol, numbers.Real) or not math.isfinite(float(tol)) or tol <= 0:
         raise InputError(f"tol must be a finite number > 0 (the {MEASURED} at which to stop); got {tol!r}")
     return float(tol)
-
-
-def _check_flag(value: Any, name: str) -> bool:
-    if not isinstance(value, (bool, np.bool_)):
-        raise InputError(f"{name} must be True or False; got {value!r}")
-    return bool(value)
 
 
 def check_parameters_and_rows(k: int, rows: int) -> None:
@@ -193,7 +202,7 @@ def check_fit_settings(intercept: Any, l2: Any, tol: Any, max_iter: Any, on_iter
 
     ``solver`` must name one of the solvers (None, or anything else, is an InputError
     naming the choices; the block fits pass their only one, "newton")."""
-    intercept = _check_flag(intercept, "intercept")
+    intercept = check_flag(intercept, "intercept")
     lam = check_nonnegative(l2, "l2")
     check_solver(solver, SOLVERS)
     tol = _check_tol(tol)
@@ -331,7 +340,7 @@ def logistic(
     offset : array-like (n,), optional
         Known part ``o`` of the linear predictor.
     trials : array-like (n,), optional
-        Trials per row (whole numbers >= 0): grouped binomial data.
+        Trials per row (whole numbers from 0 to 2**53): grouped binomial data.
     intercept : bool
         Fit an unpenalised intercept (default True).
     l2 : float
@@ -408,8 +417,8 @@ def logistic(
     off = None if offset is None else as_offset(offset, n)
     yy, m, classes, positive_class = _response(y, trials, positive, n)
     intercept, lam, tol, max_iter = check_fit_settings(intercept, l2, tol, max_iter, on_iteration, solver)
-    firth = _check_flag(firth, "firth")
-    profile = _check_flag(profile, "profile")
+    firth = check_flag(firth, "firth")
+    profile = check_flag(profile, "profile")
     if not (isinstance(profile_level, numbers.Real) and 0.0 < float(profile_level) < 1.0):
         raise InputError(f"profile_level must lie strictly between 0 and 1; got {profile_level!r}")
     if firth and lam > 0:
@@ -420,6 +429,8 @@ def logistic(
     # the weights divided by the largest one (see lintools._scaling): outputs are scaled back
     w, scale = scaled_case_weights(w)
     check_l2_scale(lam, scale)
+    if firth:
+        check_firth_scale(scale)
     v = w * m
     total, successes = float(v.sum()), float(w @ yy)
     if total <= 0:
@@ -430,7 +441,7 @@ def logistic(
     if lam == 0:
         check_parameters_and_rows(p + int(intercept), int(np.count_nonzero(v > 0)))
     loss = BinomialLoss(yy, m if trials is not None else None, w)
-    problem = checked_problem(Xa, found, loss, intercept=intercept, l2=lam, offset=off, jeffreys=firth,
+    problem = checked_problem(Xa, found, names_t, loss, intercept=intercept, l2=lam, offset=off, jeffreys=firth,
                               weight_scale=scale)
     if intercept and p and lam == 0:
         _constant_columns(Xa, v > 0, names_t, problem.spread, problem.c)
@@ -456,14 +467,33 @@ def logistic(
                     trials is not None, intercept, solver, tol, max_iter, profile, float(profile_level), y)
 
 
-def checked_problem(Xa: np.ndarray, found: Any, loss: Any, **settings: Any) -> LinearModelProblem:
+def checked_problem(Xa: np.ndarray, found: Any, names: tuple[str, ...], loss: Any,
+                    **settings: Any) -> LinearModelProblem:
     """The fit's problem; its first pass over ``Xa`` (the column moments) doubles as the
-    finiteness check of the design, and a NaN or infinity is then named by row and column."""
+    finiteness check of the design, and a NaN or infinity is then named by row and column.
+    A column whose spread float64 cannot standardise is refused naming it (``names``)."""
     try:
         return LinearModelProblem(Xa, loss, **settings)
     except NonFiniteDesign:
         check_finite(Xa, "X", found)
         raise
+    except ExtremeSpread as exc:
+        term = f"'{names[exc.column]}'"
+        if exc.top is not None:
+            raise wide_column_error(exc.column, names[exc.column], exc.top) from None
+        if exc.log10_variance is None:
+            raise InputError(
+                f"X column {exc.column} ({term}) has a weighted spread of {exc.spread:.3g}, so small that the ridge "
+                f"on its standardised coefficient (l2 / spread^2) exceeds 1.8e308: rescale that column by a power "
+                "of ten so that its spread is nearer 1 (its coefficient then scales by the inverse factor; the "
+                "same l2 then penalises it in the new units), or fit without l2"
+            ) from None
+        raise InputError(
+            f"the variance of the coefficient of {term} would be at least 1e{exc.log10_variance:.0f}, above "
+            f"1.8e308, which float64 cannot hold (its column's weighted spread is {exc.spread:.3g}): rescale that "
+            "column by a power of ten so that its spread is nearer 1 (its coefficient and standard error then "
+            "scale by the inverse factor)"
+        ) from None
 
 
 def final_evaluation(problem: Any, res: SolverResult) -> Evaluation:
@@ -601,6 +631,13 @@ def _package(problem, loss, res, ev, V, z, Xa, off, names, classes, positive_cla
     lr = max(lr, 0.0) if math.isfinite(lr) else lr
     conv = convergence_record(res, ev, problem, z, solver)
     bounds = profile_bounds(problem, z, se, level, tol, max_iter) if profile else None
+    if bounds is not None and np.isnan(bounds).any():
+        terms = (("(intercept)",) if intercept else ()) + tuple(names)
+        lost = [terms[j] for j in range(len(terms)) if np.isnan(bounds[j]).any()]
+        warn_caller(
+            f"profile interval: an end for {', '.join(repr(t) for t in lost)} was not found (a fit with the "
+            "coefficient held fixed did not converge); it is NaN in profile_intervals: use the Wald interval "
+            "for it, or refit with a larger max_iter", LintoolsWarning)
     return LogisticFit(
         coefficients=beta,
         intercept=b if intercept else 0.0,

@@ -42,7 +42,7 @@ from ._files import file_path, read_bounded, write_atomic
 from ._categories import CategoricalField
 from ._pmml_categories import write_inputs, write_terms
 from ._pmml_read import NAMESPACES, parse_pmml
-from ._validate import as_matrix, check_names, name_problem, scored, text_problem
+from ._validate import _short, as_matrix, check_flag, check_names, name_problem, scored, text_problem
 
 __all__ = ["DeliveredModel", "read_pmml", "write_pmml"]
 
@@ -160,10 +160,33 @@ def _writable(fit: Any, target: str) -> list[str]:
     return labels
 
 
+def _terms(fit: Any, kind: str, labels: list[str]) -> tuple[np.ndarray, np.ndarray]:
+    """The intercepts (K,) and coefficients (p, K) to write (K = 1 but for softmax), checked
+    for shape and finiteness (a model assembled by hand may hold anything)."""
+    p, k = len(fit.names), (len(labels) if kind == "softmax" else 1)
+    try:
+        B = np.asarray(fit.coefficients, dtype=float)
+        b = np.asarray(fit.intercept, dtype=float)
+    except (TypeError, ValueError):
+        B = b = np.full(1, np.nan)
+    want = (p, k) if kind == "softmax" else (p,)
+    if kind == "logistic" and len(labels) != 2:
+        raise InputError(f"write_pmml: a logistic model needs two classes; this one has {len(labels)}")
+    if B.shape != want or b.shape != (want[1:]) or not (np.all(np.isfinite(B)) and np.all(np.isfinite(b))):
+        raise InputError(f"write_pmml: the model's coefficients must be finite numbers of shape {want} and its "
+                         f"intercept of shape {want[1:]}; got shapes {B.shape} and {b.shape}: write a fit record "
+                         "or a model read from a file, unchanged")
+    return b.reshape(k), B.reshape(p, k)
+
+
 def write_pmml(fit: Any, path: str | os.PathLike, *, target: str | None = None, reference_levels: Any = None,
                replace: bool = False) -> None:
     """Write a lintools fit (least squares, logistic or softmax) as a PMML 4.4 document.
 
+    ``fit`` may also be a :class:`DeliveredModel` (a model read with :func:`read_pmml`, or
+    from a lintools model file): it carries all that PMML needs (names, coefficients,
+    intercept, classes with the positive one first, target), so a delivered model can be
+    written out again.  ``target`` (a str) names the response; by default the fit's own.
     The file is written atomically (a temporary file in the same folder, renamed into
     place); an existing ``path`` is refused unless ``replace=True``.  Names, the target
     and class labels that :func:`read_pmml` would refuse are refused here, with the
@@ -176,11 +199,14 @@ def write_pmml(fit: Any, path: str | os.PathLike, *, target: str | None = None, 
     was fitted on) does; other inputs are continuous fields.
     """
     kind = getattr(fit, "kind", None)
-    if kind not in ("least_squares", "logistic", "softmax"):
-        raise InputError(f"write_pmml() takes a lintools fit record; got {type(fit).__name__}")
-    target = target or getattr(fit, "target", None) or "y"
+    if not isinstance(kind, str) or kind not in ("least_squares", "logistic", "softmax"):
+        raise InputError(f"write_pmml() takes a lintools fit record or a DeliveredModel; got {type(fit).__name__}")
+    if target is None:
+        target = getattr(fit, "target", None) or "y"
     if not isinstance(target, str):
-        raise InputError(f"write_pmml: target must be a str; got {type(target).__name__}")
+        raise InputError(f"write_pmml: target must be a str (the name of the response) or None; got "
+                         f"{type(target).__name__} {_short(target)}")
+    check_flag(replace, "replace")
     labels = _writable(fit, target)
     if reference_levels is not None:
         from ._categories import with_references
@@ -190,6 +216,7 @@ def write_pmml(fit: Any, path: str | os.PathLike, *, target: str | None = None, 
     if target in {f.name for f in fields if isinstance(f, CategoricalField)}:
         raise InputError(f"write_pmml: the target name {target!r} is also the name of a categorical input; pass "
                          "target= with another name")
+    intercepts, coefficients = _terms(fit, kind, labels)
     ET.register_namespace("", NS)
     root = ET.Element(f"{{{NS}}}PMML", {"version": "4.4"})
     header = ET.SubElement(root, f"{{{NS}}}Header", {"description": f"lintools {kind} fit"})
@@ -225,14 +252,15 @@ def write_pmml(fit: Any, path: str | os.PathLike, *, target: str | None = None, 
             write_terms(t, lambda name: f"{{{NS}}}{name}", fit.names, coefs, layout, _num)
 
     if kind == "least_squares":
-        table(fit.intercept, fit.coefficients)
+        table(intercepts[0], coefficients[:, 0])
     elif kind == "logistic":
-        pos = list(fit.classes).index(fit.positive_class)
-        table(fit.intercept, fit.coefficients, labels[pos])
+        # a delivered model lists its positive class first (see DeliveredModel)
+        pos = 0 if isinstance(fit, DeliveredModel) else list(fit.classes).index(fit.positive_class)
+        table(intercepts[0], coefficients[:, 0], labels[pos])
         table(0.0, None, labels[1 - pos])
     else:
         for k, label in enumerate(labels):
-            table(float(np.asarray(fit.intercept)[k]), np.asarray(fit.coefficients)[:, k], label)
+            table(intercepts[k], coefficients[:, k], label)
     file_path(path, "PMML file")
     buffer = io.BytesIO()
     ET.ElementTree(root).write(buffer, encoding="utf-8", xml_declaration=True)

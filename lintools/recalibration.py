@@ -16,6 +16,7 @@ from ._errors import InputError
 from ._outcomes import binary_outcome, case_weights, finite_scores, sigmoid, vector_in
 from ._temperature import TemperatureMap, temperature_scaling
 from ._scaling import case_weight_scale
+from ._validate import check_flag, weight_scale
 
 __all__ = [
     "PlattMap",
@@ -105,14 +106,17 @@ def platt_scaling(
     Lin, H.-T., Lin, C.-J. & Weng, R. C. (2007). A note on Platt's probabilistic outputs
     for support vector machines. Machine Learning 68, 267-276.
     """
-    if not isinstance(smoothing, (bool, np.bool_)):
-        raise InputError(f"smoothing must be True or False; got {smoothing!r}")
+    check_flag(smoothing, "smoothing")
     o, _ = binary_outcome(y, positive)
     s = finite_scores(scores, "scores", o.shape[0])
     w = case_weights(weights, o.shape[0])
-    n_pos, n_neg = float(w @ o), float(w @ (1.0 - o))
     if smoothing:
-        t_pos, t_neg = (n_pos + 1.0) / (n_pos + 2.0), 1.0 / (n_neg + 2.0)
+        # the class totals N+ and N- on the weights divided by k = max(1, a power of two near
+        # their largest): exact, so the targets are bit for bit those of the formula, and
+        # weights near 1e308 cannot overflow the totals (1 / k and 2 / k do not either)
+        k = max(1.0, weight_scale(w))
+        n_pos, n_neg = float((w / k) @ o), float((w / k) @ (1.0 - o))
+        t_pos, t_neg = (n_pos + 1.0 / k) / (n_pos + 2.0 / k), (1.0 / k) / (n_neg + 2.0 / k)
     else:
         t_pos, t_neg = 1.0, 0.0
     t = np.where(o == 1.0, t_pos, t_neg)
@@ -239,8 +243,7 @@ def isotonic_calibration(
     Zadrozny, B. & Elkan, C. (2002). Transforming classifier scores into accurate
     multiclass probability estimates. KDD 2002, 694-699.
     """
-    if not isinstance(increasing, (bool, np.bool_)):
-        raise InputError(f"increasing must be True or False; got {increasing!r}")
+    increasing = check_flag(increasing, "increasing")
     o, _ = binary_outcome(y, positive)
     x = finite_scores(p, "p", o.shape[0])
     w = case_weights(weights, o.shape[0])

@@ -43,7 +43,7 @@ import numpy as np
 
 from ._errors import InputError, LintoolsError
 from ._records import INTERCEPT_NAME
-from ._validate import as_matrix, as_weights, check_names, check_positive_int, power_of_two, weight_scale
+from ._validate import as_matrix, as_weights, check_flag, check_names, check_positive_int, power_of_two, weight_scale
 
 __all__ = ["SeparationCheck", "MultinomialSeparationCheck", "check_separation", "separation_lp", "multinomial_separation"]
 
@@ -322,8 +322,7 @@ def check_separation(
     n, p = Xa.shape
     names_t = check_names(names, p, found)
     w = as_weights(weights, n)
-    if not isinstance(intercept, (bool, np.bool_)):
-        raise InputError(f"intercept must be True or False; got {intercept!r}")
+    intercept = check_flag(intercept, "intercept")
     if trials is None and positive is None:
         classes, codes = _labels(y, n)
         if len(classes) > 2:

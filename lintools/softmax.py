@@ -265,7 +265,7 @@ def softmax(
         off = off[:, 1:] - off[:, :1] if ref is not None else off
         if off.shape[1] == 1:
             off = off[:, 0]  # one output (two classes, a reference): the problem's eta is (n,)
-    problem = checked_problem(Xa, found, loss, intercept=intercept, l2=lam, offset=off, weight_scale=scale)
+    problem = checked_problem(Xa, found, names_t, loss, intercept=intercept, l2=lam, offset=off, weight_scale=scale)
     if intercept and p and lam == 0:
         _constant_columns(Xa, w > 0, names_t, problem.spread, problem.c)
     target = problem

@@ -80,6 +80,7 @@ from ._csv_chunks import Layout, header_record, pieces
 from ._csv_columns import MAX_LEVELS, Columns, Spec
 from ._errors import InputError
 from ._files import file_path, read_bounded
+from ._validate import as_texts, check_flag
 
 __all__ = ["MAX_BYTES", "MAX_FIELD_BYTES", "MAX_LEVELS", "MAX_LINE_BYTES", "MISSING_VALUES", "Table",
            "read_header", "read_table"]
@@ -135,12 +136,10 @@ class Table:
     delimiter: str = ","
 
 
-def _names(value: Iterable[str] | None, label: str) -> list[str]:
+def _names(value: Iterable[str] | None, label: str, *, ordered: bool = False) -> list[str]:
     if value is None:
         return []
-    if isinstance(value, str) or not all(isinstance(v, str) for v in value):
-        raise InputError(f"{label} must be a list of column names (str); got {value!r}")
-    return list(value)
+    return list(as_texts(value, label, "pass a list of column names (str)", ordered=ordered))
 
 
 def _limit(value: object, label: str) -> int:
@@ -164,9 +163,8 @@ def _delimiter(value: str | None, decimal: str) -> str | None:
 
 
 def _missing(value: Iterable[str] | None) -> frozenset[bytes]:
-    tokens = MISSING_VALUES if value is None else value
-    if isinstance(tokens, str) or not all(isinstance(t, str) for t in tokens):
-        raise InputError(f"missing_values must be a list of str tokens; got {value!r}")
+    tokens = MISSING_VALUES if value is None else as_texts(value, "missing_values", "pass a list of str tokens",
+                                                           ordered=False)
     return frozenset({b""} | {t.strip(STRIP.decode()).encode("utf-8") for t in tokens})
 
 
@@ -227,11 +225,25 @@ def _separator_hint(names: Sequence[str], delimiter: str) -> str:
     return ""
 
 
+def _references(value: Mapping[str, str] | None) -> dict[str, str]:
+    """``reference_levels`` checked: a mapping of feature column names (str) to levels (str)."""
+    if value is None:
+        return {}
+    if not isinstance(value, Mapping):
+        raise InputError(f"reference_levels must be a dict of column name to level (both str); got "
+                         f"{type(value).__name__}: pass for example {{'colour': 'red'}}")
+    for name, level in value.items():
+        if not isinstance(name, str) or not isinstance(level, str):
+            raise InputError(f"reference_levels must map column names (str) to levels (str); got {name!r}: "
+                             f"{level!r:.80}: write the level as it is written in the file")
+    return dict(value)
+
+
 def _read(path: str | os.PathLike, delimiter: str | None, decimal: str, max_bytes: object,
           max_line_bytes: object) -> tuple[Layout, int, int]:
     where = file_path(path, "CSV file")
-    if decimal not in (".", ","):
-        raise InputError(f"decimal must be '.' or ','; got {decimal!r}")
+    if not isinstance(decimal, str) or decimal not in (".", ","):
+        raise InputError(f"decimal must be '.' or ','; got {decimal!r:.80}")
     delimiter = _delimiter(delimiter, decimal)
     max_bytes = _limit(max_bytes, "max_bytes")
     max_line = _limit(max_line_bytes, "max_line_bytes")
@@ -315,13 +327,14 @@ def read_table(
     Analysis Manuscript 90-10 (the conversion behind Python's ``float`` and NumPy's reader).
     """
     lay, pos, line = _read(path, delimiter, decimal, max_bytes, max_line_bytes)
+    drop_missing = check_flag(drop_missing, "drop_missing")
     where, header = lay.where, list(lay.names)
     index = {h: j for j, h in enumerate(header)}
     hint = _separator_hint(header, lay.delimiter.decode())
 
     def column(name: object, role: str) -> int:
         if not isinstance(name, str):
-            raise InputError(f"the {role} column must be named by a str; got {name!r}")
+            raise InputError(f"the {role} column must be named by a str; got {name!r:.80}")
         if name not in index:
             raise InputError(f"{role} column '{name}' is not in {where!r}; its columns are: {', '.join(header)}{hint}")
         return index[name]
@@ -343,7 +356,7 @@ def read_table(
     if features is None:
         feats = [h for h in header if h not in special and h not in excluded]
     else:
-        feats = _names(features, "features")
+        feats = _names(features, "features", ordered=True)
         for f in feats:
             column(f, "feature")
             if f in special:
@@ -359,7 +372,7 @@ def read_table(
         if c not in feats and c != target:
             raise InputError(f"categorical column '{c}' is neither a feature nor the target; declare only columns "
                              "that are used")
-    refs = dict(reference_levels or {})
+    refs = _references(reference_levels)
     for name in refs:
         if name not in feats:
             raise InputError(f"reference level given for '{name}', which is not a feature column")

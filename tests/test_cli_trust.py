@@ -259,7 +259,8 @@ NO_OPTION = {"X", "y", "p", "score", "names", "on_iteration", "trials", "offset"
 NOT_RUN = {("_block_stream.py", "weights"),  # row blocks and dask arrays
            ("crosscheck.py", "intercept"),  # coefficients given by name: the command line passes an array
            ("losses.py", "model"),  # implied_l2's model is set from the delivered file's kind
-           ("_categories.py", "reference_levels")}  # the command line passes the table's own mapping
+           ("_categories.py", "reference_levels"),  # the command line passes the table's own mapping
+           ("table.py", "reference_levels")}  # the command line builds it: a dict of str from the model
 
 
 def _library_messages():

@@ -28,22 +28,19 @@ The battery makes about 31,000 hostile calls (``pytest -s`` prints the count) in
 25 s of CPU time.  A failure names the argument, the value, the exception or warning and
 the innermost lintools line it came from (``[at file.py:line]``), so it can be routed.
 
-Known defects in files the battery's owner may not edit are listed in ``KNOWN``: glob
-patterns of spec, argument and value id, with ``"file: what"``.  They run as strict
-expected failures written out (``pytest.mark.xfail`` is not used because
-tests/conftest.py counts an xfail as a skip and fails the run):
-``test_known_defects_still_fail`` fails once an entry no longer matches any failure, and
-then the entry is to be removed.
+Every hostile call passes: the defects this battery once carried as known failures (its
+``KNOWN`` list) are fixed, and the mechanism went with the last of them; a new failure is
+a defect to fix, not to list.
 
 The regression tests at the end check the named refusals that replaced the foreign
-exceptions of issue #16, each failing on the code before the fix.
+exceptions of issue #16 and the defects the battery found, each failing on the code
+before the fix.
 """
 
 from __future__ import annotations
 
 import datetime
 import decimal
-import fnmatch
 import fractions
 import inspect
 import io
@@ -64,7 +61,6 @@ import scipy.sparse
 import lintools as lt
 
 HANG_SECONDS = 3.0
-HANG_KNOWN = 0.3
 
 # ------------------------------------------------------------------------------ data
 RNG = np.random.default_rng(16016)
@@ -543,62 +539,6 @@ FOLLOW_UP = {f"{c}.{m}" for c in ("SplitBalance", "BrierScore", "ReliabilityTabl
              for m in ("report",)} | {f"{c}.to_dict" for c in ("LinearFit", "LogisticFit", "SoftmaxFit")} | {
     "SoftmaxFit.parameter_terms"}
 
-@dataclass(frozen=True)
-class Known:
-    """A defect in a file the battery's owner may not edit: the specs, argument and value ids
-    (glob patterns) where it shows, and ``"file: what"`` for the lead to route it."""
-
-    specs: tuple[str, ...]
-    arg: str
-    values: tuple[str, ...]
-    reason: str
-    hang: bool = False  # a call that never returns: cut after HANG_KNOWN seconds to keep the battery fast
-
-    def matches(self, key: tuple[str, str, str]) -> bool:
-        name, arg, vid = key
-        vid = vid.split(" then ")[0]
-        return (any(fnmatch.fnmatchcase(name, g) for g in self.specs) and fnmatch.fnmatchcase(arg, self.arg)
-                and any(fnmatch.fnmatchcase(vid, g) for g in self.values))
-
-
-#: the magnitudes at the ends of the float64 range among the hostile values
-EXTREME = ("*1e308*", "*1e300*", "huge-array", "*1e-320*", "*5e-324*", "tiny-array", "*1e-300*")
-LOGISTIC = ("logistic", "logistic[[]*")
-LEAST_SQUARES = ("least_squares", "least_squares[[]*")
-KNOWN: list[Known] = [
-    Known(("*",), "names", ("*",), "_validate.py check_names (being changed by another engineer): names that are "
-          "not a sequence of text (a number, a bool, object(), a 0-d array) raise TypeError"),
-    Known(("read_table",), "[!p]*", ("*",), "table.py read_table: the arguments other than path are not "
-          "type-checked (a number, an array, a list or None where a column name belongs raise TypeError or KeyError)"),
-    Known(("save", "write_pmml"), "replace", ("*",), "_files.py write_atomic: replace= is not checked to be a bool "
-          "(an array raises ValueError: truth value ambiguous)"),
-    Known(("write_pmml",), "target", ("*",), "pmml.py write_pmml: target= is not checked to be text (an array "
-          "raises ValueError, a number TypeError from the XML writer)"),
-    Known(("write_pmml",), "fit", ("delivered",), "pmml.py write_pmml: a DeliveredModel passes the fit check and "
-          "then raises AttributeError (positive_class)"),
-    Known(("brier*", "calibration_error*", "reliability"), "bins", ("2**63", "2**100"), "_binning.py: bins of "
-          "2**63 or more raise numpy's ValueError 'Maximum allowed size exceeded'"),
-    Known(("hosmer_lemeshow",), "groups", ("2**63", "2**100"), "calibration_checks.py hosmer_lemeshow: groups of "
-          "2**63 run for ever (no upper bound on groups)", hang=True),
-    Known(("PlattMap.apply", "IsotonicMap.apply", "TemperatureMap.apply*"), "*", ("ragged",), "_outcomes.py "
-          "(~line 225): np.ndim of a ragged list raises numpy's ValueError"),
-    Known(LOGISTIC + ("softmax", "softmax[[]*"), "X", EXTREME, "solvers/_kernels.py, solvers/problem.py (logistic "
-          "and softmax fronts): X near 1e300-1e308 overflows in exp2, matmul or square (RuntimeWarning)"),
-    Known(LOGISTIC + ("softmax",), "weights", EXTREME, "logistic.py (~404), solvers/problem.py (~184), "
-          "solvers/base.py (~162): weights of 1e308 overflow a sum, weights of 1e-320 a division (RuntimeWarning)"),
-    Known(LOGISTIC, "trials", EXTREME, "logistic.py (~403): trials of 1e308 overflow (RuntimeWarning); with "
-          "firth=True losses.py (~95) raises OverflowError 'math range error' from math.lgamma"),
-    Known(("logistic",), "offset", EXTREME, "losses.py (~234): an offset of 1e308 overflows in matmul (RuntimeWarning)"),
-    Known(("logistic[[]firth]",), "profile", ("True", "np.bool"), "solvers/base.py (~131): the profile intervals of "
-          "a Firth fit on separated data take the square root of a negative number (RuntimeWarning)"),
-    Known(("platt_scaling",), "scores", EXTREME, "solvers/_kernels.py through platt_scaling: scores near 1e300 "
-          "overflow (RuntimeWarning)"),
-    Known(("platt_scaling",), "weights", EXTREME, "recalibration.py (~107), solvers/base.py (~162): extreme "
-          "weights overflow (RuntimeWarning)"),
-    Known(("temperature_scaling*",), "logits", EXTREME, "_temperature.py (~86, 168): logits near 1e300 overflow "
-          "(RuntimeWarning)"),
-]
-
 
 # ----------------------------------------------------------------- running calls
 #: Words of a solver or an internal function that must not reach a user (issue #16)
@@ -706,8 +646,7 @@ def run_spec(s: Spec, tmp: Path, tally: Tally) -> None:
                 warnings.simplefilter("ignore")
                 args[arg] = make()
         tally.calls += 1
-        hangs = any(d.hang and d.matches((s.name, arg, vid)) for d in KNOWN)
-        problem, result = _outcome(lambda: s.call(args), HANG_KNOWN if hangs else HANG_SECONDS)
+        problem, result = _outcome(lambda: s.call(args))
         if problem is not None:
             tally.failures[(s.name, arg, vid)] = problem
             continue
@@ -751,8 +690,7 @@ def test_hostile_values_raise_only_lintools_errors(name: str, tmp_path: Path, mo
     tally = Tally()
     run_spec(s, tmp_path, tally)
     TALLY[name] = tally
-    unexpected = {k: v for k, v in tally.failures.items() if not any(d.matches(k) for d in KNOWN)}
-    lines = [f"{k[1]}={k[2]}: {v}" for k, v in sorted(unexpected.items())]
+    lines = [f"{k[1]}={k[2]}: {v}" for k, v in sorted(tally.failures.items())]
     assert not lines, f"{len(lines)} of {tally.calls} hostile calls of {name} failed:\n" + "\n".join(lines)
 
 
@@ -777,24 +715,12 @@ def test_every_public_callable_is_covered(tmp_path: Path) -> None:
     assert not missing, f"add hostile specs for: {sorted(missing)}"
 
 
-def test_known_defects_still_fail() -> None:
-    """Strict expected failures, written out: every entry of KNOWN must still show in a spec
-    test of this run (an entry whose specs did not run is not judged).  Once a defect is
-    fixed, this fails: remove its entry."""
-    fixed = []
-    for d in KNOWN:
-        ran = [name for name in TALLY if any(fnmatch.fnmatchcase(name, g) for g in d.specs)]
-        if ran and not any(d.matches(k) for name in ran for k in TALLY[name].failures):
-            fixed.append(d.reason)
-    assert not fixed, "fixed, remove from KNOWN:\n" + "\n".join(fixed)
-
-
 def test_battery_size() -> None:
     """The battery makes tens of thousands of hostile calls (counted by the spec tests of
     this run; the count is printed with pytest -s)."""
     total = sum(t.calls for t in TALLY.values())
-    known = sum(1 for t in TALLY.values() for k in t.failures if any(d.matches(k) for d in KNOWN))
-    print(f"hostile calls: {total} over {len(TALLY)} callables; {known} fail as known defects of other files")
+    failed = sum(len(t.failures) for t in TALLY.values())
+    print(f"hostile calls: {total} over {len(TALLY)} callables; {failed} failed")
     if len(TALLY) == len(SPEC_NAMES):
         assert total > 20000
 
@@ -967,3 +893,110 @@ def test_distribution_messages_are_plain_words() -> None:
     message = _fails_with(lambda: dist.chi2_sf(np.nan, 3.0), "the chi-square tail probability (a p-value) cannot be "
                           "computed", "is NaN (not a number)", "check the data")
     assert "chi2_sf" not in message
+
+
+# The defects the battery listed as known (its former KNOWN list) until they were fixed;
+# each test fails on the code before the fix (a TypeError, a KeyError, numpy's ValueError,
+# an AttributeError, an OverflowError, a RuntimeWarning or a call that never returned).
+
+
+@pytest.mark.parametrize("names, fragment", [
+    (3, "names must be a list of str; got 3"),
+    (True, "names must be a list of str; got True"),
+    (np.array("x1"), "names must be a list of str"),
+    (object(), "names must be a list of str"),
+    ({"a", "b"}, "names is a set, which has no order of its own"),
+    ([1, 2], "names entry 0 is 1 (int), not text"),
+], ids=["int", "bool", "0d-array", "object", "set", "numbers"])
+def test_names_that_are_not_a_sequence_of_text_are_refused_by_name(names: Any, fragment: str) -> None:
+    # source: common practice (before: TypeError "'int' object is not iterable"; a set or
+    # numbers were taken, the set in an order that changes between runs of Python)
+    for fit in (lambda: lt.least_squares(X, YL, names=names), lambda: lt.logistic(X, YB, names=names),
+                lambda: lt.softmax(X, Y3, names=names), lambda: lt.check_separation(XSEP, YB, names=names)):
+        _fails_with(fit, fragment, "one name per column")
+
+
+@pytest.mark.parametrize("argument, value, fragment", [
+    ("features", 3, "features must be a list of str"),
+    ("features", {"x1", "x2"}, "features is a set, which has no order of its own"),
+    ("extra", object(), "extra must be a list of str"),
+    ("categorical", 1.5, "categorical must be a list of str"),
+    ("exclude", np.array(0), "exclude must be a list of str"),
+    ("missing_values", [None], "missing_values entry 0 is None"),
+    ("reference_levels", ["g", "u"], "reference_levels must be a dict of column name to level"),
+    ("reference_levels", {"g": 1}, "reference_levels must map column names (str) to levels (str)"),
+    ("decimal", np.array([".", ","]), "decimal must be '.' or ','"),
+    ("drop_missing", np.array([True, False]), "drop_missing must be True or False"),
+    ("drop_missing", pd.NA, "drop_missing must be True or False"),
+])
+def test_read_table_arguments_are_type_checked_by_name(tmp_path: Path, argument: str, value: Any,
+                                                       fragment: str) -> None:
+    # source: common practice (before: TypeError "not iterable", ValueError "truth value of an
+    # array is ambiguous" or "dictionary update sequence element")
+    path = tmp_path / "t.csv"
+    path.write_text("x1,x2,g,y\n1,2,u,0\n3,4,v,1\n5,7,u,1\n")
+    _fails_with(lambda: lt.read_table(path, target="y", **{argument: value}), fragment)
+
+
+def test_replace_and_target_of_the_model_writers_are_checked(tmp_path: Path) -> None:
+    # source: common practice (before: numpy's "truth value of an array is ambiguous",
+    # pandas' "boolean value of NA is ambiguous", and a TypeError from the XML writer)
+    for bad in (np.array([True, False]), pd.NA, "yes", 1):
+        _fails_with(lambda: lt.save(LIN, tmp_path / "m.json", replace=bad), "replace must be True or False")
+        _fails_with(lambda: lt.write_pmml(LIN, tmp_path / "m.pmml", replace=bad), "replace must be True or False")
+    for bad in (np.array(["y", "z"]), 5, pd.NA):
+        _fails_with(lambda: lt.write_pmml(LOGI, tmp_path / "m.pmml", target=bad), "target must be a str")
+    assert not list(tmp_path.iterdir())  # nothing written
+
+
+@pytest.mark.parametrize("fit", [LIN, LOGI, SOFT], ids=["least_squares", "logistic", "softmax"])
+def test_a_delivered_model_is_written_back_as_the_same_model(tmp_path: Path, fit: Any) -> None:
+    """Invariant: read_pmml(write_pmml(read_pmml(f))) is the model of f, bit for bit (before:
+    AttributeError 'positive_class' for a delivered logistic model).  Source: PMML 4.4
+    RegressionModel (the positive class's table first, the other empty) and exact repr
+    round trips of floats (Python's repr is the shortest string that reads back exactly)."""
+    lt.write_pmml(fit, tmp_path / "a.pmml")
+    first = lt.read_pmml(tmp_path / "a.pmml")
+    lt.write_pmml(first, tmp_path / "b.pmml")
+    again = lt.read_pmml(tmp_path / "b.pmml")
+    assert (again.kind, again.names, again.classes, again.target) == (first.kind, first.names, first.classes,
+                                                                      first.target)
+    assert np.array_equal(again.coefficients, first.coefficients)
+    assert np.array_equal(again.intercept, first.intercept)
+    assert np.array_equal(again.mean(X), first.mean(X))
+
+
+def test_a_delivered_model_that_cannot_be_written_is_refused(tmp_path: Path) -> None:
+    # source: common practice -- a hand-made model whose coefficients do not match its names
+    bad = lt.DeliveredModel(kind="logistic", names=("a", "b"), coefficients=np.array([1.0]), intercept=0.0,
+                            classes=("1", "0"))
+    _fails_with(lambda: lt.write_pmml(bad, tmp_path / "m.pmml"), "coefficients must be finite numbers of shape (2,)")
+
+
+@pytest.mark.parametrize("call", [
+    lambda b: lt.brier(YB, P, bins=b), lambda b: lt.reliability(YB, P, bins=b),
+    lambda b: lt.calibration_error(YB, P, bins=b), lambda b: lt.calibration_error(Y3, P3, bins=b),
+    lambda b: lt.hosmer_lemeshow(YB, P, groups=b),
+], ids=["brier", "reliability", "calibration_error", "calibration_error-multiclass", "hosmer_lemeshow"])
+def test_bins_and_groups_have_a_documented_upper_bound(call: Callable[[int], Any]) -> None:
+    # source: common practice (before: numpy's "Maximum allowed size exceeded" or an
+    # IndexError for 2**63 bins, and Hosmer-Lemeshow with 2**63 groups never returned)
+    for too_many in (1_000_001, 2**63, 2**100):
+        _fails_with(lambda: call(too_many), "must be at most 1000000", "pass fewer")
+    call(1_000_000)  # the bound itself (lintools._binning.MAX_BINS) is accepted
+
+
+def test_hosmer_lemeshow_with_more_groups_than_rows_keeps_the_formed_groups() -> None:
+    """Invariant: once every distinct forecast has a group of its own (here from 96 groups
+    on: no row's weight share is below 1/96), more groups only add empty groups, which are
+    dropped (source: the cut rule of Hosmer & Lemeshow 1980 as documented)."""
+    a = lt.hosmer_lemeshow(YB, P, weights=W, groups=1000)
+    b = lt.hosmer_lemeshow(YB, P, weights=W, groups=10**6)
+    assert a.statistic == b.statistic and a.degrees_of_freedom == b.degrees_of_freedom == N - 2
+
+
+@pytest.mark.parametrize("apply, name", [(PLATT.apply, "scores"), (TEMP2.apply, "logits"), (ISO.apply, "p")],
+                         ids=["platt", "temperature", "isotonic"])
+def test_map_apply_refuses_a_ragged_list_by_name(apply: Callable[[Any], Any], name: str) -> None:
+    # source: common practice (before: numpy's ValueError "inhomogeneous shape")
+    _fails_with(lambda: apply([[1.0, 2.0], [3.0]]), f"{name} could not be read as an array", "rectangular")

@@ -275,6 +275,29 @@ def test_temperature_scaling_weight_scale_invariance(seed, c, kind):
 
 
 @SETTINGS
+@given(st.integers(0, 10**6), st.integers(-1000, 1000), st.sampled_from([1, 3]))
+def test_temperature_scaling_logit_scale_invariance(seed, k, kind):
+    """Logits times 2**k (k from -1000 to 1000, logits near 1e-300 and 1e300 included): the
+    temperature times 2**k exactly, the same verdict, iteration count and log-likelihood,
+    bit for bit (softmax(Z / T) depends on Z / T only; the fit works on the logits divided
+    by a power of two).  Before: logits near 1e300 overflowed (RuntimeWarning)."""
+    y, _, s, w = _forecasts(seed)
+    logits = 2.0 * s
+    if kind == 3:
+        rng = np.random.default_rng(seed)
+        logits = np.column_stack([-s, rng.normal(size=s.size), s]) * 1.7
+        y = np.where(rng.random(s.size) < 0.2, 1, 2 * y)
+    b = _same_refusal(lambda: lt.temperature_scaling(y, logits, weights=w),
+                      lambda: lt.temperature_scaling(y, np.ldexp(logits, k), weights=w))
+    if b is None:
+        return
+    a = lt.temperature_scaling(y, np.ldexp(logits, k), weights=w)
+    assert a.temperature == math.ldexp(b.temperature, k)
+    assert (a.converged, a.iterations, a.gradient, a.log_likelihood) == (b.converged, b.iterations, b.gradient,
+                                                                         b.log_likelihood)
+
+
+@SETTINGS
 @given(st.integers(0, 10**6), FACTOR)
 def test_isotonic_calibration_weight_scale_invariance(seed, c):
     """Weights times c: the same isotonic points and fitted values."""

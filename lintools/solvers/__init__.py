@@ -64,8 +64,8 @@ import numpy as np
 
 from ._samples import SAMPLE_RUN, sample_rows, take_rows
 from .affine import AffineProblem, RestrictedProblem
-from .base import (Evaluation, IterationRecord, NonFiniteDesign, SingularMatrixError, SolverResult, cholesky,
-                   finish, inverse_spd, solve_factored, solve_spd)
+from .base import (Evaluation, ExtremeSpread, IterationRecord, NonFiniteDesign, SingularMatrixError, SolverResult,
+                   cholesky, finish, inverse_spd, solve_factored, solve_spd)
 from .problem import LinearModelProblem
 
 __all__ = [
@@ -77,6 +77,7 @@ __all__ = [
     "RestrictedProblem",
     "SingularMatrixError",
     "NonFiniteDesign",
+    "ExtremeSpread",
     "finish",
     "cholesky",
     "solve_spd",

@@ -108,11 +108,12 @@ def column_moments(X: np.ndarray, v: np.ndarray, rows: int, centre: bool) -> tup
 
 def _scaled_moments(X: np.ndarray, v: np.ndarray, rows: int, centre: bool) -> tuple[np.ndarray, np.ndarray, bool]:
     """:func:`column_moments` for finite entries whose sums overflow (|x| near 1e300): each
-    column is scaled by a power of two near its largest |entry| and the spread is
-    computed around the mean (exact pass)."""
+    column is divided by the power of two at or below its largest |entry| (so the scaled
+    entries lie in [-2, 2), and the power itself is a double even for entries near 1.8e308)
+    and the spread is computed around the mean (exact pass)."""
     n, p = X.shape
     top = np.max(np.abs(X), axis=0) if n else np.ones(p)
-    scale = np.exp2(np.ceil(np.log2(np.where(top > 0, top, 1.0))))  # exact powers of two
+    scale = np.ldexp(1.0, np.frexp(np.where(top > 0, top, 1.0))[1] - 1)  # exact powers of two
     total = float(v.sum())
     mean = np.zeros(p)
     for lo in range(0, n, rows):

@@ -53,7 +53,7 @@ class ShiftedColumns:
 
     def __init__(self, X: np.ndarray, c: np.ndarray, s: np.ndarray, centred: bool) -> None:
         p = X.shape[1]
-        far = np.flatnonzero(np.abs(c) > FAR_SHIFT * s) if (centred and p) else np.zeros(0, dtype=np.intp)
+        far = np.flatnonzero(np.abs(c) / FAR_SHIFT > s) if (centred and p) else np.zeros(0, dtype=np.intp)
         self.far = far
         self.centre = c[far]
         self.C: np.ndarray | None = None

@@ -10,7 +10,8 @@ import numpy as np
 from ..linalg import solve_lower, solve_upper
 
 __all__ = ["EPS", "PIVOT_TOLERANCE", "IterationRecord", "SolverResult", "Evaluation", "finish",
-           "SingularMatrixError", "NonFiniteDesign", "cholesky", "solve_spd", "solve_factored", "inverse_spd",
+           "SingularMatrixError", "NonFiniteDesign", "ExtremeSpread", "cholesky", "solve_spd", "solve_factored",
+           "inverse_spd",
            "converged_message", "limit_message", "stalled_message", "stop_before_step", "report_step",
            "MEASURED"]
 
@@ -139,16 +140,37 @@ class NonFiniteDesign(ValueError):
     finiteness check of their input catch this and name the entry)."""
 
 
+class ExtremeSpread(ValueError):
+    """A column's weighted spread is too small for float64 to hold its standardised
+    coordinate: ``1 / spread`` overflows, or (with a ridge) ``l2 / spread^2`` does.
+
+    ``column`` is its index in the design, ``spread`` its weighted spread;
+    ``log10_variance`` is a lower bound (log10) of its coefficient's variance in the
+    caller's weights, ``4 / (W spread^2)`` (without a ridge the inverse information's
+    diagonal is at least the inverse of its diagonal, at most ``W / 4`` per standardised
+    column); it is None with a ridge, whose penalty ``l2 / spread^2`` is what overflows,
+    and when ``top`` is set: the column's largest magnitude, whose products with the
+    residuals summed over the rows would pass float64's range.  Callers name the column
+    and the remedy."""
+
+    def __init__(self, column: int, spread: float, log10_variance: float | None, top: float | None = None) -> None:
+        super().__init__(f"column {column} has a weighted spread of {spread:.3g}, beyond float64's range")
+        self.column, self.spread, self.log10_variance, self.top = column, spread, log10_variance, top
+
+
 def cholesky(H: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Jacobi-scaled Cholesky: ``H = D L L' D`` with ``D = sqrt(diag H)``; returns (L, d).
 
-    Raises :class:`SingularMatrixError` when a scaled pivot is <= ``PIVOT_TOLERANCE``.
+    Raises :class:`SingularMatrixError` when a scaled pivot is <= ``PIVOT_TOLERANCE``, or
+    when a diagonal entry is not positive (checked before any square root: an indefinite
+    matrix, such as Firth's exact Hessian away from its optimum, is an outcome, not an error).
     """
-    d = np.sqrt(np.diag(H))
+    diagonal = np.diag(H)
     if H.shape[0] == 0:
-        return np.zeros((0, 0)), d
-    if not np.all(np.isfinite(H)) or not np.all(d > 0):
-        raise SingularMatrixError("zero or non-finite diagonal")
+        return np.zeros((0, 0)), np.sqrt(diagonal)
+    if not np.all(np.isfinite(H)) or not np.all(diagonal > 0):
+        raise SingularMatrixError("zero, negative or non-finite diagonal")
+    d = np.sqrt(diagonal)
     Hs = H / d[:, None] / d[None, :]
     try:
         L = np.linalg.cholesky(Hs)

@@ -36,12 +36,13 @@ from typing import Any, Callable
 import numpy as np
 
 from ..linalg import solve_lower, transposed_block, unstandardise
+from .._scaling import SUM_LIMIT
 from .._threads import ELEMENT_CHUNK, add_up, for_rows
 from ._kernels import column_moments, uncentred_ok, weighted_gram
 from ._kernels_multi import PairWeights, multi_output_information
 from ._samples import sample_rows, take_rows
 from ._shifted import ShiftedColumns
-from .base import EPS, Evaluation, NonFiniteDesign, SingularMatrixError, cholesky
+from .base import EPS, Evaluation, ExtremeSpread, NonFiniteDesign, SingularMatrixError, cholesky
 
 __all__ = ["LinearModelProblem"]
 
@@ -210,6 +211,7 @@ class LinearModelProblem:
         self.spread = s
         # a column whose spread is rounding noise around its centre is treated as constant
         self.s = np.where((s > 1e-13 * np.abs(self.c)) & (s > 0) & np.isfinite(s), s, 1.0)
+        self._check_spreads(total)
         # log |d theta / d z|, and the log det of the information's weight scale (Firth)
         self.log_det_T = -self.K * float(np.sum(np.log(self.s)))
         self.log_det_weights = self.size * math.log(self.weight_scale)
@@ -239,6 +241,33 @@ class LinearModelProblem:
         # while the column scales are moderate (else each block is standardised first)
         self.extreme = bool(p) and not bool(np.all((self.s >= SCALE_RANGE[0]) & (self.s <= SCALE_RANGE[1])))
         self.uncentred = bool(p) and uncentred_ok(self.c, self.s) and not self.extreme
+
+    def _check_spreads(self, total: float) -> None:
+        """Raise :class:`ExtremeSpread` for the first column whose standardised coordinate
+        float64 cannot hold: ``1 / s_j`` overflows (a spread below about 5.6e-309), or with
+        a ridge ``l2 / s_j^2`` does (the penalty on the standardised coefficient); or whose
+        largest magnitude ``t_j`` times the problem's total weight passes ``SUM_LIMIT``
+        (2**1020): the gradient's sums ``sum_i (x_ij - c_j) r_i`` are bounded by ``2 t_j`` times the sum of
+        ``|r_i|`` (at most that total, the Firth term included), so below it they cannot
+        overflow.  O(p), and a pass over the columns of spread or centre beyond 2**100 only."""
+        with np.errstate(over="ignore", divide="ignore"):
+            inv = 1.0 / self.s
+            bad = ~np.isfinite(inv)
+            if self.l2:
+                bad |= ~np.isfinite(self.l2 * inv * inv)
+        if bad.any():
+            j = int(np.argmax(bad))
+            s = float(self.s[j])
+            bound = None if self.l2 or not total > 0 else (math.log10(4.0 / total) - math.log10(self.weight_scale)
+                                                           - 2.0 * math.log10(s))
+            raise ExtremeSpread(j, s, bound)
+        wide = np.flatnonzero((self.s > SCALE_RANGE[1]) | (np.abs(self.c) > SCALE_RANGE[1]))
+        if wide.size and self.n:
+            top = np.max(np.abs(self.X[:, wide]), axis=0)
+            over = np.flatnonzero(~(top <= SUM_LIMIT / self.weight_total))
+            if over.size:
+                j = int(wide[over[0]])
+                raise ExtremeSpread(j, float(self.s[j]), None, float(top[over[0]]))
 
     # ---- coordinates ----------------------------------------------------------------
     def _parts(self, z: np.ndarray) -> tuple[Any, np.ndarray]:
