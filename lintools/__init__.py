@@ -3,6 +3,7 @@
 Public names only; see the README and each function's docstring.
 """
 
+from ._version import __version__
 from ._errors import (
     IllConditionedWarning,
     InputError,
@@ -18,7 +19,7 @@ from .table import Table, read_table
 from .least_squares import least_squares
 from ._records import LogisticFit
 from .logistic import logistic
-from ._records import SoftmaxFit
+from ._softmax_record import SoftmaxFit
 from .softmax import softmax
 from .blocks import least_squares_blocks, logistic_blocks, softmax_blocks
 from .separation import MultinomialSeparationCheck, SeparationCheck, check_separation
@@ -52,7 +53,6 @@ from .splitting import (
     stratified_holdout,
 )
 
-__version__ = "0.1.0"
 
 __all__ = [
     "CoefficientTable",

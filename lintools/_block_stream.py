@@ -20,7 +20,7 @@ from ._errors import (
     InputError,
     )
 from ._validate import as_matrix, as_vector, check_finite
-from .logistic import _labels
+from ._responses import read_labels
 
 
 # ---------------------------------------------------------------------------------------
@@ -74,7 +74,7 @@ def _class_indices(index: int, yb: Any, m: int, classes: tuple) -> np.ndarray:
         if bool(np.all(known[at] == yb)):  # the common case, without a dictionary
             return at.astype(np.intp)
     try:
-        found, codes = _labels(yb, m)
+        found, codes = read_labels(yb, m)
     except InputError as exc:
         raise _prefixed(index, exc) from None
     lookup = {c: k for k, c in enumerate(classes)}
@@ -92,7 +92,7 @@ def _class_indices(index: int, yb: Any, m: int, classes: tuple) -> np.ndarray:
 def _label_summary(index: int, yb: Any, m: int, w: np.ndarray | None, keep: int | None = 3) -> dict:
     """Labels of a block: label -> [block, first row, total weight] (see :func:`_earliest`)."""
     try:
-        found, codes = _labels(yb, m)
+        found, codes = read_labels(yb, m)
     except InputError as exc:
         raise _prefixed(index, exc) from None
     first = [int(np.argmax(codes == k)) for k in range(len(found))]
@@ -360,7 +360,7 @@ def _tree(parts: Any, combine: Callable, cargs: tuple) -> Any:
     return part
 
 
-class _StreamRunner:
+class StreamRunner:
     """Runs passes over ``source()``: checks each block, maps it, reduces pairwise.
 
     The first pass fixes the number of columns, whether weights come along, and the rows
@@ -453,36 +453,6 @@ class _StreamRunner:
                 "pass 1; source() must yield the same blocks on every pass"
             )
         return result
-
-
-def _is_dask(obj: Any) -> bool:
-    """A dask array, recognised without importing dask."""
-    return type(obj).__module__.split(".")[0] == "dask" and hasattr(obj, "to_delayed")
-
-
-def _runner(source: Any, X: Any, y: Any, weights: Any, labels: Any = None) -> Any:
-    """The stream runner for a source, or the Dask runner for dask arrays."""
-    if source is not None and (X is not None or y is not None or weights is not None):
-        raise InputError(
-            "pass either source (a function returning an iterator of blocks) or X and y as "
-            "row-chunked dask arrays, not both; block weights come with the blocks"
-        )
-    if source is not None:
-        return _StreamRunner(source, labels)
-    if X is None and y is None:
-        raise InputError(
-            "no data: pass source (a function returning a fresh iterator of (X_block, y_block"
-            "[, weights_block]) on every call) or X and y as row-chunked dask arrays"
-        )
-    if not (_is_dask(X) and _is_dask(y) and (weights is None or _is_dask(weights))):
-        kinds = ", ".join(f"{k} is a {type(v).__name__}" for k, v in (("X", X), ("y", y), ("weights", weights)) if v is not None)
-        raise InputError(
-            f"X=, y= (and weights=) must all be dask arrays ({kinds}); for in-memory arrays use "
-            "lintools.least_squares / lintools.logistic, or pass a source of blocks"
-        )
-    from ._dask import DaskRunner
-
-    return DaskRunner(X, y, weights, labels)
 
 
 # ---------------------------------------------------------------------------------------

@@ -18,7 +18,8 @@ from .losses import BinomialLoss
 from .solvers import Evaluation, IterationRecord, SingularMatrixError
 from .solvers.newton import newton
 
-from ._block_stream import _add, _check_two, _runner
+from ._block_stream import _add, _check_two
+from ._block_runner import make_runner
 from ._blocks_tsqr import _ls_factor_kernel, _ls_merge, in_caller_units
 
 
@@ -318,7 +319,7 @@ def logistic_blocks(
     Albert & Anderson (1984), Biometrika 71, 1-10 (existence of the estimate).
     """
     intercept, lam, tol, max_iter = check_fit_settings(intercept, l2, tol, max_iter, on_iteration)
-    run = _runner(source, X, y, weights, labels="collect")
+    run = make_runner(source, X, y, weights, labels="collect")
     part = in_caller_units(run.reduce(_design_kernel, merge_design, (intercept,), (intercept,)))
     p = run.spec.p
     names_t = check_names(names, p, run.names)

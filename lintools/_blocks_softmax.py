@@ -9,17 +9,18 @@ import numpy as np
 
 from ._errors import InputError, LintoolsError, SeparationError
 from ._multinomial import MultinomialLoss
-from ._records import SoftmaxFit
+from ._softmax_record import SoftmaxFit
 from ._scaling import caller_covariance, check_l2_scale, scaled_back
 from ._validate import check_names
 from .inference import likelihood_fields
 from .linalg import unstandardise
 from .logistic import DEFAULT_TOL, ETA_LIMIT, convergence_record, check_fit_settings, check_parameters_and_rows
-from .softmax import _intercept_subspace, _internal_terms, _reference_index, _z_covariance
+from .softmax import intercept_subspace, internal_terms, reference_index, z_covariance
 from .solvers import AffineProblem, Evaluation, IterationRecord, SingularMatrixError
 from .solvers.newton import newton
 
-from ._block_stream import COLLECT_ALL, ClassIndex, _merge_labels, _runner
+from ._block_stream import COLLECT_ALL, ClassIndex, _merge_labels
+from ._block_runner import make_runner
 from ._blocks_newton import _PassProblem, _centres_and_scales, centred_block, merge_design, weights_scale
 from ._blocks_tsqr import in_caller_units
 from ._blocks_newton import _design_kernel as _binary_design_kernel
@@ -274,8 +275,8 @@ def softmax_blocks(
     """
     intercept, lam, tol, max_iter = check_fit_settings(intercept, l2, tol, max_iter, on_iteration)
     if reference is None:
-        _reference_index(None, (), lam)  # the symmetric form needs l2 > 0: say so before any pass
-    run = _runner(source, X, y, weights, labels=COLLECT_ALL)
+        reference_index(None, (), lam)  # the symmetric form needs l2 > 0: say so before any pass
+    run = make_runner(source, X, y, weights, labels=COLLECT_ALL)
     part = in_caller_units(run.reduce(_design_kernel, _merge_design, (intercept,), (intercept,)))
     p = run.spec.p
     names_t = check_names(names, p, run.names)
@@ -296,7 +297,7 @@ def softmax_blocks(
             f"class {label!r} of y (first seen at row {row} of block {block}) has zero total weight over all "
             "blocks; its probability would be 0: drop those rows' class from y, or give them positive weights"
         )
-    ref = _reference_index(reference, classes, lam)
+    ref = reference_index(reference, classes, lam)
     if lam == 0:
         check_parameters_and_rows(p + int(intercept), int(part["n_pos"]))
     c, s = _centres_and_scales(part, intercept, lam, names_t)
@@ -313,7 +314,7 @@ def softmax_blocks(
     target: Any = problem
     start = None
     if ref is None and intercept:
-        E = _intercept_subspace(problem)
+        E = intercept_subspace(problem)
         target = AffineProblem(problem, np.zeros(problem.size), E)
         start = E.T @ problem.start()
 
@@ -339,7 +340,7 @@ def softmax_blocks(
         raise LintoolsError(f"{res.message}: {ill}")
     z = target.embed(res.z) if target is not problem else res.z
     try:
-        Vz = _z_covariance(problem, target, z)
+        Vz = z_covariance(problem, target, z)
     except SingularMatrixError:
         raise LintoolsError(f"the information matrix is singular at the answer: {ill}") from None
     return _softmax_record(problem, res, z, Vz, order, ref, classes, totals, part["W"], lam, intercept,
@@ -354,7 +355,7 @@ def _softmax_record(problem: _SoftmaxBlockProblem, res: Any, z: np.ndarray, Vz: 
     part = problem.cache[z.tobytes()][2]
     K, Kf, p1, p = len(classes), problem.K, problem.p1, problem.p
     scale = problem.weight_scale  # the passes' weights are the caller's / scale
-    V = caller_covariance(problem.theta_from_z_matrix(), Vz, scale, _internal_terms(names, classes, order, ref, intercept),
+    V = caller_covariance(problem.theta_from_z_matrix(), Vz, scale, internal_terms(names, classes, order, ref, intercept),
                           np.repeat(np.concatenate([np.full(int(intercept), np.nan), problem.s]), Kf))
     first = 0 if ref is None else 1
     full_t, full_se = np.zeros((p1, K)), np.zeros((p1, K))

@@ -16,10 +16,11 @@ from ._lsq_qr import ILL_CONDITIONED, alias_sentences
 from ._lsq_scale import Units, column_exponents, exponent, to_caller
 from ._validate import check_flag, check_names, check_nonnegative, weight_scale
 from ._records import LinearFit
-from .least_squares import _record, _residual_df
+from .least_squares import linear_record, residual_degrees
 from .linalg import CONSTANT_TOLERANCE, aliased_columns, condition_number, default_rank_tolerance, inverse_upper, solve_lower, solve_upper
 
-from ._block_stream import _add, _merge_labels, _positive_rows, _runner
+from ._block_stream import _add, _merge_labels, _positive_rows
+from ._block_runner import make_runner
 
 
 #: Corrections of the least-squares answer (each one a pass) before it is accepted.
@@ -266,7 +267,7 @@ def least_squares_blocks(
     """
     intercept = check_flag(intercept, "intercept")
     lam = check_nonnegative(l2, "l2")
-    run = _runner(source, X, y, weights)
+    run = make_runner(source, X, y, weights)
     part = run.reduce(_ls_factor_kernel, _ls_merge, (intercept,), (intercept,))
     p = run.spec.p
     names_t = check_names(names, p, run.names)
@@ -344,8 +345,8 @@ def least_squares_blocks(
         "leverage_one_row": None, "grad": grad, "lam1": lam1, "col_exp": units.ex, "identified": None,
         "w1": None, "iterations": 1 + steps, "solver": "tsqr", "message": message,
     }
-    df = _residual_df(n_obs, k_max, "case", n_pos)
-    return _record(fit, units, W, n_obs, df, None, lam, intercept, names_t, "classical", "case", False, "y")
+    df = residual_degrees(n_obs, k_max, "case", n_pos)
+    return linear_record(fit, units, W, n_obs, df, None, lam, intercept, names_t, "classical", "case", False, "y")
 
 
 def _solve_factor(R: np.ndarray, W: float, mean: np.ndarray, lo: np.ndarray, hi: np.ndarray, lam1: np.ndarray,

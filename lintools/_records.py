@@ -21,11 +21,9 @@ import numpy as np
 from . import _distributions as dist
 from ._categories import CategoricalField
 from ._errors import InputError
-from ._validate import ReadOnlyArrays, as_matrix, scored
+from ._validate import INTERCEPT_NAME, ReadOnlyArrays, as_matrix, scored
 
 __all__ = ["CategoricalField", "Convergence", "CoefficientTable", "LinearFit"]
-
-INTERCEPT_NAME = "(intercept)"
 
 
 @dataclass(frozen=True)
@@ -410,17 +408,6 @@ class LogisticFit(_FitBase):
         pos = self.classes.index(self.positive_class)
         return np.asarray(self.classes)[np.where(eta > 0, pos, 1 - pos)]
 
-    def _score_and_information(self, X, y, weights, coef, b, free_intercept):
-        """Score (gradient of the penalised log-likelihood) and information at given parameters.
-
-        Order: intercept first when fitted.  With ``free_intercept`` the intercept is first
-        set to its constrained maximum-likelihood value given ``coef``.  Used by
-        :func:`lintools.crosscheck.compare_coefficients` (score test).
-        """
-        from .logistic import score_and_information
-
-        return score_and_information(self, X, y, weights, coef, b, free_intercept)
-
     def report(self, level: float = 0.95) -> str:
         """Return a plain-text report: the fit's facts, then the coefficient table."""
         table = self.coefficient_table(level)
@@ -455,7 +442,3 @@ class LogisticFit(_FitBase):
             text += "\n".join(lines) + "\n"
         return text
 
-
-from ._softmax_record import SoftmaxFit  # noqa: E402  (defined beside, registered here for io)
-
-__all__ += ["SoftmaxFit"]

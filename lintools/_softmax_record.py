@@ -119,12 +119,6 @@ class SoftmaxFit(_FitBase):
         E = self.linear_predictor(X, offset)
         return np.asarray(self.classes)[np.argmax(E, axis=1)]
 
-    def _score_and_information(self, X, y, weights, coef, b, free_intercept):
-        """Score and information at delivered parameters (covariance order); for the score test."""
-        from .softmax import score_and_information
-
-        return score_and_information(self, X, y, weights, coef, b, free_intercept)
-
     # ----- inference ------------------------------------------------------------------------
     def coefficient_table(self, level: float = 0.95) -> CoefficientTable:
         """Estimates, standard errors, Wald z, p-values and intervals of the free parameters,

@@ -14,7 +14,7 @@ import numpy as np
 from ._errors import InputError, IterationLimitWarning, LintoolsWarning, SeparationError, warn_caller
 from ._outcomes import binary_outcome, case_weights, class_codes, sigmoid, vector_in
 from ._scaling import case_weight_scale, scaled_back
-from ._validate import _as_float, _check_finite, as_vector, check_positive_int
+from ._validate import as_float, check_finite, as_vector, check_positive_int
 
 __all__ = ["TemperatureMap", "temperature_scaling"]
 
@@ -70,10 +70,10 @@ class TemperatureMap:
 
 
 def _logit_matrix(logits: Any) -> np.ndarray:
-    Z = _as_float(logits, "logits")
+    Z = as_float(logits, "logits")
     if Z.ndim != 2 or Z.size == 0:
         raise InputError(f"logits must be a non-empty (n, K) matrix (or 1-D binary logits); got shape {Z.shape}")
-    _check_finite(Z, "logits")
+    check_finite(Z, "logits")
     return Z
 
 
@@ -192,7 +192,7 @@ def temperature_scaling(
     if not (tol > 0 and math.isfinite(tol)):
         raise InputError(f"tol must be a positive finite number (e.g. 1e-12); got {given!r}")
     max_iter = check_positive_int(max_iter, "max_iter")
-    raw = _as_float(logits, "logits")
+    raw = as_float(logits, "logits")
     binary = raw.ndim == 1
     if binary:
         z = as_vector(raw, "logits")

@@ -36,6 +36,9 @@ import numpy as np
 
 from ._errors import InputError
 
+#: the intercept's name in tables, model files and messages (never a column name)
+INTERCEPT_NAME = "(intercept)"
+
 __all__ = [
     "as_matrix",
     "as_vector",
@@ -150,7 +153,7 @@ def _position(index: tuple[int, ...], names: Sequence[str] | None) -> str:
     return f"row {row}, {label}"
 
 
-def _as_float(obj: Any, name: str, names: Sequence[str] | None = None) -> np.ndarray:
+def as_float(obj: Any, name: str, names: Sequence[str] | None = None) -> np.ndarray:
     _refuse_dates_and_masks(obj, name, names)
     raw = _to_numpy(obj)
     try:
@@ -240,7 +243,7 @@ def as_matrix(
     if X is None:
         raise InputError(f"{name} is None; pass a 2-D array of shape (rows, columns)")
     names = _column_names(X)
-    arr = _as_float(X, name, names)
+    arr = as_float(X, name, names)
     if arr.ndim == 1:
         raise InputError(
             f"{name} is 1-D with shape {arr.shape}; pass a 2-D array "
@@ -263,7 +266,7 @@ def as_vector(y: Any, name: str = "y", n: int | None = None) -> np.ndarray:
     """Return ``y`` as a new 1-D float64 array of length ``n`` with finite values."""
     if y is None:
         raise InputError(f"{name} is None; pass a 1-D array of numbers")
-    arr = _as_float(y, name)
+    arr = as_float(y, name)
     if arr.ndim == 2 and 1 in arr.shape and arr.size > 0:
         raise InputError(
             f"{name} has shape {arr.shape}; pass a 1-D array ({name}.ravel() if it is "
@@ -424,7 +427,7 @@ def as_offset(offset: Any, n: int, k: int | None = None, name: str = "offset") -
     if k is None:
         arr = as_vector(offset, name, n)
     else:
-        arr = _as_float(offset, name)
+        arr = as_float(offset, name)
         if arr.shape != (n, k):
             raise InputError(
                 f"{name} has shape {arr.shape}; pass an array of shape ({n}, {k}) "
@@ -515,8 +518,6 @@ def check_names(names: Any, p: int, found: tuple[str, ...] | None, prefix: str =
                 raise InputError(f"{what}: the name {name[:80]!r} appears more than once (columns {seen[name]} "
                                  f"and {j}); names must be distinct: {remedy}")
             seen[name] = j
-    from ._records import INTERCEPT_NAME
-
     if INTERCEPT_NAME in out:
         raise InputError(f"{what}: column {out.index(INTERCEPT_NAME)} is named {INTERCEPT_NAME!r}, the "
                          f"intercept's own name; {remedy}")
@@ -533,16 +534,16 @@ def as_texts(value: Any, name: str, remedy: str, *, ordered: bool = True) -> tup
     run of Python to the next).
     """
     if isinstance(value, (str, bytes)):
-        raise InputError(f"{name} is a single {type(value).__name__} ({_short(value)}); pass a list: {remedy}")
+        raise InputError(f"{name} is a single {type(value).__name__} ({short_repr(value)}); pass a list: {remedy}")
     if ordered and isinstance(value, (set, frozenset, dict)):
         raise InputError(f"{name} is a {type(value).__name__}, which has no order of its own; pass a list: {remedy}")
     try:
         items = tuple(value)
     except TypeError:  # not iterable: a number, a bool, None, object(), a 0-d array
-        raise InputError(f"{name} must be a list of str; got {_short(value)}: {remedy}") from None
+        raise InputError(f"{name} must be a list of str; got {short_repr(value)}: {remedy}") from None
     for j, item in enumerate(items):
         if not isinstance(item, str):
-            raise InputError(f"{name} entry {j} is {_short(item)} ({type(item).__name__}), not text: {remedy}")
+            raise InputError(f"{name} entry {j} is {short_repr(item)} ({type(item).__name__}), not text: {remedy}")
     return tuple(str(item) for item in items)
 
 
@@ -550,14 +551,14 @@ def check_flag(value: Any, name: str) -> bool:
     """``value`` as a bool: ``True``/``False`` (or NumPy's), nothing else (an array, ``pd.NA``,
     1, "yes" and None have no single agreed truth value)."""
     if not isinstance(value, (bool, np.bool_)):
-        raise InputError(f"{name} must be True or False; got {_short(value)}")
+        raise InputError(f"{name} must be True or False; got {short_repr(value)}")
     return bool(value)
 
 
 def check_nonnegative(value: Any, name: str) -> float:
     """Return ``value`` as a float, checking it is finite and >= 0."""
     if isinstance(value, (bool, np.bool_)) or not isinstance(value, numbers.Real):
-        raise InputError(f"{name} must be a real number >= 0; got {_short(value)}")
+        raise InputError(f"{name} must be a real number >= 0; got {short_repr(value)}")
     try:
         v = float(value)
     except (OverflowError, ValueError, TypeError):
@@ -600,11 +601,11 @@ def check_choice(value: Any, name: str, options: Sequence[Any]) -> Any:
     """Check that ``value`` is one of ``options`` (see :func:`is_one_of`); return the option."""
     if not is_one_of(value, options):
         shown = ", ".join(repr(o) for o in options)
-        raise InputError(f"{name}={_short(value)} is not one of {shown}")
+        raise InputError(f"{name}={short_repr(value)} is not one of {shown}")
     return next(o for o in options if is_one_of(value, (o,)))
 
 
-def _short(value: Any) -> str:
+def short_repr(value: Any) -> str:
     """``repr(value)``, cut to a line (an array's repr can run to thousands of characters)."""
     text = repr(value)
     return text if len(text) <= 60 else text[:57] + "..."
@@ -615,7 +616,7 @@ def check_positive_int(value: Any, name: str, minimum: int = 1, maximum: int | N
     """Check that ``value`` is an integer >= ``minimum`` (and <= ``maximum`` when given;
     ``why`` then says what a larger value would do)."""
     if isinstance(value, bool) or not isinstance(value, numbers.Integral):
-        raise InputError(f"{name} must be an integer >= {minimum}; got {_short(value)}")
+        raise InputError(f"{name} must be an integer >= {minimum}; got {short_repr(value)}")
     if value < minimum:
         raise InputError(f"{name} must be >= {minimum}; got {value}")
     if maximum is not None and value > maximum:
@@ -629,13 +630,13 @@ def check_probabilities(p: Any, name: str = "p", n: int | None = None) -> np.nda
         raise InputError(f"{name} is None; pass probabilities, one per row")
     try:
         kind = np.asarray(_to_numpy(p)).dtype.kind
-    except Exception:  # ragged input: _as_float below names the problem
+    except Exception:  # ragged input: as_float below names the problem
         kind = ""
     if kind == "b":
         raise InputError(
             f"{name} is boolean; pass probabilities (numbers in [0, 1]), not labels or a mask"
         )
-    arr = _as_float(p, name)
+    arr = as_float(p, name)
     if arr.ndim not in (1, 2) or arr.size == 0:
         raise InputError(f"{name} must be a non-empty 1-D array or (rows, classes) matrix; got shape {arr.shape}")
     if n is not None and arr.shape[0] != n:

@@ -141,7 +141,7 @@ def _cmd_fit(args: argparse.Namespace) -> int:
 
 
 def _version() -> str:
-    from . import __version__
+    from ._version import __version__
 
     return f"lintools {__version__}"
 

@@ -32,8 +32,9 @@ import numpy as np
 
 from . import _distributions as dist
 from ._errors import InputError
-from ._records import INTERCEPT_NAME
-from ._validate import _as_float, as_matrix, as_vector, as_weights, check_choice, power_of_two
+from .logistic import score_and_information as binary_score
+from .softmax import score_and_information as multinomial_score
+from ._validate import INTERCEPT_NAME, as_float, as_matrix, as_vector, as_weights, check_choice, power_of_two
 
 __all__ = ["CoefficientComparison", "compare_coefficients", "ImpliedPenalty", "implied_l2"]
 
@@ -87,7 +88,7 @@ class CoefficientComparison:
 
 def _numbers(value: Any, name: str, *, vector: bool = False) -> np.ndarray:
     """``value`` as a finite float array (the validator's conversion), or an InputError naming ``name``."""
-    arr = _as_float(value, name)
+    arr = as_float(value, name)
     if vector and arr.ndim == 0:
         raise InputError(f"{name} is a single number; pass a 1-D array with one entry per column of X")
     if not np.all(np.isfinite(arr)):
@@ -287,8 +288,10 @@ def _score_statistic(fit, Xa, y, weights, coef, b, idx) -> float:
     """``U' I^{-1} U`` at the delivered coefficients (penalised objective when l2 > 0)."""
     free_intercept = fit.with_intercept and 0 not in idx
     with np.errstate(all="ignore"):  # an overflow shows as a non-finite score, refused below
-        if fit.kind != "least_squares":
-            U, info = fit._score_and_information(Xa, y, weights, coef, b, free_intercept)
+        if fit.kind == "logistic":
+            U, info = binary_score(fit, Xa, y, weights, coef, b, free_intercept)
+        elif fit.kind == "softmax":
+            U, info = multinomial_score(fit, Xa, y, weights, coef, b, free_intercept)
         else:
             U, info = _linear_score(fit, Xa, y, weights, coef, b, free_intercept)
         if not (np.all(np.isfinite(U)) and np.all(np.isfinite(info))):

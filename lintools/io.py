@@ -12,7 +12,7 @@ Values are encoded so that reading gives back exactly what was written:
 * an array is ``{"$array": [flat values], "shape": [...], "dtype": "float64" | "int64" | "bool"}``;
 * a tuple is ``{"$tuple": [...]}``; a record is ``{"$record": "<class>", "fields": {...}}``.
 
-Only the record classes of :mod:`lintools._records` can be built; nothing is executed,
+Only the record classes named in ``RECORD_TYPES`` can be built; nothing is executed,
 and no pickle is ever used.  Files larger than :data:`MAX_BYTES` are refused.
 
 Loading checks every field against the others (:mod:`lintools._model_checks`): a file
@@ -42,7 +42,9 @@ from typing import Any
 
 import numpy as np
 
-from . import _records
+from ._categories import CategoricalField
+from ._records import CoefficientTable, Convergence, LinearFit, LogisticFit
+from ._softmax_record import SoftmaxFit
 from ._errors import InputError
 from ._files import file_path, read_bounded, write_atomic
 from ._model_checks import check_record
@@ -151,12 +153,16 @@ def _parse_numbers(raw: bytes, start: int, stop: int) -> Any:
 
 
 # ---------------------------------------------------------------- encoding
+#: the record types a model file may hold, by the name written in the file (an explicit
+#: list: a class is readable from a file only when it is named here)
+RECORD_TYPES: dict[str, type] = {
+    cls.__name__: cls
+    for cls in (CategoricalField, CoefficientTable, Convergence, LinearFit, LogisticFit, SoftmaxFit)
+}
+
+
 def _record_types() -> dict[str, type]:
-    out = {}
-    for value in vars(_records).values():
-        if isinstance(value, type) and dataclasses.is_dataclass(value) and not value.__name__.startswith("_"):
-            out[value.__name__] = value
-    return out
+    return RECORD_TYPES
 
 
 def _encode_float(x: float) -> Any:
@@ -352,7 +358,7 @@ def save(fit: Any, path: str | os.PathLike, *, reference_levels: Any = None, rep
         fit = with_references(fit, reference_levels, "save")
     check_record(fit, lambda field, problem: InputError(
         f"save: this record cannot be written, its {field.removeprefix('record.')} {problem}"))
-    from . import __version__
+    from ._version import __version__
 
     doc = {
         "format": FORMAT,

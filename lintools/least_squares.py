@@ -83,6 +83,7 @@ from ._errors import InputError
 from ._lsq_qr import qr_path, refuse_leverage_one
 from ._lsq_scale import Units, scaled_sqrt, to_caller
 from ._records import Convergence, LinearFit
+from ._responses import target_name
 from ._threads import whole_blas, with_row_threads
 from ._validate import (
     as_matrix,
@@ -99,11 +100,6 @@ from .linalg import CONSTANT_TOLERANCE, unstandardise
 __all__ = ["least_squares"]
 
 COVARIANCE_TYPES = ("classical", "HC0", "HC1", "HC2", "HC3")
-
-
-def _target_name(y: Any) -> str:
-    name = getattr(y, "name", None)
-    return str(name) if isinstance(name, str) and name else "y"
 
 
 @with_row_threads
@@ -223,7 +219,7 @@ def _fit(
     check_choice(diagnostics, "diagnostics", (True, False))
     intercept = check_flag(intercept, "intercept")
     names_t = check_names(names, p, found)
-    target = _target_name(y)
+    target = target_name(y)
 
     pos = None if w is None else w > 0
     n_pos = n if pos is None else int(pos.sum())
@@ -263,7 +259,7 @@ def _fit(
         )
 
     def residual_df(rank: int) -> float:
-        return _residual_df(n_obs, rank + int(intercept), weight_type, n_pos)
+        return residual_degrees(n_obs, rank + int(intercept), weight_type, n_pos)
 
     sol = None
     use_gram = method == "gram" or (method == "auto" and n * p > _gram.SMALL_PROBLEM)
@@ -286,11 +282,11 @@ def _fit(
                 intercept, names_t, rank_deficient, covariance, weight_type, residual_df,
             )
     units = Units(ey, ew, fit["col_exp"], names_t, target)
-    return _record(fit, units, W1, n_obs, residual_df(fit["rank"]), w, lam, intercept, names_t, covariance,
+    return linear_record(fit, units, W1, n_obs, residual_df(fit["rank"]), w, lam, intercept, names_t, covariance,
                    weight_type, diagnostics, target)
 
 
-def _record(fit, units, W1, n_obs, df, w, lam, intercept, names_t, covariance, weight_type, diagnostics, target):
+def linear_record(fit, units, W1, n_obs, df, w, lam, intercept, names_t, covariance, weight_type, diagnostics, target):
     """The :class:`LinearFit` of a path's answer (in the units of ``units``), in the caller's units."""
     beta, b0, rank = fit["beta"], fit["b0"], fit["rank"]
     s, xbar, G = fit["s"], fit["xbar"], fit["G"]
@@ -433,7 +429,7 @@ def caller_covariance(Vz: np.ndarray, xbar: np.ndarray, s: np.ndarray, intercept
     return 0.5 * (V + V.T)
 
 
-def _residual_df(n_obs, k, weight_type, n_pos):
+def residual_degrees(n_obs, k, weight_type, n_pos):
     df = n_obs - k
     if df <= 0:
         raise InputError(

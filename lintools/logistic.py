@@ -32,21 +32,19 @@ import numpy as np
 
 from ._errors import InputError, IterationLimitWarning, LintoolsError, LintoolsWarning, SeparationError, warn_caller
 from ._records import Convergence, LogisticFit
+from ._responses import binary_response, target_name
 from ._scaling import (check_firth_scale, check_l2_scale, check_solver, scaled_back, scaled_case_weights,
                        wide_column_error)
 from ._threads import ELEMENT_CHUNK, for_rows, with_row_threads
 from ._validate import (
-    as_labels,
     as_matrix,
     as_offset,
-    as_vector,
     as_weights,
     check_finite,
     check_flag,
     check_names,
     check_nonnegative,
     check_positive_int,
-    is_one_of,
 )
 from .inference import covariance, likelihood_fields, null_objective, profile_bounds
 from .linalg import default_rank_tolerance, dependency_sentence
@@ -85,100 +83,6 @@ REMEDIES = (
     "Remedies: firth=True (Firth's bias-reduced estimates, finite under separation) or "
     "l2 > 0 (a ridge penalty on the slopes)"
 )
-
-
-def _target_name(y: Any) -> str:
-    name = getattr(y, "name", None)
-    return str(name) if isinstance(name, str) and name else "y"
-
-
-def _whole(values: np.ndarray) -> np.ndarray:
-    return values == np.round(values)
-
-
-def _labels(y: Any, n: int) -> tuple[tuple, np.ndarray]:
-    """``as_labels``, vectorised for plain numeric or boolean arrays of the right length."""
-    arr = y if type(y) is np.ndarray else None  # not a masked array: as_labels refuses masked entries
-    if arr is not None and arr.ndim == 1 and arr.shape[0] == n and arr.dtype.kind in "biuf":
-        if arr.dtype.kind != "f" or np.all(np.isfinite(arr)):
-            if n and arr.dtype.kind != "b":
-                lo, hi = arr.min(), arr.max()
-                if lo != hi:  # two values only (the usual binary target): no sort needed
-                    top = arr == hi
-                    if np.count_nonzero(top) + np.count_nonzero(arr == lo) == n:
-                        return (lo.item(), hi.item()), top.astype(np.intp)
-            uniq, codes = np.unique(arr, return_inverse=True)
-            return tuple(uniq.tolist()), codes.astype(np.intp)
-    return as_labels(y, "y", n)  # everything else, and the error messages
-
-
-def _response(y: Any, trials: Any, positive: Any, n: int) -> tuple[np.ndarray, np.ndarray, tuple, Any]:
-    """Successes, trials, classes and positive class, checked."""
-    if trials is None:
-        classes, codes = _labels(y, n)
-        if len(classes) == 1:
-            raise InputError(
-                f"y has only one class ({classes[0]!r}); a logistic model needs both outcomes: "
-                "check the target column or the rows selected"
-            )
-        if len(classes) > 2:
-            shown = ", ".join(repr(c) for c in classes[:5]) + (", ..." if len(classes) > 5 else "")
-            raise InputError(
-                f"y has {len(classes)} distinct labels ({shown}); a binary logistic model needs "
-                "exactly two: use lintools.softmax for more classes, recode y, or pass success "
-                "counts with trials="
-            )
-        if positive is None:
-            positive = classes[1]
-        elif not is_one_of(positive, classes, exact_kind=False):
-            raise InputError(
-                f"positive={positive!r} is not one of the labels of y ({classes[0]!r}, {classes[1]!r}); "
-                "name one of them"
-            )
-        else:
-            positive = classes[classes.index(positive)]
-        yy = (codes == classes.index(positive)).astype(float)
-        return yy, np.ones(n), classes, positive
-    if positive is not None:
-        raise InputError(
-            "positive= names a label, but with trials= y holds success counts (the positive "
-            "class is a success); leave positive unset"
-        )
-    yy = as_vector(y, "y", n)
-    m = as_vector(trials, "trials", n)
-    for arr, name, what in ((m, "trials", "the number of trials"), (yy, "y", "the number of successes")):
-        bad = arr < 0
-        if bad.any():
-            i = int(np.argmax(bad))
-            raise InputError(f"{name} is negative ({arr[i]:g}) at row {i}; {name} must count {what} (>= 0)")
-        bad = arr > MAX_COUNT
-        if bad.any():
-            i = int(np.argmax(bad))
-            raise InputError(
-                f"{name} is {arr[i]:.6g} at row {i}, beyond 2**53 (9.0e15), above which doubles do not hold every "
-                f"whole number, so it cannot be exactly {what}: pass counts up to 2**53 (a row "
-                "that stands for many identical groups takes their number as its case weight instead)"
-            )
-        bad = ~_whole(arr)
-        if bad.any():
-            i = int(np.argmax(bad))
-            raise InputError(
-                f"{name} is not a whole number ({arr[i]:g}) at row {i}; with trials= y counts "
-                "successes out of trials, both whole numbers (for fractional outcomes split each "
-                "row into a success row and a failure row with case weights)"
-            )
-    bad = yy > m
-    if bad.any():
-        i = int(np.argmax(bad))
-        raise InputError(
-            f"y ({yy[i]:g} successes) exceeds trials ({m[i]:g}) at row {i}; successes cannot "
-            "outnumber trials: check the two columns"
-        )
-    return yy, m, (0, 1), 1
-
-
-#: The largest count of trials (or successes): 2**53, below which doubles hold every whole number.
-MAX_COUNT = 2.0**53
 
 
 def _check_tol(tol: Any) -> float:
@@ -415,7 +319,7 @@ def logistic(
     names_t = check_names(names, p, found)
     w = as_weights(weights, n)
     off = None if offset is None else as_offset(offset, n)
-    yy, m, classes, positive_class = _response(y, trials, positive, n)
+    yy, m, classes, positive_class = binary_response(y, trials, positive, n)
     intercept, lam, tol, max_iter = check_fit_settings(intercept, l2, tol, max_iter, on_iteration, solver)
     firth = check_flag(firth, "firth")
     profile = check_flag(profile, "profile")
@@ -661,7 +565,7 @@ def _package(problem, loss, res, ev, V, z, Xa, off, names, classes, positive_cla
         profile_level=level if profile else float("nan"),
         grouped=bool(grouped),
         has_offset=off is not None,
-        target=_target_name(y),
+        target=target_name(y),
     )
 
 
@@ -677,7 +581,7 @@ def score_and_information(fit: LogisticFit, X: Any, y: Any, weights: Any, coef: 
         raise InputError("the score test needs one outcome per row; this fit used grouped data (trials=)")
     Xa = fit._design(X)
     n = Xa.shape[0]
-    yy, _, classes, _ = _response(y, None, fit.positive_class, n)
+    yy, _, classes, _ = binary_response(y, None, fit.positive_class, n)
     if tuple(classes) != tuple(fit.classes):
         raise InputError(f"y has the labels {classes} but the fit was made on {fit.classes}; pass the same labels")
     w, scale = scaled_case_weights(as_weights(weights, n))

@@ -42,7 +42,7 @@ from ._files import file_path, read_bounded, write_atomic
 from ._categories import CategoricalField
 from ._pmml_categories import write_inputs, write_terms
 from ._pmml_read import NAMESPACES, parse_pmml
-from ._validate import _short, as_matrix, check_flag, check_names, name_problem, scored, text_problem
+from ._validate import short_repr, as_matrix, check_flag, check_names, name_problem, scored, text_problem
 
 __all__ = ["DeliveredModel", "read_pmml", "write_pmml"]
 
@@ -205,7 +205,7 @@ def write_pmml(fit: Any, path: str | os.PathLike, *, target: str | None = None, 
         target = getattr(fit, "target", None) or "y"
     if not isinstance(target, str):
         raise InputError(f"write_pmml: target must be a str (the name of the response) or None; got "
-                         f"{type(target).__name__} {_short(target)}")
+                         f"{type(target).__name__} {short_repr(target)}")
     check_flag(replace, "replace")
     labels = _writable(fit, target)
     if reference_levels is not None:
@@ -220,7 +220,7 @@ def write_pmml(fit: Any, path: str | os.PathLike, *, target: str | None = None, 
     ET.register_namespace("", NS)
     root = ET.Element(f"{{{NS}}}PMML", {"version": "4.4"})
     header = ET.SubElement(root, f"{{{NS}}}Header", {"description": f"lintools {kind} fit"})
-    from . import __version__
+    from ._version import __version__
 
     ET.SubElement(header, f"{{{NS}}}Application", {"name": "lintools", "version": __version__})
     dd = ET.SubElement(root, f"{{{NS}}}DataDictionary")

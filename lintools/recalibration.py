@@ -12,7 +12,6 @@ from typing import Any
 
 import numpy as np
 
-from ._errors import InputError
 from ._outcomes import binary_outcome, case_weights, finite_scores, sigmoid, vector_in
 from ._temperature import TemperatureMap, temperature_scaling
 from ._scaling import case_weight_scale

@@ -316,7 +316,7 @@ def check_separation(
         When the linear-programming solver cannot decide (the message says why and what to
         do: usually rescale or drop nearly collinear columns).
     """
-    from .logistic import _labels, _response
+    from ._responses import binary_response, read_labels
 
     Xa, found = as_matrix(X, "X")
     n, p = Xa.shape
@@ -324,10 +324,10 @@ def check_separation(
     w = as_weights(weights, n)
     intercept = check_flag(intercept, "intercept")
     if trials is None and positive is None:
-        classes, codes = _labels(y, n)
+        classes, codes = read_labels(y, n)
         if len(classes) > 2:
             return multinomial_separation(Xa, codes, tuple(classes), w, bool(intercept), names_t)
-    yy, m, _, _ = _response(y, trials, positive, n)
+    yy, m, _, _ = binary_response(y, trials, positive, n)
     return separation_from_arrays(Xa, yy, m, w, bool(intercept), names_t)
 
 

@@ -30,7 +30,8 @@ import numpy as np
 
 from ._errors import InputError, LintoolsError, SeparationError
 from ._multinomial import ROWS, MultinomialLoss
-from ._records import SoftmaxFit
+from ._softmax_record import SoftmaxFit
+from ._responses import read_labels, target_name
 from ._scaling import caller_covariance, check_l2_scale, scaled_back, scaled_case_weights
 from ._threads import with_row_threads
 from ._validate import as_matrix, as_offset, as_weights, check_names, is_one_of
@@ -42,9 +43,7 @@ from .logistic import (
     MOVE_SUSPECT,
     SMALL_PROBLEM,
     _constant_columns,
-    _labels,
     _rank_message,
-    _target_name,
     check_fit_settings,
     checked_problem,
     check_parameters_and_rows,
@@ -67,7 +66,7 @@ SEPARATION_REMEDY = "Remedy: l2 > 0 (a ridge penalty on the slopes gives finite 
 SYMMETRIC_REMEDY = "pass l2 > 0, or reference='first' (or a class label) to pin one class at zero"
 
 
-def _reference_index(reference: Any, classes: tuple, lam: float) -> int | None:
+def reference_index(reference: Any, classes: tuple, lam: float) -> int | None:
     if reference is None:
         if lam <= 0:
             raise InputError(
@@ -142,7 +141,7 @@ def _raise_separation(diag) -> None:
     raise SeparationError(f"{diag.describe()}. {SEPARATION_REMEDY}.", diagnosis=diag)
 
 
-def _intercept_subspace(problem: LinearModelProblem) -> np.ndarray:
+def intercept_subspace(problem: LinearModelProblem) -> np.ndarray:
     """Basis ``E`` of the z coordinates whose intercepts sum to zero (orthonormal intercept part)."""
     K, size = problem.K, problem.size
     Q, _ = np.linalg.qr(np.column_stack([np.ones(K), np.eye(K)[:, : K - 1]]))
@@ -231,13 +230,13 @@ def softmax(
     n, p = Xa.shape
     names_t = check_names(names, p, found)
     w = as_weights(weights, n)
-    classes, codes = _labels(y, n)
+    classes, codes = read_labels(y, n)
     K = len(classes)
     if K < 2:
         raise InputError(f"y has only one class ({classes[0]!r}); a softmax model needs at least two: "
                          "check the target column or the rows selected")
     intercept, lam, tol, max_iter = check_fit_settings(intercept, l2, tol, max_iter, on_iteration, solver)
-    ref = _reference_index(reference, tuple(classes), lam)
+    ref = reference_index(reference, tuple(classes), lam)
     # the weights divided by the largest one (see lintools._scaling): outputs are scaled back
     w, scale = scaled_case_weights(w)
     check_l2_scale(lam, scale)
@@ -271,7 +270,7 @@ def softmax(
     target = problem
     start = None
     if ref is None and intercept:
-        E = _intercept_subspace(problem)
+        E = intercept_subspace(problem)
         target = AffineProblem(problem, np.zeros(problem.size), E)
         start = E.T @ problem.start()
     watch = _Watch(loss, off) if lam == 0 else None
@@ -305,7 +304,7 @@ def softmax(
     if res.status == "singular":
         fail(res.message, z)
     try:
-        Vz = _z_covariance(problem, target, z)
+        Vz = z_covariance(problem, target, z)
     except SingularMatrixError:
         fail("the information matrix is singular at the answer", z)
     ev = final_evaluation(problem, res) if target is problem else problem.evaluate(z, fresh=True)
@@ -342,7 +341,7 @@ def _final_check(res, ev, Vz, problem, watch, check, size) -> None:
         )
 
 
-def _z_covariance(problem: LinearModelProblem, target: Any, z: np.ndarray) -> np.ndarray:
+def z_covariance(problem: LinearModelProblem, target: Any, z: np.ndarray) -> np.ndarray:
     """Covariance in z coordinates (through the subspace basis in the symmetric form)."""
     H = problem.fisher_information(z)
     if target is problem:
@@ -356,7 +355,7 @@ def _package(problem, loss, ev, Vz, z, order, ref, classes, names, lam, intercep
     n, p = problem.X.shape
     K, Kf, p1 = len(classes), problem.K, problem.p1
     scale = problem.weight_scale  # the loss holds the caller's weights / scale (lintools._scaling)
-    V = caller_covariance(problem.theta_from_z_matrix(), Vz, scale, _internal_terms(names, classes, order, ref, intercept),
+    V = caller_covariance(problem.theta_from_z_matrix(), Vz, scale, internal_terms(names, classes, order, ref, intercept),
                           np.repeat(np.concatenate([np.full(int(intercept), np.nan), problem.s]), Kf))
     theta = problem.to_original(z).reshape(p1, Kf)  # internal free columns
     se_int = np.sqrt(np.clip(np.diag(V), 0.0, None)).reshape(p1, Kf)
@@ -402,11 +401,11 @@ def _package(problem, loss, ev, Vz, z, order, ref, classes, names, lam, intercep
         null_deviance=null_dev,
         **likelihood_fields(loglik, k_free, n_obs, lr, lr_df),
         has_offset=has_offset,
-        target=_target_name(y),
+        target=target_name(y),
     )
 
 
-def _internal_terms(names: tuple, classes: tuple, order: np.ndarray, ref: int | None, intercept: bool) -> list[str]:
+def internal_terms(names: tuple, classes: tuple, order: np.ndarray, ref: int | None, intercept: bool) -> list[str]:
     """Names of the free parameters in the problem's order (term-major, internal classes)."""
     first = 0 if ref is None else 1
     terms = (("(intercept)",) if intercept else ()) + tuple(names)
@@ -446,7 +445,7 @@ def score_and_information(fit: SoftmaxFit, X: Any, y: Any, weights: Any, coef: A
     first set to their maximum-likelihood values given ``coef``."""
     Xa = fit._design(X)
     n = Xa.shape[0]
-    classes, codes = _labels(y, n)
+    classes, codes = read_labels(y, n)
     if tuple(classes) != tuple(fit.classes):
         raise InputError(f"y has the classes {classes} but the fit was made on {fit.classes}; pass the same labels")
     w, scale = scaled_case_weights(as_weights(weights, n))  # the sums are scaled back below
@@ -470,7 +469,7 @@ def score_and_information(fit: SoftmaxFit, X: Any, y: Any, weights: Any, coef: A
             base: Any = P
             start = None
             if ref is None:
-                E = _intercept_subspace(P)
+                E = intercept_subspace(P)
                 base, start = AffineProblem(P, np.zeros(P.size), E), E.T @ P.start()
             r = newton(base, tol=DEFAULT_TOL, max_iter=100, start=start)
             zb = base.embed(r.z) if base is not P else r.z

@@ -256,7 +256,7 @@ def test_version(capsys):
 NO_OPTION = {"X", "y", "p", "score", "names", "on_iteration", "trials", "offset", "level", "profile_level", "norm",
              "continuous_bins"}
 # (file, parameter) pairs of code the command line never runs.
-NOT_RUN = {("_block_stream.py", "weights"),  # row blocks and dask arrays
+NOT_RUN = {("_block_runner.py", "weights"),  # row blocks and dask arrays
            ("crosscheck.py", "intercept"),  # coefficients given by name: the command line passes an array
            ("losses.py", "model"),  # implied_l2's model is set from the delivered file's kind
            ("_categories.py", "reference_levels"),  # the command line passes the table's own mapping
