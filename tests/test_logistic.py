@@ -213,10 +213,12 @@ def test_labels_of_any_type_and_the_positive_class():
 
 
 def test_score_and_information_feed_the_crosscheck():
+    from lintools.logistic import score_and_information
+
     # source: common practice: at the refit the score is zero and the inverse information
     # is the covariance; a delivered copy of the refit is accepted with Wald statistic 0
     fit = logistic(SX, SY)
-    U, info = fit._score_and_information(SX.to_numpy(), SY, None, fit.coefficients, fit.intercept, False)
+    U, info = score_and_information(fit, SX.to_numpy(), SY, None, fit.coefficients, fit.intercept, False)
     assert np.max(np.abs(U)) < 1e-9
     np.testing.assert_allclose(np.linalg.inv(info), fit.covariance, rtol=1e-9)
     cmp = compare_coefficients(fit, fit.coefficients, fit.intercept, X=SX, y=SY)
