@@ -1,6 +1,6 @@
 """Bad input to logistic(): each case raises InputError naming the argument and the remedy.
 
-Source: common practice (the house rule in RULES.md: name the argument, the position and
+Source: common practice (the README's error contract: name the argument, the position and
 the remedy; bad input never yields a silent number).
 """
 

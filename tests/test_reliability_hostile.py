@@ -876,7 +876,7 @@ def test_solver_status_becomes_a_sentence_with_a_remedy(monkeypatch: pytest.Monk
 
 
 def test_missing_scipy_is_an_input_error_saying_how_to_install(monkeypatch: pytest.MonkeyPatch) -> None:
-    # source: RULES.md ("SciPy ... clear InputError if missing")
+    # source: the README's promise that no foreign exception escapes (common practice: a missing optional package is named with its remedy)
     import sys
 
     monkeypatch.setitem(sys.modules, "scipy", None)

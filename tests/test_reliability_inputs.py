@@ -4,9 +4,9 @@ Every row of ``ROWS`` is one bad input to one public function.  The test asserts
 call raises ``lintools.InputError`` and that the message holds two fragments: one naming
 the argument (or the file) and one of the remedy or rule the caller must follow.
 
-Source of every expectation: common practice, as written in the house rules (RULES.md,
-DESIGN.md: "bad input raises InputError that names the argument, the row or column, and
-what to do") and in each function's docstring.  Data are drawn from a seeded generator.
+Source of every expectation: common practice, as the README states it (section
+"Guarantees": an InputError names the argument, the row or column, and what to do) and
+each function's docstring.  Data are drawn from a seeded generator.
 
 Extending the table: add ``bad("function-what", "function", lambda d: call(...),
 "argument fragment", "remedy fragment")``; ``d`` is a fresh temporary directory for rows
@@ -556,7 +556,7 @@ KNOWN_DEFECTS = [r for r in ROWS if r.xfail is not None]
 
 @pytest.mark.parametrize("row", CONTRACT_ROWS, ids=[r.id for r in CONTRACT_ROWS])
 def test_bad_input_raises_input_error_naming_argument_and_remedy(row: Bad, tmp_path: Path) -> None:
-    # source: common practice (RULES.md / DESIGN.md error contract)
+    # source: common practice (the README's error contract)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         with pytest.raises(InputError) as info:
@@ -572,7 +572,7 @@ def test_known_defects_are_still_there(tmp_path: Path) -> None:
     ``xfail=``).  Not ``pytest.mark.xfail(strict=True)``: tests/conftest.py counts an xfail
     as a skip and fails the whole run, so the strictness is written out here instead.
     """
-    # source: common practice (RULES.md / DESIGN.md error contract)
+    # source: common practice (the README's error contract)
     for row in KNOWN_DEFECTS:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")

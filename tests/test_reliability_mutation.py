@@ -5,10 +5,10 @@ NumPy array, a read-only array, a Fortran-ordered array, a non-contiguous (strid
 nested lists, and pandas Series/DataFrame -- and each argument is compared, after the
 call, with a deep snapshot taken before it: values bit for bit, dtype, shape, strides and
 the writeable flag.  Results must not share memory with the caller's arrays either
-(DESIGN.md: "Results are frozen dataclasses holding NumPy arrays", never views).
+(the README: results are frozen records holding read-only NumPy arrays, never views).
 
 Source of the expectations: common practice and the house rule "Inputs are never
-modified" (RULES.md, DESIGN.md).  Data are drawn from a seeded generator.
+modified" (the README).  Data are drawn from a seeded generator.
 
 Extending the table: add ``Call("id", function, {"name": array, ...}, {other kwargs})``
 to ``CALLS``; array arguments are converted to every form, other arguments passed as is.
@@ -197,7 +197,7 @@ def input_arrays(obj: Any) -> list[np.ndarray]:
 @pytest.mark.parametrize("form", FORMS)
 @pytest.mark.parametrize("call", CALLS, ids=[c.id for c in CALLS])
 def test_inputs_are_never_modified(call: Call, form: str) -> None:
-    # source: common practice (RULES.md: "Inputs are never modified")
+    # source: common practice (the README: "Inputs are never modified")
     args = {k: convert(v, form) for k, v in call.arrays.items()}
     before = {k: snapshot(v) for k, v in args.items()}
     other_before = snapshot(call.other)

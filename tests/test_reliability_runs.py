@@ -6,7 +6,7 @@
 * Determinism: the same call gives bit-identical results run after run, and fits run
   concurrently in 4 threads give bit-identical results to serial runs.
 
-Source of the expectations: common practice, DESIGN.md ("every fit carries a
+Source of the expectations: common practice (the README: "every fit carries a
 convergence record"; "Non-convergence is always visible") and the documented exit codes
 of ``lintools.cli`` (0 success, 1 a check failed or a fit did not converge, 2 bad input).
 Data are drawn from seeded generators.

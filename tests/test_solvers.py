@@ -5,6 +5,7 @@ and multinomial logit (its anes96 data) as oracles for the optima; the strong Wo
 conditions as stated by Nocedal & Wright (2006), eq. 3.7.
 """
 
+from dataclasses import replace
 
 import numpy as np
 import pytest
@@ -14,6 +15,7 @@ from lintools import IterationLimitWarning, logistic
 from lintools.losses import BinomialLoss
 from lintools.solvers import IterationRecord, LinearModelProblem, SOLVERS, solve
 from lintools.solvers.lbfgs import C1, C2, wolfe_search
+from lintools.solvers.settings import EXACT_PATH, fast_paths, using
 
 
 def _fd_check(P, z, h=1e-6):
@@ -207,7 +209,6 @@ def test_multioutput_problem_derivatives_and_all_solvers_match_statsmodels_multi
 def test_newton_sketch_reaches_the_exact_newton_optimum(monkeypatch):
     # source: the exact-Hessian Newton fit on the same data (the sketch only changes the
     # path: Pilanci & Wainwright 2017); the covariance is always the exact one
-    import lintools.solvers.newton as newton_module
     from lintools import softmax
 
     rng = np.random.default_rng(8)
@@ -221,26 +222,14 @@ def test_newton_sketch_reaches_the_exact_newton_optimum(monkeypatch):
                         lambda self, z, E=None: calls.append(1) or real(self, z, E))
     sketched = [logistic(X, yb), softmax(X, yk)]
     assert len(calls) >= 2  # it was used by both fits
-    monkeypatch.setattr(newton_module, "SKETCH_UNTIL", np.inf)
     calls.clear()
-    exact = [logistic(X, yb), softmax(X, yk)]
+    with using(replace(fast_paths(), sketch_until=np.inf)):
+        exact = [logistic(X, yb), softmax(X, yk)]
     assert not calls
     for a, b in zip(sketched, exact):
         assert a.convergence.converged and b.convergence.converged
         np.testing.assert_allclose(a.coefficients, b.coefficients, rtol=1e-9, atol=1e-12)
         np.testing.assert_allclose(a.standard_errors, b.standard_errors, rtol=1e-9, atol=1e-12)
-
-
-def _exact_path(monkeypatch):
-    """Switch off every large-problem shortcut: float32 step Hessians, the subsample warm
-    start, Hessian reuse, the Newton sketch and the carried linear predictor."""
-    import lintools.solvers.problem as problem_module
-    import lintools.solvers.newton as newton_module
-
-    monkeypatch.setattr(problem_module, "SINGLE_MIN_ROWS", np.inf)
-    monkeypatch.setattr(problem_module, "WARM_MIN_ROWS", np.inf)
-    monkeypatch.setattr(newton_module, "SKETCH_UNTIL", np.inf)
-    monkeypatch.setattr(newton_module, "CARRY_ABOVE", np.inf)
 
 
 def _large_data():
@@ -265,9 +254,9 @@ def test_float32_steps_reach_the_float64_optimum_and_covariance(monkeypatch):
                         lambda self, W, single: used.append(single) or real(self, W, single))
     fast = [logistic(X, yb, tol=1e-13), softmax(X, yk, tol=1e-13)]
     assert any(used) and not used[-1]  # float32 steps were taken; the covariance is float64
-    _exact_path(monkeypatch)
     used.clear()
-    exact = [logistic(X, yb, tol=1e-13), softmax(X, yk, tol=1e-13)]
+    with using(EXACT_PATH):
+        exact = [logistic(X, yb, tol=1e-13), softmax(X, yk, tol=1e-13)]
     assert not any(used)
     for a, b in zip(fast, exact):
         assert a.convergence.converged and b.convergence.converged
@@ -281,20 +270,19 @@ def test_float32_steps_are_refused_for_an_ill_conditioned_design(monkeypatch):
     # source: scikit-learn's copy of the Wisconsin breast-cancer data (UCI), whose columns
     # are nearly collinear (radius, perimeter, area); the test of conditioning must send
     # the steps back to float64, and the fit must equal the float64 one
-    import lintools.solvers.problem as problem_module
     from sklearn.datasets import load_breast_cancer
 
     data = load_breast_cancer()
     X, y = data.data, data.target
-    monkeypatch.setattr(problem_module, "SINGLE_MIN_ROWS", 0)
     seen = []
     real = LinearModelProblem.step_hessian
     monkeypatch.setattr(LinearModelProblem, "step_hessian",
                         lambda self, z, E=None: (seen.append(self.single), real(self, z, E), seen.append(self.single))[1])
-    fast = logistic(X, y, l2=1.0, tol=1e-12)
+    with using(replace(fast_paths(), single_min_rows=0)):
+        fast = logistic(X, y, l2=1.0, tol=1e-12)
     assert seen[0] is True and seen[-1] is False  # tried float32, refused it for good
-    _exact_path(monkeypatch)
-    exact = logistic(X, y, l2=1.0, tol=1e-12)
+    with using(EXACT_PATH):
+        exact = logistic(X, y, l2=1.0, tol=1e-12)
     np.testing.assert_allclose(fast.coefficients, exact.coefficients, rtol=1e-9, atol=1e-12)
     np.testing.assert_allclose(fast.covariance, exact.covariance, rtol=1e-11, atol=1e-14)
 
@@ -347,8 +335,8 @@ def test_row_samples_are_runs_that_see_periodic_data_whole(monkeypatch):
     odd = np.arange(SAMPLE_RUN) + 5  # a run that is not aligned: plain indexing
     np.testing.assert_array_equal(take_rows(X, odd), X[odd])
     fast = logistic(X, y, tol=1e-14)
-    _exact_path(monkeypatch)
-    exact = logistic(X, y, tol=1e-14)
+    with using(EXACT_PATH):
+        exact = logistic(X, y, tol=1e-14)
     assert fast.convergence.converged and exact.convergence.converged
     np.testing.assert_allclose(fast.coefficients, exact.coefficients, rtol=1e-10, atol=1e-12)
     np.testing.assert_allclose(fast.standard_errors, exact.standard_errors, rtol=1e-10)
@@ -369,3 +357,37 @@ def test_deferred_objective_equals_the_loss_value():
     want = float(np.sum(np.logaddexp(0.0, eta) - y * eta)) + 0.35 * float(beta @ beta)
     assert abs(ev.value - want) <= 1e-13 * abs(want)
     assert ev.objective == ev.value  # formed once, then kept
+
+
+def test_the_exact_path_takes_no_shortcut(monkeypatch):
+    """Invariant: under EXACT_PATH no shortcut runs (no float32 step Hessian, no warm
+    start, no sketch, no reused Hessian, no carried linear predictor), and every field of
+    FastPaths is set to its off value there (a new shortcut must say how it is off)."""
+    from dataclasses import fields
+
+    off = {"single_min_rows": np.inf, "warm_min_rows": np.inf, "sketch_min_rows": np.inf,
+           "sketch_until": np.inf, "reuse_ratio": 0.0, "carry_above": np.inf}
+    assert {f.name for f in fields(EXACT_PATH)} == set(off)
+    assert {f.name: getattr(EXACT_PATH, f.name) for f in fields(EXACT_PATH)} == off
+    X, yb, _ = _large_data()
+    taken = []
+    for name in ("sketch_hessian", "warm_start"):  # record the calls that returned a shortcut
+        real = getattr(LinearModelProblem, name)
+
+        def spy(self, *a, _n=name, _r=real, **k):
+            out = _r(self, *a, **k)
+            if out is not None:
+                taken.append(_n)
+            return out
+
+        monkeypatch.setattr(LinearModelProblem, name, spy)
+    real_info = LinearModelProblem._information_one
+    monkeypatch.setattr(LinearModelProblem, "_information_one",
+                        lambda self, W, single: (single and taken.append("float32"), real_info(self, W, single))[1])
+    fast = logistic(X, yb, tol=1e-13)
+    assert {"sketch_hessian", "float32", "warm_start"} <= set(taken)  # the default path takes them here
+    taken.clear()
+    with using(EXACT_PATH):
+        exact = logistic(X, yb, tol=1e-13)
+    assert not taken and exact.convergence.converged
+    np.testing.assert_allclose(fast.coefficients, exact.coefficients, rtol=1e-10, atol=1e-13)

@@ -32,15 +32,23 @@ def _openblas() -> bool:
     return "openblas" in str(np.__config__.CONFIG["Build Dependencies"]["blas"]["name"]).lower()
 
 
-def test_blas_control_is_found_for_openblas_builds():
-    # NumPy's wheels ship OpenBLAS: then the row threads must be available; other builds
-    # run on the calling thread (the documented fallback)
+def test_blas_control_is_found_for_openblas_builds(monkeypatch):
+    # NumPy's wheels ship OpenBLAS: then the row threads must be available, take the
+    # number LINTOOLS_THREADS asks for, hold the BLAS at one thread inside the session and
+    # give it back its own count afterwards; other builds run on the calling thread (the
+    # documented fallback)
+    monkeypatch.setenv("LINTOOLS_THREADS", "2")
+    control = _threads._lookup()
+    before = int(control[1]()) if control is not None else None
     with _threads.session() as count:
         if _openblas():
-            assert _threads._lookup() is not None
-            assert count >= 1
+            assert control is not None
+            assert count == 2
+            assert int(control[1]()) == 1
         else:
             assert count == 1
+    if control is not None:
+        assert int(control[1]()) == before
 
 
 def test_threaded_fit_equals_serial_fit_and_statsmodels(monkeypatch):

@@ -13,7 +13,7 @@ invariant to a common factor on the weights.
 
 For large problems (see ``LinearModelProblem.sketch_hessian``) the first iterations use
 a Hessian from a fixed row subsample (Newton sketch, Pilanci & Wainwright 2017) until the
-gradient has fallen by ``SKETCH_UNTIL``, or at once when a sketched step needs halving;
+gradient has fallen by ``FastPaths.sketch_until``, or at once when a sketched step needs halving;
 the final iterations are exact Newton steps, so convergence stays quadratic at the end.
 
 Large problems (``LinearModelProblem`` with many rows) take three more shortcuts, none of
@@ -25,7 +25,7 @@ gradient at a freshly formed linear predictor:
 * the Hessians of the steps are formed in float32 when a test of conditioning allows
   (``step_hessian``); the covariance is always formed in float64;
 * a factorised Hessian is kept for the next step while a full step with it cut the
-  gradient by ``REUSE_RATIO`` (a chord step), and the line search's ``eta + t X d`` is
+  gradient by ``FastPaths.reuse_ratio`` (a chord step), and the line search's ``eta + t X d`` is
   carried to the new point instead of a new product with X; the answer's evaluation is
   formed afresh (``Evaluation.fresh``) and rechecked before it is reported.
 
@@ -42,6 +42,7 @@ from typing import Any, Callable
 
 import numpy as np
 
+from .settings import fast_paths
 from .base import (Evaluation, IterationRecord, SingularMatrixError, SolverResult, cholesky, finish, report_step,
                    solve_factored, stalled_message, stop_before_step)
 
@@ -53,18 +54,8 @@ MAX_HALVINGS = 60
 STALL_LIMIT = 3
 #: A fall of the objective below this times its size counts as rounding noise.
 ROUNDING = 1e3 * float(np.finfo(float).eps)
-#: Large problems use a row-subsample Hessian (Newton sketch) until the max-abs gradient
-#: is below this fraction of its starting value; exact Hessians finish the job.
-SKETCH_UNTIL = 1e-3
-#: Problems that allow it (``problem.reuse_hessian``) keep the factorised Hessian for the
-#: next step while a full step with it cut the max-abs gradient by at least this factor
-#: (a chord step: it costs no new Hessian, and its contraction is the relative change of
-#: the Hessian, tiny near the optimum); a step that needs halving forms a fresh one.
-REUSE_RATIO = 1e-2
-#: The line search's linear predictor ``eta + t X d`` is carried to the new point (saving
-#: a pass over X) while the gradient is above this multiple of tol; closer in, the next
-#: point is likely the answer, whose evaluation must be fresh, so it is formed afresh.
-CARRY_ABOVE = 1e4
+#: (The shortcuts' thresholds - the Newton sketch, Hessian reuse, the carried linear
+#: predictor - are the fields of :class:`lintools.solvers.settings.FastPaths`.)
 
 
 def newton(
@@ -86,6 +77,7 @@ def newton(
     ev = problem.evaluate(z)
     it = stall = 0
     g_start = ev.gradient_norm
+    paths = fast_paths()
     sketching = hasattr(problem, "sketch_hessian")
     step_hessian = getattr(problem, "step_hessian", problem.hessian)
     reuse_allowed = bool(getattr(problem, "reuse_hessian", False))
@@ -101,7 +93,7 @@ def newton(
         reused = factors is not None
         sketched = False
         try:
-            if factors is None and sketching and gnorm > SKETCH_UNTIL * g_start:
+            if factors is None and sketching and gnorm > paths.sketch_until * g_start:
                 try:
                     H = problem.sketch_hessian(z)
                     factors = None if H is None else cholesky(H)
@@ -134,15 +126,15 @@ def newton(
         try:
             if accepted:
                 adopt = getattr(line, "adopt", None)
-                if adopt is not None and gnorm > CARRY_ABOVE * tol:
+                if adopt is not None and gnorm > paths.carry_above * tol:
                     adopt(t, z_new)  # the line search's eta(z + t d): no new pass over X
                 ev_new = problem.evaluate(z_new)
             else:
                 ev_new = ev
         except SingularMatrixError as exc:
             return finish(name, z, ev, it, "singular", f"{name}: {exc}", problem)
-        # a Hessian that made the gradient fall by REUSE_RATIO with a full step may serve again
-        if not (reuse_allowed and accepted and t == 1.0 and ev_new.gradient_norm <= REUSE_RATIO * gnorm):
+        # a Hessian that made the gradient fall by reuse_ratio with a full step may serve again
+        if not (reuse_allowed and accepted and t == 1.0 and ev_new.gradient_norm <= paths.reuse_ratio * gnorm):
             factors = None
         if accepted:
             it += 1

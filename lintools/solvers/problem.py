@@ -42,6 +42,7 @@ from ._kernels import column_moments, uncentred_ok, weighted_gram
 from ._kernels_multi import PairWeights, multi_output_information
 from ._samples import sample_rows, take_rows
 from ._shifted import ShiftedColumns
+from .settings import fast_paths
 from .base import EPS, Evaluation, ExtremeSpread, NonFiniteDesign, SingularMatrixError, cholesky
 
 __all__ = ["LinearModelProblem"]
@@ -51,20 +52,19 @@ _BLOCK_BYTES = 1 << 25
 _CACHE_BYTES = 1 << 21
 #: Row blocks of the products X' r.
 _PRODUCT_BYTES = 100 * (1 << 16)
-#: Newton sketch: problems with at least this many rows may use a row-subsample Hessian,
-#: of max(SKETCH_PER_PARAMETER * parameters, n / SKETCH_FRACTION) rows (``sample_rows``).
-SKETCH_MIN_ROWS = 50_000
+#: Newton sketch: problems with at least ``FastPaths.sketch_min_rows`` rows may use a
+#: row-subsample Hessian of max(SKETCH_PER_PARAMETER * parameters, n / SKETCH_FRACTION)
+#: rows (``sample_rows``).
 SKETCH_PER_PARAMETER = 40
 SKETCH_FRACTION = 8
 SKETCH_SEED = 20170101
-#: Problems with at least this many rows (and no Jeffreys penalty) form the Hessians
-#: of their Newton *steps* in float32 when the design is well enough conditioned for it
-#: (see ``LinearModelProblem.step_hessian``); the covariance always uses float64.
-SINGLE_MIN_ROWS = 50_000
-#: Large problems start Newton from the fit on a fixed row subsample of
-#: max(WARM_PER_PARAMETER * parameters, n / WARM_FRACTION) rows (``sample_rows``),
-#: solved until its max-abs gradient has fallen by WARM_UNTIL.
-WARM_MIN_ROWS = 50_000
+#: Problems with at least ``FastPaths.single_min_rows`` rows (and no Jeffreys penalty)
+#: form the Hessians of their Newton *steps* in float32 when the design is well enough
+#: conditioned for it (see ``LinearModelProblem.step_hessian``); the covariance always
+#: uses float64.  Problems with at least ``FastPaths.warm_min_rows`` rows start Newton
+#: from the fit on a fixed row subsample of max(WARM_PER_PARAMETER * parameters,
+#: n / WARM_FRACTION) rows (``sample_rows``), solved until its max-abs gradient has
+#: fallen by WARM_UNTIL.
 WARM_PER_PARAMETER = 40
 WARM_FRACTION = 16
 #: its own seed: a warm-start sample inside the sketch's would correlate the start's error
@@ -232,7 +232,7 @@ class LinearModelProblem:
         self.single = False
         #: bound on |x_ij - c_j| / s_j over rows of positive weight: sqrt(total / min weight)
         self.row_bound = math.inf
-        if not self.jeffreys and n >= SINGLE_MIN_ROWS and p:
+        if not self.jeffreys and n >= fast_paths().single_min_rows and p:
             vmin = float(v.min()) if n else 0.0
             self.single = bool(vmin > 0 and total / vmin < 1e30)
             if self.single:
@@ -312,7 +312,7 @@ class LinearModelProblem:
     @property
     def reuse_hessian(self) -> bool:
         """Whether Newton may keep a Hessian for the next step (large problems only)."""
-        return self.n >= SINGLE_MIN_ROWS and not self.jeffreys
+        return self.n >= fast_paths().single_min_rows and not self.jeffreys
 
     def _carry(self, z: np.ndarray, eta: Any) -> None:
         """Remember ``eta`` (from a line search) as the linear predictor at ``z``."""
@@ -343,13 +343,13 @@ class LinearModelProblem:
     def warm_start(self) -> np.ndarray | None:
         """A starting ``z`` for Newton: the optimum on a fixed row subsample (or None).
 
-        Only for large problems (``n >= WARM_MIN_ROWS``, slopes present, no Jeffreys
+        Only for large problems (``n >= FastPaths.warm_min_rows``, slopes present, no Jeffreys
         penalty, a loss with ``subset``): the early, damped Newton iterations then run on
         ``1/WARM_FRACTION`` of the rows, and the full-data iterations start within the
         sampling error of the optimum.  The answer is unchanged (the stopping rule is on
         the full gradient); a subsample fit that fails (e.g. separated) gives None.
         """
-        if (not self._warm or self.jeffreys or self.n < WARM_MIN_ROWS or self.p == 0
+        if (not self._warm or self.jeffreys or self.n < fast_paths().warm_min_rows or self.p == 0
                 or not hasattr(self.loss, "subset")):
             return None
         m = max(WARM_PER_PARAMETER * self.size, self.n // WARM_FRACTION)
@@ -758,12 +758,12 @@ class LinearModelProblem:
         sample of the rows (``sample_rows``: random runs of consecutive rows, a fixed
         seed, copied once, so fits are reproducible), their curvature scaled by the ratio
         of total to sampled row weight.  Cost: ``m / n`` of :meth:`hessian`.
-        Returns None for problems too small to gain from it (``n < SKETCH_MIN_ROWS``, or no
+        Returns None for problems too small to gain from it (``n < FastPaths.sketch_min_rows``, or no
         slopes: an intercept-only model, such as the null model of a fit with an offset) and
         for the Jeffreys penalty.  The solver uses it only while far from the optimum; the
         last iterations and the covariance use the exact Hessian.
         """
-        if self.jeffreys or self.n < SKETCH_MIN_ROWS or self.p == 0:
+        if self.jeffreys or self.n < fast_paths().sketch_min_rows or self.p == 0:
             return None
         if self._sketch is not None and self.K > 1 and self._sketch[1].rows32 and not self.single:
             self._sketch = None  # float32 rows were kept for float32 products: keep float64 ones now
