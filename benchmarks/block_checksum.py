@@ -8,7 +8,7 @@ Usage::
 Every pass of :func:`lintools.least_squares_blocks` and :func:`lintools.logistic_blocks`
 takes a checksum of each block (``lintools._block_stream.block_print``: the sum of X,
 which is the finiteness check as well, the sum of every seventh value, the first and last
-rows, sums of y and of the weights; on the first pass also the sum of ``|X|``) and
+rows, sums of y and of the weights) and
 compares it with the first pass.  This script fits the same in-memory blocks (memory-resident rows: the pass is
 compute-bound, the worst case for the relative cost of the checksum; a memory-mapped file
 makes a pass slower and the share smaller) with the checksum on and with it replaced by

@@ -17,9 +17,10 @@ of y and the weights, and each label's first row and total weight; see
 later pass (drawn afresh, shuffled, or with noise added) is refused with an
 :class:`lintools.InputError` naming the block, instead of giving a fit of no data set.
 Measured by ``benchmarks/block_checksum.py`` (2 cores, one BLAS thread), the checksums
-cost 0.8-2.0% of a later pass and 2.7-4.5% of the first (which also sums ``|X|``).
-Data whose magnitudes sum beyond ``2**500`` over the blocks (a column near 1e300, weights
-of 1e308) are refused too: the fits' sums of weighted squares would overflow.
+cost 0.8-2.0% of a later pass.  Blocks whose sums overflow float64 are summed again at
+a power-of-two scale, so finite extreme values are not mistaken for non-finite ones; a
+column whose largest magnitude times the total weight would overflow the fits' sums is
+refused by name, as in the in-memory fits.
 
 Least squares (:func:`least_squares_blocks`) minimises
 
