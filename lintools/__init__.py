@@ -34,6 +34,9 @@ from .calibration_checks import (
 )
 from .crosscheck import CoefficientComparison, ImpliedPenalty, compare_coefficients, implied_l2
 from .discrimination import ROCArea, ROCAreaDifference, roc_auc, roc_auc_difference
+from .kolmogorov import KolmogorovSmirnov, kolmogorov_smirnov
+from .gains import GainsTable, gains
+from .stability import PopulationStability, population_stability
 from .recalibration import (
     IsotonicMap,
     PlattMap,
@@ -109,6 +112,12 @@ __all__ = [
     "ROCAreaDifference",
     "roc_auc",
     "roc_auc_difference",
+    "KolmogorovSmirnov",
+    "kolmogorov_smirnov",
+    "GainsTable",
+    "gains",
+    "PopulationStability",
+    "population_stability",
     "IsotonicMap",
     "PlattMap",
     "TemperatureMap",
