@@ -36,7 +36,9 @@ from .crosscheck import CoefficientComparison, ImpliedPenalty, compare_coefficie
 from .discrimination import ROCArea, ROCAreaDifference, roc_auc, roc_auc_difference
 from .kolmogorov import KolmogorovSmirnov, kolmogorov_smirnov
 from .gains import GainsTable, gains
+from .band_tests import BandTests, band_tests
 from .stability import PopulationStability, population_stability
+from .collinearity import Collinearity, collinearity
 from .recalibration import (
     IsotonicMap,
     PlattMap,
@@ -116,8 +118,12 @@ __all__ = [
     "kolmogorov_smirnov",
     "GainsTable",
     "gains",
+    "BandTests",
+    "band_tests",
     "PopulationStability",
     "population_stability",
+    "Collinearity",
+    "collinearity",
     "IsotonicMap",
     "PlattMap",
     "TemperatureMap",
