@@ -188,6 +188,13 @@ def _check_share(value: Any) -> float:
     return float(value)
 
 
+def _bin_sums(index: np.ndarray, u: np.ndarray, m: int) -> np.ndarray:
+    """Case weight per bin, summed in the order of (bin, weight): the same rows in any
+    order give the same sums bit for bit (so a sample against itself gives exactly 0)."""
+    order = np.lexsort((u, index))
+    return np.bincount(index[order], weights=u[order], minlength=m)
+
+
 def population_stability(
     expected: Any,
     actual: Any,
@@ -297,7 +304,7 @@ def population_stability(
         ie = np.array([lookup[c] for c in ke], dtype=np.intp)[ce]
         ia = np.array([lookup[c] for c in ka], dtype=np.intp)[ca]
         cuts, binning, m = np.empty(0), "category", len(categories)
-    we, wa = np.bincount(ie, weights=u, minlength=m), np.bincount(ia, weights=t, minlength=m)
+    we, wa = _bin_sums(ie, u, m), _bin_sums(ia, t, m)
     se, sa = we / we.sum(), wa / wa.sum()
     e_empty, a_empty = (we == 0) & (wa > 0), (wa == 0) & (we > 0)
     used_e, used_a = np.where(e_empty, share, se), np.where(a_empty, share, sa)

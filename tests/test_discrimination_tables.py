@@ -194,3 +194,20 @@ def test_accuracy_ratio_against_scikit_learn(seed):
         assert r.accuracy_ratio_lower <= r.accuracy_ratio <= r.accuracy_ratio_upper
         assert r.accuracy_ratio_standard_error == 2 * r.standard_error
     assert "accuracy ratio (Gini, 2 x area - 1)" in r.report()
+
+
+@settings(max_examples=30, deadline=None)
+@given(st.integers(0, 2**31 - 1))
+def test_ranking_figures_are_invariant_to_a_monotone_transform_of_the_score(seed):
+    """Invariant: the Kolmogorov-Smirnov distance and p-value, the gains table's counts,
+    captured shares and lifts, and the ROC area depend on the order of the scores only, so
+    an increasing transform (here the logit, times 3, plus 7) changes none of them."""
+    y, p = scores(seed, 150, ties=True)
+    p = np.clip(p, 0.01, 0.99)
+    t = 3.0 * np.log(p / (1.0 - p)) + 7.0
+    a, b = lt.kolmogorov_smirnov(y, p), lt.kolmogorov_smirnov(y, t)
+    assert (a.statistic, a.p_value, a.method) == (b.statistic, b.p_value, b.method)
+    ga, gb = lt.gains(y, p, bands=5), lt.gains(y, t, bands=5)
+    for name in ("rows", "positives", "captured", "lift", "cumulative_lift"):
+        assert np.array_equal(getattr(ga, name), getattr(gb, name)), name
+    assert lt.roc_auc(y, p).area == lt.roc_auc(y, t).area

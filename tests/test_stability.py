@@ -168,3 +168,15 @@ def test_bad_input_is_refused_by_name(call, words):
     with pytest.raises(InputError, match=None) as info:
         call()
     assert words in str(info.value)
+
+
+@settings(max_examples=40, deadline=None)
+@given(samples, st.integers(1, 12), st.integers(0, 2**31 - 1))
+def test_a_sample_against_itself_has_index_zero(e, bins, seed):
+    """Invariant: the index of a sample against itself (any row order, the same weights)
+    is exactly 0, and so is every contribution."""
+    e = np.array(e)
+    w = np.random.default_rng(seed).uniform(0.5, 2.0, size=e.size)
+    order = np.random.default_rng(seed + 1).permutation(e.size)
+    r = lt.population_stability(e, e[order], bins=bins, weights=w, actual_weights=w[order])
+    assert r.index == 0.0 and not r.contribution.any() and r.reading == "stable"
