@@ -7,6 +7,7 @@ fit          fit a model to a CSV file, print the report, optionally write the m
 check        check a delivered model file (lintools JSON or PMML) against a refit on a CSV file
 calibration  calibration report of a probability column; a reliability diagram with ``--plot``
 folds        write a CSV file with a stratified fold-id column added
+stability    population stability index of a recent CSV file against a development one
 
 Exit codes: 0 success, 1 a check failed (or a fit did not converge), 2 bad input.
 Standard output carries only the requested output: the report, or with ``--json`` one
@@ -22,7 +23,7 @@ An option that does not apply to the chosen model is refused.  Messages from the
 name the options, not its Python arguments (:mod:`lintools._cli_console`).
 
 The subcommands live in ``_cli_check.py``, ``_cli_calibration.py``, ``_cli_demo.py`` and
-``_cli_folds.py``; shared pieces in ``_cli_common.py`` and ``_cli_console.py``.
+``_cli_folds.py``, ``_cli_stability.py``; shared pieces in ``_cli_common.py`` and ``_cli_console.py``.
 """
 
 from __future__ import annotations
@@ -44,6 +45,7 @@ from ._cli_common import (
 from ._cli_console import CAUTION, Console, QuietPipe, report_text, translate, warnings_to_stderr
 from ._cli_demo import add_demo_parser
 from ._cli_folds import add_folds_parser
+from ._cli_stability import add_stability_parser
 from ._cli_table import add_table_options, table_options
 from ._errors import InputError, IterationLimitWarning, LintoolsError
 
@@ -180,6 +182,7 @@ def build_parser() -> argparse.ArgumentParser:
     add_check_parser(sub, common)
     add_calibration_parser(sub, common)
     add_folds_parser(sub, common)
+    add_stability_parser(sub, common)
     return parser
 
 
