@@ -119,12 +119,16 @@ def _cmd_fit(args: argparse.Namespace) -> int:
     if args.save_pmml:
         write_pmml(fit, args.save_pmml, replace=args.replace)
         console.note(f"model written to {args.save_pmml}")
+    shared = _collinearity(table, args) if args.collinearity else None
     seen = args.warnings_seen
     if args.json:
         emit_json({"fit": fit.to_dict(), "warnings": [text for _, text in seen],
-                   "dropped_rows": table.dropped, "reference_levels": table.reference_levels})
+                   "dropped_rows": table.dropped, "reference_levels": table.reference_levels,
+                   **({"collinearity": shared} if args.collinearity else {})})
     else:
         print(report_text(fit))
+        if args.collinearity:
+            print(shared if isinstance(shared, str) else shared.report())
         if table.reference_levels:
             refs = ", ".join(f"{k}={v}" for k, v in table.reference_levels.items())
             print(f"reference levels of text columns: {refs}")
@@ -133,6 +137,16 @@ def _cmd_fit(args: argparse.Namespace) -> int:
         print("lintools: the fit did not converge; its numbers are not an optimum", file=sys.stderr)
         return 1
     return 0
+
+
+def _collinearity(table: Any, args: argparse.Namespace) -> Any:
+    """``fit --collinearity``: the design's collinearity record, or why it is not defined."""
+    from .collinearity import collinearity
+
+    try:
+        return collinearity(table.X, weights=table.weights, names=table.names, intercept=not args.no_intercept)
+    except InputError as exc:
+        return f"collinearity not computed: {exc}"
 
 
 def _version() -> str:
@@ -176,6 +190,8 @@ def build_parser() -> argparse.ArgumentParser:
     fit.add_argument("--save", metavar="JSON", help="write the fitted model to this JSON model file")
     fit.add_argument("--save-pmml", metavar="PMML", help="write the fitted model to this PMML 4.4 file")
     fit.add_argument("--replace", action="store_true", help="replace existing --save and --save-pmml files")
+    fit.add_argument("--collinearity", action="store_true",
+                     help="also print variance inflation factors and condition indices of the design")
     common(fit)
     fit.set_defaults(run=_cmd_fit)
 

@@ -118,3 +118,27 @@ def test_bad_input_is_refused_by_name(X, words):
     with pytest.raises(InputError) as info:
         lt.collinearity(X)
     assert words in str(info.value)
+
+
+def test_fit_command_prints_the_collinearity_of_its_design(tmp_path):
+    """``lintools fit --collinearity``: the JSON figures against statsmodels on the same columns."""
+    import json
+    import subprocess
+    import sys
+
+    X = design(5, 120)
+    y = X @ [1.0, -1.0, 0.5, 2.0] + np.random.default_rng(5).normal(size=120)
+    path = tmp_path / "d.csv"
+    path.write_text("a,b,ab,u,y\n" + "".join(",".join(repr(float(v)) for v in row) + "\n"
+                                            for row in np.column_stack([X, y])))
+    out = subprocess.run([sys.executable, "-m", "lintools", "fit", str(path), "--target", "y", "--collinearity",
+                          "--json"], capture_output=True, text=True, timeout=120)
+    assert out.returncode == 0, out.stderr
+    got = json.loads(out.stdout)["collinearity"]
+    exog = np.column_stack([np.ones(120), X])
+    # source: statsmodels variance_inflation_factor with a constant column
+    assert np.allclose(got["variance_inflation"], [variance_inflation_factor(exog, j) for j in range(1, 5)], rtol=1e-10)
+    assert got["terms"] == ["(intercept)", "a", "b", "ab", "u"]
+    text = subprocess.run([sys.executable, "-m", "lintools", "fit", str(path), "--target", "y", "--collinearity"],
+                          capture_output=True, text=True, timeout=120)
+    assert "near dependency at index" in text.stdout and "Variance inflation factors" in text.stdout
