@@ -122,3 +122,28 @@ def test_bad_input_is_refused_by_name(call, words):
     with pytest.raises(InputError) as info:
         call()
     assert words in str(info.value)
+
+
+def test_calibration_command_back_tests_the_grades_of_a_column(tmp_path):
+    """``lintools calibration --bands COLUMN`` and ``--bands N``: the JSON figures against
+    scipy.stats.binomtest on the columns as written."""
+    import subprocess
+    import sys
+
+    y, p = sample(7, 1500, drift=0.2)
+    grade = np.where(p < 0.05, "A", np.where(p < 0.15, "B", "C"))
+    path = tmp_path / "pd.csv"
+    path.write_text("y,p,grade\n" + "".join(f"{int(a)},{float(b)!r},{c}\n" for a, b, c in zip(y, p, grade)))
+    out = subprocess.run([sys.executable, "-m", "lintools", "calibration", str(path), "--label", "y", "--probability",
+                          "p", "--bands", "grade", "--json"], capture_output=True, text=True, timeout=120)
+    assert out.returncode == 0, out.stderr
+    got = json.loads(out.stdout)["band_tests"]
+    assert got["bands"] == ["A", "B", "C"]
+    for b, g in enumerate("ABC"):
+        rows = grade == g
+        # source: scipy.stats.binomtest (two-sided) with the grade's rows, positives and mean probability
+        ref = scipy.stats.binomtest(int(y[rows].sum()), int(rows.sum()), float(p[rows].mean())).pvalue
+        assert math.isclose(got["binomial_p_value"][b], ref, rel_tol=1e-9)
+    text = subprocess.run([sys.executable, "-m", "lintools", "calibration", str(path), "--label", "y", "--probability",
+                           "p", "--bands", "4"], capture_output=True, text=True, timeout=120)
+    assert text.returncode == 0 and "Band tests (two-sided" in text.stdout and "Holm" in text.stdout
