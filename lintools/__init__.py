@@ -35,6 +35,11 @@ from .calibration_checks import (
 )
 from .crosscheck import CoefficientComparison, ImpliedPenalty, compare_coefficients, implied_l2
 from .discrimination import ROCArea, ROCAreaDifference, roc_auc, roc_auc_difference
+from .kolmogorov import KolmogorovSmirnov, kolmogorov_smirnov
+from .gains import GainsTable, gains
+from .band_tests import BandTests, band_tests
+from .stability import PopulationStability, population_stability
+from .collinearity import Collinearity, collinearity
 from .recalibration import (
     IsotonicMap,
     PlattMap,
@@ -109,6 +114,16 @@ __all__ = [
     "ROCAreaDifference",
     "roc_auc",
     "roc_auc_difference",
+    "KolmogorovSmirnov",
+    "kolmogorov_smirnov",
+    "GainsTable",
+    "gains",
+    "BandTests",
+    "band_tests",
+    "PopulationStability",
+    "population_stability",
+    "Collinearity",
+    "collinearity",
     "IsotonicMap",
     "PlattMap",
     "TemperatureMap",

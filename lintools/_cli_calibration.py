@@ -167,8 +167,10 @@ def run_calibration(args: argparse.Namespace) -> int:
         raise InputError("--label and --probability name the same column; pass two columns")
     # the probability column is read as a feature and the weights as weights: the reader's
     # strict number rules (and --decimal, --missing-values) hold for them as for a fit
+    band_column = None if args.bands is None or args.bands.isdigit() else args.bands
     table = read_table(args.csv, target=args.label, features=[args.probability], weights=args.weights,
-                       drop_missing=args.drop_missing, **table_options(args, "categorical"))
+                       extra=[band_column] if band_column else [], drop_missing=args.drop_missing,
+                       **table_options(args, "categorical"))
     if table.names != (args.probability,):
         raise InputError(f"{args.csv!r}: the probability column '{args.probability}' holds text, not numbers; "
                          "pass the column of predicted probabilities with --probability")
@@ -178,6 +180,15 @@ def run_calibration(args: argparse.Namespace) -> int:
     positive = match_label(args.positive, sorted(set(y), key=str), "--positive") if args.positive else None
     rep = calibration_report(y, p, positive=positive, bins=args.bins, strategy=args.strategy,
                              groups=args.groups, weights=w)
+    grades = None
+    if args.bands is not None:
+        from .band_tests import band_tests
+
+        count = int(args.bands) if band_column is None else 0
+        if band_column is None and count < 1:
+            raise InputError("--bands 0: pass a number of quantile bands of 1 or more, or a column of grades")
+        grades = band_tests(y, p, list(table.extra[band_column]) if band_column else count, weights=w,
+                            positive=positive)
     console = args.console
     how = "chosen with --positive" if positive is not None else "the larger label; choose with --positive"
     console.note(f"taking '{args.probability}' as the probability of class '{rep.positive!s}' ({how})")
@@ -192,7 +203,7 @@ def run_calibration(args: argparse.Namespace) -> int:
     if args.json:
         doc = rep.to_json()
         doc.update({"data": args.csv, "label": args.label, "probability": args.probability,
-                    "dropped_rows": table.dropped, "plot": args.plot,
+                    "dropped_rows": table.dropped, "plot": args.plot, "band_tests": grades,
                     "warnings": [text for _, text in args.warnings_seen] + ([swapped] if swapped else [])})
         emit_json(doc)
     else:
@@ -200,6 +211,8 @@ def run_calibration(args: argparse.Namespace) -> int:
               f"in {args.csv}: {rep.rows} rows" + (f", {table.dropped} dropped for missing values" if table.dropped else "")
               + "\n")
         print(rep.text())
+        if grades is not None:
+            print(grades.report())
         console.caution()
     return 0
 
@@ -224,6 +237,9 @@ def add_calibration_parser(sub: Any, common: Any) -> None:
     p.add_argument("--strategy", choices=["width", "count"], default="width",
                    help="bins of equal width (default) or of equal numbers of rows")
     p.add_argument("--groups", type=whole(3), default=10, help="risk groups of the Hosmer-Lemeshow test (default 10)")
+    p.add_argument("--bands", metavar="N|COLUMN",
+                   help="also back-test the probabilities band by band (exact binomial and Jeffreys tests): N "
+                        "quantile bands of the probabilities, or a column of rating grades")
     p.add_argument("--plot", metavar="PNG", help=f"write a reliability diagram to this PNG file ({PLOT_EXTRA})")
     p.add_argument("--replace", action="store_true", help="replace an existing --plot file")
     p.add_argument("--drop-missing", action="store_true", help="drop lines with missing values instead of stopping")

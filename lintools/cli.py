@@ -8,6 +8,7 @@ check        check a delivered model file (lintools JSON or PMML) against a refi
 calibration  calibration report of a probability column; a reliability diagram with ``--plot``
 folds        write a CSV file with a stratified fold-id column added
 score        apply a model file (lintools JSON or PMML) to a CSV file and write the scores
+stability    population stability index of a recent CSV file against a development one
 
 Exit codes: 0 success, 1 a check failed (or a fit did not converge), 2 bad input.
 Standard output carries only the requested output: the report, or with ``--json`` one
@@ -23,8 +24,8 @@ An option that does not apply to the chosen model is refused.  Messages from the
 name the options, not its Python arguments (:mod:`lintools._cli_console`).
 
 The subcommands live in ``_cli_check.py``, ``_cli_calibration.py``, ``_cli_demo.py``,
-``_cli_folds.py`` and ``_cli_score.py``; shared pieces in ``_cli_common.py`` and
-``_cli_console.py``.
+``_cli_folds.py``, ``_cli_score.py`` and ``_cli_stability.py``; shared pieces in
+``_cli_common.py`` and ``_cli_console.py``.
 """
 
 from __future__ import annotations
@@ -47,6 +48,7 @@ from ._cli_console import CAUTION, Console, QuietPipe, report_text, translate, w
 from ._cli_demo import add_demo_parser
 from ._cli_folds import add_folds_parser
 from ._cli_score import add_score_parser
+from ._cli_stability import add_stability_parser
 from ._cli_table import add_table_options, table_options
 from ._errors import InputError, IterationLimitWarning, LintoolsError
 
@@ -124,12 +126,16 @@ def _cmd_fit(args: argparse.Namespace) -> int:
     if args.save_pmml:
         write_pmml(fit, args.save_pmml, replace=args.replace)
         console.note(f"model written to {args.save_pmml}")
+    shared = _collinearity(table, args) if args.collinearity else None
     seen = args.warnings_seen
     if args.json:
         emit_json({"fit": fit.to_dict(), "warnings": [text for _, text in seen],
-                   "dropped_rows": table.dropped, "reference_levels": table.reference_levels})
+                   "dropped_rows": table.dropped, "reference_levels": table.reference_levels,
+                   **({"collinearity": shared} if args.collinearity else {})})
     else:
         print(report_text(fit))
+        if args.collinearity:
+            print(shared if isinstance(shared, str) else shared.report())
         if table.reference_levels:
             refs = ", ".join(f"{k}={v}" for k, v in table.reference_levels.items())
             print(f"reference levels of text columns: {refs}")
@@ -138,6 +144,16 @@ def _cmd_fit(args: argparse.Namespace) -> int:
         print("lintools: the fit did not converge; its numbers are not an optimum", file=sys.stderr)
         return 1
     return 0
+
+
+def _collinearity(table: Any, args: argparse.Namespace) -> Any:
+    """``fit --collinearity``: the design's collinearity record, or why it is not defined."""
+    from .collinearity import collinearity
+
+    try:
+        return collinearity(table.X, weights=table.weights, names=table.names, intercept=not args.no_intercept)
+    except InputError as exc:
+        return f"collinearity not computed: {exc}"
 
 
 def _version() -> str:
@@ -181,6 +197,8 @@ def build_parser() -> argparse.ArgumentParser:
     fit.add_argument("--save", metavar="JSON", help="write the fitted model to this JSON model file")
     fit.add_argument("--save-pmml", metavar="PMML", help="write the fitted model to this PMML 4.4 file")
     fit.add_argument("--replace", action="store_true", help="replace existing --save and --save-pmml files")
+    fit.add_argument("--collinearity", action="store_true",
+                     help="also print variance inflation factors and condition indices of the design")
     common(fit)
     fit.set_defaults(run=_cmd_fit)
 
@@ -188,6 +206,7 @@ def build_parser() -> argparse.ArgumentParser:
     add_calibration_parser(sub, common)
     add_folds_parser(sub, common)
     add_score_parser(sub, common)
+    add_stability_parser(sub, common)
     return parser
 
 

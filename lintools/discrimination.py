@@ -8,7 +8,7 @@ positives-by-negatives matrix is ever formed.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
@@ -38,6 +38,13 @@ class ROCArea(ReadOnlyArrays):
         ``"logit"`` or ``"plain"``.
     positives, negatives : float
         Total case weight of each class (the counts without weights).
+    accuracy_ratio : float
+        The accuracy ratio (Gini coefficient of the ROC curve), ``2 * area - 1``
+        (Engelmann, Hayden & Tasche 2003): 0 for a score that does not rank, 1 for one
+        that ranks every positive above every negative.
+    accuracy_ratio_standard_error, accuracy_ratio_lower, accuracy_ratio_upper : float
+        ``2 * standard_error`` and the interval ``2 * [lower, upper] - 1``, the image of
+        the area's interval (the map is increasing, so its level is the same).
     """
 
     area: float
@@ -48,15 +55,29 @@ class ROCArea(ReadOnlyArrays):
     interval: str
     positives: float
     negatives: float
+    accuracy_ratio: float = field(init=False)
+    accuracy_ratio_standard_error: float = field(init=False)
+    accuracy_ratio_lower: float = field(init=False)
+    accuracy_ratio_upper: float = field(init=False)
+
+    def __post_init__(self) -> None:
+        for name, value in (("accuracy_ratio", self.area), ("accuracy_ratio_lower", self.lower),
+                            ("accuracy_ratio_upper", self.upper)):
+            object.__setattr__(self, name, 2.0 * value - 1.0)
+        object.__setattr__(self, "accuracy_ratio_standard_error", 2.0 * self.standard_error)
+        super().__post_init__()
 
     def __float__(self) -> float:
         return float(self.area)
 
     def report(self) -> str:
-        """Return the area, its standard error and interval as one line of text."""
+        """Return the area, its standard error and interval, and the accuracy ratio, as text."""
         return (f"ROC area {self.area:.6f}  std error {self.standard_error:.6f}  "
                 f"{100 * self.level:g}% interval ({self.interval}) [{self.lower:.6f}, {self.upper:.6f}]  "
-                f"positives {self.positives:g}  negatives {self.negatives:g}\n")
+                f"positives {self.positives:g}  negatives {self.negatives:g}\n"
+                f"accuracy ratio (Gini, 2 x area - 1) {self.accuracy_ratio:.6f}  std error "
+                f"{self.accuracy_ratio_standard_error:.6f}  {100 * self.level:g}% interval "
+                f"[{self.accuracy_ratio_lower:.6f}, {self.accuracy_ratio_upper:.6f}]\n")
 
 
 @dataclass(frozen=True)
@@ -213,7 +234,9 @@ def roc_auc(
     and maps it back, so the interval stays inside (0, 1); when :math:`A` is 0 or 1 the
     standard error is 0 and the interval is the single point :math:`A`.
     ``interval="plain"`` is :math:`A \pm z\,SE`, clipped to [0, 1].  Either interval
-    always contains :math:`A`.
+    always contains :math:`A`.  The record also carries the accuracy ratio (Gini)
+    :math:`2A - 1` with standard error :math:`2\,SE` and the interval
+    :math:`2[\text{lower}, \text{upper}] - 1`.
 
     Parameters
     ----------
@@ -248,6 +271,8 @@ def roc_auc(
     Processing Letters 21, 1389-1393.
     Hanley, J. A. & McNeil, B. J. (1982). The meaning and use of the area under a
     receiver operating characteristic (ROC) curve. Radiology 143, 29-36.
+    Engelmann, B., Hayden, E. & Tasche, D. (2003). Testing rating accuracy. Risk 16(1),
+    82-86 (the accuracy ratio is 2A - 1).
     """
     level = check_level(level)
     check_choice(interval, "interval", ("logit", "plain"))

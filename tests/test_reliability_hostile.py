@@ -508,6 +508,12 @@ def specs(tmp: Path) -> list[Spec]:
              args={"X": X, "y": YL, "coefficients": LIN.coefficients, "model": "least_squares"}),
         spec("implied_l2[softmax]", lt.implied_l2, ("X", "y", "coefficients"),
              args={"X": X, "y": Y3, "coefficients": SOFT.coefficients, "model": "softmax"}),
+        spec("kolmogorov_smirnov", lt.kolmogorov_smirnov, ("y", "p"), args={"y": YB, "p": S, "weights": W}),
+        spec("gains", lt.gains, ("y", "p"), args={"y": YB, "p": S, "weights": W, "bands": 4}),
+        spec("band_tests", lt.band_tests, ("y", "p", "bands"), args={"y": YB, "p": P, "bands": 4, "weights": W}),
+        spec("population_stability", lt.population_stability, ("expected", "actual"),
+             args={"expected": S, "actual": S2, "weights": W, "actual_weights": W, "bins": 4}),
+        spec("collinearity", lt.collinearity, ("X",), args={"X": X, "weights": W}),
     ]
     # record methods: a bound method of a baseline record, the hostile values for its arguments
     for cls, rec in (("LinearFit", LIN), ("LogisticFit", LOGI), ("SoftmaxFit", SOFT)):
@@ -532,12 +538,17 @@ def specs(tmp: Path) -> list[Spec]:
 
 
 #: methods of records without arguments: called on every record a hostile call returns
-NO_ARGUMENT_METHODS = ("report", "to_dict", "describe", "parameter_terms", "coefficient_table")
+NO_ARGUMENT_METHODS = ("report", "to_dict", "describe", "parameter_terms", "coefficient_table", "summary",
+                       "dependencies", "bin_labels")
 #: covered by the follow-up calls on returned records (argument-free, or with defaults only)
 FOLLOW_UP = {f"{c}.{m}" for c in ("SplitBalance", "BrierScore", "ReliabilityTable", "CalibrationLine",
                                   "HosmerLemeshow", "CoefficientComparison", "ROCArea", "ROCAreaDifference")
              for m in ("report",)} | {f"{c}.to_dict" for c in ("LinearFit", "LogisticFit", "SoftmaxFit")} | {
-    "SoftmaxFit.parameter_terms"}
+    "SoftmaxFit.parameter_terms"} | {
+    "BandTests.report", "BandTests.summary", "BandTests.to_dict", "Collinearity.dependencies", "Collinearity.report",
+    "Collinearity.to_dict", "GainsTable.report", "GainsTable.to_dict", "KolmogorovSmirnov.report",
+    "KolmogorovSmirnov.to_dict", "PopulationStability.bin_labels", "PopulationStability.report",
+    "PopulationStability.summary", "PopulationStability.to_dict"}
 
 
 # ----------------------------------------------------------------- running calls
@@ -668,7 +679,8 @@ SPEC_NAMES = [
     "read_table", "stratified_holdout", "stratified_folds", "stratified_folds[continuous]",
     "stratified_folds[multilabel]", "repeated_stratified_folds", "stratified_bootstrap", "split_balance", "brier",
     "brier[multiclass]", "cross_entropy", "calibration_error", "calibration_error[multiclass]", "reliability",
-    "calibration_line", "hosmer_lemeshow", "spiegelhalter", "roc_auc", "roc_auc_difference", "isotonic_calibration",
+    "calibration_line", "hosmer_lemeshow", "spiegelhalter", "roc_auc", "roc_auc_difference", "kolmogorov_smirnov",
+    "gains", "band_tests", "population_stability", "collinearity", "isotonic_calibration",
     "platt_scaling", "temperature_scaling", "temperature_scaling[multiclass]", "compare_coefficients",
     "compare_coefficients[logistic]", "compare_coefficients[softmax]", "implied_l2", "implied_l2[least_squares]",
     "implied_l2[softmax]", "LinearFit.mean", "LinearFit.linear_predictor", "LinearFit.report",
