@@ -6,7 +6,7 @@ Usage::
     python benchmarks/block_checksum.py --quick    # a tenth of the rows, 2 rounds
 
 Every pass of :func:`lintools.least_squares_blocks` and :func:`lintools.logistic_blocks`
-takes a checksum of each block (``lintools._block_stream.block_print``: the sum of X,
+takes a checksum of each block (``lintools.blocks.stream.block_print``: the sum of X,
 which is the finiteness check as well, the sum of every seventh value, the first and last
 rows, sums of y and of the weights) and
 compares it with the first pass.  This script fits the same in-memory blocks (memory-resident rows: the pass is
@@ -31,7 +31,7 @@ import numpy as np
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
 import lintools as lt  # noqa: E402
-from lintools import _block_stream as bs  # noqa: E402
+from lintools.blocks import stream as bs  # noqa: E402
 
 BLOCK_ROWS = 1 << 16
 

@@ -8,7 +8,7 @@ Usage::
 
 Two files are written to ``--dir`` and deleted at the end:
 
-* **numbers**: the demo scenario's inspection records (lintools.demo, invented data), nine
+* **numbers**: the demo scenario's inspection records (lintools.cli.demo_data, invented data), nine
   numeric columns written with ``%.6g`` (the five features, the fill deviation, the
   supplier's leak probability, the defect class code, the leak label 0/1): a purely
   numeric file, the case the readers are compared on;
@@ -49,7 +49,7 @@ READERS = ("read_table", "numpy.loadtxt", "pandas.read_csv")
 
 def write_numbers(path: Path, rows: int) -> None:
     """The demo records as a purely numeric CSV (``%.6g``), written a block at a time."""
-    from lintools.demo import DEFECT_CLASSES, inspection_data, supplier_leak_model
+    from lintools.cli.demo_data import DEFECT_CLASSES, inspection_data, supplier_leak_model
 
     slopes, intercept = supplier_leak_model()
     d = inspection_data(rows, seed=17)
@@ -106,7 +106,7 @@ def child(reader: str, path: str, target: str, check: bool) -> None:
     import resource
 
     if reader == "read_table":
-        from lintools.table import read_table
+        from lintools.exchange.csv_table import read_table
 
         def read():
             return read_table(path, target=target)

@@ -3,8 +3,8 @@
 Public names only; see the README and each function's docstring.
 """
 
-from ._version import __version__
-from ._errors import (
+from .support.version import __version__
+from .support.errors import (
     IllConditionedWarning,
     InputError,
     IterationLimitWarning,
@@ -12,20 +12,20 @@ from ._errors import (
     LintoolsWarning,
     SeparationError,
 )
-from ._records import CoefficientTable, Convergence, LinearFit
-from .io import load, save
-from .pmml import DeliveredModel, read_pmml, write_pmml
-from .table import Table, read_table
-from .least_squares import least_squares
-from ._records import LogisticFit
-from .logistic import logistic
-from ._softmax_record import SoftmaxFit
-from .softmax import softmax
+from .models.records import CoefficientTable, Convergence, LinearFit
+from .exchange.model_files import load, save
+from .exchange.pmml import DeliveredModel, read_pmml, write_pmml
+from .exchange.csv_table import Table, read_table
+from .models.least_squares import least_squares
+from .models.records import LogisticFit
+from .models.logistic import logistic
+from .models.softmax_record import SoftmaxFit
+from .models.softmax import softmax
 from .blocks import least_squares_blocks, logistic_blocks, softmax_blocks
-from .separation import MultinomialSeparationCheck, SeparationCheck, check_separation
-from .calibration import BrierScore, brier, cross_entropy
-from .calibration_bins import ReliabilityTable, calibration_error, reliability
-from .calibration_checks import (
+from .models.separation import MultinomialSeparationCheck, SeparationCheck, check_separation
+from .metrics.scores import BrierScore, brier, cross_entropy
+from .metrics.bins import ReliabilityTable, calibration_error, reliability
+from .metrics.checks import (
     CalibrationLine,
     HosmerLemeshow,
     SpiegelhalterTest,
@@ -33,14 +33,14 @@ from .calibration_checks import (
     hosmer_lemeshow,
     spiegelhalter,
 )
-from .crosscheck import CoefficientComparison, ImpliedPenalty, compare_coefficients, implied_l2
-from .discrimination import ROCArea, ROCAreaDifference, roc_auc, roc_auc_difference
-from .kolmogorov import KolmogorovSmirnov, kolmogorov_smirnov
-from .gains import GainsTable, gains
-from .band_tests import BandTests, band_tests
-from .stability import PopulationStability, population_stability
-from .collinearity import Collinearity, collinearity
-from .recalibration import (
+from .exchange.crosscheck import CoefficientComparison, ImpliedPenalty, compare_coefficients, implied_l2
+from .metrics.discrimination import ROCArea, ROCAreaDifference, roc_auc, roc_auc_difference
+from .metrics.kolmogorov import KolmogorovSmirnov, kolmogorov_smirnov
+from .metrics.gains import GainsTable, gains
+from .metrics.band_tests import BandTests, band_tests
+from .metrics.stability import PopulationStability, population_stability
+from .metrics.collinearity import Collinearity, collinearity
+from .metrics.recalibration import (
     IsotonicMap,
     PlattMap,
     TemperatureMap,
@@ -48,7 +48,7 @@ from .recalibration import (
     platt_scaling,
     temperature_scaling,
 )
-from .splitting import (
+from .splitting.stratified import (
     SmallClassWarning,
     SplitBalance,
     repeated_stratified_folds,

@@ -1,4 +1,4 @@
-"""Tests of lintools.band_tests (exact binomial and Jeffreys tests band by band).
+"""Tests of lintools.metrics.band_tests (exact binomial and Jeffreys tests band by band).
 
 Oracles, named beside each check: scipy.stats.binomtest (two-sided, "greater", "less"),
 scipy.stats.beta (the Jeffreys posterior Beta(d + 1/2, n - d + 1/2): cdf, sf, ppf, isf),

@@ -1,5 +1,5 @@
-"""Tests of lintools._binomial (binomial law, beta tails and quantiles) and of
-lintools._kolmogorov_law (null law of the two-sample Kolmogorov-Smirnov statistic).
+"""Tests of lintools.support.binomial (binomial law, beta tails and quantiles) and of
+lintools.support.kolmogorov_law (null law of the two-sample Kolmogorov-Smirnov statistic).
 
 Oracles, named beside each check: scipy.stats.binom, scipy.stats.binomtest,
 scipy.stats.beta, scipy.stats.kstwobign; mpmath at 40 digits; exact enumeration of every
@@ -17,8 +17,14 @@ import numpy as np
 import pytest
 import scipy.stats
 
-from lintools._binomial import beta_quantile, beta_tails, binomial_log_pmf, binomial_tails, binomial_two_sided
-from lintools._kolmogorov_law import exact_tail, limit_tail
+from lintools.support.binomial import (
+    beta_quantile,
+    beta_tails,
+    binomial_log_pmf,
+    binomial_tails,
+    binomial_two_sided,
+)
+from lintools.support.kolmogorov_law import exact_tail, limit_tail
 
 
 def rel(a, b):

@@ -1,4 +1,4 @@
-"""Tests of lintools.calibration, lintools.calibration_bins and lintools.calibration_checks.
+"""Tests of lintools.metrics.scores, lintools.metrics.bins and lintools.metrics.checks.
 
 Oracles: scikit-learn (brier_score_loss, log_loss, calibration_curve), statsmodels
 (proportion_confint Wilson interval, GLM Binomial with offset), SciPy (chi-square and
@@ -21,10 +21,10 @@ from sklearn.calibration import calibration_curve
 from sklearn.metrics import brier_score_loss, log_loss
 from statsmodels.stats.proportion import proportion_confint
 
-from lintools._errors import InputError
-from lintools.calibration import brier, cross_entropy
-from lintools.calibration_bins import calibration_error, reliability
-from lintools.calibration_checks import calibration_line, hosmer_lemeshow, spiegelhalter
+from lintools.support.errors import InputError
+from lintools.metrics.scores import brier, cross_entropy
+from lintools.metrics.bins import calibration_error, reliability
+from lintools.metrics.checks import calibration_line, hosmer_lemeshow, spiegelhalter
 
 TOL = 1e-12
 
@@ -381,7 +381,7 @@ def test_calibration_line_matches_statsmodels_glm():
 
 
 def test_calibration_line_matches_own_logistic():
-    from lintools.logistic import logistic
+    from lintools.models.logistic import logistic
 
     y, p, _ = _line_data(1, n=300)
     eta = np.log(p) - np.log1p(-p)

@@ -10,8 +10,8 @@ import numpy as np
 import statsmodels.api as sm
 
 import lintools as lt
-from lintools._cli_common import Progress
-from lintools.pmml import read_pmml
+from lintools.cli.common import Progress
+from lintools.exchange.pmml import read_pmml
 
 
 def run(*args, cwd=None):

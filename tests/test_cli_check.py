@@ -12,7 +12,7 @@ import statsmodels.api as sm
 from scipy import stats
 
 import lintools as lt
-from lintools.pmml import write_pmml
+from lintools.exchange.pmml import write_pmml
 
 
 def run(*args, cwd=None):

@@ -1,6 +1,6 @@
 """``lintools demo`` end to end by subprocess: its folder, its report, its numbers.
 
-The demo's data are invented (lintools.demo); the numbers it prints are checked here
+The demo's data are invented (lintools.cli.demo_data); the numbers it prints are checked here
 against oracles recomputed on the same rows.
 """
 
@@ -15,7 +15,7 @@ import sklearn.metrics
 import statsmodels.api as sm
 
 import lintools as lt
-from lintools.demo import FEATURES, inspection_data, supplier_leak_model
+from lintools.cli.demo_data import FEATURES, inspection_data, supplier_leak_model
 
 FILES = ["report.txt", "inspection.csv", "supplier_leak.pmml", "fill_deviation.json", "fill_deviation.pmml",
          "leak.json", "leak.pmml", "reliability.png"]
@@ -52,7 +52,7 @@ def test_the_folder_holds_the_report_and_the_model_files(demo):
 
 def test_the_planted_disagreement_is_found_and_put_in_words(demo):
     folder, doc = demo
-    # lintools.demo plants the supplier's errors in cap_torque and nozzle_age only.
+    # lintools.cli.demo_data plants the supplier's errors in cap_torque and nozzle_age only.
     assert set(doc["supplier_flagged_terms"]) - {"(intercept)"} == {"cap_torque", "nozzle_age"}
     assert doc["supplier_comparison"]["wald_p_value"] < 1e-4
     report = " ".join((folder / "report.txt").read_text().split())  # words, whatever the line wrapping

@@ -1,6 +1,6 @@
 """The CSV rules on the command line: the same refusals and options as read_table.
 
-Files are the demo scenario's inspection records (lintools.demo) written as CSV.
+Files are the demo scenario's inspection records (lintools.cli.demo_data) written as CSV.
 """
 
 from __future__ import annotations
@@ -13,7 +13,7 @@ import numpy as np
 import pytest
 
 import lintools as lt
-from lintools.demo import inspection_data
+from lintools.cli.demo_data import inspection_data
 
 DATA = inspection_data(600)
 

@@ -256,18 +256,20 @@ def test_version(capsys):
 NO_OPTION = {"X", "y", "p", "score", "names", "on_iteration", "trials", "offset", "level", "profile_level", "norm",
              "continuous_bins"}
 # (file, parameter) pairs of code the command line never runs.
-NOT_RUN = {("_block_runner.py", "weights"),  # row blocks and dask arrays
-           ("crosscheck.py", "intercept"),  # coefficients given by name: the command line passes an array
-           ("losses.py", "model"),  # implied_l2's model is set from the delivered file's kind
-           ("_categories.py", "reference_levels"),  # the command line passes the table's own mapping
-           ("table.py", "reference_levels")}  # the command line builds it: a dict of str from the model
+NOT_RUN = {("blocks/runner.py", "weights"),  # row blocks and dask arrays
+           ("exchange/crosscheck.py", "intercept"),  # coefficients given by name: the command line passes an array
+           ("engine/losses.py", "model"),  # implied_l2's model is set from the delivered file's kind
+           ("support/categories.py", "reference_levels"),  # the command line passes the table's own mapping
+           ("exchange/csv_table.py", "reference_levels")}  # the command line builds it: a dict of str from the model
 
 
 def _library_messages():
     """Every string of the library outside the command line that is not a docstring;
     f-strings with their replacement fields shown as VALUE."""
-    for path in sorted(Path(lt.__file__).parent.rglob("*.py")):
-        if path.name == "cli.py" or path.name.startswith("_cli"):
+    root = Path(lt.__file__).parent
+    for path in sorted(root.rglob("*.py")):
+        name = path.relative_to(root).as_posix()
+        if name.startswith("cli/"):
             continue
         tree = ast.parse(path.read_text(encoding="utf-8"))
         skip = set()
@@ -277,11 +279,11 @@ def _library_messages():
                 skip.add(id(body[0].value))
             if isinstance(node, ast.JoinedStr):
                 skip.update(id(v) for v in node.values)
-                yield path.name, node.lineno, "".join(
+                yield name, node.lineno, "".join(
                     v.value if isinstance(v, ast.Constant) else "VALUE" for v in node.values)
         for node in ast.walk(tree):
             if isinstance(node, ast.Constant) and isinstance(node.value, str) and id(node) not in skip:
-                yield path.name, node.lineno, node.value
+                yield name, node.lineno, node.value
 
 
 def test_every_remedy_phrase_of_the_library_names_an_option_under_the_command_line():
@@ -289,7 +291,7 @@ def test_every_remedy_phrase_of_the_library_names_an_option_under_the_command_li
 
     The Python arguments are the parameters of the functions the command line calls; the
     options are every option of every subcommand (``intercept`` is ``--no-intercept``)."""
-    from lintools._cli_console import translate
+    from lintools.cli.console import translate
 
     called = [lt.least_squares, lt.logistic, lt.softmax, lt.save, lt.write_pmml, lt.read_table, lt.load,
               lt.read_pmml, lt.stratified_folds, lt.reliability, lt.brier, lt.calibration_error, lt.hosmer_lemeshow,
@@ -316,7 +318,7 @@ def test_every_remedy_phrase_of_the_library_names_an_option_under_the_command_li
 
 
 def test_translation_leaves_options_labels_and_paths_alone():
-    from lintools._cli_console import translate
+    from lintools.cli.console import translate
 
     assert translate("set l2 > 0 or firth=True; raise max_iter") == "set --l2 above 0 or --firth; raise --max-iter"
     assert translate("--l2 must be >= 0") == "--l2 must be >= 0"
@@ -354,7 +356,7 @@ def test_warnings_print_as_one_line_each_on_stderr(capsys, spector):
 def test_the_warning_channel_makes_one_line_of_any_warning(capsys):
     import warnings
 
-    from lintools._cli_console import Console, warnings_to_stderr
+    from lintools.cli.console import Console, warnings_to_stderr
 
     with warnings_to_stderr(Console(False)) as seen:
         warnings.warn("first line\n   second line: raise max_iter", UserWarning)

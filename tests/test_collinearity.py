@@ -1,4 +1,4 @@
-"""Tests of lintools.collinearity (variance inflation factors, condition indices and
+"""Tests of lintools.metrics.collinearity (variance inflation factors, condition indices and
 variance-decomposition proportions).
 
 Oracles, named beside each check: statsmodels' variance_inflation_factor (on the design

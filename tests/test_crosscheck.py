@@ -8,7 +8,7 @@ from scipy import stats
 
 import lintools as lt
 from lintools import InputError
-from lintools.crosscheck import compare_coefficients, implied_l2
+from lintools.exchange.crosscheck import compare_coefficients, implied_l2
 
 
 def _stackloss():

@@ -15,7 +15,7 @@ from scipy.special import expit
 
 import lintools as lt
 from lintools import InputError
-from lintools.crosscheck import compare_coefficients, implied_l2
+from lintools.exchange.crosscheck import compare_coefficients, implied_l2
 
 
 def _spector():

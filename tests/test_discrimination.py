@@ -1,4 +1,4 @@
-"""Tests of lintools.discrimination (ROC area, DeLong variance, paired DeLong test).
+"""Tests of lintools.metrics.discrimination (ROC area, DeLong variance, paired DeLong test).
 
 Oracles: scikit-learn roc_auc_score; a brute-force O(n_pos * n_neg) computation of
 DeLong's placement values written here; SciPy normal tails.  Each check names its source.
@@ -16,8 +16,8 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from sklearn.metrics import roc_auc_score
 
-from lintools._errors import InputError, LintoolsWarning
-from lintools.discrimination import roc_auc, roc_auc_difference
+from lintools.support.errors import InputError, LintoolsWarning
+from lintools.metrics.discrimination import roc_auc, roc_auc_difference
 
 TOL = 1e-12
 

@@ -1,4 +1,4 @@
-"""Tests of lintools.kolmogorov_smirnov, lintools.gains and the accuracy ratio of roc_auc.
+"""Tests of lintools.kolmogorov_smirnov, lintools.metrics.gains and the accuracy ratio of roc_auc.
 
 Oracles, named beside each check: scipy.stats.ks_2samp (statistic, location, exact
 p-value) and scipy.stats.kstwobign (the asymptotic law); a gains table computed by hand

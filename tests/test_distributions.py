@@ -1,4 +1,4 @@
-"""Tail probabilities and quantiles in lintools._distributions against outside sources.
+"""Tail probabilities and quantiles in lintools.support.distributions against outside sources.
 
 Oracles, named beside each check:
 * mpmath, arbitrary precision (50 significant digits): ``mpmath.erfc``,
@@ -25,7 +25,7 @@ import scipy.stats
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from lintools._distributions import (
+from lintools.support.distributions import (
     chi2_quantile,
     chi2_sf,
     f_sf,
@@ -36,7 +36,7 @@ from lintools._distributions import (
     t_quantile,
     t_sf,
 )
-from lintools._errors import InputError
+from lintools.support.errors import InputError
 
 DFS = [0.5, 1, 2, 3, 5, 10, 30, 100, 1e4, 1e6]
 DIGITS = 50

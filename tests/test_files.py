@@ -1,4 +1,4 @@
-"""The one file reader and writer (lintools._files): bounded, regular files only, atomic,
+"""The one file reader and writer (lintools.support.files): bounded, regular files only, atomic,
 no clobbering.  The invariants are common practice for tools that must not lose data
 (write to a temporary file in the same folder, fsync, rename; POSIX rename(2) is atomic)."""
 
@@ -12,7 +12,7 @@ import textwrap
 import pytest
 
 from lintools import InputError
-from lintools._files import check_outputs, read_bounded, write_atomic
+from lintools.support.files import check_outputs, read_bounded, write_atomic
 
 
 def test_read_bounded_reads_a_regular_file(tmp_path):
@@ -78,7 +78,7 @@ def test_an_interrupted_write_leaves_the_old_file_byte_identical(tmp_path):
     code = textwrap.dedent(f"""
         import resource, sys
         resource.setrlimit(resource.RLIMIT_FSIZE, (4096, 4096))
-        from lintools._files import write_atomic
+        from lintools.support.files import write_atomic
         from lintools import InputError
         try:
             write_atomic({str(f)!r}, b"y" * 100_000, replace=True)

@@ -13,9 +13,9 @@ from fractions import Fraction
 import numpy as np
 import pytest
 
-from lintools.losses import BinomialLoss
-from lintools.solvers import LinearModelProblem, NonFiniteDesign
-from lintools.solvers._kernels import column_moments, uncentred_ok, weighted_gram
+from lintools.engine.losses import BinomialLoss
+from lintools.engine import LinearModelProblem, NonFiniteDesign
+from lintools.engine.kernels import column_moments, uncentred_ok, weighted_gram
 
 
 def exact_moments(x: np.ndarray, v: np.ndarray, centre: bool) -> tuple[Fraction, Fraction]:

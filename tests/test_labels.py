@@ -1,4 +1,4 @@
-"""The label reader behind every classifier and splitter (``lintools._validate.as_labels``).
+"""The label reader behind every classifier and splitter (``lintools.support.validate.as_labels``).
 
 Source of the expected classes and codes: scikit-learn's ``LabelEncoder`` (oracle), which
 also sorts the distinct labels and codes each row by its label's position.  The
@@ -15,7 +15,7 @@ from hypothesis import strategies as st
 from sklearn.preprocessing import LabelEncoder
 
 from lintools import InputError
-from lintools._validate import as_labels
+from lintools.support.validate import as_labels
 
 
 @pytest.mark.parametrize("make", [

@@ -26,8 +26,8 @@ from hypothesis import strategies as st
 import lintools as lt
 from lintools import InputError
 
-_ls = importlib.import_module("lintools.least_squares")
-_gram = importlib.import_module("lintools._gram")
+_ls = importlib.import_module("lintools.models.least_squares")
+_gram = importlib.import_module("lintools.models.lsq_gram")
 _fit = _ls._fit
 
 FAST = "Cholesky of the Gram matrix (semi-normal equations)"

@@ -15,7 +15,7 @@ from sklearn.linear_model import LogisticRegression
 
 import lintools as lt
 from lintools import LogisticFit, load, logistic, save
-from lintools.crosscheck import compare_coefficients
+from lintools.exchange.crosscheck import compare_coefficients
 
 SPECTOR = sm.datasets.spector.load_pandas()
 SX, SY = SPECTOR.exog, SPECTOR.endog
@@ -213,7 +213,7 @@ def test_labels_of_any_type_and_the_positive_class():
 
 
 def test_score_and_information_feed_the_crosscheck():
-    from lintools.logistic import score_and_information
+    from lintools.models.logistic import score_and_information
 
     # source: common practice: at the refit the score is zero and the inverse information
     # is the covariance; a delivered copy of the refit is accepted with Wald statistic 0

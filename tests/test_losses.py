@@ -15,7 +15,7 @@ import statsmodels.api as sm
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from lintools.losses import BinomialLoss, log1pexp, sigmoid, unpenalised_gradient
+from lintools.engine.losses import BinomialLoss, log1pexp, sigmoid, unpenalised_gradient
 
 mpmath.mp.dps = 50
 

@@ -42,7 +42,7 @@ from hypothesis import strategies as st
 import lintools as lt
 from lintools import InputError
 from lintools.blocks import least_squares_blocks
-from lintools.pmml import read_pmml, write_pmml
+from lintools.exchange.pmml import read_pmml, write_pmml
 
 SPECTOR = sm.datasets.spector.load_pandas().data
 SX, SY = SPECTOR[["GPA", "TUCE", "PSI"]], SPECTOR["GRADE"]
@@ -113,7 +113,7 @@ JSON_CASES = [
 
 @pytest.mark.parametrize("name, field, value, fragment", JSON_CASES, ids=[f"{c[0]}-{c[1]}-{c[3][:20]}" for c in JSON_CASES])
 def test_inconsistent_json_model_files_are_refused_naming_file_and_field(tmp_path, name, field, value, fragment):
-    # source: the consistency rules of lintools._model_checks (common practice for a file
+    # source: the consistency rules of lintools.exchange.model_checks (common practice for a file
     # format: a field that contradicts another is a damaged file, not a number)
     doc = saved_doc(FITS[name], tmp_path)
     if field == "coefficients" and name == "logistic":
@@ -128,7 +128,7 @@ def test_inconsistent_json_model_files_are_refused_naming_file_and_field(tmp_pat
 
 
 def test_a_400_digit_integer_and_tampered_standard_errors_are_refused(tmp_path):
-    # source: lintools.io docstring (integers of at most 64 bits; standard errors are the
+    # source: lintools.exchange.model_files docstring (integers of at most 64 bits; standard errors are the
     # square roots of the covariance's diagonal)
     doc = saved_doc(LIN, tmp_path)
     text = re.sub(r'"rank": [0-9]+', '"rank": ' + "9" * 400, json.dumps(doc))
@@ -168,7 +168,7 @@ def test_cli_check_refuses_a_fifo_as_model_file_instead_of_waiting(tmp_path):
 
 
 def test_save_refuses_a_record_that_load_would_refuse(tmp_path):
-    # source: the writer-reader contract of lintools.io (save never writes what load refuses)
+    # source: the writer-reader contract of lintools.exchange.model_files (save never writes what load refuses)
     for bad in (dataclasses.replace(LOGI, l2=-1.0), dataclasses.replace(LOGI, classes=(0.0, 1.0, 2.0)),
                 dataclasses.replace(LOGI_NO_B, intercept=0.16)):
         with pytest.raises(InputError, match="save: this record cannot be written"):

@@ -12,7 +12,7 @@ from hypothesis import strategies as st
 
 import lintools as lt
 from lintools import InputError
-from lintools.pmml import write_pmml
+from lintools.exchange.pmml import write_pmml
 
 
 @pytest.fixture(scope="module")
@@ -140,7 +140,7 @@ def test_a_save_cut_short_leaves_the_previous_model_file_byte_identical(tmp_path
     code = textwrap.dedent(f"""
         import resource, sys
         import lintools as lt
-        from lintools.pmml import write_pmml
+        from lintools.exchange.pmml import write_pmml
         fit = lt.load({str(path)!r})
         resource.setrlimit(resource.RLIMIT_FSIZE, ({limit}, {limit}))
         try:

@@ -1,6 +1,6 @@
 """Peak memory while loading a large JSON model file (issue #17).
 
-lintools.io states the bound: about 2 times the file's size for a file written by
+lintools.exchange.model_files states the bound: about 2 times the file's size for a file written by
 ``save`` (the bounded reader's copy while reading, the file's bytes and 8 bytes per
 number), and at most 6 times for any file (a file of 2-byte numbers, ``1,1,1,...``,
 whose doubles alone take 4 times the file).  Measured here as the peak resident size of a
@@ -85,7 +85,7 @@ def _measure(small: Path, path: Path) -> dict:
 
 @pytest.mark.skipif(sys.platform != "linux", reason="ru_maxrss in kilobytes is Linux's")
 def test_a_100_mb_model_file_written_like_save_loads_in_at_most_3_times_its_size(tmp_path, carrier):
-    # source: lintools.io docstring (about 2x, measured 2.0x); main measured 3.7x
+    # source: lintools.exchange.model_files docstring (about 2x, measured 2.0x); main measured 3.7x
     path, n, first = _make(tmp_path, carrier, "floats", 100_000_000)
     got = _measure(carrier[0], path)
     assert got["n"] == n and got["first"] == first and got["size"] > 95_000_000
@@ -94,7 +94,7 @@ def test_a_100_mb_model_file_written_like_save_loads_in_at_most_3_times_its_size
 
 @pytest.mark.skipif(sys.platform != "linux", reason="ru_maxrss in kilobytes is Linux's")
 def test_a_file_of_two_byte_numbers_loads_in_at_most_6_times_its_size(tmp_path, carrier):
-    # source: lintools.io docstring (at most 6x for any file, measured 5.1x); main measured 19x
+    # source: lintools.exchange.model_files docstring (at most 6x for any file, measured 5.1x); main measured 19x
     path, n, first = _make(tmp_path, carrier, "ones", 8_000_000)
     got = _measure(carrier[0], path)
     assert got["n"] == n and got["first"] == 1.0
@@ -103,7 +103,7 @@ def test_a_file_of_two_byte_numbers_loads_in_at_most_6_times_its_size(tmp_path, 
 
 @pytest.mark.skipif(sys.platform != "linux", reason="ru_maxrss in kilobytes is Linux's")
 def test_a_file_of_many_small_values_is_refused_before_it_is_parsed(tmp_path, carrier):
-    # source: lintools.io docstring (one JSON value per 128 bytes outside float arrays);
+    # source: lintools.exchange.model_files docstring (one JSON value per 128 bytes outside float arrays);
     # main took 49x the size of such a file (a list of empty lists) and minutes to refuse it
     small, head, middle, tail = carrier
     path = tmp_path / "lists.json"

@@ -34,8 +34,8 @@ from hypothesis import strategies as st
 
 import lintools as lt
 from lintools import InputError
-from lintools._cli_check import read_delivered
-from lintools.pmml import read_pmml, write_pmml
+from lintools.cli.check import read_delivered
+from lintools.exchange.pmml import read_pmml, write_pmml
 
 SPECTOR = sm.datasets.spector.load_pandas().data
 SX, SY = SPECTOR[["GPA", "TUCE", "PSI"]], SPECTOR["GRADE"]

@@ -6,7 +6,7 @@ import statsmodels.api as sm
 
 import lintools as lt
 from lintools import InputError
-from lintools.pmml import read_pmml, write_pmml
+from lintools.exchange.pmml import read_pmml, write_pmml
 
 # A document written by hand from the PMML 4.4 Regression specification (Data Mining
 # Group): a linear regression y = 2.5 + 0.75*a - 1.25*b.

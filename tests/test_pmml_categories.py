@@ -27,7 +27,7 @@ from hypothesis import strategies as st
 
 import lintools as lt
 from lintools import InputError
-from lintools._categories import CategoricalField
+from lintools.support.categories import CategoricalField
 from test_scoring import CASES, _fit
 
 NS = "http://www.dmg.org/PMML-4_4"

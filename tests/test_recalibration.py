@@ -1,4 +1,4 @@
-"""Tests of lintools.recalibration (Platt, temperature and isotonic maps).
+"""Tests of lintools.metrics.recalibration (Platt, temperature and isotonic maps).
 
 Oracles: scikit-learn IsotonicRegression, scipy.optimize.isotonic_regression,
 scipy.optimize (brentq, minimize_scalar), statsmodels GLM Binomial with fractional
@@ -17,8 +17,8 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from sklearn.isotonic import IsotonicRegression
 
-from lintools._errors import InputError, SeparationError
-from lintools.recalibration import isotonic_calibration, platt_scaling, temperature_scaling
+from lintools.support.errors import InputError, SeparationError
+from lintools.metrics.recalibration import isotonic_calibration, platt_scaling, temperature_scaling
 
 TOL = 1e-12
 

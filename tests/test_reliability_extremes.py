@@ -24,7 +24,7 @@ import numpy as np
 import pytest
 
 import lintools as lt
-from lintools.losses import BinomialLoss
+from lintools.engine.losses import BinomialLoss
 
 
 def known_defect(check: Callable[[], None], reason: str) -> None:

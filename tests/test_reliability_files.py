@@ -1,7 +1,7 @@
 """Reliability battery, part 5: hostile files (issue #9).
 
-The CSV reader (``lintools.table.read_table``), the JSON model-file loader
-(``lintools.load``) and the PMML reader (``lintools.pmml.read_pmml``) are fuzzed with
+The CSV reader (``lintools.exchange.csv_table.read_table``), the JSON model-file loader
+(``lintools.load``) and the PMML reader (``lintools.exchange.pmml.read_pmml``) are fuzzed with
 hypothesis: malformed rows, huge numbers, wrong types, wrong schema versions, truncated
 files, binary garbage, and XML with a DTD, entity expansion ("billion laughs") or
 external entities.  Every outcome is either a valid result or ``lintools.InputError``
@@ -15,7 +15,7 @@ no socket is made.  Finally, no module of the package uses pickle, eval, exec or
 
 Source of the expectations: common practice (OWASP XML External Entity Prevention;
 the Python documentation's "XML vulnerabilities" table), the file rules in the module
-docstrings of lintools.io, lintools.pmml and lintools.table, and README "Guarantees".
+docstrings of lintools.exchange.model_files, lintools.exchange.pmml and lintools.exchange.csv_table, and README "Guarantees".
 """
 
 from __future__ import annotations
@@ -39,8 +39,8 @@ from hypothesis import strategies as st
 
 import lintools as lt
 from lintools import InputError
-from lintools.pmml import DeliveredModel, read_pmml, write_pmml
-from lintools.table import Table, read_table
+from lintools.exchange.pmml import DeliveredModel, read_pmml, write_pmml
+from lintools.exchange.csv_table import Table, read_table
 
 PACKAGE = Path(lt.__file__).resolve().parent
 FUZZ = settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
@@ -228,7 +228,7 @@ def _load_checked(path: Path) -> None:
 @FUZZ
 @given(data=st.data())
 def test_load_fuzzed_model_files(docs, tmp_path_factory, data) -> None:
-    # source: common practice, lintools.io docstring ("every field ... type-checked")
+    # source: common practice, lintools.exchange.model_files docstring ("every field ... type-checked")
     text = data.draw(model_file_text(docs))
     path = tmp_path_factory.mktemp("json") / "model.json"
     path.write_text(text, encoding="utf-8", errors="surrogatepass")
@@ -246,7 +246,7 @@ def test_load_binary_garbage(tmp_path_factory, raw: bytes) -> None:
 
 @pytest.mark.parametrize("version", [0, 2, "1", 1.0, True, None, [1]], ids=repr)
 def test_load_wrong_schema_versions(docs, tmp_path: Path, version) -> None:
-    # source: lintools.io docstring -- schema version 1 only
+    # source: lintools.exchange.model_files docstring -- schema version 1 only
     doc = json.loads(json.dumps(docs[0]))
     doc["schema_version"] = version
     path = tmp_path / "m.json"
@@ -259,7 +259,7 @@ def test_load_wrong_schema_versions(docs, tmp_path: Path, version) -> None:
 
 
 def test_load_round_trip_still_exact(tmp_path: Path) -> None:
-    # source: lintools.io docstring -- "an exact round trip"
+    # source: lintools.exchange.model_files docstring -- "an exact round trip"
     for fit in (LIN, LOGI):
         lt.save(fit, tmp_path / "m.json", replace=True)
         back = lt.load(tmp_path / "m.json")
@@ -308,7 +308,7 @@ def _hostile_xml(secret: Path) -> dict[str, bytes]:
 @pytest.mark.parametrize("kind", ["billion-laughs", "external-file", "external-http", "parameter-entity",
                                   "external-dtd", "lowercase-doctype", "utf16-laughs", "utf16-external"])
 def test_read_pmml_refuses_dtds_and_entities(tmp_path: Path, kind: str) -> None:
-    # source: OWASP XXE Prevention Cheat Sheet; lintools.pmml docstring ("refuses any
+    # source: OWASP XXE Prevention Cheat Sheet; lintools.exchange.pmml docstring ("refuses any
     # document with a DTD or an entity declaration")
     secret = tmp_path / "secret.txt"
     secret.write_text("TOP-SECRET", encoding="utf-8")
@@ -372,7 +372,7 @@ def _pmml_checked(path: Path) -> None:
 @FUZZ
 @given(data=st.data())
 def test_read_pmml_fuzzed_documents(pmml_texts, tmp_path_factory, data) -> None:
-    # source: common practice; lintools.pmml docstring (anything unsupported is refused)
+    # source: common practice; lintools.exchange.pmml docstring (anything unsupported is refused)
     raw = data.draw(pmml_bytes(pmml_texts))
     path = tmp_path_factory.mktemp("xml") / "m.xml"
     path.write_bytes(raw)
@@ -417,7 +417,7 @@ class Watch:
 
 
 def test_readers_open_only_the_named_file(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
-    # source: lintools.pmml docstring ("reads no file other than the one named"); common practice
+    # source: lintools.exchange.pmml docstring ("reads no file other than the one named"); common practice
     secret = tmp_path / "secret.txt"
     secret.write_text("TOP-SECRET", encoding="utf-8")
     good_json, good_xml, good_csv = tmp_path / "m.json", tmp_path / "m.xml", tmp_path / "d.csv"

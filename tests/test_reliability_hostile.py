@@ -900,7 +900,7 @@ def test_missing_scipy_is_an_input_error_saying_how_to_install(monkeypatch: pyte
 
 def test_distribution_messages_are_plain_words() -> None:
     # source: issue #16 ("chi2_sf: argument 'x' is NaN" reached a user)
-    from lintools import _distributions as dist
+    from lintools.support import distributions as dist
 
     message = _fails_with(lambda: dist.chi2_sf(np.nan, 3.0), "the chi-square tail probability (a p-value) cannot be "
                           "computed", "is NaN (not a number)", "check the data")
@@ -995,7 +995,7 @@ def test_bins_and_groups_have_a_documented_upper_bound(call: Callable[[int], Any
     # IndexError for 2**63 bins, and Hosmer-Lemeshow with 2**63 groups never returned)
     for too_many in (1_000_001, 2**63, 2**100):
         _fails_with(lambda: call(too_many), "must be at most 1000000", "pass fewer")
-    call(1_000_000)  # the bound itself (lintools._binning.MAX_BINS) is accepted
+    call(1_000_000)  # the bound itself (lintools.metrics.binning.MAX_BINS) is accepted
 
 
 def test_hosmer_lemeshow_with_more_groups_than_rows_keeps_the_formed_groups() -> None:

@@ -28,8 +28,8 @@ import pytest
 
 import lintools as lt
 from lintools import InputError
-from lintools.pmml import read_pmml, write_pmml
-from lintools.table import read_table
+from lintools.exchange.pmml import read_pmml, write_pmml
+from lintools.exchange.csv_table import read_table
 
 # ------------------------------------------------------------------------------ data
 RNG = np.random.default_rng(20261202)

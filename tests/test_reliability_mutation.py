@@ -27,8 +27,8 @@ import pandas as pd
 import pytest
 
 import lintools as lt
-from lintools.pmml import read_pmml, write_pmml
-from lintools.table import read_table
+from lintools.exchange.pmml import read_pmml, write_pmml
+from lintools.exchange.csv_table import read_table
 
 RNG = np.random.default_rng(9)
 N = 40

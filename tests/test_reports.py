@@ -21,7 +21,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 import lintools as lt
-from lintools._records import _wald_table, render_table
+from lintools.models.records import _wald_table, render_table
 
 NUMBERS = st.floats(allow_nan=True, allow_infinity=True, width=64)
 

@@ -36,7 +36,7 @@ import lintools as lt
 from lintools import InputError
 from lintools.blocks import least_squares_blocks
 
-_fit = importlib.import_module("lintools.least_squares")._fit
+_fit = importlib.import_module("lintools.models.least_squares")._fit
 
 COVARIANCES = ["classical", "HC0", "HC1", "HC2", "HC3"]
 TINY = 1e-320  # a few subnormal spacings: what gradual underflow may leave of a figure

@@ -33,7 +33,8 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 import lintools as lt
-from lintools._cli_calibration import plot_reliability
+from lintools.support.validate import ReadOnlyArrays
+from lintools.cli.calibration import plot_reliability
 
 SETTINGS = settings(max_examples=40, deadline=None)
 
@@ -346,7 +347,7 @@ def test_metric_records_hold_read_only_arrays(name):
     for a in arrays:
         with pytest.raises(ValueError):
             a.flat[0] = 99
-    assert isinstance(rec, lt._validate.ReadOnlyArrays)
+    assert isinstance(rec, ReadOnlyArrays)
 
 
 # --------------------------------------------------------------------- hostile values

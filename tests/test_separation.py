@@ -17,7 +17,7 @@ import statsmodels.api as sm
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-import lintools.separation as separation
+import lintools.models.separation as separation
 from lintools import InputError, LintoolsError, SeparationError, check_separation, logistic
 
 

@@ -18,11 +18,11 @@ import pytest
 import statsmodels.api as sm
 
 import lintools as lt
-import lintools._multinomial as multinomial_module
-import lintools.solvers._kernels_multi as kernels_module
-from lintools._multinomial import MultinomialLoss
-from lintools.solvers import LinearModelProblem
-from lintools.solvers._kernels_multi import PairWeights, multi_output_information
+import lintools.engine.multinomial as multinomial_module
+import lintools.engine.kernels_multi as kernels_module
+from lintools.engine.multinomial import MultinomialLoss
+from lintools.engine import LinearModelProblem
+from lintools.engine.kernels_multi import PairWeights, multi_output_information
 
 
 

@@ -22,8 +22,8 @@ from sklearn.linear_model import LogisticRegression
 
 import lintools as lt
 from lintools import SeparationError, softmax
-from lintools._multinomial import MultinomialLoss, softmax_parts
-from lintools.pmml import read_pmml, write_pmml
+from lintools.engine.multinomial import MultinomialLoss, softmax_parts
+from lintools.exchange.pmml import read_pmml, write_pmml
 
 mpmath.mp.dps = 50
 
@@ -188,7 +188,7 @@ def test_separation_is_detected_exactly_and_the_fit_refuses(kind):
 
 def test_separation_without_scipy_reports_the_divergence(monkeypatch):
     # source: issue requirement (without SciPy the divergence itself is reported)
-    module = sys.modules["lintools.softmax"]
+    module = sys.modules["lintools.models.softmax"]
     monkeypatch.setattr(module, "_exact_check", lambda *a: None)
     X, y = _separated("complete")
     for solver in ("newton", "lbfgs"):

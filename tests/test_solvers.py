@@ -12,10 +12,10 @@ import pytest
 import statsmodels.api as sm
 
 from lintools import IterationLimitWarning, logistic
-from lintools.losses import BinomialLoss
-from lintools.solvers import IterationRecord, LinearModelProblem, SOLVERS, solve
-from lintools.solvers.lbfgs import C1, C2, wolfe_search
-from lintools.solvers.settings import EXACT_PATH, fast_paths, using
+from lintools.engine.losses import BinomialLoss
+from lintools.engine import IterationRecord, LinearModelProblem, SOLVERS, solve
+from lintools.engine.lbfgs import C1, C2, wolfe_search
+from lintools.engine.settings import EXACT_PATH, fast_paths, using
 
 
 def _fd_check(P, z, h=1e-6):
@@ -319,7 +319,7 @@ def test_row_samples_are_runs_that_see_periodic_data_whole(monkeypatch):
     # order would make a sample of every 16th row a single run (Cochran 1977, ch. 8, on
     # periodic populations); the random runs of consecutive rows (a cluster sample,
     # Cochran ch. 9) cover every run, and the fit equals the exact path
-    from lintools.solvers import SAMPLE_RUN, sample_rows, take_rows
+    from lintools.engine import SAMPLE_RUN, sample_rows, take_rows
 
     rng = np.random.default_rng(31)
     runs = np.array([[a, b, c, d] for a in (-1, 1) for b in (-1, 1) for c in (-1, 1) for d in (-1, 1)], float)

@@ -1,4 +1,4 @@
-"""Tests of lintools.splitting: stratified holdout, folds, repeats, bootstrap and balance.
+"""Tests of lintools.splitting.stratified: stratified holdout, folds, repeats, bootstrap and balance.
 
 Sources named beside the checks:
 - scikit-learn's StratifiedKFold / StratifiedShuffleSplit (oracle library) for the
@@ -25,8 +25,8 @@ from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 from sklearn.model_selection import StratifiedKFold, StratifiedShuffleSplit
 
-from lintools._errors import InputError, LintoolsWarning
-from lintools.splitting import (
+from lintools.support.errors import InputError, LintoolsWarning
+from lintools.splitting.stratified import (
     SmallClassWarning,
     repeated_stratified_folds,
     split_balance,

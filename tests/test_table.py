@@ -10,7 +10,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from lintools import InputError
-from lintools.table import read_table
+from lintools.exchange.csv_table import read_table
 
 
 def _write(tmp_path, text, name="data.csv"):

@@ -22,8 +22,8 @@ from hypothesis import HealthCheck, event, given, settings
 from hypothesis import strategies as st
 
 from lintools import InputError
-from lintools import _csv_chunks
-from lintools.table import MISSING_VALUES, read_table
+from lintools.exchange import csv_chunks as _csv_chunks
+from lintools.exchange.csv_table import MISSING_VALUES, read_table
 
 STRICT = re.compile(r"[+-]?(?:[0-9]+(?:\.[0-9]*)?|\.[0-9]+)(?:[eE][+-]?[0-9]+)?")
 WHITE = " \t\x0b\x0c\x1c\x1d\x1e\x1f\r"

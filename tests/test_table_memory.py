@@ -1,7 +1,7 @@
 """Peak memory while reading a CSV file of one-character cells (issue 17: it was 28 times
 the file's size).
 
-The stated bound (lintools.table, "Memory"): the returned arrays plus 2.5 times the file.
+The stated bound (lintools.exchange.csv_table, "Memory"): the returned arrays plus 2.5 times the file.
 One-character cells are the worst case: a float64 value per two bytes of file makes the
 returned matrix alone 4 times the file, so the bound is on what the reader needs beyond
 what it returns.  Measured in a child process: the growth of its peak resident set while
@@ -29,7 +29,7 @@ def kb(field):
     except OSError:
         return None
 
-from lintools.table import read_table
+from lintools.exchange.csv_table import read_table
 path = sys.argv[1]
 try:
     with open("/proc/self/clear_refs", "w") as fh:
@@ -52,7 +52,7 @@ print(json.dumps({"growth": growth, "returned": returned, "size": os.path.getsiz
 
 
 def test_peak_memory_reading_50_mb_of_one_character_cells_stays_within_the_stated_bound(tmp_path):
-    # source of the bound: the "Memory" rule stated in lintools.table (2.5 x file beyond the result)
+    # source of the bound: the "Memory" rule stated in lintools.exchange.csv_table (2.5 x file beyond the result)
     k = 25
     rows = 1_000_000  # 50 MB: 25 one-digit cells and their separators a row
     rng = np.random.default_rng(3)

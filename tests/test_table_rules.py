@@ -2,7 +2,7 @@
 of which the reader before the fix got wrong (a number silently made up, a column turned
 into indicators, a file read without end).
 
-The files are the demo scenario's inspection records (lintools.demo) written as CSV with
+The files are the demo scenario's inspection records (lintools.cli.demo_data) written as CSV with
 one cell edited, so every case is a realistic file with one thing wrong.
 """
 
@@ -17,8 +17,8 @@ import numpy as np
 import pytest
 
 from lintools import InputError
-from lintools.demo import inspection_data
-from lintools.table import MAX_LEVELS, read_header, read_table
+from lintools.cli.demo_data import inspection_data
+from lintools.exchange.csv_table import MAX_LEVELS, read_header, read_table
 
 DATA = inspection_data(4000)
 COLUMNS = list(DATA.names) + ["leak"]
@@ -199,7 +199,7 @@ CHILD = """
 import os, resource, sys
 resource.setrlimit(resource.RLIMIT_AS, (2 << 30, 2 << 30))  # a reader without bounds fails here, not the machine
 from lintools import InputError
-from lintools.table import read_table
+from lintools.exchange.csv_table import read_table
 try:
     read_table(sys.argv[1], target="y")
 except InputError as exc:

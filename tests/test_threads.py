@@ -1,4 +1,4 @@
-"""Row threads (lintools._threads): a fit on several threads equals the fit on one, the
+"""Row threads (lintools.support.threads): a fit on several threads equals the fit on one, the
 caller's BLAS setting comes back, chunks come back in order.
 
 Sources: statsmodels Logit (the oracle, on data large enough to be split into chunks and
@@ -15,9 +15,9 @@ import pytest
 import statsmodels.api as sm
 
 import lintools as lt
-from lintools import _threads
-from lintools.losses import BinomialLoss
-from lintools.solvers import LinearModelProblem
+from lintools.support import threads as _threads
+from lintools.engine.losses import BinomialLoss
+from lintools.engine import LinearModelProblem
 
 
 def _data(n: int = 120_000, p: int = 6, seed: int = 11):

@@ -1,0 +1,398 @@
+"""Softmax regression over row blocks, one pass per Newton evaluation; see :mod:`lintools.blocks`."""
+
+from __future__ import annotations
+
+import math
+from typing import Any, Callable, Sequence
+
+import numpy as np
+
+from ..support.errors import InputError, LintoolsError, SeparationError
+from ..engine.multinomial import MultinomialLoss
+from ..models.softmax_record import SoftmaxFit
+from ..support.scaling import caller_covariance, check_l2_scale, scaled_back
+from ..support.validate import check_names
+from ..models.inference import likelihood_fields
+from ..support.linalg import unstandardise
+from ..models.logistic import (
+    DEFAULT_TOL,
+    ETA_LIMIT,
+    convergence_record,
+    check_fit_settings,
+    check_parameters_and_rows,
+)
+from ..models.softmax import intercept_subspace, internal_terms, reference_index, z_covariance
+from ..engine import AffineProblem, Evaluation, IterationRecord, SingularMatrixError
+from ..engine.newton import newton
+
+from .stream import COLLECT_ALL, ClassIndex, _merge_labels
+from .runner import make_runner
+from .logistic import _PassProblem, _centres_and_scales, centred_block, merge_design, weights_scale
+from .least_squares import in_caller_units
+from .logistic import _design_kernel as _binary_design_kernel
+
+__all__ = ["softmax_blocks"]
+
+
+def _design_kernel(X: np.ndarray, seen: dict, w: np.ndarray | None, intercept: bool) -> dict:
+    """Pass 1: every label with its total weight, and the R factor of the weighted centred X."""
+    out = _binary_design_kernel(X, {}, w, intercept)
+    del out["labels"]  # merged with the binary fit's three-label rule; ours keep every label
+    out["classes"] = seen
+    return out
+
+
+def _merge_design(a: dict, b: dict, intercept: bool) -> dict:
+    out = merge_design({k: v for k, v in a.items() if k != "classes"},
+                       {k: v for k, v in b.items() if k != "classes"}, intercept)
+    out["classes"] = _merge_labels(a["classes"], b["classes"], keep=None)
+    return out
+
+
+def _evaluation_kernel(X: np.ndarray, codes: np.ndarray, w: np.ndarray | None, inverse: np.ndarray, K: int,
+                       reference: bool, intercept: bool, a: np.ndarray, B: np.ndarray, c: np.ndarray,
+                       inv: np.ndarray, step: tuple | None, scale: float) -> dict:
+    """Objective, gradient, information (unscaled) and runaway rows of one block at ``(a, B)``.
+
+    ``codes`` index the sorted classes, ``inverse`` maps them to the internal order (the
+    reference class first).  As in the binary kernel the columns are centred first
+    (``eta = a + (X - c) B``, ``a`` the intercepts of the centred columns, slope gradients
+    ``(X - c)' R``, the information that of the standardised rows ``(1, (x - c) * inv)``)
+    and the weights divided by ``scale``.  ``step = (a0, B0, da, dB, t)``
+    adds ``value(eta0 + t deta) - value(eta0)``, computed directly.
+    """
+    icodes = inverse[codes]
+    loss = MultinomialLoss(icodes, K, None if w is None else w / scale, reference=reference)
+    D = centred_block(X, c)
+    eta = D @ B + a  # (m, K'), always 2-D
+    out: dict = {"finite": bool(np.all(np.isfinite(eta)))}
+    if step is not None:
+        a0, B0, da, dB, t = step
+        eta0 = D @ B0 + a0
+        out["change"] = loss.value_change(eta0, t * (D @ dB + da)) if out["finite"] else math.inf
+    if not out["finite"]:
+        return out
+    value, R = loss.value_and_gradient(eta)
+    W = loss.curvature(eta)  # (m, K', K')
+    A = np.empty((X.shape[0], X.shape[1] + int(intercept)))
+    if intercept:
+        A[:, 0] = 1.0
+    np.multiply(D, inv, out=A[:, int(intercept):])
+    Kf, p1 = eta.shape[1], A.shape[1]
+    H = np.zeros((p1, Kf, p1, Kf))
+    for k in range(Kf):
+        for m in range(k, Kf):
+            G = A.T @ (A * W[:, k, m, None])
+            H[:, k, :, m] = G
+            if m != k:
+                H[:, m, :, k] = G.T
+    E = loss.full(eta)
+    rows = np.arange(E.shape[0])
+    own = E[rows, icodes]
+    others = E.copy()
+    others[rows, icodes] = -np.inf
+    margin = own - others.max(axis=1)
+    hit = (loss.row_weights() > 0) & (margin > ETA_LIMIT)
+    out.update(value=value, gb=R.sum(axis=0), gx=D.T @ R, H=H.reshape(p1 * Kf, p1 * Kf),
+               runaway=int(hit.sum()), top=float(margin[hit].max()) if hit.any() else 0.0)
+    return out
+
+
+class _SoftmaxBlockProblem(_PassProblem):
+    """The softmax objective as a solver problem whose every evaluation is one pass.
+
+    Coordinates as in :class:`lintools.engine.LinearModelProblem` with ``K'`` outputs:
+    ``z`` is the ``(p+1, K')`` array ``(a; G)`` flattened row by row, ``B = G / s`` and
+    ``b = a - c' B``.  Evaluations (with their information) are cached by ``z``; a
+    line-search trial evaluates its point, so an accepted full step costs one pass.
+    """
+
+    kernel = staticmethod(_evaluation_kernel)
+
+    def __init__(self, run: Any, c: np.ndarray, s: np.ndarray, intercept: bool, lam: float, Kf: int,
+                 a_start: np.ndarray, weight_scale: float, weight_total: float) -> None:
+        self.run, self.c, self.s = run, c, s
+        self.weight_scale, self.weight_total = weight_scale, weight_total
+        self.intercept, self.l2, self.off = intercept, lam / weight_scale, int(intercept)
+        self.p = c.shape[0]
+        self.p1 = self.p + self.off
+        self.K = Kf
+        self.size = self.p1 * Kf
+        self.a_start = a_start
+        pen = np.zeros((self.p1, Kf))
+        if self.l2:
+            pen[self.off :] = ((self.l2 / s) / s)[:, None]  # no overflow of s^2
+        self.pen = pen.ravel()
+        self.cache: dict[bytes, tuple] = {}
+
+    def centred(self, z: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """``(a, B)``: the intercepts of the centred columns and the slopes."""
+        Z = z.reshape(self.p1, self.K)
+        return (Z[0].copy() if self.intercept else np.zeros(self.K)), Z[self.off :] / self.s[:, None]
+
+    def coefficients(self, z: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        a, B = self.centred(z)
+        return (a - self.c @ B if self.intercept else a), B
+
+    def to_original(self, z: np.ndarray) -> np.ndarray:
+        b, B = self.coefficients(z)
+        return np.vstack([b, B]).ravel() if self.intercept else B.ravel()
+
+    def theta_from_z_matrix(self) -> np.ndarray:
+        return unstandardise(self.c, self.s, self.intercept, self.K)
+
+    def start(self) -> np.ndarray:
+        z = np.zeros(self.size)
+        if self.intercept:
+            z[: self.K] = self.a_start
+        return z
+
+    def _store(self, z: np.ndarray, part: dict) -> Evaluation | None:
+        if not part["finite"]:
+            return None
+        _, B = self.centred(z)
+        Gb = np.asarray(part["gb"], dtype=float)
+        centred = part["gx"] + self.l2 * B  # the kernels' products are with X - c
+        slopes = centred / self.s[:, None]
+        GB = centred + np.multiply.outer(self.c, Gb)
+        if self.intercept:
+            gz, original = np.vstack([Gb, slopes]).ravel(), np.vstack([Gb, GB]).ravel()
+        else:
+            gz, original = slopes.ravel(), GB.ravel()
+        H = part["H"].copy()  # the kernels' information is in the standardised coordinates
+        H[np.diag_indices_from(H)] += self.pen
+        value = part["value"] + (0.5 * self.l2 * float(np.sum(B * B)) if self.l2 else 0.0)
+        ev = Evaluation(float(value), gz, original, None, gz / self.weight_total)  # the in-memory stopping rule
+        return self._remember(z, ev, H, part)
+
+    def hessian(self, z: np.ndarray, E: np.ndarray | None = None) -> np.ndarray:
+        H = self.fisher_information(z)
+        return H if E is None else E.T @ H @ E
+
+    def sketch_hessian(self, z: np.ndarray, E: np.ndarray | None = None) -> None:
+        return None  # every pass already reads all rows: exact Hessians throughout
+
+
+class _Indexed:
+    """A runner whose passes code ``y`` as class indices and hand the kernel the class layout."""
+
+    def __init__(self, run: Any, classes: tuple, inverse: np.ndarray, reference: bool, intercept: bool) -> None:
+        self.run, self.spec = run, ClassIndex(classes)
+        self.head = (inverse, len(classes), reference, intercept)
+
+    def reduce(self, kernel: Callable, combine: Callable, args: tuple = (), cargs: tuple = ()) -> Any:
+        return self.run.reduce(kernel, combine, self.head + tuple(args), cargs, labels=self.spec)
+
+
+def softmax_blocks(
+    source: Callable[[], Any] | None = None,
+    *,
+    X: Any = None,
+    y: Any = None,
+    weights: Any = None,
+    intercept: bool = True,
+    l2: float = 0.0,
+    reference: Any = "first",
+    tol: float = DEFAULT_TOL,
+    max_iter: int = 100,
+    names: Sequence[str] | None = None,
+    on_iteration: Callable[[IterationRecord], Any] | None = None,
+) -> SoftmaxFit:
+    r"""Softmax (multinomial logistic) regression over row blocks; the record of :func:`lintools.softmax`.
+
+    .. math::
+
+        \min_{b, B}\; -\sum_i w_i \log \pi_{i c_i} + \tfrac{\lambda}{2}\lVert B\rVert_F^2,\qquad
+        \pi_{ik} = \frac{\exp(b_k + x_i^\top B_{\cdot k})}{\sum_j \exp(b_j + x_i^\top B_{\cdot j})},
+        \quad \lambda = \texttt{l2},
+
+    with ``c_i`` the class of row ``i`` and the intercepts ``b`` never penalised.
+
+    Parameters
+    ----------
+    source : callable, optional
+        A function of no arguments returning a fresh iterator of blocks
+        ``(X_block, y_block)`` or ``(X_block, y_block, weights_block)`` on every call.
+        ``y`` holds class labels of one sortable type; ``classes`` are the sorted labels
+        over all blocks.
+    X, y, weights : dask arrays, optional
+        Instead of ``source``: row-chunked dask arrays with the same row chunks (see
+        :func:`lintools.blocks.least_squares_blocks`).
+    intercept : bool
+        Fit unpenalised intercepts (default True).
+    l2 : float
+        Ridge strength on the slopes.
+    reference : "first", a class label, or None
+        The class whose column of ``(b, B)`` is pinned at zero ("first": the first sorted
+        label), or None for the symmetric form, which needs ``l2 > 0`` and reports
+        intercepts with mean zero (the solver works in the subspace orthogonal to their
+        shared shift, as :func:`lintools.softmax` does).
+    tol : float
+        Stop when the max-abs gradient of the objective per unit of total case weight,
+        with respect to the intercepts and the coefficients of the standardised, centred
+        columns (the rule of :func:`lintools.softmax`, with its promise), is <= tol.
+    max_iter : int
+        Newton iterations allowed; a fit that reaches the limit is marked
+        ``converged=False`` and a :class:`lintools.IterationLimitWarning` is issued.
+    names : sequence of str, optional
+        Coefficient names (default: DataFrame column labels of the first block, else x1..xp).
+    on_iteration : callable, optional
+        Called with a :class:`lintools.engine.IterationRecord` after each iteration.
+
+    Returns
+    -------
+    SoftmaxFit
+        Equal to ``lintools.softmax`` on the concatenated rows to the tolerance
+        (coefficients, standard errors, covariance in the order of :class:`SoftmaxFit`,
+        log-likelihood, deviance, null deviance and the likelihood-ratio test);
+        ``convergence.message`` counts the passes.
+
+    Raises
+    ------
+    InputError
+        A bad block (named by its number, row within the block, column and remedy), fewer
+        than two classes over all blocks, a class with zero total weight, a label on a
+        later pass that the first did not see, the symmetric form without a penalty, an
+        unknown reference label, a source that is not callable, returns no iterator,
+        yields nothing or changes between passes, or (with ``l2 == 0``) fewer rows than
+        parameters, a constant or a linearly dependent column.
+    SeparationError
+        With ``l2 == 0``, when rows' own class leads every other by more than 30 in the
+        linear predictor during the iterations: the classes appear separated and the
+        estimate does not exist.  The exact linear-programming check of the in-memory fit
+        needs all rows at once, so it is not run here.
+
+    Notes
+    -----
+    Passes: one for the labels and their total weights, the centres, scales and rank;
+    one per Newton iteration with an accepted full step (plus one per halving; in the
+    symmetric form with an intercept, one more per iteration).  The null deviance needs
+    no pass: the intercept-only optimum puts each class's probability at its share of
+    the weight, so it is :math:`-2\sum_k W_k \log(W_k / W)` (``2 W \log K`` without an
+    intercept).  Memory: a few copies of one block plus ``O((p K)^2)``.  Offsets are left
+    to the in-memory fit.
+
+    References
+    ----------
+    McCullagh, P. & Nelder, J. A. (1989). Generalized Linear Models, 2nd ed., sec. 6.4.
+    Böhning, D. (1992). Multinomial logistic regression algorithm. Annals of the Institute
+    of Statistical Mathematics 44, 197-200.
+    Albert, A. & Anderson, J. A. (1984). Biometrika 71, 1-10 (existence of the estimate).
+    """
+    intercept, lam, tol, max_iter = check_fit_settings(intercept, l2, tol, max_iter, on_iteration)
+    if reference is None:
+        reference_index(None, (), lam)  # the symmetric form needs l2 > 0: say so before any pass
+    run = make_runner(source, X, y, weights, labels=COLLECT_ALL)
+    part = in_caller_units(run.reduce(_design_kernel, _merge_design, (intercept,), (intercept,)))
+    p = run.spec.p
+    names_t = check_names(names, p, run.names)
+    seen = part["classes"]
+    classes = tuple(sorted(seen))
+    K = len(classes)
+    if K < 2:
+        raise InputError(f"y has only one class ({classes[0]!r}) over all blocks; a softmax model needs at least "
+                         "two: check the target column or the rows selected")
+    if part["n_pos"] == 0:
+        raise InputError("weights are zero in every block; at least one row needs a positive weight")
+    scale = weights_scale(part)  # refuses a total weight beyond float64 before any share of it
+    totals = np.array([seen[c][2] for c in classes])
+    if np.any(totals <= 0):
+        label = classes[int(np.argmin(totals > 0))]
+        block, row = seen[label][0], seen[label][1]
+        raise InputError(
+            f"class {label!r} of y (first seen at row {row} of block {block}) has zero total weight over all "
+            "blocks; its probability would be 0: drop those rows' class from y, or give them positive weights"
+        )
+    ref = reference_index(reference, classes, lam)
+    if lam == 0:
+        check_parameters_and_rows(p + int(intercept), int(part["n_pos"]))
+    c, s = _centres_and_scales(part, intercept, lam, names_t)
+
+    # internal class order: the reference class first, the others in classes order
+    order = np.arange(K) if ref is None else np.array([ref] + [k for k in range(K) if k != ref])
+    inverse = np.argsort(order)
+    logs = np.log(totals[order] / totals.sum())
+    a_start = logs[1:] - logs[0] if ref is not None else logs - logs.mean()
+    Kf = K - 1 if ref is not None else K
+    runner = _Indexed(run, classes, inverse, ref is not None, intercept)
+    check_l2_scale(lam, scale)
+    problem = _SoftmaxBlockProblem(runner, c, s, intercept, lam, Kf, a_start, scale, part["W"] / scale)
+    target: Any = problem
+    start = None
+    if ref is None and intercept:
+        E = intercept_subspace(problem)
+        target = AffineProblem(problem, np.zeros(problem.size), E)
+        start = E.T @ problem.start()
+
+    def monitor(z, ev):
+        count, top = problem.runaway(z)
+        if count:
+            return (f"{count} row(s) have their own class ahead of every other by more than {ETA_LIMIT:g} "
+                    f"in the linear predictor (up to {top:.3g})")
+        return None
+
+    res = newton(target, tol=tol, max_iter=max_iter, on_iteration=on_iteration,
+                 monitor=monitor if lam == 0 else None, start=start)
+    if res.status == "diverging":
+        raise SeparationError(
+            f"the fit diverges: after {res.iterations} iteration(s) {res.message.split(': ', 1)[1]}: the classes "
+            "appear separated, so the maximum-likelihood estimate does not exist (Albert & Anderson 1984). The "
+            "exact check (a linear programme) needs all rows at once and is not run on blocks. "
+            "Remedy: l2 > 0 (a ridge penalty on the slopes gives finite estimates)"
+        )
+    ill = ("the design is full rank but too ill-conditioned for the fitted weights; rescale or drop nearly "
+           "collinear columns, or set l2 > 0")
+    if res.status == "singular":
+        raise LintoolsError(f"{res.message}: {ill}")
+    z = target.embed(res.z) if target is not problem else res.z
+    try:
+        Vz = z_covariance(problem, target, z)
+    except SingularMatrixError:
+        raise LintoolsError(f"the information matrix is singular at the answer: {ill}") from None
+    return _softmax_record(problem, res, z, Vz, order, ref, classes, totals, part["W"], lam, intercept,
+                           names_t, run.passes)
+
+
+def _softmax_record(problem: _SoftmaxBlockProblem, res: Any, z: np.ndarray, Vz: np.ndarray, order: np.ndarray,
+                    ref: int | None, classes: tuple, totals: np.ndarray, W: float, lam: float, intercept: bool,
+                    names: tuple[str, ...], passes: int) -> SoftmaxFit:
+    """The :class:`SoftmaxFit` of a converged (or stopped) blocked fit, laid out as the in-memory one."""
+    ev = problem.evaluate(z)
+    part = problem.cache[z.tobytes()][2]
+    K, Kf, p1, p = len(classes), problem.K, problem.p1, problem.p
+    scale = problem.weight_scale  # the passes' weights are the caller's / scale
+    V = caller_covariance(problem.theta_from_z_matrix(), Vz, scale, internal_terms(names, classes, order, ref, intercept),
+                          np.repeat(np.concatenate([np.full(int(intercept), np.nan), problem.s]), Kf))
+    first = 0 if ref is None else 1
+    full_t, full_se = np.zeros((p1, K)), np.zeros((p1, K))
+    full_t[:, first:] = problem.to_original(z).reshape(p1, Kf)
+    full_se[:, first:] = np.sqrt(np.clip(np.diag(V), 0.0, None)).reshape(p1, Kf)
+    if ref is None and intercept:
+        full_t[0] -= full_t[0].mean()  # the shared shift of the intercepts is not determined
+    back = np.argsort(order)
+    full_t, full_se = full_t[:, back], full_se[:, back]  # classes order
+    # covariance: internal (term-major, internal free columns) -> class-major in classes order
+    internal_col = {int(order[j]): j - first for j in range(first, K)}
+    free_sorted = [k for k in range(K) if ref is None or k != ref]
+    perm = [t * Kf + internal_col[k] for k in free_sorted for t in range(p1)]
+    Vc = V[np.ix_(perm, perm)]
+    loglik = scaled_back(-float(part["value"]), scale, "log-likelihood")
+    dev = -2.0 * loglik  # one-label rows: the saturated log-likelihood is 0
+    total = float(totals.sum())
+    if intercept:
+        null_dev = -2.0 * float(np.sum((totals / scale) * np.log(totals / total)))
+    else:
+        null_dev = 2.0 * (total / scale) * math.log(K)
+    null_dev = scaled_back(null_dev, scale, "null deviance")
+    k_free = p1 * Kf - (1 if (ref is None and intercept) else 0)
+    lr_df = p * (K - 1)
+    lr = max(null_dev - dev, 0.0) if lam == 0 else float("nan")
+    conv = convergence_record(res, ev, problem, z, "newton", note=f"; {passes} passes over the blocks")
+    return SoftmaxFit(
+        coefficients=full_t[int(intercept):], intercept=full_t[0] if intercept else np.zeros(K),
+        standard_errors=full_se[int(intercept):], intercept_standard_error=full_se[0] if intercept else None,
+        covariance=Vc, log_likelihood=loglik, deviance=dev, n_observations=float(W), names=names, convergence=conv,
+        with_intercept=bool(intercept), l2=lam, classes=classes,
+        reference_class=None if ref is None else classes[ref], null_deviance=null_dev,
+        **likelihood_fields(loglik, k_free, float(W), lr, lr_df), has_offset=False, target="y",
+    )

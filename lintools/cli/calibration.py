@@ -1,0 +1,247 @@
+"""``lintools calibration``: how well a column of probabilities matches the labels.
+
+Text always: the reliability table (observed frequency with Wilson intervals against the
+mean forecast per bin), the Brier score with Murphy's decomposition, the binned
+calibration error, the Hosmer-Lemeshow test, Cox's calibration line and
+Spiegelhalter's z test, and the ROC area with its DeLong interval.  With ``--plot PATH``
+a reliability diagram is written as PNG; that needs matplotlib (the ``plot`` extra).
+
+The probabilities are read as those of the positive label: the larger of the two labels
+unless ``--positive`` names it; the command says which (on standard error), and warns
+when the ROC area is below 0.5, the mark of probabilities of the other class.
+"""
+
+from __future__ import annotations
+
+import argparse
+import io
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from .common import check_output_paths, emit_json, match_label, probabilities_in_range, whole
+from ..support.errors import InputError, LintoolsError
+
+PLOT_EXTRA = ('the plot extra: python -m pip install -e ".[plot]" in a checkout of lintools, '
+              'or python -m pip install "matplotlib>=3.7"')
+
+
+@dataclass(frozen=True)
+class CalibrationReport:
+    """Every calibration statistic the command prints; a missing one carries its reason."""
+
+    rows: int
+    positive: Any
+    reliability: Any
+    brier: Any
+    calibration_error: float
+    hosmer_lemeshow: Any
+    calibration_line: Any
+    spiegelhalter: Any
+    roc_area: Any
+    notes: tuple[str, ...]
+
+    def text(self) -> str:
+        """The report as text."""
+        parts = [self.reliability.report(), self.brier.report(),
+                 f"calibration error (equal-width bins, mean |observed - forecast|): {self.calibration_error:.6g}\n"]
+        for name in ("hosmer_lemeshow", "calibration_line"):
+            value = getattr(self, name)
+            if value is not None:
+                parts.append(value.report())
+        s = self.spiegelhalter
+        if s is not None:
+            parts.append(f"Spiegelhalter z test: z {s.statistic:.4f}, p {s.p_value:.4g} (Brier {s.brier:.6g}, "
+                         f"expected under calibration {s.expected_brier:.6g})\n")
+        if self.roc_area is not None:
+            parts.append(self.roc_area.report())
+        parts += [f"not computed: {n}\n" for n in self.notes]
+        return "\n".join(parts)
+
+    def to_json(self) -> dict:
+        """A JSON-ready dictionary (the calibration line without its two inner fits)."""
+        line = None
+        if self.calibration_line is not None:
+            import dataclasses
+
+            line = {f.name: getattr(self.calibration_line, f.name) for f in dataclasses.fields(self.calibration_line)
+                    if f.name not in ("line_fit", "offset_fit")}
+        return {"rows": self.rows, "positive": str(self.positive), "reliability": self.reliability,
+                "brier": self.brier, "calibration_error": self.calibration_error,
+                "hosmer_lemeshow": self.hosmer_lemeshow, "calibration_line": line,
+                "spiegelhalter": self.spiegelhalter, "roc_area": self.roc_area, "notes": list(self.notes)}
+
+
+def calibration_report(y: Any, p: np.ndarray, *, positive: Any = None, bins: int = 10, strategy: str = "width",
+                       groups: int = 10, weights: Any = None) -> CalibrationReport:
+    """Compute the statistics of the calibration report (used by the command and the demo)."""
+    from ..support.outcomes import binary_outcome
+    from ..metrics.scores import brier
+    from ..metrics.bins import calibration_error, reliability
+    from ..metrics.checks import calibration_line, hosmer_lemeshow, spiegelhalter
+    from ..metrics.discrimination import roc_auc
+
+    table = reliability(y, p, bins=bins, strategy=strategy, weights=weights, positive=positive)
+    b = brier(y, p, weights=weights, bins=bins, positive=positive)  # Murphy terms over the same bins
+    ece = calibration_error(y, p, bins=bins, strategy=strategy, weights=weights, positive=positive)
+    notes = []
+
+    def attempt(name: str, fn: Any) -> Any:
+        try:
+            return fn()
+        except (InputError, LintoolsError) as exc:
+            notes.append(f"{name}: {exc}")
+            return None
+
+    hl = attempt("Hosmer-Lemeshow test", lambda: hosmer_lemeshow(y, p, groups=groups, weights=weights, positive=positive))
+    line = attempt("calibration line", lambda: calibration_line(y, p, weights=weights, positive=positive))
+    sp = attempt("Spiegelhalter test", lambda: spiegelhalter(y, p, weights=weights, positive=positive))
+    auc = attempt("ROC area", lambda: roc_auc(y, p, weights=weights, positive=positive))
+    _, (_, pos) = binary_outcome(y, positive)
+    return CalibrationReport(rows=len(p), positive=pos, reliability=table, brier=b, calibration_error=float(ece),
+                             hosmer_lemeshow=hl, calibration_line=line, spiegelhalter=sp, roc_area=auc,
+                             notes=tuple(notes))
+
+
+def plot_reliability(table: Any, path: str, title: str = "Reliability diagram") -> None:
+    """Write a reliability diagram of ``table`` (a :class:`ReliabilityTable`) as a PNG file.
+
+    Draws every bin that has weight (empty bins, and bins whose rows all have weight 0,
+    have no observed frequency and are left out of the curve but kept in the row counts
+    below), with the table's interval as error bars; a table with no such bin draws the
+    diagonal and the counts only.  Needs matplotlib, imported here only; without it an
+    :class:`InputError` names the ``plot`` extra.
+    """
+    try:
+        from matplotlib.backends.backend_agg import FigureCanvasAgg
+        from matplotlib.figure import Figure
+    except ImportError:
+        raise InputError(f"a reliability diagram needs matplotlib, which is not installed: {PLOT_EXTRA}") from None
+    fig = Figure(figsize=(6.0, 6.5))
+    FigureCanvasAgg(fig)
+    top, bottom = fig.subplots(2, 1, sharex=True, gridspec_kw={"height_ratios": [3, 1]})
+    full = (table.weight > 0) & np.isfinite(table.observed) & np.isfinite(table.mean_predicted)
+    f, o = table.mean_predicted[full], table.observed[full]
+    lo, hi = table.observed_lower[full], table.observed_upper[full]
+    # the table's intervals contain the observed frequency (reliability guarantees it);
+    # the bars are the distances to the bounds, never negative
+    yerr = np.maximum(np.vstack([o - lo, hi - o]), 0.0)
+    top.plot([0, 1], [0, 1], linestyle=":", color="grey", label="perfect calibration")
+    top.errorbar(f, o, yerr=yerr, fmt="o-", capsize=3,
+                 label=f"observed frequency, {100 * table.level:g}% Wilson interval")
+    top.set_ylabel("observed frequency")
+    top.set_xlim(0, 1)
+    top.set_ylim(0, 1)
+    top.set_title(title)
+    top.legend(loc="upper left", fontsize="small")
+    centres = 0.5 * (table.edges[:-1] + table.edges[1:])
+    bottom.bar(centres, table.count, width=np.diff(table.edges) * 0.9, color="tab:grey")
+    bottom.set_xlabel("forecast probability (the bins of the table)")
+    bottom.set_ylabel("rows")
+    fig.tight_layout()
+    fig.savefig(path, format="png", dpi=100)
+
+
+def swapped_class_warning(rep: CalibrationReport) -> str | None:
+    """The warning for a ROC area below 0.5: the forecasts rank the other class higher."""
+    if rep.roc_area is None or not rep.roc_area.area < 0.5:
+        return None
+    return (f"the ROC area is {rep.roc_area.area:.3g}, below 0.5: the probabilities may be for the other class: "
+            f"see --positive (they are read as those of class '{rep.positive!s}')")
+
+
+def run_calibration(args: argparse.Namespace) -> int:
+    """The ``calibration`` subcommand."""
+    from ..support.files import write_atomic
+    from .table_options import table_options
+    from ..exchange.csv_table import read_table
+
+    if args.plot is not None:  # fail before any work when the extra is missing
+        try:
+            import matplotlib  # noqa: F401
+        except ImportError:
+            raise InputError(f"--plot needs matplotlib, which is not installed: {PLOT_EXTRA}") from None
+    check_output_paths([("CSV file", args.csv)], [("--plot", args.plot)], args.replace)
+    if args.label == args.probability:
+        raise InputError("--label and --probability name the same column; pass two columns")
+    # the probability column is read as a feature and the weights as weights: the reader's
+    # strict number rules (and --decimal, --missing-values) hold for them as for a fit
+    band_column = None if args.bands is None or args.bands.isdigit() else args.bands
+    table = read_table(args.csv, target=args.label, features=[args.probability], weights=args.weights,
+                       extra=[band_column] if band_column else [], drop_missing=args.drop_missing,
+                       **table_options(args, "categorical"))
+    if table.names != (args.probability,):
+        raise InputError(f"{args.csv!r}: the probability column '{args.probability}' holds text, not numbers; "
+                         "pass the column of predicted probabilities with --probability")
+    p = probabilities_in_range(table.X[:, 0], table.lines, args.probability, args.csv)
+    w = table.weights
+    y = list(table.target)
+    positive = match_label(args.positive, sorted(set(y), key=str), "--positive") if args.positive else None
+    rep = calibration_report(y, p, positive=positive, bins=args.bins, strategy=args.strategy,
+                             groups=args.groups, weights=w)
+    grades = None
+    if args.bands is not None:
+        from ..metrics.band_tests import band_tests
+
+        count = int(args.bands) if band_column is None else 0
+        if band_column is None and count < 1:
+            raise InputError("--bands 0: pass a number of quantile bands of 1 or more, or a column of grades")
+        grades = band_tests(y, p, list(table.extra[band_column]) if band_column else count, weights=w,
+                            positive=positive)
+    console = args.console
+    how = "chosen with --positive" if positive is not None else "the larger label; choose with --positive"
+    console.note(f"taking '{args.probability}' as the probability of class '{rep.positive!s}' ({how})")
+    swapped = swapped_class_warning(rep)
+    if swapped:
+        console.warning(swapped)
+    if args.plot is not None:
+        png = io.BytesIO()  # drawn in memory, then written atomically
+        plot_reliability(rep.reliability, png, f"Reliability of '{args.probability}' for '{args.label}'")
+        write_atomic(args.plot, png.getvalue(), replace=args.replace, label="--plot", replace_hint="--replace")
+        console.note(f"reliability diagram written to {args.plot}")
+    if args.json:
+        doc = rep.to_json()
+        doc.update({"data": args.csv, "label": args.label, "probability": args.probability,
+                    "dropped_rows": table.dropped, "plot": args.plot, "band_tests": grades,
+                    "warnings": [text for _, text in args.warnings_seen] + ([swapped] if swapped else [])})
+        emit_json(doc)
+    else:
+        print(f"Calibration of '{args.probability}' against '{args.label}' (positive label {rep.positive}) "
+              f"in {args.csv}: {rep.rows} rows" + (f", {table.dropped} dropped for missing values" if table.dropped else "")
+              + "\n")
+        print(rep.text())
+        if grades is not None:
+            print(grades.report())
+        console.caution()
+    return 0
+
+
+def add_calibration_parser(sub: Any, common: Any) -> None:
+    """Register the ``calibration`` subcommand."""
+    p = sub.add_parser(
+        "calibration",
+        help="calibration report of a probability column against a label column of a CSV file",
+        description=(
+            "The reliability table (always, as text), the Brier score and its decomposition, the calibration "
+            "error, the Hosmer-Lemeshow test, the calibration line, Spiegelhalter's test and the ROC area. "
+            f"--plot writes a reliability diagram as PNG; it needs matplotlib ({PLOT_EXTRA})."
+        ),
+    )
+    p.add_argument("csv", help="CSV file with a header line")
+    p.add_argument("--label", required=True, help="the column of observed labels (two classes)")
+    p.add_argument("--probability", required=True, help="the column of forecast probabilities of the positive label")
+    p.add_argument("--positive", help="the positive label (default: the larger of the two labels)")
+    p.add_argument("--weights", help="column of case weights")
+    p.add_argument("--bins", type=whole(1), default=10, help="bins of the reliability table (default 10)")
+    p.add_argument("--strategy", choices=["width", "count"], default="width",
+                   help="bins of equal width (default) or of equal numbers of rows")
+    p.add_argument("--groups", type=whole(3), default=10, help="risk groups of the Hosmer-Lemeshow test (default 10)")
+    p.add_argument("--bands", metavar="N|COLUMN",
+                   help="also back-test the probabilities band by band (exact binomial and Jeffreys tests): N "
+                        "quantile bands of the probabilities, or a column of rating grades")
+    p.add_argument("--plot", metavar="PNG", help=f"write a reliability diagram to this PNG file ({PLOT_EXTRA})")
+    p.add_argument("--replace", action="store_true", help="replace an existing --plot file")
+    p.add_argument("--drop-missing", action="store_true", help="drop lines with missing values instead of stopping")
+    common(p)
+    p.set_defaults(run=run_calibration)

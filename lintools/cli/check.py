@@ -1,0 +1,336 @@
+"""``lintools check``: a delivered model file against a refit on a CSV file.
+
+The delivered file is a lintools JSON model file or a PMML 4.4 regression model; which
+one is decided by the content (a JSON object starts with ``{``, XML with ``<``), never by
+the file name.  The refit is the same kind of model (least squares, logistic, softmax)
+with the delivered model's feature names as columns and its target column.  The verdict:
+
+* the delivered coefficients **disagree** with the refit when the Wald test of "delivered
+  = refit" rejects at ``--significance`` (default 0.05), or when ``--max-difference`` is
+  given and the largest absolute difference in predicted probability (for least squares:
+  in the predicted response) on the CSV rows exceeds it;
+* otherwise they **agree** (exit 0); disagreement exits 1, bad input 2.
+"""
+
+from __future__ import annotations
+
+import argparse
+import dataclasses
+import sys
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from .common import (
+    Progress,
+    add_fit_options,
+    class_note,
+    emit_json,
+    fit_options,
+    fraction,
+    implied_words,
+    match_label,
+    nonnegative,
+    refuse_inapplicable,
+)
+from .console import CAUTION, report_text
+from ..support.errors import InputError, IterationLimitWarning
+
+DEFAULT_SIGNIFICANCE = 0.05
+
+
+@dataclass(frozen=True)
+class Delivered:
+    """What the check needs from a delivered model file, whatever its format."""
+
+    kind: str
+    names: tuple[str, ...]
+    coefficients: np.ndarray
+    intercept: Any  # None when the model has no intercept
+    classes: tuple
+    positive: Any
+    target: str
+    l2: float | None
+    covariance_type: str | None
+    file_format: str
+    reference: Any = "first"  # softmax: the class pinned at zero (None: symmetric form)
+    categorical_fields: tuple = ()  # the text columns behind indicator columns 'column=level'
+
+
+def read_delivered(path: str) -> Delivered:
+    """Read a lintools JSON model file or a PMML document, recognised by its first byte
+    (see :func:`lintools.exchange.scoring.read_model`)."""
+    from ..exchange.scoring import read_model
+
+    m = read_model(path)
+    if not hasattr(m, "source"):  # a fit record from a lintools JSON model file
+        fit = m
+        return Delivered(
+            kind=fit.kind, names=tuple(fit.names), coefficients=np.asarray(fit.coefficients),
+            intercept=fit.intercept if fit.with_intercept else None, classes=tuple(getattr(fit, "classes", ())),
+            positive=getattr(fit, "positive_class", None), target=getattr(fit, "target", "y"), l2=float(fit.l2),
+            covariance_type=getattr(fit, "covariance_type", None), file_format="lintools JSON model file",
+            reference=getattr(fit, "reference_class", "first"), categorical_fields=tuple(fit.categorical_fields),
+        )
+    reference: Any = "first"
+    if m.kind == "softmax":  # a class whose table is all zero was the reference class
+        zero = [c for k, c in enumerate(m.classes)
+                if not np.any(np.asarray(m.coefficients)[:, k]) and np.asarray(m.intercept)[k] == 0.0]
+        reference = zero[0] if len(zero) == 1 else "first"
+    return Delivered(
+        kind=m.kind, names=tuple(m.names), coefficients=np.asarray(m.coefficients), intercept=m.intercept,
+        classes=tuple(m.classes), positive=m.classes[0] if m.kind == "logistic" else None, target=m.target,
+        l2=None, covariance_type=None, file_format="PMML 4.4 RegressionModel", reference=reference,
+        categorical_fields=tuple(m.categorical_fields),
+    )
+
+
+def _columns_for(names: tuple[str, ...], header: list[str], where: str) -> list[str]:
+    """CSV columns behind the delivered names (``col=level`` names come from text column ``col``)."""
+    cols: list[str] = []
+    for name in names:
+        col = name
+        if name not in header and "=" in name and name.split("=", 1)[0] in header:
+            col = name.split("=", 1)[0]
+        if col not in header:
+            raise InputError(
+                f"the delivered model's feature '{name}' is not a column of {where!r} (its columns: "
+                f"{', '.join(header)}); the refit needs every feature the model uses"
+            )
+        if col not in cols:
+            cols.append(col)
+    return cols
+
+
+def read_refit_data(args: argparse.Namespace, d: Delivered) -> tuple[Any, np.ndarray, str]:
+    """Read the target and the delivered features; return (table, X in delivered order, target)."""
+    from .table_options import table_options
+    from ..exchange.csv_table import read_header, read_table
+
+    target = args.target or d.target
+    header = list(read_header(args.csv, **table_options(args, "categorical", header=True)))
+    if d.categorical_fields:  # the text columns are known: read them as the model does when it scores
+        from ..exchange.scoring import model_inputs, read_inputs
+
+        inputs = model_inputs(d.names, d.categorical_fields)
+        absent = [c for c in inputs.columns if c not in header]
+        if absent:
+            raise InputError(f"the delivered model's input '{absent[0]}' is not a column of {args.csv!r} (its "
+                             f"columns: {', '.join(header)}); the refit needs every input the model uses")
+        table, X = read_inputs(args.csv, inputs, table_options(args, "categorical"), target=target,
+                               weights=args.weights, drop_missing=args.drop_missing)
+        return table, X, target
+    cols = _columns_for(d.names, header, args.csv)
+    kwargs = dict(target=target, features=cols, weights=args.weights, drop_missing=args.drop_missing,
+                  **table_options(args, "categorical"))
+    table = read_table(args.csv, **kwargs)
+    extra = [n for n in table.names if n not in d.names]
+    if extra:  # a text column whose reference level differs from the delivered model's
+        refs = {}
+        for col, ref in table.reference_levels.items():
+            levels = [ref] + [n.split("=", 1)[1] for n in table.names if n.startswith(col + "=")]
+            absent = [lv for lv in levels if f"{col}={lv}" not in d.names]
+            if len(absent) == 1:
+                refs[col] = absent[0]
+        table = read_table(args.csv, **kwargs, reference_levels=refs)
+    missing = [n for n in d.names if n not in table.names]
+    extra = [n for n in table.names if n not in d.names]
+    if missing or extra:
+        raise InputError(
+            f"the columns of {args.csv!r} do not give the delivered features: "
+            + (f"no column for {missing}" if missing else "")
+            + ("; " if missing and extra else "")
+            + (f"levels without a delivered coefficient {extra}" if extra else "")
+            + "; the text columns must have the levels the delivered model was fitted on"
+        )
+    order = [table.names.index(n) for n in d.names]
+    return table, table.X[:, order], target
+
+
+def _refit(d: Delivered, table: Any, X: np.ndarray, target: str, args: argparse.Namespace, progress: Progress) -> Any:
+    l2 = args.l2 if args.l2 is not None else (d.l2 or 0.0)
+    with_b = d.intercept is not None
+    if d.kind == "least_squares":
+        from ..models.least_squares import least_squares
+
+        if not all(isinstance(v, (int, float)) for v in table.target):
+            raise InputError(f"target column '{target}' holds text; a least-squares model needs numbers")
+        fit = least_squares(
+            X, np.array(table.target, dtype=float), weights=table.weights, intercept=with_b, l2=l2,
+            covariance=args.covariance or d.covariance_type or "classical", names=d.names,
+            rank_deficient="minimum_norm" if args.minimum_norm else "raise", weight_type=args.weight_type or "case",
+        )
+    elif d.kind == "logistic":
+        from ..models.logistic import logistic
+
+        labels = sorted(set(table.target), key=str)
+        if len(labels) != 2:
+            raise InputError(f"target column '{target}' has {len(labels)} distinct labels; a logistic model needs two")
+        if args.positive is not None:
+            positive = match_label(args.positive, labels, "--positive")
+        else:
+            positive = _positive_in(d.positive, labels)
+        fit = logistic(
+            X, list(table.target), weights=table.weights, intercept=with_b, l2=l2, firth=args.firth,
+            names=d.names, on_iteration=progress, positive=positive, **fit_options(args),
+        )
+    else:
+        from ..models.softmax import softmax
+
+        reference = d.reference
+        if reference not in ("first", None):
+            reference = match_label(str(reference), sorted(set(table.target), key=str), "the model's reference class")
+        fit = softmax(
+            X, list(table.target), weights=table.weights, intercept=with_b, l2=l2, reference=reference,
+            names=d.names, on_iteration=progress, **fit_options(args),
+        )
+    return dataclasses.replace(fit, target=target)
+
+
+def _positive_in(positive: Any, labels: list) -> Any:
+    """The CSV label that stands for the delivered model's positive class."""
+    for label in labels:
+        if str(label) == str(positive):
+            return label
+    if isinstance(positive, (bool, np.bool_)) and set(labels) == {0, 1}:
+        return int(positive)
+    shown = ", ".join(repr(str(v)) for v in labels)
+    raise InputError(
+        f"the delivered model gives the probability of {str(positive)!r}, which is not a label of the "
+        f"target column ({shown}); name the positive label with --positive"
+    )
+
+
+def _softmax_delivered(d: Delivered, fit: Any) -> tuple[np.ndarray, Any, str | None]:
+    """Delivered softmax columns in the refit's class order.
+
+    The comparison itself re-expresses them in the refit's parametrisation (reference
+    column subtracted, or intercepts centred), which leaves the probabilities unchanged.
+    """
+    B = np.asarray(d.coefficients, dtype=float)
+    b = None if d.intercept is None else np.asarray(d.intercept, dtype=float)
+    order = []
+    for c in fit.classes:
+        hits = [k for k, dc in enumerate(d.classes) if str(dc) == str(c)]
+        if len(hits) != 1:
+            raise InputError(f"the delivered model has no class {str(c)!r} (its classes: {list(map(str, d.classes))})")
+        order.append(hits[0])
+    if len(d.classes) != len(fit.classes):
+        raise InputError(f"the delivered model has {len(d.classes)} classes but the target column has "
+                         f"{len(fit.classes)} ({', '.join(map(str, fit.classes))})")
+    note = None
+    ref = getattr(fit, "reference_class", None)
+    if ref is not None and (np.any(B[:, order[fit.classes.index(ref)]]) or
+                            (b is not None and b[order[fit.classes.index(ref)]] != 0.0)):
+        note = (f"the delivered softmax coefficients are compared relative to the class {str(ref)!r} "
+                "(its column subtracted from every column; the probabilities are unchanged)")
+    return B[:, order], None if b is None else b[order], note
+
+
+def run_check(args: argparse.Namespace) -> int:
+    """The ``check`` subcommand."""
+    from ..exchange.crosscheck import compare_coefficients, implied_l2
+
+    d = read_delivered(args.model)
+    refuse_inapplicable(args, d.kind, "the delivered model")
+    table, X, target = read_refit_data(args, d)
+    fit = _refit(d, table, X, target, args, Progress(args.quiet, "refit"))
+    chosen = "chosen with --positive" if args.positive is not None else "as in the model file; choose with --positive"
+    note_words = class_note(fit, {"logistic": chosen,
+                                  "softmax": "as in the model file"})
+    if note_words:
+        args.console.note(note_words)
+    caught = args.warnings_seen
+    coef, intercept, note = d.coefficients, d.intercept, None
+    if d.kind == "softmax":
+        coef, intercept, note = _softmax_delivered(d, fit)
+    y = np.array(table.target, dtype=float) if d.kind == "least_squares" else list(table.target)
+    cmp = compare_coefficients(fit, coef, intercept, X=X, y=y, weights=table.weights)
+
+    implied = None
+    if d.kind in ("least_squares", "logistic") and np.any(coef):
+        yy = y if d.kind == "least_squares" else np.array([v == fit.positive_class for v in y])
+        implied = implied_l2(X, yy, coef, intercept, model=d.kind, weights=table.weights)
+    total = float(table.weights.sum()) if table.weights is not None else float(X.shape[0])
+    implied_text = None if implied is None else implied_words(implied, total)
+
+    reasons = []
+    if cmp.wald_p_value < args.significance:
+        reasons.append(f"the Wald test rejects 'delivered = refit' at significance {args.significance:g} "
+                       f"(p {cmp.wald_p_value:.3g})")
+    gap = cmp.max_abs_prediction_difference
+    if args.max_difference is not None and gap is not None and gap > args.max_difference:
+        what = "response" if d.kind == "least_squares" else "probability"
+        reasons.append(f"the largest difference in predicted {what} ({gap:.3g}) exceeds --max-difference "
+                       f"{args.max_difference:g}")
+    not_converged = (not fit.convergence.converged) or any(issubclass(c, IterationLimitWarning) for c, _ in caught)
+    agree = not reasons and not not_converged
+
+    if args.json:
+        emit_json({
+            "model": args.model, "format": d.file_format, "kind": d.kind, "target": target, "data": args.csv,
+            "rows": int(X.shape[0]), "dropped_rows": table.dropped, "refit": fit.to_dict(),
+            "comparison": cmp, "implied_l2": implied, "implied_l2_words": implied_text, "note": note,
+            "tolerance": {"significance": args.significance, "max_difference": args.max_difference},
+            "agree": agree, "reasons": reasons, "refit_converged": not not_converged,
+            "warnings": [text for _, text in caught], "caution": CAUTION,
+        })
+    else:
+        _print_text(args, d, fit, cmp, implied_text, note, reasons, target, X.shape[0], table.dropped)
+        args.console.caution()
+    if not_converged:
+        print("lintools: the refit did not converge; the comparison is not meaningful", file=sys.stderr)
+        return 1
+    return 0 if agree else 1
+
+
+def _print_text(args, d, fit, cmp, implied_text, note, reasons, target, n, dropped) -> None:
+    print(f"Check of {args.model} ({d.file_format}, {d.kind} model of '{target}')")
+    print(f"against a refit on {args.csv} ({n} rows{f', {dropped} dropped for missing values' if dropped else ''})\n")
+    print("Refit")
+    print(report_text(fit))
+    print("Delivered minus refit (differences also in refit standard errors)")
+    print(cmp.report())
+    if note:
+        print(f"Note: {note}")
+    if implied_text is not None:
+        print(implied_text)
+    tol = f"significance {args.significance:g} for the Wald test"
+    if args.max_difference is not None:
+        tol += f"; largest prediction difference {args.max_difference:g}"
+    print(f"\nTolerance: {tol}")
+    if reasons:
+        print("Verdict: DISAGREE: " + "; ".join(reasons))
+    else:
+        print("Verdict: AGREE within the tolerance")
+
+
+def add_check_parser(sub: Any, common: Any) -> None:
+    """Register the ``check`` subcommand."""
+    p = sub.add_parser(
+        "check",
+        help="check a delivered model file (lintools JSON or PMML) against a refit on a CSV file",
+        description=(
+            "Refit the delivered model's kind of model on the CSV file (its feature names as columns, its "
+            "target column), and compare: per-coefficient differences in standard errors, the Wald test of "
+            "'delivered = refit', the score test at the delivered coefficients, and prediction differences. "
+            "Exit 0 when they agree, 1 when they disagree (the Wald test rejects at --significance, or the "
+            "largest prediction difference exceeds --max-difference) or the refit does not converge, "
+            "2 for bad input."
+        ),
+    )
+    p.add_argument("model", help="the delivered model file: lintools JSON or PMML 4.4 (recognised by content)")
+    p.add_argument("csv", help="CSV file with a header line: the development data")
+    p.add_argument("--target", help="the response column (default: the target named in the model file)")
+    p.add_argument("--weights", help="column of case weights")
+    p.add_argument("--l2", type=nonnegative, help="ridge strength of the refit (default: the model file's, else 0)")
+    add_fit_options(p, "the label whose probability the model gives (default: from the file)")
+    p.add_argument("--significance", type=fraction, default=DEFAULT_SIGNIFICANCE,
+                   help="disagree when the Wald test's p-value is below this (default 0.05)")
+    p.add_argument("--max-difference", type=nonnegative, default=None,
+                   help="also disagree when the largest absolute difference in predicted probability "
+                        "(least squares: predicted response) on the CSV rows exceeds this (default: not used)")
+    p.add_argument("--drop-missing", action="store_true", help="drop lines with missing values instead of stopping")
+    common(p)
+    p.set_defaults(run=run_check)

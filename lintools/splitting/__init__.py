@@ -1,0 +1,3 @@
+"""Stratified splitting: hold-out, folds, repeated folds, bootstrap and the balance
+report.  Imports support only.
+"""
