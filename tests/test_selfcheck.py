@@ -71,6 +71,19 @@ def test_selfcheck_text_names_the_machine_and_every_verdict(capsys):
     assert "every check passed" in out
 
 
+def test_selfcheck_passes_with_the_refinement_held_to_float64(monkeypatch, capsys):
+    # Platforms whose long double is float64 (Windows, macOS on ARM) refine least squares in
+    # float64; the required digits must not lean on an 80-bit long double.  Source: the
+    # first-order bound 16 - log10(condition number) the requirements are set by (Higham 2002)
+    import lintools.models.lsq_qr as lsq_qr
+
+    monkeypatch.setattr(lsq_qr, "_LD", np.float64)
+    code, doc, err = _run_json(capsys)
+    assert code == 0, err
+    poly = next(c for c in doc["checks"] if "polynomial" in c["case"] and c["quantity"] == "coefficients")
+    assert 9.5 <= poly["digits"] < 12  # 10.4 measured: the refinement really ran in float64
+
+
 def test_selfcheck_takes_no_table_options(capsys):
     # selfcheck reads no file, so the CSV options are unknown to it (argparse: exit 2)
     assert main(["selfcheck", "--delimiter", ";"]) == 2

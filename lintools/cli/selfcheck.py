@@ -28,7 +28,7 @@ MEASURE = ("digits: the log relative error (McCullough 1998) against the exact o
            "capped at the digits that value is given to (16 for an exact value, 15 for NIST's)")
 
 
-def machine() -> dict[str, str]:
+def machine() -> dict[str, Any]:
     """What the digits depend on: Python, the platform, NumPy and the BLAS NumPy was built with."""
     blas = "unknown"
     try:
@@ -40,8 +40,8 @@ def machine() -> dict[str, str]:
     except (AttributeError, KeyError, TypeError):
         pass
     return {"python": platform.python_version(), "platform": f"{platform.system()} {platform.machine()}",
-            "numpy": np.__version__, "blas": blas, "long_double_digits":
-            f"{-np.log10(float(np.finfo(np.longdouble).eps)):.1f}"}
+            "numpy": np.__version__, "blas": blas,
+            "long_double_digits": round(float(-np.log10(float(np.finfo(np.longdouble).eps))), 1)}
 
 
 def _number(value: float | None) -> str:
@@ -67,7 +67,7 @@ def run_selfcheck(args: argparse.Namespace) -> int:
     failed = [c for c in checks if not c.passed]
     host = machine()
     if args.json:
-        emit_json({"machine": host, "measure": MEASURE, "checks": [c.__dict__ for c in checks],
+        emit_json({"machine": host, "measure": MEASURE, "checks": checks,
                    "passed": not failed, "failed": len(failed), "seconds": round(seconds, 3)})
     else:
         print(f"lintools self-check on Python {host['python']}, {host['platform']}; NumPy {host['numpy']}; "

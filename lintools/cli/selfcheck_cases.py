@@ -15,8 +15,9 @@ separated classes has to raise :class:`lintools.SeparationError`.
 Where a required figure leans on a condition number, it is the condition number of the
 centred design with columns scaled to unit length (the problem the solver works on); a
 backward-stable solver in float64 guarantees, to first order, about
-``16 - log10(condition number)`` digits (Higham 2002, ch. 20), and every requirement
-leaves at least 1.5 digits below that guarantee for the constants of the bound, so that a
+``16 - log10(condition number)`` digits (Higham 2002, ch. 20); for the logistic and softmax
+fits the weaker guarantee is the stopping rule's.  Every requirement leaves at least one
+digit (1.7 to 2 for least squares and the metrics) below its guarantee, so that a
 sound installation on any platform passes while a wrong BLAS, a broken build or a broken
 change does not (common practice for acceptance tests of numerical software).
 
@@ -32,7 +33,7 @@ logistic regression models. Biometrika 71, 1-10.
 from __future__ import annotations
 
 import warnings
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from fractions import Fraction
 from typing import Any, Callable, Sequence
 
@@ -189,9 +190,13 @@ def logistic_grouped() -> list[Check]:
     :math:`s_g / m_g`: the intercept is :math:`\log(s_0 / f_0)` (:math:`f = m - s`), the
     coefficient of group g is :math:`\log(s_g f_0 / (f_g s_0))`, and the inverse information
     gives the variances :math:`1/s_0 + 1/f_0` and :math:`1/s_g + 1/f_g + 1/s_0 + 1/f_0`
-    exactly (rational).  The information is well conditioned (indicator columns), and the
-    default stopping rule promises the standardised coefficients to about 1e-13 times the
-    norm of the inverse information per unit weight (below 10 here); required 11 digits.
+    exactly (rational).  The default stopping rule alone promises the standardised
+    coefficients to 1e-13 times the norm of the inverse information per unit weight (17.4
+    here), an error of 1.7e-12 on standardised coefficients of at least 0.17: 11 digits;
+    required 10 (1 digit of margin below the weakest guarantee; the standard errors follow
+    the coefficients to first order).  Newton's last step usually goes much further (the
+    information's condition number is 5.4): measured 15.5 and 15.2 on the development
+    machine.
     """
     from ..models.logistic import logistic
 
@@ -207,9 +212,9 @@ def logistic_grouped() -> list[Check]:
     labels = ["intercept", "group 2", "group 3", "group 4"]
     return [
         _digits(case, "coefficients", SATURATED, labels, [fit.intercept, *fit.coefficients], coef,
-                FLOAT64_DIGITS, 11.0),
+                FLOAT64_DIGITS, 10.0),
         _digits(case, "standard errors", SATURATED, labels, [fit.intercept_standard_error, *fit.standard_errors],
-                [decimal_sqrt(v) for v in var], FLOAT64_DIGITS, 11.0),
+                [decimal_sqrt(v) for v in var], FLOAT64_DIGITS, 10.0),
     ]
 
 
@@ -220,8 +225,9 @@ def softmax_grouped() -> list[Check]:
     intercept of class k is :math:`\log(n_{0k}/n_{00})`, the coefficient of level g for
     class k is :math:`\log(n_{gk} n_{00} / (n_{g0} n_{0k}))`; the variances are
     :math:`1/n_{0k} + 1/n_{00}` and :math:`1/n_{gk} + 1/n_{g0} + 1/n_{0k} + 1/n_{00}`
-    (the multinomial information inverted per level).  Required 11 digits, as for the
-    binary case (same stopping rule, well-conditioned information).
+    (the multinomial information inverted per level).  Required 10 digits, as for the
+    binary case: the same stopping rule, with the norm of the inverse information per unit
+    weight 27 (condition number 13).  Measured 15.3 and 15.5 on the development machine.
     """
     from ..models.softmax import softmax
 
@@ -244,9 +250,9 @@ def softmax_grouped() -> list[Check]:
         labels += [f"class {k + 1}: intercept", f"class {k + 1}: level 2", f"class {k + 1}: level 3"]
     case = "softmax, 3 classes, grouped counts, saturated (exact)"
     return [
-        _digits(case, "coefficients", SATURATED, labels, got, ref, FLOAT64_DIGITS, 11.0),
+        _digits(case, "coefficients", SATURATED, labels, got, ref, FLOAT64_DIGITS, 10.0),
         _digits(case, "standard errors", SATURATED, labels, got_se, [decimal_sqrt(v) for v in var],
-                FLOAT64_DIGITS, 11.0),
+                FLOAT64_DIGITS, 10.0),
     ]
 
 
@@ -395,5 +401,5 @@ def run_cases() -> list[Check]:
             except Exception as exc:  # noqa: BLE001 - any failure of a case is its verdict
                 checks = [Check(name, "run", "-", None, None, f"stopped: {type(exc).__name__}: {exc}", False)]
         texts = tuple(dict.fromkeys(str(m.message) for m in seen))
-        out += [Check(**{**c.__dict__, "warnings": texts}) for c in checks]
+        out += [replace(c, warnings=texts) for c in checks]
     return out
