@@ -9,6 +9,7 @@ calibration  calibration report of a probability column; a reliability diagram w
 folds        write a CSV file with a stratified fold-id column added
 score        apply a model file (lintools JSON or PMML) to a CSV file and write the scores
 stability    population stability index of a recent CSV file against a development one
+selfcheck    qualify this installation: digits achieved on exact and certified cases
 
 Exit codes: 0 success, 1 a check failed (or a fit did not converge), 2 bad input.
 Standard output carries only the requested output: the report, or with ``--json`` one
@@ -24,7 +25,7 @@ An option that does not apply to the chosen model is refused.  Messages from the
 name the options, not its Python arguments (:mod:`lintools.cli.console`).
 
 The subcommands live in this folder, one module each (``check``, ``calibration``,
-``demo_command``, ``folds``, ``score``, ``stability``); shared pieces in ``common`` and
+``demo_command``, ``folds``, ``score``, ``stability``, ``selfcheck``); shared pieces in ``common`` and
 ``console``.
 """
 
@@ -56,6 +57,7 @@ from .console import CAUTION, Console, QuietPipe, report_text, translate, warnin
 from .demo_command import add_demo_parser
 from .folds import add_folds_parser
 from .score import add_score_parser
+from .selfcheck import add_selfcheck_parser
 from .stability import add_stability_parser
 from .table_options import add_table_options, table_options
 from ..support.errors import InputError, IterationLimitWarning, LintoolsError
@@ -183,7 +185,7 @@ def build_parser() -> argparse.ArgumentParser:
         p.add_argument("--json", action="store_true", help="print one JSON document instead of text")
         p.add_argument("--quiet", action="store_true",
                        help="nothing on standard error but errors: no notes, warnings, progress or caution")
-        if p.prog.split()[-1] != "demo":  # every other command reads a CSV file
+        if p.prog.split()[-1] not in ("demo", "selfcheck"):  # every other command reads a CSV file
             add_table_options(p)
 
     add_demo_parser(sub, common)
@@ -215,6 +217,7 @@ def build_parser() -> argparse.ArgumentParser:
     add_folds_parser(sub, common)
     add_score_parser(sub, common)
     add_stability_parser(sub, common)
+    add_selfcheck_parser(sub, common)
     return parser
 
 
