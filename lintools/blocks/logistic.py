@@ -13,7 +13,7 @@ from ..support.scaling import SUM_LIMIT, check_l2_scale, scaled_back, wide_colum
 from ..support.validate import check_names
 from ..models.inference import covariance, likelihood_fields
 from ..support.linalg import default_rank_tolerance, dependency_sentence, unstandardise
-from ..models.logistic import DEFAULT_TOL, ETA_LIMIT, convergence_record, check_fit_settings
+from ..models.driver import DEFAULT_TOL, ETA_LIMIT, convergence_record, check_fit_settings
 from ..engine.losses import BinomialLoss
 from ..engine import Evaluation, IterationRecord, SingularMatrixError
 from ..engine.newton import newton
