@@ -28,6 +28,7 @@ class PoissonLoss:
     """Negative weighted Poisson log-likelihood in the linear predictor (log link)."""
 
     outputs = 1
+    row_subsets = row_blocks = closed_null = False  # declared capabilities: none
 
     def __init__(self, y: np.ndarray, weights: np.ndarray) -> None:
         self.y, self.weights = y, weights

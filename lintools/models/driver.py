@@ -383,9 +383,8 @@ def convergence_record(res: SolverResult, ev: Evaluation, problem: Any, z: np.nd
     A stalled fit's message names an attainable tol when the problem can estimate the
     rounding level of its gradient; ``note`` is appended to the message."""
     message = res.message
-    rounding = getattr(problem, "gradient_rounding", None)
-    if res.status == "stalled" and rounding is not None:
-        level = rounding(z)
+    if res.status == "stalled" and problem.rounding_known:
+        level = problem.gradient_rounding(z)
         if math.isfinite(level):
             message += (f" (worst-case rounding level of this gradient {level:.1e}: "
                         f"tol = {10 * level:.0e} is attainable)")
