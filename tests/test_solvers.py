@@ -135,6 +135,8 @@ def test_badly_scaled_columns_give_the_same_model(method):
 class _Multinomial:
     """Test-only multinomial loss (first class as reference): exercises the (n, K) path."""
 
+    row_subsets = row_blocks = closed_null = False  # declared capabilities: none
+
     def __init__(self, codes, K):
         self.Y = np.eye(K)[codes][:, 1:]
         self.outputs = K - 1

@@ -13,7 +13,7 @@ from ..support.scaling import SUM_LIMIT, check_l2_scale, scaled_back, wide_colum
 from ..support.validate import check_names
 from ..models.inference import covariance, likelihood_fields
 from ..support.linalg import default_rank_tolerance, dependency_sentence, unstandardise
-from ..models.logistic import DEFAULT_TOL, ETA_LIMIT, convergence_record, check_fit_settings
+from ..models.driver import DEFAULT_TOL, ETA_LIMIT, convergence_record, check_fit_settings
 from ..engine.losses import BinomialLoss
 from ..engine import Evaluation, IterationRecord, SingularMatrixError
 from ..engine.newton import newton
@@ -101,6 +101,8 @@ class _PassProblem:
     (the total of the divided weights: the stopping rule is per unit of it)."""
 
     kernel: Any = None
+    #: declared capabilities (lintools.engine.contracts.Problem): every pass reads all rows
+    warm_starts = sketches = fast_steps = rounding_known = False
     weight_scale: float = 1.0
     weight_total: float = 1.0
 
@@ -212,6 +214,8 @@ class _BlockLine:
 
     Shared by the binary and the softmax blocked problems (``coefficients``, ``_pass``,
     ``_store`` and ``l2`` are all it needs of them)."""
+
+    carries = False  # declared (lintools.engine.contracts.Line): every trial is a pass
 
     def __init__(self, problem: Any, z: np.ndarray, d: np.ndarray) -> None:
         self.pr, self.z, self.d = problem, z, d

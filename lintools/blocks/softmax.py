@@ -14,7 +14,7 @@ from ..support.scaling import caller_covariance, check_l2_scale, scaled_back
 from ..support.validate import check_names
 from ..models.inference import likelihood_fields
 from ..support.linalg import unstandardise
-from ..models.logistic import (
+from ..models.driver import (
     DEFAULT_TOL,
     ETA_LIMIT,
     convergence_record,

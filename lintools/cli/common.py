@@ -249,7 +249,7 @@ def add_fit_options(p: argparse.ArgumentParser, positive_help: str) -> None:
                    help="least squares: --weights are case weights (default; a weight of 2 is two copies of the "
                         "row) or precision weights (relative; only their ratios matter)")
     p.add_argument("--solver", choices=SOLVERS, help="logistic and softmax: newton (default), lbfgs or gradient")
-    from ..models.logistic import DEFAULT_TOL
+    from ..models.driver import DEFAULT_TOL
 
     p.add_argument("--tol", type=positive_number,
                    help="logistic and softmax: stop when the max-abs gradient per unit case weight (intercept "

@@ -19,6 +19,11 @@ see only this interface::
                          decreases far below the rounding of F are still resolved
     to_original(z)       the parameters in the caller's coordinates (a linear map)
 
+This interface, the loss's and the line search's are written down as ``typing.Protocol``
+classes in :mod:`lintools.engine.contracts`, with the optional capabilities (the
+shortcuts of large problems, the blocked passes of a many-output loss) declared by flags
+that every implementation sets, never probed.
+
 **The stopping rule** is ``Evaluation.gradient_norm <= tol``, with
 
 .. math::

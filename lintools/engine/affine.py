@@ -23,9 +23,14 @@ class AffineProblem:
     symmetric softmax model), which makes the Hessian non-singular.
     """
 
+    #: declared capabilities (:class:`lintools.engine.contracts.Problem`); ``sketches``
+    #: is the base problem's (a sketched Hessian projected to the subspace)
+    warm_starts = fast_steps = rounding_known = False
+
     def __init__(self, problem: LinearModelProblem, z0: np.ndarray, E: np.ndarray,
                  keep: np.ndarray | None = None) -> None:
         self.base, self.z0, self.E, self.keep = problem, z0, E, keep
+        self.sketches = problem.sketches
         self.size = E.shape[1]
         self.weight_total, self.weight_scale = problem.weight_total, problem.weight_scale
 

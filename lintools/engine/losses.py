@@ -128,6 +128,8 @@ class BinomialLoss:
     """
 
     outputs = 1
+    #: declared capabilities (:class:`lintools.engine.contracts.Loss`)
+    row_subsets, row_blocks, closed_null = True, False, True
 
     def __init__(self, y: np.ndarray, trials: np.ndarray | None = None, weights: np.ndarray | None = None) -> None:
         n = y.shape[0]

@@ -157,6 +157,9 @@ class MultinomialLoss:
     column by column, as :class:`lintools.engine.LinearModelProblem` stores it).
     """
 
+    #: declared capabilities (:class:`lintools.engine.contracts.Loss`)
+    row_subsets, row_blocks, closed_null = True, True, False
+
     def __init__(self, codes: np.ndarray, K: int, weights: np.ndarray | None = None, reference: bool = True) -> None:
         n = codes.shape[0]
         self.codes, self.K, self.reference = codes, int(K), bool(reference)

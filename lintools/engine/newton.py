@@ -42,6 +42,7 @@ from typing import Any, Callable
 
 import numpy as np
 
+from .contracts import Problem
 from .settings import fast_paths
 from .base import (
     Evaluation,
@@ -69,7 +70,7 @@ ROUNDING = 1e3 * float(np.finfo(float).eps)
 
 
 def newton(
-    problem: Any,
+    problem: Problem,
     *,
     tol: float,
     max_iter: int,
@@ -80,7 +81,7 @@ def newton(
     """Minimise ``problem`` by damped Newton steps; see the module docstring."""
     name = "newton"
     z = None
-    if start is None and hasattr(problem, "warm_start"):
+    if start is None and problem.warm_starts:
         z = problem.warm_start()  # large problems: the optimum on a row subsample
     if z is None:
         z = problem.start() if start is None else np.array(start, dtype=float)
@@ -88,9 +89,9 @@ def newton(
     it = stall = 0
     g_start = ev.gradient_norm
     paths = fast_paths()
-    sketching = hasattr(problem, "sketch_hessian")
-    step_hessian = getattr(problem, "step_hessian", problem.hessian)
-    reuse_allowed = bool(getattr(problem, "reuse_hessian", False))
+    sketching = problem.sketches
+    step_hessian = problem.step_hessian if problem.fast_steps else problem.hessian
+    reuse_allowed = problem.fast_steps and bool(problem.reuse_hessian)
     factors = None  # Cholesky factors of the last Hessian, while it may be reused
     while True:
         gnorm = ev.gradient_norm
@@ -135,9 +136,8 @@ def newton(
         z_new = z + t * d
         try:
             if accepted:
-                adopt = getattr(line, "adopt", None)
-                if adopt is not None and gnorm > paths.carry_above * tol:
-                    adopt(t, z_new)  # the line search's eta(z + t d): no new pass over X
+                if line.carries and gnorm > paths.carry_above * tol:
+                    line.adopt(t, z_new)  # the line search's eta(z + t d): no new pass over X
                 ev_new = problem.evaluate(z_new)
             else:
                 ev_new = ev

@@ -42,6 +42,7 @@ from .kernels import column_moments, uncentred_ok, weighted_gram
 from .kernels_multi import PairWeights, multi_output_information
 from .samples import sample_rows, take_rows
 from .shifted import ShiftedColumns
+from .contracts import Loss
 from .settings import fast_paths
 from .base import EPS, Evaluation, ExtremeSpread, NonFiniteDesign, SingularMatrixError, cholesky
 
@@ -88,6 +89,9 @@ class _Line:
     Changes are computed directly (``loss.value_change``), so line searches resolve
     decreases far below the rounding of ``F`` itself.
     """
+
+    #: declared capability (:class:`lintools.engine.contracts.Line`): :meth:`adopt`
+    carries = True
 
     def __init__(self, problem: "LinearModelProblem", z: np.ndarray, d: np.ndarray) -> None:
         self.p, self.z, self.d = problem, z, d
@@ -170,10 +174,14 @@ class LinearModelProblem:
         weight-proportional output back.
     """
 
+    #: declared capabilities (:class:`lintools.engine.contracts.Problem`): warm_start,
+    #: sketch_hessian, step_hessian with reuse_hessian, gradient_rounding
+    warm_starts = sketches = fast_steps = rounding_known = True
+
     def __init__(
         self,
         X: np.ndarray,
-        loss: Any,
+        loss: Loss,
         *,
         intercept: bool = True,
         l2: float = 0.0,
@@ -325,9 +333,8 @@ class LinearModelProblem:
         """K outputs: drop the remembered linear predictor and the loss's results kept at it,
         so that the next ones are not formed while these still hold memory."""
         self._last = None
-        forget = getattr(self.loss, "forget", None)
-        if forget is not None:
-            forget()
+        if self.loss.row_blocks:
+            self.loss.forget()
 
     def subsample(self, rows: np.ndarray) -> "LinearModelProblem":
         """The same problem on the given rows, in the same coordinates (same ``c`` and ``s``)."""
@@ -350,7 +357,7 @@ class LinearModelProblem:
         the full gradient); a subsample fit that fails (e.g. separated) gives None.
         """
         if (not self._warm or self.jeffreys or self.n < fast_paths().warm_min_rows or self.p == 0
-                or not hasattr(self.loss, "subset")):
+                or not self.loss.row_subsets):
             return None
         m = max(WARM_PER_PARAMETER * self.size, self.n // WARM_FRACTION)
         if 2 * m > self.n:
@@ -454,11 +461,10 @@ class LinearModelProblem:
         return f, self._residual(eta, factors)
 
     def _change(self, line: _Line, t: float, need_slope: bool) -> tuple[float, float]:
-        along = getattr(self.loss, "change_along", None)
-        if self.K > 1 and along is not None and not need_slope and not self.jeffreys:
+        if self.K > 1 and self.loss.row_blocks and not need_slope and not self.jeffreys:
             # one block of rows at a time: neither t X d nor the trial eta is formed whole
             line.trial = (t, None)
-            c = along(line.eta0, line.deta, t)
+            c = self.loss.change_along(line.eta0, line.deta, t)
             if not math.isfinite(c) and c > 0:
                 return math.inf, math.nan
             if self.l2:
@@ -624,7 +630,7 @@ class LinearModelProblem:
         output; for K outputs, with a loss that has ``pair_weights``, the distinct entries
         of the per-row blocks one block of rows at a time (:class:`PairWeights`), so the
         (n, K, K) array is never formed whole (other losses give it whole)."""
-        if self.K > 1 and hasattr(self.loss, "pair_weights"):
+        if self.K > 1 and self.loss.row_blocks:
             return PairWeights(self.loss, eta)
         return self.loss.curvature(eta)
 
@@ -792,12 +798,13 @@ class LinearModelProblem:
         rows, sub, scale = self._sketch
         if scale == 0.0:
             return None
-        rows_only = getattr(self.loss, "curvature_rows", None)
         eta = self.eta(z)
-        if self.K > 1 and hasattr(self.loss, "pair_weights"):
+        if self.K > 1 and self.loss.row_blocks:
             W: Any = PairWeights(self.loss, eta, rows)  # formed one block of the sampled rows at a time
+        elif self.loss.row_blocks:
+            W = self.loss.curvature_rows(eta, rows)
         else:
-            W = rows_only(eta, rows) if rows_only is not None else self.loss.curvature(eta)[rows]
+            W = self.loss.curvature(eta)[rows]
         H = sub._information(W, single=self.single) * scale
         if self.l2:
             H[np.diag_indices_from(H)] += self._penalty_diagonal()

@@ -69,9 +69,8 @@ def null_objective(loss: Any, n: int, offset: np.ndarray | None, intercept: bool
     if not intercept:
         eta = np.zeros(n) if offset is None else offset
         return loss.value(eta) * weight_scale, eta
-    closed = getattr(loss, "constant_fit", None)
-    if offset is None and not jeffreys and closed is not None:
-        fitted = closed(n, tol)
+    if offset is None and not jeffreys and loss.closed_null:
+        fitted = loss.constant_fit(n, tol)
         if fitted is not None:
             return fitted[0] * weight_scale, fitted[1]
     P = LinearModelProblem(np.zeros((n, 0)), loss, intercept=True, offset=offset, jeffreys=jeffreys,

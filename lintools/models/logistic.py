@@ -24,73 +24,37 @@ McCullagh, P. & Nelder, J. A. (1989). Generalized Linear Models, 2nd ed. Chapman
 
 from __future__ import annotations
 
-import math
 import numbers
 from typing import Any, Callable, Sequence
 
 import numpy as np
 
-from ..support.errors import (
-    InputError,
-    IterationLimitWarning,
-    LintoolsError,
-    LintoolsWarning,
-    SeparationError,
-    warn_caller,
-)
-from .records import Convergence, LogisticFit
+from ..support.errors import InputError, LintoolsWarning, warn_caller
+from .records import LogisticFit
 from .responses import binary_response, target_name
-from ..support.scaling import (
-    check_firth_scale,
-    check_l2_scale,
-    check_solver,
-    scaled_back,
-    scaled_case_weights,
-    wide_column_error,
-)
+from ..support.scaling import check_firth_scale, check_l2_scale, scaled_back, scaled_case_weights
 from ..support.threads import ELEMENT_CHUNK, for_rows, with_row_threads
-from ..support.validate import (
-    as_matrix,
-    as_offset,
-    as_weights,
-    check_finite,
-    check_flag,
-    check_names,
-    check_nonnegative,
-    check_positive_int,
-)
+from ..support.validate import as_matrix, as_offset, as_weights, check_flag, check_names
 from .inference import covariance, likelihood_fields, null_objective, profile_bounds
-from ..support.linalg import default_rank_tolerance, dependency_sentence
-from ..engine.losses import BinomialLoss
-from ..engine import (
-    SOLVERS,
-    Evaluation,
-    ExtremeSpread,
-    IterationRecord,
-    LinearModelProblem,
-    NonFiniteDesign,
-    SingularMatrixError,
-    SolverResult,
-    solve,
+from .driver import (
+    DEFAULT_TOL,
+    Solved,
+    Watch,
+    check_fit_settings,
+    check_parameters_and_rows,
+    checked_problem,
+    constant_columns,
+    likelihood_summary,
+    lr_statistic,
+    rank_message,
+    solve_family,
+    unless_scipy_missing,
 )
-from ..engine.base import MEASURED, converged_message, limit_message
+from ..engine.losses import BinomialLoss
+from ..engine import IterationRecord, LinearModelProblem
 from ..engine.newton import newton
 
 __all__ = ["logistic"]
-
-#: The default stopping tolerance of every likelihood fit: the max-abs gradient per unit
-#: case weight with respect to the intercept and the standardised, centred columns
-#: (see :mod:`lintools.engine`).
-DEFAULT_TOL = 1e-13
-
-#: |linear predictor| beyond which a row on the side of its outcome is a sign of divergence.
-ETA_LIMIT = 30.0
-#: At the answer, rows beyond this |eta| plus a large remaining Newton move call for the check.
-ETA_SUSPECT = 15.0
-#: Remaining Newton move of the linear predictor that, with such rows, signals divergence.
-MOVE_SUSPECT = 0.1
-#: Designs up to this many entries get the exact check whenever a fit ends unfinished.
-SMALL_PROBLEM = 10**6
 
 REMEDIES = (
     "Remedies: firth=True (Firth's bias-reduced estimates, finite under separation) or "
@@ -98,86 +62,11 @@ REMEDIES = (
 )
 
 
-def _check_tol(tol: Any) -> float:
-    if isinstance(tol, bool) or not isinstance(tol, numbers.Real) or not math.isfinite(float(tol)) or tol <= 0:
-        raise InputError(f"tol must be a finite number > 0 (the {MEASURED} at which to stop); got {tol!r}")
-    return float(tol)
-
-
-def check_parameters_and_rows(k: int, rows: int) -> None:
-    """Without a penalty the design needs at least as many rows as parameters."""
-    if k > rows:
-        raise InputError(
-            f"X has {k} columns with the intercept but only {rows} rows with positive weight; the "
-            "unpenalised estimate is not unique: add rows, drop columns, or set l2 > 0"
-        )
-
-
-def check_fit_settings(intercept: Any, l2: Any, tol: Any, max_iter: Any, on_iteration: Any,
-                       solver: Any = "newton") -> tuple[bool, float, float, int]:
-    """The settings every likelihood fit shares, checked: ``(intercept, l2, tol, max_iter)``.
-
-    ``solver`` must name one of the solvers (None, or anything else, is an InputError
-    naming the choices; the block fits pass their only one, "newton")."""
-    intercept = check_flag(intercept, "intercept")
-    lam = check_nonnegative(l2, "l2")
-    check_solver(solver, SOLVERS)
-    tol = _check_tol(tol)
-    max_iter = check_positive_int(max_iter, "max_iter")
-    if on_iteration is not None and not callable(on_iteration):
-        raise InputError(f"on_iteration must be a callable taking one record; got {type(on_iteration).__name__}")
-    return intercept, lam, tol, max_iter
-
-
-def _constant_columns(Xa: np.ndarray, use: np.ndarray, names: tuple[str, ...],
-                      spread: np.ndarray | None = None, centre: np.ndarray | None = None) -> None:
-    """Raise on a column that is constant on the rows used.
-
-    With the problem's weighted ``spread`` and ``centre`` of each column only the columns
-    whose spread could be the rounding noise of a constant column (at most
-    ``max(1e-6, 8 n eps)`` times the centre: the error of a weighted mean is below
-    ``n eps`` of it) are checked exactly, so the usual case costs no pass over X.
-    """
-    if spread is not None and centre is not None:
-        bound = max(1e-6, 8.0 * Xa.shape[0] * float(np.finfo(float).eps)) * np.abs(centre)
-        cols = np.flatnonzero(~(np.isfinite(spread) & (spread > bound)))
-        if not cols.size:
-            return
-    else:
-        cols = np.arange(Xa.shape[1])
-    rows = Xa[:, cols] if use.all() else Xa[np.ix_(use, cols)]
-    const = cols[np.max(rows, axis=0) == np.min(rows, axis=0)]
-    if const.size:
-        j = int(const[0])
-        raise InputError(
-            f"X column {j} ('{names[j]}') is constant on the rows used; it is aliased with the "
-            "intercept: drop it, or pass intercept=False"
-        )
-
-
-def _rank_message(Xa: np.ndarray, v: np.ndarray, intercept: bool, names: tuple[str, ...]) -> str | None:
-    """A sentence naming linearly dependent columns on the rows used, or None (full rank)."""
-    use = v > 0
-    sw = np.sqrt(v[use])
-    Xp = Xa[use]
-    c = (v[use] @ Xp) / v[use].sum() if intercept else np.zeros(Xa.shape[1])
-    A = (Xp - c) * sw[:, None]
-    norms = np.linalg.norm(A, axis=0)
-    A /= np.where(norms > 0, norms, 1.0)
-    R = np.linalg.qr(A, mode="r")
-    return dependency_sentence(R, norms, names, intercept, default_rank_tolerance(*A.shape))
-
-
-class _Watch:
-    """Divergence monitor: rows whose linear predictor runs off on the side of their outcome.
-
-    Subclasses (the softmax fit's) change ``runaway`` and ``RUNAWAY``, the sentence."""
+class _Watch(Watch):
+    """Divergence monitor of the binary family: rows whose linear predictor runs off on
+    the side of their outcome."""
 
     RUNAWAY = "{count} row(s) have a linear predictor beyond +-{limit:g} (up to {top:.3g}) on the side of their outcome"
-
-    def __init__(self, loss: Any, offset: np.ndarray | None) -> None:
-        self.loss, self.offset = loss, offset
-        self.live = loss.row_weights() > 0
 
     def runaway(self, eta: np.ndarray, limit: float) -> tuple[int, float]:
         y, m, offset, live = self.loss.y, self.loss.trials, self.offset, self.live
@@ -193,25 +82,44 @@ class _Watch:
         parts = for_rows(part, eta.shape[0], ELEMENT_CHUNK)
         return sum(c for c, _ in parts), max((t for _, t in parts), default=0.0)
 
-    def __call__(self, z: np.ndarray, ev: Evaluation) -> str | None:
-        count, top = self.runaway(ev.eta, ETA_LIMIT)
-        return self.RUNAWAY.format(count=count, limit=ETA_LIMIT, top=top) if count else None
-
 
 def _exact_check(Xa, loss, intercept, names):
     """Run the linear programme; return the diagnosis, or None when SciPy is missing."""
     from .separation import separation_from_arrays
 
-    try:
-        return separation_from_arrays(Xa, loss.y, loss.trials, loss.weights, intercept, names)
-    except LintoolsError as exc:
-        if "SciPy" in str(exc):
-            return None
-        raise
+    return unless_scipy_missing(separation_from_arrays, Xa, loss.y, loss.trials, loss.weights, intercept, names)
 
 
-def _raise_separation(diag) -> None:
-    raise SeparationError(f"{diag.describe()}. {REMEDIES}.", diagnosis=diag)
+class BinaryFamily:
+    """The binary (grouped binomial) logistic family for :func:`lintools.models.driver.solve_family`."""
+
+    remedies = REMEDIES
+    separated = "(quasi-)completely separated"
+    singular_runaway = False
+
+    def __init__(self, Xa: np.ndarray, loss: BinomialLoss, offset: np.ndarray | None, names: tuple[str, ...],
+                 intercept: bool, lam: float, firth: bool) -> None:
+        self.Xa, self.loss, self.offset, self.names = Xa, loss, offset, names
+        self.intercept, self.lam, self.firth = intercept, lam, firth
+        self.size = Xa.size
+        self.watch = _Watch(loss, offset) if (lam == 0 and not firth) else None
+
+    def terms(self) -> tuple[str, ...]:
+        return (("(intercept)",) if self.intercept else ()) + tuple(self.names)
+
+    def exact_check(self) -> Any:
+        return _exact_check(self.Xa, self.loss, self.intercept, self.names)
+
+    def rank_message(self) -> str | None:
+        return rank_message(self.Xa, self.loss.row_weights(), self.intercept, self.names) if self.lam == 0 else None
+
+    def covariance(self, problem: LinearModelProblem, target: Any, z: np.ndarray) -> np.ndarray:
+        return covariance(problem, z, [f"'{t}'" for t in self.terms()])
+
+    def newton_move(self, problem: LinearModelProblem, ev: Any, V: np.ndarray) -> float:
+        d = -(V @ ev.original_gradient) * problem.weight_scale  # the Newton step (scaled gradient)
+        db = d[0] if self.intercept else 0.0
+        return float(np.max(np.abs(self.Xa @ d[int(self.intercept):] + db)))
 
 
 @with_row_threads
@@ -361,224 +269,74 @@ def logistic(
     problem = checked_problem(Xa, found, names_t, loss, intercept=intercept, l2=lam, offset=off, jeffreys=firth,
                               weight_scale=scale)
     if intercept and p and lam == 0:
-        _constant_columns(Xa, v > 0, names_t, problem.spread, problem.c)
-    watch = _Watch(loss, off) if (lam == 0 and not firth) else None
-    try:
-        res, checked = run_with_check(problem, solver, tol, max_iter, on_iteration, watch,
-                                      lambda: _exact_check(Xa, loss, intercept, names_t))
-    except SingularMatrixError as exc:
-        _diagnose_singular(Xa, loss, intercept, names_t, lam, firth, watch, False, f"the information matrix is singular ({exc})")
-
-    if res.status == "singular":
-        _diagnose_singular(Xa, loss, intercept, names_t, lam, firth, watch, checked, res.message)
-    z = res.z
-    try:
-        V = covariance(problem, z, [f"'{t}'" for t in (("(intercept)",) if intercept else ()) + names_t])
-    except SingularMatrixError:
-        _diagnose_singular(Xa, loss, intercept, names_t, lam, firth, watch, checked,
-                           "the information matrix is singular at the answer")
-    ev = final_evaluation(problem, res)
-    if watch is not None and not checked:
-        _final_check(res, ev, V, problem, watch, Xa, loss, intercept, names_t)
-    return _package(problem, loss, res, ev, V, z, Xa, off, names_t, classes, positive_class, lam, firth,
-                    trials is not None, intercept, solver, tol, max_iter, profile, float(profile_level), y)
+        constant_columns(Xa, v > 0, names_t, problem.spread, problem.c)
+    family = BinaryFamily(Xa, loss, off, names_t, intercept, lam, firth)
+    solved = solve_family(family, problem, solver=solver, tol=tol, max_iter=max_iter, on_iteration=on_iteration)
+    return _record(family, problem, solved, (tuple(classes), positive_class, target_name(y)), tol, max_iter,
+                   float(profile_level) if profile else None)
 
 
-def checked_problem(Xa: np.ndarray, found: Any, names: tuple[str, ...], loss: Any,
-                    **settings: Any) -> LinearModelProblem:
-    """The fit's problem; its first pass over ``Xa`` (the column moments) doubles as the
-    finiteness check of the design, and a NaN or infinity is then named by row and column.
-    A column whose spread float64 cannot standardise is refused naming it (``names``)."""
-    try:
-        return LinearModelProblem(Xa, loss, **settings)
-    except NonFiniteDesign:
-        check_finite(Xa, "X", found)
-        raise
-    except ExtremeSpread as exc:
-        term = f"'{names[exc.column]}'"
-        if exc.top is not None:
-            raise wide_column_error(exc.column, names[exc.column], exc.top) from None
-        if exc.log10_variance is None:
-            raise InputError(
-                f"X column {exc.column} ({term}) has a weighted spread of {exc.spread:.3g}, so small that the ridge "
-                f"on its standardised coefficient (l2 / spread^2) exceeds 1.8e308: rescale that column by a power "
-                "of ten so that its spread is nearer 1 (its coefficient then scales by the inverse factor; the "
-                "same l2 then penalises it in the new units), or fit without l2"
-            ) from None
-        raise InputError(
-            f"the variance of the coefficient of {term} would be at least 1e{exc.log10_variance:.0f}, above "
-            f"1.8e308, which float64 cannot hold (its column's weighted spread is {exc.spread:.3g}): rescale that "
-            "column by a power of ten so that its spread is nearer 1 (its coefficient and standard error then "
-            "scale by the inverse factor)"
-        ) from None
+def _null_model(family: BinaryFamily, problem: LinearModelProblem, tol: float, max_iter: int) -> tuple[float, float]:
+    """The null model's objective (Firth: penalised) and deviance, in the caller's weights."""
+    loss, scale = family.loss, problem.weight_scale
+    f0, eta0 = null_objective(loss, problem.n, family.offset, family.intercept, family.firth, tol, max_iter, scale)
+    return f0, scaled_back(loss.deviance(eta0), scale, "null deviance")
 
 
-def final_evaluation(problem: Any, res: SolverResult) -> Evaluation:
-    """The solver's (fresh) evaluation at its answer, or a new one."""
-    ev = res.evaluation
-    if ev is not None and ev.fresh and ev.eta is problem.eta(res.z):
-        return ev
-    return problem.evaluate(res.z, fresh=True)
-
-
-def run_with_check(problem, solver, tol, max_iter, on_iteration, watch, check, start=None, on_separated=None):
-    """Solve; on a divergence alarm run ``check()`` (the exact separation check, which
-    returns a diagnosis or None without SciPy), raise if separated, else go on.
-
-    ``on_separated(diagnosis)`` raises the error (default: the binary model's).
-    Returns the solver result and whether the exact check ran."""
-    res = solve(problem, solver, tol=tol, max_iter=max_iter, on_iteration=on_iteration, monitor=watch,
-                start=start)
-    if res.status != "diverging":
-        return res, False
-    diag = check()
-    if diag is not None and diag.separated:
-        (on_separated or _raise_separation)(diag)
-    done = res.iterations
-
-    def shifted(record):
-        on_iteration(IterationRecord(record.iteration + done, record.objective, record.gradient_norm, record.step))
-
-    more = solve(problem, solver, tol=tol, max_iter=max(max_iter - done, 0),
-                 on_iteration=shifted if on_iteration is not None else None, start=res.z)
-    total = more.iterations + done
-    if more.status == "converged":
-        message = converged_message(more.solver, total, more.gradient_norm, tol)
-    elif more.status == "iteration_limit":
-        message = limit_message(more.solver, total, more.gradient_norm, tol)
-    else:
-        message = more.message
-    merged = SolverResult(z=more.z, converged=more.converged, iterations=total, objective=more.objective,
-                          gradient_norm=more.gradient_norm, status=more.status, message=message,
-                          solver=more.solver, evaluation=more.evaluation)
-    return merged, diag is not None
-
-
-def _diagnose_singular(Xa, loss, intercept, names, lam, firth, watch, checked, why):
-    msg = _rank_message(Xa, loss.row_weights(), intercept, names) if lam == 0 else None
-    if msg:
-        raise InputError(msg)
-    if watch is not None and not checked:
-        diag = _exact_check(Xa, loss, intercept, names)
-        if diag is not None and diag.separated:
-            _raise_separation(diag)
-    raise LintoolsError(
-        f"{why}: the design is full rank but too ill-conditioned for the fitted weights; "
-        "rescale or drop nearly collinear columns, or set l2 > 0"
-    )
-
-
-def _final_check(res, ev, V, problem, watch, Xa, loss, intercept, names):
-    """At the answer: a remaining Newton move on runaway rows means divergence."""
-    count, top = watch.runaway(ev.eta, ETA_SUSPECT)
-    # an unfinished fit is checked when rows ran away or when the programme is cheap
-    suspicious = res.status in ("iteration_limit", "stalled") and (count > 0 or Xa.size <= SMALL_PROBLEM)
-    move = 0.0
-    if count:
-        d = -(V @ ev.original_gradient) * problem.weight_scale  # the Newton step (scaled gradient)
-        db = d[0] if intercept else 0.0
-        move = float(np.max(np.abs(Xa @ d[int(intercept):] + db)))
-        suspicious = suspicious or move > MOVE_SUSPECT
-    if not suspicious:
-        return
-    diag = _exact_check(Xa, loss, intercept, names)
-    if diag is not None:
-        if diag.separated:
-            _raise_separation(diag)
-        return
-    if count and move > MOVE_SUSPECT:
-        raise SeparationError(
-            f"the fit diverges: after {res.iterations} iteration(s) {count} row(s) have a linear "
-            f"predictor beyond +-{ETA_SUSPECT:g} (up to {top:.3g}) on the side of their outcome and "
-            f"a further Newton step would move it by {move:.3g}: the classes appear "
-            "(quasi-)completely separated, so the maximum-likelihood estimate does not exist "
-            "(Albert & Anderson 1984). The exact check needs SciPy (scipy.optimize.linprog), "
-            f"which is not installed. {REMEDIES}."
-        )
-
-
-def convergence_record(res: SolverResult, ev: Evaluation, problem: Any, z: np.ndarray, solver: str,
-                       note: str = "") -> Convergence:
-    """The fit's :class:`Convergence`; warns (our own classes) when the fit did not converge.
-
-    A stalled fit's message names an attainable tol when the problem can estimate the
-    rounding level of its gradient; ``note`` is appended to the message."""
-    message = res.message
-    rounding = getattr(problem, "gradient_rounding", None)
-    if res.status == "stalled" and rounding is not None:
-        level = rounding(z)
-        if math.isfinite(level):
-            message += (f" (worst-case rounding level of this gradient {level:.1e}: "
-                        f"tol = {10 * level:.0e} is attainable)")
-    message += note
-    conv = Convergence(
-        converged=bool(res.converged), iterations=int(res.iterations), gradient_norm=ev.gradient_norm,
-        objective=scaled_back(ev.value, problem.weight_scale, "objective"), solver=solver, message=message,
-    )
-    if res.status == "iteration_limit":
-        warn_caller(message, IterationLimitWarning)
-    elif not res.converged:
-        warn_caller(message, LintoolsWarning)
-    return conv
-
-
-def _package(problem, loss, res, ev, V, z, Xa, off, names, classes, positive_class, lam, firth,
-             grouped, intercept, solver, tol, max_iter, profile, level, y):
-    n, p = Xa.shape
-    theta = problem.to_original(z)
-    k = theta.size
-    b = float(theta[0]) if intercept else 0.0
-    beta = theta[int(intercept):].copy()
-    se = np.sqrt(np.clip(np.diag(V), 0.0, None))
-    eta = ev.eta
-    scale = problem.weight_scale  # the loss holds the caller's weights / scale (lintools.support.scaling)
-    loglik = scaled_back(loss.log_likelihood(eta), scale, "log-likelihood")
-    dev = scaled_back(loss.deviance(eta), scale, "deviance")
-    n_obs = scaled_back(float(loss.row_weights().sum()), scale, "number of observations (sum of weights times trials)")
-    objective = ev.value * scale
-    f0, eta0 = null_objective(loss, n, off, intercept, firth, tol, max_iter, scale)
-    null_dev = scaled_back(loss.deviance(eta0), scale, "null deviance")
-    lr_df = p
-    if firth:
-        lr = 2.0 * (f0 - objective)
-    elif lam == 0:
-        lr = null_dev - dev
-    else:
-        lr = float("nan")
-    lr = max(lr, 0.0) if math.isfinite(lr) else lr
-    conv = convergence_record(res, ev, problem, z, solver)
-    bounds = profile_bounds(problem, z, se, level, tol, max_iter) if profile else None
-    if bounds is not None and np.isnan(bounds).any():
-        terms = (("(intercept)",) if intercept else ()) + tuple(names)
+def _profile(family: BinaryFamily, problem: LinearModelProblem, z: np.ndarray, se: np.ndarray, level: float,
+             tol: float, max_iter: int) -> np.ndarray:
+    """Profile-likelihood interval ends; an end not found is NaN, with a warning naming it."""
+    bounds = profile_bounds(problem, z, se, level, tol, max_iter)
+    if np.isnan(bounds).any():
+        terms = family.terms()
         lost = [terms[j] for j in range(len(terms)) if np.isnan(bounds[j]).any()]
         warn_caller(
             f"profile interval: an end for {', '.join(repr(t) for t in lost)} was not found (a fit with the "
             "coefficient held fixed did not converge); it is NaN in profile_intervals: use the Wald interval "
             "for it, or refit with a larger max_iter", LintoolsWarning)
+    return bounds
+
+
+def _record(family: BinaryFamily, problem: LinearModelProblem, solved: Solved, labels: tuple[tuple, Any, Any],
+            tol: float, max_iter: int, level: float | None) -> LogisticFit:
+    """The :class:`LogisticFit` of a solved binary family; ``labels`` holds the classes, the
+    positive class and the target's name; ``level`` the profile level (None: no profile)."""
+    intercept, loss, V = family.intercept, family.loss, solved.covariance
+    theta = problem.to_original(solved.z)
+    se = np.sqrt(np.clip(np.diag(V), 0.0, None))
+    loglik, dev, n_obs = likelihood_summary(problem, loss, solved.evaluation, "sum of weights times trials")
+    objective = solved.evaluation.value * problem.weight_scale
+    f0, null_dev = _null_model(family, problem, tol, max_iter)
+    if family.firth:
+        lr = 2.0 * (f0 - objective)
+    else:
+        lr = null_dev - dev if family.lam == 0 else float("nan")
+    bounds = _profile(family, problem, solved.z, se, level, tol, max_iter) if level is not None else None
+    classes, positive_class, target = labels
     return LogisticFit(
-        coefficients=beta,
-        intercept=b if intercept else 0.0,
+        coefficients=theta[int(intercept):].copy(),
+        intercept=float(theta[0]) if intercept else 0.0,
         standard_errors=se[int(intercept):],
         intercept_standard_error=float(se[0]) if intercept else None,
         covariance=V,
         log_likelihood=loglik,
         deviance=dev,
         n_observations=n_obs,
-        names=names,
-        convergence=conv,
+        names=family.names,
+        convergence=solved.convergence,
         with_intercept=bool(intercept),
-        l2=lam,
-        classes=tuple(classes),
+        l2=family.lam,
+        classes=classes,
         positive_class=positive_class,
         null_deviance=null_dev,
-        **likelihood_fields(loglik, k, n_obs, lr, lr_df),
-        firth=bool(firth),
-        penalised_log_likelihood=loss.log_binomial_total() * scale - objective,
+        **likelihood_fields(loglik, theta.size, n_obs, lr_statistic(lr), problem.p),
+        firth=bool(family.firth),
+        penalised_log_likelihood=loss.log_binomial_total() * problem.weight_scale - objective,
         profile_intervals=bounds,
-        profile_level=level if profile else float("nan"),
-        grouped=bool(grouped),
-        has_offset=off is not None,
-        target=target_name(y),
+        profile_level=level if level is not None else float("nan"),
+        grouped=bool(loss.grouped),
+        has_offset=family.offset is not None,
+        target=target,
     )
 
 

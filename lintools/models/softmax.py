@@ -28,7 +28,7 @@ from typing import Any, Callable, Sequence
 
 import numpy as np
 
-from ..support.errors import InputError, LintoolsError, SeparationError
+from ..support.errors import InputError
 from ..engine.multinomial import ROWS, MultinomialLoss
 from .softmax_record import SoftmaxFit
 from .responses import read_labels, target_name
@@ -36,22 +36,21 @@ from ..support.scaling import caller_covariance, check_l2_scale, scaled_back, sc
 from ..support.threads import with_row_threads
 from ..support.validate import as_matrix, as_offset, as_weights, check_names, is_one_of
 from .inference import likelihood_fields
-from .logistic import _Watch as _BinaryWatch
-from .logistic import (
+from .driver import (
     DEFAULT_TOL,
-    ETA_SUSPECT,
-    MOVE_SUSPECT,
-    SMALL_PROBLEM,
-    _constant_columns,
-    _rank_message,
+    Solved,
+    Watch,
     check_fit_settings,
-    checked_problem,
     check_parameters_and_rows,
-    convergence_record,
-    final_evaluation,
-    run_with_check,
+    checked_problem,
+    constant_columns,
+    likelihood_summary,
+    lr_statistic,
+    rank_message,
+    solve_family,
+    unless_scipy_missing,
 )
-from ..engine import AffineProblem, IterationRecord, LinearModelProblem, SingularMatrixError, inverse_spd
+from ..engine import AffineProblem, IterationRecord, LinearModelProblem, inverse_spd
 from ..engine.newton import newton
 
 __all__ = ["softmax"]
@@ -77,7 +76,7 @@ def reference_index(reference: Any, classes: tuple, lam: float) -> int | None:
                      "name one of the classes")
 
 
-class _Watch(_BinaryWatch):
+class _Watch(Watch):
     """Divergence monitor: rows whose own class leads every other by more than ETA_LIMIT.
 
     A row's lead is at most the spread of its linear predictor (its largest entry less its
@@ -121,18 +120,41 @@ class _Watch(_BinaryWatch):
 
 
 def _exact_check(Xa, codes, classes, w, intercept, names):
+    """Run the linear programme; return the diagnosis, or None when SciPy is missing."""
     from .separation import multinomial_separation
 
-    try:
-        return multinomial_separation(Xa, codes, classes, w, intercept, names)
-    except LintoolsError as exc:
-        if "SciPy" in str(exc):
-            return None
-        raise
+    return unless_scipy_missing(multinomial_separation, Xa, codes, classes, w, intercept, names)
 
 
-def _raise_separation(diag) -> None:
-    raise SeparationError(f"{diag.describe()}. {SEPARATION_REMEDY}.", diagnosis=diag)
+class SoftmaxFamily:
+    """The softmax family for :func:`lintools.models.driver.solve_family`.
+
+    ``loss`` codes the classes in the internal order (the reference class first):
+    ``order[j]`` is the sorted class of internal column ``j``."""
+
+    remedies = SEPARATION_REMEDY
+    separated = "separated"
+    singular_runaway = True
+
+    def __init__(self, Xa: np.ndarray, loss: MultinomialLoss, offset: np.ndarray | None, names: tuple[str, ...],
+                 intercept: bool, lam: float, classes: tuple, order: np.ndarray) -> None:
+        self.Xa, self.loss, self.offset, self.names = Xa, loss, offset, names
+        self.intercept, self.lam, self.classes, self.order = intercept, lam, classes, order
+        self.size = Xa.size * len(classes)
+        self.watch = _Watch(loss, offset) if lam == 0 else None
+
+    def exact_check(self) -> Any:
+        return _exact_check(self.Xa, self.order[self.loss.codes], self.classes, self.loss.weights, self.intercept,
+                            self.names)
+
+    def rank_message(self) -> str | None:
+        return rank_message(self.Xa, self.loss.weights, self.intercept, self.names) if self.lam == 0 else None
+
+    def covariance(self, problem: LinearModelProblem, target: Any, z: np.ndarray) -> np.ndarray:
+        return z_covariance(problem, target, z)
+
+    def newton_move(self, problem: LinearModelProblem, ev: Any, Vz: np.ndarray) -> float:
+        return float(np.max(np.abs(problem.eta(-(Vz @ ev.gradient), with_offset=False))))
 
 
 def intercept_subspace(problem: LinearModelProblem) -> np.ndarray:
@@ -249,9 +271,6 @@ def softmax(
     icodes = inverse[codes]
     del codes  # the exact check re-forms the sorted-class codes from icodes when it runs
     loss = MultinomialLoss(icodes, K, w, reference=ref is not None)
-
-    def exact_check():
-        return _exact_check(Xa, order[icodes], tuple(classes), w, intercept, names_t)
     off = None
     if off_full is not None:
         off = off_full[:, order]
@@ -260,79 +279,17 @@ def softmax(
             off = off[:, 0]  # one output (two classes, a reference): the problem's eta is (n,)
     problem = checked_problem(Xa, found, names_t, loss, intercept=intercept, l2=lam, offset=off, weight_scale=scale)
     if intercept and p and lam == 0:
-        _constant_columns(Xa, w > 0, names_t, problem.spread, problem.c)
+        constant_columns(Xa, w > 0, names_t, problem.spread, problem.c)
     target = problem
     start = None
     if ref is None and intercept:
         E = intercept_subspace(problem)
         target = AffineProblem(problem, np.zeros(problem.size), E)
         start = E.T @ problem.start()
-    watch = _Watch(loss, off) if lam == 0 else None
-
-    def fail(why: str, z: np.ndarray | None = None):
-        msg = _rank_message(Xa, w, intercept, names_t) if lam == 0 else None
-        if msg:
-            raise InputError(msg)
-        if watch is not None:
-            diag = exact_check()
-            if diag is not None and diag.separated:
-                _raise_separation(diag)
-            count, top = watch.runaway(problem.eta(z), ETA_SUSPECT) if (diag is None and z is not None) else (0, 0.0)
-            if count:
-                raise SeparationError(
-                    f"the fit diverges: {count} row(s) have their own class ahead of every other by more than "
-                    f"{ETA_SUSPECT:g} in the linear predictor (up to {top:.3g}) when {why}: the classes appear "
-                    "separated, so the maximum-likelihood estimate does not exist (Albert & Anderson 1984). The "
-                    "exact check needs SciPy (scipy.optimize.linprog), which is not installed. "
-                    f"{SEPARATION_REMEDY}.")
-        raise LintoolsError(f"{why}: the design is full rank but too ill-conditioned for the fitted weights; "
-                            "rescale or drop nearly collinear columns, or set l2 > 0")
-
-    try:
-        res, checked = run_with_check(target, solver, tol, max_iter, on_iteration, watch,
-                                      exact_check,
-                                      start=start, on_separated=_raise_separation)
-    except SingularMatrixError as exc:
-        fail(f"the information matrix is singular ({exc})")
-    z = target.embed(res.z) if target is not problem else res.z
-    if res.status == "singular":
-        fail(res.message, z)
-    try:
-        Vz = z_covariance(problem, target, z)
-    except SingularMatrixError:
-        fail("the information matrix is singular at the answer", z)
-    ev = final_evaluation(problem, res) if target is problem else problem.evaluate(z, fresh=True)
-    if watch is not None and not checked:
-        _final_check(res, ev, Vz, problem, watch, exact_check,
-                     Xa.size * K)
-    conv = convergence_record(res, ev, problem, z, solver)
-    return _package(problem, loss, ev, Vz, z, order, ref, classes, names_t, lam, intercept, conv,
-                    off, off_full is not None, tol, max_iter, y)
-
-
-def _final_check(res, ev, Vz, problem, watch, check, size) -> None:
-    """At the answer: rows that ran away plus a remaining Newton move mean divergence."""
-    count, top = watch.runaway(ev.eta, ETA_SUSPECT)
-    suspicious = res.status in ("iteration_limit", "stalled") and (count > 0 or size <= SMALL_PROBLEM)
-    move = 0.0
-    if count:
-        move = float(np.max(np.abs(problem.eta(-(Vz @ ev.gradient), with_offset=False))))
-        suspicious = suspicious or move > MOVE_SUSPECT
-    if not suspicious:
-        return
-    diag = check()
-    if diag is not None:
-        if diag.separated:
-            _raise_separation(diag)
-        return
-    if count and move > MOVE_SUSPECT:
-        raise SeparationError(
-            f"the fit diverges: after {res.iterations} iteration(s) {count} row(s) have their own class ahead "
-            f"of every other by more than {ETA_SUSPECT:g} in the linear predictor (up to {top:.3g}) and a "
-            f"further Newton step would move it by {move:.3g}: the classes appear separated, so the "
-            "maximum-likelihood estimate does not exist (Albert & Anderson 1984). The exact check needs "
-            f"SciPy (scipy.optimize.linprog), which is not installed. {SEPARATION_REMEDY}."
-        )
+    family = SoftmaxFamily(Xa, loss, off, names_t, intercept, lam, tuple(classes), order)
+    solved = solve_family(family, problem, solver=solver, tol=tol, max_iter=max_iter, on_iteration=on_iteration,
+                          target=target, start=start)
+    return _record(family, problem, solved, ref, off_full is not None, tol, max_iter, target_name(y))
 
 
 def z_covariance(problem: LinearModelProblem, target: Any, z: np.ndarray) -> np.ndarray:
@@ -344,12 +301,14 @@ def z_covariance(problem: LinearModelProblem, target: Any, z: np.ndarray) -> np.
     return E @ inverse_spd(E.T @ H @ E) @ E.T
 
 
-def _package(problem, loss, ev, Vz, z, order, ref, classes, names, lam, intercept, conv, off, has_offset,
-             tol, max_iter, y) -> SoftmaxFit:
-    n, p = problem.X.shape
+def _caller_parameters(family: SoftmaxFamily, problem: LinearModelProblem, z: np.ndarray, Vz: np.ndarray,
+                       ref: int | None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """``(theta, se, covariance)`` in the caller's units: (p1, K) parameters and standard
+    errors in classes order (the pinned class zero), the covariance class-major."""
+    classes, order, names, intercept = family.classes, family.order, family.names, family.intercept
     K, Kf, p1 = len(classes), problem.K, problem.p1
-    scale = problem.weight_scale  # the loss holds the caller's weights / scale (lintools.support.scaling)
-    V = caller_covariance(problem.theta_from_z_matrix(), Vz, scale, internal_terms(names, classes, order, ref, intercept),
+    V = caller_covariance(problem.theta_from_z_matrix(), Vz, problem.weight_scale,
+                          internal_terms(names, classes, order, ref, intercept),
                           np.repeat(np.concatenate([np.full(int(intercept), np.nan), problem.s]), Kf))
     theta = problem.to_original(z).reshape(p1, Kf)  # internal free columns
     se_int = np.sqrt(np.clip(np.diag(V), 0.0, None)).reshape(p1, Kf)
@@ -366,36 +325,40 @@ def _package(problem, loss, ev, Vz, z, order, ref, classes, names, lam, intercep
     free_sorted = [k for k in range(K) if ref is None or k != ref]
     internal_col = {int(order[j]): j - first for j in range(first, K)}
     perm = [t * Kf + internal_col[k] for k in free_sorted for t in range(p1)]
-    Vc = V[np.ix_(perm, perm)]
-    b = full_t[0] if intercept else np.zeros(K)
-    B = full_t[int(intercept):]
-    eta = ev.eta
-    loglik = scaled_back(loss.log_likelihood(eta), scale, "log-likelihood")
-    dev = scaled_back(loss.deviance(eta), scale, "deviance")
-    n_obs = scaled_back(float(loss.row_weights().sum()), scale, "number of observations (sum of weights)")
-    null_dev = scaled_back(_null_deviance(loss, n, off, intercept, tol, max_iter), scale, "null deviance")
+    return full_t, full_se, V[np.ix_(perm, perm)]
+
+
+def _record(family: SoftmaxFamily, problem: LinearModelProblem, solved: Solved, ref: int | None, has_offset: bool,
+            tol: float, max_iter: int, target: Any) -> SoftmaxFit:
+    """The :class:`SoftmaxFit` of a solved softmax family (``ref``: the pinned class or None)."""
+    classes, intercept, loss = family.classes, family.intercept, family.loss
+    n, p = problem.X.shape
+    K, Kf, p1 = len(classes), problem.K, problem.p1
+    full_t, full_se, Vc = _caller_parameters(family, problem, solved.z, solved.covariance, ref)
+    loglik, dev, n_obs = likelihood_summary(problem, loss, solved.evaluation, "sum of weights")
+    null_dev = scaled_back(_null_deviance(loss, n, family.offset, intercept, tol, max_iter), problem.weight_scale,
+                           "null deviance")
     k_free = p1 * Kf - (1 if (ref is None and intercept) else 0)
-    lr_df = p * (K - 1)
-    lr = max(null_dev - dev, 0.0) if lam == 0 else float("nan")
+    lr = lr_statistic(null_dev - dev if family.lam == 0 else float("nan"))
     return SoftmaxFit(
-        coefficients=B,
-        intercept=b,
+        coefficients=full_t[int(intercept):],
+        intercept=full_t[0] if intercept else np.zeros(K),
         standard_errors=full_se[int(intercept):],
         intercept_standard_error=full_se[0] if intercept else None,
         covariance=Vc,
         log_likelihood=loglik,
         deviance=dev,
         n_observations=n_obs,
-        names=names,
-        convergence=conv,
+        names=family.names,
+        convergence=solved.convergence,
         with_intercept=bool(intercept),
-        l2=lam,
+        l2=family.lam,
         classes=tuple(classes),
         reference_class=None if ref is None else classes[ref],
         null_deviance=null_dev,
-        **likelihood_fields(loglik, k_free, n_obs, lr, lr_df),
+        **likelihood_fields(loglik, k_free, n_obs, lr, p * (K - 1)),
         has_offset=has_offset,
-        target=target_name(y),
+        target=target,
     )
 
 
