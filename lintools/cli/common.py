@@ -317,5 +317,4 @@ def refuse_segment_column(by: str | None, roles: Iterable[tuple[str | None, str]
     """Refuse a ``--by`` column that already has a role (``(column, role words)`` pairs)."""
     for name, role in roles:
         if by is not None and by == name:
-            raise InputError(f"--by column '{by}' is {role}; segment by another column (within a segment it "
-                             "would hold one value)")
+            raise InputError(f"--by column '{by}' is also {role}; name another column to segment by")
