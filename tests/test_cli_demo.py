@@ -17,7 +17,7 @@ import statsmodels.api as sm
 import lintools as lt
 from lintools.cli.demo_data import FEATURES, inspection_data, supplier_leak_model
 
-FILES = ["report.txt", "inspection.csv", "supplier_leak.pmml", "fill_deviation.json", "fill_deviation.pmml",
+FILES = ["report.txt", "inspection.csv", "recent.csv", "supplier_leak.pmml", "fill_deviation.json", "fill_deviation.pmml",
          "leak.json", "leak.pmml", "reliability.png"]
 
 
