@@ -15,9 +15,9 @@ import sklearn.metrics
 import statsmodels.api as sm
 
 import lintools as lt
-from lintools.cli.demo_data import FEATURES, inspection_data, supplier_leak_model
+from lintools.cli.demo_data import FEATURES, inspection_data, recent_inspection_data, supplier_leak_model
 
-FILES = ["report.txt", "inspection.csv", "supplier_leak.pmml", "fill_deviation.json", "fill_deviation.pmml",
+FILES = ["report.txt", "inspection.csv", "recent.csv", "supplier_leak.pmml", "fill_deviation.json", "fill_deviation.pmml",
          "leak.json", "leak.pmml", "reliability.png"]
 
 
@@ -42,7 +42,7 @@ def test_the_folder_holds_the_report_and_the_model_files(demo):
     assert "statistical agreement is not model validation" in report
     assert "local regulation" in report and "model-risk practice" in report
     for heading in ("1. Fill-volume deviation", "2. Seal leak", "3. Defect class", "4. The supplier's",
-                    "5. Calibration", "6. Stratified 5-fold"):
+                    "5. Calibration", "6. Stratified 5-fold", "7. A recent sample"):
         assert heading in report
     assert doc["folder"] == str(folder) and sorted(doc["files"]) == sorted(
         str(folder / f) for f in FILES + (["defect.json", "defect.pmml"] if doc["defect"] else []))
@@ -109,6 +109,31 @@ def test_the_demo_files_feed_the_other_subcommands(demo):
                "supplier_leak_probability", "--json")
     assert proc.returncode == 0, proc.stderr
     assert json.loads(proc.stdout)["positive"] == "True"
+
+
+def test_the_recent_sample_drifts_in_the_nozzle_age_only(demo):
+    """lintools.cli.demo_data draws the recent sample with the nozzle age alone moved (30 to
+    180 days against 0 to 120): its index is the largest of the features, by far, and every
+    other feature reads stable (below 0.1, the reading band of common practice)."""
+    folder, doc = demo
+    psi = {name: r["index"] for name, r in doc["recent_stability"].items()}
+    assert set(psi) == set(FEATURES) | {"fill_deviation", "leak", "defect", "supplier_leak_probability"}
+    assert max(FEATURES, key=psi.get) == "nozzle_age" and psi["nozzle_age"] > 0.25
+    assert all(psi[f] < 0.1 for f in FEATURES if f != "nozzle_age")
+    # source: lintools.population_stability on the generator's columns (the library is checked
+    # against a hand computation in exact fractions in test_stability.py)
+    dev, recent = inspection_data(), recent_inspection_data()
+    for j, name in enumerate(FEATURES):
+        assert psi[name] == lt.population_stability(dev.X[:, j], recent.X[:, j]).index
+    # the band tests are those of the supplier's probabilities on the recent rows (source: lintools.band_tests)
+    slopes, intercept = supplier_leak_model()
+    p = 1 / (1 + np.exp(-(recent.X @ np.array([slopes[f] for f in FEATURES]) + intercept)))
+    want = lt.band_tests(recent.leak, p, 10)
+    assert np.allclose(doc["recent_band_tests"]["binomial_p_value"], want.binomial_p_value, rtol=1e-9)
+    report = (folder / "report.txt").read_text()
+    assert "The feature that moved most: 'nozzle_age'" in report and "Band tests" in report
+    proc = run("stability", str(folder / "inspection.csv"), str(folder / "recent.csv"), "--json", "--quiet")
+    assert proc.returncode == 0 and json.loads(proc.stdout)["columns"]["nozzle_age"]["index"] == psi["nozzle_age"]
 
 
 def test_text_summary_and_bad_options(tmp_path):

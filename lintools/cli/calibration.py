@@ -9,6 +9,14 @@ a reliability diagram is written as PNG; that needs matplotlib (the ``plot`` ext
 The probabilities are read as those of the positive label: the larger of the two labels
 unless ``--positive`` names it; the command says which (on standard error), and warns
 when the ROC area is below 0.5, the mark of probabilities of the other class.
+
+With ``--by COLUMN`` the whole report (and the band tests of ``--bands``) is repeated for
+each segment (each value of that column), after the one over all rows, with the positive
+label of all rows.  A segment with fewer than
+:data:`lintools.cli.common.SMALL_SEGMENT_ROWS` rows of either class is flagged as small
+(common practice: ten events per variable); it is reported, never dropped, and a statistic
+that cannot be computed in it is listed with its reason.  The ``--by`` column may not be the
+label, probability or weights column (refused by name); it may be the ``--bands`` column.
 """
 
 from __future__ import annotations
@@ -20,7 +28,17 @@ from typing import Any
 
 import numpy as np
 
-from .common import check_output_paths, emit_json, match_label, probabilities_in_range, whole
+from .common import (
+    SMALL_SEGMENT_ROWS,
+    check_output_paths,
+    emit_json,
+    match_label,
+    probabilities_in_range,
+    refuse_segment_column,
+    segment_heading,
+    segments,
+    whole,
+)
 from ..support.errors import InputError, LintoolsError
 
 PLOT_EXTRA = ('the plot extra: python -m pip install -e ".[plot]" in a checkout of lintools, '
@@ -165,11 +183,15 @@ def run_calibration(args: argparse.Namespace) -> int:
     check_output_paths([("CSV file", args.csv)], [("--plot", args.plot)], args.replace)
     if args.label == args.probability:
         raise InputError("--label and --probability name the same column; pass two columns")
+    refuse_segment_column(args.by, [(args.label, "the --label column (a segment would hold one class)"),
+                                    (args.probability, "the --probability column"),
+                                    (args.weights, "the --weights column")])
     # the probability column is read as a feature and the weights as weights: the reader's
     # strict number rules (and --decimal, --missing-values) hold for them as for a fit
     band_column = None if args.bands is None or args.bands.isdigit() else args.bands
+    extra = list(dict.fromkeys(c for c in (band_column, args.by) if c))  # the same column is read once
     table = read_table(args.csv, target=args.label, features=[args.probability], weights=args.weights,
-                       extra=[band_column] if band_column else [], drop_missing=args.drop_missing,
+                       extra=extra, drop_missing=args.drop_missing,
                        **table_options(args, "categorical"))
     if table.names != (args.probability,):
         raise InputError(f"{args.csv!r}: the probability column '{args.probability}' holds text, not numbers; "
@@ -180,15 +202,11 @@ def run_calibration(args: argparse.Namespace) -> int:
     positive = match_label(args.positive, sorted(set(y), key=str), "--positive") if args.positive else None
     rep = calibration_report(y, p, positive=positive, bins=args.bins, strategy=args.strategy,
                              groups=args.groups, weights=w)
-    grades = None
-    if args.bands is not None:
-        from ..metrics.band_tests import band_tests
-
-        count = int(args.bands) if band_column is None else 0
-        if band_column is None and count < 1:
-            raise InputError("--bands 0: pass a number of quantile bands of 1 or more, or a column of grades")
-        grades = band_tests(y, p, list(table.extra[band_column]) if band_column else count, weights=w,
-                            positive=positive)
+    if band_column is None and args.bands is not None and int(args.bands) < 1:
+        raise InputError("--bands 0: pass a number of quantile bands of 1 or more, or a column of grades")
+    every = np.ones(len(y), dtype=bool)
+    grades = _grades(args, table, band_column, y, p, w, positive, every)
+    blocks = _segment_blocks(args, table, band_column, y, p, w, rep.positive) if args.by else []
     console = args.console
     how = "chosen with --positive" if positive is not None else "the larger label; choose with --positive"
     console.note(f"taking '{args.probability}' as the probability of class '{rep.positive!s}' ({how})")
@@ -203,7 +221,8 @@ def run_calibration(args: argparse.Namespace) -> int:
     if args.json:
         doc = rep.to_json()
         doc.update({"data": args.csv, "label": args.label, "probability": args.probability,
-                    "dropped_rows": table.dropped, "plot": args.plot, "band_tests": grades,
+                    "dropped_rows": table.dropped, "plot": args.plot, "band_tests": grades, "by": args.by,
+                    "small_segment_rule": _SMALL_RULE if args.by else None, "segments": blocks,
                     "warnings": [text for _, text in args.warnings_seen] + ([swapped] if swapped else [])})
         emit_json(doc)
     else:
@@ -213,8 +232,67 @@ def run_calibration(args: argparse.Namespace) -> int:
         print(rep.text())
         if grades is not None:
             print(grades.report())
+        for block in blocks:
+            _print_segment(args, block)
         console.caution()
     return 0
+
+
+_SMALL_RULE = (f"fewer than {SMALL_SEGMENT_ROWS} rows of either class (common practice: ten events per "
+               "variable); its figures are unstable")
+
+
+def _grades(args: argparse.Namespace, table: Any, band_column: str | None, y: list, p: np.ndarray, w: Any,
+            positive: Any, rows: np.ndarray) -> Any:
+    """The band tests of ``--bands`` on the rows of the mask ``rows`` (None without ``--bands``):
+    the grades of the column, or that many quantile bands of these rows' probabilities."""
+    if args.bands is None:
+        return None
+    from ..metrics.band_tests import band_tests
+
+    bands = np.asarray(table.extra[band_column], dtype=object)[rows].tolist() if band_column else int(args.bands)
+    return band_tests([v for v, r in zip(y, rows) if r], p[rows], bands,
+                      weights=None if w is None else w[rows], positive=positive)
+
+
+def _segment_blocks(args: argparse.Namespace, table: Any, band_column: str | None, y: list, p: np.ndarray,
+                    w: Any, positive: Any) -> list[dict]:
+    """One block per segment of ``--by``: its rows and class counts, the small flag, its
+    calibration report and band tests, or the reason each could not be computed."""
+    blocks = []
+    for value, (rows,) in segments(table.extra[args.by]):
+        ys = [v for v, r in zip(y, rows) if r]
+        positives = sum(1 for v in ys if v == positive)
+        block = {"segment": value, "rows": len(ys), "positives": positives, "negatives": len(ys) - positives,
+                 "small": min(positives, len(ys) - positives) < SMALL_SEGMENT_ROWS, "report": None,
+                 "band_tests": None, "notes": []}
+        try:
+            block["report"] = calibration_report(ys, p[rows], positive=positive, bins=args.bins,
+                                                 strategy=args.strategy, groups=args.groups,
+                                                 weights=None if w is None else w[rows])
+        except (InputError, LintoolsError) as exc:  # e.g. every weight of the segment is zero
+            block["notes"].append(f"calibration report not computed: {exc}")
+        try:
+            block["band_tests"] = _grades(args, table, band_column, y, p, w, positive, rows)
+        except (InputError, LintoolsError) as exc:
+            block["notes"].append(f"band tests not computed: {exc}")
+        if block["report"] is not None:
+            block["report"] = block["report"].to_json() if args.json else block["report"]
+        blocks.append(block)
+    return blocks
+
+
+def _print_segment(args: argparse.Namespace, block: dict) -> None:
+    """A segment's block of the text report."""
+    counts = (f"{block['rows']} rows, {block['positives']} of the positive label and {block['negatives']} "
+              "of the other")
+    print(segment_heading(args.by, block["segment"], counts, _SMALL_RULE if block["small"] else None) + "\n")
+    if block["report"] is not None:
+        print(block["report"].text())
+    if block["band_tests"] is not None:
+        print(block["band_tests"].report())
+    for note in block["notes"]:
+        print(note + "\n")
 
 
 def add_calibration_parser(sub: Any, common: Any) -> None:
@@ -240,6 +318,9 @@ def add_calibration_parser(sub: Any, common: Any) -> None:
     p.add_argument("--bands", metavar="N|COLUMN",
                    help="also back-test the probabilities band by band (exact binomial and Jeffreys tests): N "
                         "quantile bands of the probabilities, or a column of rating grades")
+    p.add_argument("--by", metavar="COLUMN",
+                   help="also report each segment (each value of this column) after all rows; segments with "
+                        f"fewer than {SMALL_SEGMENT_ROWS} rows of a class are flagged as small")
     p.add_argument("--plot", metavar="PNG", help=f"write a reliability diagram to this PNG file ({PLOT_EXTRA})")
     p.add_argument("--replace", action="store_true", help="replace an existing --plot file")
     p.add_argument("--drop-missing", action="store_true", help="drop lines with missing values instead of stopping")

@@ -10,6 +10,17 @@ with the delivered model's feature names as columns and its target column.  The 
   given and the largest absolute difference in predicted probability (for least squares:
   in the predicted response) on the CSV rows exceeds it;
 * otherwise they **agree** (exit 0); disagreement exits 1, bad input 2.
+
+With ``--by COLUMN`` the refit and the comparison are repeated within each segment (each
+value of that column), after the ones over all rows, and each segment gets its verdict.
+The exit status follows all rows only: the segments are several more tests at the same
+significance (with k segments the chance of at least one rejection by chance alone is
+1 - (1 - significance)^k), and small segments have unstable refits.  A segment with fewer
+than :data:`lintools.cli.common.SMALL_SEGMENT_ROWS` rows of its smallest class per
+coefficient (least squares: rows per coefficient) is flagged as small (common practice:
+ten events per variable); a segment whose refit or comparison cannot be done is listed
+with the reason.  The ``--by`` column may not be the target, the weights or a column the
+model uses (refused by name: within a segment it would be constant).
 """
 
 from __future__ import annotations
@@ -33,9 +44,13 @@ from .common import (
     match_label,
     nonnegative,
     refuse_inapplicable,
+    refuse_segment_column,
+    segment_heading,
+    segments,
+    SMALL_SEGMENT_ROWS,
 )
 from .console import CAUTION, report_text
-from ..support.errors import InputError, IterationLimitWarning
+from ..support.errors import InputError, IterationLimitWarning, LintoolsError
 
 DEFAULT_SIGNIFICANCE = 0.05
 
@@ -110,19 +125,22 @@ def read_refit_data(args: argparse.Namespace, d: Delivered) -> tuple[Any, np.nda
 
     target = args.target or d.target
     header = list(read_header(args.csv, **table_options(args, "categorical", header=True)))
+    by = [args.by] if args.by else []
     if d.categorical_fields:  # the text columns are known: read them as the model does when it scores
         from ..exchange.scoring import model_inputs, read_inputs
 
         inputs = model_inputs(d.names, d.categorical_fields)
+        _refuse_by(args, target, inputs.columns)
         absent = [c for c in inputs.columns if c not in header]
         if absent:
             raise InputError(f"the delivered model's input '{absent[0]}' is not a column of {args.csv!r} (its "
                              f"columns: {', '.join(header)}); the refit needs every input the model uses")
         table, X = read_inputs(args.csv, inputs, table_options(args, "categorical"), target=target,
-                               weights=args.weights, drop_missing=args.drop_missing)
+                               weights=args.weights, extra=by, drop_missing=args.drop_missing)
         return table, X, target
     cols = _columns_for(d.names, header, args.csv)
-    kwargs = dict(target=target, features=cols, weights=args.weights, drop_missing=args.drop_missing,
+    _refuse_by(args, target, cols)
+    kwargs = dict(target=target, features=cols, weights=args.weights, extra=by, drop_missing=args.drop_missing,
                   **table_options(args, "categorical"))
     table = read_table(args.csv, **kwargs)
     extra = [n for n in table.names if n not in d.names]
@@ -148,31 +166,39 @@ def read_refit_data(args: argparse.Namespace, d: Delivered) -> tuple[Any, np.nda
     return table, table.X[:, order], target
 
 
-def _refit(d: Delivered, table: Any, X: np.ndarray, target: str, args: argparse.Namespace, progress: Progress) -> Any:
+def _refuse_by(args: argparse.Namespace, target: str, columns: Any) -> None:
+    """Refuse a ``--by`` column that is the target, the weights or an input of the model."""
+    refuse_segment_column(args.by, [(target, "the target column"), (args.weights, "the --weights column")]
+                          + [(c, "a column the delivered model uses") for c in columns])
+
+
+def _refit(d: Delivered, labels: list, weights: Any, X: np.ndarray, target: str, args: argparse.Namespace,
+           progress: Progress) -> Any:
+    """The refit of the delivered kind of model on ``X`` and the target values ``labels``."""
     l2 = args.l2 if args.l2 is not None else (d.l2 or 0.0)
     with_b = d.intercept is not None
     if d.kind == "least_squares":
         from ..models.least_squares import least_squares
 
-        if not all(isinstance(v, (int, float)) for v in table.target):
+        if not all(isinstance(v, (int, float)) for v in labels):
             raise InputError(f"target column '{target}' holds text; a least-squares model needs numbers")
         fit = least_squares(
-            X, np.array(table.target, dtype=float), weights=table.weights, intercept=with_b, l2=l2,
+            X, np.array(labels, dtype=float), weights=weights, intercept=with_b, l2=l2,
             covariance=args.covariance or d.covariance_type or "classical", names=d.names,
             rank_deficient="minimum_norm" if args.minimum_norm else "raise", weight_type=args.weight_type or "case",
         )
     elif d.kind == "logistic":
         from ..models.logistic import logistic
 
-        labels = sorted(set(table.target), key=str)
-        if len(labels) != 2:
-            raise InputError(f"target column '{target}' has {len(labels)} distinct labels; a logistic model needs two")
+        found = sorted(set(labels), key=str)
+        if len(found) != 2:
+            raise InputError(f"target column '{target}' has {len(found)} distinct labels; a logistic model needs two")
         if args.positive is not None:
-            positive = match_label(args.positive, labels, "--positive")
+            positive = match_label(args.positive, found, "--positive")
         else:
-            positive = _positive_in(d.positive, labels)
+            positive = _positive_in(d.positive, found)
         fit = logistic(
-            X, list(table.target), weights=table.weights, intercept=with_b, l2=l2, firth=args.firth,
+            X, labels, weights=weights, intercept=with_b, l2=l2, firth=args.firth,
             names=d.names, on_iteration=progress, positive=positive, **fit_options(args),
         )
     else:
@@ -180,9 +206,9 @@ def _refit(d: Delivered, table: Any, X: np.ndarray, target: str, args: argparse.
 
         reference = d.reference
         if reference not in ("first", None):
-            reference = match_label(str(reference), sorted(set(table.target), key=str), "the model's reference class")
+            reference = match_label(str(reference), sorted(set(labels), key=str), "the model's reference class")
         fit = softmax(
-            X, list(table.target), weights=table.weights, intercept=with_b, l2=l2, reference=reference,
+            X, labels, weights=weights, intercept=with_b, l2=l2, reference=reference,
             names=d.names, on_iteration=progress, **fit_options(args),
         )
     return dataclasses.replace(fit, target=target)
@@ -228,33 +254,17 @@ def _softmax_delivered(d: Delivered, fit: Any) -> tuple[np.ndarray, Any, str | N
     return B[:, order], None if b is None else b[order], note
 
 
-def run_check(args: argparse.Namespace) -> int:
-    """The ``check`` subcommand."""
-    from ..exchange.crosscheck import compare_coefficients, implied_l2
+def _judge(d: Delivered, fit: Any, X: np.ndarray, labels: list, weights: Any, args: argparse.Namespace,
+           warned: bool) -> dict:
+    """The comparison of the delivered coefficients with ``fit`` on these rows and its
+    verdict; ``warned``: an iteration-limit warning was raised by this refit."""
+    from ..exchange.crosscheck import compare_coefficients
 
-    d = read_delivered(args.model)
-    refuse_inapplicable(args, d.kind, "the delivered model")
-    table, X, target = read_refit_data(args, d)
-    fit = _refit(d, table, X, target, args, Progress(args.quiet, "refit"))
-    chosen = "chosen with --positive" if args.positive is not None else "as in the model file; choose with --positive"
-    note_words = class_note(fit, {"logistic": chosen,
-                                  "softmax": "as in the model file"})
-    if note_words:
-        args.console.note(note_words)
-    caught = args.warnings_seen
     coef, intercept, note = d.coefficients, d.intercept, None
     if d.kind == "softmax":
         coef, intercept, note = _softmax_delivered(d, fit)
-    y = np.array(table.target, dtype=float) if d.kind == "least_squares" else list(table.target)
-    cmp = compare_coefficients(fit, coef, intercept, X=X, y=y, weights=table.weights)
-
-    implied = None
-    if d.kind in ("least_squares", "logistic") and np.any(coef):
-        yy = y if d.kind == "least_squares" else np.array([v == fit.positive_class for v in y])
-        implied = implied_l2(X, yy, coef, intercept, model=d.kind, weights=table.weights)
-    total = float(table.weights.sum()) if table.weights is not None else float(X.shape[0])
-    implied_text = None if implied is None else implied_words(implied, total)
-
+    y = np.array(labels, dtype=float) if d.kind == "least_squares" else labels
+    cmp = compare_coefficients(fit, coef, intercept, X=X, y=y, weights=weights)
     reasons = []
     if cmp.wald_p_value < args.significance:
         reasons.append(f"the Wald test rejects 'delivered = refit' at significance {args.significance:g} "
@@ -264,8 +274,41 @@ def run_check(args: argparse.Namespace) -> int:
         what = "response" if d.kind == "least_squares" else "probability"
         reasons.append(f"the largest difference in predicted {what} ({gap:.3g}) exceeds --max-difference "
                        f"{args.max_difference:g}")
-    not_converged = (not fit.convergence.converged) or any(issubclass(c, IterationLimitWarning) for c, _ in caught)
-    agree = not reasons and not not_converged
+    converged = fit.convergence.converged and not warned
+    return {"comparison": cmp, "note": note, "reasons": reasons, "converged": converged,
+            "agree": not reasons and converged, "coef": coef, "intercept": intercept, "y": y}
+
+
+def _iteration_warned(caught: list, since: int) -> bool:
+    return any(issubclass(c, IterationLimitWarning) for c, _ in caught[since:])
+
+
+def run_check(args: argparse.Namespace) -> int:
+    """The ``check`` subcommand."""
+    from ..exchange.crosscheck import implied_l2
+
+    d = read_delivered(args.model)
+    refuse_inapplicable(args, d.kind, "the delivered model")
+    table, X, target = read_refit_data(args, d)
+    labels = list(table.target)
+    caught = args.warnings_seen
+    fit = _refit(d, labels, table.weights, X, target, args, Progress(args.quiet, "refit"))
+    chosen = "chosen with --positive" if args.positive is not None else "as in the model file; choose with --positive"
+    note_words = class_note(fit, {"logistic": chosen,
+                                  "softmax": "as in the model file"})
+    if note_words:
+        args.console.note(note_words)
+    whole = _judge(d, fit, X, labels, table.weights, args, _iteration_warned(caught, 0))
+    cmp, note, reasons, agree = whole["comparison"], whole["note"], whole["reasons"], whole["agree"]
+    coef, intercept, y = whole["coef"], whole["intercept"], whole["y"]
+
+    implied = None
+    if d.kind in ("least_squares", "logistic") and np.any(coef):
+        yy = y if d.kind == "least_squares" else np.array([v == fit.positive_class for v in y])
+        implied = implied_l2(X, yy, coef, intercept, model=d.kind, weights=table.weights)
+    total = float(table.weights.sum()) if table.weights is not None else float(X.shape[0])
+    implied_text = None if implied is None else implied_words(implied, total)
+    blocks = _segment_blocks(d, fit, table, X, labels, target, args) if args.by else []
 
     if args.json:
         emit_json({
@@ -273,16 +316,86 @@ def run_check(args: argparse.Namespace) -> int:
             "rows": int(X.shape[0]), "dropped_rows": table.dropped, "refit": fit.to_dict(),
             "comparison": cmp, "implied_l2": implied, "implied_l2_words": implied_text, "note": note,
             "tolerance": {"significance": args.significance, "max_difference": args.max_difference},
-            "agree": agree, "reasons": reasons, "refit_converged": not not_converged,
+            "agree": agree, "reasons": reasons, "refit_converged": whole["converged"],
+            "by": args.by, "small_segment_rule": _small_rule(d) if args.by else None, "segments": blocks,
+            "segments_disagreeing": [b["segment"] for b in blocks if b["agree"] is False],
             "warnings": [text for _, text in caught], "caution": CAUTION,
         })
     else:
         _print_text(args, d, fit, cmp, implied_text, note, reasons, target, X.shape[0], table.dropped)
+        for block in blocks:
+            _print_segment(args, d, block)
+        if blocks:
+            print(f"\nThe exit status follows all rows; {sum(b['agree'] is False for b in blocks)} of {len(blocks)} "
+                  "segments disagree (each segment is one more test at the same significance)")
         args.console.caution()
-    if not_converged:
+    if not whole["converged"]:
         print("lintools: the refit did not converge; the comparison is not meaningful", file=sys.stderr)
         return 1
     return 0 if agree else 1
+
+
+def _coefficients(d: Delivered) -> int:
+    """Coefficients per class (per equation) of the delivered model, intercept included."""
+    return len(d.names) + (d.intercept is not None)
+
+
+def _small_rule(d: Delivered) -> str:
+    unit = "rows per coefficient" if d.kind == "least_squares" else "rows of its smallest class per coefficient"
+    return (f"fewer than {SMALL_SEGMENT_ROWS} {unit} ({_coefficients(d)} per equation; common practice: ten "
+            "events per variable); its refit is unstable and its test has little power")
+
+
+def _segment_blocks(d: Delivered, fit: Any, table: Any, X: np.ndarray, labels: list, target: str,
+                    args: argparse.Namespace) -> list[dict]:
+    """One block per segment of ``--by``: its refit, comparison and verdict, or the reason
+    they could not be done; the small flag by :func:`_small_rule`."""
+    blocks = []
+    caught = args.warnings_seen
+    for value, (rows,) in segments(table.extra[args.by]):
+        seg_labels = [v for v, r in zip(labels, rows) if r]
+        w = None if table.weights is None else table.weights[rows]
+        if d.kind == "least_squares":
+            smallest = None
+            size = len(seg_labels)
+        else:
+            smallest = min(sum(1 for v in seg_labels if v == c) for c in fit.classes)
+            size = smallest
+        block = {"segment": value, "rows": len(seg_labels), "smallest_class_rows": smallest,
+                 "small": size < SMALL_SEGMENT_ROWS * _coefficients(d), "refit": None, "comparison": None,
+                 "note": None, "reasons": [], "refit_converged": None, "agree": None, "problem": None}
+        since = len(caught)
+        try:
+            seg_fit = _refit(d, seg_labels, w, X[rows], target, args, Progress(args.quiet, f"refit of {value}"))
+            judged = _judge(d, seg_fit, X[rows], seg_labels, w, args, _iteration_warned(caught, since))
+        except (InputError, LintoolsError) as exc:  # e.g. one class only, separation, an aliased column
+            block["problem"] = f"not compared: {exc}"
+        else:
+            block.update(refit=seg_fit.to_dict() if args.json else seg_fit, comparison=judged["comparison"],
+                         note=judged["note"], reasons=judged["reasons"], refit_converged=judged["converged"],
+                         agree=judged["agree"])
+        blocks.append(block)
+    return blocks
+
+
+def _print_segment(args: argparse.Namespace, d: Delivered, block: dict) -> None:
+    """A segment's block of the text report."""
+    counts = f"{block['rows']} rows" + ("" if block["smallest_class_rows"] is None
+                                        else f", {block['smallest_class_rows']} in its smallest class")
+    print("\n" + segment_heading(args.by, block["segment"], counts, _small_rule(d) if block["small"] else None))
+    if block["problem"]:
+        print(f"  {block['problem']}")
+        return
+    print("Delivered minus the refit on this segment")
+    print(block["comparison"].report())
+    if block["note"]:
+        print(f"Note: {block['note']}")
+    if not block["refit_converged"]:
+        print("Verdict on this segment: NOT MEANINGFUL: its refit did not converge")
+    elif block["reasons"]:
+        print("Verdict on this segment: DISAGREE: " + "; ".join(block["reasons"]))
+    else:
+        print("Verdict on this segment: AGREE within the tolerance")
 
 
 def _print_text(args, d, fit, cmp, implied_text, note, reasons, target, n, dropped) -> None:
@@ -331,6 +444,9 @@ def add_check_parser(sub: Any, common: Any) -> None:
     p.add_argument("--max-difference", type=nonnegative, default=None,
                    help="also disagree when the largest absolute difference in predicted probability "
                         "(least squares: predicted response) on the CSV rows exceeds this (default: not used)")
+    p.add_argument("--by", metavar="COLUMN",
+                   help="also refit and compare within each segment (each value of this column); the exit status "
+                        "follows all rows, segment verdicts are printed; small segments are flagged")
     p.add_argument("--drop-missing", action="store_true", help="drop lines with missing values instead of stopping")
     common(p)
     p.set_defaults(run=run_check)

@@ -290,3 +290,31 @@ def class_note(fit: Any, hints: dict[str, str]) -> str | None:
                if fit.reference_class is not None else "symmetric form, intercepts with mean zero")
         return f"modelling the probabilities of classes {quoted}; {ref} ({hints['softmax']})"
     return None
+
+
+#: A segment of ``--by`` with fewer rows than this per unit of its command's rule (a bin of
+#: ``stability``, a class of ``calibration``, a coefficient of ``check``) is flagged as small.
+#: Common practice: ten events per variable (Peduzzi et al. 1996, J. Clin. Epidemiol.
+#: 49:1373-1379), and ten rows per bin for a population stability index.
+SMALL_SEGMENT_ROWS = 10
+
+
+def segments(*columns: Sequence[Any]) -> list[tuple[Any, tuple[np.ndarray, ...]]]:
+    """The segments of ``--by``: every value met in any of ``columns`` (one per file), in
+    sorted order, each with one boolean row mask per column; no value is dropped."""
+    cols = [np.asarray(c, dtype=object) for c in columns]
+    values = sorted(set().union(*(c.tolist() for c in cols)))
+    return [(value, tuple(c == value for c in cols)) for value in values]
+
+
+def segment_heading(by: str, value: Any, counts: str, small: str | None) -> str:
+    """The first line of a segment's block: its column and value, its rows, and the flag
+    of a small segment (``small`` says why; None when it is not small)."""
+    return f"Segment {by} = {value}: {counts}" + (f"  SMALL: {small}" if small else "")
+
+
+def refuse_segment_column(by: str | None, roles: Iterable[tuple[str | None, str]]) -> None:
+    """Refuse a ``--by`` column that already has a role (``(column, role words)`` pairs)."""
+    for name, role in roles:
+        if by is not None and by == name:
+            raise InputError(f"--by column '{by}' is also {role}; name another column to segment by")

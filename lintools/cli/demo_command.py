@@ -9,9 +9,13 @@ Steps (data from :mod:`lintools.cli.demo_data`, generated from known true coeffi
    prediction differences, implied ridge strength), the disagreement put in words;
 5. a calibration report of the supplier's probabilities on the data;
 6. stratified 5-fold cross-validated Brier score and ROC area of the refit logistic model;
-7. files: ``report.txt``, the model files (JSON and PMML), the supplier's PMML file, the
-   data as CSV (to try ``lintools check`` and ``lintools calibration`` on), and the
-   reliability diagram ``reliability.png`` when matplotlib is installed.
+7. a recent sample in which the nozzle age has drifted: the population stability index of
+   every column of the data file against the development sample, and the band tests of the
+   supplier's probabilities on the recent rows;
+8. files: ``report.txt``, the model files (JSON and PMML), the supplier's PMML file, the
+   data and the recent sample as CSV (to try ``lintools check``, ``lintools calibration``
+   and ``lintools stability`` on), and the reliability diagram ``reliability.png`` when
+   matplotlib is installed.
 
 The folder must be new or empty unless ``--replace`` is given (then the demo's files in
 it are replaced and nothing else is touched); every file is written to a temporary file
@@ -42,14 +46,51 @@ DEFAULT_FOLDER = "lintools-demo"
 MIN_ROWS, MAX_ROWS = 200, 200_000
 
 
+#: The score column of the demo's CSV files.
+SCORE = "supplier_leak_probability"
+
+
+def _columns(data: Any, supplier_p: np.ndarray) -> dict[str, np.ndarray]:
+    """The columns of the demo's CSV files: numbers as floats, the labels as their text."""
+    cols: dict[str, np.ndarray] = {name: data.X[:, j] for j, name in enumerate(data.names)}
+    cols["fill_deviation"] = data.fill_deviation
+    cols["leak"] = np.array([str(bool(v)) for v in data.leak], dtype=object)
+    cols["defect"] = np.asarray(data.defect, dtype=object)
+    cols[SCORE] = supplier_p
+    return cols
+
+
 def _csv_text(data: Any, supplier_p: np.ndarray) -> str:
+    cols = _columns(data, supplier_p)
     out = io.StringIO(newline="")
     w = csv.writer(out)
-    w.writerow(list(data.names) + ["fill_deviation", "leak", "defect", "supplier_leak_probability"])
-    for i in range(data.X.shape[0]):
-        w.writerow([repr(float(v)) for v in data.X[i]] + [repr(float(data.fill_deviation[i])), str(bool(data.leak[i])),
-                                                         data.defect[i], repr(float(supplier_p[i]))])
+    w.writerow(list(cols))
+    cells = [c.tolist() if c.dtype == object else [repr(float(v)) for v in c] for c in cols.values()]
+    w.writerows(zip(*cells))
     return out.getvalue()
+
+
+def recent_step(data: Any, recent: Any, supplier: Any) -> tuple[dict, Any, str]:
+    """Population stability of every column of the recent sample against the development
+    sample (10 bins at the development quantiles, labels by category), and the band tests
+    of the supplier's probabilities on the recent rows (10 quantile bands); returns the
+    records and their text."""
+    from ..metrics.band_tests import band_tests
+    from ..metrics.stability import population_stability
+    from .stability import stability_table
+
+    dev, new = _columns(data, supplier.mean(data.X)), _columns(recent, supplier.mean(recent.X))
+    psi = {name: population_stability(dev[name], new[name]) for name in dev}
+    grades = band_tests(recent.leak, new[SCORE], 10)
+    top = max(data.names, key=lambda n: psi[n].index)
+    parts = [f"{recent.X.shape[0]} recent records against the {data.X.shape[0]} above. Population stability of "
+             "every column (10 bins at the development quantiles, labels by category; the readings below 0.1 "
+             "stable, 0.1 to 0.25 moderate shift, above 0.25 major shift are common practice, not a test):", "",
+             stability_table(psi, SCORE), "",
+             f"The feature that moved most: '{top}' (index {psi[top].index:.3f}, {psi[top].reading}); its bins:",
+             psi[top].report(),
+             "Band tests of the supplier's leak probabilities on the recent rows:", grades.report()]
+    return psi, grades, "\n".join(parts)
 
 
 def _combine(estimates: np.ndarray, ses: np.ndarray, sizes: np.ndarray) -> tuple[float, float]:
@@ -196,7 +237,8 @@ def run_demo(args: argparse.Namespace) -> int:
     """The ``demo`` subcommand."""
     from .calibration import PLOT_EXTRA, calibration_report, plot_reliability
     from ..exchange.crosscheck import compare_coefficients, implied_l2
-    from .demo_data import FEATURES, TRUE_FILL_DEVIATION, inspection_data, supplier_leak_record, true_leak_raw
+    from .demo_data import (FEATURES, TRUE_FILL_DEVIATION, inspection_data, recent_inspection_data,
+                            supplier_leak_record, true_leak_raw)
     from ..models.least_squares import least_squares
     from ..models.logistic import logistic
     from ..exchange.pmml import write_pmml
@@ -226,8 +268,11 @@ def run_demo(args: argparse.Namespace) -> int:
     p_sup = supplier.mean(data.X)
     cal = calibration_report(data.leak, p_sup)
     cv = cross_validate(data.X, data.leak, data.names, 5, args.seed, quiet)
+    recent = recent_inspection_data(n=args.rows, seed=args.seed)
+    psi, grades, recent_text = recent_step(data, recent, supplier)
 
     files.put("inspection.csv", _csv_text(data, p_sup))
+    files.put("recent.csv", _csv_text(recent, supplier.mean(recent.X)))
     write_pmml(supplier, files.path("supplier_leak.pmml"), replace=args.replace)
     written.append(files.path("supplier_leak.pmml"))
     files.model("fill_deviation", ls)
@@ -261,9 +306,12 @@ def run_demo(args: argparse.Namespace) -> int:
         rule, "6. Stratified 5-fold cross-validation of the refit leak model", rule, _cv_text(cv), "",
         f"For comparison, the supplier's model on all rows (not fitted on them): Brier {cal.brier.score:.5f}, "
         f"ROC area {cal.roc_area.area:.4f} [{cal.roc_area.lower:.4f}, {cal.roc_area.upper:.4f}].", "",
+        rule, "7. A recent sample: population stability and band tests", rule, recent_text,
         rule, "Files", rule, *written, files.path("report.txt"), *notes, "",
         f"Try: lintools check {os.path.join(folder, 'supplier_leak.pmml')} {os.path.join(folder, 'inspection.csv')}",
         f"     lintools calibration {os.path.join(folder, 'inspection.csv')} --label leak "
+        "--probability supplier_leak_probability",
+        f"     lintools stability {os.path.join(folder, 'inspection.csv')} {os.path.join(folder, 'recent.csv')} "
         "--probability supplier_leak_probability", "",
         CAUTION, "",
     ]
@@ -276,7 +324,8 @@ def run_demo(args: argparse.Namespace) -> int:
             "fill_deviation": ls.to_dict(), "leak": leak.to_dict(),
             "defect": defect.to_dict(),
             "supplier_comparison": cmp, "supplier_implied_l2": implied, "supplier_flagged_terms": flagged,
-            "supplier_calibration": cal.to_json(), "cross_validation": cv, "caution": CAUTION,
+            "supplier_calibration": cal.to_json(), "cross_validation": cv, "recent_rows": recent.X.shape[0],
+            "recent_stability": psi, "recent_band_tests": grades, "caution": CAUTION,
         })
         return 0
     al, ah = cv["auc_interval"]
@@ -297,6 +346,10 @@ def run_demo(args: argparse.Namespace) -> int:
               f"{line.slope_interval[1]:.3f}], Brier {cal.brier.score:.4f}")
     print(f"  refit, stratified 5-fold: Brier {cv['brier']:.4f} [{bl:.4f}, {bh:.4f}], "
           f"ROC area {cv['auc']:.3f} [{al:.3f}, {ah:.3f}]")
+    top = max(FEATURES, key=lambda n: psi[n].index)
+    print(f"  recent sample: largest shift in '{top}' (population stability {psi[top].index:.3f}, "
+          f"{psi[top].reading}); band tests of the supplier's probabilities reject in {grades.rejected[0]} of "
+          f"{grades.tested[0]} bands (binomial, 5%)")
     print(f"  report and files in {folder}{os.sep} ({len(written)} files; {elapsed:.1f} s)")
     for n in notes:
         print(f"  note: {n}")

@@ -9,7 +9,10 @@ misaligned and label skew.  A supplier delivered a leak-risk model for the line;
 refits it and finds where it disagrees.
 
 The data are generated here, deterministically from a seed, from known true coefficients
-(``TRUE_FILL_DEVIATION``), so a fit can be checked against the truth that made them.
+(``TRUE_FILL_DEVIATION``), so a fit can be checked against the truth that made them.  A
+recent sample (:func:`recent_inspection_data`) comes from the same models after the plant
+stretched its nozzle-replacement interval: only the nozzle age has drifted
+(:data:`RECENT_NOZZLE_AGE_DAYS` against :data:`NOZZLE_AGE_DAYS`).
 This module is the only place in lintools that holds invented data.
 """
 
@@ -23,11 +26,16 @@ from ..engine.losses import sigmoid
 
 __all__ = [
     "FEATURES", "TRUE_FILL_DEVIATION", "TRUE_LEAK", "TRUE_DEFECT", "DEFECT_CLASSES", "InspectionData",
-    "inspection_data", "supplier_leak_model", "SupplierLeakModel", "supplier_leak_record", "true_leak_raw",
+    "inspection_data", "recent_inspection_data", "NOZZLE_AGE_DAYS", "RECENT_NOZZLE_AGE_DAYS", "supplier_leak_model", "SupplierLeakModel", "supplier_leak_record", "true_leak_raw",
     "true_defect_raw",
 ]
 
 FEATURES = ("fill_temperature", "line_speed", "cap_torque", "nozzle_age", "humidity")
+
+#: Nozzle ages (whole days, from the first up to but excluding the second) of the
+#: development sample, and of the recent sample after the replacement interval was stretched.
+NOZZLE_AGE_DAYS = (0, 120)
+RECENT_NOZZLE_AGE_DAYS = (30, 180)
 
 #: True model of the fill-volume deviation (ml): intercept, then one slope per feature.
 TRUE_FILL_DEVIATION = {
@@ -90,11 +98,26 @@ def inspection_data(n: int = 2000, seed: int = 20261201) -> InspectionData:
     The draw uses only ``numpy.random.default_rng(seed)``, so the same seed gives the same
     records on every platform.
     """
-    rng = np.random.default_rng(seed)
+    return _draw(np.random.default_rng(seed), n, NOZZLE_AGE_DAYS)
+
+
+def recent_inspection_data(n: int = 2000, seed: int = 20261201) -> InspectionData:
+    """Generate ``n`` recent inspection records: the same true models and feature
+    distributions as :func:`inspection_data` except the nozzle age, drawn from
+    :data:`RECENT_NOZZLE_AGE_DAYS`.
+
+    The draw uses only ``numpy.random.default_rng([seed, 1])``, a stream of its own, so the
+    recent records do not repeat the development ones and are the same on every platform.
+    """
+    return _draw(np.random.default_rng([seed, 1]), n, RECENT_NOZZLE_AGE_DAYS)
+
+
+def _draw(rng: np.random.Generator, n: int, nozzle_age_days: tuple[int, int]) -> InspectionData:
+    """``n`` records drawn with ``rng``, nozzle ages uniform on the whole days of ``nozzle_age_days``."""
     temperature = rng.normal(18.0, 2.5, n)
     speed = rng.uniform(300.0, 600.0, n)
     torque = rng.normal(2.2, 0.25, n)
-    age = rng.integers(0, 120, n).astype(float)
+    age = rng.integers(*nozzle_age_days, n).astype(float)
     humidity = np.clip(rng.normal(55.0, 10.0, n), 20.0, 95.0)
     X = np.column_stack([temperature, speed, torque, age, humidity])
     beta = np.array([TRUE_FILL_DEVIATION[f] for f in FEATURES])

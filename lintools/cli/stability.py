@@ -9,8 +9,9 @@ compared by its categories (rebuilt from the reader's indicator columns).
 
 With ``--by COLUMN`` the comparison is repeated within each segment (the values of that
 column in either file) after the one over all rows.  A segment with fewer than
-:data:`SMALL_ROWS_PER_BIN` rows per bin in either file is flagged as small (its index is
-inflated by chance); a segment absent from one file is flagged and not compared.
+:data:`lintools.cli.common.SMALL_SEGMENT_ROWS` rows per bin in either file is flagged as
+small (its index is inflated by chance); a segment absent from one file is flagged and not
+compared.
 """
 
 from __future__ import annotations
@@ -20,11 +21,8 @@ from typing import Any
 
 import numpy as np
 
-from .common import column_list, emit_json
+from .common import SMALL_SEGMENT_ROWS, column_list, emit_json, segment_heading, segments
 from ..support.errors import InputError
-
-#: A segment with fewer rows than this times the number of bins, in either file, is small.
-SMALL_ROWS_PER_BIN = 10
 
 
 def _columns(table: Any, header: tuple[str, ...]) -> dict[str, np.ndarray]:
@@ -71,7 +69,8 @@ def _compare(dev: dict, recent: dict, names: list[str], rows: tuple[np.ndarray, 
     return out
 
 
-def _summary(results: dict[str, Any], score: str | None) -> str:
+def stability_table(results: dict[str, Any], score: str | None) -> str:
+    """One line per column: its bins, index and reading (the score column marked)."""
     width = max(8, *(len(n) for n in results)) + 2
     lines = ["column".ljust(width) + "bins".rjust(6) + "index".rjust(10) + "  reading", "-" * (width + 30)]
     for name, r in results.items():
@@ -105,12 +104,10 @@ def run_stability(args: argparse.Namespace) -> int:
     weights = (dev_table.weights, recent_table.weights)
     every = (np.ones(dev_table.X.shape[0], dtype=bool), np.ones(recent_table.X.shape[0], dtype=bool))
     overall = _compare(dev, recent, names, every, weights, args.bins, files)
-    segments = []
+    segments_done = []
     if args.by:
-        seg = (np.asarray(dev_table.extra[args.by], dtype=object), np.asarray(recent_table.extra[args.by], dtype=object))
-        small = SMALL_ROWS_PER_BIN * args.bins
-        for value in sorted(set(seg[0].tolist()) | set(seg[1].tolist())):
-            rows = (seg[0] == value, seg[1] == value)
+        small = SMALL_SEGMENT_ROWS * args.bins
+        for value, rows in segments(dev_table.extra[args.by], recent_table.extra[args.by]):
             counts = (int(rows[0].sum()), int(rows[1].sum()))
             entry = {"segment": value, "dev_rows": counts[0], "recent_rows": counts[1],
                      "small": min(counts) < small, "columns": None, "note": None}
@@ -121,26 +118,26 @@ def run_stability(args: argparse.Namespace) -> int:
                     entry["columns"] = _compare(dev, recent, names, rows, weights, args.bins, files)
                 except InputError as exc:  # e.g. every weight of the segment is zero
                     entry["note"] = f"not compared: {exc}"
-            segments.append(entry)
+            segments_done.append(entry)
     low, high = READING_BANDS
     if args.json:
         emit_json({"dev": args.dev, "recent": args.recent, "score": args.probability, "bins": args.bins,
                    "dev_rows": dev_table.X.shape[0], "recent_rows": recent_table.X.shape[0],
                    "dropped_rows": [dev_table.dropped, recent_table.dropped], "columns": overall, "by": args.by,
-                   "segments": segments, "warnings": [text for _, text in args.warnings_seen]})
+                   "segments": segments_done, "warnings": [text for _, text in args.warnings_seen]})
         return 0
     print(f"Population stability of {args.recent!r} ({recent_table.X.shape[0]} rows) against {args.dev!r} "
           f"({dev_table.X.shape[0]} rows), {len(names)} columns; readings of common practice: below {low:g} "
           f"stable, {low:g} to {high:g} moderate shift, above {high:g} major shift (not a test)\n")
-    print(_summary(overall, args.probability) + "\n")
+    print(stability_table(overall, args.probability) + "\n")
     for name, r in overall.items():
         print(f"Column '{name}'" + (" (score)" if name == args.probability else "") + ":\n" + r.report())
-    for entry in segments:
-        flag = (f"  SMALL: fewer than {SMALL_ROWS_PER_BIN} rows per bin in a file; the index is inflated by chance"
-                if entry["small"] else "")
-        print(f"Segment {args.by} = {entry['segment']}: {entry['dev_rows']} rows in {args.dev!r}, "
-              f"{entry['recent_rows']} in {args.recent!r}{flag}")
-        print((_summary(entry["columns"], args.probability) if entry["columns"] else f"  {entry['note']}") + "\n")
+    for entry in segments_done:
+        flag = (f"fewer than {SMALL_SEGMENT_ROWS} rows per bin in a file; the index is inflated by chance"
+                if entry["small"] else None)
+        print(segment_heading(args.by, entry["segment"], f"{entry['dev_rows']} rows in {args.dev!r}, "
+                              f"{entry['recent_rows']} in {args.recent!r}", flag))
+        print((stability_table(entry["columns"], args.probability) if entry["columns"] else f"  {entry['note']}") + "\n")
     args.console.caution()
     return 0
 
