@@ -31,15 +31,15 @@ def _fd_check(P, z, h=1e-6):
     return ev, g, Hn
 
 
-@pytest.mark.parametrize("intercept,l2,jeffreys", [(True, 0.0, False), (False, 0.3, False), (True, 1.5, False), (True, 0.0, True)])
-def test_gradient_and_hessian_match_finite_differences(intercept, l2, jeffreys):
+@pytest.mark.parametrize("intercept,l2,firth", [(True, 0.0, False), (False, 0.3, False), (True, 1.5, False), (True, 0.0, True)])
+def test_gradient_and_hessian_match_finite_differences(intercept, l2, firth):
     # source: central finite differences (common practice)
     rng = np.random.default_rng(2)
     X = rng.normal(size=(40, 3)) * [1.0, 8.0, 0.2] + [0.0, 3.0, -1.0]
     m = rng.integers(1, 6, 40).astype(float)
     y = np.floor(rng.random(40) * (m + 1))
     P = LinearModelProblem(X, BinomialLoss(y, m, rng.random(40) + 0.5), intercept=intercept, l2=l2,
-                           offset=rng.normal(size=40) * 0.3, jeffreys=jeffreys)
+                           offset=rng.normal(size=40) * 0.3, firth=firth)
     z = rng.normal(size=P.size) * 0.3
     ev, g, Hn = _fd_check(P, z)
     np.testing.assert_allclose(ev.gradient, g, rtol=1e-6, atol=1e-6)
@@ -47,7 +47,7 @@ def test_gradient_and_hessian_match_finite_differences(intercept, l2, jeffreys):
     # the original-coordinate gradient is the chain rule of the z gradient: g_z = T' g_theta
     T = P.theta_from_z_matrix()
     np.testing.assert_allclose(T.T @ ev.original_gradient, ev.gradient, rtol=1e-12, atol=1e-12)
-    if not jeffreys:
+    if not firth:
         v = rng.normal(size=P.size)
         np.testing.assert_allclose(P.hessian_vector(z, v), P.hessian(z) @ v, rtol=1e-11, atol=1e-11)
     # line changes and slopes agree with differences of evaluations

@@ -157,15 +157,15 @@ class _BlockProblem(_PassProblem):
                  weight_scale: float, weight_total: float) -> None:
         self.run, self.c, self.s = run, c, s
         self.weight_scale, self.weight_total = weight_scale, weight_total
-        self.intercept, self.l2, self.off = intercept, lam / weight_scale, int(intercept)
+        self.intercept, self.l2, self.first_slope = intercept, lam / weight_scale, int(intercept)
         self.p = c.shape[0]
-        self.size = self.p + self.off
+        self.size = self.p + self.first_slope
         self.b_start = b_start
         self.cache: dict[bytes, tuple] = {}
 
     def centred(self, z: np.ndarray) -> tuple[float, np.ndarray]:
         """``(a, beta)``: the intercept of the centred columns and the slopes."""
-        return (float(z[0]) if self.intercept else 0.0), z[self.off :] / self.s
+        return (float(z[0]) if self.intercept else 0.0), z[self.first_slope :] / self.s
 
     def coefficients(self, z: np.ndarray) -> tuple[float, np.ndarray]:
         a, beta = self.centred(z)
@@ -199,7 +199,7 @@ class _BlockProblem(_PassProblem):
         else:
             H = part["H"][1:, 1:].copy()
         if self.l2:
-            slopes = np.arange(self.off, self.size)
+            slopes = np.arange(self.first_slope, self.size)
             H[slopes, slopes] += (self.l2 / self.s) / self.s  # no overflow of s^2
         value = part["value"] + (0.5 * self.l2 * float(beta @ beta) if self.l2 else 0.0)
         ev = Evaluation(float(value), gz, original, None, gz / self.weight_total)  # the in-memory stopping rule

@@ -113,22 +113,22 @@ class _SoftmaxBlockProblem(_PassProblem):
                  a_start: np.ndarray, weight_scale: float, weight_total: float) -> None:
         self.run, self.c, self.s = run, c, s
         self.weight_scale, self.weight_total = weight_scale, weight_total
-        self.intercept, self.l2, self.off = intercept, lam / weight_scale, int(intercept)
+        self.intercept, self.l2, self.first_slope = intercept, lam / weight_scale, int(intercept)
         self.p = c.shape[0]
-        self.p1 = self.p + self.off
+        self.p1 = self.p + self.first_slope
         self.K = Kf
         self.size = self.p1 * Kf
         self.a_start = a_start
         pen = np.zeros((self.p1, Kf))
         if self.l2:
-            pen[self.off :] = ((self.l2 / s) / s)[:, None]  # no overflow of s^2
+            pen[self.first_slope :] = ((self.l2 / s) / s)[:, None]  # no overflow of s^2
         self.pen = pen.ravel()
         self.cache: dict[bytes, tuple] = {}
 
     def centred(self, z: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """``(a, B)``: the intercepts of the centred columns and the slopes."""
         Z = z.reshape(self.p1, self.K)
-        return (Z[0].copy() if self.intercept else np.zeros(self.K)), Z[self.off :] / self.s[:, None]
+        return (Z[0].copy() if self.intercept else np.zeros(self.K)), Z[self.first_slope :] / self.s[:, None]
 
     def coefficients(self, z: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         a, B = self.centred(z)

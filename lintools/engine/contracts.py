@@ -68,7 +68,7 @@ class Loss(Protocol):
 
 
 class FirthLoss(Loss, Protocol):
-    """A one-output loss that Firth's penalty can use (``jeffreys=True``)."""
+    """A one-output loss that Firth's penalty can use (``firth=True``)."""
 
     def curvature_slope(self, eta: np.ndarray) -> np.ndarray:
         """First derivative of the IRLS weights in eta."""

@@ -163,7 +163,7 @@ def weighted_gram(X: np.ndarray, W: np.ndarray, c: np.ndarray, s: np.ndarray, in
     ``1/s`` applied to the result, else they are scaled first.
     """
     n, p = X.shape
-    off = int(intercept)
+    first_slope = int(intercept)
     top = 1.0
     if single:
         top = math.sqrt(float(W.max())) if n else 0.0  # = max sqrt(W): sqrt is monotone
@@ -184,16 +184,16 @@ def weighted_gram(X: np.ndarray, W: np.ndarray, c: np.ndarray, s: np.ndarray, in
                 np.multiply(X[lo:hi], inv, out=T)
                 np.copyto(B, T, casting="same_kind")
             np.multiply(B, rb[:, None], out=B)
-            return (B.T @ B).astype(float), transposed_block(rb, B).astype(float) if off else None
+            return (B.T @ B).astype(float), transposed_block(rb, B).astype(float) if first_slope else None
     else:
         def part(lo: int, hi: int) -> tuple[np.ndarray, np.ndarray | None]:
             B, rb = scratch("gram", (hi - lo, p)), np.sqrt(W[lo:hi])
             np.multiply(X[lo:hi], rb[:, None], out=B)
-            return B.T @ B, transposed_block(rb, B) if off else None
+            return B.T @ B, transposed_block(rb, B) if first_slope else None
 
     parts = for_rows(part, n, rows)
     HH = add_up([q[0] for q in parts], np.zeros((p, p)))
-    h = add_up([q[1] for q in parts], np.zeros(p)) if off else np.zeros(p)
+    h = add_up([q[1] for q in parts], np.zeros(p)) if first_slope else np.zeros(p)
     if single:
         u = np.ones(p) if not raw else inv
         HH = HH * np.multiply.outer(u, u)
@@ -204,8 +204,8 @@ def weighted_gram(X: np.ndarray, W: np.ndarray, c: np.ndarray, s: np.ndarray, in
         h = h * inv
         total = float(W.sum())
     mean_scaled = c * inv
-    H = np.empty((p + off, p + off))
-    if off:
+    H = np.empty((p + first_slope, p + first_slope))
+    if first_slope:
         # sum w (u - m)(u - m)' = HH - m h' - h m' + total m m', with u = x / s and m = c / s
         g = h - total * mean_scaled
         H[0, 0] = total

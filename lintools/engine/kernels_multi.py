@@ -67,7 +67,7 @@ def multi_output_information(problem: Any, W: Any, single: bool = False) -> np.n
     weighted copies ``W_j A'`` of all pairs ``j`` are written in one broadcast product
     along the rows, and ``[W_0 A', W_1 A', ...] A`` is one BLAS product.
     """
-    K, p1, n, off = problem.K, problem.p1, problem.n, problem.off
+    K, p1, n, first_slope = problem.K, problem.p1, problem.n, problem.first_slope
     pairs = [(k, m) for k in range(K) for m in range(k, K)]
     npairs = len(pairs)
     by_pairs = isinstance(W, PairWeights)
@@ -101,10 +101,10 @@ def multi_output_information(problem: Any, W: Any, single: bool = False) -> np.n
         At, At1, Rt, Wp, Wp1 = buffers.get()
         nb = hi - lo
         A = At[:, :nb]
-        if off:
+        if first_slope:
             A[0] = 1.0
-        np.subtract(X[lo:hi].T, c, out=A[off:])
-        A[off:] *= inv_s
+        np.subtract(X[lo:hi].T, c, out=A[first_slope:])
+        A[first_slope:] *= inv_s
         if by_pairs:
             Wb = W.pair_weights(slice(lo, hi), out=Wp[:, :nb])
         else:

@@ -4,8 +4,8 @@ r"""The linear-predictor problem behind every fit: loss, design, penalty, coordi
 loss with ``K`` outputs, ``eta = offset + 1 b' + X B`` with ``z`` the (p+1, K) array
 flattened row by row)::
 
-    F(b, beta) = loss(eta) + l2/2 |beta|^2                      (jeffreys=False)
-    F(b, beta) = loss(eta) - 1/2 log det I(b, beta)             (jeffreys=True, Firth 1993)
+    F(b, beta) = loss(eta) + l2/2 |beta|^2                      (firth=False)
+    F(b, beta) = loss(eta) - 1/2 log det I(b, beta)             (firth=True, Firth 1993)
 
 with ``I = [1 X]' W [1 X]`` the Fisher information.  It works in standardised
 coordinates: with centres ``c`` (weighted column means when there is an intercept) and
@@ -97,7 +97,7 @@ class _Line:
         self.p, self.z, self.d = problem, z, d
         self._eta0 = problem.eta(z)
         self._deta = problem.eta(d, with_offset=False)
-        self.root0 = problem._inverse_root(self.eta0) if problem.jeffreys else None
+        self.root0 = problem._inverse_root(self.eta0) if problem.firth else None
         self._cache: tuple[float, float, float] | None = None
         #: (t, eta0 + t X d) of the last trial; K-output problems keep only t (their trials
         #: are evaluated one block of rows at a time) and form the sum when it is adopted
@@ -160,7 +160,7 @@ class LinearModelProblem:
         Ridge strength on the slopes.
     offset : ndarray or None
         Known part of the linear predictor.
-    jeffreys : bool
+    firth : bool
         Firth's penalty ``-1/2 log det I`` instead of the ridge (``l2`` must be 0).
     centre : bool
         Centre the columns at their weighted means (with an intercept; default True).
@@ -186,19 +186,19 @@ class LinearModelProblem:
         intercept: bool = True,
         l2: float = 0.0,
         offset: np.ndarray | None = None,
-        jeffreys: bool = False,
+        firth: bool = False,
         centre: bool = True,
         weight_scale: float = 1.0,
     ) -> None:
         self.X, self.loss, self.intercept = X, loss, bool(intercept)
         self.weight_scale = float(weight_scale)
-        self.l2, self.offset, self.jeffreys = float(l2) / self.weight_scale, offset, bool(jeffreys)
-        if self.jeffreys and (self.l2 != 0 or loss.outputs != 1):
+        self.l2, self.offset, self.firth = float(l2) / self.weight_scale, offset, bool(firth)
+        if self.firth and (self.l2 != 0 or loss.outputs != 1):
             raise ValueError("the Jeffreys (Firth) penalty is implemented for one output and l2 = 0")
         n, p = X.shape
         self.n, self.p, self.K = n, p, int(loss.outputs)
-        self.off = int(self.intercept)
-        self.p1 = p + self.off
+        self.first_slope = int(self.intercept)
+        self.p1 = p + self.first_slope
         self.size = self.p1 * self.K
         self.block = max(256, _BLOCK_BYTES // (8 * max(self.p1, 1)))
         self.rows = max(256, _CACHE_BYTES // (8 * max(self.p1, 1)))  # cache-sized row blocks
@@ -210,7 +210,7 @@ class LinearModelProblem:
         #: whose total is k, so it weighs like k/2 observations whatever the weights' scale
         #: (case weights of 1e-120 leave the penalty to decide the answer, and a rule per
         #: unit of W alone would ask for the penalty's gradient below its rounding)
-        self.weight_total = total + (0.5 * self.size / self.weight_scale if self.jeffreys else 0.0)
+        self.weight_total = total + (0.5 * self.size / self.weight_scale if self.firth else 0.0)
         c, s, finite = column_moments(X, v, self.rows, self.intercept and centre)
         if not finite:
             raise NonFiniteDesign("the design X has a NaN or infinite entry")
@@ -224,10 +224,10 @@ class LinearModelProblem:
         self.log_det_T = -self.K * float(np.sum(np.log(self.s)))
         self.log_det_weights = self.size * math.log(self.weight_scale)
         #: the multiplier of Firth's penalty in the scaled objective F / weight_scale
-        self.jeffreys_weight = 1.0 / self.weight_scale
+        self.firth_weight = 1.0 / self.weight_scale
         #: the caller's gradient per standardised (uncentred) column per unit weight: the
         #: stopping rule of problems with parameters held fixed (RestrictedProblem)
-        self.unit = np.repeat(np.concatenate([np.ones(self.off), 1.0 / self.s]), self.K) / self.weight_total
+        self.unit = np.repeat(np.concatenate([np.ones(self.first_slope), 1.0 / self.s]), self.K) / self.weight_total
         #: columns far from zero against their spread, kept centred (see ShiftedColumns)
         self.shifted = ShiftedColumns(X, self.c, self.s, self.intercept and centre)
         self._last: tuple[Any, Any] | None = None  # (z, eta) of the last evaluation
@@ -240,7 +240,7 @@ class LinearModelProblem:
         self.single = False
         #: bound on |x_ij - c_j| / s_j over rows of positive weight: sqrt(total / min weight)
         self.row_bound = math.inf
-        if not self.jeffreys and n >= fast_paths().single_min_rows and p:
+        if not self.firth and n >= fast_paths().single_min_rows and p:
             vmin = float(v.min()) if n else 0.0
             self.single = bool(vmin > 0 and total / vmin < 1e30)
             if self.single:
@@ -281,7 +281,7 @@ class LinearModelProblem:
     def _parts(self, z: np.ndarray) -> tuple[Any, np.ndarray]:
         Z = z.reshape(self.p1, self.K) if self.K > 1 else z
         a = Z[0] if self.intercept else (np.zeros(self.K) if self.K > 1 else 0.0)
-        return a, Z[self.off :]
+        return a, Z[self.first_slope :]
 
     def coefficients(self, z: np.ndarray) -> tuple[Any, np.ndarray]:
         """``(b, beta)`` in the caller's coordinates."""
@@ -299,7 +299,7 @@ class LinearModelProblem:
     def from_original(self, theta: np.ndarray) -> np.ndarray:
         """Inverse of :meth:`to_original`."""
         T = theta.reshape(self.p1, self.K) if self.K > 1 else np.asarray(theta, dtype=float)
-        beta = T[self.off :]
+        beta = T[self.first_slope :]
         g = beta * (self.s[:, None] if self.K > 1 else self.s)
         if not self.intercept:
             return np.array(g, dtype=float).ravel()
@@ -320,7 +320,7 @@ class LinearModelProblem:
     @property
     def reuse_hessian(self) -> bool:
         """Whether Newton may keep a Hessian for the next step (large problems only)."""
-        return self.n >= fast_paths().single_min_rows and not self.jeffreys
+        return self.n >= fast_paths().single_min_rows and not self.firth
 
     def _carry(self, z: np.ndarray, eta: Any) -> None:
         """Remember ``eta`` (from a line search) as the linear predictor at ``z``."""
@@ -356,7 +356,7 @@ class LinearModelProblem:
         sampling error of the optimum.  The answer is unchanged (the stopping rule is on
         the full gradient); a subsample fit that fails (e.g. separated) gives None.
         """
-        if (not self._warm or self.jeffreys or self.n < fast_paths().warm_min_rows or self.p == 0
+        if (not self._warm or self.firth or self.n < fast_paths().warm_min_rows or self.p == 0
                 or not self.loss.row_subsets):
             return None
         m = max(WARM_PER_PARAMETER * self.size, self.n // WARM_FRACTION)
@@ -442,26 +442,26 @@ class LinearModelProblem:
     def _residual(self, eta: Any, factors: Any = None) -> Any:
         """Derivative of the objective in eta (Firth adds ``-1/(2 s) q dW/deta``, ``s`` the weight scale)."""
         r = self.loss.gradient(eta)
-        if self.jeffreys:
+        if self.firth:
             L, d = factors
-            r = r - (0.5 * self.jeffreys_weight) * self._leverage_factor(L, d) * self.loss.curvature_slope(eta)
+            r = r - (0.5 * self.firth_weight) * self._leverage_factor(L, d) * self.loss.curvature_slope(eta)
         return r
 
     def _value_at(self, z: np.ndarray, eta: Any) -> tuple[float, Any]:
         """Objective at ``z`` (with linear predictor ``eta``) and its derivative in eta."""
-        if self.K > 1 and not self.jeffreys:
+        if self.K > 1 and not self.firth:
             f, r = self.loss.value_and_gradient(eta)
             return f + self._ridge(z), r
         f = self.loss.value(eta) + self._ridge(z)
         factors = None
-        if self.jeffreys:
+        if self.firth:
             logdet, L, d = self._log_det_information(eta)
-            f -= 0.5 * self.jeffreys_weight * logdet
+            f -= 0.5 * self.firth_weight * logdet
             factors = (L, d)
         return f, self._residual(eta, factors)
 
     def _change(self, line: _Line, t: float, need_slope: bool) -> tuple[float, float]:
-        if self.K > 1 and self.loss.row_blocks and not need_slope and not self.jeffreys:
+        if self.K > 1 and self.loss.row_blocks and not need_slope and not self.firth:
             # one block of rows at a time: neither t X d nor the trial eta is formed whole
             line.trial = (t, None)
             c = self.loss.change_along(line.eta0, line.deta, t)
@@ -482,7 +482,7 @@ class LinearModelProblem:
             _, db = self.coefficients(line.d)
             c += self.l2 * (t * float(np.sum(beta * db)) + 0.5 * t * t * float(np.sum(db * db)))
         factors = None
-        if self.jeffreys:
+        if self.firth:
             if line.root0 is None:
                 return math.inf, math.nan
             # log det I(t) - log det I(0) = sum log1p(eig(Li dI Li')), dI = A' diag(dW) A
@@ -490,7 +490,7 @@ class LinearModelProblem:
             lam = np.linalg.eigvalsh(line.root0 @ dI @ line.root0.T)
             if lam.size and lam.min() <= -1.0:
                 return math.inf, math.nan
-            c -= 0.5 * self.jeffreys_weight * float(np.sum(np.log1p(lam)))
+            c -= 0.5 * self.firth_weight * float(np.sum(np.log1p(lam)))
             if need_slope:
                 try:
                     factors = cholesky(self._information(self.loss.curvature(eta)))
@@ -529,7 +529,7 @@ class LinearModelProblem:
             self._line = None
         eta = self.eta(z)
         carried = self._carried
-        if self.jeffreys or self.K > 1:
+        if self.firth or self.K > 1:
             # Firth: the value's log det also gives the residual; K outputs: one blocked
             # pass gives the value with the gradient
             f, r = self._value_at(z, eta)
@@ -621,8 +621,8 @@ class LinearModelProblem:
             A = buf[: Xb.shape[0]]
             if self.intercept:
                 A[:, 0] = 1.0
-            np.subtract(Xb, self.c, out=A[:, self.off :])
-            A[:, self.off :] /= self.s
+            np.subtract(Xb, self.c, out=A[:, self.first_slope :])
+            A[:, self.first_slope :] /= self.s
             yield lo, A
 
     def _curvature(self, eta: Any) -> Any:
@@ -635,7 +635,7 @@ class LinearModelProblem:
         return self.loss.curvature(eta)
 
     def _unit_scale(self) -> np.ndarray:
-        return np.concatenate([np.ones(self.off), 1.0 / self.s])
+        return np.concatenate([np.ones(self.first_slope), 1.0 / self.s])
 
     def _information(self, W: np.ndarray, single: bool = False) -> np.ndarray:
         """``A' W A`` in z coordinates (no penalty): one BLAS product per block of rows.
@@ -659,7 +659,7 @@ class LinearModelProblem:
         if self.uncentred:
             return weighted_gram(self.X, W, self.c, self.s, self.intercept, self.rows,
                                  single=single, row_bound=self.row_bound)
-        n, p1, off, rows = self.n, self.p1, self.off, self.rows
+        n, p1, first_slope, rows = self.n, self.p1, self.first_slope, self.rows
         H = np.zeros((p1, p1))
         sw = np.sqrt(W)
         top = float(sw.max()) if (single and n) else 0.0
@@ -676,7 +676,7 @@ class LinearModelProblem:
                     B[:, 0] = r
                 np.subtract(Xb, self.c, out=Tb)
                 Tb *= inv
-                np.multiply(Tb, r[:, None], out=B[:, off:], casting="same_kind")
+                np.multiply(Tb, r[:, None], out=B[:, first_slope:], casting="same_kind")
                 H += B.T @ B
             H *= top * top
             return 0.5 * (H + H.T)
@@ -688,10 +688,10 @@ class LinearModelProblem:
             r = sw[lo : lo + Xb.shape[0]]
             if self.intercept:
                 B[:, 0] = r
-            np.subtract(Xb, self.c, out=B[:, off:])
+            np.subtract(Xb, self.c, out=B[:, first_slope:])
             if inv is not None:
-                B[:, off:] *= inv
-            B[:, off:] *= r[:, None]
+                B[:, first_slope:] *= inv
+            B[:, first_slope:] *= r[:, None]
             H += B.T @ B
         if inv is None:
             u = self._unit_scale()
@@ -709,7 +709,7 @@ class LinearModelProblem:
 
     def _penalty_diagonal(self) -> np.ndarray:
         pen = np.zeros((self.p1, self.K))
-        pen[self.off :] = ((self.l2 / self.s) / self.s)[:, None]  # no overflow of s^2
+        pen[self.first_slope :] = ((self.l2 / self.s) / self.s)[:, None]  # no overflow of s^2
         return pen.ravel()
 
     def gradient_rounding(self, z: np.ndarray) -> float:
@@ -769,7 +769,7 @@ class LinearModelProblem:
         for the Jeffreys penalty.  The solver uses it only while far from the optimum; the
         last iterations and the covariance use the exact Hessian.
         """
-        if self.jeffreys or self.n < fast_paths().sketch_min_rows or self.p == 0:
+        if self.firth or self.n < fast_paths().sketch_min_rows or self.p == 0:
             return None
         if self._sketch is not None and self.K > 1 and self._sketch[1].rows32 and not self.single:
             self._sketch = None  # float32 rows were kept for float32 products: keep float64 ones now
@@ -846,12 +846,12 @@ class LinearModelProblem:
         ``loss - 1/2 log det I`` when it (projected) is positive definite, else the Fisher
         information (the Fisher-scoring step of Heinze & Schemper 2002).
         """
-        if not self.jeffreys:
+        if not self.firth:
             H = self.fisher_information(z)
             return H if E is None else E.T @ H @ E
         eta = self.eta(z)
         info = self._information(self.loss.curvature(eta))
-        exact = self._jeffreys_hessian(eta, info)
+        exact = self._firth_hessian(eta, info)
         if E is not None:
             info, exact = E.T @ info @ E, E.T @ exact @ E
         try:
@@ -860,7 +860,7 @@ class LinearModelProblem:
             return info
         return exact
 
-    def _jeffreys_hessian(self, eta: Any, info: np.ndarray) -> np.ndarray:
+    def _firth_hessian(self, eta: Any, info: np.ndarray) -> np.ndarray:
         r"""Exact Hessian of ``loss - 1/2 log det I`` with ``I = A' W A``.
 
         :math:`\nabla^2 = I - \tfrac12 A'\,\mathrm{diag}(q W'')\,A + \tfrac12 N N'`, with
@@ -880,13 +880,13 @@ class LinearModelProblem:
             A = np.empty((hi - lo, k))
             if self.intercept:
                 A[:, 0] = 1.0
-            np.subtract(self.X[lo:hi], self.c, out=A[:, self.off :])
-            A[:, self.off :] /= self.s
+            np.subtract(self.X[lo:hi], self.c, out=A[:, self.first_slope :])
+            A[:, self.first_slope :] /= self.s
             Y = A @ Li.T
             q = np.einsum("ij,ij->i", Y, Y)
             T1 += A.T @ (A * (q * W2[lo:hi])[:, None])
             N += (A * W1[lo:hi, None]).T @ np.einsum("ij,ik->ijk", Y, Y).reshape(hi - lo, k * k)
-        H = info + (0.5 * self.jeffreys_weight) * (N @ N.T - T1)
+        H = info + (0.5 * self.firth_weight) * (N @ N.T - T1)
         return 0.5 * (H + H.T)
 
     def hessian_vector(self, z: np.ndarray, v: np.ndarray) -> np.ndarray:
@@ -919,7 +919,7 @@ class LinearModelProblem:
     def z_from_theta_matrix(self) -> np.ndarray:
         """The matrix M with ``z = M theta`` (theta in the caller's coordinates)."""
         M = np.zeros((self.p1, self.p1))
-        M[self.off :, self.off :] = np.diag(self.s)
+        M[self.first_slope :, self.first_slope :] = np.diag(self.s)
         if self.intercept:
             M[0, 0] = 1.0
             M[0, 1:] = self.c

@@ -59,7 +59,7 @@ from ..engine import (
 from ..engine.base import MEASURED, converged_message, limit_message
 from .records import Convergence
 
-__all__ = ["DEFAULT_TOL", "ETA_LIMIT", "ETA_SUSPECT", "MOVE_SUSPECT", "SMALL_PROBLEM", "Family", "Solved",
+__all__ = ["DEFAULT_TOL", "ETA_LIMIT", "ETA_SUSPECT", "MOVE_SUSPECT", "EXACT_CHECK_ENTRIES", "Family", "Solved",
            "Watch", "check_fit_settings", "check_parameters_and_rows", "checked_problem", "constant_columns",
            "convergence_record", "final_evaluation", "likelihood_summary", "lr_statistic", "rank_message",
            "run_with_check", "solve_family", "unless_scipy_missing"]
@@ -76,7 +76,7 @@ ETA_SUSPECT = 15.0
 #: Remaining Newton move of the linear predictor that, with such rows, signals divergence.
 MOVE_SUSPECT = 0.1
 #: Designs up to this many entries get the exact check whenever a fit ends unfinished.
-SMALL_PROBLEM = 10**6
+EXACT_CHECK_ENTRIES = 10**6
 
 _NO_SCIPY = ("so the maximum-likelihood estimate does not exist (Albert & Anderson 1984). The exact check "
              "needs SciPy (scipy.optimize.linprog), which is not installed.")
@@ -213,7 +213,7 @@ class Family(Protocol):
     ridge); ``remedies`` the sentence that ends a separation error; ``separated`` how
     the no-SciPy divergence error names the failure ("(quasi-)completely separated");
     ``size`` the number of entries that decides whether an unfinished fit is checked
-    exactly (at most :data:`SMALL_PROBLEM`); ``singular_runaway`` whether a singular
+    exactly (at most :data:`EXACT_CHECK_ENTRIES`); ``singular_runaway`` whether a singular
     information without SciPy is blamed on rows that ran away when there are any."""
 
     watch: Watch | None
@@ -358,7 +358,7 @@ def _final_check(family: Family, problem: Any, res: SolverResult, ev: Evaluation
     watch = family.watch
     count, top = watch.runaway(ev.eta, ETA_SUSPECT)
     # an unfinished fit is checked when rows ran away or when the programme is cheap
-    suspicious = res.status in ("iteration_limit", "stalled") and (count > 0 or family.size <= SMALL_PROBLEM)
+    suspicious = res.status in ("iteration_limit", "stalled") and (count > 0 or family.size <= EXACT_CHECK_ENTRIES)
     move = 0.0
     if count:
         move = family.newton_move(problem, ev, V)

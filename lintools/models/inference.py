@@ -57,23 +57,23 @@ def covariance(problem: LinearModelProblem, z: np.ndarray, terms: Sequence[str])
     hold, naming ``terms[j]``).  Raises :class:`lintools.engine.SingularMatrixError`
     when the information is singular.
     """
-    spreads = np.concatenate([np.full(problem.off, np.nan), problem.s]) if problem.K == 1 else None
+    spreads = np.concatenate([np.full(problem.first_slope, np.nan), problem.s]) if problem.K == 1 else None
     return caller_covariance(problem.theta_from_z_matrix(), inverse_spd(problem.fisher_information(z)),
                              problem.weight_scale, terms, spreads)
 
 
-def null_objective(loss: Any, n: int, offset: np.ndarray | None, intercept: bool, jeffreys: bool,
+def null_objective(loss: Any, n: int, offset: np.ndarray | None, intercept: bool, firth: bool,
                    tol: float, max_iter: int, weight_scale: float = 1.0) -> tuple[float, np.ndarray]:
     """Minimised objective of the null model (in the caller's weights: the loss holds the
     weights divided by ``weight_scale``) and its linear predictor."""
     if not intercept:
         eta = np.zeros(n) if offset is None else offset
         return loss.value(eta) * weight_scale, eta
-    if offset is None and not jeffreys and loss.closed_null:
+    if offset is None and not firth and loss.closed_null:
         fitted = loss.constant_fit(n, tol)
         if fitted is not None:
             return fitted[0] * weight_scale, fitted[1]
-    P = LinearModelProblem(np.zeros((n, 0)), loss, intercept=True, offset=offset, jeffreys=jeffreys,
+    P = LinearModelProblem(np.zeros((n, 0)), loss, intercept=True, offset=offset, firth=firth,
                            weight_scale=weight_scale)
     res = newton(P, tol=tol, max_iter=max(max_iter, 50))
     return res.objective, P.eta(res.z)

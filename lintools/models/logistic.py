@@ -239,7 +239,7 @@ def logistic(
     n, p = Xa.shape
     names_t = check_names(names, p, found)
     w = as_weights(weights, n)
-    off = None if offset is None else as_offset(offset, n)
+    offset_values = None if offset is None else as_offset(offset, n)
     yy, m, classes, positive_class = binary_response(y, trials, positive, n)
     intercept, lam, tol, max_iter = check_fit_settings(intercept, l2, tol, max_iter, on_iteration, solver)
     firth = check_flag(firth, "firth")
@@ -266,11 +266,11 @@ def logistic(
     if lam == 0:
         check_parameters_and_rows(p + int(intercept), int(np.count_nonzero(v > 0)))
     loss = BinomialLoss(yy, m if trials is not None else None, w)
-    problem = checked_problem(Xa, found, names_t, loss, intercept=intercept, l2=lam, offset=off, jeffreys=firth,
+    problem = checked_problem(Xa, found, names_t, loss, intercept=intercept, l2=lam, offset=offset_values, firth=firth,
                               weight_scale=scale)
     if intercept and p and lam == 0:
         constant_columns(Xa, v > 0, names_t, problem.spread, problem.c)
-    family = BinaryFamily(Xa, loss, off, names_t, intercept, lam, firth)
+    family = BinaryFamily(Xa, loss, offset_values, names_t, intercept, lam, firth)
     solved = solve_family(family, problem, solver=solver, tol=tol, max_iter=max_iter, on_iteration=on_iteration)
     return _record(family, problem, solved, (tuple(classes), positive_class, target_name(y)), tol, max_iter,
                    float(profile_level) if profile else None)
