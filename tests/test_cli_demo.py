@@ -18,7 +18,7 @@ import lintools as lt
 from lintools.cli.demo_data import FEATURES, inspection_data, supplier_leak_model
 
 FILES = ["report.txt", "inspection.csv", "supplier_leak.pmml", "fill_deviation.json", "fill_deviation.pmml",
-         "leak.json", "leak.pmml", "reliability.png"]
+         "leak.json", "leak.pmml", "reliability.png", "recent.csv", "report.html", "report.json"]
 
 
 def run(*args, cwd=None):

@@ -18,7 +18,7 @@ import argparse
 import dataclasses
 import sys
 from dataclasses import dataclass
-from typing import Any
+from typing import Any, Sequence
 
 import numpy as np
 
@@ -103,45 +103,52 @@ def _columns_for(names: tuple[str, ...], header: list[str], where: str) -> list[
     return cols
 
 
-def read_refit_data(args: argparse.Namespace, d: Delivered) -> tuple[Any, np.ndarray, str]:
-    """Read the target and the delivered features; return (table, X in delivered order, target)."""
+def read_refit_data(args: argparse.Namespace, d: Delivered, *, path: str | None = None, extra: Sequence[str] = (),
+                    with_target: bool = True) -> tuple[Any, np.ndarray, str]:
+    """Read the target and the delivered features; return (table, X in delivered order, target).
+
+    ``path`` is the CSV file (default ``args.csv``); ``extra`` columns are read as text
+    beside them (``table.extra``); ``with_target=False`` reads no target column (a sample
+    without outcomes; the target name is still returned).
+    """
     from .table_options import table_options
     from ..exchange.csv_table import read_header, read_table
 
+    path = args.csv if path is None else path
     target = args.target or d.target
-    header = list(read_header(args.csv, **table_options(args, "categorical", header=True)))
+    wanted = target if with_target else None
+    header = list(read_header(path, **table_options(args, "categorical", header=True)))
     if d.categorical_fields:  # the text columns are known: read them as the model does when it scores
         from ..exchange.scoring import model_inputs, read_inputs
 
         inputs = model_inputs(d.names, d.categorical_fields)
         absent = [c for c in inputs.columns if c not in header]
         if absent:
-            raise InputError(f"the delivered model's input '{absent[0]}' is not a column of {args.csv!r} (its "
+            raise InputError(f"the delivered model's input '{absent[0]}' is not a column of {path!r} (its "
                              f"columns: {', '.join(header)}); the refit needs every input the model uses")
-        table, X = read_inputs(args.csv, inputs, table_options(args, "categorical"), target=target,
-                               weights=args.weights, drop_missing=args.drop_missing)
+        table, X = read_inputs(path, inputs, table_options(args, "categorical"), target=wanted,
+                               weights=args.weights, extra=extra, drop_missing=args.drop_missing)
         return table, X, target
-    cols = _columns_for(d.names, header, args.csv)
-    kwargs = dict(target=target, features=cols, weights=args.weights, drop_missing=args.drop_missing,
-                  **table_options(args, "categorical"))
-    table = read_table(args.csv, **kwargs)
-    extra = [n for n in table.names if n not in d.names]
-    if extra:  # a text column whose reference level differs from the delivered model's
+    cols = _columns_for(d.names, header, path)
+    kwargs = dict(target=wanted, features=cols, weights=args.weights, extra=list(extra),
+                  drop_missing=args.drop_missing, **table_options(args, "categorical"))
+    table = read_table(path, **kwargs)
+    if any(n not in d.names for n in table.names):  # a text column whose reference level differs from the delivered model's
         refs = {}
         for col, ref in table.reference_levels.items():
             levels = [ref] + [n.split("=", 1)[1] for n in table.names if n.startswith(col + "=")]
             absent = [lv for lv in levels if f"{col}={lv}" not in d.names]
             if len(absent) == 1:
                 refs[col] = absent[0]
-        table = read_table(args.csv, **kwargs, reference_levels=refs)
+        table = read_table(path, **kwargs, reference_levels=refs)
     missing = [n for n in d.names if n not in table.names]
-    extra = [n for n in table.names if n not in d.names]
-    if missing or extra:
+    surplus = [n for n in table.names if n not in d.names]
+    if missing or surplus:
         raise InputError(
-            f"the columns of {args.csv!r} do not give the delivered features: "
+            f"the columns of {path!r} do not give the delivered features: "
             + (f"no column for {missing}" if missing else "")
-            + ("; " if missing and extra else "")
-            + (f"levels without a delivered coefficient {extra}" if extra else "")
+            + ("; " if missing and surplus else "")
+            + (f"levels without a delivered coefficient {surplus}" if surplus else "")
             + "; the text columns must have the levels the delivered model was fitted on"
         )
     order = [table.names.index(n) for n in d.names]
@@ -228,13 +235,29 @@ def _softmax_delivered(d: Delivered, fit: Any) -> tuple[np.ndarray, Any, str | N
     return B[:, order], None if b is None else b[order], note
 
 
-def run_check(args: argparse.Namespace) -> int:
-    """The ``check`` subcommand."""
+@dataclass(frozen=True)
+class CrossCheck:
+    """The refit of a delivered model and its comparison with the delivered coefficients."""
+
+    fit: Any
+    comparison: Any
+    implied: Any
+    implied_text: str | None
+    note: str | None
+    reasons: tuple[str, ...]
+    converged: bool
+
+    @property
+    def agree(self) -> bool:
+        return not self.reasons and self.converged
+
+
+def cross_check(args: argparse.Namespace, d: Delivered, table: Any, X: np.ndarray, target: str) -> CrossCheck:
+    """Refit ``d``'s kind of model on the table and compare (shared by ``check`` and ``report``):
+    the Wald and score tests, prediction differences, the implied ridge strength, and the
+    reasons to disagree at ``--significance`` and ``--max-difference``."""
     from ..exchange.crosscheck import compare_coefficients, implied_l2
 
-    d = read_delivered(args.model)
-    refuse_inapplicable(args, d.kind, "the delivered model")
-    table, X, target = read_refit_data(args, d)
     fit = _refit(d, table, X, target, args, Progress(args.quiet, "refit"))
     chosen = "chosen with --positive" if args.positive is not None else "as in the model file; choose with --positive"
     note_words = class_note(fit, {"logistic": chosen,
@@ -265,7 +288,17 @@ def run_check(args: argparse.Namespace) -> int:
         reasons.append(f"the largest difference in predicted {what} ({gap:.3g}) exceeds --max-difference "
                        f"{args.max_difference:g}")
     not_converged = (not fit.convergence.converged) or any(issubclass(c, IterationLimitWarning) for c, _ in caught)
-    agree = not reasons and not not_converged
+    return CrossCheck(fit, cmp, implied, implied_text, note, tuple(reasons), not not_converged)
+
+
+def run_check(args: argparse.Namespace) -> int:
+    """The ``check`` subcommand."""
+    d = read_delivered(args.model)
+    refuse_inapplicable(args, d.kind, "the delivered model")
+    table, X, target = read_refit_data(args, d)
+    cc = cross_check(args, d, table, X, target)
+    fit, cmp, implied, implied_text, note = cc.fit, cc.comparison, cc.implied, cc.implied_text, cc.note
+    reasons, not_converged, agree, caught = list(cc.reasons), not cc.converged, cc.agree, args.warnings_seen
 
     if args.json:
         emit_json({

@@ -10,8 +10,11 @@ Steps (data from :mod:`lintools.cli.demo_data`, generated from known true coeffi
 5. a calibration report of the supplier's probabilities on the data;
 6. stratified 5-fold cross-validated Brier score and ROC area of the refit logistic model;
 7. files: ``report.txt``, the model files (JSON and PMML), the supplier's PMML file, the
-   data as CSV (to try ``lintools check`` and ``lintools calibration`` on), and the
-   reliability diagram ``reliability.png`` when matplotlib is installed.
+   data as CSV (to try ``lintools check`` and ``lintools calibration`` on), a recent
+   sample whose nozzles are older (``recent.csv``), the sign-off document of the
+   supplier's model (``report.html`` and its JSON twin ``report.json``, as ``lintools
+   report`` writes them, with the recent sample and per shift), and the reliability
+   diagram ``reliability.png`` when matplotlib is installed.
 
 The folder must be new or empty unless ``--replace`` is given (then the demo's files in
 it are replaced and nothing else is touched); every file is written to a temporary file
@@ -45,10 +48,10 @@ MIN_ROWS, MAX_ROWS = 200, 200_000
 def _csv_text(data: Any, supplier_p: np.ndarray) -> str:
     out = io.StringIO(newline="")
     w = csv.writer(out)
-    w.writerow(list(data.names) + ["fill_deviation", "leak", "defect", "supplier_leak_probability"])
+    w.writerow(list(data.names) + ["fill_deviation", "leak", "defect", "supplier_leak_probability", "shift"])
     for i in range(data.X.shape[0]):
         w.writerow([repr(float(v)) for v in data.X[i]] + [repr(float(data.fill_deviation[i])), str(bool(data.leak[i])),
-                                                         data.defect[i], repr(float(supplier_p[i]))])
+                                                         data.defect[i], repr(float(supplier_p[i])), data.shift[i]])
     return out.getvalue()
 
 
@@ -196,7 +199,9 @@ def run_demo(args: argparse.Namespace) -> int:
     """The ``demo`` subcommand."""
     from .calibration import PLOT_EXTRA, calibration_report, plot_reliability
     from ..exchange.crosscheck import compare_coefficients, implied_l2
-    from .demo_data import FEATURES, TRUE_FILL_DEVIATION, inspection_data, supplier_leak_record, true_leak_raw
+    from .demo_data import (FEATURES, TRUE_FILL_DEVIATION, inspection_data, recent_inspection_data,
+                            supplier_leak_record, true_leak_raw)
+    from .report_command import report_args, write_report
     from ..models.least_squares import least_squares
     from ..models.logistic import logistic
     from ..exchange.pmml import write_pmml
@@ -228,8 +233,16 @@ def run_demo(args: argparse.Namespace) -> int:
     cv = cross_validate(data.X, data.leak, data.names, 5, args.seed, quiet)
 
     files.put("inspection.csv", _csv_text(data, p_sup))
+    recent = recent_inspection_data(max(MIN_ROWS, args.rows // 2), args.seed)
+    files.put("recent.csv", _csv_text(recent, supplier.mean(recent.X)))
     write_pmml(supplier, files.path("supplier_leak.pmml"), replace=args.replace)
     written.append(files.path("supplier_leak.pmml"))
+    # the sign-off document of the supplier's model, with the recent sample and per shift
+    write_report(report_args([files.path("supplier_leak.pmml"), files.path("inspection.csv"), "--recent",
+                              files.path("recent.csv"), "--by", "shift", "--out", files.path("report.html"),
+                              "--title", "Sign-off of the supplier's leak-risk model (demo data)", "--quiet"]
+                             + (["--replace"] if args.replace else []), args))
+    written += [files.path("report.html"), files.path("report.json")]
     files.model("fill_deviation", ls)
     files.model("leak", leak)
     files.model("defect", defect)
@@ -264,7 +277,9 @@ def run_demo(args: argparse.Namespace) -> int:
         rule, "Files", rule, *written, files.path("report.txt"), *notes, "",
         f"Try: lintools check {os.path.join(folder, 'supplier_leak.pmml')} {os.path.join(folder, 'inspection.csv')}",
         f"     lintools calibration {os.path.join(folder, 'inspection.csv')} --label leak "
-        "--probability supplier_leak_probability", "",
+        "--probability supplier_leak_probability",
+        f"     lintools report {os.path.join(folder, 'supplier_leak.pmml')} {os.path.join(folder, 'inspection.csv')} "
+        f"--recent {os.path.join(folder, 'recent.csv')} --by shift --out signoff.html", "",
         CAUTION, "",
     ]
     files.put("report.txt", "\n".join(sections))

@@ -23,7 +23,7 @@ from ..engine.losses import sigmoid
 
 __all__ = [
     "FEATURES", "TRUE_FILL_DEVIATION", "TRUE_LEAK", "TRUE_DEFECT", "DEFECT_CLASSES", "InspectionData",
-    "inspection_data", "supplier_leak_model", "SupplierLeakModel", "supplier_leak_record", "true_leak_raw",
+    "inspection_data", "recent_inspection_data", "supplier_leak_model", "SHIFTS", "SupplierLeakModel", "supplier_leak_record", "true_leak_raw",
     "true_defect_raw",
 ]
 
@@ -82,19 +82,29 @@ class InspectionData:
     fill_deviation: np.ndarray
     leak: np.ndarray
     defect: np.ndarray
+    shift: np.ndarray
 
 
-def inspection_data(n: int = 2000, seed: int = 20261201) -> InspectionData:
+#: The work shifts of the plant (a segment column) and their shares of the bottles.
+SHIFTS = ("early", "late", "night")
+SHIFT_SHARES = (0.45, 0.4, 0.15)
+#: Days by which the nozzles of the recent sample are older (the drift of the population).
+RECENT_NOZZLE_DRIFT = 40
+
+
+def inspection_data(n: int = 2000, seed: int = 20261201, nozzle_drift: int = 0) -> InspectionData:
     """Generate ``n`` inspection records from the known true coefficients.
 
     The draw uses only ``numpy.random.default_rng(seed)``, so the same seed gives the same
-    records on every platform.
+    records on every platform.  ``nozzle_drift`` adds that many days to every nozzle age
+    (the recent sample's drift); the shift of each bottle is drawn last, so it changes no
+    other number.
     """
     rng = np.random.default_rng(seed)
     temperature = rng.normal(18.0, 2.5, n)
     speed = rng.uniform(300.0, 600.0, n)
     torque = rng.normal(2.2, 0.25, n)
-    age = rng.integers(0, 120, n).astype(float)
+    age = rng.integers(0, 120, n).astype(float) + nozzle_drift
     humidity = np.clip(rng.normal(55.0, 10.0, n), 20.0, 95.0)
     X = np.column_stack([temperature, speed, torque, age, humidity])
     beta = np.array([TRUE_FILL_DEVIATION[f] for f in FEATURES])
@@ -111,7 +121,15 @@ def inspection_data(n: int = 2000, seed: int = 20261201) -> InspectionData:
     u = rng.uniform(size=n)[:, None]
     code = (u > np.cumsum(prob, axis=1)).sum(axis=1)
     defect = np.array(DEFECT_CLASSES, dtype=object)[np.minimum(code, len(DEFECT_CLASSES) - 1)]
-    return InspectionData(X=X, names=FEATURES, fill_deviation=deviation, leak=leak, defect=defect)
+    shift = rng.choice(np.array(SHIFTS, dtype=object), n, p=SHIFT_SHARES)
+    return InspectionData(X=X, names=FEATURES, fill_deviation=deviation, leak=leak, defect=defect, shift=shift)
+
+
+def recent_inspection_data(n: int, seed: int) -> InspectionData:
+    """A recent sample of ``n`` records (its own seed, derived from ``seed``) from the same
+    true model, with nozzles :data:`RECENT_NOZZLE_DRIFT` days older: the population has
+    drifted in one feature."""
+    return inspection_data(n, seed + 1, nozzle_drift=RECENT_NOZZLE_DRIFT)
 
 
 def supplier_leak_model() -> tuple[dict, float]:
