@@ -73,13 +73,16 @@ def lookup(doc: Any, path: str) -> Any:
     return value
 
 
-def number_text(value: Any, spec: str) -> str:
-    """A number as the page prints it: ``spec`` is a format spec (``".4f"``), ``"int"``,
-    or ``"p"`` (a p-value to 3 significant digits; an exact 0 says why it is 0)."""
+def number_text(value: Any, spec: str, missing: str = "not defined") -> str:
+    """A number as the page prints it: ``spec`` is a format spec (``".4f"``; ``""`` the
+    shortest text that reads back as the same number), ``"int"``, or ``"p"`` (a p-value
+    to 3 significant digits; an exact 0 says why it is 0).  Text is printed as it is."""
     if value is None or (isinstance(value, float) and not math.isfinite(value)):
-        return "not defined"
+        return missing
     if isinstance(value, bool):
         return "yes" if value else "no"
+    if isinstance(value, str):
+        return value
     if spec == "int":
         return str(int(value))
     if spec == "p":
@@ -102,11 +105,11 @@ class Page:
         """An inline number tied to its place in the twin."""
         return f'<span data-k="{escape(pointer(*keys))}">{escape(number_text(self.get(*keys), spec))}</span>'
 
-    def cell(self, keys: Sequence[Any], spec: str = ".6g") -> str:
-        """A table cell holding a number of the twin."""
+    def cell(self, keys: Sequence[Any], spec: str = ".6g", missing: str = "not defined") -> str:
+        """A table cell holding a value of the twin."""
         value = self.get(*keys)
         cls = "n" if isinstance(value, (int, float)) and not isinstance(value, bool) else "t"
-        return f'<td class="{cls}" data-k="{escape(pointer(*keys))}">{escape(number_text(value, spec))}</td>'
+        return f'<td class="{cls}" data-k="{escape(pointer(*keys))}">{escape(number_text(value, spec, missing))}</td>'
 
     @staticmethod
     def word(text: Any, cls: str = "t") -> str:

@@ -268,9 +268,8 @@ def _audit(pg: Page) -> str:
     files = [[pg.word(f["role"]), pg.word(f["path"]), pg.cell(("audit", "inputs", i, "bytes"), "int"),
               pg.word(f["sha256"], "hash")] for i, f in enumerate(a["inputs"])]
     versions = [[f"<th>{escape(k)}</th>", pg.word(v)] for k, v in a["versions"].items()]
-    shown = {None: "(not given)", True: "yes", False: "no"}
-    options = [[f"<th>{escape(k)}</th>", pg.word(shown[v] if v is None or isinstance(v, bool) else v)]
-               for k, v in a["options"].items()]
+    options = [[f"<th>{escape(k)}</th>", pg.cell(("audit", "options", k), "", "(not given)")]
+               for k in a["options"]]
     return ('<h2 id="audit">Audit</h2>'
             + pg.table(["input", "path", "bytes", "SHA-256"], files, "Input files")
             + "<table><caption>Software</caption><tbody>"
