@@ -32,6 +32,8 @@ table { border-collapse: collapse; margin: .5rem 0 1rem; font-size: .88rem; }
 caption { text-align: left; font-weight: bold; padding: .3rem 0; }
 th, td { border-bottom: 1px solid var(--rule); padding: .22rem .55rem; vertical-align: top; }
 th { text-align: left; background: var(--faint); font-weight: 600; }
+table.wide { font-size: .76rem; }
+table.wide th, table.wide td { padding: .2rem .32rem; }
 td.n { text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }
 td.t { overflow-wrap: break-word; }
 td.hash { font-family: "DejaVu Sans Mono", Menlo, Consolas, monospace; font-size: .78rem; overflow-wrap: anywhere; }
@@ -105,10 +107,11 @@ class Page:
         """An inline number tied to its place in the twin."""
         return f'<span data-k="{escape(pointer(*keys))}">{escape(number_text(self.get(*keys), spec))}</span>'
 
-    def cell(self, keys: Sequence[Any], spec: str = ".6g", missing: str = "not defined") -> str:
-        """A table cell holding a value of the twin."""
+    def cell(self, keys: Sequence[Any], spec: str = ".6g", missing: str = "not defined", cls: str = "") -> str:
+        """A table cell holding a value of the twin (numbers and undefined figures to the
+        right, text to the left, unless ``cls`` says)."""
         value = self.get(*keys)
-        cls = "n" if isinstance(value, (int, float)) and not isinstance(value, bool) else "t"
+        cls = cls or ("t" if isinstance(value, (bool, str)) else "n")
         return f'<td class="{cls}" data-k="{escape(pointer(*keys))}">{escape(number_text(value, spec, missing))}</td>'
 
     @staticmethod
@@ -118,8 +121,9 @@ class Page:
 
     @staticmethod
     def table(head: Sequence[str], rows: Sequence[Sequence[str]], caption: str = "") -> str:
-        """A table; ``rows`` hold cells made by :meth:`cell` or :meth:`word`."""
-        out = ["<table>"]
+        """A table; ``rows`` hold cells made by :meth:`cell` or :meth:`word`.  A table of
+        more than eight columns is set smaller (class ``wide``) so that it fits the page."""
+        out = ['<table class="wide">' if len(head) > 8 else "<table>"]
         if caption:
             out.append(f"<caption>{escape(caption)}</caption>")
         out.append("<thead><tr>" + "".join(f"<th>{escape(h)}</th>" for h in head) + "</tr></thead><tbody>")

@@ -268,7 +268,7 @@ def _audit(pg: Page) -> str:
     files = [[pg.word(f["role"]), pg.word(f["path"]), pg.cell(("audit", "inputs", i, "bytes"), "int"),
               pg.word(f["sha256"], "hash")] for i, f in enumerate(a["inputs"])]
     versions = [[f"<th>{escape(k)}</th>", pg.word(v)] for k, v in a["versions"].items()]
-    options = [[f"<th>{escape(k)}</th>", pg.cell(("audit", "options", k), "", "(not given)")]
+    options = [[f"<th>{escape(k)}</th>", pg.cell(("audit", "options", k), "", "(not given)", "t")]
                for k in a["options"]]
     return ('<h2 id="audit">Audit</h2>'
             + pg.table(["input", "path", "bytes", "SHA-256"], files, "Input files")
