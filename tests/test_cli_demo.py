@@ -18,7 +18,7 @@ import lintools as lt
 from lintools.cli.demo_data import FEATURES, inspection_data, recent_inspection_data, supplier_leak_model
 
 FILES = ["report.txt", "inspection.csv", "recent.csv", "supplier_leak.pmml", "fill_deviation.json", "fill_deviation.pmml",
-         "leak.json", "leak.pmml", "reliability.png"]
+         "leak.json", "leak.pmml", "reliability.png", "report.html", "report.json"]
 
 
 def run(*args, cwd=None):
@@ -117,7 +117,7 @@ def test_the_recent_sample_drifts_in_the_nozzle_age_only(demo):
     other feature reads stable (below 0.1, the reading band of common practice)."""
     folder, doc = demo
     psi = {name: r["index"] for name, r in doc["recent_stability"].items()}
-    assert set(psi) == set(FEATURES) | {"fill_deviation", "leak", "defect", "supplier_leak_probability"}
+    assert set(psi) == set(FEATURES) | {"fill_deviation", "leak", "defect", "supplier_leak_probability", "shift"}
     assert max(FEATURES, key=psi.get) == "nozzle_age" and psi["nozzle_age"] > 0.25
     assert all(psi[f] < 0.1 for f in FEATURES if f != "nozzle_age")
     # source: lintools.population_stability on the generator's columns (the library is checked

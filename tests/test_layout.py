@@ -28,8 +28,9 @@ LAYERS = {
     "blocks": 3,
     "metrics": 3,
     "exchange": 4,
-    "cli": 5,
-    "": 6,  # the top: lintools/__init__.py and __main__.py re-export and start
+    "document": 5,  # the sign-off document: charts, SVG and PNG renderers, the HTML page
+    "cli": 6,
+    "": 7,  # the top: lintools/__init__.py and __main__.py re-export and start
 }
 
 

@@ -10,6 +10,7 @@ folds        write a CSV file with a stratified fold-id column added
 score        apply a model file (lintools JSON or PMML) to a CSV file and write the scores
 stability    population stability index of a recent CSV file against a development one
 selfcheck    qualify this installation: digits achieved on exact and certified cases
+report       the sign-off document of a delivered logistic model: one HTML page and its JSON twin
 
 Exit codes: 0 success, 1 a check failed (or a fit did not converge), 2 bad input.
 Standard output carries only the requested output: the report, or with ``--json`` one
@@ -25,7 +26,8 @@ An option that does not apply to the chosen model is refused.  Messages from the
 name the options, not its Python arguments (:mod:`lintools.cli.console`).
 
 The subcommands live in this folder, one module each (``check``, ``calibration``,
-``demo_command``, ``folds``, ``score``, ``stability``, ``selfcheck``); shared pieces in ``common`` and
+``demo_command``, ``folds``, ``score``, ``stability``, ``selfcheck``, ``report_command``); shared pieces in
+``common`` and
 ``console``.
 """
 
@@ -56,6 +58,7 @@ from .common import (
 from .console import CAUTION, Console, QuietPipe, report_text, translate, warnings_to_stderr
 from .demo_command import add_demo_parser
 from .folds import add_folds_parser
+from .report_command import add_report_parser
 from .score import add_score_parser
 from .selfcheck import add_selfcheck_parser
 from .stability import add_stability_parser
@@ -218,6 +221,7 @@ def build_parser() -> argparse.ArgumentParser:
     add_score_parser(sub, common)
     add_stability_parser(sub, common)
     add_selfcheck_parser(sub, common)
+    add_report_parser(sub, common)
     return parser
 
 
@@ -256,6 +260,7 @@ def main(argv: list[str] | None = None) -> int:
             args = build_parser().parse_args(argv)
         except SystemExit as exc:  # argparse: 2 on bad usage, 0 on --help and --version
             return int(exc.code or 0)
+        args.argv = list(sys.argv[1:] if argv is None else argv)  # the command as given, for the audit
         return _run(args)
     finally:
         out.flush()

@@ -28,6 +28,7 @@ from typing import Any
 
 import numpy as np
 
+from ..document.png import PLOT_EXTRA
 from .common import (
     SMALL_SEGMENT_ROWS,
     check_output_paths,
@@ -41,8 +42,6 @@ from .common import (
 )
 from ..support.errors import InputError, LintoolsError
 
-PLOT_EXTRA = ('the plot extra: python -m pip install -e ".[plot]" in a checkout of lintools, '
-              'or python -m pip install "matplotlib>=3.7"')
 
 
 @dataclass(frozen=True)
@@ -122,43 +121,26 @@ def calibration_report(y: Any, p: np.ndarray, *, positive: Any = None, bins: int
                              notes=tuple(notes))
 
 
-def plot_reliability(table: Any, path: str, title: str = "Reliability diagram") -> None:
-    """Write a reliability diagram of ``table`` (a :class:`ReliabilityTable`) as a PNG file.
+def plot_reliability(table: Any, path: Any, title: str = "Reliability diagram",
+                     positive: str = "the positive class") -> None:
+    """Write a reliability diagram of ``table`` (a :class:`ReliabilityTable`) as PNG to
+    ``path`` (a file name, replaced if it exists, or a binary file object).
 
-    Draws every bin that has weight (empty bins, and bins whose rows all have weight 0,
-    have no observed frequency and are left out of the curve but kept in the row counts
-    below), with the table's interval as error bars; a table with no such bin draws the
-    diagonal and the counts only.  Needs matplotlib, imported here only; without it an
-    :class:`InputError` names the ``plot`` extra.
+    The figure is :func:`lintools.document.charts.reliability_chart` (the same series as
+    the sign-off document's SVG figure) drawn by matplotlib: every bin that has weight
+    with its interval, the diagonal, and the rows per bin on a log scale.  Without
+    matplotlib an :class:`InputError` names the ``plot`` extra.
     """
-    try:
-        from matplotlib.backends.backend_agg import FigureCanvasAgg
-        from matplotlib.figure import Figure
-    except ImportError:
-        raise InputError(f"a reliability diagram needs matplotlib, which is not installed: {PLOT_EXTRA}") from None
-    fig = Figure(figsize=(6.0, 6.5))
-    FigureCanvasAgg(fig)
-    top, bottom = fig.subplots(2, 1, sharex=True, gridspec_kw={"height_ratios": [3, 1]})
-    full = (table.weight > 0) & np.isfinite(table.observed) & np.isfinite(table.mean_predicted)
-    f, o = table.mean_predicted[full], table.observed[full]
-    lo, hi = table.observed_lower[full], table.observed_upper[full]
-    # the table's intervals contain the observed frequency (reliability guarantees it);
-    # the bars are the distances to the bounds, never negative
-    yerr = np.maximum(np.vstack([o - lo, hi - o]), 0.0)
-    top.plot([0, 1], [0, 1], linestyle=":", color="grey", label="perfect calibration")
-    top.errorbar(f, o, yerr=yerr, fmt="o-", capsize=3,
-                 label=f"observed frequency, {100 * table.level:g}% Wilson interval")
-    top.set_ylabel("observed frequency")
-    top.set_xlim(0, 1)
-    top.set_ylim(0, 1)
-    top.set_title(title)
-    top.legend(loc="upper left", fontsize="small")
-    centres = 0.5 * (table.edges[:-1] + table.edges[1:])
-    bottom.bar(centres, table.count, width=np.diff(table.edges) * 0.9, color="tab:grey")
-    bottom.set_xlabel("forecast probability (the bins of the table)")
-    bottom.set_ylabel("rows")
-    fig.tight_layout()
-    fig.savefig(path, format="png", dpi=100)
+    from ..document.charts import reliability_chart
+    from ..document.png import chart_png
+
+    data = chart_png(reliability_chart(table, title, positive))
+    if hasattr(path, "write"):
+        path.write(data)
+    else:
+        from ..support.files import write_atomic
+
+        write_atomic(path, data, replace=True, label="diagram")
 
 
 def swapped_class_warning(rep: CalibrationReport) -> str | None:
@@ -215,7 +197,8 @@ def run_calibration(args: argparse.Namespace) -> int:
         console.warning(swapped)
     if args.plot is not None:
         png = io.BytesIO()  # drawn in memory, then written atomically
-        plot_reliability(rep.reliability, png, f"Reliability of '{args.probability}' for '{args.label}'")
+        plot_reliability(rep.reliability, png, f"Reliability of {args.probability} for {args.label}",
+                         f"{args.label} = {rep.positive!s}")
         write_atomic(args.plot, png.getvalue(), replace=args.replace, label="--plot", replace_hint="--replace")
         console.note(f"reliability diagram written to {args.plot}")
     if args.json:

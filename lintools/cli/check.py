@@ -29,7 +29,7 @@ import argparse
 import dataclasses
 import sys
 from dataclasses import dataclass
-from typing import Any
+from typing import Any, Sequence
 
 import numpy as np
 
@@ -118,14 +118,22 @@ def _columns_for(names: tuple[str, ...], header: list[str], where: str) -> list[
     return cols
 
 
-def read_refit_data(args: argparse.Namespace, d: Delivered) -> tuple[Any, np.ndarray, str]:
-    """Read the target and the delivered features; return (table, X in delivered order, target)."""
+def read_refit_data(args: argparse.Namespace, d: Delivered, *, path: str | None = None, extra: Sequence[str] = (),
+                    with_target: bool = True) -> tuple[Any, np.ndarray, str]:
+    """Read the target and the delivered features; return (table, X in delivered order, target).
+
+    ``path`` is the CSV file (default ``args.csv``); ``extra`` columns (and the ``--by``
+    column) are read as text beside them (``table.extra``); ``with_target=False`` reads no
+    target column (a sample without outcomes; the target name is still returned).
+    """
     from .table_options import table_options
     from ..exchange.csv_table import read_header, read_table
 
+    path = args.csv if path is None else path
     target = args.target or d.target
-    header = list(read_header(args.csv, **table_options(args, "categorical", header=True)))
-    by = [args.by] if args.by else []
+    wanted = target if with_target else None
+    header = list(read_header(path, **table_options(args, "categorical", header=True)))
+    by = list(dict.fromkeys(([args.by] if args.by else []) + list(extra)))
     if d.categorical_fields:  # the text columns are known: read them as the model does when it scores
         from ..exchange.scoring import model_inputs, read_inputs
 
@@ -133,30 +141,29 @@ def read_refit_data(args: argparse.Namespace, d: Delivered) -> tuple[Any, np.nda
         _refuse_by(args, target, inputs.columns)
         absent = [c for c in inputs.columns if c not in header]
         if absent:
-            raise InputError(f"the delivered model's input '{absent[0]}' is not a column of {args.csv!r} (its "
+            raise InputError(f"the delivered model's input '{absent[0]}' is not a column of {path!r} (its "
                              f"columns: {', '.join(header)}); the refit needs every input the model uses")
-        table, X = read_inputs(args.csv, inputs, table_options(args, "categorical"), target=target,
+        table, X = read_inputs(path, inputs, table_options(args, "categorical"), target=wanted,
                                weights=args.weights, extra=by, drop_missing=args.drop_missing)
         return table, X, target
-    cols = _columns_for(d.names, header, args.csv)
+    cols = _columns_for(d.names, header, path)
     _refuse_by(args, target, cols)
-    kwargs = dict(target=target, features=cols, weights=args.weights, extra=by, drop_missing=args.drop_missing,
+    kwargs = dict(target=wanted, features=cols, weights=args.weights, extra=by, drop_missing=args.drop_missing,
                   **table_options(args, "categorical"))
-    table = read_table(args.csv, **kwargs)
-    extra = [n for n in table.names if n not in d.names]
-    if extra:  # a text column whose reference level differs from the delivered model's
+    table = read_table(path, **kwargs)
+    if any(n not in d.names for n in table.names):  # a text column whose reference level differs from the delivered model's
         refs = {}
         for col, ref in table.reference_levels.items():
             levels = [ref] + [n.split("=", 1)[1] for n in table.names if n.startswith(col + "=")]
             absent = [lv for lv in levels if f"{col}={lv}" not in d.names]
             if len(absent) == 1:
                 refs[col] = absent[0]
-        table = read_table(args.csv, **kwargs, reference_levels=refs)
+        table = read_table(path, **kwargs, reference_levels=refs)
     missing = [n for n in d.names if n not in table.names]
     extra = [n for n in table.names if n not in d.names]
     if missing or extra:
         raise InputError(
-            f"the columns of {args.csv!r} do not give the delivered features: "
+            f"the columns of {path!r} do not give the delivered features: "
             + (f"no column for {missing}" if missing else "")
             + ("; " if missing and extra else "")
             + (f"levels without a delivered coefficient {extra}" if extra else "")
@@ -283,31 +290,61 @@ def _iteration_warned(caught: list, since: int) -> bool:
     return any(issubclass(c, IterationLimitWarning) for c, _ in caught[since:])
 
 
-def run_check(args: argparse.Namespace) -> int:
-    """The ``check`` subcommand."""
+@dataclass(frozen=True)
+class CrossCheck:
+    """The refit of a delivered model on all rows and its comparison with the delivered
+    coefficients (shared by ``check`` and ``report``)."""
+
+    fit: Any
+    comparison: Any
+    implied: Any
+    implied_text: str | None
+    note: str | None
+    reasons: tuple[str, ...]
+    converged: bool
+
+    @property
+    def agree(self) -> bool:
+        return not self.reasons and self.converged
+
+
+def cross_check(args: argparse.Namespace, d: Delivered, table: Any, X: np.ndarray, target: str) -> CrossCheck:
+    """Refit ``d``'s kind of model on the table and compare: the Wald and score tests,
+    prediction differences, the implied ridge strength, and the reasons to disagree at
+    ``--significance`` and ``--max-difference``."""
     from ..exchange.crosscheck import implied_l2
 
-    d = read_delivered(args.model)
-    refuse_inapplicable(args, d.kind, "the delivered model")
-    table, X, target = read_refit_data(args, d)
     labels = list(table.target)
     caught = args.warnings_seen
+    since = len(caught)
     fit = _refit(d, labels, table.weights, X, target, args, Progress(args.quiet, "refit"))
     chosen = "chosen with --positive" if args.positive is not None else "as in the model file; choose with --positive"
     note_words = class_note(fit, {"logistic": chosen,
                                   "softmax": "as in the model file"})
     if note_words:
         args.console.note(note_words)
-    whole = _judge(d, fit, X, labels, table.weights, args, _iteration_warned(caught, 0))
-    cmp, note, reasons, agree = whole["comparison"], whole["note"], whole["reasons"], whole["agree"]
+    whole = _judge(d, fit, X, labels, table.weights, args, _iteration_warned(caught, since))
     coef, intercept, y = whole["coef"], whole["intercept"], whole["y"]
-
     implied = None
     if d.kind in ("least_squares", "logistic") and np.any(coef):
         yy = y if d.kind == "least_squares" else np.array([v == fit.positive_class for v in y])
         implied = implied_l2(X, yy, coef, intercept, model=d.kind, weights=table.weights)
     total = float(table.weights.sum()) if table.weights is not None else float(X.shape[0])
     implied_text = None if implied is None else implied_words(implied, total)
+    return CrossCheck(fit, whole["comparison"], implied, implied_text, whole["note"], tuple(whole["reasons"]),
+                      whole["converged"])
+
+
+def run_check(args: argparse.Namespace) -> int:
+    """The ``check`` subcommand."""
+    d = read_delivered(args.model)
+    refuse_inapplicable(args, d.kind, "the delivered model")
+    table, X, target = read_refit_data(args, d)
+    labels = list(table.target)
+    caught = args.warnings_seen
+    cc = cross_check(args, d, table, X, target)
+    fit, cmp, implied, implied_text, note = cc.fit, cc.comparison, cc.implied, cc.implied_text, cc.note
+    reasons, agree = list(cc.reasons), cc.agree
     blocks = _segment_blocks(d, fit, table, X, labels, target, args) if args.by else []
 
     if args.json:
@@ -316,7 +353,7 @@ def run_check(args: argparse.Namespace) -> int:
             "rows": int(X.shape[0]), "dropped_rows": table.dropped, "refit": fit.to_dict(),
             "comparison": cmp, "implied_l2": implied, "implied_l2_words": implied_text, "note": note,
             "tolerance": {"significance": args.significance, "max_difference": args.max_difference},
-            "agree": agree, "reasons": reasons, "refit_converged": whole["converged"],
+            "agree": agree, "reasons": reasons, "refit_converged": cc.converged,
             "by": args.by, "small_segment_rule": _small_rule(d) if args.by else None, "segments": blocks,
             "segments_disagreeing": [b["segment"] for b in blocks if b["agree"] is False],
             "warnings": [text for _, text in caught], "caution": CAUTION,
@@ -329,7 +366,7 @@ def run_check(args: argparse.Namespace) -> int:
             print(f"\nThe exit status follows all rows; {sum(b['agree'] is False for b in blocks)} of {len(blocks)} "
                   "segments disagree (each segment is one more test at the same significance)")
         args.console.caution()
-    if not whole["converged"]:
+    if not cc.converged:
         print("lintools: the refit did not converge; the comparison is not meaningful", file=sys.stderr)
         return 1
     return 0 if agree else 1

@@ -13,9 +13,11 @@ Steps (data from :mod:`lintools.cli.demo_data`, generated from known true coeffi
    every column of the data file against the development sample, and the band tests of the
    supplier's probabilities on the recent rows;
 8. files: ``report.txt``, the model files (JSON and PMML), the supplier's PMML file, the
-   data and the recent sample as CSV (to try ``lintools check``, ``lintools calibration``
-   and ``lintools stability`` on), and the reliability diagram ``reliability.png`` when
-   matplotlib is installed.
+   data and the recent sample as CSV (to try ``lintools check``, ``lintools calibration``,
+   ``lintools stability`` and ``lintools report`` on), the sign-off document of the
+   supplier's model (``report.html`` and its JSON twin ``report.json``, as ``lintools
+   report`` writes them, with the recent sample and per shift), and the reliability
+   diagram ``reliability.png`` when matplotlib is installed.
 
 The folder must be new or empty unless ``--replace`` is given (then the demo's files in
 it are replaced and nothing else is touched); every file is written to a temporary file
@@ -57,6 +59,7 @@ def _columns(data: Any, supplier_p: np.ndarray) -> dict[str, np.ndarray]:
     cols["leak"] = np.array([str(bool(v)) for v in data.leak], dtype=object)
     cols["defect"] = np.asarray(data.defect, dtype=object)
     cols[SCORE] = supplier_p
+    cols["shift"] = np.asarray(data.shift, dtype=object)
     return cols
 
 
@@ -239,6 +242,7 @@ def run_demo(args: argparse.Namespace) -> int:
     from ..exchange.crosscheck import compare_coefficients, implied_l2
     from .demo_data import (FEATURES, TRUE_FILL_DEVIATION, inspection_data, recent_inspection_data,
                             supplier_leak_record, true_leak_raw)
+    from .report_command import report_args, write_report
     from ..models.least_squares import least_squares
     from ..models.logistic import logistic
     from ..exchange.pmml import write_pmml
@@ -275,6 +279,12 @@ def run_demo(args: argparse.Namespace) -> int:
     files.put("recent.csv", _csv_text(recent, supplier.mean(recent.X)))
     write_pmml(supplier, files.path("supplier_leak.pmml"), replace=args.replace)
     written.append(files.path("supplier_leak.pmml"))
+    # the sign-off document of the supplier's model, with the recent sample and per shift
+    write_report(report_args([files.path("supplier_leak.pmml"), files.path("inspection.csv"), "--recent",
+                              files.path("recent.csv"), "--by", "shift", "--out", files.path("report.html"),
+                              "--title", "Sign-off of the supplier's leak-risk model (demo data)", "--quiet"]
+                             + (["--replace"] if args.replace else []), args))
+    written += [files.path("report.html"), files.path("report.json")]
     files.model("fill_deviation", ls)
     files.model("leak", leak)
     files.model("defect", defect)
@@ -313,6 +323,8 @@ def run_demo(args: argparse.Namespace) -> int:
         "--probability supplier_leak_probability",
         f"     lintools stability {os.path.join(folder, 'inspection.csv')} {os.path.join(folder, 'recent.csv')} "
         "--probability supplier_leak_probability", "",
+        f"     lintools report {os.path.join(folder, 'supplier_leak.pmml')} {os.path.join(folder, 'inspection.csv')} "
+        f"--recent {os.path.join(folder, 'recent.csv')} --by shift --out signoff.html", "",
         CAUTION, "",
     ]
     files.put("report.txt", "\n".join(sections))

@@ -26,7 +26,7 @@ from ..engine.losses import sigmoid
 
 __all__ = [
     "FEATURES", "TRUE_FILL_DEVIATION", "TRUE_LEAK", "TRUE_DEFECT", "DEFECT_CLASSES", "InspectionData",
-    "inspection_data", "recent_inspection_data", "NOZZLE_AGE_DAYS", "RECENT_NOZZLE_AGE_DAYS", "supplier_leak_model", "SupplierLeakModel", "supplier_leak_record", "true_leak_raw",
+    "inspection_data", "recent_inspection_data", "NOZZLE_AGE_DAYS", "RECENT_NOZZLE_AGE_DAYS", "supplier_leak_model", "SHIFTS", "SupplierLeakModel", "supplier_leak_record", "true_leak_raw",
     "true_defect_raw",
 ]
 
@@ -90,13 +90,19 @@ class InspectionData:
     fill_deviation: np.ndarray
     leak: np.ndarray
     defect: np.ndarray
+    shift: np.ndarray
 
+
+#: The work shifts of the plant (a segment column) and their shares of the bottles.
+SHIFTS = ("early", "late", "night")
+SHIFT_SHARES = (0.45, 0.4, 0.15)
 
 def inspection_data(n: int = 2000, seed: int = 20261201) -> InspectionData:
     """Generate ``n`` inspection records from the known true coefficients.
 
     The draw uses only ``numpy.random.default_rng(seed)``, so the same seed gives the same
-    records on every platform.
+    records on every platform.  The work shift of each bottle (a segment column) is drawn
+    last, so it changes no other number.
     """
     return _draw(np.random.default_rng(seed), n, NOZZLE_AGE_DAYS)
 
@@ -134,7 +140,8 @@ def _draw(rng: np.random.Generator, n: int, nozzle_age_days: tuple[int, int]) ->
     u = rng.uniform(size=n)[:, None]
     code = (u > np.cumsum(prob, axis=1)).sum(axis=1)
     defect = np.array(DEFECT_CLASSES, dtype=object)[np.minimum(code, len(DEFECT_CLASSES) - 1)]
-    return InspectionData(X=X, names=FEATURES, fill_deviation=deviation, leak=leak, defect=defect)
+    shift = rng.choice(np.array(SHIFTS, dtype=object), n, p=SHIFT_SHARES)
+    return InspectionData(X=X, names=FEATURES, fill_deviation=deviation, leak=leak, defect=defect, shift=shift)
 
 
 def supplier_leak_model() -> tuple[dict, float]:
