@@ -224,19 +224,8 @@ def _fit(
     pos = None if w is None else w > 0
     n_pos = n if pos is None else int(pos.sum())
     k_max = p + int(intercept)
-    if lam == 0 and n_pos < k_max:
-        raise InputError(
-            f"X has {n_pos} rows with positive weight but the model has {k_max} parameters; "
-            "add rows, drop columns, or set l2 > 0"
-        )
     yp = ya if pos is None else ya[pos]
-    if intercept and np.ptp(yp) == 0:
-        raise InputError(
-            f"y is constant (every row with positive weight equals {yp[0]:g}); there is "
-            "nothing to explain: check the target column"
-        )
-    if not intercept and not np.any(yp):
-        raise InputError("y is zero on every row with positive weight; check the target column")
+    refuse_degenerate(n_pos, k_max, lam, intercept, bool(np.ptp(yp) == 0), yp[0], not np.any(yp))
     del yp
 
     # units: y and the weights divided by powers of two (exact); the columns get theirs on
@@ -427,6 +416,27 @@ def caller_covariance(Vz: np.ndarray, xbar: np.ndarray, s: np.ndarray, intercept
     T = unstandardise(xbar, s, intercept)
     V = T @ Vz @ T.T
     return 0.5 * (V + V.T)
+
+
+def refuse_degenerate(n_pos: int, k_max: int, lam: float, intercept: bool, y_constant: bool, y_first: float,
+                      y_zero: bool) -> None:
+    """Refuse fewer rows of positive weight than parameters (without a ridge), a constant
+    response with an intercept, and a response that is zero everywhere without one.
+
+    ``y_constant``, ``y_zero``: whether the response is constant, or zero, on the rows of
+    positive weight; ``y_first``: its value on the first of them."""
+    if lam == 0 and n_pos < k_max:
+        raise InputError(
+            f"X has {n_pos} rows with positive weight but the model has {k_max} parameters; "
+            "add rows, drop columns, or set l2 > 0"
+        )
+    if intercept and y_constant:
+        raise InputError(
+            f"y is constant (every row with positive weight equals {y_first:g}); there is "
+            "nothing to explain: check the target column"
+        )
+    if not intercept and y_zero:
+        raise InputError("y is zero on every row with positive weight; check the target column")
 
 
 def residual_degrees(n_obs, k, weight_type, n_pos):

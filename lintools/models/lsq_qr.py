@@ -26,16 +26,10 @@ import math
 import numpy as np
 
 from ..support.errors import IllConditionedWarning, InputError, warn_caller
+from .lsq_coordinates import aliased_columns_of, caller_gradient, centre_in_two_parts, centred_intercept, column_floor
+from .lsq_coordinates import ridge_column_norms
 from .lsq_scale import column_exponents
-from ..support.linalg import (
-    CONSTANT_TOLERANCE,
-    aliased_columns,
-    condition_number,
-    default_rank_tolerance,
-    inverse_upper,
-    solve_lower,
-    solve_upper,
-)
+from ..support.linalg import condition_number, default_rank_tolerance, inverse_upper, solve_lower, solve_upper
 
 __all__ = ["qr_path", "alias_sentences", "refuse_leverage_one", "ILL_CONDITIONED"]
 
@@ -111,9 +105,6 @@ class _Centred:
     def block(self, lo: int, hi: int) -> np.ndarray:
         return (self.X[lo:hi].astype(_LD) * self.inv - self.m1) - self.m2
 
-    def centre(self) -> np.ndarray:
-        return self.m1 + self.m2
-
 
 def qr_path(Xa, y1, w1, w_case, lam_w, intercept, names_t, rank_deficient, covariance, weight_type, residual_df):
     """The accurate path on unit data ``y1``, ``w1`` (weights, all rows), ridge ``lam_w``.
@@ -128,14 +119,9 @@ def qr_path(Xa, y1, w1, w_case, lam_w, intercept, names_t, rank_deficient, covar
     sw = np.sqrt(w1)
     Xc = np.ldexp(Xa, -ex)  # a new array, exact
     if intercept:
-        m1 = (w1 @ Xc) / W1
-        Xc -= m1
-        m2 = (w1 @ Xc) / W1
-        Xc -= m2
-        ybar = float(w1 @ y1) / W1
-        yc = y1 - ybar
-        dy = float(w1 @ yc) / W1
-        yc -= dy
+        m1, m2 = centre_in_two_parts(Xc, w1, W1)
+        yc = y1.copy()
+        ybar, dy = (float(v) for v in centre_in_two_parts(yc, w1, W1))
     else:
         m1, m2 = np.zeros(p), np.zeros(p)
         ybar, dy = 0.0, 0.0
@@ -143,13 +129,9 @@ def qr_path(Xa, y1, w1, w_case, lam_w, intercept, names_t, rank_deficient, covar
     centre = m1 + m2
     cen = _Centred(Xa, ex, m1, m2)
     A = Xc * sw[:, None]
-    s = np.linalg.norm(A, axis=0)
-    raw_norm = np.hypot(s, math.sqrt(W1) * centre) if intercept else s
-    tol = default_rank_tolerance(n, p)
     constant = np.ptp(Xa[pos], axis=0) == 0 if intercept else np.zeros(p, dtype=bool)
-    zero = constant | (s <= CONSTANT_TOLERANCE * raw_norm) | (s == 0)
+    zero, s = column_floor(np.linalg.norm(A, axis=0), centre, W1, constant, intercept)
     A[:, zero] = 0.0
-    s = np.where(zero, 1.0, s)
     A /= s
 
     root = np.ldexp(math.sqrt(lam_w), -ex) if lam_w > 0 else np.zeros(p)
@@ -164,13 +146,10 @@ def qr_path(Xa, y1, w1, w_case, lam_w, intercept, names_t, rank_deficient, covar
             )
         A = np.vstack([A, np.diag(aug)])
         rhs = np.concatenate([rhs_y, np.zeros(p)])
-        col_norm = np.hypot(np.where(zero, 0.0, 1.0), aug)
     else:
-        rhs = rhs_y
-        col_norm = np.where(zero, 0.0, 1.0)
+        aug, rhs = None, rhs_y
     Q, R = np.linalg.qr(A, mode="reduced")
-    aliased = np.union1d(np.flatnonzero(zero & (lam_w == 0)), aliased_columns(R, np.maximum(col_norm, 1e-300), tol))
-    aliased = aliased.astype(int)
+    aliased = aliased_columns_of(R, zero, lam_w > 0, ridge_column_norms(zero, aug), default_rank_tolerance(n, p))
     if aliased.size and rank_deficient == "raise":
         raise InputError(
             alias_sentences(aliased, zero, names_t, R, s, intercept, ex, exact=constant | (s == 0))
@@ -195,7 +174,7 @@ def qr_path(Xa, y1, w1, w_case, lam_w, intercept, names_t, rank_deficient, covar
             IllConditionedWarning,
         )
     z0 = _LD(ybar) + _LD(a)
-    b0 = float(z0 - cen.centre() @ beta.astype(_LD)) if intercept else 0.0
+    b0 = centred_intercept(z0, m1, m2, beta) if intercept else 0.0
     e = _centred_residual(cen, y1, z0, beta)
     rss = float(w1 @ (e * e))
     tss = float(w1 @ (yc * yc))
@@ -203,7 +182,7 @@ def qr_path(Xa, y1, w1, w_case, lam_w, intercept, names_t, rank_deficient, covar
     lam1 = root * root
     g_a = -float(w1 @ e)
     g_beta = -(Xc.T @ (w1 * e)) + lam1 * beta
-    grad = np.concatenate([[g_a], g_beta + centre * g_a]) if intercept else g_beta
+    grad = caller_gradient(g_a, g_beta, centre, intercept)
     residual_df(rank)
     meat_z = None
     if covariance != "classical":
