@@ -14,7 +14,8 @@ from ..models.lsq_qr import ILL_CONDITIONED, alias_sentences
 from ..models.lsq_scale import Units, column_exponents, exponent, to_caller
 from ..support.validate import check_flag, check_names, check_nonnegative, weight_scale
 from ..models.records import LinearFit
-from ..models.least_squares import linear_record, refuse_degenerate, residual_degrees
+from ..models.least_squares import refuse_degenerate
+from ..models.lsq_record import PathAnswer, Setting, linear_record, residual_degrees
 from ..support.linalg import condition_number, default_rank_tolerance, inverse_upper, solve_lower, solve_upper
 
 from .stream import _add, _merge_labels, _positive_rows
@@ -314,15 +315,13 @@ def least_squares_blocks(
         f"solved by TSQR (Householder R factor of each block, reduced pairwise) with {steps} "
         f"refinement step(s), residuals in extended precision; {run.passes} passes over the blocks"
     )
-    fit = {
-        "beta": beta, "b0": intercept_of(a, beta), "rank": p, "aliased": np.zeros(0, dtype=int),
-        "full_rank": True, "s": sol["s"], "xbar": centre if intercept else np.zeros(p), "G": sol["G"],
-        "cond": sol["cond"], "rss": rss, "tss": tss, "e": None, "hat": None, "meat_z": None,
-        "leverage_one_row": None, "grad": grad, "lam1": lam1, "col_exp": units.ex, "identified": None,
-        "w1": None, "iterations": 1 + steps, "solver": "tsqr", "message": message,
-    }
+    fit = PathAnswer(
+        beta=beta, b0=intercept_of(a, beta), rank=p, s=sol["s"], xbar=centre if intercept else np.zeros(p),
+        G=sol["G"], cond=sol["cond"], rss=rss, tss=tss, grad=grad, lam1=lam1, col_exp=units.ex,
+        iterations=1 + steps, solver="tsqr", message=message,
+    )
     df = residual_degrees(n_obs, k_max, "case", n_pos)
-    return linear_record(fit, units, W, n_obs, df, None, lam, intercept, names_t, "classical", "case", False, "y")
+    return linear_record(fit, units, Setting(intercept, lam), W, n_obs, df)
 
 
 def _solve_factor(R: np.ndarray, W: float, mean: np.ndarray, lo: np.ndarray, hi: np.ndarray, lam1: np.ndarray,

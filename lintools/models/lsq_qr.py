@@ -28,10 +28,11 @@ import numpy as np
 from ..support.errors import IllConditionedWarning, InputError, warn_caller
 from .lsq_coordinates import aliased_columns_of, caller_gradient, centre_in_two_parts, centred_intercept, column_floor
 from .lsq_coordinates import ridge_column_norms
+from .lsq_record import PathAnswer, refuse_leverage_one
 from .lsq_scale import column_exponents
 from ..support.linalg import condition_number, default_rank_tolerance, inverse_upper, solve_lower, solve_upper
 
-__all__ = ["qr_path", "alias_sentences", "refuse_leverage_one", "ILL_CONDITIONED"]
+__all__ = ["qr_path", "alias_sentences", "ILL_CONDITIONED"]
 
 #: Above this scaled condition number (1 / sqrt(eps)) a warning reports the digits at risk.
 ILL_CONDITIONED = 1.0 / math.sqrt(np.finfo(float).eps)
@@ -84,13 +85,6 @@ def _describe_alias(j, names, R, keep, s, ex, with_intercept):
     rhs = " ".join(parts) if parts else "0"
     const = " + constant" if with_intercept else ""
     return f"column {j} ('{names[j]}') = {rhs}{const} (numerically)"
-
-
-def refuse_leverage_one(kind: str, row: int) -> None:
-    raise InputError(
-        f"covariance='{kind}' is undefined: row {row} has leverage 1 (it alone "
-        "determines a coefficient); use covariance='HC0' or 'HC1', or drop that row"
-    )
 
 
 class _Centred:
@@ -197,13 +191,11 @@ def qr_path(Xa, y1, w1, w_case, lam_w, intercept, names_t, rank_deficient, covar
             f"{', '.join(loose)} are not identified (no standard error, t or p): only their "
             "estimable combinations are meaningful"
         )
-    return {
-        "beta": beta, "b0": b0, "rank": rank, "aliased": aliased, "full_rank": full_rank,
-        "s": s, "xbar": centre, "G": G, "cond": cond, "rss": rss, "tss": tss, "e": e, "hat": hat,
-        "meat_z": meat_z, "leverage_one_row": None, "grad": grad, "lam1": lam1, "col_exp": ex,
-        "identified": identified, "w1": w1, "iterations": 1 + refine_steps if full_rank else 1,
-        "solver": "qr", "message": message,
-    }
+    return PathAnswer(
+        beta=beta, b0=b0, rank=rank, s=s, xbar=centre, G=G, cond=cond, rss=rss, tss=tss, grad=grad, lam1=lam1,
+        col_exp=ex, iterations=1 + refine_steps if full_rank else 1, solver="qr", message=message,
+        aliased=aliased, full_rank=full_rank, e=e, hat=hat, meat_z=meat_z, identified=identified, w1=w1,
+    )
 
 
 def _centred_residual(cen: _Centred, y1, z0, beta) -> np.ndarray:
