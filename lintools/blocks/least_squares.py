@@ -259,47 +259,15 @@ def least_squares_blocks(
     part = run.reduce(_ls_factor_kernel, _ls_merge, (intercept,), (intercept,))
     p = run.spec.p
     names_t = check_names(names, p, run.names)
-    n_pos, n_rows = part["n_pos"], part["n_rows"]
-    if n_pos == 0:
-        raise InputError("weights are zero in every block; at least one row needs a positive weight")
+    n_obs, lam1 = _checked_totals(part, p, lam, intercept)
     W, R, ez, ew = part["W"], part["R"], part["ez"], part["ew"]
     c_hi, c_lo = part["mean"], part["mean_lo"]
-    off = int(intercept)
-    k_max = p + off
-    ylo, yhi = part["lo"][p], part["hi"][p]
-    refuse_degenerate(n_pos, k_max, lam, intercept, ylo == yhi, ylo, ylo == 0 and yhi == 0)
-    n_obs = float(to_caller(W, ew))
-    lam1 = to_caller(lam, -ew - 2 * ez[:p])  # the ridge on the unit coefficients
-    if not (math.isfinite(n_obs) and np.all(np.isfinite(lam1))):
-        raise InputError(
-            "the case weights add up to more than the largest float64 number, or l2 is beyond the "
-            "float64 range against weights this small; rescale the weights (case weights count "
-            "observations) or lower l2"
-        )
     units = Units(int(ez[p]), int(ew), ez[:p].astype(np.int64), names_t)
     centre = c_hi[:p] + c_lo[:p]
 
-    sol = _solve_factor(R, W, c_hi, part["lo"][:p], part["hi"][:p], lam1, intercept, names_t, n_rows, units.ex)
-    beta, a = sol["beta"], 0.0
-    ybar = _LD(c_hi[p]) + _LD(c_lo[p])
-
-    def intercept_of(a_k, beta_k):
-        return centred_intercept(ybar + _LD(a_k), c_hi[:p], c_lo[:p], beta_k) if intercept else 0.0
-
-    steps, last = 0, math.inf
-    while True:
-        res = run.reduce(_ls_residual_kernel, _add, (ez, ew, c_hi, c_lo, a, beta))
-        rho, gx = float(res["rho"]), res["gx"].astype(float)
-        dbeta = sol["solve"](gx - lam1 * beta)
-        da = rho / W if intercept else 0.0
-        # componentwise on (b, beta): an intercept far larger than the slopes must not hide their digits
-        theta = np.r_[intercept_of(a, beta), beta][1 - off :]
-        dtheta = np.r_[da - float(centre @ dbeta), dbeta][1 - off :]
-        size = float(np.max(np.abs(dtheta) / np.maximum(np.abs(theta), np.finfo(float).tiny)))
-        if size <= 4 * _EPS or steps == MAX_REFINE or size > 0.5 * last:
-            break
-        beta, a, last = beta + dbeta, a + da, size
-        steps += 1
+    sol = _solve_factor(R, W, c_hi, part["lo"][:p], part["hi"][:p], lam1, intercept, names_t, part["n_rows"], units.ex)
+    beta, a, steps, res = _refine(run, part, sol, lam1, intercept)
+    rho, gx = float(res["rho"]), res["gx"].astype(float)
     rss = float(res["rss"])
     tss = float(R[:, p] @ R[:, p])  # about the mean with an intercept, about 0 without
     g_beta = -gx + lam1 * beta
@@ -316,12 +284,65 @@ def least_squares_blocks(
         f"refinement step(s), residuals in extended precision; {run.passes} passes over the blocks"
     )
     fit = PathAnswer(
-        beta=beta, b0=intercept_of(a, beta), rank=p, s=sol["s"], xbar=centre if intercept else np.zeros(p),
-        G=sol["G"], cond=sol["cond"], rss=rss, tss=tss, grad=grad, lam1=lam1, col_exp=units.ex,
-        iterations=1 + steps, solver="tsqr", message=message,
+        beta=beta, b0=_intercept(part, a, beta) if intercept else 0.0, rank=p, s=sol["s"],
+        xbar=centre if intercept else np.zeros(p), G=sol["G"], cond=sol["cond"], rss=rss, tss=tss, grad=grad,
+        lam1=lam1, col_exp=units.ex, iterations=1 + steps, solver="tsqr", message=message,
     )
-    df = residual_degrees(n_obs, k_max, "case", n_pos)
+    df = residual_degrees(n_obs, p + int(intercept), "case", part["n_pos"])
     return linear_record(fit, units, Setting(intercept, lam), W, n_obs, df)
+
+
+def _checked_totals(part: dict, p: int, lam: float, intercept: bool) -> tuple[float, np.ndarray]:
+    """The number of observations and the ridge on the unit coefficients from the merged
+    pass-1 summary, after the refusals: no positive weight, too few rows, a constant or zero
+    response, totals beyond float64."""
+    n_pos = part["n_pos"]
+    if n_pos == 0:
+        raise InputError("weights are zero in every block; at least one row needs a positive weight")
+    ylo, yhi = part["lo"][p], part["hi"][p]
+    refuse_degenerate(n_pos, p + int(intercept), lam, intercept, ylo == yhi, ylo, ylo == 0 and yhi == 0)
+    ez, ew = part["ez"], part["ew"]
+    n_obs = float(to_caller(part["W"], ew))
+    lam1 = to_caller(lam, -ew - 2 * ez[:p])  # the ridge on the unit coefficients
+    if not (math.isfinite(n_obs) and np.all(np.isfinite(lam1))):
+        raise InputError(
+            "the case weights add up to more than the largest float64 number, or l2 is beyond the "
+            "float64 range against weights this small; rescale the weights (case weights count "
+            "observations) or lower l2"
+        )
+    return n_obs, lam1
+
+
+def _intercept(part: dict, a: float, beta: np.ndarray) -> float:
+    """``b = ybar + a - m' beta`` from the two-part means of the summary (extended precision)."""
+    p = beta.shape[0]
+    c_hi, c_lo = part["mean"], part["mean_lo"]
+    return centred_intercept(_LD(c_hi[p]) + _LD(c_lo[p]) + _LD(a), c_hi[:p], c_lo[:p], beta)
+
+
+def _refine(run: Any, part: dict, sol: dict, lam1: np.ndarray, intercept: bool) -> tuple:
+    """Residual passes at the answer and corrections until the correction is at the rounding
+    level (componentwise on ``(b, beta)``), stops shrinking, or ``MAX_REFINE`` were made.
+
+    Returns ``(beta, a, steps, sums)`` with ``sums`` those of the last pass, at the answer."""
+    W, ez, ew, c_hi, c_lo = part["W"], part["ez"], part["ew"], part["mean"], part["mean_lo"]
+    p, off = c_hi.shape[0] - 1, int(intercept)
+    centre = c_hi[:p] + c_lo[:p]
+    beta, a = sol["beta"], 0.0
+    steps, last = 0, math.inf
+    while True:
+        res = run.reduce(_ls_residual_kernel, _add, (ez, ew, c_hi, c_lo, a, beta))
+        rho, gx = float(res["rho"]), res["gx"].astype(float)
+        dbeta = sol["solve"](gx - lam1 * beta)
+        da = rho / W if intercept else 0.0
+        # componentwise on (b, beta): an intercept far larger than the slopes must not hide their digits
+        theta = np.r_[_intercept(part, a, beta) if intercept else 0.0, beta][1 - off :]
+        dtheta = np.r_[da - float(centre @ dbeta), dbeta][1 - off :]
+        size = float(np.max(np.abs(dtheta) / np.maximum(np.abs(theta), np.finfo(float).tiny)))
+        if size <= 4 * _EPS or steps == MAX_REFINE or size > 0.5 * last:
+            return beta, a, steps, res
+        beta, a, last = beta + dbeta, a + da, size
+        steps += 1
 
 
 def _solve_factor(R: np.ndarray, W: float, mean: np.ndarray, lo: np.ndarray, hi: np.ndarray, lam1: np.ndarray,
