@@ -8,20 +8,15 @@ from typing import Any, Callable, Sequence
 import numpy as np
 
 from ..support.errors import IllConditionedWarning, InputError, warn_caller
+from ..models.lsq_coordinates import aliased_columns_of, caller_gradient, centre_in_two_parts, centred_intercept
+from ..models.lsq_coordinates import column_floor, ridge_column_norms, two_sum
 from ..models.lsq_qr import ILL_CONDITIONED, alias_sentences
 from ..models.lsq_scale import Units, column_exponents, exponent, to_caller
 from ..support.validate import check_flag, check_names, check_nonnegative, weight_scale
 from ..models.records import LinearFit
-from ..models.least_squares import linear_record, residual_degrees
-from ..support.linalg import (
-    CONSTANT_TOLERANCE,
-    aliased_columns,
-    condition_number,
-    default_rank_tolerance,
-    inverse_upper,
-    solve_lower,
-    solve_upper,
-)
+from ..models.least_squares import refuse_degenerate
+from ..models.lsq_record import PathAnswer, Setting, linear_record, residual_degrees
+from ..support.linalg import condition_number, default_rank_tolerance, inverse_upper, solve_lower, solve_upper
 
 from .stream import _add, _merge_labels, _positive_rows
 from .runner import make_runner
@@ -35,13 +30,6 @@ _EPS = float(np.finfo(float).eps)
 _LD = np.longdouble
 
 
-def _two_sum(a, b):
-    """``(s, e)`` with ``s = fl(a + b)`` and ``a + b = s + e`` exactly (Knuth's TwoSum)."""
-    s = a + b
-    bb = s - a
-    return s, (a - (s - bb)) + (b - bb)
-
-
 def _factor(Z: np.ndarray, w: np.ndarray | None, intercept: bool) -> dict:
     """Weight, mean and R factor of the weighted, centred columns of ``Z`` (modified).
 
@@ -53,11 +41,7 @@ def _factor(Z: np.ndarray, w: np.ndarray | None, intercept: bool) -> dict:
     W = float(m) if w is None else float(w.sum())
     mean, lo = np.zeros(k), np.zeros(k)
     if intercept:
-        m1 = (Z.sum(axis=0) if w is None else w @ Z) / W
-        Z -= m1
-        m2 = (Z.sum(axis=0) if w is None else w @ Z) / W  # one correction of the rounded mean
-        Z -= m2
-        mean, lo = _two_sum(m1, m2)
+        mean, lo = two_sum(*centre_in_two_parts(Z, w, W))
     if w is not None:
         Z *= np.sqrt(w)[:, None]
     R = np.linalg.qr(Z, mode="r")
@@ -83,9 +67,9 @@ def _merge_factors(a: dict, b: dict, intercept: bool) -> dict:
     if intercept:
         # d = mean_b - mean_a from both parts: the rounded parts of close means cancel exactly
         b_lo = b.get("mean_lo", 0.0 * b["mean"])
-        d_hi, d_err = _two_sum(b["mean"], -a["mean"])
+        d_hi, d_err = two_sum(b["mean"], -a["mean"])
         d = d_hi + (d_err + (b_lo - lo))
-        mean, lo2 = _two_sum(a["mean"], lo + (b["W"] / W) * d)
+        mean, lo2 = two_sum(a["mean"], lo + (b["W"] / W) * d)
         lo = lo2
         rows.append(math.sqrt(a["W"] / W) * math.sqrt(b["W"]) * d[None, :])  # no overflow of W_a W_b
     R = np.linalg.qr(np.vstack(rows), mode="r")
@@ -275,62 +259,19 @@ def least_squares_blocks(
     part = run.reduce(_ls_factor_kernel, _ls_merge, (intercept,), (intercept,))
     p = run.spec.p
     names_t = check_names(names, p, run.names)
-    n_pos, n_rows = part["n_pos"], part["n_rows"]
-    if n_pos == 0:
-        raise InputError("weights are zero in every block; at least one row needs a positive weight")
+    n_obs, lam1 = _checked_totals(part, p, lam, intercept)
     W, R, ez, ew = part["W"], part["R"], part["ez"], part["ew"]
     c_hi, c_lo = part["mean"], part["mean_lo"]
-    off = int(intercept)
-    k_max = p + off
-    if lam == 0 and n_pos < k_max:
-        raise InputError(
-            f"X has {n_pos} rows with positive weight but the model has {k_max} parameters; "
-            "add rows, drop columns, or set l2 > 0"
-        )
-    ylo, yhi = part["lo"][p], part["hi"][p]
-    if intercept and ylo == yhi:
-        raise InputError(
-            f"y is constant (every row with positive weight equals {ylo:g}); there is "
-            "nothing to explain: check the target column"
-        )
-    if not intercept and ylo == 0 and yhi == 0:
-        raise InputError("y is zero on every row with positive weight; check the target column")
-    n_obs = float(to_caller(W, ew))
-    lam1 = to_caller(lam, -ew - 2 * ez[:p])  # the ridge on the unit coefficients
-    if not (math.isfinite(n_obs) and np.all(np.isfinite(lam1))):
-        raise InputError(
-            "the case weights add up to more than the largest float64 number, or l2 is beyond the "
-            "float64 range against weights this small; rescale the weights (case weights count "
-            "observations) or lower l2"
-        )
     units = Units(int(ez[p]), int(ew), ez[:p].astype(np.int64), names_t)
     centre = c_hi[:p] + c_lo[:p]
 
-    sol = _solve_factor(R, W, c_hi, part["lo"][:p], part["hi"][:p], lam1, intercept, names_t, n_rows, units.ex)
-    beta, a = sol["beta"], 0.0
-    ybar = _LD(c_hi[p]) + _LD(c_lo[p])
-
-    def intercept_of(a_k, beta_k):
-        return float(ybar + _LD(a_k) - (c_hi[:p].astype(_LD) + c_lo[:p].astype(_LD)) @ beta_k.astype(_LD)) if intercept else 0.0
-
-    steps, last = 0, math.inf
-    while True:
-        res = run.reduce(_ls_residual_kernel, _add, (ez, ew, c_hi, c_lo, a, beta))
-        rho, gx = float(res["rho"]), res["gx"].astype(float)
-        dbeta = sol["solve"](gx - lam1 * beta)
-        da = rho / W if intercept else 0.0
-        # componentwise on (b, beta): an intercept far larger than the slopes must not hide their digits
-        theta = np.r_[intercept_of(a, beta), beta][1 - off :]
-        dtheta = np.r_[da - float(centre @ dbeta), dbeta][1 - off :]
-        size = float(np.max(np.abs(dtheta) / np.maximum(np.abs(theta), np.finfo(float).tiny)))
-        if size <= 4 * _EPS or steps == MAX_REFINE or size > 0.5 * last:
-            break
-        beta, a, last = beta + dbeta, a + da, size
-        steps += 1
+    sol = _solve_factor(R, W, c_hi, part["lo"][:p], part["hi"][:p], lam1, intercept, names_t, part["n_rows"], units.ex)
+    beta, a, steps, res = _refine(run, part, sol, lam1, intercept)
+    rho, gx = float(res["rho"]), res["gx"].astype(float)
     rss = float(res["rss"])
     tss = float(R[:, p] @ R[:, p])  # about the mean with an intercept, about 0 without
     g_beta = -gx + lam1 * beta
-    grad = np.concatenate([[-rho], g_beta - centre * rho]) if intercept else g_beta
+    grad = caller_gradient(-rho, g_beta, centre, intercept)
     if sol["cond"] > ILL_CONDITIONED:
         warn_caller(
             f"the scaled design is ill-conditioned (condition number {sol['cond']:.3g}); it was solved "
@@ -342,39 +283,83 @@ def least_squares_blocks(
         f"solved by TSQR (Householder R factor of each block, reduced pairwise) with {steps} "
         f"refinement step(s), residuals in extended precision; {run.passes} passes over the blocks"
     )
-    fit = {
-        "beta": beta, "b0": intercept_of(a, beta), "rank": p, "aliased": np.zeros(0, dtype=int),
-        "full_rank": True, "s": sol["s"], "xbar": centre if intercept else np.zeros(p), "G": sol["G"],
-        "cond": sol["cond"], "rss": rss, "tss": tss, "e": None, "hat": None, "meat_z": None,
-        "leverage_one_row": None, "grad": grad, "lam1": lam1, "col_exp": units.ex, "identified": None,
-        "w1": None, "iterations": 1 + steps, "solver": "tsqr", "message": message,
-    }
-    df = residual_degrees(n_obs, k_max, "case", n_pos)
-    return linear_record(fit, units, W, n_obs, df, None, lam, intercept, names_t, "classical", "case", False, "y")
+    fit = PathAnswer(
+        beta=beta, b0=_intercept(part, a, beta) if intercept else 0.0, rank=p, s=sol["s"],
+        xbar=centre if intercept else np.zeros(p), G=sol["G"], cond=sol["cond"], rss=rss, tss=tss, grad=grad,
+        lam1=lam1, col_exp=units.ex, iterations=1 + steps, solver="tsqr", message=message,
+    )
+    df = residual_degrees(n_obs, p + int(intercept), "case", part["n_pos"])
+    return linear_record(fit, units, Setting(intercept, lam), W, n_obs, df)
+
+
+def _checked_totals(part: dict, p: int, lam: float, intercept: bool) -> tuple[float, np.ndarray]:
+    """The number of observations and the ridge on the unit coefficients from the merged
+    pass-1 summary, after the refusals: no positive weight, too few rows, a constant or zero
+    response, totals beyond float64."""
+    n_pos = part["n_pos"]
+    if n_pos == 0:
+        raise InputError("weights are zero in every block; at least one row needs a positive weight")
+    ylo, yhi = part["lo"][p], part["hi"][p]
+    refuse_degenerate(n_pos, p + int(intercept), lam, intercept, ylo == yhi, ylo, ylo == 0 and yhi == 0)
+    ez, ew = part["ez"], part["ew"]
+    n_obs = float(to_caller(part["W"], ew))
+    lam1 = to_caller(lam, -ew - 2 * ez[:p])  # the ridge on the unit coefficients
+    if not (math.isfinite(n_obs) and np.all(np.isfinite(lam1))):
+        raise InputError(
+            "the case weights add up to more than the largest float64 number, or l2 is beyond the "
+            "float64 range against weights this small; rescale the weights (case weights count "
+            "observations) or lower l2"
+        )
+    return n_obs, lam1
+
+
+def _intercept(part: dict, a: float, beta: np.ndarray) -> float:
+    """``b = ybar + a - m' beta`` from the two-part means of the summary (extended precision)."""
+    p = beta.shape[0]
+    c_hi, c_lo = part["mean"], part["mean_lo"]
+    return centred_intercept(_LD(c_hi[p]) + _LD(c_lo[p]) + _LD(a), c_hi[:p], c_lo[:p], beta)
+
+
+def _refine(run: Any, part: dict, sol: dict, lam1: np.ndarray, intercept: bool) -> tuple:
+    """Residual passes at the answer and corrections until the correction is at the rounding
+    level (componentwise on ``(b, beta)``), stops shrinking, or ``MAX_REFINE`` were made.
+
+    Returns ``(beta, a, steps, sums)`` with ``sums`` those of the last pass, at the answer."""
+    W, ez, ew, c_hi, c_lo = part["W"], part["ez"], part["ew"], part["mean"], part["mean_lo"]
+    p, off = c_hi.shape[0] - 1, int(intercept)
+    centre = c_hi[:p] + c_lo[:p]
+    beta, a = sol["beta"], 0.0
+    steps, last = 0, math.inf
+    while True:
+        res = run.reduce(_ls_residual_kernel, _add, (ez, ew, c_hi, c_lo, a, beta))
+        rho, gx = float(res["rho"]), res["gx"].astype(float)
+        dbeta = sol["solve"](gx - lam1 * beta)
+        da = rho / W if intercept else 0.0
+        # componentwise on (b, beta): an intercept far larger than the slopes must not hide their digits
+        theta = np.r_[_intercept(part, a, beta) if intercept else 0.0, beta][1 - off :]
+        dtheta = np.r_[da - float(centre @ dbeta), dbeta][1 - off :]
+        size = float(np.max(np.abs(dtheta) / np.maximum(np.abs(theta), np.finfo(float).tiny)))
+        if size <= 4 * _EPS or steps == MAX_REFINE or size > 0.5 * last:
+            return beta, a, steps, res
+        beta, a, last = beta + dbeta, a + da, size
+        steps += 1
 
 
 def _solve_factor(R: np.ndarray, W: float, mean: np.ndarray, lo: np.ndarray, hi: np.ndarray, lam1: np.ndarray,
                   intercept: bool, names: tuple[str, ...], n_rows: int, ex: np.ndarray) -> dict:
     """Coefficients, scaled inverse information and condition from the reduced R factor (units)."""
     p = R.shape[1] - 1
-    s = np.linalg.norm(R[:, :p], axis=0)
-    raw = np.hypot(s, math.sqrt(W) * mean[:p]) if intercept else s
-    tol = default_rank_tolerance(n_rows, p)
     constant = (lo == hi) if intercept else np.zeros(p, dtype=bool)
-    zero = constant | (s <= CONSTANT_TOLERANCE * raw) | (s == 0)
-    s = np.where(zero, 1.0, s)
+    zero, s = column_floor(np.linalg.norm(R[:, :p], axis=0), mean[:p], W, constant, intercept)
     A = R / np.concatenate([s, [1.0]])
     A[:, :p][:, zero] = 0.0
+    aug = None
     if np.any(lam1 > 0):
         aug = np.sqrt(lam1) / s
         A = np.vstack([A, np.hstack([np.diag(aug), np.zeros((p, 1))])])
-        col_norm = np.hypot(np.where(zero, 0.0, 1.0), aug)
-    else:
-        col_norm = np.where(zero, 0.0, 1.0)
     R2 = np.linalg.qr(A, mode="r")[: p + 1]
     Rxx = R2[:p, :p]
-    aliased = np.union1d(np.flatnonzero(zero & ~(lam1 > 0)),
-                         aliased_columns(Rxx, np.maximum(col_norm, 1e-300), tol)).astype(int)
+    aliased = aliased_columns_of(Rxx, zero, lam1 > 0, ridge_column_norms(zero, aug), default_rank_tolerance(n_rows, p))
     if aliased.size:
         raise InputError(
             alias_sentences(aliased, zero, names, Rxx, s, intercept, ex, exact=constant | (s == 0))

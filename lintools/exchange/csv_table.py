@@ -328,47 +328,12 @@ def read_table(
     """
     lay, pos, line = _read(path, delimiter, decimal, max_bytes, max_line_bytes)
     drop_missing = check_flag(drop_missing, "drop_missing")
-    where, header = lay.where, list(lay.names)
-    index = {h: j for j, h in enumerate(header)}
-    hint = _separator_hint(header, lay.delimiter.decode())
-
-    def column(name: object, role: str) -> int:
-        if not isinstance(name, str):
-            raise InputError(f"the {role} column must be named by a str; got {name!r:.80}")
-        if name not in index:
-            raise InputError(f"{role} column '{name}' is not in {where!r}; its columns are: {', '.join(header)}{hint}")
-        return index[name]
-
-    roles = ([(target, "target")] if target is not None else []) + ([(weights, "weights")] if weights is not None
-                                                                    else [])
-    roles += [(c, "extra") for c in _names(extra, "extra")]
-    for c, role in roles:
-        column(c, role)
-    special = [c for c, _ in roles]
-    if len(set(special)) != len(special):
-        dup = next(c for c in special if special.count(c) > 1)
-        raise InputError(f"column '{dup}' is named twice among the target, weights and extra columns")
-    excluded = _names(exclude, "exclude")
-    for c in excluded:
-        column(c, "excluded")
-        if c in special:
-            raise InputError(f"column '{c}' is both excluded and named as the target, weights or an extra column")
-    if features is None:
-        feats = [h for h in header if h not in special and h not in excluded]
-    else:
-        feats = _names(features, "features", ordered=True)
-        for f in feats:
-            column(f, "feature")
-            if f in special:
-                raise InputError(f"column '{f}' is named both as a feature and as the target, weights or an extra "
-                                 "column")
-            if f in excluded:
-                raise InputError(f"column '{f}' is named both as a feature and as excluded")
-        if len(set(feats)) != len(feats):
-            raise InputError(f"features names column '{next(f for f in feats if feats.count(f) > 1)}' twice")
+    cols = _ColumnNames(lay)
+    roles = cols.roles(target, weights, extra)
+    feats = cols.features(features, [c for c, _ in roles], exclude)
     declared = _names(categorical, "categorical")
     for c in declared:
-        column(c, "categorical")
+        cols.index_of(c, "categorical")
         if c not in feats and c != target:
             raise InputError(f"categorical column '{c}' is neither a feature nor the target; declare only columns "
                              "that are used")
@@ -376,20 +341,76 @@ def read_table(
     for name in refs:
         if name not in feats:
             raise InputError(f"reference level given for '{name}', which is not a feature column")
-    specs = [Spec(index[c], c, role, c in declared) for c, role in roles + [(f, "feature") for f in feats]]
-
-    missing = _missing(missing_values)
-    text_first = _text_first(lay, pos, specs, missing)
-    if any(is_number(t, lay.decimal) for t in missing):  # the compiled reader would read such a token
-        text_first |= {s.index for s in specs}
-    cols = Columns(where, specs, text_first, lay.decimal, missing, drop_missing)
-    size, start = len(lay.raw), pos
-    for piece, pos in pieces(lay, pos, line, cols.plan):
-        cols.add(piece, int((cols.rows + piece.lines.size) * (size - start) / max(pos - start, 1) * 1.01) + 16)
-    out = cols.finish(refs)
+    specs = [Spec(cols.index[c], c, role, c in declared) for c, role in roles + [(f, "feature") for f in feats]]
+    out = _read_columns(lay, pos, line, specs, _missing(missing_values), drop_missing).finish(refs)
     return Table(X=out["X"], names=out["names"], target=out["target"], weights=out["weights"],
                  extra=out["extra"], reference_levels=out["reference_levels"], lines=out["lines"],
                  dropped=out["dropped"], delimiter=lay.delimiter.decode())
+
+
+class _ColumnNames:
+    """The header's names and the checks of the column arguments against them."""
+
+    def __init__(self, lay: Layout) -> None:
+        self.where, self.header = lay.where, list(lay.names)
+        self.index = {h: j for j, h in enumerate(self.header)}
+        self.hint = _separator_hint(self.header, lay.delimiter.decode())
+
+    def index_of(self, name: object, role: str) -> int:
+        """The position of column ``name`` (an InputError naming the role when it is not a str in the header)."""
+        if not isinstance(name, str):
+            raise InputError(f"the {role} column must be named by a str; got {name!r:.80}")
+        if name not in self.index:
+            raise InputError(f"{role} column '{name}' is not in {self.where!r}; its columns are: "
+                             f"{', '.join(self.header)}{self.hint}")
+        return self.index[name]
+
+    def roles(self, target: str | None, weights: str | None, extra: Sequence[str]) -> list[tuple[str, str]]:
+        """``(name, role)`` of the target, the weights and the extra columns, each named once."""
+        roles = ([(target, "target")] if target is not None else []) + ([(weights, "weights")] if weights is not None
+                                                                        else [])
+        roles += [(c, "extra") for c in _names(extra, "extra")]
+        for c, role in roles:
+            self.index_of(c, role)
+        special = [c for c, _ in roles]
+        if len(set(special)) != len(special):
+            dup = next(c for c in special if special.count(c) > 1)
+            raise InputError(f"column '{dup}' is named twice among the target, weights and extra columns")
+        return roles
+
+    def features(self, features: Sequence[str] | None, special: list[str], exclude: Sequence[str]) -> list[str]:
+        """The feature columns: those named, or every column not ``special`` nor excluded."""
+        excluded = _names(exclude, "exclude")
+        for c in excluded:
+            self.index_of(c, "excluded")
+            if c in special:
+                raise InputError(f"column '{c}' is both excluded and named as the target, weights or an extra column")
+        if features is None:
+            return [h for h in self.header if h not in special and h not in excluded]
+        feats = _names(features, "features", ordered=True)
+        for f in feats:
+            self.index_of(f, "feature")
+            if f in special:
+                raise InputError(f"column '{f}' is named both as a feature and as the target, weights or an extra "
+                                 "column")
+            if f in excluded:
+                raise InputError(f"column '{f}' is named both as a feature and as excluded")
+        if len(set(feats)) != len(feats):
+            raise InputError(f"features names column '{next(f for f in feats if feats.count(f) > 1)}' twice")
+        return feats
+
+
+def _read_columns(lay: Layout, pos: int, line: int, specs: list[Spec], missing: frozenset[bytes],
+                  drop_missing: bool) -> Columns:
+    """The cells of the used columns after the header, converted about 1 MB at a time."""
+    text_first = _text_first(lay, pos, specs, missing)
+    if any(is_number(t, lay.decimal) for t in missing):  # the compiled reader would read such a token
+        text_first |= {s.index for s in specs}
+    cols = Columns(lay.where, specs, text_first, lay.decimal, missing, drop_missing)
+    size, start = len(lay.raw), pos
+    for piece, pos in pieces(lay, pos, line, cols.plan):
+        cols.add(piece, int((cols.rows + piece.lines.size) * (size - start) / max(pos - start, 1) * 1.01) + 16)
+    return cols
 
 
 def _text_first(lay: Layout, pos: int, specs: list[Spec], missing: frozenset[bytes]) -> set[int]:

@@ -77,12 +77,12 @@ from typing import Any, Sequence
 
 import numpy as np
 
-from ..support import distributions as dist
 from . import lsq_gram as _gram
 from ..support.errors import InputError
-from .lsq_qr import qr_path, refuse_leverage_one
-from .lsq_scale import Units, scaled_sqrt, to_caller
-from .records import Convergence, LinearFit
+from .lsq_qr import qr_path
+from .lsq_record import PathAnswer, Setting, linear_record, residual_degrees
+from .lsq_scale import Units, to_caller
+from .records import LinearFit
 from .responses import target_name
 from ..support.threads import whole_blas, with_row_threads
 from ..support.validate import (
@@ -95,7 +95,7 @@ from ..support.validate import (
     check_names,
     check_nonnegative,
 )
-from ..support.linalg import CONSTANT_TOLERANCE, unstandardise
+from ..support.linalg import CONSTANT_TOLERANCE
 
 __all__ = ["least_squares"]
 
@@ -217,230 +217,101 @@ def _fit(
     check_choice(weight_type, "weight_type", ("case", "precision"))
     check_choice(rank_deficient, "rank_deficient", ("raise", "minimum_norm"))
     check_choice(diagnostics, "diagnostics", (True, False))
-    intercept = check_flag(intercept, "intercept")
+    setting = Setting(check_flag(intercept, "intercept"), lam, covariance, weight_type, diagnostics, w)
     names_t = check_names(names, p, found)
     target = target_name(y)
 
     pos = None if w is None else w > 0
     n_pos = n if pos is None else int(pos.sum())
-    k_max = p + int(intercept)
-    if lam == 0 and n_pos < k_max:
-        raise InputError(
-            f"X has {n_pos} rows with positive weight but the model has {k_max} parameters; "
-            "add rows, drop columns, or set l2 > 0"
-        )
+    k_max = p + int(setting.intercept)
     yp = ya if pos is None else ya[pos]
-    if intercept and np.ptp(yp) == 0:
-        raise InputError(
-            f"y is constant (every row with positive weight equals {yp[0]:g}); there is "
-            "nothing to explain: check the target column"
-        )
-    if not intercept and not np.any(yp):
-        raise InputError("y is zero on every row with positive weight; check the target column")
+    refuse_degenerate(n_pos, k_max, lam, setting.intercept, bool(np.ptp(yp) == 0), yp[0], not np.any(yp))
     del yp
 
     # units: y and the weights divided by powers of two (exact); the columns get theirs on
     # the path that solves (see lintools.models.lsq_scale)
     y1, ey = Units.response(ya)
     w1, ew = Units.weights(w)
+    W1, n_obs, lam_w = _totals(n, w, w1, ew, setting, n_pos)
+
+    def residual_df(rank: int) -> float:
+        return residual_degrees(n_obs, rank + int(setting.intercept), weight_type, n_pos)
+
+    use_gram = method == "gram" or (method == "auto" and n * p > _gram.SMALL_PROBLEM)
+    fit = _solve(Xa, found, y1, w1, n_pos, lam_w, setting, names_t, rank_deficient, residual_df,
+                 use_gram and n_obs - k_max > 0, block_rows)
+    units = Units(ey, ew, fit.col_exp, names_t, target)
+    return linear_record(fit, units, setting, W1, n_obs, residual_df(fit.rank))
+
+
+def _totals(n: int, w, w1, ew: int, setting: Setting, n_pos: int) -> tuple[float, float, float]:
+    """The total unit weight, the number of observations and the ridge per unit weight;
+    an InputError when the observations or the ridge leave the float64 range."""
     W1 = float(n) if w1 is None else float(w1.sum())
-    n_obs = float(to_caller(W1, ew)) if weight_type == "case" else float(n_pos)
+    n_obs = float(to_caller(W1, ew)) if setting.case else float(n_pos)
     if not math.isfinite(n_obs):
         raise InputError(
             f"the case weights add up to more than the largest float64 number (their largest is "
             f"{float(np.max(w)):.3g}); case weights count observations: divide them by a constant, "
             "or pass weight_type='precision' for relative weights"
         )
+    lam = setting.l2
     lam_w = float(to_caller(lam, -ew))
     if not math.isfinite(lam_w):
         raise InputError(
             f"l2 = {lam:g} is beyond the float64 range against weights as small as these (largest "
             f"{float(np.max(w)):.3g}); the penalty would set every slope to 0: lower l2 or rescale the weights"
         )
+    return W1, n_obs, lam_w
 
-    def residual_df(rank: int) -> float:
-        return residual_degrees(n_obs, rank + int(intercept), weight_type, n_pos)
 
+def _solve(Xa, found, y1, w1, n_pos, lam_w, setting, names_t, rank_deficient, residual_df, try_gram,
+           block_rows) -> PathAnswer:
+    """The answer of the fast path when it is tried and certifies it, else of the QR path."""
     sol = None
-    use_gram = method == "gram" or (method == "auto" and n * p > _gram.SMALL_PROBLEM)
-    if use_gram and n_obs - k_max > 0:
+    if try_gram:
         # a NaN, an inf or an overflow shows as non-finite sums: the path then declines
         # (returns None) and the QR path names the entry, so its arithmetic warnings are noise
         with np.errstate(invalid="ignore", over="ignore", divide="ignore", under="ignore"):
             sol = _gram.solve_by_gram(
-                Xa, y1, w1, n_pos, lam_w, intercept, CONSTANT_TOLERANCE,
-                covariance=covariance, weight_type=weight_type, diagnostics=diagnostics,
-                block_rows=block_rows, case_weights=w,
+                Xa, y1, w1, n_pos, lam_w, setting.intercept, CONSTANT_TOLERANCE,
+                covariance=setting.covariance, weight_type=setting.weight_type, diagnostics=setting.diagnostics,
+                block_rows=block_rows, case_weights=setting.weights,
             )
     if sol is not None:
-        fit = _from_gram(sol)
-    else:
-        check_finite(Xa, "X", found)
-        with whole_blas():  # one LAPACK factorisation: the BLAS's own threads split it
-            fit = qr_path(
-                Xa, y1, np.ones(n) if w1 is None else w1, np.ones(n) if w is None else w, lam_w,
-                intercept, names_t, rank_deficient, covariance, weight_type, residual_df,
-            )
-    units = Units(ey, ew, fit["col_exp"], names_t, target)
-    return linear_record(fit, units, W1, n_obs, residual_df(fit["rank"]), w, lam, intercept, names_t, covariance,
-                   weight_type, diagnostics, target)
-
-
-def linear_record(fit, units, W1, n_obs, df, w, lam, intercept, names_t, covariance, weight_type, diagnostics, target):
-    """The :class:`LinearFit` of a path's answer (in the units of ``units``), in the caller's units."""
-    beta, b0, rank = fit["beta"], fit["b0"], fit["rank"]
-    s, xbar, G = fit["s"], fit["xbar"], fit["G"]
-    rss, tss, e, hat = fit["rss"], fit["tss"], fit["e"], fit["hat"]
-    p = beta.shape[0]
-    off = int(intercept)
-    k = rank + off
-    ey, ew = units.ey, units.ew
-    columns = [str(j) for j in range(p)]
-    case = weight_type == "case"
-    df_m, df_e = math.frexp(df)
-
-    # ---- summary statistics (scale-free) --------------------------------------------
-    r2 = 1.0 - rss / tss
-    adj = 1.0 - (1.0 - r2) * (n_obs - off) / df
-
-    # ---- covariance: core (unit z coordinates) times 2**es --------------------------
-    Bz = np.zeros((p + off, p + off))
-    if intercept:
-        Bz[0, 0] = 1.0 / W1
-    Bz[off:, off:] = G
-    if covariance == "classical":
-        core = (rss / df_m) * Bz
-        es = -df_e
-    else:
-        if fit["leverage_one_row"] is not None:
-            refuse_leverage_one(covariance, fit["leverage_one_row"])
-        core = Bz @ fit["meat_z"] @ Bz
-        es = -ew if case else 0
-        if covariance == "HC1":
-            core = core * (n_obs / df)
-
-    # ---- overall F: Wald F on the slopes with the chosen covariance ----------------
-    f_df1 = float(rank if intercept else k)
-    fstat = float("nan")
-    if rss > 0 and fit["full_rank"]:
-        try:
-            u = np.linalg.solve(np.linalg.cholesky(core[off:, off:]), beta * s)
-            fstat = units.check("overall F statistic", float(u @ u) / f_df1, -es,
-                                [("weights", 1.0 if case else 0.0)]).item()
-        except np.linalg.LinAlgError:
-            pass
-    elif rss > 0:
-        fstat = ((tss - rss) / f_df1) / (rss / df)
-    f_p = float(dist.f_sf(fstat, f_df1, df)) if np.isfinite(fstat) else float("nan")
-
-    # ---- the caller's units --------------------------------------------------------
-    slopes_y = [("y", 1.0)] + [(c, -1.0) for c in columns]
-    coefficients = units.check("coefficients", beta, ey - units.ex, slopes_y)
-    b0_out = units.check("intercept", b0, ey, [("y", 1.0)]).item() if intercept else 0.0
-    eth = units.theta(intercept)
-    Vt = caller_covariance(core, xbar, s, intercept)
-    weights_power = -1.0 if case else 0.0
-    V = units.check("covariance of the coefficients", Vt, es + eth[:, None] + eth[None, :],
-                    [("y", 2.0), ("weights", weights_power)] + [(c, -2.0) for c in columns])
-    se_all = scaled_sqrt(np.clip(np.diag(Vt), 0.0, None), es + 2 * eth)
-    if fit["identified"] is not None:
-        se_all = np.where(fit["identified"], se_all, np.nan)
-    lam1 = fit["lam1"]
-    rss_exp = 2 * ey + ew
-    square = [("y", 2.0), ("weights", 1.0)]
-    deviance = units.check("residual sum of squares", rss, rss_exp, square).item()
-    objective = units.check("objective", 0.5 * rss + 0.5 * float(np.sum(lam1 * beta * beta)), rss_exp, square).item()
-    rse = float(scaled_sqrt(rss / df_m, rss_exp - df_e))
-    if not math.isfinite(rse):
-        units.check("residual standard error", rss / df_m, rss_exp - df_e, square)
-    g_exp = ew + ey + np.concatenate([[0] * off, units.ex])
-    grad = units.check("gradient", fit["grad"], g_exp,
-                       [("y", 1.0), ("weights", 1.0)] + [(c, 1.0) for c in columns], underflow_ok=True)
-
-    # ---- likelihood ------------------------------------------------------------------
-    if rss > 0:
-        log_rss = math.log(rss) + rss_exp * math.log(2.0)
-        loglik = -0.5 * n_obs * (math.log(2.0 * math.pi) + log_rss - math.log(n_obs) + 1.0)
-        if not case and w is not None:
-            loglik += 0.5 * float(np.log(w[w > 0]).sum())
-        if not math.isfinite(loglik):
-            raise InputError(
-                f"the log-likelihood of this fit is beyond the float64 range ({n_obs:.3g} observations); "
-                "case weights count observations: divide them by a constant, or pass weight_type='precision'"
-            )
-    else:
-        loglik = float("inf")
-    n_par = k + 1
-    aic = -2.0 * loglik + 2.0 * n_par
-    bic = -2.0 * loglik + math.log(n_obs) * n_par
-
-    conv = Convergence(
-        converged=True,
-        iterations=fit["iterations"],
-        gradient_norm=float(np.max(np.abs(grad))) if grad.size else 0.0,
-        objective=objective,
-        solver=fit["solver"],
-        message=fit["message"],
-    )
-    leverage = cooks = None
-    if diagnostics:
-        leverage = hat.copy()
-        w1 = 1.0 if fit.get("w1") is None else fit["w1"]
-        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-            cooks = (w1 * e * e / rss) * (df / k) * hat / (1.0 - hat) ** 2
-    return LinearFit(
-        coefficients=coefficients,
-        intercept=b0_out,
-        standard_errors=se_all[off:],
-        intercept_standard_error=float(se_all[0]) if intercept else None,
-        covariance=V,
-        log_likelihood=loglik,
-        deviance=deviance,
-        aic=aic,
-        bic=bic,
-        n_observations=n_obs,
-        names=names_t,
-        convergence=conv,
-        with_intercept=intercept,
-        l2=lam,
-        residual_standard_error=rse,
-        r_squared=r2,
-        adjusted_r_squared=adj,
-        f_statistic=fstat,
-        f_p_value=f_p,
-        f_degrees_of_freedom=(f_df1, float(df)),
-        degrees_of_freedom=float(df),
-        rank=int(k),
-        covariance_type=covariance,
-        weight_type=weight_type,
-        condition_number=float(fit["cond"]),
-        aliased=tuple(names_t[j] for j in fit["aliased"]),
-        leverage=leverage,
-        cooks_distance=cooks,
-        target=target,
-    )
-
-
-def caller_covariance(Vz: np.ndarray, xbar: np.ndarray, s: np.ndarray, intercept: bool) -> np.ndarray:
-    """The covariance of ``(b, beta)`` from that of the centred, scaled coordinates
-    ``z = (b + xbar' beta, s * beta)``: ``T Vz T'`` with ``theta = T z``, symmetric to the last bit."""
-    T = unstandardise(xbar, s, intercept)
-    V = T @ Vz @ T.T
-    return 0.5 * (V + V.T)
-
-
-def residual_degrees(n_obs, k, weight_type, n_pos):
-    df = n_obs - k
-    if df <= 0:
-        raise InputError(
-            f"the model has {k} estimated parameters but only {n_obs:g} observations; the "
-            "residual variance needs more observations than parameters"
-            + (" (case weights count observations: pass weight_type='precision' for relative weights)" if weight_type == "case" and n_pos > k else "")
+        return _from_gram(sol)
+    n = Xa.shape[0]
+    w = setting.weights
+    check_finite(Xa, "X", found)
+    with whole_blas():  # one LAPACK factorisation: the BLAS's own threads split it
+        return qr_path(
+            Xa, y1, np.ones(n) if w1 is None else w1, np.ones(n) if w is None else w, lam_w,
+            setting.intercept, names_t, rank_deficient, setting.covariance, setting.weight_type, residual_df,
         )
-    return df
 
 
-def _from_gram(sol):
+def refuse_degenerate(n_pos: int, k_max: int, lam: float, intercept: bool, y_constant: bool, y_first: float,
+                      y_zero: bool) -> None:
+    """Refuse fewer rows of positive weight than parameters (without a ridge), a constant
+    response with an intercept, and a response that is zero everywhere without one.
+
+    ``y_constant``, ``y_zero``: whether the response is constant, or zero, on the rows of
+    positive weight; ``y_first``: its value on the first of them."""
+    if lam == 0 and n_pos < k_max:
+        raise InputError(
+            f"X has {n_pos} rows with positive weight but the model has {k_max} parameters; "
+            "add rows, drop columns, or set l2 > 0"
+        )
+    if intercept and y_constant:
+        raise InputError(
+            f"y is constant (every row with positive weight equals {y_first:g}); there is "
+            "nothing to explain: check the target column"
+        )
+    if not intercept and y_zero:
+        raise InputError("y is zero on every row with positive weight; check the target column")
+
+
+def _from_gram(sol) -> PathAnswer:
     """The fast path's answer in the form the record builder uses."""
     err = f"{sol.error_estimate:.1e}"
     steps = "one corrected step" if sol.steps == 1 else f"{sol.steps} corrected steps"
@@ -448,11 +319,9 @@ def _from_gram(sol):
         f"solved directly: Cholesky of the Gram matrix (semi-normal equations) with {steps} "
         f"from a subsample start, residuals in float64; estimated relative error {err}"
     )
-    return {
-        "beta": sol.beta, "b0": sol.intercept, "rank": sol.beta.shape[0], "aliased": np.zeros(0, dtype=int),
-        "full_rank": True, "s": sol.scale, "xbar": sol.mean, "G": sol.cov_scaled, "cond": sol.condition,
-        "rss": sol.rss, "tss": sol.tss, "e": sol.residuals, "hat": sol.hat, "meat_z": sol.meat_z,
-        "leverage_one_row": sol.leverage_one_row, "grad": sol.gradient, "lam1": sol.lam_vec,
-        "col_exp": sol.col_exp, "identified": None, "w1": sol.w1, "iterations": sol.steps,
-        "solver": "cholesky", "message": message,
-    }
+    return PathAnswer(
+        beta=sol.beta, b0=sol.intercept, rank=sol.beta.shape[0], s=sol.scale, xbar=sol.mean, G=sol.cov_scaled,
+        cond=sol.condition, rss=sol.rss, tss=sol.tss, grad=sol.gradient, lam1=sol.lam_vec, col_exp=sol.col_exp,
+        iterations=sol.steps, solver="cholesky", message=message, e=sol.residuals, hat=sol.hat,
+        meat_z=sol.meat_z, leverage_one_row=sol.leverage_one_row, w1=sol.w1,
+    )

@@ -81,7 +81,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..support.threads import add_up, for_rows, scratch
+from .lsq_gram_passes import first_pass, residual_pass, subsample_rows, subsample_start
 from ..support.linalg import solve_lower, solve_upper
 
 __all__ = ["GramSolution", "solve_by_gram", "default_block_rows"]
@@ -153,188 +153,6 @@ class GramSolution:
     trace: tuple = ()
 
 
-class _Blocks:
-    """Row blocks of ``X * inv - shift`` as views (no scale, no shift) or in one reusable
-    buffer; ``inv`` (powers of two, exact) is None unless a column needs rescaling."""
-
-    def __init__(self, X: np.ndarray, shift: np.ndarray | None, rows: int, inv: np.ndarray | None = None):
-        self.X = X
-        self.shift = shift
-        self.inv = inv
-        self.flat = shift is not None and X.flags.c_contiguous
-        self.tile = np.tile(shift, rows) if self.flat else None
-
-    def get(self, lo: int, hi: int, writable: bool) -> np.ndarray:
-        """The block of rows ``lo:hi``; a copy goes into a buffer of the calling thread
-        (its next block reuses it), so blocks may be formed on several threads at once."""
-        Xb = self.X[lo:hi]
-        if self.shift is None and self.inv is None and not writable:
-            return Xb
-        out = scratch("shifted", (hi - lo, self.X.shape[1]))
-        if self.inv is not None:
-            np.multiply(Xb, self.inv, out=out)
-            if self.shift is not None:
-                out -= self.shift
-        elif self.shift is None:
-            np.copyto(out, Xb)
-        elif self.flat:
-            np.subtract(Xb.reshape(-1), self.tile[: out.size], out=out.reshape(-1))
-        else:
-            np.subtract(Xb, self.shift, out=out)
-        return out
-
-
-def _first_pass(X, y, ybar, w, shift, beta0, a0, rows, inv):
-    """Pass 1: moments of the shifted columns, of ``yt``, and of the start's residual
-    (block by block on the row threads, the block sums added in row order).  The products
-    ``v' Z`` stay with the BLAS: the correction steps need their accuracy (NumPy's sum of
-    products here cost the weighted benchmark a digit, measured 12.0 -> 11.0)."""
-    n, p = X.shape
-    blocks = _Blocks(X, shift, rows, inv)
-    ones = np.ones(rows) if w is None else None  # ones @ Z: faster than Z.sum(axis=0)
-
-    def part(lo: int, hi: int) -> tuple:
-        Z = blocks.get(lo, hi, writable=w is not None)
-        yb = y[lo:hi] - ybar
-        r = yb - Z @ beta0
-        if a0:
-            r -= a0
-        if w is None:
-            return (float(hi - lo), ones[: hi - lo] @ Z, Z.T @ Z, float(r.sum()),
-                    r @ Z, float(r @ r), float(yb.sum()), float(yb @ yb))
-        wb = w[lo:hi]
-        wr = wb * r
-        wy = wb * yb
-        sums = (float(wb.sum()), wb @ Z, None, float(wr.sum()), wr @ Z,
-                float(wr @ r), float(wy.sum()), float(wy @ yb))
-        np.multiply(Z, np.sqrt(wb)[:, None], out=Z)
-        return sums[:2] + (Z.T @ Z,) + sums[3:]
-
-    parts = for_rows(part, n, rows)
-    W, sx, S, rho, gx, rss, ty, tyy = (add_up([q[k] for q in parts]) for k in range(8))
-    return float(W), sx, S, float(rho), gx, float(rss), float(ty), float(tyy)
-
-
-def _residual_pass(X, y, ybar, w, shift, beta, a, rows, *, keep_residuals, lev, meat, inv=None, case_weights=None):
-    """Residual of ``(a, beta)``: its weighted sum, cross products and square; options.
-
-    ``lev`` = (K, km, Winv) gives the leverage ``w_i |K xt_i - km|^2 + w_i Winv``;
-    ``meat`` = (kind, weight_type) accumulates ``[1, xt]' diag(m) [1, xt]``; the leverage
-    of one copy of a case-weighted row divides by its weight in ``case_weights`` (the
-    caller's, whatever the scale of ``w``).
-    """
-    n, p = X.shape
-    blocks = _Blocks(X, shift, rows, inv)
-    e = np.empty(n) if keep_residuals else None
-    hat = np.empty(n) if lev is not None else None
-
-    def part(lo: int, hi: int) -> tuple:
-        Z = blocks.get(lo, hi, writable=False)
-        r = y[lo:hi] - ybar
-        r -= Z @ beta
-        if a:
-            r -= a
-        if w is None:
-            sums = (float(r.sum()), r @ Z, float(r @ r))
-        else:
-            wr = w[lo:hi] * r
-            sums = (float(wr.sum()), wr @ Z, float(wr @ r))
-        if e is not None:
-            e[lo:hi] = r
-        if hat is not None:
-            K, km, Winv = lev
-            U = Z @ K.T
-            if km is not None:
-                U -= km
-            hb = np.einsum("ij,ij->i", U, U)
-            if Winv:
-                hb += Winv
-            if w is not None:
-                hb *= w[lo:hi]
-            hat[lo:hi] = hb
-        if meat is None:
-            return sums + (None, None)
-        kind, weight_type = meat
-        wb = np.ones(hi - lo) if w is None else w[lo:hi]
-        mm = wb * r * r if weight_type == "case" else wb * wb * r * r
-        first = None
-        if kind in ("HC2", "HC3"):
-            hb = hat[lo:hi]
-            if weight_type == "case":
-                cw = wb if case_weights is None else case_weights[lo:hi]
-                levb = np.divide(hb, cw, out=np.zeros_like(hb), where=cw > 0)
-            else:
-                levb = hb
-            bad = (wb > 0) & (levb >= 1.0 - 1e-12)
-            if bad.any():
-                first = lo + int(np.flatnonzero(bad)[0])
-            with np.errstate(divide="ignore", invalid="ignore"):
-                mm = mm / (1.0 - levb) ** (1 if kind == "HC2" else 2)
-            mm = np.where(bad, 0.0, mm)
-        Zm = scratch("meat", (hi - lo, p))
-        np.multiply(Z, np.sqrt(mm)[:, None], out=Zm)
-        Mb = np.empty((p + 1, p + 1))
-        Mb[1:, 1:] = Zm.T @ Zm
-        col = mm @ Z
-        Mb[0, 1:] = col
-        Mb[1:, 0] = col
-        Mb[0, 0] = float(mm.sum())
-        return sums + (Mb, first)
-
-    parts = for_rows(part, n, rows)
-    rho, gx, rss = (add_up([q[k] for q in parts]) for k in range(3))
-    M = add_up([q[3] for q in parts]) if meat is not None else None
-    first_one = next((q[4] for q in parts if q[4] is not None), None)
-    return float(rho), gx, float(rss), e, hat, M, first_one
-
-
-def _subsample_rows(n, w, n_pos, k):
-    """About ``k`` evenly spaced rows with positive weight."""
-    idx = np.linspace(0, n - 1, min(n, k)).astype(np.intp)  # spacing >= 1: distinct
-    if w is None:
-        return idx
-    idx = idx[w[idx] > 0]
-    if idx.size >= min(k, n_pos) // 2:
-        return idx
-    rows_pos = np.flatnonzero(w > 0)  # few positive weights: take them directly
-    return rows_pos[np.unique(np.linspace(0, rows_pos.size - 1, min(k, rows_pos.size)).astype(np.intp))]
-
-
-def _subsample_start(X, y, ybar, w, idx, intercept, lam, W, inv):
-    """Provisional centre, spread and starting values from the rows ``idx``."""
-    n, p = X.shape
-    k = idx.size
-    Xs, ys = X[idx], y[idx] - ybar
-    if inv is not None:
-        Xs = Xs * inv
-    ws = np.ones(k) if w is None else w[idx]
-    Ws = float(ws.sum())
-    if intercept:
-        xm = (ws @ Xs) / Ws
-        ym = float(ws @ ys) / Ws
-    else:
-        xm, ym = np.zeros(p), 0.0
-    A = (Xs - xm) * np.sqrt(ws)[:, None]
-    sd = np.sqrt(np.einsum("ij,ij->j", A, A) / Ws)
-    b = (ys - ym) * np.sqrt(ws)
-    beta0 = np.zeros(p)
-    if k > p:
-        # normal equations on the subsample (only a start; lstsq if they are singular)
-        G = A.T @ A
-        G[np.diag_indices(p)] += lam * (Ws / W)
-        try:
-            Ls = np.linalg.cholesky(G)
-            beta0 = solve_upper(Ls.T, solve_lower(Ls, A.T @ b))
-        except np.linalg.LinAlgError:
-            if np.any(lam > 0):
-                A = np.vstack([A, np.diag(np.sqrt(lam * (Ws / W)))])
-                b = np.concatenate([b, np.zeros(p)])
-            beta0 = np.linalg.lstsq(A, b, rcond=None)[0]
-        if not np.all(np.isfinite(beta0)):
-            beta0 = np.zeros(p)
-    return xm, sd, beta0, ym - float(xm @ beta0)
-
-
 def solve_by_gram(
     Xa: np.ndarray,
     ya: np.ndarray,
@@ -384,28 +202,108 @@ def solve_by_gram(
     n, p = Xa.shape
     rows = int(block_rows) if block_rows else default_block_rows(n, p)
     rows = max(1, min(rows, n))
-    u = UNIT_ROUNDOFF
     W_all = float(n) if w is None else float(w.sum())
     if intercept:
         ybar = (float(ya.sum()) if w is None else float(w @ ya)) / W_all
     else:
         ybar = 0.0
-    idx = _subsample_rows(n, w, n_pos, max(SUBSAMPLE_ROWS, 4 * (p + 1)))
-    _, top = np.frexp(np.max(np.abs(Xa[idx]), axis=0))
-    col_exp = np.where(np.abs(top - 1) > COLUMN_BAND, top - 1, 0).astype(np.int64)
-    inv = np.ldexp(1.0, -col_exp) if np.any(col_exp) else None
+    idx = subsample_rows(n, w, n_pos, max(SUBSAMPLE_ROWS, 4 * (p + 1)))
+    col_exp, inv = _column_units(Xa, idx)
     lam = np.ldexp(lam, -2 * col_exp)  # the ridge on the unit coefficients
     if not np.all(np.isfinite(lam)):
         return None
-    xm, sd, beta0, a0 = _subsample_start(Xa, ya, ybar, w, idx, intercept, lam, W_all, inv)
+    xm, sd, beta0, a0 = subsample_start(Xa, ya, ybar, w, idx, intercept, lam, W_all, inv)
     shift = None
     if intercept and np.any(np.abs(xm) > SHIFT_RATIO * sd):
         shift = xm.copy()
+    mo = _moments(Xa, ya, ybar, w, shift, beta0, a0, intercept, rows, inv)
+    if mo is None:
+        return None
+    fac = _factor(mo, lam, intercept, rank_tol, n, rows)
+    if fac is None:
+        return None
+    tss = mo.tyy - mo.ty * mo.ty / mo.W if intercept else mo.tyy
+    Linv = solve_lower(fac.L, np.eye(p))
+    cov_scaled = Linv.T @ Linv
+    lev = None
+    if diagnostics or covariance in ("HC2", "HC3"):
+        K = Linv / fac.s  # K xt = L^-1 D^-1 xt
+        lev = (K, K @ mo.dm if intercept else None, 1.0 / mo.W if intercept else 0.0)
+    meat = (covariance, weight_type) if covariance != "classical" else None
+    passes = _Passes(Xa, ya, ybar, w, mo.shift, rows, diagnostics, lev, meat, inv, case_weights)
+    ref = _refine(passes, mo, fac, lam, intercept, tss, n_pos)
+    if ref is None:
+        return None
+    beta_k, a_k, steps, size, trace, (rho, gx, rss, e, hat, M, first_one) = ref
+    # gradient of the objective in the original coordinates: d/db, d/dbeta
+    cross = gx + mo.shift_vec * rho if intercept else gx  # X'W r = Xt'W r + shift * rho
+    grad = np.concatenate([[-rho] if intercept else [], -cross + lam * beta_k])
+    # fitted value: ybar + a + (x - shift)'beta
+    b0 = a_k + ybar - float(mo.shift_vec @ beta_k) if intercept else 0.0
+    theta_norm = float(np.linalg.norm(beta_k * fac.s))
+    return GramSolution(
+        beta=beta_k,
+        intercept=float(b0),
+        rss=rss,
+        tss=tss,
+        cov_scaled=0.5 * (cov_scaled + cov_scaled.T),
+        condition=fac.kappa,
+        scale=fac.s,
+        mean=mo.shift_vec + mo.dm if intercept else np.zeros(p),
+        gradient=grad,
+        steps=steps,
+        error_estimate=size / theta_norm if theta_norm > 0 else size,
+        shifted=mo.shift is not None,
+        residuals=e,
+        hat=hat,
+        meat_z=None if M is None else _meat_in_z(M, mo.dm, fac.s, intercept),
+        leverage_one_row=first_one,
+        col_exp=col_exp,
+        lam_vec=lam,
+        w1=w,
+        trace=tuple(trace),
+    )
 
+
+def _column_units(Xa: np.ndarray, idx: np.ndarray) -> tuple[np.ndarray, np.ndarray | None]:
+    """Exponents of the powers of two that bring each column's largest ``|x|`` on the
+    subsample within ``2**+-COLUMN_BAND`` (0 for the others), and their inverses (None
+    when no column needs one: the blocks are then read in place)."""
+    _, top = np.frexp(np.max(np.abs(Xa[idx]), axis=0))
+    col_exp = np.where(np.abs(top - 1) > COLUMN_BAND, top - 1, 0).astype(np.int64)
+    return col_exp, (np.ldexp(1.0, -col_exp) if np.any(col_exp) else None)
+
+
+@dataclass
+class _Moments:
+    """Pass 1 (:func:`lintools.models.lsq_gram_passes.first_pass`) with the centre it was taken about: ``shift`` (None: 0)
+    and the start's intercept ``a_start`` in those coordinates; ``dm`` the weighted mean of
+    the shifted columns, ``C`` their centred Gram matrix and ``diagC`` its diagonal."""
+
+    shift: np.ndarray | None
+    shift_vec: np.ndarray
+    beta0: np.ndarray
+    a_start: float
+    W: float
+    sx: np.ndarray
+    rho: float
+    gx: np.ndarray
+    ty: float
+    tyy: float
+    dm: np.ndarray
+    C: np.ndarray
+    diagC: np.ndarray
+
+
+def _moments(Xa, ya, ybar, w, shift, beta0, a0, intercept, rows, inv) -> _Moments | None:
+    """Pass 1 about the provisional centre ``shift``, repeated once about the exact means
+    when cancellation (``1 + W m_j^2 / C_jj > CANCELLATION_MAX``) shows that centre was
+    poor (e.g. sorted rows); None when the sums overflow (the QR path scales first)."""
+    p = Xa.shape[1]
     for attempt in range(2):
         # the start is a0 + x'beta0 = (a0 + shift'beta0) + (x - shift)'beta0
         a_start = a0 + (float(shift @ beta0) if shift is not None else 0.0) if intercept else 0.0
-        W, sx, S, rho, gx, _, ty, tyy = _first_pass(Xa, ya, ybar, w, shift, beta0, a_start, rows, inv)
+        W, sx, S, rho, gx, _, ty, tyy = first_pass(Xa, ya, ybar, w, shift, beta0, a_start, rows, inv)
         shift_vec = np.zeros(p) if shift is None else shift
         if not intercept:
             dm = np.zeros(p)
@@ -420,11 +318,30 @@ def solve_by_gram(
             break
         if np.max(1.0 + W * dm * dm / diagC) <= CANCELLATION_MAX:
             break
-        # the provisional centre was poor (e.g. sorted rows): repeat with the exact means
         shift = shift_vec + dm
     if not (np.all(np.isfinite(S)) and np.all(np.isfinite(sx)) and np.all(np.isfinite(gx))):
         return None  # overflow of huge entries: the QR path scales before it multiplies
-    centre = shift_vec + dm
+    return _Moments(shift, shift_vec, beta0, a_start, W, sx, rho, gx, ty, tyy, dm, C, diagC)
+
+
+@dataclass
+class _Factor:
+    """The column scales ``s = sqrt(diag C)``, the Cholesky factor ``L`` of the scaled
+    ``Cs`` (ridge included), its singular values and the condition number ``kappa``."""
+
+    s: np.ndarray
+    L: np.ndarray
+    sv: np.ndarray
+    kappa: float
+
+
+def _factor(mo: _Moments, lam, intercept, rank_tol, n, rows) -> _Factor | None:
+    """Scale, factor and test: None when a column is constant or vanishing, the Cholesky
+    factorisation fails, or the conditioning test (``kappa <= KAPPA_MAX`` and the
+    worst-case contraction of the refinement ``<= CONTRACTION_MAX``) fails."""
+    C, diagC, W = mo.C, mo.diagC, mo.W
+    p = C.shape[0]
+    centre = mo.shift_vec + mo.dm
     raw2 = diagC + (W * centre * centre if intercept else 0.0)
     if np.any(diagC <= 0) or np.any(diagC <= (rank_tol * rank_tol) * raw2):
         return None  # a constant or vanishing column: the QR path names it
@@ -440,10 +357,42 @@ def solve_by_gram(
         return None
     kappa = float(sv[0] / sv[-1])
     n_blocks = -(-n // rows)
-    gram_error = p * (rows + n_blocks + p + 4) * u
+    gram_error = p * (rows + n_blocks + p + 4) * UNIT_ROUNDOFF
     contraction = gram_error / float(sv[-1]) ** 2
     if kappa > KAPPA_MAX or contraction > CONTRACTION_MAX:
         return None
+    return _Factor(s, L, sv, kappa)
+
+
+@dataclass
+class _Passes:
+    """The arguments of every residual pass but the point (:func:`lintools.models.lsq_gram_passes.residual_pass`)."""
+
+    X: np.ndarray
+    y: np.ndarray
+    ybar: float
+    w: np.ndarray | None
+    shift: np.ndarray | None
+    rows: int
+    keep_residuals: bool
+    lev: tuple | None
+    meat: tuple | None
+    inv: np.ndarray | None
+    case_weights: np.ndarray | None
+
+    def at(self, beta: np.ndarray, a: float) -> tuple:
+        return residual_pass(self.X, self.y, self.ybar, self.w, self.shift, beta, a, self.rows,
+                              keep_residuals=self.keep_residuals, lev=self.lev, meat=self.meat, inv=self.inv,
+                              case_weights=self.case_weights)
+
+
+def _refine(passes: _Passes, mo: _Moments, fac: _Factor, lam, intercept, tss, n_pos) -> tuple | None:
+    """The corrected step from the start, then residual passes until the correction is
+    within the certificate's floor (at most ``MAX_RESIDUAL_PASSES``; None if never).
+
+    Returns ``(beta, a, steps, size, trace, last)`` with ``last`` the last pass's sums."""
+    W, s, L, dm, sx = mo.W, fac.s, fac.L, mo.dm, mo.sx
+    u = UNIT_ROUNDOFF
 
     def correction(rho_k, gx_k, beta_k):
         rhs = gx_k - lam * beta_k
@@ -454,26 +403,15 @@ def solve_by_gram(
         da = (rho_k - float(sx @ dbeta)) / W if intercept else 0.0
         return dbeta, da, dtheta
 
-    dbeta, da, _ = correction(rho, gx, beta0)
-    beta_k = beta0 + dbeta
-    a_k = a_start + da
-    tss = tyy - ty * ty / W if intercept else tyy
-
-    Linv = solve_lower(L, np.eye(p))
-    cov_scaled = Linv.T @ Linv
-    lev = None
-    if diagnostics or covariance in ("HC2", "HC3"):
-        K = Linv / s  # K xt = L^-1 D^-1 xt
-        lev = (K, K @ dm if intercept else None, 1.0 / W if intercept else 0.0)
-    meat = (covariance, weight_type) if covariance != "classical" else None
-    norm_A = float(sv[0])
+    dbeta, da, _ = correction(mo.rho, mo.gx, mo.beta0)
+    beta_k = mo.beta0 + dbeta
+    a_k = mo.a_start + da
+    kappa, norm_A = fac.kappa, float(fac.sv[0])
     n_rows = float(max(n_pos, 1))
     trace: list[tuple[float, float]] = []
     for steps in range(1, MAX_RESIDUAL_PASSES + 1):
-        rho, gx, rss, e, hat, M, first_one = _residual_pass(
-            Xa, ya, ybar, w, shift, beta_k, a_k, rows, keep_residuals=diagnostics, lev=lev, meat=meat,
-            inv=inv, case_weights=case_weights,
-        )
+        last = passes.at(beta_k, a_k)
+        rho, gx, rss = last[:3]
         dbeta, da, dtheta = correction(rho, gx, beta_k)
         size = math.sqrt(float(dtheta @ dtheta) + (rho * rho / W if intercept else 0.0))
         floor = FLOOR_FACTOR * u * kappa * (
@@ -487,42 +425,18 @@ def solve_by_gram(
             return None
         beta_k = beta_k + dbeta
         a_k = a_k + da
-    # gradient of the objective in the original coordinates: d/db, d/dbeta
-    cross = gx + shift_vec * rho if intercept else gx  # X'W r = Xt'W r + shift * rho
-    grad = np.concatenate([[-rho] if intercept else [], -cross + lam * beta_k])
-    # fitted value: ybar + a + (x - shift)'beta
-    b0 = a_k + ybar - float(shift_vec @ beta_k) if intercept else 0.0
-    meat_z = None
-    if M is not None:
-        if intercept:
-            T = np.zeros((p + 1, p + 1))
-            T[0, 0] = 1.0
-            T[1:, 0] = -dm / s
-            T[1:, 1:] = np.diag(1.0 / s)
-            meat_z = T @ M @ T.T
-        else:
-            meat_z = M[1:, 1:] / np.outer(s, s)
-        meat_z = 0.5 * (meat_z + meat_z.T)
-    theta_norm = float(np.linalg.norm(beta_k * s))
-    return GramSolution(
-        beta=beta_k,
-        intercept=float(b0),
-        rss=rss,
-        tss=tss,
-        cov_scaled=0.5 * (cov_scaled + cov_scaled.T),
-        condition=kappa,
-        scale=s,
-        mean=centre if intercept else np.zeros(p),
-        gradient=grad,
-        steps=steps,
-        error_estimate=size / theta_norm if theta_norm > 0 else size,
-        shifted=shift is not None,
-        residuals=e,
-        hat=hat,
-        meat_z=meat_z,
-        leverage_one_row=first_one,
-        col_exp=col_exp,
-        lam_vec=lam,
-        w1=w,
-        trace=tuple(trace),
-    )
+    return beta_k, a_k, steps, size, trace, last
+
+
+def _meat_in_z(M: np.ndarray, dm: np.ndarray, s: np.ndarray, intercept: bool) -> np.ndarray:
+    """The HC meat ``[1, xt]' diag(m) [1, xt]`` in (centred intercept, scaled slopes) coordinates."""
+    p = s.shape[0]
+    if intercept:
+        T = np.zeros((p + 1, p + 1))
+        T[0, 0] = 1.0
+        T[1:, 0] = -dm / s
+        T[1:, 1:] = np.diag(1.0 / s)
+        meat_z = T @ M @ T.T
+    else:
+        meat_z = M[1:, 1:] / np.outer(s, s)
+    return 0.5 * (meat_z + meat_z.T)

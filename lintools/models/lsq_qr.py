@@ -26,18 +26,13 @@ import math
 import numpy as np
 
 from ..support.errors import IllConditionedWarning, InputError, warn_caller
+from .lsq_coordinates import aliased_columns_of, caller_gradient, centre_in_two_parts, centred_intercept, column_floor
+from .lsq_coordinates import ridge_column_norms
+from .lsq_record import PathAnswer, refuse_leverage_one
 from .lsq_scale import column_exponents
-from ..support.linalg import (
-    CONSTANT_TOLERANCE,
-    aliased_columns,
-    condition_number,
-    default_rank_tolerance,
-    inverse_upper,
-    solve_lower,
-    solve_upper,
-)
+from ..support.linalg import condition_number, default_rank_tolerance, inverse_upper, solve_lower, solve_upper
 
-__all__ = ["qr_path", "alias_sentences", "refuse_leverage_one", "ILL_CONDITIONED"]
+__all__ = ["qr_path", "alias_sentences", "ILL_CONDITIONED"]
 
 #: Above this scaled condition number (1 / sqrt(eps)) a warning reports the digits at risk.
 ILL_CONDITIONED = 1.0 / math.sqrt(np.finfo(float).eps)
@@ -92,13 +87,6 @@ def _describe_alias(j, names, R, keep, s, ex, with_intercept):
     return f"column {j} ('{names[j]}') = {rhs}{const} (numerically)"
 
 
-def refuse_leverage_one(kind: str, row: int) -> None:
-    raise InputError(
-        f"covariance='{kind}' is undefined: row {row} has leverage 1 (it alone "
-        "determines a coefficient); use covariance='HC0' or 'HC1', or drop that row"
-    )
-
-
 class _Centred:
     """Row blocks of the centred unit design ``(X / 2**ex - m1) - m2`` in extended precision."""
 
@@ -110,9 +98,6 @@ class _Centred:
 
     def block(self, lo: int, hi: int) -> np.ndarray:
         return (self.X[lo:hi].astype(_LD) * self.inv - self.m1) - self.m2
-
-    def centre(self) -> np.ndarray:
-        return self.m1 + self.m2
 
 
 def qr_path(Xa, y1, w1, w_case, lam_w, intercept, names_t, rank_deficient, covariance, weight_type, residual_df):
@@ -128,14 +113,9 @@ def qr_path(Xa, y1, w1, w_case, lam_w, intercept, names_t, rank_deficient, covar
     sw = np.sqrt(w1)
     Xc = np.ldexp(Xa, -ex)  # a new array, exact
     if intercept:
-        m1 = (w1 @ Xc) / W1
-        Xc -= m1
-        m2 = (w1 @ Xc) / W1
-        Xc -= m2
-        ybar = float(w1 @ y1) / W1
-        yc = y1 - ybar
-        dy = float(w1 @ yc) / W1
-        yc -= dy
+        m1, m2 = centre_in_two_parts(Xc, w1, W1)
+        yc = y1.copy()
+        ybar, dy = (float(v) for v in centre_in_two_parts(yc, w1, W1))
     else:
         m1, m2 = np.zeros(p), np.zeros(p)
         ybar, dy = 0.0, 0.0
@@ -143,13 +123,9 @@ def qr_path(Xa, y1, w1, w_case, lam_w, intercept, names_t, rank_deficient, covar
     centre = m1 + m2
     cen = _Centred(Xa, ex, m1, m2)
     A = Xc * sw[:, None]
-    s = np.linalg.norm(A, axis=0)
-    raw_norm = np.hypot(s, math.sqrt(W1) * centre) if intercept else s
-    tol = default_rank_tolerance(n, p)
     constant = np.ptp(Xa[pos], axis=0) == 0 if intercept else np.zeros(p, dtype=bool)
-    zero = constant | (s <= CONSTANT_TOLERANCE * raw_norm) | (s == 0)
+    zero, s = column_floor(np.linalg.norm(A, axis=0), centre, W1, constant, intercept)
     A[:, zero] = 0.0
-    s = np.where(zero, 1.0, s)
     A /= s
 
     root = np.ldexp(math.sqrt(lam_w), -ex) if lam_w > 0 else np.zeros(p)
@@ -164,13 +140,10 @@ def qr_path(Xa, y1, w1, w_case, lam_w, intercept, names_t, rank_deficient, covar
             )
         A = np.vstack([A, np.diag(aug)])
         rhs = np.concatenate([rhs_y, np.zeros(p)])
-        col_norm = np.hypot(np.where(zero, 0.0, 1.0), aug)
     else:
-        rhs = rhs_y
-        col_norm = np.where(zero, 0.0, 1.0)
+        aug, rhs = None, rhs_y
     Q, R = np.linalg.qr(A, mode="reduced")
-    aliased = np.union1d(np.flatnonzero(zero & (lam_w == 0)), aliased_columns(R, np.maximum(col_norm, 1e-300), tol))
-    aliased = aliased.astype(int)
+    aliased = aliased_columns_of(R, zero, lam_w > 0, ridge_column_norms(zero, aug), default_rank_tolerance(n, p))
     if aliased.size and rank_deficient == "raise":
         raise InputError(
             alias_sentences(aliased, zero, names_t, R, s, intercept, ex, exact=constant | (s == 0))
@@ -195,7 +168,7 @@ def qr_path(Xa, y1, w1, w_case, lam_w, intercept, names_t, rank_deficient, covar
             IllConditionedWarning,
         )
     z0 = _LD(ybar) + _LD(a)
-    b0 = float(z0 - cen.centre() @ beta.astype(_LD)) if intercept else 0.0
+    b0 = centred_intercept(z0, m1, m2, beta) if intercept else 0.0
     e = _centred_residual(cen, y1, z0, beta)
     rss = float(w1 @ (e * e))
     tss = float(w1 @ (yc * yc))
@@ -203,7 +176,7 @@ def qr_path(Xa, y1, w1, w_case, lam_w, intercept, names_t, rank_deficient, covar
     lam1 = root * root
     g_a = -float(w1 @ e)
     g_beta = -(Xc.T @ (w1 * e)) + lam1 * beta
-    grad = np.concatenate([[g_a], g_beta + centre * g_a]) if intercept else g_beta
+    grad = caller_gradient(g_a, g_beta, centre, intercept)
     residual_df(rank)
     meat_z = None
     if covariance != "classical":
@@ -218,13 +191,11 @@ def qr_path(Xa, y1, w1, w_case, lam_w, intercept, names_t, rank_deficient, covar
             f"{', '.join(loose)} are not identified (no standard error, t or p): only their "
             "estimable combinations are meaningful"
         )
-    return {
-        "beta": beta, "b0": b0, "rank": rank, "aliased": aliased, "full_rank": full_rank,
-        "s": s, "xbar": centre, "G": G, "cond": cond, "rss": rss, "tss": tss, "e": e, "hat": hat,
-        "meat_z": meat_z, "leverage_one_row": None, "grad": grad, "lam1": lam1, "col_exp": ex,
-        "identified": identified, "w1": w1, "iterations": 1 + refine_steps if full_rank else 1,
-        "solver": "qr", "message": message,
-    }
+    return PathAnswer(
+        beta=beta, b0=b0, rank=rank, s=s, xbar=centre, G=G, cond=cond, rss=rss, tss=tss, grad=grad, lam1=lam1,
+        col_exp=ex, iterations=1 + refine_steps if full_rank else 1, solver="qr", message=message,
+        aliased=aliased, full_rank=full_rank, e=e, hat=hat, meat_z=meat_z, identified=identified, w1=w1,
+    )
 
 
 def _centred_residual(cen: _Centred, y1, z0, beta) -> np.ndarray:
