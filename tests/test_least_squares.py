@@ -442,3 +442,13 @@ def test_new_rows_must_match_the_columns():
     fit = lt.least_squares(X, y)
     with pytest.raises(InputError, match="X has 2 columns but the model has 3 coefficients"):
         fit.linear_predictor(X[:, :2])
+
+
+def test_an_all_zero_column_without_intercept_is_named_as_zero():
+    # regression: the refusal said "varies only in the last digits ... aliased with the
+    # intercept" for a column of zeros in a fit without an intercept (the exactness test
+    # looked at the floored scale, never 0); source: common practice (name the true cause)
+    X = np.column_stack([np.zeros(20), np.arange(20.0)])
+    with pytest.raises(InputError, match=r"column 0 \('x1'\) is zero on every row used") as info:
+        lt.least_squares(X, 2.0 * np.arange(20.0) + 1.0, intercept=False)
+    assert "last digits" not in str(info.value) and "intercept" not in str(info.value).split(".")[0]

@@ -59,8 +59,10 @@ def alias_sentences(aliased: np.ndarray, zero: np.ndarray, names: tuple[str, ...
     lines = []
     for j in aliased:
         if zero[j] and (exact is None or exact[j]):
-            what = "the intercept" if intercept else "zero"
-            lines.append(f"column {j} ('{names[j]}') is constant on the rows used; it is aliased with {what}")
+            if intercept:
+                lines.append(f"column {j} ('{names[j]}') is constant on the rows used; it is aliased with the intercept")
+            else:
+                lines.append(f"column {j} ('{names[j]}') is zero on every row used, so nothing determines its coefficient")
         elif zero[j]:
             lines.append(
                 f"column {j} ('{names[j]}') varies only in the last digits float64 keeps of its values (its "
@@ -124,7 +126,9 @@ def qr_path(Xa, y1, w1, w_case, lam_w, intercept, names_t, rank_deficient, covar
     cen = _Centred(Xa, ex, m1, m2)
     A = Xc * sw[:, None]
     constant = np.ptp(Xa[pos], axis=0) == 0 if intercept else np.zeros(p, dtype=bool)
-    zero, s = column_floor(np.linalg.norm(A, axis=0), centre, W1, constant, intercept)
+    lengths = np.linalg.norm(A, axis=0)
+    exact = constant | (lengths == 0)  # exactly constant (with an intercept) or all zero: no rounding in it
+    zero, s = column_floor(lengths, centre, W1, constant, intercept)
     A[:, zero] = 0.0
     A /= s
 
@@ -146,7 +150,7 @@ def qr_path(Xa, y1, w1, w_case, lam_w, intercept, names_t, rank_deficient, covar
     aliased = aliased_columns_of(R, zero, lam_w > 0, ridge_column_norms(zero, aug), default_rank_tolerance(n, p))
     if aliased.size and rank_deficient == "raise":
         raise InputError(
-            alias_sentences(aliased, zero, names_t, R, s, intercept, ex, exact=constant | (s == 0))
+            alias_sentences(aliased, zero, names_t, R, s, intercept, ex, exact=exact)
             + ". Drop the aliased column(s), or pass rank_deficient='minimum_norm' for the minimum-norm solution"
         )
 
