@@ -61,6 +61,10 @@ class LinearModelProblem(DesignPasses, LargeProblemPaths):
         values are ``F / s``, its gradients and Hessians those of ``F / s``.  The solvers
         report objectives times ``s`` (the caller's); the fronts scale every
         weight-proportional output back.
+
+    ``LinearModelProblem(...)`` returns the variant for the loss and the penalty
+    (:class:`OneOutputProblem`, :class:`MultiOutputProblem`, :class:`FirthProblem`), so
+    that what depends on them is decided here, once, and not in every method.
     """
 
     #: declared capabilities (:class:`lintools.engine.contracts.Problem`): warm_start,
@@ -112,11 +116,8 @@ class LinearModelProblem(DesignPasses, LargeProblemPaths):
         self.block_rows = max(1024, _PRODUCT_BYTES // (8 * max(p, 1)))  # blocks of X' r
         v = loss.row_weights()
         total = float(v.sum())
-        #: total case weight W (of the loss's weights): the stopping rule is per unit of it.
-        #: With Firth's penalty W + k/2 (k parameters): the penalty's gradient sums hat values
-        #: whose total is k, so it weighs like k/2 observations whatever the weights' scale
-        #: (case weights of 1e-120 leave the penalty to decide the answer, and a rule per
-        #: unit of W alone would ask for the penalty's gradient below its rounding)
+        #: total case weight W (of the loss's weights): the stopping rule is per unit of it
+        #: (with Firth's penalty W + k/2, see :meth:`FirthProblem._penalty_weight`)
         self.weight_total = total + self._penalty_weight()
         c, s, finite = column_moments(X, v, self.rows, self.intercept and centre)
         if not finite:
