@@ -102,7 +102,8 @@ class LinearModelProblem(DesignPasses, LargeProblemPaths):
         weight_scale: float = 1.0,
     ) -> None:
         if bool(firth) != self.firth:
-            raise ValueError(f"{type(self).__name__} takes firth={self.firth}; make problems with LinearModelProblem(...)")
+            raise ValueError(f"a {type(self).__name__} has the wrong penalty; make problems with "
+                             "LinearModelProblem(...), which chooses the variant for the penalty")
         self.X, self.loss, self.intercept = X, loss, bool(intercept)
         self.weight_scale = float(weight_scale)
         self.l2, self.offset = float(l2) / self.weight_scale, offset
