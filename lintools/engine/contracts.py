@@ -8,7 +8,8 @@ an ``AttributeError`` at the first use instead of silently losing the shortcut.
 
 Implementations: :class:`lintools.engine.losses.BinomialLoss` and
 :class:`lintools.engine.multinomial.MultinomialLoss` (losses);
-:class:`lintools.engine.problem.LinearModelProblem` and
+:class:`lintools.engine.problem.LinearModelProblem` (its variants for one output, several
+outputs and Firth's penalty) and
 :class:`lintools.engine.affine.AffineProblem` (problems); the block fits' problems of
 :mod:`lintools.blocks` (no shortcut).
 """
