@@ -169,9 +169,6 @@ class _SoftmaxBlockProblem(_PassProblem):
         H = self.fisher_information(z)
         return H if E is None else E.T @ H @ E
 
-    def sketch_hessian(self, z: np.ndarray, E: np.ndarray | None = None) -> None:
-        return None  # every pass already reads all rows: exact Hessians throughout
-
 
 class _Indexed:
     """A runner whose passes code ``y`` as class indices and hand the kernel the class layout."""
