@@ -10,18 +10,18 @@ import numpy as np
 from ..support.errors import InputError, LintoolsError, SeparationError
 from ..engine.multinomial import MultinomialLoss
 from ..models.softmax_record import SoftmaxFit
-from ..support.scaling import caller_covariance, check_l2_scale, scaled_back
+from ..support.scaling import check_l2_scale, scaled_back
 from ..support.validate import check_names
-from ..models.inference import likelihood_fields
 from ..support.linalg import unstandardise
 from ..models.driver import (
     DEFAULT_TOL,
     ETA_LIMIT,
+    Measured,
     convergence_record,
     check_fit_settings,
     check_parameters_and_rows,
 )
-from ..models.softmax import intercept_subspace, internal_terms, reference_index, z_covariance
+from ..models.softmax import intercept_subspace, reference_index, softmax_record, z_covariance
 from ..engine import AffineProblem, Evaluation, IterationRecord, SingularMatrixError
 from ..engine.newton import newton
 
@@ -353,43 +353,22 @@ def softmax_blocks(
 def _softmax_record(problem: _SoftmaxBlockProblem, res: Any, z: np.ndarray, Vz: np.ndarray, order: np.ndarray,
                     ref: int | None, classes: tuple, totals: np.ndarray, W: float, lam: float, intercept: bool,
                     names: tuple[str, ...], passes: int) -> SoftmaxFit:
-    """The :class:`SoftmaxFit` of a converged (or stopped) blocked fit, laid out as the in-memory one."""
+    """The :class:`SoftmaxFit` of a converged (or stopped) blocked fit, by the in-memory builder.
+
+    The null deviance needs no pass: the intercept-only optimum puts each class's
+    probability at its share of the weight."""
     ev = problem.evaluate(z)
     part = problem.cache[z.tobytes()][2]
-    K, Kf, p1, p = len(classes), problem.K, problem.p1, problem.p
     scale = problem.weight_scale  # the passes' weights are the caller's / scale
-    V = caller_covariance(problem.theta_from_z_matrix(), Vz, scale, internal_terms(names, classes, order, ref, intercept),
-                          np.repeat(np.concatenate([np.full(int(intercept), np.nan), problem.s]), Kf))
-    first = 0 if ref is None else 1
-    full_t, full_se = np.zeros((p1, K)), np.zeros((p1, K))
-    full_t[:, first:] = problem.to_original(z).reshape(p1, Kf)
-    full_se[:, first:] = np.sqrt(np.clip(np.diag(V), 0.0, None)).reshape(p1, Kf)
-    if ref is None and intercept:
-        full_t[0] -= full_t[0].mean()  # the shared shift of the intercepts is not determined
-    back = np.argsort(order)
-    full_t, full_se = full_t[:, back], full_se[:, back]  # classes order
-    # covariance: internal (term-major, internal free columns) -> class-major in classes order
-    internal_col = {int(order[j]): j - first for j in range(first, K)}
-    free_sorted = [k for k in range(K) if ref is None or k != ref]
-    perm = [t * Kf + internal_col[k] for k in free_sorted for t in range(p1)]
-    Vc = V[np.ix_(perm, perm)]
     loglik = scaled_back(-float(part["value"]), scale, "log-likelihood")
     dev = -2.0 * loglik  # one-label rows: the saturated log-likelihood is 0
     total = float(totals.sum())
     if intercept:
         null_dev = -2.0 * float(np.sum((totals / scale) * np.log(totals / total)))
     else:
-        null_dev = 2.0 * (total / scale) * math.log(K)
+        null_dev = 2.0 * (total / scale) * math.log(len(classes))
     null_dev = scaled_back(null_dev, scale, "null deviance")
-    k_free = p1 * Kf - (1 if (ref is None and intercept) else 0)
-    lr_df = p * (K - 1)
-    lr = max(null_dev - dev, 0.0) if lam == 0 else float("nan")
+    measured = Measured(loglik, dev, float(W), null_dev, null_dev - dev if lam == 0 else float("nan"))
     conv = convergence_record(res, ev, problem, z, "newton", note=f"; {passes} passes over the blocks")
-    return SoftmaxFit(
-        coefficients=full_t[int(intercept):], intercept=full_t[0] if intercept else np.zeros(K),
-        standard_errors=full_se[int(intercept):], intercept_standard_error=full_se[0] if intercept else None,
-        covariance=Vc, log_likelihood=loglik, deviance=dev, n_observations=float(W), names=names, convergence=conv,
-        with_intercept=bool(intercept), l2=lam, classes=classes,
-        reference_class=None if ref is None else classes[ref], null_deviance=null_dev,
-        **likelihood_fields(loglik, k_free, float(W), lr, lr_df), has_offset=False, target="y",
-    )
+    return softmax_record(problem, z, Vz, conv, measured, classes=classes, order=order, ref=ref, names=names,
+                          lam=lam, has_offset=False, target="y")
