@@ -11,9 +11,10 @@ from ..support.errors import InputError, LintoolsError, SeparationError
 from ..models.records import LogisticFit
 from ..support.scaling import SUM_LIMIT, check_l2_scale, scaled_back, wide_column_error
 from ..support.validate import check_names
-from ..models.inference import covariance, likelihood_fields
+from ..models.inference import covariance
 from ..support.linalg import default_rank_tolerance, dependency_sentence, unstandardise
-from ..models.driver import DEFAULT_TOL, ETA_LIMIT, convergence_record, check_fit_settings
+from ..models.driver import DEFAULT_TOL, ETA_LIMIT, Measured, convergence_record, check_fit_settings
+from ..models.logistic import logistic_record
 from ..engine.losses import BinomialLoss
 from ..engine import Evaluation, IterationRecord, SingularMatrixError
 from ..engine.newton import newton
@@ -432,14 +433,12 @@ def _centres_and_scales(part: dict, intercept: bool, lam: float, names: tuple[st
 
 def _logistic_record(problem: _BlockProblem, res: Any, V: np.ndarray, W: float, seen: dict, classes: tuple,
                      lam: float, intercept: bool, names: tuple[str, ...], passes: int) -> LogisticFit:
-    """The :class:`LogisticFit` of a converged (or stopped) blocked fit."""
+    """The :class:`LogisticFit` of a converged (or stopped) blocked fit, by the in-memory builder.
+
+    The null deviance needs no pass: the intercept-only optimum is the share of the
+    successes in the total weight."""
     z = res.z
     ev, _, part = problem.cache[z.tobytes()]
-    theta = problem.to_original(z)
-    k = theta.size
-    p = k - int(intercept)
-    b = float(theta[0]) if intercept else 0.0
-    se = np.sqrt(np.clip(np.diag(V), 0.0, None))
     scale = problem.weight_scale  # the passes' weights are the caller's / scale
     loglik = scaled_back(-float(part["value"]), scale, "log-likelihood")
     dev = -2.0 * loglik  # binary rows: the saturated log-likelihood is 0
@@ -450,14 +449,10 @@ def _logistic_record(problem: _BlockProblem, res: Any, V: np.ndarray, W: float, 
     else:
         null_dev = 2.0 * (W / scale) * math.log(2.0)
     null_dev = scaled_back(null_dev, scale, "null deviance")
-    lr = max(null_dev - dev, 0.0) if lam == 0 else float("nan")
+    measured = Measured(loglik, dev, float(W), null_dev, null_dev - dev if lam == 0 else float("nan"))
     conv = convergence_record(res, ev, problem, z, "newton", note=f"; {passes} passes over the blocks")
-    return LogisticFit(
-        coefficients=theta[int(intercept):].copy(), intercept=b, standard_errors=se[int(intercept):],
-        intercept_standard_error=float(se[0]) if intercept else None, covariance=V,
-        log_likelihood=loglik, deviance=dev, n_observations=float(W), names=names, convergence=conv,
-        with_intercept=bool(intercept), l2=lam, classes=classes, positive_class=classes[1],
-        null_deviance=null_dev, **likelihood_fields(loglik, k, W, lr, p), firth=False,
-        penalised_log_likelihood=-scaled_back(ev.value, scale, "objective"),
-        grouped=False, has_offset=False, target="y",
+    return logistic_record(
+        problem, z, V, conv, measured, names=names, l2=lam, classes=classes, positive_class=classes[1], firth=False,
+        penalised_log_likelihood=-scaled_back(ev.value, scale, "objective"), grouped=False, has_offset=False,
+        target="y",
     )
