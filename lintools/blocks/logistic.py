@@ -14,7 +14,7 @@ from ..support.validate import check_names
 from ..models.inference import covariance
 from ..support.linalg import default_rank_tolerance, dependency_sentence, unstandardise
 from ..models.driver import DEFAULT_TOL, ETA_LIMIT, Measured, convergence_record, check_fit_settings
-from ..models.logistic import logistic_record
+from ..models.logistic import BinaryWatch, logistic_record
 from ..engine.losses import BinomialLoss
 from ..engine import Evaluation, IterationRecord, SingularMatrixError
 from ..engine.newton import newton
@@ -86,10 +86,8 @@ def _evaluation_kernel(X: np.ndarray, y01: np.ndarray, w: np.ndarray | None, a: 
     B[:, 0] = sw
     np.multiply(D, inv, out=B[:, 1:])
     B[:, 1:] *= sw[:, None]
-    live = loss.row_weights() > 0
-    hit = live & (((eta > ETA_LIMIT) & (y01 == 1)) | ((eta < -ETA_LIMIT) & (y01 == 0)))
-    out.update(value=value, gb=float(r.sum()), gx=D.T @ r, H=B.T @ B,
-               runaway=int(hit.sum()), top=float(np.max(np.abs(eta[hit]))) if hit.any() else 0.0)
+    runaway, top = BinaryWatch(loss, None).runaway(eta, ETA_LIMIT)  # the in-memory fit's rule
+    out.update(value=value, gb=float(r.sum()), gx=D.T @ r, H=B.T @ B, runaway=runaway, top=top)
     return out
 
 

@@ -21,7 +21,7 @@ from ..models.driver import (
     check_fit_settings,
     check_parameters_and_rows,
 )
-from ..models.softmax import intercept_subspace, reference_index, softmax_record, z_covariance
+from ..models.softmax import SoftmaxWatch, intercept_subspace, reference_index, softmax_record, z_covariance
 from ..engine import AffineProblem, Evaluation, IterationRecord, SingularMatrixError
 from ..engine.newton import newton
 
@@ -86,15 +86,8 @@ def _evaluation_kernel(X: np.ndarray, codes: np.ndarray, w: np.ndarray | None, i
             H[:, k, :, m] = G
             if m != k:
                 H[:, m, :, k] = G.T
-    E = loss.full(eta)
-    rows = np.arange(E.shape[0])
-    own = E[rows, icodes]
-    others = E.copy()
-    others[rows, icodes] = -np.inf
-    margin = own - others.max(axis=1)
-    hit = (loss.row_weights() > 0) & (margin > ETA_LIMIT)
-    out.update(value=value, gb=R.sum(axis=0), gx=D.T @ R, H=H.reshape(p1 * Kf, p1 * Kf),
-               runaway=int(hit.sum()), top=float(margin[hit].max()) if hit.any() else 0.0)
+    runaway, top = SoftmaxWatch(loss, None).runaway(eta, ETA_LIMIT)  # the in-memory fit's rule
+    out.update(value=value, gb=R.sum(axis=0), gx=D.T @ R, H=H.reshape(p1 * Kf, p1 * Kf), runaway=runaway, top=top)
     return out
 
 

@@ -201,8 +201,12 @@ class Watch:
     def describe(self, count: int, limit: float, top: float) -> str:
         return self.RUNAWAY.format(count=count, limit=limit, top=top)
 
+    def rows(self, z: np.ndarray, ev: Evaluation) -> tuple[int, float]:
+        """The rows beyond :data:`ETA_LIMIT` at the evaluation ``ev`` of ``z``: (count, largest)."""
+        return self.runaway(ev.eta, ETA_LIMIT)
+
     def __call__(self, z: np.ndarray, ev: Evaluation) -> str | None:
-        count, top = self.runaway(ev.eta, ETA_LIMIT)
+        count, top = self.rows(z, ev)
         return self.describe(count, ETA_LIMIT, top) if count else None
 
 

@@ -55,7 +55,7 @@ from ..engine.losses import BinomialLoss
 from ..engine import IterationRecord, LinearModelProblem
 from ..engine.newton import newton
 
-__all__ = ["logistic", "logistic_record"]
+__all__ = ["BinaryWatch", "logistic", "logistic_record"]
 
 REMEDIES = (
     "Remedies: firth=True (Firth's bias-reduced estimates, finite under separation) or "
@@ -63,7 +63,7 @@ REMEDIES = (
 )
 
 
-class _Watch(Watch):
+class BinaryWatch(Watch):
     """Divergence monitor of the binary family: rows whose linear predictor runs off on
     the side of their outcome."""
 
@@ -103,7 +103,7 @@ class BinaryFamily:
         self.Xa, self.loss, self.offset, self.names = Xa, loss, offset, names
         self.intercept, self.lam, self.firth = intercept, lam, firth
         self.size = Xa.size
-        self.watch = _Watch(loss, offset) if (lam == 0 and not firth) else None
+        self.watch = BinaryWatch(loss, offset) if (lam == 0 and not firth) else None
 
     def terms(self) -> tuple[str, ...]:
         return (("(intercept)",) if self.intercept else ()) + tuple(self.names)

@@ -55,7 +55,7 @@ from .driver import (
 from ..engine import AffineProblem, IterationRecord, LinearModelProblem, inverse_spd
 from ..engine.newton import newton
 
-__all__ = ["softmax", "softmax_record"]
+__all__ = ["SoftmaxWatch", "softmax", "softmax_record"]
 
 SEPARATION_REMEDY = "Remedy: l2 > 0 (a ridge penalty on the slopes gives finite estimates)"
 SYMMETRIC_REMEDY = "pass l2 > 0, or reference='first' (or a class label) to pin one class at zero"
@@ -78,7 +78,7 @@ def reference_index(reference: Any, classes: tuple, lam: float) -> int | None:
                      "name one of the classes")
 
 
-class _Watch(Watch):
+class SoftmaxWatch(Watch):
     """Divergence monitor: rows whose own class leads every other by more than ETA_LIMIT.
 
     A row's lead is at most the spread of its linear predictor (its largest entry less its
@@ -143,7 +143,7 @@ class SoftmaxFamily:
         self.Xa, self.loss, self.offset, self.names = Xa, loss, offset, names
         self.intercept, self.lam, self.classes, self.order = intercept, lam, classes, order
         self.size = Xa.size * len(classes)
-        self.watch = _Watch(loss, offset) if lam == 0 else None
+        self.watch = SoftmaxWatch(loss, offset) if lam == 0 else None
 
     def exact_check(self) -> Any:
         return _exact_check(self.Xa, self.order[self.loss.codes], self.classes, self.loss.weights, self.intercept,
