@@ -7,12 +7,11 @@ from typing import Any, Callable, Sequence
 
 import numpy as np
 
-from ..support.errors import InputError, LintoolsError, SeparationError
+from ..support.errors import InputError
 from ..engine.multinomial import MultinomialLoss
 from ..models.softmax_record import SoftmaxFit
 from ..support.scaling import check_l2_scale, scaled_back
 from ..support.validate import check_names
-from ..support.linalg import unstandardise
 from ..models.driver import (
     DEFAULT_TOL,
     ETA_LIMIT,
@@ -21,15 +20,21 @@ from ..models.driver import (
     check_fit_settings,
     check_parameters_and_rows,
 )
-from ..models.softmax import SoftmaxWatch, intercept_subspace, reference_index, softmax_record, z_covariance
-from ..engine import AffineProblem, Evaluation, IterationRecord, SingularMatrixError
-from ..engine.newton import newton
+from ..models.softmax import (
+    SEPARATION_REMEDY,
+    SoftmaxWatch,
+    intercept_subspace,
+    reference_index,
+    softmax_record,
+    z_covariance,
+)
+from ..engine import AffineProblem, Evaluation, IterationRecord
 
 from .stream import COLLECT_ALL, ClassIndex, _merge_labels
 from .runner import make_runner
-from .logistic import _PassProblem, _centres_and_scales, centred_block, merge_design, weights_scale
+from .logistic import _design_kernel as _binary_design_kernel, merge_design
 from .least_squares import in_caller_units
-from .logistic import _design_kernel as _binary_design_kernel
+from .passes import _PassProblem, centred_block, centres_and_scales, solve_passes, weights_scale
 
 __all__ = ["softmax_blocks"]
 
@@ -92,53 +97,23 @@ def _evaluation_kernel(X: np.ndarray, codes: np.ndarray, w: np.ndarray | None, i
 
 
 class _SoftmaxBlockProblem(_PassProblem):
-    """The softmax objective as a solver problem whose every evaluation is one pass.
-
-    Coordinates as in :class:`lintools.engine.LinearModelProblem` with ``K'`` outputs:
-    ``z`` is the ``(p+1, K')`` array ``(a; G)`` flattened row by row, ``B = G / s`` and
-    ``b = a - c' B``.  Evaluations (with their information) are cached by ``z``; a
-    line-search trial evaluates its point, so an accepted full step costs one pass.
-    """
+    """The softmax objective as a solver problem whose every evaluation is one pass, with
+    ``K'`` outputs in the coordinates of :class:`lintools.blocks.passes._PassProblem`
+    (whose arguments it takes); the ridge's diagonal is kept as ``pen``."""
 
     kernel = staticmethod(_evaluation_kernel)
 
-    def __init__(self, run: Any, c: np.ndarray, s: np.ndarray, intercept: bool, lam: float, Kf: int,
-                 a_start: np.ndarray, weight_scale: float, weight_total: float) -> None:
-        self.run, self.c, self.s = run, c, s
-        self.weight_scale, self.weight_total = weight_scale, weight_total
-        self.intercept, self.l2, self.first_slope = intercept, lam / weight_scale, int(intercept)
-        self.p = c.shape[0]
-        self.p1 = self.p + self.first_slope
-        self.K = Kf
-        self.size = self.p1 * Kf
-        self.a_start = a_start
-        pen = np.zeros((self.p1, Kf))
+    def __init__(self, *args: Any) -> None:
+        super().__init__(*args)
+        pen = np.zeros((self.p1, self.K))
         if self.l2:
-            pen[self.first_slope :] = ((self.l2 / s) / s)[:, None]  # no overflow of s^2
+            pen[self.first_slope :] = ((self.l2 / self.s) / self.s)[:, None]  # no overflow of s^2
         self.pen = pen.ravel()
-        self.cache: dict[bytes, tuple] = {}
 
     def centred(self, z: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """``(a, B)``: the intercepts of the centred columns and the slopes."""
         Z = z.reshape(self.p1, self.K)
         return (Z[0].copy() if self.intercept else np.zeros(self.K)), Z[self.first_slope :] / self.s[:, None]
-
-    def coefficients(self, z: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        a, B = self.centred(z)
-        return (a - self.c @ B if self.intercept else a), B
-
-    def to_original(self, z: np.ndarray) -> np.ndarray:
-        b, B = self.coefficients(z)
-        return np.vstack([b, B]).ravel() if self.intercept else B.ravel()
-
-    def theta_from_z_matrix(self) -> np.ndarray:
-        return unstandardise(self.c, self.s, self.intercept, self.K)
-
-    def start(self) -> np.ndarray:
-        z = np.zeros(self.size)
-        if self.intercept:
-            z[: self.K] = self.a_start
-        return z
 
     def _store(self, z: np.ndarray, part: dict) -> Evaluation | None:
         if not part["finite"]:
@@ -157,10 +132,6 @@ class _SoftmaxBlockProblem(_PassProblem):
         value = part["value"] + (0.5 * self.l2 * float(np.sum(B * B)) if self.l2 else 0.0)
         ev = Evaluation(float(value), gz, original, None, gz / self.weight_total)  # the in-memory stopping rule
         return self._remember(z, ev, H, part)
-
-    def hessian(self, z: np.ndarray, E: np.ndarray | None = None) -> np.ndarray:
-        H = self.fisher_information(z)
-        return H if E is None else E.T @ H @ E
 
 
 class _Indexed:
@@ -296,7 +267,7 @@ def softmax_blocks(
     ref = reference_index(reference, classes, lam)
     if lam == 0:
         check_parameters_and_rows(p + int(intercept), int(part["n_pos"]))
-    c, s = _centres_and_scales(part, intercept, lam, names_t)
+    c, s = centres_and_scales(part, intercept, lam, names_t)
 
     # internal class order: the reference class first, the others in classes order
     order = np.arange(K) if ref is None else np.array([ref] + [k for k in range(K) if k != ref])
@@ -313,32 +284,11 @@ def softmax_blocks(
         E = intercept_subspace(problem)
         target = AffineProblem(problem, np.zeros(problem.size), E)
         start = E.T @ problem.start()
-
-    def monitor(z, ev):
-        count, top = problem.runaway(z)
-        if count:
-            return (f"{count} row(s) have their own class ahead of every other by more than {ETA_LIMIT:g} "
-                    f"in the linear predictor (up to {top:.3g})")
-        return None
-
-    res = newton(target, tol=tol, max_iter=max_iter, on_iteration=on_iteration,
-                 monitor=monitor if lam == 0 else None, start=start)
-    if res.status == "diverging":
-        raise SeparationError(
-            f"the fit diverges: after {res.iterations} iteration(s) {res.message.split(': ', 1)[1]}: the classes "
-            "appear separated, so the maximum-likelihood estimate does not exist (Albert & Anderson 1984). The "
-            "exact check (a linear programme) needs all rows at once and is not run on blocks. "
-            "Remedy: l2 > 0 (a ridge penalty on the slopes gives finite estimates)"
-        )
-    ill = ("the design is full rank but too ill-conditioned for the fitted weights; rescale or drop nearly "
-           "collinear columns, or set l2 > 0")
-    if res.status == "singular":
-        raise LintoolsError(f"{res.message}: {ill}")
-    z = target.embed(res.z) if target is not problem else res.z
-    try:
-        Vz = z_covariance(problem, target, z)
-    except SingularMatrixError:
-        raise LintoolsError(f"the information matrix is singular at the answer: {ill}") from None
+    res, z, Vz = solve_passes(
+        problem, lambda z: z_covariance(problem, target, z), SoftmaxWatch, separated="separated",
+        exact="a linear programme", remedies=SEPARATION_REMEDY, lam=lam, tol=tol, max_iter=max_iter,
+        on_iteration=on_iteration, target=target, start=start,
+    )
     return _softmax_record(problem, res, z, Vz, order, ref, classes, totals, part["W"], lam, intercept,
                            names_t, run.passes)
 
