@@ -15,7 +15,7 @@ import numpy as np
 
 from ..support.errors import InputError, SeparationError
 from ..support.scaling import SUM_LIMIT, wide_column_error
-from ..support.linalg import default_rank_tolerance, dependency_sentence, unstandardise
+from ..support.linalg import column_scales, default_rank_tolerance, dependency_sentence, unstandardise
 from ..models.driver import Watch, ill_conditioned
 from ..engine import Evaluation, SingularMatrixError
 from ..engine.newton import newton
@@ -226,7 +226,7 @@ def centres_and_scales(part: dict, intercept: bool, lam: float, names: tuple[str
     with np.errstate(over="ignore", under="ignore"):
         # without an intercept: the root mean square, as LinearModelProblem
         sd = np.ldexp(norms / math.sqrt(part["W_units"]), part["ez"])
-    s = np.where((sd > 1e-13 * np.abs(c)) & (sd > 0) & np.isfinite(sd), sd, 1.0)
+    s = column_scales(sd, c)  # the floor of the in-memory problem (LinearModelProblem)
     # the kernels' sums (X - c)' r: |x - c| <= 2 top and |r| sums to at most W / wmax (the
     # weights divided by the largest), so below SUM_LIMIT (1/8 of float64's largest) no overflow
     top = np.maximum(np.abs(part["hi"]), np.abs(part["lo"]))
