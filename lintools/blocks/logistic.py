@@ -12,7 +12,7 @@ from ..models.records import LogisticFit
 from ..support.scaling import check_l2_scale, scaled_back
 from ..support.validate import check_names
 from ..models.inference import covariance
-from ..models.driver import DEFAULT_TOL, ETA_LIMIT, Measured, convergence_record, check_fit_settings
+from ..models.driver import DEFAULT_TOL, ETA_LIMIT, check_fit_settings
 from ..models.logistic import BinaryWatch, logistic_record
 from ..engine.losses import BinomialLoss
 from ..engine import Evaluation, IterationRecord
@@ -20,7 +20,7 @@ from ..engine import Evaluation, IterationRecord
 from .stream import _check_two
 from .runner import make_runner
 from .least_squares import _ls_factor_kernel, _ls_merge, in_caller_units
-from .passes import _PassProblem, centred_block, centres_and_scales, solve_passes, weights_scale
+from .passes import _PassProblem, answer, centred_block, centres_and_scales, solve_passes, weights_scale
 
 
 def _design_kernel(X: np.ndarray, labels: dict, w: np.ndarray | None, intercept: bool) -> dict:
@@ -248,22 +248,16 @@ def _logistic_record(problem: _BlockProblem, res: Any, V: np.ndarray, W: float, 
 
     The null deviance needs no pass: the intercept-only optimum is the share of the
     successes in the total weight."""
-    z = res.z
-    ev, _, part = problem.cache[z.tobytes()]
     scale = problem.weight_scale  # the passes' weights are the caller's / scale
-    loglik = scaled_back(-float(part["value"]), scale, "log-likelihood")
-    dev = -2.0 * loglik  # binary rows: the saturated log-likelihood is 0
     S1 = seen[classes[1]][2]
     S0 = W - S1
     if intercept:
         null_dev = -2.0 * ((S1 / scale) * math.log(S1 / W) + (S0 / scale) * math.log(S0 / W))
     else:
         null_dev = 2.0 * (W / scale) * math.log(2.0)
-    null_dev = scaled_back(null_dev, scale, "null deviance")
-    measured = Measured(loglik, dev, float(W), null_dev, null_dev - dev if lam == 0 else float("nan"))
-    conv = convergence_record(res, ev, problem, z, "newton", note=f"; {passes} passes over the blocks")
+    ev, measured, conv = answer(problem, res, res.z, null_dev, W, lam, passes)
     return logistic_record(
-        problem, z, V, conv, measured, names=names, l2=lam, classes=classes, positive_class=classes[1], firth=False,
-        penalised_log_likelihood=-scaled_back(ev.value, scale, "objective"), grouped=False, has_offset=False,
-        target="y",
+        problem, res.z, V, conv, measured, names=names, l2=lam, classes=classes, positive_class=classes[1],
+        firth=False, penalised_log_likelihood=-scaled_back(ev.value, scale, "objective"), grouped=False,
+        has_offset=False, target="y",
     )

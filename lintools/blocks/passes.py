@@ -14,9 +14,10 @@ from typing import Any, Callable
 import numpy as np
 
 from ..support.errors import InputError, SeparationError
-from ..support.scaling import SUM_LIMIT, wide_column_error
+from ..support.scaling import SUM_LIMIT, scaled_back, wide_column_error
 from ..support.linalg import column_scales, default_rank_tolerance, dependency_sentence, unstandardise
-from ..models.driver import Watch, ill_conditioned
+from ..models.driver import Measured, Watch, convergence_record, ill_conditioned
+from ..models.records import Convergence
 from ..engine import Evaluation, SingularMatrixError
 from ..engine.newton import newton
 
@@ -196,6 +197,22 @@ def solve_passes(problem: _PassProblem, covariance: Callable[[np.ndarray], np.nd
     except SingularMatrixError:
         raise ill_conditioned("the information matrix is singular at the answer") from None
     return res, z, V
+
+
+def answer(problem: _PassProblem, res: Any, z: np.ndarray, null_deviance: float, n_observations: float, lam: float,
+           passes: int) -> tuple[Evaluation, Measured, Convergence]:
+    """At the answer ``z``: the evaluation, the likelihood figures in the caller's weights
+    (``null_deviance`` in the passes' weights, from the class totals: the intercept-only
+    optimum needs no pass) and the convergence record, which counts the passes."""
+    ev = problem.evaluate(z)
+    part = problem.cache[z.tobytes()][2]
+    scale = problem.weight_scale  # the passes' weights are the caller's / scale
+    loglik = scaled_back(-float(part["value"]), scale, "log-likelihood")
+    dev = -2.0 * loglik  # one label per row: the saturated log-likelihood is 0
+    null_dev = scaled_back(null_deviance, scale, "null deviance")
+    measured = Measured(loglik, dev, float(n_observations), null_dev, null_dev - dev if lam == 0 else float("nan"))
+    conv = convergence_record(res, ev, problem, z, "newton", note=f"; {passes} passes over the blocks")
+    return ev, measured, conv
 
 
 def centres_and_scales(part: dict, intercept: bool, lam: float, names: tuple[str, ...]) -> tuple[np.ndarray, np.ndarray]:

@@ -10,13 +10,11 @@ import numpy as np
 from ..support.errors import InputError
 from ..engine.multinomial import MultinomialLoss
 from ..models.softmax_record import SoftmaxFit
-from ..support.scaling import check_l2_scale, scaled_back
+from ..support.scaling import check_l2_scale
 from ..support.validate import check_names
 from ..models.driver import (
     DEFAULT_TOL,
     ETA_LIMIT,
-    Measured,
-    convergence_record,
     check_fit_settings,
     check_parameters_and_rows,
 )
@@ -34,7 +32,7 @@ from .stream import COLLECT_ALL, ClassIndex, _merge_labels
 from .runner import make_runner
 from .logistic import _design_kernel as _binary_design_kernel, merge_design
 from .least_squares import in_caller_units
-from .passes import _PassProblem, centred_block, centres_and_scales, solve_passes, weights_scale
+from .passes import _PassProblem, answer, centred_block, centres_and_scales, solve_passes, weights_scale
 
 __all__ = ["softmax_blocks"]
 
@@ -300,18 +298,12 @@ def _softmax_record(problem: _SoftmaxBlockProblem, res: Any, z: np.ndarray, Vz: 
 
     The null deviance needs no pass: the intercept-only optimum puts each class's
     probability at its share of the weight."""
-    ev = problem.evaluate(z)
-    part = problem.cache[z.tobytes()][2]
     scale = problem.weight_scale  # the passes' weights are the caller's / scale
-    loglik = scaled_back(-float(part["value"]), scale, "log-likelihood")
-    dev = -2.0 * loglik  # one-label rows: the saturated log-likelihood is 0
     total = float(totals.sum())
     if intercept:
         null_dev = -2.0 * float(np.sum((totals / scale) * np.log(totals / total)))
     else:
         null_dev = 2.0 * (total / scale) * math.log(len(classes))
-    null_dev = scaled_back(null_dev, scale, "null deviance")
-    measured = Measured(loglik, dev, float(W), null_dev, null_dev - dev if lam == 0 else float("nan"))
-    conv = convergence_record(res, ev, problem, z, "newton", note=f"; {passes} passes over the blocks")
+    _, measured, conv = answer(problem, res, z, null_dev, W, lam, passes)
     return softmax_record(problem, z, Vz, conv, measured, classes=classes, order=order, ref=ref, names=names,
                           lam=lam, has_offset=False, target="y")
