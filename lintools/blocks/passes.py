@@ -16,7 +16,7 @@ import numpy as np
 from ..support.errors import InputError, SeparationError
 from ..support.scaling import SUM_LIMIT, scaled_back, wide_column_error
 from ..support.linalg import column_scales, default_rank_tolerance, dependency_sentence, unstandardise
-from ..models.driver import Measured, Watch, convergence_record, ill_conditioned
+from ..models.driver import Measured, Watch, constant_column_error, convergence_record, ill_conditioned
 from ..models.records import Convergence
 from ..engine import Evaluation, SingularMatrixError
 from ..engine.newton import newton
@@ -226,11 +226,7 @@ def centres_and_scales(part: dict, intercept: bool, lam: float, names: tuple[str
     if intercept and p and lam == 0:
         const = np.flatnonzero(part["lo"] == part["hi"])
         if const.size:
-            j = int(const[0])
-            raise InputError(
-                f"X column {j} ('{names[j]}') is constant on the rows used; it is aliased with the "
-                "intercept: drop it, or pass intercept=False"
-            )
+            raise constant_column_error(int(const[0]), names[int(const[0])])
     top = np.max(np.abs(R), axis=0) if R.size else np.zeros(p)
     safe = np.where(top > 0, top, 1.0)
     norms = np.linalg.norm(R / safe, axis=0) * safe  # no overflow or underflow of the squares

@@ -60,7 +60,7 @@ from ..engine.base import MEASURED, converged_message, limit_message
 from .records import Convergence
 
 __all__ = ["DEFAULT_TOL", "ETA_LIMIT", "ETA_SUSPECT", "MOVE_SUSPECT", "EXACT_CHECK_ENTRIES", "Family", "Solved",
-           "Measured", "Watch", "check_fit_settings", "check_parameters_and_rows", "checked_problem", "constant_columns",
+           "Measured", "Watch", "check_fit_settings", "check_parameters_and_rows", "checked_problem", "constant_column_error", "constant_columns",
            "convergence_record", "final_evaluation", "ill_conditioned", "likelihood_summary", "lr_statistic", "rank_message",
            "run_with_check", "solve_family", "unless_scipy_missing"]
 
@@ -134,10 +134,15 @@ def constant_columns(Xa: np.ndarray, use: np.ndarray, names: tuple[str, ...],
     const = cols[np.max(rows, axis=0) == np.min(rows, axis=0)]
     if const.size:
         j = int(const[0])
-        raise InputError(
-            f"X column {j} ('{names[j]}') is constant on the rows used; it is aliased with the "
-            "intercept: drop it, or pass intercept=False"
-        )
+        raise constant_column_error(j, names[j])
+
+
+def constant_column_error(column: int, name: str) -> InputError:
+    """The error of a column constant on the rows used (aliased with the intercept)."""
+    return InputError(
+        f"X column {column} ('{name}') is constant on the rows used; it is aliased with the "
+        "intercept: drop it, or pass intercept=False"
+    )
 
 
 def rank_message(Xa: np.ndarray, v: np.ndarray, intercept: bool, names: tuple[str, ...]) -> str | None:
