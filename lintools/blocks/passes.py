@@ -171,8 +171,8 @@ class PassWatch(Watch):
 
 def solve_passes(problem: _PassProblem, covariance: Callable[[np.ndarray], np.ndarray], family_watch: type[Watch],
                  *, separated: str, exact: str, remedies: str, lam: float, tol: float, max_iter: int,
-                 on_iteration: Any, target: Any = None, start: np.ndarray | None = None) -> tuple[Any, np.ndarray,
-                                                                                                    np.ndarray]:
+                 on_iteration: Any, target: Any = None,
+                 start: np.ndarray | None = None) -> tuple[Any, np.ndarray, np.ndarray]:
     """Newton on a blocked problem (through ``target``, an affine restriction of it, when
     given) with the family's divergence watch when unpenalised; ``(result, z, covariance)``.
 
