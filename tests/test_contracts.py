@@ -8,7 +8,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from lintools.blocks.logistic import _BlockLine, _PassProblem
+from lintools.blocks.passes import _BlockLine, _PassProblem
 from lintools.engine import AffineProblem, LinearModelProblem
 from lintools.engine.contracts import Line, Loss, Problem
 from lintools.engine.losses import BinomialLoss

@@ -7,29 +7,32 @@ from typing import Any, Callable, Sequence
 
 import numpy as np
 
-from ..support.errors import InputError, LintoolsError, SeparationError
+from ..support.errors import InputError
 from ..engine.multinomial import MultinomialLoss
 from ..models.softmax_record import SoftmaxFit
-from ..support.scaling import caller_covariance, check_l2_scale, scaled_back
+from ..support.scaling import check_l2_scale
 from ..support.validate import check_names
-from ..models.inference import likelihood_fields
-from ..support.linalg import unstandardise
 from ..models.driver import (
     DEFAULT_TOL,
     ETA_LIMIT,
-    convergence_record,
     check_fit_settings,
     check_parameters_and_rows,
 )
-from ..models.softmax import intercept_subspace, internal_terms, reference_index, z_covariance
-from ..engine import AffineProblem, Evaluation, IterationRecord, SingularMatrixError
-from ..engine.newton import newton
+from ..models.softmax import (
+    SEPARATION_REMEDY,
+    SoftmaxWatch,
+    intercept_subspace,
+    reference_index,
+    softmax_record,
+    z_covariance,
+)
+from ..engine import AffineProblem, Evaluation, IterationRecord
 
 from .stream import COLLECT_ALL, ClassIndex, _merge_labels
 from .runner import make_runner
-from .logistic import _PassProblem, _centres_and_scales, centred_block, merge_design, weights_scale
+from .logistic import _design_kernel as _binary_design_kernel, merge_design
 from .least_squares import in_caller_units
-from .logistic import _design_kernel as _binary_design_kernel
+from .passes import _PassProblem, answer, centred_block, centres_and_scales, solve_passes, weights_scale
 
 __all__ = ["softmax_blocks"]
 
@@ -86,66 +89,29 @@ def _evaluation_kernel(X: np.ndarray, codes: np.ndarray, w: np.ndarray | None, i
             H[:, k, :, m] = G
             if m != k:
                 H[:, m, :, k] = G.T
-    E = loss.full(eta)
-    rows = np.arange(E.shape[0])
-    own = E[rows, icodes]
-    others = E.copy()
-    others[rows, icodes] = -np.inf
-    margin = own - others.max(axis=1)
-    hit = (loss.row_weights() > 0) & (margin > ETA_LIMIT)
-    out.update(value=value, gb=R.sum(axis=0), gx=D.T @ R, H=H.reshape(p1 * Kf, p1 * Kf),
-               runaway=int(hit.sum()), top=float(margin[hit].max()) if hit.any() else 0.0)
+    runaway, top = SoftmaxWatch(loss, None).runaway(eta, ETA_LIMIT)  # the in-memory fit's rule
+    out.update(value=value, gb=R.sum(axis=0), gx=D.T @ R, H=H.reshape(p1 * Kf, p1 * Kf), runaway=runaway, top=top)
     return out
 
 
 class _SoftmaxBlockProblem(_PassProblem):
-    """The softmax objective as a solver problem whose every evaluation is one pass.
-
-    Coordinates as in :class:`lintools.engine.LinearModelProblem` with ``K'`` outputs:
-    ``z`` is the ``(p+1, K')`` array ``(a; G)`` flattened row by row, ``B = G / s`` and
-    ``b = a - c' B``.  Evaluations (with their information) are cached by ``z``; a
-    line-search trial evaluates its point, so an accepted full step costs one pass.
-    """
+    """The softmax objective as a solver problem whose every evaluation is one pass, with
+    ``K'`` outputs in the coordinates of :class:`lintools.blocks.passes._PassProblem`
+    (whose arguments it takes); the ridge's diagonal is kept as ``pen``."""
 
     kernel = staticmethod(_evaluation_kernel)
 
-    def __init__(self, run: Any, c: np.ndarray, s: np.ndarray, intercept: bool, lam: float, Kf: int,
-                 a_start: np.ndarray, weight_scale: float, weight_total: float) -> None:
-        self.run, self.c, self.s = run, c, s
-        self.weight_scale, self.weight_total = weight_scale, weight_total
-        self.intercept, self.l2, self.first_slope = intercept, lam / weight_scale, int(intercept)
-        self.p = c.shape[0]
-        self.p1 = self.p + self.first_slope
-        self.K = Kf
-        self.size = self.p1 * Kf
-        self.a_start = a_start
-        pen = np.zeros((self.p1, Kf))
+    def __init__(self, *args: Any) -> None:
+        super().__init__(*args)
+        pen = np.zeros((self.p1, self.K))
         if self.l2:
-            pen[self.first_slope :] = ((self.l2 / s) / s)[:, None]  # no overflow of s^2
+            pen[self.first_slope :] = ((self.l2 / self.s) / self.s)[:, None]  # no overflow of s^2
         self.pen = pen.ravel()
-        self.cache: dict[bytes, tuple] = {}
 
     def centred(self, z: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """``(a, B)``: the intercepts of the centred columns and the slopes."""
         Z = z.reshape(self.p1, self.K)
         return (Z[0].copy() if self.intercept else np.zeros(self.K)), Z[self.first_slope :] / self.s[:, None]
-
-    def coefficients(self, z: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        a, B = self.centred(z)
-        return (a - self.c @ B if self.intercept else a), B
-
-    def to_original(self, z: np.ndarray) -> np.ndarray:
-        b, B = self.coefficients(z)
-        return np.vstack([b, B]).ravel() if self.intercept else B.ravel()
-
-    def theta_from_z_matrix(self) -> np.ndarray:
-        return unstandardise(self.c, self.s, self.intercept, self.K)
-
-    def start(self) -> np.ndarray:
-        z = np.zeros(self.size)
-        if self.intercept:
-            z[: self.K] = self.a_start
-        return z
 
     def _store(self, z: np.ndarray, part: dict) -> Evaluation | None:
         if not part["finite"]:
@@ -164,13 +130,6 @@ class _SoftmaxBlockProblem(_PassProblem):
         value = part["value"] + (0.5 * self.l2 * float(np.sum(B * B)) if self.l2 else 0.0)
         ev = Evaluation(float(value), gz, original, None, gz / self.weight_total)  # the in-memory stopping rule
         return self._remember(z, ev, H, part)
-
-    def hessian(self, z: np.ndarray, E: np.ndarray | None = None) -> np.ndarray:
-        H = self.fisher_information(z)
-        return H if E is None else E.T @ H @ E
-
-    def sketch_hessian(self, z: np.ndarray, E: np.ndarray | None = None) -> None:
-        return None  # every pass already reads all rows: exact Hessians throughout
 
 
 class _Indexed:
@@ -306,7 +265,7 @@ def softmax_blocks(
     ref = reference_index(reference, classes, lam)
     if lam == 0:
         check_parameters_and_rows(p + int(intercept), int(part["n_pos"]))
-    c, s = _centres_and_scales(part, intercept, lam, names_t)
+    c, s = centres_and_scales(part, intercept, lam, names_t)
 
     # internal class order: the reference class first, the others in classes order
     order = np.arange(K) if ref is None else np.array([ref] + [k for k in range(K) if k != ref])
@@ -323,32 +282,11 @@ def softmax_blocks(
         E = intercept_subspace(problem)
         target = AffineProblem(problem, np.zeros(problem.size), E)
         start = E.T @ problem.start()
-
-    def monitor(z, ev):
-        count, top = problem.runaway(z)
-        if count:
-            return (f"{count} row(s) have their own class ahead of every other by more than {ETA_LIMIT:g} "
-                    f"in the linear predictor (up to {top:.3g})")
-        return None
-
-    res = newton(target, tol=tol, max_iter=max_iter, on_iteration=on_iteration,
-                 monitor=monitor if lam == 0 else None, start=start)
-    if res.status == "diverging":
-        raise SeparationError(
-            f"the fit diverges: after {res.iterations} iteration(s) {res.message.split(': ', 1)[1]}: the classes "
-            "appear separated, so the maximum-likelihood estimate does not exist (Albert & Anderson 1984). The "
-            "exact check (a linear programme) needs all rows at once and is not run on blocks. "
-            "Remedy: l2 > 0 (a ridge penalty on the slopes gives finite estimates)"
-        )
-    ill = ("the design is full rank but too ill-conditioned for the fitted weights; rescale or drop nearly "
-           "collinear columns, or set l2 > 0")
-    if res.status == "singular":
-        raise LintoolsError(f"{res.message}: {ill}")
-    z = target.embed(res.z) if target is not problem else res.z
-    try:
-        Vz = z_covariance(problem, target, z)
-    except SingularMatrixError:
-        raise LintoolsError(f"the information matrix is singular at the answer: {ill}") from None
+    res, z, Vz = solve_passes(
+        problem, lambda z: z_covariance(problem, target, z), SoftmaxWatch, separated="separated",
+        exact="a linear programme", remedies=SEPARATION_REMEDY, lam=lam, tol=tol, max_iter=max_iter,
+        on_iteration=on_iteration, target=target, start=start,
+    )
     return _softmax_record(problem, res, z, Vz, order, ref, classes, totals, part["W"], lam, intercept,
                            names_t, run.passes)
 
@@ -356,43 +294,16 @@ def softmax_blocks(
 def _softmax_record(problem: _SoftmaxBlockProblem, res: Any, z: np.ndarray, Vz: np.ndarray, order: np.ndarray,
                     ref: int | None, classes: tuple, totals: np.ndarray, W: float, lam: float, intercept: bool,
                     names: tuple[str, ...], passes: int) -> SoftmaxFit:
-    """The :class:`SoftmaxFit` of a converged (or stopped) blocked fit, laid out as the in-memory one."""
-    ev = problem.evaluate(z)
-    part = problem.cache[z.tobytes()][2]
-    K, Kf, p1, p = len(classes), problem.K, problem.p1, problem.p
+    """The :class:`SoftmaxFit` of a converged (or stopped) blocked fit, by the in-memory builder.
+
+    The null deviance needs no pass: the intercept-only optimum puts each class's
+    probability at its share of the weight."""
     scale = problem.weight_scale  # the passes' weights are the caller's / scale
-    V = caller_covariance(problem.theta_from_z_matrix(), Vz, scale, internal_terms(names, classes, order, ref, intercept),
-                          np.repeat(np.concatenate([np.full(int(intercept), np.nan), problem.s]), Kf))
-    first = 0 if ref is None else 1
-    full_t, full_se = np.zeros((p1, K)), np.zeros((p1, K))
-    full_t[:, first:] = problem.to_original(z).reshape(p1, Kf)
-    full_se[:, first:] = np.sqrt(np.clip(np.diag(V), 0.0, None)).reshape(p1, Kf)
-    if ref is None and intercept:
-        full_t[0] -= full_t[0].mean()  # the shared shift of the intercepts is not determined
-    back = np.argsort(order)
-    full_t, full_se = full_t[:, back], full_se[:, back]  # classes order
-    # covariance: internal (term-major, internal free columns) -> class-major in classes order
-    internal_col = {int(order[j]): j - first for j in range(first, K)}
-    free_sorted = [k for k in range(K) if ref is None or k != ref]
-    perm = [t * Kf + internal_col[k] for k in free_sorted for t in range(p1)]
-    Vc = V[np.ix_(perm, perm)]
-    loglik = scaled_back(-float(part["value"]), scale, "log-likelihood")
-    dev = -2.0 * loglik  # one-label rows: the saturated log-likelihood is 0
     total = float(totals.sum())
     if intercept:
         null_dev = -2.0 * float(np.sum((totals / scale) * np.log(totals / total)))
     else:
-        null_dev = 2.0 * (total / scale) * math.log(K)
-    null_dev = scaled_back(null_dev, scale, "null deviance")
-    k_free = p1 * Kf - (1 if (ref is None and intercept) else 0)
-    lr_df = p * (K - 1)
-    lr = max(null_dev - dev, 0.0) if lam == 0 else float("nan")
-    conv = convergence_record(res, ev, problem, z, "newton", note=f"; {passes} passes over the blocks")
-    return SoftmaxFit(
-        coefficients=full_t[int(intercept):], intercept=full_t[0] if intercept else np.zeros(K),
-        standard_errors=full_se[int(intercept):], intercept_standard_error=full_se[0] if intercept else None,
-        covariance=Vc, log_likelihood=loglik, deviance=dev, n_observations=float(W), names=names, convergence=conv,
-        with_intercept=bool(intercept), l2=lam, classes=classes,
-        reference_class=None if ref is None else classes[ref], null_deviance=null_dev,
-        **likelihood_fields(loglik, k_free, float(W), lr, lr_df), has_offset=False, target="y",
-    )
+        null_dev = 2.0 * (total / scale) * math.log(len(classes))
+    _, measured, conv = answer(problem, res, z, null_dev, W, lam, passes)
+    return softmax_record(problem, z, Vz, conv, measured, classes=classes, order=order, ref=ref, names=names,
+                          lam=lam, has_offset=False, target="y")

@@ -60,8 +60,8 @@ from ..engine.base import MEASURED, converged_message, limit_message
 from .records import Convergence
 
 __all__ = ["DEFAULT_TOL", "ETA_LIMIT", "ETA_SUSPECT", "MOVE_SUSPECT", "EXACT_CHECK_ENTRIES", "Family", "Solved",
-           "Watch", "check_fit_settings", "check_parameters_and_rows", "checked_problem", "constant_columns",
-           "convergence_record", "final_evaluation", "likelihood_summary", "lr_statistic", "rank_message",
+           "Measured", "Watch", "check_fit_settings", "check_parameters_and_rows", "checked_problem", "constant_column_error", "constant_columns",
+           "convergence_record", "final_evaluation", "ill_conditioned", "likelihood_summary", "lr_statistic", "rank_message",
            "run_with_check", "solve_family", "unless_scipy_missing"]
 
 #: The default stopping tolerance of every likelihood fit: the max-abs gradient per unit
@@ -134,10 +134,15 @@ def constant_columns(Xa: np.ndarray, use: np.ndarray, names: tuple[str, ...],
     const = cols[np.max(rows, axis=0) == np.min(rows, axis=0)]
     if const.size:
         j = int(const[0])
-        raise InputError(
-            f"X column {j} ('{names[j]}') is constant on the rows used; it is aliased with the "
-            "intercept: drop it, or pass intercept=False"
-        )
+        raise constant_column_error(j, names[j])
+
+
+def constant_column_error(column: int, name: str) -> InputError:
+    """The error of a column constant on the rows used (aliased with the intercept)."""
+    return InputError(
+        f"X column {column} ('{name}') is constant on the rows used; it is aliased with the "
+        "intercept: drop it, or pass intercept=False"
+    )
 
 
 def rank_message(Xa: np.ndarray, v: np.ndarray, intercept: bool, names: tuple[str, ...]) -> str | None:
@@ -201,8 +206,12 @@ class Watch:
     def describe(self, count: int, limit: float, top: float) -> str:
         return self.RUNAWAY.format(count=count, limit=limit, top=top)
 
+    def rows(self, z: np.ndarray, ev: Evaluation) -> tuple[int, float]:
+        """The rows beyond :data:`ETA_LIMIT` at the evaluation ``ev`` of ``z``: (count, largest)."""
+        return self.runaway(ev.eta, ETA_LIMIT)
+
     def __call__(self, z: np.ndarray, ev: Evaluation) -> str | None:
-        count, top = self.runaway(ev.eta, ETA_LIMIT)
+        count, top = self.rows(z, ev)
         return self.describe(count, ETA_LIMIT, top) if count else None
 
 
@@ -347,7 +356,12 @@ def _diagnose_singular(family: Family, problem: Any, why: str, checked: bool, z:
             count, top = watch.runaway(problem.eta(z), ETA_SUSPECT)
             if count:
                 raise _no_scipy_error(family, f"{watch.describe(count, ETA_SUSPECT, top)} when {why}")
-    raise LintoolsError(
+    raise ill_conditioned(why)
+
+
+def ill_conditioned(why: str) -> LintoolsError:
+    """The error of a singular information on a full-rank design (``why`` says where)."""
+    return LintoolsError(
         f"{why}: the design is full rank but too ill-conditioned for the fitted weights; "
         "rescale or drop nearly collinear columns, or set l2 > 0"
     )
@@ -398,6 +412,19 @@ def convergence_record(res: SolverResult, ev: Evaluation, problem: Any, z: np.nd
     elif not res.converged:
         warn_caller(message, LintoolsWarning)
     return conv
+
+
+@dataclass(frozen=True)
+class Measured:
+    """A fit's likelihood figures at its answer, in the caller's weights: the
+    log-likelihood, the deviance, the number of observations, the null deviance and the
+    raw likelihood-ratio statistic (NaN under a ridge; see :func:`lr_statistic`)."""
+
+    log_likelihood: float
+    deviance: float
+    n_observations: float
+    null_deviance: float
+    lr: float
 
 
 def likelihood_summary(problem: Any, loss: Any, ev: Evaluation, observations: str) -> tuple[float, float, float]:

@@ -30,7 +30,7 @@ from typing import Any, Callable, Sequence
 import numpy as np
 
 from ..support.errors import InputError, LintoolsWarning, warn_caller
-from .records import LogisticFit
+from .records import Convergence, LogisticFit
 from .responses import binary_response, target_name
 from ..support.scaling import check_firth_scale, check_l2_scale, scaled_back, scaled_case_weights
 from ..support.threads import ELEMENT_CHUNK, for_rows, with_row_threads
@@ -38,6 +38,7 @@ from ..support.validate import as_matrix, as_offset, as_weights, check_flag, che
 from .inference import covariance, likelihood_fields, null_objective, profile_bounds
 from .driver import (
     DEFAULT_TOL,
+    Measured,
     Solved,
     Watch,
     check_fit_settings,
@@ -54,7 +55,7 @@ from ..engine.losses import BinomialLoss
 from ..engine import IterationRecord, LinearModelProblem
 from ..engine.newton import newton
 
-__all__ = ["logistic"]
+__all__ = ["BinaryWatch", "logistic", "logistic_record"]
 
 REMEDIES = (
     "Remedies: firth=True (Firth's bias-reduced estimates, finite under separation) or "
@@ -62,7 +63,7 @@ REMEDIES = (
 )
 
 
-class _Watch(Watch):
+class BinaryWatch(Watch):
     """Divergence monitor of the binary family: rows whose linear predictor runs off on
     the side of their outcome."""
 
@@ -102,7 +103,7 @@ class BinaryFamily:
         self.Xa, self.loss, self.offset, self.names = Xa, loss, offset, names
         self.intercept, self.lam, self.firth = intercept, lam, firth
         self.size = Xa.size
-        self.watch = _Watch(loss, offset) if (lam == 0 and not firth) else None
+        self.watch = BinaryWatch(loss, offset) if (lam == 0 and not firth) else None
 
     def terms(self) -> tuple[str, ...]:
         return (("(intercept)",) if self.intercept else ()) + tuple(self.names)
@@ -301,8 +302,7 @@ def _record(family: BinaryFamily, problem: LinearModelProblem, solved: Solved, l
             tol: float, max_iter: int, level: float | None) -> LogisticFit:
     """The :class:`LogisticFit` of a solved binary family; ``labels`` holds the classes, the
     positive class and the target's name; ``level`` the profile level (None: no profile)."""
-    intercept, loss, V = family.intercept, family.loss, solved.covariance
-    theta = problem.to_original(solved.z)
+    loss, V = family.loss, solved.covariance
     se = np.sqrt(np.clip(np.diag(V), 0.0, None))
     loglik, dev, n_obs = likelihood_summary(problem, loss, solved.evaluation, "sum of weights times trials")
     objective = solved.evaluation.value * problem.weight_scale
@@ -313,6 +313,28 @@ def _record(family: BinaryFamily, problem: LinearModelProblem, solved: Solved, l
         lr = null_dev - dev if family.lam == 0 else float("nan")
     bounds = _profile(family, problem, solved.z, se, level, tol, max_iter) if level is not None else None
     classes, positive_class, target = labels
+    return logistic_record(
+        problem, solved.z, V, solved.convergence, Measured(loglik, dev, n_obs, null_dev, lr),
+        names=family.names, l2=family.lam, classes=classes, positive_class=positive_class,
+        penalised_log_likelihood=loss.log_binomial_total() * problem.weight_scale - objective,
+        firth=bool(family.firth), profile_intervals=bounds, profile_level=level if level is not None else float("nan"),
+        grouped=bool(loss.grouped), has_offset=family.offset is not None, target=target,
+    )
+
+
+def logistic_record(problem: Any, z: np.ndarray, V: np.ndarray, convergence: Convergence, measured: Measured,
+                    **fields: Any) -> LogisticFit:
+    """The :class:`LogisticFit` of a solved binary problem, in memory or over blocks.
+
+    ``problem`` gives the coordinate map ``to_original``, ``intercept`` and ``p``; ``V``
+    is the covariance in the caller's coordinates (intercept first); ``fields`` are the
+    record's own fields (``names``, ``l2``, ``classes``, ``positive_class``,
+    ``penalised_log_likelihood``, ``firth``, ``grouped``, ``has_offset``, ``target``, the
+    profile intervals)."""
+    intercept = problem.intercept
+    theta = problem.to_original(z)
+    se = np.sqrt(np.clip(np.diag(V), 0.0, None))
+    loglik, n_obs = measured.log_likelihood, measured.n_observations
     return LogisticFit(
         coefficients=theta[int(intercept):].copy(),
         intercept=float(theta[0]) if intercept else 0.0,
@@ -320,23 +342,13 @@ def _record(family: BinaryFamily, problem: LinearModelProblem, solved: Solved, l
         intercept_standard_error=float(se[0]) if intercept else None,
         covariance=V,
         log_likelihood=loglik,
-        deviance=dev,
+        deviance=measured.deviance,
         n_observations=n_obs,
-        names=family.names,
-        convergence=solved.convergence,
+        convergence=convergence,
         with_intercept=bool(intercept),
-        l2=family.lam,
-        classes=classes,
-        positive_class=positive_class,
-        null_deviance=null_dev,
-        **likelihood_fields(loglik, theta.size, n_obs, lr_statistic(lr), problem.p),
-        firth=bool(family.firth),
-        penalised_log_likelihood=loss.log_binomial_total() * problem.weight_scale - objective,
-        profile_intervals=bounds,
-        profile_level=level if level is not None else float("nan"),
-        grouped=bool(loss.grouped),
-        has_offset=family.offset is not None,
-        target=target,
+        null_deviance=measured.null_deviance,
+        **likelihood_fields(loglik, theta.size, n_obs, lr_statistic(measured.lr), problem.p),
+        **fields,
     )
 
 

@@ -30,6 +30,7 @@ import numpy as np
 
 from ..support.errors import InputError
 from ..engine.multinomial import ROWS, MultinomialLoss
+from .records import Convergence
 from .softmax_record import SoftmaxFit
 from .responses import read_labels, target_name
 from ..support.scaling import caller_covariance, check_l2_scale, scaled_back, scaled_case_weights
@@ -38,6 +39,7 @@ from ..support.validate import as_matrix, as_offset, as_weights, check_names, is
 from .inference import likelihood_fields
 from .driver import (
     DEFAULT_TOL,
+    Measured,
     Solved,
     Watch,
     check_fit_settings,
@@ -53,7 +55,7 @@ from .driver import (
 from ..engine import AffineProblem, IterationRecord, LinearModelProblem, inverse_spd
 from ..engine.newton import newton
 
-__all__ = ["softmax"]
+__all__ = ["SoftmaxWatch", "softmax", "softmax_record"]
 
 SEPARATION_REMEDY = "Remedy: l2 > 0 (a ridge penalty on the slopes gives finite estimates)"
 SYMMETRIC_REMEDY = "pass l2 > 0, or reference='first' (or a class label) to pin one class at zero"
@@ -76,7 +78,7 @@ def reference_index(reference: Any, classes: tuple, lam: float) -> int | None:
                      "name one of the classes")
 
 
-class _Watch(Watch):
+class SoftmaxWatch(Watch):
     """Divergence monitor: rows whose own class leads every other by more than ETA_LIMIT.
 
     A row's lead is at most the spread of its linear predictor (its largest entry less its
@@ -141,7 +143,7 @@ class SoftmaxFamily:
         self.Xa, self.loss, self.offset, self.names = Xa, loss, offset, names
         self.intercept, self.lam, self.classes, self.order = intercept, lam, classes, order
         self.size = Xa.size * len(classes)
-        self.watch = _Watch(loss, offset) if lam == 0 else None
+        self.watch = SoftmaxWatch(loss, offset) if lam == 0 else None
 
     def exact_check(self) -> Any:
         return _exact_check(self.Xa, self.order[self.loss.codes], self.classes, self.loss.weights, self.intercept,
@@ -301,11 +303,11 @@ def z_covariance(problem: LinearModelProblem, target: Any, z: np.ndarray) -> np.
     return E @ inverse_spd(E.T @ H @ E) @ E.T
 
 
-def _caller_parameters(family: SoftmaxFamily, problem: LinearModelProblem, z: np.ndarray, Vz: np.ndarray,
-                       ref: int | None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+def _caller_parameters(problem: Any, z: np.ndarray, Vz: np.ndarray, classes: tuple, order: np.ndarray,
+                       ref: int | None, names: tuple[str, ...]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """``(theta, se, covariance)`` in the caller's units: (p1, K) parameters and standard
     errors in classes order (the pinned class zero), the covariance class-major."""
-    classes, order, names, intercept = family.classes, family.order, family.names, family.intercept
+    intercept = problem.intercept
     K, Kf, p1 = len(classes), problem.K, problem.p1
     V = caller_covariance(problem.theta_from_z_matrix(), Vz, problem.weight_scale,
                           internal_terms(names, classes, order, ref, intercept),
@@ -331,15 +333,31 @@ def _caller_parameters(family: SoftmaxFamily, problem: LinearModelProblem, z: np
 def _record(family: SoftmaxFamily, problem: LinearModelProblem, solved: Solved, ref: int | None, has_offset: bool,
             tol: float, max_iter: int, target: Any) -> SoftmaxFit:
     """The :class:`SoftmaxFit` of a solved softmax family (``ref``: the pinned class or None)."""
-    classes, intercept, loss = family.classes, family.intercept, family.loss
-    n, p = problem.X.shape
-    K, Kf, p1 = len(classes), problem.K, problem.p1
-    full_t, full_se, Vc = _caller_parameters(family, problem, solved.z, solved.covariance, ref)
+    loss = family.loss
     loglik, dev, n_obs = likelihood_summary(problem, loss, solved.evaluation, "sum of weights")
-    null_dev = scaled_back(_null_deviance(loss, n, family.offset, intercept, tol, max_iter), problem.weight_scale,
-                           "null deviance")
+    null_dev = scaled_back(_null_deviance(loss, problem.n, family.offset, family.intercept, tol, max_iter),
+                           problem.weight_scale, "null deviance")
+    measured = Measured(loglik, dev, n_obs, null_dev, null_dev - dev if family.lam == 0 else float("nan"))
+    return softmax_record(problem, solved.z, solved.covariance, solved.convergence, measured, classes=family.classes,
+                          order=family.order, ref=ref, names=family.names, lam=family.lam, has_offset=has_offset,
+                          target=target)
+
+
+def softmax_record(problem: Any, z: np.ndarray, Vz: np.ndarray, convergence: Convergence, measured: Measured, *,
+                   classes: tuple, order: np.ndarray, ref: int | None, names: tuple[str, ...], lam: float,
+                   has_offset: bool, target: Any) -> SoftmaxFit:
+    """The :class:`SoftmaxFit` of a solved softmax problem, in memory or over blocks.
+
+    ``problem`` gives the coordinate maps (``to_original``, ``theta_from_z_matrix``, the
+    column scales ``s``, ``intercept``, ``K`` outputs, ``p1`` terms, ``p`` columns,
+    ``weight_scale``); ``z`` is the answer and ``Vz`` its covariance in the problem's
+    coordinates; ``order[j]`` is the sorted class of internal column ``j`` and ``ref`` the
+    pinned class (None: the symmetric form)."""
+    intercept = problem.intercept
+    K, Kf, p1 = len(classes), problem.K, problem.p1
+    full_t, full_se, Vc = _caller_parameters(problem, z, Vz, classes, order, ref, names)
     k_free = p1 * Kf - (1 if (ref is None and intercept) else 0)
-    lr = lr_statistic(null_dev - dev if family.lam == 0 else float("nan"))
+    loglik, n_obs = measured.log_likelihood, measured.n_observations
     return SoftmaxFit(
         coefficients=full_t[int(intercept):],
         intercept=full_t[0] if intercept else np.zeros(K),
@@ -347,16 +365,16 @@ def _record(family: SoftmaxFamily, problem: LinearModelProblem, solved: Solved, 
         intercept_standard_error=full_se[0] if intercept else None,
         covariance=Vc,
         log_likelihood=loglik,
-        deviance=dev,
+        deviance=measured.deviance,
         n_observations=n_obs,
-        names=family.names,
-        convergence=solved.convergence,
+        names=names,
+        convergence=convergence,
         with_intercept=bool(intercept),
-        l2=family.lam,
+        l2=lam,
         classes=tuple(classes),
         reference_class=None if ref is None else classes[ref],
-        null_deviance=null_dev,
-        **likelihood_fields(loglik, k_free, n_obs, lr, p * (K - 1)),
+        null_deviance=measured.null_deviance,
+        **likelihood_fields(loglik, k_free, n_obs, lr_statistic(measured.lr), problem.p * (K - 1)),
         has_offset=has_offset,
         target=target,
     )

@@ -15,6 +15,7 @@ import numpy as np
 __all__ = [
     "CONSTANT_TOLERANCE",
     "transposed_block",
+    "column_scales",
     "unstandardise",
     "solve_upper",
     "solve_lower",
@@ -37,6 +38,13 @@ def transposed_block(v: np.ndarray, X: np.ndarray) -> np.ndarray:
     (``einsum``): measured about twice as fast here as the BLAS matrix-vector product, with
     the same recursive summation down each column."""
     return np.einsum("i,ij->j", v, X)
+
+
+def column_scales(spread: np.ndarray, centre: np.ndarray) -> np.ndarray:
+    """The scales ``s`` of the standardised coordinates: each column's weighted spread,
+    or 1 where the spread is zero, not finite, or at most ``1e-13`` of the column's centre
+    (rounding noise around a constant column, which is then treated as constant)."""
+    return np.where((spread > 1e-13 * np.abs(centre)) & (spread > 0) & np.isfinite(spread), spread, 1.0)
 
 
 def unstandardise(centre: np.ndarray, scale: np.ndarray, intercept: bool, outputs: int = 1) -> np.ndarray:
