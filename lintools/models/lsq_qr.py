@@ -26,6 +26,7 @@ import math
 import numpy as np
 
 from ..support.errors import IllConditionedWarning, InputError, warn_caller
+from ..support.text import intercept_label
 from .lsq_scale import column_exponents
 from ..support.linalg import (
     CONSTANT_TOLERANCE,
@@ -211,7 +212,7 @@ def qr_path(Xa, y1, w1, w_case, lam_w, intercept, names_t, rank_deficient, covar
     if full_rank:
         message = f"solved directly: Householder QR of the scaled design, {refine_steps} refinement step(s)"
     else:
-        terms = (("(intercept)",) if intercept else ()) + tuple(names_t)
+        terms = ((intercept_label(names_t),) if intercept else ()) + tuple(names_t)
         loose = [terms[i] for i in np.flatnonzero(~identified)]
         message = (
             f"minimum-norm solution of a rank-deficient design; the coefficients of "
