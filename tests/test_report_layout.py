@@ -126,6 +126,7 @@ def _metric_records():
         "hosmer_lemeshow": lt.hosmer_lemeshow(d.leak, p),
         "calibration_line": lt.calibration_line(d.leak, p),
         "roc_auc": lt.roc_auc(d.leak, p),
+        "roc_auc_difference": lt.roc_auc_difference(d.leak, p, d.X[:, 0]),
         "kolmogorov_smirnov": lt.kolmogorov_smirnov(d.leak, p),
         "gains": lt.gains(d.leak, p),
         "band_tests": lt.band_tests(d.leak, p, 5),
@@ -135,7 +136,8 @@ def _metric_records():
     }
 
 
-METRIC_KINDS = ["brier", "reliability", "hosmer_lemeshow", "calibration_line", "roc_auc", "kolmogorov_smirnov",
+METRIC_KINDS = ["brier", "reliability", "hosmer_lemeshow", "calibration_line", "roc_auc", "roc_auc_difference",
+                "kolmogorov_smirnov",
                 "gains", "band_tests", "population_stability", "collinearity", "compare_coefficients"]
 
 
