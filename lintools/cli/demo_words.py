@@ -102,7 +102,7 @@ def calibration_words(cal: Any) -> str:
                else "the average probability is off the observed leak rate")
         out.append(
             f"Calibration line: slope {line.slope:.3f} [{lo:.3f}, {hi:.3f}]; {shape}. Calibration in the large "
-            f"{line.in_the_large:+.3f} (p {line.in_the_large_p_value:.2g}): {big}."
+            f"{line.in_the_large:+.3f} (p-value {p_text(line.in_the_large_p_value)}): {big}."
         )
     tests = []
     if cal.hosmer_lemeshow is not None:
@@ -111,8 +111,8 @@ def calibration_words(cal: Any) -> str:
         tests.append(("the joint calibration-line test", line.joint_p_value))
     if cal.spiegelhalter is not None:
         tests.append(("Spiegelhalter's z", cal.spiegelhalter.p_value))
-    rejecting = [f"{n} (p {p:.2g})" for n, p in tests if p < 0.05]
-    silent = [f"{n} (p {p:.2g})" for n, p in tests if p >= 0.05]
+    rejecting = [f"{n} (p-value {p_text(p)})" for n, p in tests if p < 0.05]
+    silent = [f"{n} (p-value {p_text(p)})" for n, p in tests if p >= 0.05]
     if rejecting:
         out.append("Tests that reject calibration at 0.05: " + ", ".join(rejecting) + ".")
     if silent:
