@@ -456,7 +456,7 @@ def test_quiet_leaves_only_errors_and_the_requested_output(capsys, spector, tmp_
     assert code == 0 and CAUTION_WORDS in err and CAUTION_WORDS not in out and "modelling" not in out
     code, out, err = cli(capsys, "fit", path, "--target", "GRADE", "--model", "logistic", "--quiet",
                          "--save", tmp_path / "m.json")
-    assert code == 0 and err == "" and "lintools logistic fit of 'GRADE'" in out
+    assert code == 0 and err == "" and "lintools logistic model of 'GRADE'" in out
     code, out, err = cli(capsys, "fit", path, "--target", "GRADE", "--model", "logistic", "--quiet", "--json")
     assert code == 0 and err == "" and json.loads(out)["fit"]["kind"] == "logistic"
     code, out, err = cli(capsys, "fit", path, "--target", "NOPE", "--quiet")

@@ -244,11 +244,15 @@ def test_model_file_round_trip(tmp_path):
 
 
 def test_report_layout():
-    # source: common practice (our own layout: facts, then the z table)
+    # source: common practice (our own layout: title, Data, Estimation, Fit, Tests,
+    # Coefficients with the z table, Convergence)
     text = logistic(SX, SY).report()
-    assert text.startswith("lintools logistic fit of 'GRADE': probability of 1.0")
-    assert " z " in text.splitlines()[7] + " " and "(intercept)" in text and "null deviance" in text
-    assert "likelihood ratio against the null model: 15.4042 on 3 df" in text
+    lines = text.splitlines()
+    assert lines[0] == "lintools logistic model of 'GRADE'" and "modelled probability  of 1.0" in text
+    head = lines[lines.index("Coefficients") + 1]
+    assert " z " in head and lines[lines.index("Coefficients") + 3].split()[0] == "intercept"
+    assert "deviance of the intercept-only model  41.18345939" in text
+    assert "against the intercept-only model  15.4042 with 3 degrees of freedom, p-value 0.0015" in text
     assert "converged in" in text
     assert lt.logistic is logistic
 

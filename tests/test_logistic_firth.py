@@ -128,7 +128,7 @@ def test_firth_profile_intervals_hit_the_chi_square_quantile():
         assert bounds[j, 0] < theta[j] < bounds[j, 1]
         for v in bounds[j]:
             assert _profile_drop(j, v, theta, fn) == pytest.approx(q, abs=1e-6)
-    assert "profile-penalised-likelihood 90% intervals" in fit.report()
+    assert "Profile-penalised-likelihood 90% intervals" in fit.report()
 
 
 def test_firth_likelihood_ratio_uses_the_penalised_null_fit():

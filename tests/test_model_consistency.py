@@ -285,7 +285,7 @@ def test_delivered_model_scores_like_the_fit(tmp_path):
         X = {"least_squares": STACK.exog, "logistic": SX, "softmax": AX}[fit.kind]
         assert np.max(np.abs(m.mean(X) - fit.mean(X))) <= 1e-15
         assert np.array_equal(m.linear_predictor(X), fit.linear_predictor(X))
-        assert "(intercept)" in m.report() and all(n in m.report() for n in fit.names)
+        assert "\nintercept " in m.report() and all(n in m.report() for n in fit.names)
     with pytest.raises(InputError, match="X has 2 columns but the model has 5 predictors"):
         m.mean(np.zeros((3, 2)))
 

@@ -218,7 +218,7 @@ def test_labels_mean_and_report(anes):
     assert set(lab) <= set(f.classes)
     np.testing.assert_array_equal(lab, np.asarray(f.classes)[np.argmax(P, axis=1)])
     text = f.report()
-    assert "class 1 versus 0" in text and "likelihood ratio" in text and "(intercept)" in text
+    assert "class 1 versus 0" in text and "likelihood ratio" in text and "\nintercept " in text
 
 
 @pytest.mark.parametrize(

@@ -41,6 +41,7 @@ from .common import (
     whole,
 )
 from ..support.errors import InputError, LintoolsError
+from ..support.text import p_text
 
 
 
@@ -69,7 +70,7 @@ class CalibrationReport:
                 parts.append(value.report())
         s = self.spiegelhalter
         if s is not None:
-            parts.append(f"Spiegelhalter z test: z {s.statistic:.4f}, p {s.p_value:.4g} (Brier {s.brier:.6g}, "
+            parts.append(f"Spiegelhalter z test: z {s.statistic:.4f}, p-value {p_text(s.p_value)} (Brier {s.brier:.6g}, "
                          f"expected under calibration {s.expected_brier:.6g})\n")
         if self.roc_area is not None:
             parts.append(self.roc_area.report())

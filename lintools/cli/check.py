@@ -51,6 +51,7 @@ from .common import (
 )
 from .console import CAUTION, report_text
 from ..support.errors import InputError, IterationLimitWarning, LintoolsError
+from ..support.text import p_text
 
 DEFAULT_SIGNIFICANCE = 0.05
 
@@ -275,7 +276,7 @@ def _judge(d: Delivered, fit: Any, X: np.ndarray, labels: list, weights: Any, ar
     reasons = []
     if cmp.wald_p_value < args.significance:
         reasons.append(f"the Wald test rejects 'delivered = refit' at significance {args.significance:g} "
-                       f"(p {cmp.wald_p_value:.3g})")
+                       f"(p-value {p_text(cmp.wald_p_value)})")
     gap = cmp.max_abs_prediction_difference
     if args.max_difference is not None and gap is not None and gap > args.max_difference:
         what = "response" if d.kind == "least_squares" else "probability"

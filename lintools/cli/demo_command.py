@@ -42,6 +42,7 @@ from .common import MAX_SEED, Progress, emit_json, whole
 from .console import CAUTION
 from .demo_words import calibration_words, comparison_words, truth_table
 from ..support.errors import InputError
+from ..support.text import p_text
 
 DEFAULT_FOLDER = "lintools-demo"
 #: Fewest and most inspection records the demo generates (``--rows``).
@@ -350,8 +351,8 @@ def run_demo(args: argparse.Namespace) -> int:
           f"{leak.convergence.message}")
     print(f"  defect class, softmax: {len(defect.classes)} classes, reference '{defect.reference_class}', "
           f"{defect.convergence.message}")
-    print(f"  supplier's leak model against the refit: Wald chi2 {cmp.wald_statistic:.3g} on "
-          f"{cmp.wald_degrees_of_freedom} df, p {cmp.wald_p_value:.2g}; differs beyond noise in: "
+    print(f"  supplier's leak model against the refit: Wald chi-square {cmp.wald_statistic:.3g} "
+          f"with {cmp.wald_degrees_of_freedom} degrees of freedom, p-value {p_text(cmp.wald_p_value)}; differs beyond noise in: "
           f"{', '.join(flagged) if flagged else 'no term'}")
     if line is not None:
         print(f"  supplier's calibration slope {line.slope:.3f} [{line.slope_interval[0]:.3f}, "

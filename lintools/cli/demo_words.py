@@ -7,6 +7,7 @@ from typing import Any
 from ..support import distributions as dist
 from .common import implied_words
 from ..models.records import INTERCEPT_NAME
+from ..support.text import intercept_label, p_text
 
 #: Family-wise level for flagging single coefficients (Bonferroni over the compared terms).
 FLAG_LEVEL = 0.05
@@ -15,7 +16,7 @@ FLAG_LEVEL = 0.05
 def truth_table(names, true_b, true_b0, est, est_b0, se, se_b0) -> str:
     """Rows: term, true value, estimate, standard error, (estimate - truth) / standard error."""
     lines = ["term".ljust(18) + "true".rjust(12) + "estimate".rjust(14) + "std error".rjust(12) + "off by (SEs)".rjust(14)]
-    rows = [(INTERCEPT_NAME, true_b0, est_b0, se_b0)] + list(zip(names, true_b, est, se))
+    rows = [(intercept_label(names), true_b0, est_b0, se_b0)] + list(zip(names, true_b, est, se))
     for name, t, e, s in rows:
         lines.append(f"{name:<18}{float(t):12.5g}{float(e):14.6g}{float(s):12.4g}{(float(e) - float(t)) / float(s):14.2f}")
     return "\n".join(lines)
@@ -31,16 +32,17 @@ def comparison_words(cmp: Any, implied: Any, fit: Any, n_weight: float) -> str:
     if cmp.wald_p_value < FLAG_LEVEL:
         out.append(
             f"The supplier's coefficients are not the refit's up to sampling noise: the Wald test of "
-            f"'delivered = refit' gives chi-square {cmp.wald_statistic:.3g} on {cmp.wald_degrees_of_freedom} df "
-            f"(p {cmp.wald_p_value:.2g}), and the score test at the supplier's coefficients, which asks whether they "
+            f"'delivered = refit' gives chi-square {cmp.wald_statistic:.3g} with {cmp.wald_degrees_of_freedom} "
+            f"degrees of freedom (p-value {p_text(cmp.wald_p_value)}), and the score test at the supplier's coefficients, which asks whether they "
             f"solve the likelihood equations on these data, agrees (chi-square {cmp.score_statistic:.3g}, "
-            f"p {cmp.score_p_value:.2g})."
+            f"p-value {p_text(cmp.score_p_value)})."
         )
     else:
         out.append(
             f"The supplier's coefficients agree with the refit up to sampling noise: Wald chi-square "
-            f"{cmp.wald_statistic:.3g} on {cmp.wald_degrees_of_freedom} df (p {cmp.wald_p_value:.2g}); score test "
-            f"chi-square {cmp.score_statistic:.3g} (p {cmp.score_p_value:.2g})."
+            f"{cmp.wald_statistic:.3g} with {cmp.wald_degrees_of_freedom} degrees of freedom (p-value "
+            f"{p_text(cmp.wald_p_value)}); score test chi-square {cmp.score_statistic:.3g} (p-value "
+            f"{p_text(cmp.score_p_value)})."
         )
     flagged, fine = [], []
     for i, term in enumerate(cmp.terms):
@@ -100,7 +102,7 @@ def calibration_words(cal: Any) -> str:
                else "the average probability is off the observed leak rate")
         out.append(
             f"Calibration line: slope {line.slope:.3f} [{lo:.3f}, {hi:.3f}]; {shape}. Calibration in the large "
-            f"{line.in_the_large:+.3f} (p {line.in_the_large_p_value:.2g}): {big}."
+            f"{line.in_the_large:+.3f} (p-value {p_text(line.in_the_large_p_value)}): {big}."
         )
     tests = []
     if cal.hosmer_lemeshow is not None:
@@ -109,8 +111,8 @@ def calibration_words(cal: Any) -> str:
         tests.append(("the joint calibration-line test", line.joint_p_value))
     if cal.spiegelhalter is not None:
         tests.append(("Spiegelhalter's z", cal.spiegelhalter.p_value))
-    rejecting = [f"{n} (p {p:.2g})" for n, p in tests if p < 0.05]
-    silent = [f"{n} (p {p:.2g})" for n, p in tests if p >= 0.05]
+    rejecting = [f"{n} (p-value {p_text(p)})" for n, p in tests if p < 0.05]
+    silent = [f"{n} (p-value {p_text(p)})" for n, p in tests if p >= 0.05]
     if rejecting:
         out.append("Tests that reject calibration at 0.05: " + ", ".join(rejecting) + ".")
     if silent:

@@ -32,6 +32,7 @@ import numpy as np
 
 from ..support import distributions as dist
 from ..support.errors import InputError
+from ..support.text import p_text
 from ..models.logistic import score_and_information as binary_score
 from ..models.softmax import score_and_information as multinomial_score
 from ..support.validate import (
@@ -78,13 +79,14 @@ class CoefficientComparison:
             )
         lines.append("")
         lines.append(
-            f"Wald test that the delivered coefficients equal the refit: chi2 {self.wald_statistic:.4g} "
-            f"on {self.wald_degrees_of_freedom} df, p {self.wald_p_value:.4g}"
+            f"Wald test that the delivered coefficients equal the refit: chi-square {self.wald_statistic:.4g} "
+            f"with {self.wald_degrees_of_freedom} degrees of freedom, p-value {p_text(self.wald_p_value)}"
         )
         if self.score_statistic is not None:
             lines.append(
                 f"Score test that the delivered coefficients solve the objective on these data: "
-                f"chi2 {self.score_statistic:.4g} on {self.wald_degrees_of_freedom} df, p {self.score_p_value:.4g}"
+                f"chi-square {self.score_statistic:.4g} with {self.wald_degrees_of_freedom} degrees of freedom, "
+                f"p-value {p_text(self.score_p_value)}"
             )
         if self.max_abs_prediction_difference is not None:
             lines.append(

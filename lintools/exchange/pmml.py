@@ -39,6 +39,7 @@ import numpy as np
 
 from ..support.errors import InputError
 from ..support.files import file_path, read_bounded, write_atomic
+from ..support.text import intercept_label, section, title
 from ..support.categories import CategoricalField
 from .pmml_categories import write_inputs, write_terms
 from .pmml_read import NAMESPACES, parse_pmml
@@ -120,23 +121,27 @@ class DeliveredModel:
         return np.asarray(self.classes)[np.argmax(eta, axis=1)]
 
     def report(self) -> str:
-        """A plain-text account of the model: its kind, target, classes and coefficients."""
-        head = f"delivered {self.kind} model of '{self.target}'" + (f" from {self.source}" if self.source else "")
+        """A plain-text account of the model: title, Data (target, source, classes),
+        Coefficients (one column per class for softmax) and the categorical inputs."""
+        data = [("target", self.target)] + ([("source", str(self.source))] if self.source else [])
         if self.kind == "logistic":
-            head += f": probability of {self.classes[0]!s} (classes {', '.join(map(str, self.classes))})"
+            data += [("classes", ", ".join(map(str, self.classes))), ("modelled probability", f"of {self.classes[0]!s}")]
         elif self.kind == "softmax":
-            head += f": {len(self.classes)} classes ({', '.join(map(str, self.classes))})"
+            data.append(("classes", f"{len(self.classes)}: {', '.join(map(str, self.classes))}"))
         B = np.asarray(self.coefficients, dtype=float).reshape(len(self.names), -1)
         b = np.atleast_1d(np.asarray(self.intercept, dtype=float))
         cols = [str(c) for c in self.classes] if self.kind == "softmax" else ["coefficient"]
-        width = max([len(n) for n in self.names] + [len("(intercept)"), 4])
-        lines = [head, "", "term".ljust(width) + "".join(c[:20].rjust(22) for c in cols)]
+        label = intercept_label(self.names)
+        width = max([len(n) for n in self.names] + [len(label), 4])
+        lines = title(f"delivered {self.kind} model of '{self.target}'") + section("Data", data)
+        lines += ["", "Coefficients", "term".ljust(width) + "".join(c[:20].rjust(22) for c in cols)]
         lines.append("-" * len(lines[-1]))
-        for term, row in [("(intercept)", b)] + list(zip(self.names, B)):
+        for term, row in [(label, b)] + list(zip(self.names, B)):
             lines.append(term.ljust(width) + "".join(f"{v:22.15g}" for v in row))
-        for f in self.categorical_fields:
-            lines.append(f"categorical input '{f.name}': values {', '.join(map(repr, f.levels))}; a value without a "
-                         f"term '{f.name}=<value>' adds nothing")
+        if self.categorical_fields:
+            lines += section("Categorical inputs", [
+                (f"'{f.name}'", f"values {', '.join(map(repr, f.levels))}; a value without a term "
+                                f"'{f.name}=<value>' adds nothing") for f in self.categorical_fields])
         return "\n".join(lines) + "\n"
 
 

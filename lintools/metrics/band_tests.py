@@ -17,7 +17,6 @@ outcomes (a downturn hits every borrower) violate: then they reject too often.
 
 from __future__ import annotations
 
-import math
 import numbers
 from dataclasses import dataclass
 from typing import Any
@@ -28,7 +27,8 @@ from .bands import band_of, quantile_cuts
 from .binning import group_sums
 from ..support.binomial import MAX_COUNT, beta_quantile, beta_tails, binomial_tails, binomial_two_sided
 from ..support.errors import InputError
-from ..support.outcomes import binary_forecast, binary_outcome, case_weights, check_level, fmt_p, unscale
+from ..support.outcomes import binary_forecast, binary_outcome, case_weights, check_level, unscale
+from ..support.text import p_text
 from ..support.validate import ReadOnlyArrays, as_labels, check_choice, check_positive_int, weight_scale
 
 __all__ = ["BandTests", "band_tests", "SIDES"]
@@ -120,8 +120,8 @@ class BandTests(ReadOnlyArrays):
                 name.ljust(12) + f"{self.lowest[b]:.6g}".rjust(15) + f"{self.highest[b]:.6g}".rjust(10)
                 + str(int(self.rows[b])).rjust(9) + f"{self.cases[b]:.6g}".rjust(11)
                 + f"{self.positives[b]:.6g}".rjust(11) + f"{self.observed[b]:.5f}".rjust(10)
-                + f"{self.predicted[b]:.5f}".rjust(11) + _p(self.binomial_p_value[b]).rjust(12)
-                + _p(self.jeffreys_p_value[b]).rjust(12)
+                + f"{self.predicted[b]:.5f}".rjust(11) + p_text(self.binomial_p_value[b]).rjust(12)
+                + p_text(self.jeffreys_p_value[b]).rjust(12)
                 + f"[{self.jeffreys_lower[b]:.5f}, {self.jeffreys_upper[b]:.5f}]".rjust(26)
             )
         lines.append(self.summary())
@@ -138,10 +138,6 @@ class BandTests(ReadOnlyArrays):
             out[f.name] = v.tolist() if isinstance(v, np.ndarray) else (list(v) if isinstance(v, tuple) else v)
         out["bands"] = [c.item() if isinstance(c, np.generic) else c for c in self.bands]
         return out
-
-
-def _p(value: float) -> str:
-    return "-" if math.isnan(value) else fmt_p(float(value))
 
 
 def _holm(p: np.ndarray, alpha: float) -> int:

@@ -11,13 +11,13 @@ import numpy as np
 
 from ..support import distributions as dist
 from ..support.errors import InputError
+from ..support.text import p_text
 from ..support.outcomes import (
     binary_forecast,
     binary_outcome,
     case_weights,
     check_level,
     fmt_number,
-    fmt_p,
     two_sided,
 )
 
@@ -77,7 +77,7 @@ class CalibrationLine:
     def report(self) -> str:
         """Return the calibration line and its tests as text."""
         pct = f"{100 * self.level:g}%"
-        head = ("term".ljust(22) + "estimate".rjust(12) + "std error".rjust(12) + "null".rjust(6)
+        head = ("term".ljust(22) + "estimate".rjust(12) + "standard error".rjust(16) + "null".rjust(6)
                 + "z".rjust(9) + "p".rjust(10) + f"{pct} from".rjust(12) + f"{pct} to".rjust(12))
         rows = [
             ("slope", self.slope, self.slope_standard_error, 1, self.slope_statistic, self.slope_p_value, self.slope_interval),
@@ -88,10 +88,10 @@ class CalibrationLine:
         ]
         lines = ["calibration line: logit P(y=1) = intercept + slope * logit(p)", head, "-" * len(head)]
         for name, est, se, null, z, pv, (lo, hi) in rows:
-            lines.append(name.ljust(22) + fmt_number(est, 12, 7) + fmt_number(se, 12, 7) + str(null).rjust(6)
-                         + f"{z:.3f}".rjust(9) + fmt_p(pv).rjust(10) + fmt_number(lo, 12, 7) + fmt_number(hi, 12, 7))
+            lines.append(name.ljust(22) + fmt_number(est, 12, 7) + fmt_number(se, 16, 7) + str(null).rjust(6)
+                         + f"{z:.3f}".rjust(9) + p_text(pv).rjust(10) + fmt_number(lo, 12, 7) + fmt_number(hi, 12, 7))
         lines.append(f"joint Wald test of (intercept, slope) = (0, 1): chi-square {self.joint_statistic:.6g} "
-                     f"on 2 df, p {fmt_p(self.joint_p_value)}")
+                     f"with 2 degrees of freedom, p-value {p_text(self.joint_p_value)}")
         return "\n".join(lines) + "\n"
 
 

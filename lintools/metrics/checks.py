@@ -15,12 +15,12 @@ import numpy as np
 
 from ..support import distributions as dist
 from ..support.errors import InputError
+from ..support.text import p_text
 from .binning import check_bins, group_sums
 from ..support.outcomes import (
     binary_forecast,
     binary_outcome,
     fmt_number,
-    fmt_p,
     scaled_weights,
     two_sided,
     unscale,
@@ -86,7 +86,7 @@ class HosmerLemeshow(ReadOnlyArrays):
                 + fmt_number(self.weight[g]) + fmt_number(self.observed[g]) + fmt_number(self.expected[g])
                 + fmt_number(self.observed_negative[g]) + fmt_number(self.expected_negative[g])
             )
-        lines.append(f"statistic {self.statistic:.6g} on {self.degrees_of_freedom} df, p {fmt_p(self.p_value)}")
+        lines.append(f"statistic {self.statistic:.6g} with {self.degrees_of_freedom} degrees of freedom, p-value {p_text(self.p_value)}")
         return "\n".join(lines) + "\n"
 
 

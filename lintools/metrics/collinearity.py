@@ -31,6 +31,7 @@ import numpy as np
 from ..support.errors import InputError
 from ..models.lsq_scale import column_exponents
 from ..support.outcomes import case_weights
+from ..support.text import intercept_label
 from ..models.records import INTERCEPT_NAME
 from ..support.validate import ReadOnlyArrays, as_matrix, check_names, weight_scale
 from ..support.linalg import CONSTANT_TOLERANCE, default_rank_tolerance
@@ -98,7 +99,9 @@ class Collinearity(ReadOnlyArrays):
 
     def report(self) -> str:
         """Variance inflation factors, condition indices and proportions as text."""
-        width = max(12, *(len(t) for t in self.terms)) + 2
+        label = {INTERCEPT_NAME: intercept_label(self.names)}
+        shown = tuple(label.get(t, t) for t in self.terms)
+        width = max(12, *(len(t) for t in shown)) + 2
         with_b = " with an intercept" if self.intercept else ", no intercept"
         lines = [f"Collinearity of the design: {len(self.names)} columns{with_b}, {self.rows} rows, rank {self.rank}",
                  "",
@@ -110,7 +113,7 @@ class Collinearity(ReadOnlyArrays):
         lines += ["", "Condition indices of the design" + (" with a column of ones" if self.intercept else "")
                   + ", every column scaled to unit length, and the share of each term's coefficient variance in "
                   "each dimension (each column of shares sums to 1)"]
-        head = "dimension".ljust(11) + "index".rjust(12) + "".join(t[:width - 2].rjust(width) for t in self.terms)
+        head = "dimension".ljust(11) + "index".rjust(12) + "".join(t[:width - 2].rjust(width) for t in shown)
         lines.append(head)
         for k in range(len(self.condition_indices)):
             lines.append(str(k + 1).ljust(11) + f"{self.condition_indices[k]:.4g}".rjust(12)
@@ -121,7 +124,7 @@ class Collinearity(ReadOnlyArrays):
                      f"{hi:g} a strong dependency, harmful when two or more terms have shares above {SHARE_ALARM:g}.")
         if found:
             for index, shares in found:
-                terms = ", ".join(f"{t} ({s:.2f})" for t, s in shares)
+                terms = ", ".join(f"{label.get(t, t)} ({s:.2f})" for t, s in shares)
                 lines.append(f"  near dependency at index {index:.4g} among: {terms}")
         else:
             lines.append("  none found")

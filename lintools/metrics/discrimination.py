@@ -24,6 +24,7 @@ from ..support.outcomes import (
     two_sided,
     unscale,
 )
+from ..support.text import p_text
 from ..support.validate import ReadOnlyArrays, check_choice, weight_scale
 
 __all__ = ["ROCArea", "ROCAreaDifference", "roc_auc", "roc_auc_difference"]
@@ -80,10 +81,10 @@ class ROCArea(ReadOnlyArrays):
 
     def report(self) -> str:
         """Return the area, its standard error and interval, and the accuracy ratio, as text."""
-        return (f"ROC area {self.area:.6f}  std error {self.standard_error:.6f}  "
+        return (f"ROC area {self.area:.6f}  standard error {self.standard_error:.6f}  "
                 f"{100 * self.level:g}% interval ({self.interval}) [{self.lower:.6f}, {self.upper:.6f}]  "
                 f"positives {self.positives:g}  negatives {self.negatives:g}\n"
-                f"accuracy ratio (Gini, 2 x area - 1) {self.accuracy_ratio:.6f}  std error "
+                f"accuracy ratio (Gini, 2 x area - 1) {self.accuracy_ratio:.6f}  standard error "
                 f"{self.accuracy_ratio_standard_error:.6f}  {100 * self.level:g}% interval "
                 f"[{self.accuracy_ratio_lower:.6f}, {self.accuracy_ratio_upper:.6f}]\n")
 
@@ -119,10 +120,8 @@ class ROCAreaDifference(ReadOnlyArrays):
 
     def report(self) -> str:
         """Return the test as text."""
-        p = self.p_value
-        ptxt = f"{p:.3g}" if p < 1e-4 else f"{p:.4f}"
         return (f"ROC areas {self.areas[0]:.6f} (a) and {self.areas[1]:.6f} (b); difference {self.difference:.6f}"
-                f"  std error {self.standard_error:.6f}  z {self.statistic:.3f}  p {ptxt}  "
+                f"  standard error {self.standard_error:.6f}  z {self.statistic:.3f}  p-value {p_text(self.p_value)}  "
                 f"{100 * self.level:g}% interval [{self.lower:.6f}, {self.upper:.6f}]\n")
 
 

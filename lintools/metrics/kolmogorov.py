@@ -19,7 +19,8 @@ import numpy as np
 
 from ..support.errors import InputError, LintoolsWarning, warn_caller
 from ..support.kolmogorov_law import exact_is_affordable, exact_tail, limit_tail
-from ..support.outcomes import binary_outcome, case_weights, finite_scores, fmt_p, unscale
+from ..support.outcomes import binary_outcome, case_weights, finite_scores, unscale
+from ..support.text import p_text
 from ..support.validate import ReadOnlyArrays, weight_scale
 
 __all__ = ["KolmogorovSmirnov", "kolmogorov_smirnov"]
@@ -63,7 +64,7 @@ class KolmogorovSmirnov(ReadOnlyArrays):
         """The distance, where it is reached, and its p-value as text."""
         how = ("exact, given the ties" if self.method == "exact"
                else "asymptotic (Kolmogorov's limit law; conservative with ties)")
-        p = "not computed" if math.isnan(self.p_value) else fmt_p(self.p_value)
+        p = "not computed" if math.isnan(self.p_value) else p_text(self.p_value)
         return (f"Kolmogorov-Smirnov distance {self.statistic:.6f} at score {self.location:.6g}: "
                 f"{100 * self.positives_at_or_below:.2f}% of positives and {100 * self.negatives_at_or_below:.2f}% "
                 f"of negatives score at or below it\n"

@@ -26,6 +26,7 @@ import math
 import numpy as np
 
 from ..support.errors import IllConditionedWarning, InputError, warn_caller
+from ..support.text import intercept_label
 from .lsq_coordinates import aliased_columns_of, caller_gradient, centre_in_two_parts, centred_intercept, column_floor
 from .lsq_coordinates import ridge_column_norms
 from .lsq_record import PathAnswer, refuse_leverage_one
@@ -188,7 +189,7 @@ def qr_path(Xa, y1, w1, w_case, lam_w, intercept, names_t, rank_deficient, covar
     if full_rank:
         message = f"solved directly: Householder QR of the scaled design, {refine_steps} refinement step(s)"
     else:
-        terms = (("(intercept)",) if intercept else ()) + tuple(names_t)
+        terms = ((intercept_label(names_t),) if intercept else ()) + tuple(names_t)
         loose = [terms[i] for i in np.flatnonzero(~identified)]
         message = (
             f"minimum-norm solution of a rank-deficient design; the coefficients of "

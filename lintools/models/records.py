@@ -21,6 +21,7 @@ import numpy as np
 from ..support import distributions as dist
 from ..support.categories import CategoricalField
 from ..support.errors import InputError
+from ..support.text import UNDEFINED, intercept_label, p_text, section, title
 from ..support.validate import INTERCEPT_NAME, ReadOnlyArrays, as_matrix, scored
 
 __all__ = ["CategoricalField", "Convergence", "CoefficientTable", "LinearFit"]
@@ -81,8 +82,6 @@ class CoefficientTable(ReadOnlyArrays):
     distribution: str
 
 
-#: What the table prints where a figure is not defined (see the note under the table).
-UNDEFINED = "-"
 
 
 def _num(value: float) -> str:
@@ -96,20 +95,6 @@ def _fmt(value: float, width: int = 13) -> str:
     """:func:`_num`, right-aligned in ``width`` columns and never touching its left neighbour."""
     text = _num(value)
     return text.rjust(max(width, len(text) + 1))
-
-
-def _p_text(value: float) -> str:
-    if not np.isfinite(value):
-        return "nan"
-    if value < 1e-300:
-        return "<1e-300"
-    if value < 1e-4:
-        return f"{value:.2e}"
-    return f"{value:.4f}"
-
-
-def _fmt_p(value: float) -> str:
-    return _p_text(value).rjust(10)
 
 
 def _stat_text(value: float) -> str:
@@ -164,6 +149,13 @@ def _wald_table(
     )
 
 
+def _shown_terms(terms: tuple[str, ...]) -> tuple[str, ...]:
+    """The terms as a report prints them: the intercept's stored name becomes its printed
+    label (:func:`lintools.support.text.intercept_label`, never a column's name)."""
+    label = intercept_label(t for t in terms if t != INTERCEPT_NAME)
+    return tuple(label if t == INTERCEPT_NAME else t for t in terms)
+
+
 def render_table(table: CoefficientTable, stat_label: str) -> str:
     """Render a :class:`CoefficientTable` as fixed-width text.
 
@@ -172,8 +164,9 @@ def render_table(table: CoefficientTable, stat_label: str) -> str:
     print as ``-`` (t and p where the standard error is zero or NaN; the standard error and
     interval where it is NaN, a coefficient that is not identified), with a note below."""
     pct = f"{100 * table.level:g}%"
-    heads = ("estimate", "std error", stat_label, "p (2-sided)", f"{pct} from", f"{pct} to")
-    widths = [13, 13, 10, 12, 13, 13]
+    heads = ("estimate", "standard error", stat_label, "two-sided p", f"{pct} from", f"{pct} to")
+    widths = [13, 15, 10, 12, 13, 13]
+    terms = _shown_terms(table.terms)
     rows, zero_se, loose = [], False, False
     for i in range(len(table.terms)):
         se = table.standard_error[i]
@@ -184,17 +177,17 @@ def render_table(table: CoefficientTable, stat_label: str) -> str:
             _num(table.estimate[i]),
             _num(se) if free else UNDEFINED,
             _stat_text(table.statistic[i]),
-            _p_text(table.p_value[i]) if not np.isnan(table.statistic[i]) else UNDEFINED,
+            p_text(table.p_value[i]) if not np.isnan(table.statistic[i]) else UNDEFINED,
             _num(table.lower[i]) if free else UNDEFINED,
             _num(table.upper[i]) if free else UNDEFINED,
         ]
         rows.append(cells)
     for j in range(len(heads)):
         widths[j] = max([widths[j], len(heads[j]) + 1] + [len(r[j]) + 1 for r in rows])
-    width = max([len(t) for t in table.terms] + [4])
+    width = max([len(t) for t in terms] + [4])
     head = "term".ljust(width) + "".join(h.rjust(wd) for h, wd in zip(heads, widths))
     lines = [head, "-" * len(head)]
-    for term, cells in zip(table.terms, rows):
+    for term, cells in zip(terms, rows):
         lines.append(term.ljust(width) + "".join(c.rjust(wd) for c, wd in zip(cells, widths)))
     notes = ([f"no {stat_label} or p where the standard error is zero"] if zero_se else []) + (
         [f"no standard error, interval, {stat_label} or p for a coefficient that is not identified"] if loose else [])
@@ -265,6 +258,17 @@ class _FitBase(ReadOnlyArrays):
         out["kind"] = self.kind
         return out
 
+    # ----- the text report (layout: lintools.support.text) ----------------------------
+    def _likelihood_rows(self, digits: int) -> list[tuple[str, str]]:
+        return [("log-likelihood", f"{self.log_likelihood:.{digits}g}"),
+                ("Akaike information criterion", f"{self.aic:.{digits}g}"),
+                ("Bayesian information criterion", f"{self.bic:.{digits}g}")]
+
+    def _closing(self, table: CoefficientTable, stat_label: str, blocks: list[str] | None = None) -> list[str]:
+        """The Coefficients section (one table, or ``blocks``) and the Convergence line."""
+        body = blocks if blocks is not None else [render_table(table, stat_label)]
+        return ["", "Coefficients", "\n\n".join(body), "", f"Convergence: {self.convergence.message}"]
+
     # ----- inference ----------------------------------------------------------------
     def _reference_df(self) -> float | None:
         return None
@@ -327,27 +331,29 @@ class LinearFit(_FitBase):
     def _f_text(self) -> str:
         fdf = self.f_degrees_of_freedom
         if np.isfinite(self.f_statistic):
-            return f"F {self.f_statistic:.6g} on ({fdf[0]:g}, {fdf[1]:g}) df, p {_fmt_p(self.f_p_value).strip()}"
-        why = " (zero residuals: an exact fit)" if self.deviance == 0 else ""
-        return f"F not defined{why}"
+            return (f"{self.f_statistic:.6g} with {fdf[0]:g} and {fdf[1]:g} degrees of freedom, "
+                    f"p-value {p_text(self.f_p_value)}")
+        return "not defined" + (" (zero residuals: an exact fit)" if self.deviance == 0 else "")
 
     def report(self, level: float = 0.95) -> str:
-        """Return a plain-text report: the fit's facts, then the coefficient table."""
+        """Return a plain-text report: title, Data, Estimation, Fit, Tests, Coefficients, Convergence."""
         table = self.coefficient_table(level)
-        facts = [
-            f"lintools least squares fit of '{self.target}'",
-            f"  observations {self.n_observations:g} ({self.weight_type} weights)   "
-            f"parameters {len(table.terms)}   rank {self.rank}   residual df {self.degrees_of_freedom:g}",
-            f"  residual std error {self.residual_standard_error:.7g}   "
-            f"R-squared {self.r_squared:.6f}   adjusted {self.adjusted_r_squared:.6f}",
-            f"  {self._f_text()}"
-            f"   log-likelihood {self.log_likelihood:.8g}   AIC {self.aic:.8g}   BIC {self.bic:.8g}",
-            f"  covariance {self.covariance_type}   l2 {self.l2:g}   scaled condition number {self.condition_number:.3g}",
-            f"  {self.convergence.message}",
-        ]
+        data = [("observations", f"{self.n_observations:g} ({self.weight_type} weights)"),
+                ("parameters", f"{len(table.terms)}"), ("rank of the design", f"{self.rank}"),
+                ("residual degrees of freedom", f"{self.degrees_of_freedom:g}")]
         if self.aliased:
-            facts.append(f"  aliased columns (minimum-norm solution): {', '.join(self.aliased)}")
-        return "\n".join(facts) + "\n\n" + render_table(table, "t") + "\n"
+            data.append(("aliased columns", f"{', '.join(self.aliased)} (minimum-norm solution)"))
+        estimation = [("covariance", self.covariance_type), ("ridge penalty l2", f"{self.l2:g}"),
+                      ("scaled condition number", f"{self.condition_number:.3g}")]
+        fit = [("residual standard error", f"{self.residual_standard_error:.7g}"),
+               ("coefficient of determination", f"{self.r_squared:.6f}"),
+               ("the same, adjusted for parameters", f"{self.adjusted_r_squared:.6f}")] + self._likelihood_rows(8)
+        tested = "every slope zero" if self.with_intercept else "every coefficient zero"
+        lines = (title(f"lintools least squares model of '{self.target}'") + section("Data", data)
+                 + section("Estimation", estimation) + section("Fit", fit)
+                 + section("Tests", [(f"F test, {tested}", self._f_text())])
+                 + self._closing(table, "t"))
+        return "\n".join(lines) + "\n"
 
 
 @dataclass(frozen=True)
@@ -409,36 +415,45 @@ class LogisticFit(_FitBase):
         return np.asarray(self.classes)[np.where(eta > 0, pos, 1 - pos)]
 
     def report(self, level: float = 0.95) -> str:
-        """Return a plain-text report: the fit's facts, then the coefficient table."""
+        """Return a plain-text report: title, Data, Estimation, Fit, Tests, Coefficients
+        (and profile intervals when computed), Convergence."""
         table = self.coefficient_table(level)
-        other = ", ".join(str(c) for c in self.classes)
-        method = "Firth bias-reduced (penalised) likelihood" if self.firth else (
-            f"maximum likelihood, l2 {self.l2:g}" if self.l2 else "maximum likelihood")
-        facts = [
-            f"lintools logistic fit of '{self.target}': probability of {self.positive_class!s} "
-            f"(classes {other}){'; grouped successes out of trials' if self.grouped else ''}",
-            f"  observations {self.n_observations:g}   parameters {len(table.terms)}   {method}"
-            f"{'   offset used' if self.has_offset else ''}",
-            f"  log-likelihood {self.log_likelihood:.10g}   deviance {self.deviance:.10g}   "
-            f"null deviance {self.null_deviance:.10g}",
-            f"  AIC {self.aic:.10g}   BIC {self.bic:.10g}"
-            + (f"   penalised log-likelihood {self.penalised_log_likelihood:.10g}" if self.firth or self.l2 else ""),
-        ]
-        if np.isfinite(self.lr_statistic):
-            what = "penalised likelihood ratio" if self.firth else "likelihood ratio"
-            facts.append(
-                f"  {what} against the null model: {self.lr_statistic:.6g} on "
-                f"{self.lr_degrees_of_freedom} df, p {_fmt_p(self.lr_p_value).strip()}"
-            )
-        facts.append(f"  {self.convergence.message}")
-        text = "\n".join(facts) + "\n\n" + render_table(table, "z") + "\n"
+        data = [("observations", f"{self.n_observations:g}"), ("parameters", f"{len(table.terms)}"),
+                ("classes", ", ".join(str(c) for c in self.classes)),
+                ("modelled probability", f"of {self.positive_class!s}")]
+        if self.grouped:
+            data.append(("response", "successes out of trials"))
+        if self.has_offset:
+            data.append(("offset", "used"))
+        method = "Firth bias-reduced (penalised) likelihood" if self.firth else "maximum likelihood"
+        estimation = [("method", method)] + ([("ridge penalty l2", f"{self.l2:g}")] if self.l2 else [])
+        fit = self._likelihood_rows(10)
+        if self.firth or self.l2:
+            fit.insert(1, ("penalised log-likelihood", f"{self.penalised_log_likelihood:.10g}"))
+        fit[-2:-2] = [("deviance", f"{self.deviance:.10g}"),
+                      ("deviance of the intercept-only model", f"{self.null_deviance:.10g}")]
+        lines = (title(f"lintools logistic model of '{self.target}'") + section("Data", data)
+                 + section("Estimation", estimation) + section("Fit", fit)
+                 + _likelihood_ratio_section(self, "penalised likelihood ratio" if self.firth else "likelihood ratio"))
+        closing = self._closing(table, "z")
         if self.profile_intervals is not None:
             pct = f"{100 * self.profile_level:g}%"
-            width = max(len(t) for t in table.terms)
-            lines = [f"\nprofile-{'penalised-' if self.firth else ''}likelihood {pct} intervals",
-                     "term".ljust(width) + "from".rjust(15) + "to".rjust(15)]
-            for term, (lo, hi) in zip(table.terms, self.profile_intervals):
-                lines.append(term.ljust(width) + _fmt(lo, 15) + _fmt(hi, 15))
-            text += "\n".join(lines) + "\n"
-        return text
+            terms = _shown_terms(table.terms)
+            width = max(len(t) for t in terms)
+            prof = [f"Profile-{'penalised-' if self.firth else ''}likelihood {pct} intervals",
+                    "term".ljust(width) + "from".rjust(15) + "to".rjust(15)]
+            for term, (lo, hi) in zip(terms, self.profile_intervals):
+                prof.append(term.ljust(width) + _fmt(lo, 15) + _fmt(hi, 15))
+            closing[-2:-2] = ["", *prof]
+        return "\n".join(lines + closing) + "\n"
 
+
+def _likelihood_ratio_section(fit: Any, what: str) -> list[str]:
+    """The Tests section of a likelihood fit: the ratio test against the intercept-only model
+    (none under an l2 penalty, where the statistic is NaN)."""
+    if not np.isfinite(fit.lr_statistic):
+        why = "not computed under an l2 penalty" if fit.l2 else "not defined"
+        return section("Tests", [(f"{what}, against the intercept-only model", why)])
+    return section("Tests", [(f"{what}, against the intercept-only model",
+                              f"{fit.lr_statistic:.6g} with {fit.lr_degrees_of_freedom} degrees of freedom, "
+                              f"p-value {p_text(fit.lr_p_value)}")])

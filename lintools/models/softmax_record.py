@@ -8,7 +8,8 @@ from typing import Any
 import numpy as np
 
 from ..support.errors import InputError
-from .records import INTERCEPT_NAME, CoefficientTable, _FitBase, _fmt_p, _wald_table, render_table
+from ..support.text import section, title
+from .records import INTERCEPT_NAME, CoefficientTable, _FitBase, _likelihood_ratio_section, _wald_table, render_table
 from ..support.validate import scored
 
 __all__ = ["SoftmaxFit"]
@@ -130,24 +131,18 @@ class SoftmaxFit(_FitBase):
         return _wald_table(self.parameter_terms(), est, se, level, None)
 
     def report(self, level: float = 0.95) -> str:
-        """Plain-text report: the fit's facts, then one coefficient table per estimated class."""
+        """Plain-text report: title, Data, Estimation, Fit, Tests, Coefficients (one table
+        per estimated class), Convergence."""
         table = self.coefficient_table(level)
-        method = f"maximum likelihood, l2 {self.l2:g}" if self.l2 else "maximum likelihood"
-        ref = (f"reference class {self.reference_class!s} (its coefficients are 0)" if self.reference_class is not None
-               else "symmetric form (every class has coefficients; intercepts centred)")
-        facts = [
-            f"lintools softmax fit of '{self.target}': {len(self.classes)} classes "
-            f"({', '.join(str(c) for c in self.classes)}); {ref}",
-            f"  observations {self.n_observations:g}   parameters {len(table.terms)}   {method}"
-            f"{'   offset used' if self.has_offset else ''}",
-            f"  log-likelihood {self.log_likelihood:.10g}   deviance {self.deviance:.10g}   "
-            f"null deviance {self.null_deviance:.10g}",
-            f"  AIC {self.aic:.10g}   BIC {self.bic:.10g}",
-        ]
-        if np.isfinite(self.lr_statistic):
-            facts.append(f"  likelihood ratio against the null model: {self.lr_statistic:.6g} on "
-                         f"{self.lr_degrees_of_freedom} df, p {_fmt_p(self.lr_p_value).strip()}")
-        facts.append(f"  {self.convergence.message}")
+        ref = (f"{self.reference_class!s} (its coefficients are 0)" if self.reference_class is not None
+               else "none: symmetric form, every class has coefficients, intercepts centred")
+        data = [("observations", f"{self.n_observations:g}"), ("parameters", f"{len(table.terms)}"),
+                ("classes", f"{len(self.classes)}: {', '.join(str(c) for c in self.classes)}"),
+                ("reference class", ref)] + ([("offset", "used")] if self.has_offset else [])
+        estimation = [("method", "maximum likelihood")] + ([("ridge penalty l2", f"{self.l2:g}")] if self.l2 else [])
+        fit = self._likelihood_rows(10)
+        fit[-2:-2] = [("deviance", f"{self.deviance:.10g}"),
+                      ("deviance of the intercept-only model", f"{self.null_deviance:.10g}")]
         per = len(self.names) + int(self.with_intercept)
         blocks = []
         for j, k in enumerate(self._free_columns()):
@@ -159,5 +154,7 @@ class SoftmaxFit(_FitBase):
                 distribution=table.distribution)
             versus = f" versus {self.reference_class!s}" if self.reference_class is not None else ""
             blocks.append(f"class {self.classes[k]!s}{versus}\n" + render_table(sub, "z"))
-        return "\n".join(facts) + "\n\n" + "\n\n".join(blocks) + "\n"
-
+        lines = (title(f"lintools softmax model of '{self.target}'") + section("Data", data)
+                 + section("Estimation", estimation) + section("Fit", fit)
+                 + _likelihood_ratio_section(self, "likelihood ratio") + self._closing(table, "z", blocks))
+        return "\n".join(lines) + "\n"

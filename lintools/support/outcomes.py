@@ -45,7 +45,6 @@ __all__ = [
     "sigmoid",
     "vector_in",
     "two_sided",
-    "fmt_p",
 ]
 
 #: largest accepted |row sum - 1| of a class-probability matrix
@@ -237,13 +236,6 @@ def two_sided(z: float) -> float:
     if math.isinf(z):
         return 0.0
     return float(min(1.0, 2.0 * dist.normal_sf(abs(z))))
-
-
-def fmt_p(value: float) -> str:
-    """A p-value for the text reports."""
-    if math.isnan(value):
-        return "nan"
-    return f"{value:.3g}" if value < 1e-4 else f"{value:.4f}"
 
 
 def case_weights(weights: Any, n: int) -> np.ndarray:
