@@ -22,7 +22,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..engine.losses import sigmoid
+from ..support.logistic_function import sigmoid
 
 __all__ = [
     "FEATURES", "TRUE_FILL_DEVIATION", "TRUE_LEAK", "TRUE_DEFECT", "DEFECT_CLASSES", "InspectionData",

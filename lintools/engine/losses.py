@@ -47,6 +47,7 @@ from typing import Any
 
 import numpy as np
 
+from ..support.logistic_function import halves as _halves, sigmoid
 from ..support.errors import InputError
 from ..support.threads import ELEMENT_CHUNK, add_up, for_rows
 from ..support.scaling import case_weight_scale
@@ -58,20 +59,6 @@ __all__ = ["BinomialLoss", "log1pexp", "sigmoid", "unpenalised_gradient"]
 def log1pexp(x: np.ndarray) -> np.ndarray:
     r"""Return :math:`\log(1 + e^x)` without overflow or cancellation for any finite x."""
     return np.logaddexp(0.0, x)
-
-
-def _halves(eta: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """``(mu, 1 - mu)`` with ``mu = 1 / (1 + exp(-eta))``, each to full relative accuracy."""
-    e = np.exp(-np.abs(eta))  # in (0, 1]; underflows harmlessly to 0
-    big = 1.0 / (1.0 + e)
-    small = e * big
-    pos = eta >= 0
-    return np.where(pos, big, small), np.where(pos, small, big)
-
-
-def sigmoid(eta: Any) -> np.ndarray:
-    r"""The logistic function :math:`1 / (1 + e^{-\eta})`, overflow-safe."""
-    return _halves(np.asarray(eta, dtype=float))[0]
 
 
 def _softplus_changes(eta: np.ndarray, delta: np.ndarray, mu: np.ndarray, nu: np.ndarray) -> tuple[np.ndarray, np.ndarray]:

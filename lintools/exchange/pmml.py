@@ -100,7 +100,7 @@ class DeliveredModel:
         probability of ``classes[0]`` (logistic) or the class probabilities (softmax)."""
         eta = self.linear_predictor(X)
         if self.kind == "logistic":
-            from ..engine.losses import sigmoid
+            from ..support.logistic_function import sigmoid
 
             return sigmoid(eta)
         if self.kind == "softmax":

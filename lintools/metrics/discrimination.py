@@ -15,12 +15,12 @@ import numpy as np
 
 from ..support import distributions as dist
 from ..support.errors import InputError, LintoolsWarning, warn_caller
+from ..support.logistic_function import sigmoid
 from ..support.outcomes import (
     binary_outcome,
     case_weights,
     check_level,
     finite_scores,
-    sigmoid,
     two_sided,
     unscale,
 )

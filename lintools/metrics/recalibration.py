@@ -12,7 +12,8 @@ from typing import Any
 
 import numpy as np
 
-from ..support.outcomes import binary_outcome, case_weights, finite_scores, sigmoid, vector_in
+from ..support.logistic_function import sigmoid
+from ..support.outcomes import binary_outcome, case_weights, finite_scores, vector_in
 from .temperature import TemperatureMap, temperature_scaling
 from ..support.scaling import case_weight_scale
 from ..support.validate import check_flag, weight_scale

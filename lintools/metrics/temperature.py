@@ -12,7 +12,8 @@ from typing import Any
 import numpy as np
 
 from ..support.errors import InputError, IterationLimitWarning, LintoolsWarning, SeparationError, warn_caller
-from ..support.outcomes import binary_outcome, case_weights, class_codes, sigmoid, vector_in
+from ..support.logistic_function import sigmoid
+from ..support.outcomes import binary_outcome, case_weights, class_codes, vector_in
 from ..support.scaling import case_weight_scale, scaled_back
 from ..support.validate import as_float, check_finite, as_vector, check_positive_int
 

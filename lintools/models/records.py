@@ -400,7 +400,7 @@ class LogisticFit(_FitBase):
         return scored(arr, self.coefficients, self.intercept, offset)
 
     def _mean_from(self, eta: np.ndarray) -> np.ndarray:
-        from ..engine.losses import sigmoid
+        from ..support.logistic_function import sigmoid
 
         return sigmoid(eta)
 

@@ -42,7 +42,6 @@ __all__ = [
     "finite_scores",
     "check_level",
     "fmt_number",
-    "sigmoid",
     "vector_in",
     "two_sided",
 ]
@@ -211,12 +210,6 @@ def check_level(level: Any) -> float:
     if isinstance(level, bool) or not isinstance(level, numbers.Real) or not 0.0 < float(level) < 1.0:
         raise InputError(f"level must be a number strictly between 0 and 1 (e.g. 0.95); got {level!r}")
     return float(level)
-
-
-def sigmoid(z: np.ndarray) -> np.ndarray:
-    """Overflow-safe logistic function 1 / (1 + exp(-z))."""
-    e = np.exp(-np.abs(z))
-    return np.where(z >= 0, 1.0 / (1.0 + e), e / (1.0 + e))
 
 
 def vector_in(x: Any, name: str) -> tuple[np.ndarray, bool]:
