@@ -190,7 +190,7 @@ def parse_pmml(raw: bytes, where: str) -> dict[str, Any]:
         if optype != "continuous":
             raise doc.refuse(f"has a regression model whose target '{target}' has optype {optype!r}, not 'continuous'")
         _, b0, terms = parsed[0]
-        return dict(kind=_KIND_OF["none"], names=tuple(names), coefficients=np.array([terms[n] for n in names]),
+        return dict(kind=_KIND_OF[norm], names=tuple(names), coefficients=np.array([terms[n] for n in names]),
                     intercept=b0, classes=(), target=target, categorical_fields=categorical)
     if function != "classification":
         raise doc.refuse(f"has functionName {function!r:.40}, not 'regression' or 'classification'")
@@ -202,11 +202,11 @@ def parse_pmml(raw: bytes, where: str) -> dict[str, Any]:
         if len(parsed) != 2 or any(parsed[1][2].values()) or parsed[1][1] != 0:
             raise doc.refuse("has a logit model that is not two tables with the second empty (the reference category)")
         _, b0, terms = parsed[0]
-        return dict(kind=_KIND_OF["logit"], names=tuple(names), coefficients=np.array([terms.get(n, 0.0) for n in names]),
+        return dict(kind=_KIND_OF[norm], names=tuple(names), coefficients=np.array([terms.get(n, 0.0) for n in names]),
                     intercept=b0, classes=cats, target=target, categorical_fields=categorical)
     if norm == "softmax":
         B = np.array([[terms.get(n, 0.0) for (_, _, terms) in parsed] for n in names]).reshape(len(names), len(parsed))
-        return dict(kind=_KIND_OF["softmax"], names=tuple(names), coefficients=B, intercept=np.array([b for _, b, _ in parsed]),
+        return dict(kind=_KIND_OF[norm], names=tuple(names), coefficients=B, intercept=np.array([b for _, b, _ in parsed]),
                     classes=cats, target=target, categorical_fields=categorical)
     raise doc.refuse(f"has normalizationMethod {norm!r:.40}, which lintools does not read (it reads none, logit, softmax)")
 
