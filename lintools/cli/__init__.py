@@ -50,7 +50,7 @@ from .common import (
     class_note,
     column_list,
     emit_json,
-    fit_options,
+    fit_keywords,
     match_label,
     nonnegative,
     refuse_inapplicable,
@@ -63,37 +63,33 @@ from .score import add_score_parser
 from .selfcheck import add_selfcheck_parser
 from .stability import add_stability_parser
 from .table_options import add_table_options, table_options
+from ..models.kinds import KINDS
 from ..support.errors import InputError, IterationLimitWarning, LintoolsError
 
 __all__ = ["CAUTION", "build_parser", "main"]
 
 #: ``--model`` values and the kinds of model they fit.
-MODELS = {"linear": "least_squares", "logistic": "logistic", "softmax": "softmax"}
+MODELS = {k.command: k.name for k in KINDS.values()}
 
 
 def _fit_table(table: Any, args: argparse.Namespace, progress: Progress) -> Any:
-    intercept = not args.no_intercept
-    if args.model == "linear":
-        from ..models.least_squares import least_squares
+    kind = KINDS[MODELS[args.model]]
+    if kind.classifier:
+        y: Any = list(table.target)
+    elif not all(isinstance(v, (int, float)) for v in table.target):
+        raise InputError(f"target column '{args.target}' holds text; a {args.model} model needs numbers")
+    else:
+        y = np.array(table.target, dtype=float)
+    def labels() -> list:
+        return sorted(set(table.target), key=str)
 
-        if not all(isinstance(v, (int, float)) for v in table.target):
-            raise InputError(f"target column '{args.target}' holds text; a linear model needs numbers")
-        return least_squares(
-            table.X, np.array(table.target, dtype=float), weights=table.weights, intercept=intercept, l2=args.l2,
-            covariance=args.covariance or "classical", names=table.names,
-            rank_deficient="minimum_norm" if args.minimum_norm else "raise", weight_type=args.weight_type or "case",
-        )
-    labels = sorted(set(table.target), key=str)
-    common = dict(weights=table.weights, intercept=intercept, l2=args.l2, names=table.names, on_iteration=progress,
-                  **fit_options(args))
-    if args.model == "logistic":
-        from ..models.logistic import logistic
-
-        positive = match_label(args.positive, labels, "--positive") if args.positive is not None else None
-        return logistic(table.X, list(table.target), positive=positive, firth=args.firth, **common)
-    from ..models.softmax import softmax
-
-    return softmax(table.X, list(table.target), reference=_reference(args, labels), **common)
+    words = fit_keywords(
+        kind, args, progress, covariance=args.covariance or "classical",
+        positive=lambda: match_label(args.positive, labels(), "--positive") if args.positive is not None else None,
+        reference=lambda: _reference(args, labels()),
+    )
+    return kind.fit(table.X, y, weights=table.weights, intercept=not args.no_intercept, l2=args.l2,
+                    names=table.names, **words)
 
 
 def _reference(args: argparse.Namespace, labels: list) -> Any:
@@ -127,8 +123,8 @@ def _cmd_fit(args: argparse.Namespace) -> int:
         from ..support.categories import with_references
 
         fit = with_references(fit, table.reference_levels, "fit")
-    note = class_note(fit, {"logistic": "choose with --positive",
-                            "softmax": "choose with --reference, or --symmetric with --l2"})
+    note = class_note(fit, positive_hint="choose with --positive",
+                      classes_hint="choose with --reference, or --symmetric with --l2")
     if note:
         console.note(note)
     if table.dropped:

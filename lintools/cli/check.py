@@ -38,7 +38,7 @@ from .common import (
     add_fit_options,
     class_note,
     emit_json,
-    fit_options,
+    fit_keywords,
     fraction,
     implied_words,
     match_label,
@@ -50,6 +50,7 @@ from .common import (
     SMALL_SEGMENT_ROWS,
 )
 from .console import CAUTION, report_text
+from ..models.kinds import KINDS
 from ..support.errors import InputError, IterationLimitWarning, LintoolsError
 from ..support.text import p_text
 
@@ -89,14 +90,15 @@ def read_delivered(path: str) -> Delivered:
             covariance_type=getattr(fit, "covariance_type", None), file_format="lintools JSON model file",
             reference=getattr(fit, "reference_class", "first"), categorical_fields=tuple(fit.categorical_fields),
         )
+    kind = KINDS[m.kind]
     reference: Any = "first"
-    if m.kind == "softmax":  # a class whose table is all zero was the reference class
+    if kind.per_class:  # a class whose table is all zero was the reference class
         zero = [c for k, c in enumerate(m.classes)
                 if not np.any(np.asarray(m.coefficients)[:, k]) and np.asarray(m.intercept)[k] == 0.0]
         reference = zero[0] if len(zero) == 1 else "first"
     return Delivered(
         kind=m.kind, names=tuple(m.names), coefficients=np.asarray(m.coefficients), intercept=m.intercept,
-        classes=tuple(m.classes), positive=m.classes[0] if m.kind == "logistic" else None, target=m.target,
+        classes=tuple(m.classes), positive=m.classes[0] if kind.classes == 2 else None, target=m.target,
         l2=None, covariance_type=None, file_format="PMML 4.4 RegressionModel", reference=reference,
         categorical_fields=tuple(m.categorical_fields),
     )
@@ -183,42 +185,25 @@ def _refuse_by(args: argparse.Namespace, target: str, columns: Any) -> None:
 def _refit(d: Delivered, labels: list, weights: Any, X: np.ndarray, target: str, args: argparse.Namespace,
            progress: Progress) -> Any:
     """The refit of the delivered kind of model on ``X`` and the target values ``labels``."""
+    kind = KINDS[d.kind]
     l2 = args.l2 if args.l2 is not None else (d.l2 or 0.0)
-    with_b = d.intercept is not None
-    if d.kind == "least_squares":
-        from ..models.least_squares import least_squares
-
+    found = sorted(set(labels), key=str) if kind.classifier else []
+    if not kind.classifier:
         if not all(isinstance(v, (int, float)) for v in labels):
-            raise InputError(f"target column '{target}' holds text; a least-squares model needs numbers")
-        fit = least_squares(
-            X, np.array(labels, dtype=float), weights=weights, intercept=with_b, l2=l2,
-            covariance=args.covariance or d.covariance_type or "classical", names=d.names,
-            rank_deficient="minimum_norm" if args.minimum_norm else "raise", weight_type=args.weight_type or "case",
-        )
-    elif d.kind == "logistic":
-        from ..models.logistic import logistic
-
-        found = sorted(set(labels), key=str)
-        if len(found) != 2:
-            raise InputError(f"target column '{target}' has {len(found)} distinct labels; a logistic model needs two")
-        if args.positive is not None:
-            positive = match_label(args.positive, found, "--positive")
-        else:
-            positive = _positive_in(d.positive, found)
-        fit = logistic(
-            X, labels, weights=weights, intercept=with_b, l2=l2, firth=args.firth,
-            names=d.names, on_iteration=progress, positive=positive, **fit_options(args),
-        )
+            raise InputError(f"target column '{target}' holds text; a {kind.words} model needs numbers")
+        y: Any = np.array(labels, dtype=float)
+    elif kind.classes and len(found) != kind.classes:
+        raise InputError(f"target column '{target}' has {len(found)} distinct labels; a {kind.words} model needs two")
     else:
-        from ..models.softmax import softmax
-
-        reference = d.reference
-        if reference not in ("first", None):
-            reference = match_label(str(reference), sorted(set(labels), key=str), "the model's reference class")
-        fit = softmax(
-            X, labels, weights=weights, intercept=with_b, l2=l2, reference=reference,
-            names=d.names, on_iteration=progress, **fit_options(args),
-        )
+        y = labels
+    words = fit_keywords(
+        kind, args, progress, covariance=args.covariance or d.covariance_type or "classical",
+        positive=lambda: (match_label(args.positive, found, "--positive") if args.positive is not None
+                          else _positive_in(d.positive, found)),
+        reference=lambda: (d.reference if d.reference in ("first", None)
+                           else match_label(str(d.reference), found, "the model's reference class")),
+    )
+    fit = kind.fit(X, y, weights=weights, intercept=d.intercept is not None, l2=l2, names=d.names, **words)
     return dataclasses.replace(fit, target=target)
 
 
@@ -268,10 +253,11 @@ def _judge(d: Delivered, fit: Any, X: np.ndarray, labels: list, weights: Any, ar
     verdict; ``warned``: an iteration-limit warning was raised by this refit."""
     from ..exchange.crosscheck import compare_coefficients
 
+    kind = KINDS[d.kind]
     coef, intercept, note = d.coefficients, d.intercept, None
-    if d.kind == "softmax":
+    if kind.per_class:
         coef, intercept, note = _softmax_delivered(d, fit)
-    y = np.array(labels, dtype=float) if d.kind == "least_squares" else labels
+    y = labels if kind.classifier else np.array(labels, dtype=float)
     cmp = compare_coefficients(fit, coef, intercept, X=X, y=y, weights=weights)
     reasons = []
     if cmp.wald_p_value < args.significance:
@@ -279,8 +265,7 @@ def _judge(d: Delivered, fit: Any, X: np.ndarray, labels: list, weights: Any, ar
                        f"(p-value {p_text(cmp.wald_p_value)})")
     gap = cmp.max_abs_prediction_difference
     if args.max_difference is not None and gap is not None and gap > args.max_difference:
-        what = "response" if d.kind == "least_squares" else "probability"
-        reasons.append(f"the largest difference in predicted {what} ({gap:.3g}) exceeds --max-difference "
+        reasons.append(f"the largest difference in predicted {kind.predicts} ({gap:.3g}) exceeds --max-difference "
                        f"{args.max_difference:g}")
     converged = fit.convergence.converged and not warned
     return {"comparison": cmp, "note": note, "reasons": reasons, "converged": converged,
@@ -320,15 +305,15 @@ def cross_check(args: argparse.Namespace, d: Delivered, table: Any, X: np.ndarra
     since = len(caught)
     fit = _refit(d, labels, table.weights, X, target, args, Progress(args.quiet, "refit"))
     chosen = "chosen with --positive" if args.positive is not None else "as in the model file; choose with --positive"
-    note_words = class_note(fit, {"logistic": chosen,
-                                  "softmax": "as in the model file"})
+    note_words = class_note(fit, positive_hint=chosen, classes_hint="as in the model file")
     if note_words:
         args.console.note(note_words)
     whole = _judge(d, fit, X, labels, table.weights, args, _iteration_warned(caught, since))
     coef, intercept, y = whole["coef"], whole["intercept"], whole["y"]
     implied = None
-    if d.kind in ("least_squares", "logistic") and np.any(coef):
-        yy = y if d.kind == "least_squares" else np.array([v == fit.positive_class for v in y])
+    kind = KINDS[d.kind]
+    if not kind.per_class and np.any(coef):  # a model of one output: its implied ridge strength
+        yy = np.array([v == fit.positive_class for v in y]) if kind.classifier else y
         implied = implied_l2(X, yy, coef, intercept, model=d.kind, weights=table.weights)
     total = float(table.weights.sum()) if table.weights is not None else float(X.shape[0])
     implied_text = None if implied is None else implied_words(implied, total)
@@ -379,7 +364,7 @@ def _coefficients(d: Delivered) -> int:
 
 
 def _small_rule(d: Delivered) -> str:
-    unit = "rows per coefficient" if d.kind == "least_squares" else "rows of its smallest class per coefficient"
+    unit = "rows of its smallest class per coefficient" if KINDS[d.kind].classifier else "rows per coefficient"
     return (f"fewer than {SMALL_SEGMENT_ROWS} {unit} ({_coefficients(d)} per equation; common practice: ten "
             "events per variable); its refit is unstable and its test has little power")
 
@@ -393,12 +378,12 @@ def _segment_blocks(d: Delivered, fit: Any, table: Any, X: np.ndarray, labels: l
     for value, (rows,) in segments(table.extra[args.by]):
         seg_labels = [v for v, r in zip(labels, rows) if r]
         w = None if table.weights is None else table.weights[rows]
-        if d.kind == "least_squares":
-            smallest = None
-            size = len(seg_labels)
-        else:
+        if KINDS[d.kind].classifier:
             smallest = min(sum(1 for v in seg_labels if v == c) for c in fit.classes)
             size = smallest
+        else:
+            smallest = None
+            size = len(seg_labels)
         block = {"segment": value, "rows": len(seg_labels), "smallest_class_rows": smallest,
                  "small": size < SMALL_SEGMENT_ROWS * _coefficients(d), "refit": None, "comparison": None,
                  "note": None, "reasons": [], "refit_converged": None, "agree": None, "problem": None}

@@ -19,6 +19,7 @@ from typing import Any, Callable, Iterable, Sequence
 
 import numpy as np
 
+from ..models.kinds import KINDS, ModelKind
 from ..support.errors import InputError
 from ..support.files import check_outputs
 
@@ -219,20 +220,9 @@ def check_output_paths(inputs: Iterable[tuple[str, Any]], outputs: Iterable[tupl
 
 
 #: Options of ``fit`` and ``check`` that apply to some kinds of model only (argparse
-#: dest -> the kinds they apply to).
-ONLY_FOR = {
-    "covariance": ("least_squares",),
-    "minimum_norm": ("least_squares",),
-    "weight_type": ("least_squares",),
-    "solver": ("logistic", "softmax"),
-    "tol": ("logistic", "softmax"),
-    "max_iter": ("logistic", "softmax"),
-    "firth": ("logistic",),
-    "positive": ("logistic",),
-    "reference": ("softmax",),
-    "symmetric": ("softmax",),
-}
-KIND_WORDS = {"least_squares": "least-squares", "logistic": "logistic", "softmax": "softmax"}
+#: dest -> the kinds they apply to, from the kinds' ``options`` in the registry).
+ONLY_FOR = {dest: tuple(k.name for k in KINDS.values() if dest in k.options)
+            for dest in dict.fromkeys(d for k in KINDS.values() for d in k.options)}
 COVARIANCES = ("classical", "HC0", "HC1", "HC2", "HC3")
 SOLVERS = ("newton", "lbfgs", "gradient")
 
@@ -272,24 +262,50 @@ def refuse_inapplicable(args: argparse.Namespace, kind: str, where: str) -> None
     for dest, kinds in ONLY_FOR.items():
         value = getattr(args, dest, None)
         if value is not None and value is not False and kind not in kinds:
-            applies = " and ".join(KIND_WORDS[k] for k in kinds)
-            raise InputError(f"--{dest.replace('_', '-')} does not apply to {where} (a {KIND_WORDS[kind]} model); "
+            applies = " and ".join(KINDS[k].words for k in kinds)
+            raise InputError(f"--{dest.replace('_', '-')} does not apply to {where} (a {KINDS[kind].words} model); "
                              f"it applies to {applies} models only: leave it out")
 
 
-def class_note(fit: Any, hints: dict[str, str]) -> str | None:
-    """Which class a fitted classifier models, in words, followed by ``hints[fit.kind]``
-    (how to choose it); None for a least-squares fit."""
-    if fit.kind == "logistic":
-        other = [c for c in fit.classes if c != fit.positive_class]
-        against = f" against '{other[0]!s}'" if other else ""
-        return f"modelling the probability of class '{fit.positive_class!s}'{against} ({hints['logistic']})"
-    if fit.kind == "softmax":
+def fit_keywords(kind: ModelKind, args: argparse.Namespace, progress: Any, *, covariance: str,
+                 positive: Callable[[], Any], reference: Callable[[], Any]) -> dict:
+    """The keyword arguments of ``kind.fit`` that come from the options applying to ``kind``
+    (its ``options``); ``positive`` and ``reference`` give the class choices and are called
+    (they may refuse) only for a kind that has them."""
+    options = kind.options
+    words: dict[str, Any] = {}
+    if "covariance" in options:
+        words["covariance"] = covariance
+    if "minimum_norm" in options:
+        words["rank_deficient"] = "minimum_norm" if args.minimum_norm else "raise"
+    if "weight_type" in options:
+        words["weight_type"] = args.weight_type or "case"
+    if "solver" in options:
+        words.update(on_iteration=progress, **fit_options(args))
+    if "firth" in options:
+        words["firth"] = args.firth
+    if "positive" in options:
+        words["positive"] = positive()
+    if "reference" in options:
+        words["reference"] = reference()
+    return words
+
+
+def class_note(fit: Any, *, positive_hint: str, classes_hint: str) -> str | None:
+    """Which class a fitted classifier models, in words, followed by how to choose it:
+    ``positive_hint`` for a model of one class's probability, ``classes_hint`` for one of
+    every class's; None for a model of a response."""
+    kind = KINDS[fit.kind]
+    if not kind.classifier:
+        return None
+    if kind.per_class:
         quoted = ", ".join(f"'{c!s}'" for c in fit.classes)
         ref = (f"the coefficients of class '{fit.reference_class!s}' are pinned at zero"
                if fit.reference_class is not None else "symmetric form, intercepts with mean zero")
-        return f"modelling the probabilities of classes {quoted}; {ref} ({hints['softmax']})"
-    return None
+        return f"modelling the probabilities of classes {quoted}; {ref} ({classes_hint})"
+    other = [c for c in fit.classes if c != fit.positive_class]
+    against = f" against '{other[0]!s}'" if other else ""
+    return f"modelling the probability of class '{fit.positive_class!s}'{against} ({positive_hint})"
 
 
 #: A segment of ``--by`` with fewer rows than this per unit of its command's rule (a bin of

@@ -34,6 +34,7 @@ import numpy as np
 
 from .common import add_fit_options, check_output_paths, clean, emit_json, fraction, nonnegative, refuse_inapplicable, whole
 from .console import CAUTION
+from ..models.kinds import KINDS
 from ..support.errors import InputError
 
 #: The name of the delivered model's probability among the compared columns.
@@ -102,8 +103,8 @@ def write_report(args: argparse.Namespace) -> dict[str, Any]:
     check_output_paths([("model file", args.model), ("CSV file", args.csv), ("--recent", args.recent)],
                        [("--out", args.out), ("--twin", twin)], args.replace)
     d = read_delivered(args.model)
-    if d.kind != "logistic":
-        raise InputError(f"the delivered model is a {d.kind.replace('_', '-')} model; the report judges binary "
+    if KINDS[d.kind].classes != 2:
+        raise InputError(f"the delivered model is a {KINDS[d.kind].words} model; the report judges binary "
                          "logistic models (their probabilities): use lintools check for the refit of this one")
     refuse_inapplicable(args, d.kind, "the delivered model")
     band_column = None if args.bands is None or args.bands.isdigit() else args.bands

@@ -35,6 +35,7 @@ from typing import Any
 import numpy as np
 
 from .common import check_output_paths, emit_json
+from ..models.kinds import KINDS
 from ..support.errors import InputError
 
 #: the output column that stands for the row when no ``--id`` is given
@@ -42,10 +43,10 @@ LINE_COLUMN = "line"
 
 
 def _output_columns(model: Any) -> list[str]:
-    kind = model.kind
-    if kind == "least_squares":
+    kind = KINDS[model.kind]
+    if not kind.classifier:
         return ["linear_predictor", "mean"]
-    if kind == "logistic":
+    if not kind.per_class:
         return ["linear_predictor", f"probability:{_positive(model)!s}", "label"]
     classes = [str(c) for c in model.classes]
     return [f"linear_predictor:{c}" for c in classes] + [f"probability:{c}" for c in classes] + ["label"]
@@ -62,7 +63,7 @@ def _scores(model: Any, X: np.ndarray, number: Any) -> list[list[str]]:
     mean = np.asarray(model.mean(X), dtype=float)
     parts = [eta.reshape(len(X), -1), mean.reshape(len(X), -1)]
     cells = [[number(v) for v in row] for row in np.hstack(parts).tolist()]
-    if model.kind != "least_squares":
+    if KINDS[model.kind].classifier:
         for row, label in zip(cells, model.labels(X).tolist()):
             row.append(str(label))
     return cells
@@ -163,7 +164,7 @@ def run_score(args: argparse.Namespace) -> int:
         writer.writerow([label] + scored.get(line, blank))
     write_atomic(args.out, text.getvalue(), replace=args.replace, label="--out", replace_hint="--replace")
     n_blank = len(every) - len(scored)
-    kind = {"least_squares": "least-squares", "logistic": "logistic", "softmax": "softmax"}[model.kind]
+    kind = KINDS[model.kind].words
     if args.json:
         emit_json({"model": args.model, "kind": model.kind, "data": args.csv, "rows": len(every),
                    "scored": len(scored), "blank_missing": n_blank, "written": args.out,

@@ -33,13 +33,12 @@ import numpy as np
 from ..support import distributions as dist
 from ..support.errors import InputError
 from ..support.text import p_text
-from ..models.logistic import score_and_information as binary_score
-from ..models.softmax import score_and_information as multinomial_score
+from ..models.kinds import KINDS, kind_of
+from ..models.lsq_score import SCORE_UNDEFINED
 from ..support.validate import (
     INTERCEPT_NAME,
     as_float,
     as_matrix,
-    as_vector,
     as_weights,
     check_choice,
     power_of_two,
@@ -167,7 +166,7 @@ def _align(fit: Any, coefficients: Any, intercept: Any, names: Any) -> tuple[np.
 
 def _free_vector(fit: Any, coef: np.ndarray, intercept: Any) -> tuple[np.ndarray, np.ndarray]:
     """Parameter vector in the order of ``fit.covariance`` and the index of the compared ones."""
-    if fit.kind == "softmax":
+    if KINDS[fit.kind].per_class:
         return fit._free_parameters(coef, intercept)
     with_b = fit.with_intercept
     b = float(fit.intercept) if intercept is None else float(intercept)
@@ -210,7 +209,7 @@ def compare_coefficients(
     -------
     CoefficientComparison
     """
-    if getattr(fit, "kind", None) not in ("least_squares", "logistic", "softmax") or not hasattr(fit, "covariance"):
+    if kind_of(fit) is None or not hasattr(fit, "covariance"):
         raise InputError(f"fit must be a lintools fit record (from least_squares, logistic or softmax); "
                          f"got {type(fit).__name__}")
     coef, b_deliv = _align(fit, coefficients, intercept, names)
@@ -282,28 +281,15 @@ def compare_coefficients(
     )
 
 
-SCORE_UNDEFINED = (
-    "the score test at the delivered coefficients is undefined: {why}; compare without y= (the "
-    "Wald test needs no data), or pass rows that identify every coefficient"
-)
-
-
 def _mean(fit: Any, Xa: np.ndarray, coef: np.ndarray, b: Any) -> np.ndarray:
-    if fit.kind == "least_squares":
-        return Xa @ coef + float(b)
-    return fit._mean_from(Xa @ coef + b)
+    return KINDS[fit.kind].mean_of(Xa @ coef + b)
 
 
 def _score_statistic(fit, Xa, y, weights, coef, b, idx) -> float:
     """``U' I^{-1} U`` at the delivered coefficients (penalised objective when l2 > 0)."""
     free_intercept = fit.with_intercept and 0 not in idx
     with np.errstate(all="ignore"):  # an overflow shows as a non-finite score, refused below
-        if fit.kind == "logistic":
-            U, info = binary_score(fit, Xa, y, weights, coef, b, free_intercept)
-        elif fit.kind == "softmax":
-            U, info = multinomial_score(fit, Xa, y, weights, coef, b, free_intercept)
-        else:
-            U, info = _linear_score(fit, Xa, y, weights, coef, b, free_intercept)
+        U, info = KINDS[fit.kind].score_and_information(fit, Xa, y, weights, coef, b, free_intercept)
         if not (np.all(np.isfinite(U)) and np.all(np.isfinite(info))):
             raise InputError(SCORE_UNDEFINED.format(
                 why="the score or the information overflows (a value beyond the float64 range): X or the "
@@ -325,28 +311,6 @@ def _score_statistic(fit, Xa, y, weights, coef, b, idx) -> float:
     if not np.isfinite(stat):
         raise InputError(SCORE_UNDEFINED.format(why="the statistic exceeds the float64 range"))
     return max(stat, 0.0)
-
-
-def _linear_score(fit, Xa, y, weights, coef, b, free_intercept) -> tuple[np.ndarray, np.ndarray]:
-    """Score and information of least squares at the delivered coefficients (restricted variance)."""
-    n = Xa.shape[0]
-    ya = as_vector(y, "y", n)
-    w = as_weights(weights, n)
-    if free_intercept:  # constrained estimate of the nuisance intercept
-        b = float(w @ (ya - Xa @ coef)) / float(w.sum())
-    Z = np.column_stack([np.ones(n), Xa]) if fit.with_intercept else Xa
-    r = ya - Z @ np.concatenate([[float(b)] if fit.with_intercept else [], coef])
-    off = int(fit.with_intercept)
-    pen = np.zeros(Z.shape[1])
-    pen[off:] = fit.l2
-    n_obs = w.sum() if fit.weight_type == "case" else float((w > 0).sum())
-    sigma2 = float(w @ (r * r)) / n_obs  # restricted (score-test) variance estimate
-    if not sigma2 > 0:
-        raise InputError(SCORE_UNDEFINED.format(
-            why="the delivered coefficients fit these rows exactly (every residual is zero)"))
-    U = (Z.T @ (w * r) - pen * np.concatenate([[0.0] * off, coef])) / sigma2
-    info = (Z.T @ (Z * w[:, None]) + np.diag(pen)) / sigma2
-    return U, info
 
 
 @dataclass(frozen=True)
@@ -383,7 +347,8 @@ def implied_l2(
     ``"softmax"``; the losses are this library's (half the weighted residual sum of
     squares, or the negative weighted log-likelihood).
     """
-    check_choice(model, "model", ("least_squares", "logistic", "softmax"))
+    check_choice(model, "model", tuple(KINDS))
+    kind = KINDS[model]
     Xa, _ = as_matrix(X, "X")
     n = Xa.shape[0]
     w = as_weights(weights, n)
@@ -392,25 +357,16 @@ def implied_l2(
         intercept = _numbers(intercept, "intercept")
     if beta.shape[0] != Xa.shape[1]:
         raise InputError(f"coefficients has {beta.shape[0]} rows but X has {Xa.shape[1]} columns")
-    if beta.ndim != (2 if model == "softmax" else 1):
-        want = "(columns, classes): one column per class" if model == "softmax" else "1-D: one per column of X"
+    if beta.ndim != (2 if kind.per_class else 1):
+        want = "(columns, classes): one column per class" if kind.per_class else "1-D: one per column of X"
         raise InputError(f"coefficients has shape {beta.shape}; a {model} model needs {want}")
     if intercept is not None and intercept.shape != beta.shape[1:]:
-        want = f"({beta.shape[1]},): one per class" if model == "softmax" else "a single number"
+        want = f"({beta.shape[1]},): one per class" if kind.per_class else "a single number"
         raise InputError(f"intercept has shape {intercept.shape}; a {model} model needs {want}")
     if not np.any(beta):
         raise InputError("coefficients are all zero; no l2 is identified by them")
     with np.errstate(all="ignore"):  # an overflow shows as a non-finite gradient, refused below
-        if model == "least_squares":
-            ya = as_vector(y, "y", n)
-            b = 0.0 if intercept is None else float(intercept)
-            r = ya - Xa @ beta - b
-            g = -(Xa.T @ (w * r))
-            g0 = -float(w @ r) if intercept is not None else 0.0
-        else:
-            from ..engine.losses import unpenalised_gradient  # binomial and multinomial losses
-
-            g, g0 = unpenalised_gradient(model, Xa, y, w, beta, intercept)
+        g, g0 = kind.gradient(Xa, y, w, beta, intercept)
         gb, bb = np.ravel(g), np.ravel(beta)
         if not (np.all(np.isfinite(gb)) and np.all(np.isfinite(g0))):
             raise InputError(

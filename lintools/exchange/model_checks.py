@@ -30,6 +30,7 @@ from typing import Any, Callable
 
 import numpy as np
 
+from ..models.kinds import KINDS
 from ..support.categories import field_layout
 from ..support.errors import InputError
 from ..support.validate import check_names
@@ -116,14 +117,14 @@ def _label_in(label: Any, classes: tuple) -> bool:
 def check_record(rec: Any, refuse: Refuse) -> None:
     """Raise ``refuse(field, problem)`` for the first field of ``rec`` that disagrees with
     the others (see the module docstring); return None when the record is consistent."""
-    kind = rec.kind
+    kind = KINDS[rec.kind]
     try:
         check_names(rec.names, len(rec.names), None)
     except InputError as exc:
         raise refuse("record.names", f"cannot be used ({exc})") from None
     p = len(rec.names)
     wi = bool(rec.with_intercept)
-    if kind == "softmax":
+    if kind.per_class:
         _labels(rec.classes, "record.classes", refuse)
         K = len(rec.classes)
         if rec.reference_class is None:
@@ -139,8 +140,8 @@ def check_record(rec: Any, refuse: Refuse) -> None:
         coef_shape, b_shape, n_free = (p, K), (K,), (p + wi) * len(free)
     else:
         coef_shape, b_shape, n_free = (p,), (), p + wi
-        if kind == "logistic":
-            _labels(rec.classes, "record.classes", refuse, exactly=2)
+        if kind.classifier:
+            _labels(rec.classes, "record.classes", refuse, exactly=kind.classes)
             if not _label_in(rec.positive_class, rec.classes):
                 raise refuse("record.positive_class", f"{rec.positive_class!r:.80} is not one of the classes "
                                                       f"{rec.classes!r:.80}")
@@ -165,7 +166,7 @@ def check_record(rec: Any, refuse: Refuse) -> None:
     if V.size and float(np.max(np.abs(V - V.T))) > _RTOL * scale:
         raise refuse("record.covariance", "is not symmetric")
     # standard errors in covariance order: intercept first, then the slopes, per free class
-    if kind == "softmax":
+    if kind.per_class:
         A = np.vstack([se_b[None, :], S]) if wi else S
         se = np.ravel(A[:, free], order="F")
         for k in sorted(set(range(len(rec.classes))) - set(free)):
@@ -186,27 +187,32 @@ def check_record(rec: Any, refuse: Refuse) -> None:
         raise refuse("record.convergence", "is not a convergence record")
     _integer(conv.iterations, "record.convergence.iterations", refuse, 0, 2**31)
     _number(conv.gradient_norm, "record.convergence.gradient_norm", refuse, low=0.0, nan=True, inf=True)
-    if kind == "least_squares":
+    if not kind.classifier:
         _check_linear(rec, p, wi, refuse)
-    elif kind == "logistic":
-        _integer(rec.lr_degrees_of_freedom, "record.lr_degrees_of_freedom", refuse, 0, p)
-        if rec.firth and rec.l2 != 0:
-            raise refuse("record.firth", "is true but l2 is not 0; Firth's penalty is not combined with l2")
-        if rec.profile_intervals is not None:
-            _number(rec.profile_level, "record.profile_level", refuse, positive=True)
-            if not rec.profile_level < 1:
-                raise refuse("record.profile_level", f"is {rec.profile_level!r}; it must lie below 1")
-            arr = np.asarray(rec.profile_intervals)
-            if arr.dtype != np.float64 or arr.shape != (p + wi, 2):
-                raise refuse("record.profile_intervals", f"has shape {arr.shape}; one row (from, to) per "
-                                                         f"coefficient gives {(p + wi, 2)}")
     else:
-        _integer(rec.lr_degrees_of_freedom, "record.lr_degrees_of_freedom", refuse, 0, p * len(rec.classes))
+        _integer(rec.lr_degrees_of_freedom, "record.lr_degrees_of_freedom", refuse, 0,
+                 p * kind.outputs(len(rec.classes)))
+    if kind.classes == 2:
+        _check_binary(rec, p, wi, refuse)
     if getattr(rec, "categorical_fields", ()):
         try:
             field_layout(rec.names, rec.categorical_fields)
         except InputError as exc:
             raise refuse("record.categorical_fields", f"disagree with the names ({exc})") from None
+
+
+def _check_binary(rec: Any, p: int, wi: bool, refuse: Refuse) -> None:
+    """The fields of a binary model's record: Firth's penalty and profile intervals."""
+    if rec.firth and rec.l2 != 0:
+        raise refuse("record.firth", "is true but l2 is not 0; Firth's penalty is not combined with l2")
+    if rec.profile_intervals is not None:
+        _number(rec.profile_level, "record.profile_level", refuse, positive=True)
+        if not rec.profile_level < 1:
+            raise refuse("record.profile_level", f"is {rec.profile_level!r}; it must lie below 1")
+        arr = np.asarray(rec.profile_intervals)
+        if arr.dtype != np.float64 or arr.shape != (p + wi, 2):
+            raise refuse("record.profile_intervals", f"has shape {arr.shape}; one row (from, to) per "
+                                                     f"coefficient gives {(p + wi, 2)}")
 
 
 _COVARIANCE_TYPES = ("classical", "HC0", "HC1", "HC2", "HC3")

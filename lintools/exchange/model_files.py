@@ -43,8 +43,8 @@ from typing import Any
 import numpy as np
 
 from ..support.categories import CategoricalField
-from ..models.records import CoefficientTable, Convergence, LinearFit, LogisticFit
-from ..models.softmax_record import SoftmaxFit
+from ..models.kinds import KINDS
+from ..models.records import CoefficientTable, Convergence
 from ..support.errors import InputError
 from ..support.files import file_path, read_bounded, write_atomic
 from .model_checks import check_record
@@ -157,7 +157,7 @@ def _parse_numbers(raw: bytes, start: int, stop: int) -> Any:
 #: list: a class is readable from a file only when it is named here)
 RECORD_TYPES: dict[str, type] = {
     cls.__name__: cls
-    for cls in (CategoricalField, CoefficientTable, Convergence, LinearFit, LogisticFit, SoftmaxFit)
+    for cls in (CategoricalField, CoefficientTable, Convergence) + tuple(k.record for k in KINDS.values())
 }
 
 

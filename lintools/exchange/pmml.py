@@ -41,6 +41,7 @@ from ..support.errors import InputError
 from ..support.files import file_path, read_bounded, write_atomic
 from ..support.text import intercept_label, section, title
 from ..support.categories import CategoricalField
+from ..models.kinds import KINDS, ModelKind, kind_of
 from .pmml_categories import write_inputs, write_terms
 from .pmml_read import NAMESPACES, parse_pmml
 from ..support.validate import (
@@ -87,6 +88,13 @@ class DeliveredModel:
     source: str = ""
     categorical_fields: tuple[CategoricalField, ...] = ()
 
+    def _kind(self) -> ModelKind:
+        kind = kind_of(self)
+        if kind is None:
+            raise InputError(f"this delivered model has kind {self.kind!r:.40}, which is not one of "
+                             f"{', '.join(KINDS)}; read models with read_pmml or lintools.load")
+        return kind
+
     def linear_predictor(self, X: Any) -> np.ndarray:
         """``intercept + X @ coefficients`` for new rows ``X`` (columns in ``names`` order)."""
         arr, _ = as_matrix(X, "X")
@@ -98,39 +106,32 @@ class DeliveredModel:
     def mean(self, X: Any) -> np.ndarray:
         """The model's prediction for new rows: the response (least squares), the
         probability of ``classes[0]`` (logistic) or the class probabilities (softmax)."""
-        eta = self.linear_predictor(X)
-        if self.kind == "logistic":
-            from ..support.logistic_function import sigmoid
-
-            return sigmoid(eta)
-        if self.kind == "softmax":
-            from ..engine.multinomial import softmax_parts
-
-            return softmax_parts(np.asarray(eta, dtype=float))[0]
-        return eta
+        return self._kind().mean_of(self.linear_predictor(X))
 
     def labels(self, X: Any) -> np.ndarray:
         """The most probable class of each row (a classifier's): for logit ``classes[0]``
         where its linear predictor is above 0, else ``classes[1]``; for softmax the class
         with the largest linear predictor (the first of equal ones)."""
-        if self.kind not in ("logistic", "softmax"):
+        kind = self._kind()
+        if not kind.classifier:
             raise InputError(f"labels() applies to classification models; this is a {self.kind} model")
         eta = self.linear_predictor(X)
-        if self.kind == "logistic":
-            return np.asarray(self.classes)[np.where(eta > 0, 0, 1)]
-        return np.asarray(self.classes)[np.argmax(eta, axis=1)]
+        if kind.per_class:
+            return np.asarray(self.classes)[np.argmax(eta, axis=1)]
+        return np.asarray(self.classes)[np.where(eta > 0, 0, 1)]
 
     def report(self) -> str:
         """A plain-text account of the model: title, Data (target, source, classes),
         Coefficients (one column per class for softmax) and the categorical inputs."""
+        kind = self._kind()
         data = [("target", self.target)] + ([("source", str(self.source))] if self.source else [])
-        if self.kind == "logistic":
-            data += [("classes", ", ".join(map(str, self.classes))), ("modelled probability", f"of {self.classes[0]!s}")]
-        elif self.kind == "softmax":
+        if kind.per_class:
             data.append(("classes", f"{len(self.classes)}: {', '.join(map(str, self.classes))}"))
+        elif kind.classifier:
+            data += [("classes", ", ".join(map(str, self.classes))), ("modelled probability", f"of {self.classes[0]!s}")]
         B = np.asarray(self.coefficients, dtype=float).reshape(len(self.names), -1)
         b = np.atleast_1d(np.asarray(self.intercept, dtype=float))
-        cols = [str(c) for c in self.classes] if self.kind == "softmax" else ["coefficient"]
+        cols = [str(c) for c in self.classes] if kind.per_class else ["coefficient"]
         label = intercept_label(self.names)
         width = max([len(n) for n in self.names] + [len(label), 4])
         lines = title(f"delivered {self.kind} model of '{self.target}'") + section("Data", data)
@@ -173,18 +174,18 @@ def _writable(fit: Any, target: str) -> list[str]:
     return labels
 
 
-def _terms(fit: Any, kind: str, labels: list[str]) -> tuple[np.ndarray, np.ndarray]:
-    """The intercepts (K,) and coefficients (p, K) to write (K = 1 but for softmax), checked
-    for shape and finiteness (a model assembled by hand may hold anything)."""
-    p, k = len(fit.names), (len(labels) if kind == "softmax" else 1)
+def _terms(fit: Any, kind: ModelKind, labels: list[str]) -> tuple[np.ndarray, np.ndarray]:
+    """The intercepts (K,) and coefficients (p, K) to write (K the kind's number of
+    outputs), checked for shape and finiteness (a model assembled by hand may hold anything)."""
+    p, k = len(fit.names), kind.outputs(len(labels))
     try:
         B = np.asarray(fit.coefficients, dtype=float)
         b = np.asarray(fit.intercept, dtype=float)
     except (TypeError, ValueError):
         B = b = np.full(1, np.nan)
-    want = (p, k) if kind == "softmax" else (p,)
-    if kind == "logistic" and len(labels) != 2:
-        raise InputError(f"write_pmml: a logistic model needs two classes; this one has {len(labels)}")
+    want = (p, k) if kind.per_class else (p,)
+    if kind.classes and len(labels) != kind.classes:
+        raise InputError(f"write_pmml: a {kind.words} model needs two classes; this one has {len(labels)}")
     if B.shape != want or b.shape != (want[1:]) or not (np.all(np.isfinite(B)) and np.all(np.isfinite(b))):
         raise InputError(f"write_pmml: the model's coefficients must be finite numbers of shape {want} and its "
                          f"intercept of shape {want[1:]}; got shapes {B.shape} and {b.shape}: write a fit record "
@@ -211,8 +212,8 @@ def write_pmml(fit: Any, path: str | os.PathLike, *, target: str | None = None, 
     reference level}``, as :attr:`lintools.Table.reference_levels` of the table the fit
     was fitted on) does; other inputs are continuous fields.
     """
-    kind = getattr(fit, "kind", None)
-    if not isinstance(kind, str) or kind not in ("least_squares", "logistic", "softmax"):
+    kind = kind_of(fit)
+    if kind is None:
         raise InputError(f"write_pmml() takes a lintools fit record or a DeliveredModel; got {type(fit).__name__}")
     if target is None:
         target = getattr(fit, "target", None) or "y"
@@ -232,7 +233,7 @@ def write_pmml(fit: Any, path: str | os.PathLike, *, target: str | None = None, 
     intercepts, coefficients = _terms(fit, kind, labels)
     ET.register_namespace("", NS)
     root = ET.Element(f"{{{NS}}}PMML", {"version": "4.4"})
-    header = ET.SubElement(root, f"{{{NS}}}Header", {"description": f"lintools {kind} fit"})
+    header = ET.SubElement(root, f"{{{NS}}}Header", {"description": f"lintools {kind.name} fit"})
     from ..support.version import __version__
 
     ET.SubElement(header, f"{{{NS}}}Application", {"name": "lintools", "version": __version__})
@@ -243,15 +244,14 @@ def write_pmml(fit: Any, path: str | os.PathLike, *, target: str | None = None, 
     except InputError as exc:
         raise InputError(f"write_pmml: the fit's categorical fields cannot be written ({exc})") from None
     dd.set("numberOfFields", str(len(dd) + 1))
-    if kind == "least_squares":
+    if not kind.classifier:
         ET.SubElement(dd, f"{{{NS}}}DataField", {"name": target, "optype": "continuous", "dataType": "double"})
-        attrs = {"functionName": "regression", "normalizationMethod": "none"}
     else:
         field = ET.SubElement(dd, f"{{{NS}}}DataField", {"name": target, "optype": "categorical", "dataType": "string"})
         for label in labels:
             ET.SubElement(field, f"{{{NS}}}Value", {"value": label})
-        attrs = {"functionName": "classification", "normalizationMethod": "logit" if kind == "logistic" else "softmax"}
-    model = ET.SubElement(root, f"{{{NS}}}RegressionModel", {"modelName": f"lintools {kind}", **attrs})
+    attrs = {"functionName": kind.function_name, "normalizationMethod": kind.normalisation}
+    model = ET.SubElement(root, f"{{{NS}}}RegressionModel", {"modelName": f"lintools {kind.name}", **attrs})
     schema = ET.SubElement(model, f"{{{NS}}}MiningSchema")
     schema.extend(holder)
     ET.SubElement(schema, f"{{{NS}}}MiningField", {"name": target, "usageType": "target"})
@@ -264,14 +264,14 @@ def write_pmml(fit: Any, path: str | os.PathLike, *, target: str | None = None, 
         if coefs is not None:
             write_terms(t, lambda name: f"{{{NS}}}{name}", fit.names, coefs, layout, _num)
 
-    if kind == "least_squares":
+    if kind.normalisation == "none":  # one table
         table(intercepts[0], coefficients[:, 0])
-    elif kind == "logistic":
+    elif kind.normalisation == "logit":  # the modelled class's table, then the other's, empty
         # a delivered model lists its positive class first (see DeliveredModel)
         pos = 0 if isinstance(fit, DeliveredModel) else list(fit.classes).index(fit.positive_class)
         table(intercepts[0], coefficients[:, 0], labels[pos])
         table(0.0, None, labels[1 - pos])
-    else:
+    else:  # softmax: one table per class
         for k, label in enumerate(labels):
             table(intercepts[k], coefficients[:, k], label)
     file_path(path, "PMML file")

@@ -41,6 +41,7 @@ from xml.parsers import expat
 
 import numpy as np
 
+from ..models.kinds import KINDS
 from ..support.errors import InputError
 from .pmml_categories import read_inputs
 from ..support.validate import check_names, name_problem
@@ -57,6 +58,9 @@ _INTEGER = re.compile(_XML_SPACE + r"([+-]?[0-9]+)" + _XML_SPACE)
 
 class _Declaration(Exception):
     pass
+
+#: The kind of model that each normalizationMethod read stands for.
+_KIND_OF = {k.normalisation: k.name for k in KINDS.values()}
 
 
 def _refuse_declarations(raw: bytes, where: str) -> None:
@@ -186,7 +190,7 @@ def parse_pmml(raw: bytes, where: str) -> dict[str, Any]:
         if optype != "continuous":
             raise doc.refuse(f"has a regression model whose target '{target}' has optype {optype!r}, not 'continuous'")
         _, b0, terms = parsed[0]
-        return dict(kind="least_squares", names=tuple(names), coefficients=np.array([terms[n] for n in names]),
+        return dict(kind=_KIND_OF[norm], names=tuple(names), coefficients=np.array([terms[n] for n in names]),
                     intercept=b0, classes=(), target=target, categorical_fields=categorical)
     if function != "classification":
         raise doc.refuse(f"has functionName {function!r:.40}, not 'regression' or 'classification'")
@@ -198,11 +202,11 @@ def parse_pmml(raw: bytes, where: str) -> dict[str, Any]:
         if len(parsed) != 2 or any(parsed[1][2].values()) or parsed[1][1] != 0:
             raise doc.refuse("has a logit model that is not two tables with the second empty (the reference category)")
         _, b0, terms = parsed[0]
-        return dict(kind="logistic", names=tuple(names), coefficients=np.array([terms.get(n, 0.0) for n in names]),
+        return dict(kind=_KIND_OF[norm], names=tuple(names), coefficients=np.array([terms.get(n, 0.0) for n in names]),
                     intercept=b0, classes=cats, target=target, categorical_fields=categorical)
     if norm == "softmax":
         B = np.array([[terms.get(n, 0.0) for (_, _, terms) in parsed] for n in names]).reshape(len(names), len(parsed))
-        return dict(kind="softmax", names=tuple(names), coefficients=B, intercept=np.array([b for _, b, _ in parsed]),
+        return dict(kind=_KIND_OF[norm], names=tuple(names), coefficients=B, intercept=np.array([b for _, b, _ in parsed]),
                     classes=cats, target=target, categorical_fields=categorical)
     raise doc.refuse(f"has normalizationMethod {norm!r:.40}, which lintools does not read (it reads none, logit, softmax)")
 

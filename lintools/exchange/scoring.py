@@ -163,6 +163,7 @@ def read_model(path: str) -> Any:
     not waited on), and checked for consistency by the JSON or PMML reader.
     """
     from . import model_files as model_io
+    from ..models.kinds import kind_of
     from . import pmml
     from ..support.files import read_bounded
 
@@ -173,7 +174,7 @@ def read_model(path: str) -> Any:
     head = raw[:256].removeprefix(b"\xef\xbb\xbf").lstrip()
     if head.startswith(b"{"):
         fit = model_io.load_bytes(raw, path)
-        if fit.kind not in ("least_squares", "logistic", "softmax"):
+        if kind_of(fit) is None:
             raise InputError(f"model file {path!r} holds a {fit.kind!r} record, not a fitted model")
         return fit
     if head.startswith(b"<") or head.startswith((b"\xff\xfe", b"\xfe\xff")):  # XML, also in UTF-16
