@@ -11,7 +11,9 @@ Time is *exclusive*: a stage owns what runs inside it, except in the containers 
 front, the driver, the Newton loop and the record), whose own time is shown as "other"
 rows, so the stages add up to the whole call.  Each figure is the median over the calls
 of that stage's time within one call; "whole call (median)" is the median of the call's
-own total, so the column need not add up to it exactly.  A wrapper costs about a
+own total, so the column need not add up to it (on a loaded machine each call has its
+own slow spells, in different stages, and the sum of the medians falls below the median
+of the sums).  A wrapper costs about a
 microsecond per call of the wrapped function; the total is also timed without wrappers.
 """
 
@@ -169,6 +171,8 @@ def main(argv: list[str] | None = None) -> int:
     for label, key in STAGES:
         ms = statistics.median(per_stage[key]) * 1e3
         print(f"{label:<48} {ms:8.3f} {ms / (whole * 1e3):7.1%}")
+    total = sum(statistics.median(per_stage[key]) for _, key in STAGES) * 1e3
+    print(f"{'sum of the stage medians':<48} {total:8.3f}")
     print(f"{'whole call (median, instrumented)':<48} {whole * 1e3:8.3f}")
     print(f"{'whole call (median, plain)':<48} {statistics.median(bare) * 1e3:8.3f}")
     return 0
