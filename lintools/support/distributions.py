@@ -500,6 +500,8 @@ def _gamma_core(a, x):
 def _gamma_series(a, x):
     """Sum of A&S 6.5.29: ``sum_n x**n / (a (a+1) ... (a+n))`` (Numerical Recipes gser)."""
     n = a.size
+    if n == 1:
+        return np.array([_gamma_series_one(float(a[0]), float(x[0]))])
     out = np.empty(n)
     idx = np.arange(n)
     term = 1.0 / a
@@ -524,6 +526,8 @@ def _gamma_series(a, x):
 def _gamma_cf(a, x):
     """Legendre continued fraction A&S 6.5.31 by modified Lentz (Numerical Recipes gcf)."""
     n = a.size
+    if n == 1:
+        return np.array([_gamma_cf_one(float(a[0]), float(x[0]))])
     out = np.empty(n)
     idx = np.arange(n)
     bb = x + 1.0 - a
@@ -547,6 +551,49 @@ def _gamma_cf(a, x):
             if not keep.any():
                 return out
             idx, a, bb, c, d, h = (v[keep] for v in (idx, a, bb, c, d, h))
+    raise LintoolsError(  # pragma: no cover
+        "incomplete gamma continued fraction did not converge; please report the inputs"
+    )
+
+
+# One argument (a p-value of one statistic, the usual call): the same recurrences on Python
+# floats, the same IEEE operations in the same order as the vectorised loops (so the same
+# bits), without the per-term cost of NumPy calls on one-element arrays (measured: chi2_sf
+# of one statistic 170-320 microseconds before, most of it in these loops).
+def _gamma_series_one(a: float, x: float) -> float:
+    """:func:`_gamma_series` for one argument."""
+    term = 1.0 / a
+    total = term
+    ap = a
+    for _ in range(_MAX_TERMS):
+        ap = ap + 1.0
+        term = term * x / ap
+        total = total + term
+        if abs(term) <= abs(total) * _EPS * 0.5:
+            return total
+    raise LintoolsError(  # pragma: no cover
+        "incomplete gamma series did not converge; please report the inputs"
+    )
+
+
+def _gamma_cf_one(a: float, x: float) -> float:
+    """:func:`_gamma_cf` for one argument."""
+    bb = x + 1.0 - a
+    c = 1.0 / _FPMIN
+    d = 1.0 / bb
+    h = d
+    for i in range(1, _MAX_TERMS):
+        an = -i * (i - a)
+        bb = bb + 2.0
+        d = an * d + bb
+        d = _FPMIN if abs(d) < _FPMIN else d
+        c = bb + an / c
+        c = _FPMIN if abs(c) < _FPMIN else c
+        d = 1.0 / d
+        step = d * c
+        h = h * step
+        if abs(step - 1.0) <= 2.0 * _EPS:
+            return h
     raise LintoolsError(  # pragma: no cover
         "incomplete gamma continued fraction did not converge; please report the inputs"
     )

@@ -61,11 +61,33 @@ def unstandardise(centre: np.ndarray, scale: np.ndarray, intercept: bool, output
     return np.kron(T, np.eye(outputs)) if outputs > 1 else T
 
 
+#: Largest order for which a triangular solve with one right-hand side runs as a Python
+#: loop over the matrix's entries (the same IEEE operations in the same order as the
+#: vectorised loop, so the same bits). Measured time against the vectorised loop (median
+#: of 7 paired rounds): 0.63 at p = 11, 0.67 at p = 21, 0.95 at p = 32, 1.03 at p = 40,
+#: 1.22 at p = 51: below about 30 the per-column NumPy calls cost more than the arithmetic.
+SMALL_TRIANGLE = 30
+
+
+def _small_triangle(T: np.ndarray, b: np.ndarray) -> bool:
+    """Whether :func:`solve_upper` / :func:`solve_lower` take the Python loop: one
+    right-hand side, a small order, and no zero on the diagonal (where NumPy's division
+    gives an infinity and Python's would raise)."""
+    return b.ndim == 1 and T.shape[0] <= SMALL_TRIANGLE and bool(np.all(np.diagonal(T) != 0))
+
+
 def solve_upper(R: np.ndarray, b: np.ndarray) -> np.ndarray:
     """Solve ``R x = b`` by back substitution for upper-triangular ``R`` (b 1-D or 2-D)."""
     R = np.asarray(R, dtype=float)
     x = np.array(b, dtype=float, copy=True)
     p = R.shape[0]
+    if _small_triangle(R, x):
+        rows, v = R.tolist(), x.tolist()
+        for j in range(p - 1, -1, -1):
+            xj = v[j] = v[j] / rows[j][j]
+            for i in range(j):
+                v[i] -= rows[i][j] * xj
+        return np.array(v)
     for j in range(p - 1, -1, -1):
         x[j] = x[j] / R[j, j]
         if j:
@@ -78,6 +100,13 @@ def solve_lower(L: np.ndarray, b: np.ndarray) -> np.ndarray:
     L = np.asarray(L, dtype=float)
     x = np.array(b, dtype=float, copy=True)
     p = L.shape[0]
+    if _small_triangle(L, x):
+        rows, v = L.tolist(), x.tolist()
+        for j in range(p):
+            xj = v[j] = v[j] / rows[j][j]
+            for i in range(j + 1, p):
+                v[i] -= rows[i][j] * xj
+        return np.array(v)
     for j in range(p):
         x[j] = x[j] / L[j, j]
         if j < p - 1:
