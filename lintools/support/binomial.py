@@ -38,12 +38,13 @@ import math
 
 import numpy as np
 
-from .distributions import _MAX_SHAPE, _beta_core, _log1pmx_neg, _solve_increasing, _stirling_rest
+from .distributions import _solve_increasing
+from .special import MAX_SHAPE, _beta_core, _log1pmx_neg, _stirling_rest
 
 __all__ = ["MAX_COUNT", "beta_tails", "beta_quantile", "binomial_tails", "binomial_log_pmf", "binomial_two_sided"]
 
 #: Largest count (trials) the tails are computed for: the incomplete beta function's limit.
-MAX_COUNT = _MAX_SHAPE
+MAX_COUNT = MAX_SHAPE
 #: Outcomes whose probability is within this relative distance of the observed one's count
 #: as equally likely in the two-sided test.
 TIE_TOLERANCE = 1e-7

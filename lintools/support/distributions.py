@@ -1,7 +1,8 @@
 r"""Tail probabilities and quantiles of the normal, Student t, F and chi-square laws.
 
 lintools needs p-values and interval end points without SciPy, so this module computes
-them from two special functions written here in NumPy and the standard library only:
+them from two special functions written in NumPy and the standard library only (their
+series and continued fractions are in :mod:`lintools.support.special`):
 
 * the regularised incomplete beta function
 
@@ -83,6 +84,7 @@ import numpy as np
 from numpy.typing import ArrayLike
 
 from .errors import InputError, LintoolsError
+from .special import MAX_SHAPE, _beta_core, _gamma_both, _pair_from_ratio, _ratio, _two_prod
 
 __all__ = [
     "normal_sf",
@@ -103,9 +105,6 @@ _TWO_OVER_SQRT_PI = 2.0 / math.sqrt(math.pi)
 # 1/sqrt(2) as an unevaluated sum of two doubles (low part from mpmath at 50 digits).
 _RSQRT2_HI = 0.7071067811865476
 _RSQRT2_LO = -4.833646656726457e-17
-_FPMIN = 1e-300
-_MAX_TERMS = 10_000_000  # a safety net: convergence needs of the order of sqrt(a) terms
-_MAX_SHAPE = 1e10  # larger shape parameters would need more than ~1e7 terms
 _FISHER_DF = 1e15  # above this t_sf uses the 1/df expansion around the normal tail
 
 
@@ -185,7 +184,7 @@ def _check_prob(arr: np.ndarray, name: str, caller: str) -> None:
 def _check_size(mask: np.ndarray, what: str, caller: str) -> None:
     if mask.any():
         raise InputError(
-            f"{_law(caller)}: {what} above {_MAX_SHAPE:g} at position {_first_bad(mask)}; the "
+            f"{_law(caller)}: {what} above {MAX_SHAPE:g} at position {_first_bad(mask)}; the "
             "series and continued fractions would need more than ~1e7 terms there. "
             "Use a normal approximation for such degrees of freedom."
         )
@@ -204,210 +203,6 @@ def _broadcast(caller: str, **arrays: np.ndarray) -> list[np.ndarray]:
 
 def _finish(out: np.ndarray) -> np.ndarray | float:
     return out[()] if out.ndim == 0 else out
-
-
-# ------------------------------------------------------------ error-free arithmetic
-def _split(a: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    c = 134217729.0 * a  # Veltkamp splitting, 2**27 + 1
-    hi = c - (c - a)
-    return hi, a - hi
-
-
-def _two_prod(a: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Return ``p, e`` with ``p = fl(a*b)`` and ``a*b = p + e`` exactly (Dekker 1971)."""
-    p = a * b
-    ah, al = _split(a)
-    bh, bl = _split(b)
-    return p, ((ah * bh - p) + ah * bl + al * bh) + al * bl
-
-
-# ------------------------------------------------------------------ small helpers
-_STIRLING = (
-    1.0 / 12.0,
-    -1.0 / 360.0,
-    1.0 / 1260.0,
-    -1.0 / 1680.0,
-    1.0 / 1188.0,
-    -691.0 / 360360.0,
-    1.0 / 156.0,
-    -3617.0 / 122400.0,
-    43867.0 / 244188.0,
-)
-
-
-def _stirling_rest(z: np.ndarray) -> np.ndarray:
-    r"""Return :math:`\mu(z) = \log\Gamma(z) - [(z-\tfrac12)\log z - z + \tfrac12\log 2\pi]`.
-
-    Stirling's series (A&S 6.1.40) for z >= 10, the definition with ``math.lgamma``
-    below; either way the absolute error is a few units of 1e-16.
-    """
-    z = np.asarray(z, dtype=float)
-    out = np.empty_like(z)
-    big = z >= 10.0
-    if big.any():
-        zb = z[big]
-        r = (1.0 / zb) ** 2
-        acc = np.zeros_like(zb)
-        for c in reversed(_STIRLING):
-            acc = acc * r + c
-        out[big] = acc / zb
-    if (~big).any():
-        zs = z[~big]
-        lg = np.array([math.lgamma(v) for v in zs])
-        out[~big] = lg - ((zs - 0.5) * np.log(zs) - zs + 0.5 * _LOG_2PI)
-    return out
-
-
-def _log1pmx_neg(u: np.ndarray) -> np.ndarray:
-    r"""Return :math:`g(u) = u - \log(1+u) \ge 0` without cancellation, for u > -1.
-
-    For |u| < 1 the series in :math:`s = u/(2+u)`,
-    :math:`g = u s - 2 \sum_{k\ge1} s^{2k+1}/(2k+1)`, is used (|s| <= 1/3).
-    """
-    u = np.asarray(u, dtype=float)
-    out = np.empty_like(u)
-    near = np.abs(u) < 1.0
-    if near.any():
-        un = u[near]
-        s = un / (2.0 + un)
-        s2 = s * s
-        acc = np.zeros_like(s)
-        for k in range(20, 0, -1):
-            acc = acc * s2 + 1.0 / (2 * k + 1)
-        out[near] = un * s - 2.0 * s * s2 * acc
-    far = ~near
-    if far.any():
-        with np.errstate(divide="ignore"):
-            out[far] = u[far] - np.log1p(u[far])
-    return out
-
-
-# ------------------------------------------------------------- incomplete beta
-def _beta_cf(a, b, x, y, delta):
-    r"""Continued fraction of A&S 26.5.8 (Numerical Recipes ``betacf``), vectorised.
-
-    With :math:`d_{2m+1} = -\frac{(a+m)(a+b+m)x}{(a+2m)(a+2m+1)}` and
-    :math:`d_{2m} = \frac{m(b-m)x}{(a+2m-1)(a+2m)}`, :math:`I_x(a,b)` is the prefactor
-    over :math:`a\,(1 + d_1/(1 + d_2/(1 + \dots)))`.  The odd contraction of that
-    fraction is evaluated instead,
-
-    .. math:: T = 1 + d_1 - \cfrac{d_1 d_2}{1 + d_2 + d_3 - \cfrac{d_3 d_4}{1 + d_4 + d_5
-              - \dotsb}},
-
-    because its partial denominators have closed forms that do not cancel when ``x`` is
-    close to 1 and ``a`` large: :math:`1 + d_1 = (1 - \delta)/(a+1)` with
-    :math:`\delta = b x - a y`, and :math:`1 + d_{2m} + d_{2m+1} = C_m + y S_m`, where
-    :math:`x S_m = -(d_{2m} + d_{2m+1})` and :math:`C_m = 1 - S_m` is written out.
-    Returns :math:`1/T`.
-    """
-    n = a.size
-    out = np.empty(n)
-    idx = np.arange(n)
-    near_one = x > 0.5
-    f = (1.0 - delta) / (a + 1.0)
-    f = np.where(np.abs(f) < _FPMIN, _FPMIN, f)
-    c = f.copy()
-    d = np.zeros(n)
-    prev = -((a + b) / (a + 1.0)) * x  # d_1
-    for m in range(1, _MAX_TERMS):
-        a2m = a + 2.0 * m
-        t_odd = ((a + m) / a2m) * ((a + b + m) / (a2m + 1.0))
-        t_even = (m / (a2m - 1.0)) * ((b - m) / a2m)
-        even = t_even * x  # d_2m
-        alpha = -prev * even
-        s_m = t_odd - t_even
-        c_m = (
-            (2.0 * m + 1.0 - b) * (a / a2m) / (a2m + 1.0)
-            + (m / a2m) * ((3.0 * m + 2.0 - b) / (a2m + 1.0))
-            + t_even
-        )
-        beta = np.where(near_one, c_m + y * s_m, 1.0 - x * s_m)
-        prev = -t_odd * x  # d_2m+1
-        d = beta + alpha * d
-        d = np.where(np.abs(d) < _FPMIN, _FPMIN, d)
-        c = beta + alpha / c
-        c = np.where(np.abs(c) < _FPMIN, _FPMIN, c)
-        d = 1.0 / d
-        step = c * d
-        f = f * step
-        done = np.abs(step - 1.0) <= 2.0 * _EPS
-        if done.any():
-            out[idx[done]] = 1.0 / f[done]
-            keep = ~done
-            if not keep.any():
-                return out
-            idx, a, b, x, y, near_one, f, c, d, prev = (
-                v[keep] for v in (idx, a, b, x, y, near_one, f, c, d, prev)
-            )
-    raise LintoolsError(  # pragma: no cover - the fraction converges for every a, b > 0
-        "incomplete beta continued fraction did not converge; please report the inputs"
-    )
-
-
-def _beta_core(a, b, x, y, lx, ly):
-    """Return ``(I_x(a,b), 1 - I_x(a,b), prefactor)`` for 1-d float arrays.
-
-    ``x`` and ``y = 1 - x`` are each given to full relative precision (so the smaller
-    one carries its own digits), ``lx`` and ``ly`` are accurate logarithms of them
-    (``lx`` may lie below the exponent range of doubles when ``x`` underflowed to 0).
-    0 < x < 1 is assumed.  The prefactor is ``x**a * y**b / B(a, b)``.
-    """
-    apb = a + b
-    small_x = x <= y
-    delta = np.where(small_x, x * apb - a, b - y * apb)  # = b x - a y
-    ua = delta / a
-    ub = -delta / b
-    a_log = ua <= -0.5
-    b_log = ub <= -0.5
-    with np.errstate(invalid="ignore", divide="ignore"):
-        ga = a * _log1pmx_neg(np.where(a_log, 0.0, ua))
-        gb = b * _log1pmx_neg(np.where(b_log, 0.0, ub))
-        expo = -(ga + gb)
-        expo = np.where(a_log, a * (lx + np.log1p(b / a)) - delta - gb, expo)
-        expo = np.where(b_log, b * (ly + np.log1p(a / b)) + delta - ga, expo)
-    expo = expo + _stirling_rest(apb) - _stirling_rest(a) - _stirling_rest(b)
-    pref = np.sqrt(b * (a / apb) / (2.0 * math.pi)) * np.exp(expo)
-
-    # continued fraction in x when x < (a+1)/(a+b+2), tested on the smaller variable
-    direct = np.where(small_x, x * (apb + 2.0) < a + 1.0, y * (apb + 2.0) > b + 1.0)
-    lower = np.empty_like(x)
-    upper = np.empty_like(x)
-    if direct.any():
-        i = direct
-        lower[i] = pref[i] * _beta_cf(a[i], b[i], x[i], y[i], delta[i]) / a[i]
-        upper[i] = 1.0 - lower[i]
-    if (~direct).any():
-        i = ~direct
-        upper[i] = pref[i] * _beta_cf(b[i], a[i], y[i], x[i], -delta[i]) / b[i]
-        lower[i] = 1.0 - upper[i]
-    return lower, upper, pref
-
-
-def _pair_from_ratio(w, v, log_w):
-    r"""Beta arguments for :math:`x = 1/(1+w)`, :math:`y = w/(1+w)`, with ``v = 1/w``.
-
-    ``w`` and ``v`` need only be accurate where they are at most 1 (one of them may
-    have overflowed); ``log_w`` is an accurate :math:`\log w`.  Returns
-    ``x, y, lx, ly``, each to full relative precision.
-    """
-    with np.errstate(all="ignore"):
-        small = w <= 1.0
-        x = np.where(small, 1.0 / (1.0 + w), v / (1.0 + v))
-        y = np.where(small, w / (1.0 + w), 1.0 / (1.0 + v))
-        lx = np.where(small, -np.log1p(w), -log_w - np.log1p(v))
-        ly = np.where(small, log_w - np.log1p(w), -np.log1p(v))
-    return x, y, lx, ly
-
-
-def _ratio(num_a, num_b, den):
-    """``w = num_a * num_b / den`` and ``v = 1/w`` without intermediate overflow."""
-    ma, ea = np.frexp(num_a)
-    mb, eb = np.frexp(num_b)
-    md, ed = np.frexp(den)
-    m = ma * mb
-    scale = ea + eb - ed
-    with np.errstate(all="ignore"):
-        return np.ldexp(m / md, scale), np.ldexp(md / m, -scale)
 
 
 def regularized_beta(x: ArrayLike, a: ArrayLike, b: ArrayLike) -> np.ndarray | float:
@@ -457,7 +252,7 @@ def regularized_beta(x: ArrayLike, a: ArrayLike, b: ArrayLike) -> np.ndarray | f
             f"position {_first_bad(bad)}."
         )
     xv, av, bv = _broadcast(caller, x=xv, a=av, b=bv)
-    _check_size(np.minimum(av, bv) > _MAX_SHAPE, "both 'a' and 'b'", caller)
+    _check_size(np.minimum(av, bv) > MAX_SHAPE, "both 'a' and 'b'", caller)
     shape = xv.shape
     xf, af, bf = xv.ravel(), av.ravel(), bv.ravel()
     out = np.where(xf >= 1.0, 1.0, 0.0)
@@ -470,146 +265,6 @@ def regularized_beta(x: ArrayLike, a: ArrayLike, b: ArrayLike) -> np.ndarray | f
             ly = np.where(xm >= 0.5, np.log(ym), np.log1p(-xm))
         out[mid] = _beta_core(af[mid], bf[mid], xm, ym, lx, ly)[0]
     return _finish(np.clip(out, 0.0, 1.0).reshape(shape))
-
-
-# ------------------------------------------------------------ incomplete gamma
-def _gamma_core(a, x):
-    """Return ``(P(a,x), Q(a,x), x**a e**-x / Gamma(a))`` for 1-d arrays, 0 < x < inf."""
-    u = (x - a) / a
-    use_log = u <= -0.5
-    with np.errstate(divide="ignore", invalid="ignore"):
-        expo = np.where(
-            use_log,
-            a * (np.log(x) - np.log(a)) - (x - a),
-            -a * _log1pmx_neg(np.where(use_log, 0.0, u)),
-        )
-    pref = np.sqrt(a / (2.0 * math.pi)) * np.exp(expo - _stirling_rest(a))
-    lower = np.empty_like(x)
-    upper = np.empty_like(x)
-    ser = x < a + 1.0
-    if ser.any():
-        lower[ser] = pref[ser] * _gamma_series(a[ser], x[ser])
-        upper[ser] = 1.0 - lower[ser]
-    if (~ser).any():
-        i = ~ser
-        upper[i] = pref[i] * _gamma_cf(a[i], x[i])
-        lower[i] = 1.0 - upper[i]
-    return lower, upper, pref
-
-
-def _gamma_series(a, x):
-    """Sum of A&S 6.5.29: ``sum_n x**n / (a (a+1) ... (a+n))`` (Numerical Recipes gser)."""
-    n = a.size
-    if n == 1:
-        return np.array([_gamma_series_one(float(a[0]), float(x[0]))])
-    out = np.empty(n)
-    idx = np.arange(n)
-    term = 1.0 / a
-    total = term.copy()
-    ap = a.copy()
-    for _ in range(_MAX_TERMS):
-        ap = ap + 1.0
-        term = term * x / ap
-        total = total + term
-        done = np.abs(term) <= np.abs(total) * _EPS * 0.5
-        if done.any():
-            out[idx[done]] = total[done]
-            keep = ~done
-            if not keep.any():
-                return out
-            idx, x, ap, term, total = (v[keep] for v in (idx, x, ap, term, total))
-    raise LintoolsError(  # pragma: no cover
-        "incomplete gamma series did not converge; please report the inputs"
-    )
-
-
-def _gamma_cf(a, x):
-    """Legendre continued fraction A&S 6.5.31 by modified Lentz (Numerical Recipes gcf)."""
-    n = a.size
-    if n == 1:
-        return np.array([_gamma_cf_one(float(a[0]), float(x[0]))])
-    out = np.empty(n)
-    idx = np.arange(n)
-    bb = x + 1.0 - a
-    c = np.full(n, 1.0 / _FPMIN)
-    d = 1.0 / bb
-    h = d.copy()
-    for i in range(1, _MAX_TERMS):
-        an = -i * (i - a)
-        bb = bb + 2.0
-        d = an * d + bb
-        d = np.where(np.abs(d) < _FPMIN, _FPMIN, d)
-        c = bb + an / c
-        c = np.where(np.abs(c) < _FPMIN, _FPMIN, c)
-        d = 1.0 / d
-        step = d * c
-        h = h * step
-        done = np.abs(step - 1.0) <= 2.0 * _EPS
-        if done.any():
-            out[idx[done]] = h[done]
-            keep = ~done
-            if not keep.any():
-                return out
-            idx, a, bb, c, d, h = (v[keep] for v in (idx, a, bb, c, d, h))
-    raise LintoolsError(  # pragma: no cover
-        "incomplete gamma continued fraction did not converge; please report the inputs"
-    )
-
-
-# One argument (a p-value of one statistic, the usual call): the same recurrences on Python
-# floats, the same IEEE operations in the same order as the vectorised loops (so the same
-# bits), without the per-term cost of NumPy calls on one-element arrays (measured: chi2_sf
-# of one statistic 170-320 microseconds before, most of it in these loops).
-def _gamma_series_one(a: float, x: float) -> float:
-    """:func:`_gamma_series` for one argument."""
-    term = 1.0 / a
-    total = term
-    ap = a
-    for _ in range(_MAX_TERMS):
-        ap = ap + 1.0
-        term = term * x / ap
-        total = total + term
-        if abs(term) <= abs(total) * _EPS * 0.5:
-            return total
-    raise LintoolsError(  # pragma: no cover
-        "incomplete gamma series did not converge; please report the inputs"
-    )
-
-
-def _gamma_cf_one(a: float, x: float) -> float:
-    """:func:`_gamma_cf` for one argument."""
-    bb = x + 1.0 - a
-    c = 1.0 / _FPMIN
-    d = 1.0 / bb
-    h = d
-    for i in range(1, _MAX_TERMS):
-        an = -i * (i - a)
-        bb = bb + 2.0
-        d = an * d + bb
-        d = _FPMIN if abs(d) < _FPMIN else d
-        c = bb + an / c
-        c = _FPMIN if abs(c) < _FPMIN else c
-        d = 1.0 / d
-        step = d * c
-        h = h * step
-        if abs(step - 1.0) <= 2.0 * _EPS:
-            return h
-    raise LintoolsError(  # pragma: no cover
-        "incomplete gamma continued fraction did not converge; please report the inputs"
-    )
-
-
-def _gamma_both(a: np.ndarray, x: np.ndarray):
-    """(P, Q, prefactor) including the edges x <= 0 and x = inf."""
-    lower = np.zeros_like(x)
-    upper = np.ones_like(x)
-    pref = np.zeros_like(x)
-    top = np.isposinf(x)
-    lower[top], upper[top] = 1.0, 0.0
-    mid = (x > 0) & ~top
-    if mid.any():
-        lower[mid], upper[mid], pref[mid] = _gamma_core(a[mid], x[mid])
-    return np.clip(lower, 0, 1), np.clip(upper, 0, 1), pref
 
 
 def regularized_gamma_upper(a: ArrayLike, x: ArrayLike) -> np.ndarray | float:
@@ -655,7 +310,7 @@ def regularized_gamma_upper(a: ArrayLike, x: ArrayLike) -> np.ndarray | float:
             f"position {_first_bad(xv < 0)}."
         )
     av, xv = _broadcast(caller, a=av, x=xv)
-    _check_size(av > _MAX_SHAPE, "'a'", caller)
+    _check_size(av > MAX_SHAPE, "'a'", caller)
     upper = _gamma_both(av.ravel(), xv.ravel())[1]
     return _finish(upper.reshape(av.shape))
 
@@ -1071,7 +726,7 @@ def f_sf(f: ArrayLike, d1: ArrayLike, d2: ArrayLike) -> np.ndarray | float:
             f"{_law(caller)}: 'd1' and 'd2' are both infinite at position {_first_bad(both)}; "
             "the F law has no limit there. Pass at least one finite degree of freedom."
         )
-    _check_size(np.minimum(av, bv) > 2 * _MAX_SHAPE, "half of both 'd1' and 'd2'", caller)
+    _check_size(np.minimum(av, bv) > 2 * MAX_SHAPE, "half of both 'd1' and 'd2'", caller)
     shape = fv.shape
     ff, n1, n2 = fv.ravel(), av.ravel(), bv.ravel()
     out = np.ones_like(ff)
@@ -1130,7 +785,7 @@ def chi2_sf(x: ArrayLike, df: ArrayLike) -> np.ndarray | float:
     dv = _as_array(df, "df", caller)
     _check_df(dv, "df", caller, allow_inf=False)
     xv, dv = _broadcast(caller, x=xv, df=dv)
-    _check_size(dv > 2 * _MAX_SHAPE, "half of 'df'", caller)
+    _check_size(dv > 2 * MAX_SHAPE, "half of 'df'", caller)
     upper = _gamma_both(0.5 * dv.ravel(), 0.5 * xv.ravel())[1]
     return _finish(upper.reshape(xv.shape))
 
@@ -1174,7 +829,7 @@ def chi2_quantile(p: ArrayLike, df: ArrayLike) -> np.ndarray | float:
     _check_prob(pv, "p", caller)
     _check_df(dv, "df", caller, allow_inf=False)
     pv, dv = _broadcast(caller, p=pv, df=dv)
-    _check_size(dv > 2 * _MAX_SHAPE, "half of 'df'", caller)
+    _check_size(dv > 2 * MAX_SHAPE, "half of 'df'", caller)
     pf, k = pv.ravel(), dv.ravel()
     a = 0.5 * k
     use_upper = pf > 0.5

@@ -1,0 +1,401 @@
+r"""The incomplete beta and gamma functions: the series and continued fractions underneath.
+
+:mod:`lintools.support.distributions` checks its arguments and calls these cores with
+validated one-dimensional float arrays.  The methods, their accuracy devices and the
+references are described there; in short:
+
+* :math:`I_x(a, b)` by the odd contraction of the continued fraction A&S 26.5.8
+  (modified Lentz, Numerical Recipes ``betacf``), its prefactor from Stirling's series
+  with the deviations :math:`a\,g(u)`, :math:`g(u) = u - \log(1+u)` (DiDonato & Morris
+  1992);
+* :math:`P(a, x)` and :math:`Q(a, x)` by the power series A&S 6.5.29 and Legendre's
+  continued fraction A&S 6.5.31 (Numerical Recipes ``gser`` and ``gcf``).
+
+The vectorised loops retire each entry as soon as its own recurrence has converged, so a
+long-converging entry costs no work on the others.
+
+References
+----------
+Abramowitz, M. & Stegun, I. A. (1964). *Handbook of Mathematical Functions*, 6.1.40, 6.5,
+26.5.8.  National Bureau of Standards.
+
+Dekker, T. J. (1971). A floating-point technique for extending the available precision.
+*Numerische Mathematik* 18, 224-242.
+
+DiDonato, A. R. & Morris, A. H. (1992). Algorithm 708: significant digit computation of
+the incomplete beta function ratios.  *ACM TOMS* 18, 360-373.
+
+Press, W. H., Teukolsky, S. A., Vetterling, W. T. & Flannery, B. P. (2007).
+*Numerical Recipes*, 3rd ed., sections 6.1, 6.2, 6.4.  Cambridge University Press.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from .errors import LintoolsError
+
+_EPS = float(np.finfo(float).eps)
+_LOG_2PI = math.log(2.0 * math.pi)
+_FPMIN = 1e-300
+_MAX_TERMS = 10_000_000  # a safety net: convergence needs of the order of sqrt(a) terms
+MAX_SHAPE = 1e10  # larger shape parameters would need more than ~1e7 terms
+
+
+def _away_from_zero(v: np.ndarray) -> np.ndarray:
+    """The modified Lentz guard: a partial value below 1e-300 in size becomes 1e-300."""
+    return np.where(np.abs(v) < _FPMIN, _FPMIN, v)
+
+
+def _retire(done: np.ndarray, out: np.ndarray, value: np.ndarray, state: tuple) -> tuple | None:
+    """Write the converged entries of ``value`` to ``out`` at ``state[0]`` (the entries'
+    positions) and return the other entries of every array in ``state``, or None when
+    every entry has converged."""
+    out[state[0][done]] = value[done]
+    keep = ~done
+    if not keep.any():
+        return None
+    return tuple(v[keep] for v in state)
+
+
+# ------------------------------------------------------------ error-free arithmetic
+def _split(a: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    c = 134217729.0 * a  # Veltkamp splitting, 2**27 + 1
+    hi = c - (c - a)
+    return hi, a - hi
+
+
+def _two_prod(a: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Return ``p, e`` with ``p = fl(a*b)`` and ``a*b = p + e`` exactly (Dekker 1971)."""
+    p = a * b
+    ah, al = _split(a)
+    bh, bl = _split(b)
+    return p, ((ah * bh - p) + ah * bl + al * bh) + al * bl
+
+
+# ------------------------------------------------------------------ small helpers
+_STIRLING = (
+    1.0 / 12.0,
+    -1.0 / 360.0,
+    1.0 / 1260.0,
+    -1.0 / 1680.0,
+    1.0 / 1188.0,
+    -691.0 / 360360.0,
+    1.0 / 156.0,
+    -3617.0 / 122400.0,
+    43867.0 / 244188.0,
+)
+
+
+def _stirling_rest(z: np.ndarray) -> np.ndarray:
+    r"""Return :math:`\mu(z) = \log\Gamma(z) - [(z-\tfrac12)\log z - z + \tfrac12\log 2\pi]`.
+
+    Stirling's series (A&S 6.1.40) for z >= 10, the definition with ``math.lgamma``
+    below; either way the absolute error is a few units of 1e-16.
+    """
+    z = np.asarray(z, dtype=float)
+    out = np.empty_like(z)
+    big = z >= 10.0
+    if big.any():
+        zb = z[big]
+        r = (1.0 / zb) ** 2
+        acc = np.zeros_like(zb)
+        for c in reversed(_STIRLING):
+            acc = acc * r + c
+        out[big] = acc / zb
+    if (~big).any():
+        zs = z[~big]
+        lg = np.array([math.lgamma(v) for v in zs])
+        out[~big] = lg - ((zs - 0.5) * np.log(zs) - zs + 0.5 * _LOG_2PI)
+    return out
+
+
+def _log1pmx_neg(u: np.ndarray) -> np.ndarray:
+    r"""Return :math:`g(u) = u - \log(1+u) \ge 0` without cancellation, for u > -1.
+
+    For |u| < 1 the series in :math:`s = u/(2+u)`,
+    :math:`g = u s - 2 \sum_{k\ge1} s^{2k+1}/(2k+1)`, is used (|s| <= 1/3).
+    """
+    u = np.asarray(u, dtype=float)
+    out = np.empty_like(u)
+    near = np.abs(u) < 1.0
+    if near.any():
+        un = u[near]
+        s = un / (2.0 + un)
+        s2 = s * s
+        acc = np.zeros_like(s)
+        for k in range(20, 0, -1):
+            acc = acc * s2 + 1.0 / (2 * k + 1)
+        out[near] = un * s - 2.0 * s * s2 * acc
+    far = ~near
+    if far.any():
+        with np.errstate(divide="ignore"):
+            out[far] = u[far] - np.log1p(u[far])
+    return out
+
+
+# ------------------------------------------------------------- incomplete beta
+def _beta_cf(a, b, x, y, delta):
+    r"""Continued fraction of A&S 26.5.8 (Numerical Recipes ``betacf``), vectorised.
+
+    With :math:`d_{2m+1} = -\frac{(a+m)(a+b+m)x}{(a+2m)(a+2m+1)}` and
+    :math:`d_{2m} = \frac{m(b-m)x}{(a+2m-1)(a+2m)}`, :math:`I_x(a,b)` is the prefactor
+    over :math:`a\,(1 + d_1/(1 + d_2/(1 + \dots)))`.  The odd contraction of that
+    fraction is evaluated instead,
+
+    .. math:: T = 1 + d_1 - \cfrac{d_1 d_2}{1 + d_2 + d_3 - \cfrac{d_3 d_4}{1 + d_4 + d_5
+              - \dotsb}},
+
+    because its partial denominators have closed forms that do not cancel when ``x`` is
+    close to 1 and ``a`` large: :math:`1 + d_1 = (1 - \delta)/(a+1)` with
+    :math:`\delta = b x - a y`, and :math:`1 + d_{2m} + d_{2m+1} = C_m + y S_m`, where
+    :math:`x S_m = -(d_{2m} + d_{2m+1})` and :math:`C_m = 1 - S_m` is written out.
+    Returns :math:`1/T`.
+    """
+    n = a.size
+    out = np.empty(n)
+    idx = np.arange(n)
+    near_one = x > 0.5
+    f = (1.0 - delta) / (a + 1.0)
+    f = _away_from_zero(f)
+    c = f.copy()
+    d = np.zeros(n)
+    prev = -((a + b) / (a + 1.0)) * x  # d_1
+    for m in range(1, _MAX_TERMS):
+        a2m = a + 2.0 * m
+        t_odd = ((a + m) / a2m) * ((a + b + m) / (a2m + 1.0))
+        t_even = (m / (a2m - 1.0)) * ((b - m) / a2m)
+        even = t_even * x  # d_2m
+        alpha = -prev * even
+        s_m = t_odd - t_even
+        c_m = (
+            (2.0 * m + 1.0 - b) * (a / a2m) / (a2m + 1.0)
+            + (m / a2m) * ((3.0 * m + 2.0 - b) / (a2m + 1.0))
+            + t_even
+        )
+        beta = np.where(near_one, c_m + y * s_m, 1.0 - x * s_m)
+        prev = -t_odd * x  # d_2m+1
+        d = beta + alpha * d
+        d = _away_from_zero(d)
+        c = beta + alpha / c
+        c = _away_from_zero(c)
+        d = 1.0 / d
+        step = c * d
+        f = f * step
+        done = np.abs(step - 1.0) <= 2.0 * _EPS
+        if done.any():
+            rest = _retire(done, out, 1.0 / f, (idx, a, b, x, y, near_one, f, c, d, prev))
+            if rest is None:
+                return out
+            idx, a, b, x, y, near_one, f, c, d, prev = rest
+    raise LintoolsError(  # pragma: no cover - the fraction converges for every a, b > 0
+        "incomplete beta continued fraction did not converge; please report the inputs"
+    )
+
+
+def _beta_core(a, b, x, y, lx, ly):
+    """Return ``(I_x(a,b), 1 - I_x(a,b), prefactor)`` for 1-d float arrays.
+
+    ``x`` and ``y = 1 - x`` are each given to full relative precision (so the smaller
+    one carries its own digits), ``lx`` and ``ly`` are accurate logarithms of them
+    (``lx`` may lie below the exponent range of doubles when ``x`` underflowed to 0).
+    0 < x < 1 is assumed.  The prefactor is ``x**a * y**b / B(a, b)``.
+    """
+    apb = a + b
+    small_x = x <= y
+    delta = np.where(small_x, x * apb - a, b - y * apb)  # = b x - a y
+    ua = delta / a
+    ub = -delta / b
+    a_log = ua <= -0.5
+    b_log = ub <= -0.5
+    with np.errstate(invalid="ignore", divide="ignore"):
+        ga = a * _log1pmx_neg(np.where(a_log, 0.0, ua))
+        gb = b * _log1pmx_neg(np.where(b_log, 0.0, ub))
+        expo = -(ga + gb)
+        expo = np.where(a_log, a * (lx + np.log1p(b / a)) - delta - gb, expo)
+        expo = np.where(b_log, b * (ly + np.log1p(a / b)) + delta - ga, expo)
+    expo = expo + _stirling_rest(apb) - _stirling_rest(a) - _stirling_rest(b)
+    pref = np.sqrt(b * (a / apb) / (2.0 * math.pi)) * np.exp(expo)
+
+    # continued fraction in x when x < (a+1)/(a+b+2), tested on the smaller variable
+    direct = np.where(small_x, x * (apb + 2.0) < a + 1.0, y * (apb + 2.0) > b + 1.0)
+    lower = np.empty_like(x)
+    upper = np.empty_like(x)
+    if direct.any():
+        i = direct
+        lower[i] = pref[i] * _beta_cf(a[i], b[i], x[i], y[i], delta[i]) / a[i]
+        upper[i] = 1.0 - lower[i]
+    if (~direct).any():
+        i = ~direct
+        upper[i] = pref[i] * _beta_cf(b[i], a[i], y[i], x[i], -delta[i]) / b[i]
+        lower[i] = 1.0 - upper[i]
+    return lower, upper, pref
+
+
+def _pair_from_ratio(w, v, log_w):
+    r"""Beta arguments for :math:`x = 1/(1+w)`, :math:`y = w/(1+w)`, with ``v = 1/w``.
+
+    ``w`` and ``v`` need only be accurate where they are at most 1 (one of them may
+    have overflowed); ``log_w`` is an accurate :math:`\log w`.  Returns
+    ``x, y, lx, ly``, each to full relative precision.
+    """
+    with np.errstate(all="ignore"):
+        small = w <= 1.0
+        x = np.where(small, 1.0 / (1.0 + w), v / (1.0 + v))
+        y = np.where(small, w / (1.0 + w), 1.0 / (1.0 + v))
+        lx = np.where(small, -np.log1p(w), -log_w - np.log1p(v))
+        ly = np.where(small, log_w - np.log1p(w), -np.log1p(v))
+    return x, y, lx, ly
+
+
+def _ratio(num_a, num_b, den):
+    """``w = num_a * num_b / den`` and ``v = 1/w`` without intermediate overflow."""
+    ma, ea = np.frexp(num_a)
+    mb, eb = np.frexp(num_b)
+    md, ed = np.frexp(den)
+    m = ma * mb
+    scale = ea + eb - ed
+    with np.errstate(all="ignore"):
+        return np.ldexp(m / md, scale), np.ldexp(md / m, -scale)
+
+
+# ------------------------------------------------------------ incomplete gamma
+def _gamma_core(a, x):
+    """Return ``(P(a,x), Q(a,x), x**a e**-x / Gamma(a))`` for 1-d arrays, 0 < x < inf."""
+    u = (x - a) / a
+    use_log = u <= -0.5
+    with np.errstate(divide="ignore", invalid="ignore"):
+        expo = np.where(
+            use_log,
+            a * (np.log(x) - np.log(a)) - (x - a),
+            -a * _log1pmx_neg(np.where(use_log, 0.0, u)),
+        )
+    pref = np.sqrt(a / (2.0 * math.pi)) * np.exp(expo - _stirling_rest(a))
+    lower = np.empty_like(x)
+    upper = np.empty_like(x)
+    ser = x < a + 1.0
+    if ser.any():
+        lower[ser] = pref[ser] * _gamma_series(a[ser], x[ser])
+        upper[ser] = 1.0 - lower[ser]
+    if (~ser).any():
+        i = ~ser
+        upper[i] = pref[i] * _gamma_cf(a[i], x[i])
+        lower[i] = 1.0 - upper[i]
+    return lower, upper, pref
+
+
+def _gamma_series(a, x):
+    """Sum of A&S 6.5.29: ``sum_n x**n / (a (a+1) ... (a+n))`` (Numerical Recipes gser)."""
+    n = a.size
+    if n == 1:
+        return np.array([_gamma_series_one(float(a[0]), float(x[0]))])
+    out = np.empty(n)
+    idx = np.arange(n)
+    term = 1.0 / a
+    total = term.copy()
+    ap = a.copy()
+    for _ in range(_MAX_TERMS):
+        ap = ap + 1.0
+        term = term * x / ap
+        total = total + term
+        done = np.abs(term) <= np.abs(total) * _EPS * 0.5
+        if done.any():
+            rest = _retire(done, out, total, (idx, x, ap, term, total))
+            if rest is None:
+                return out
+            idx, x, ap, term, total = rest
+    raise LintoolsError(  # pragma: no cover
+        "incomplete gamma series did not converge; please report the inputs"
+    )
+
+
+def _gamma_cf(a, x):
+    """Legendre continued fraction A&S 6.5.31 by modified Lentz (Numerical Recipes gcf)."""
+    n = a.size
+    if n == 1:
+        return np.array([_gamma_cf_one(float(a[0]), float(x[0]))])
+    out = np.empty(n)
+    idx = np.arange(n)
+    bb = x + 1.0 - a
+    c = np.full(n, 1.0 / _FPMIN)
+    d = 1.0 / bb
+    h = d.copy()
+    for i in range(1, _MAX_TERMS):
+        an = -i * (i - a)
+        bb = bb + 2.0
+        d = an * d + bb
+        d = _away_from_zero(d)
+        c = bb + an / c
+        c = _away_from_zero(c)
+        d = 1.0 / d
+        step = d * c
+        h = h * step
+        done = np.abs(step - 1.0) <= 2.0 * _EPS
+        if done.any():
+            rest = _retire(done, out, h, (idx, a, bb, c, d, h))
+            if rest is None:
+                return out
+            idx, a, bb, c, d, h = rest
+    raise LintoolsError(  # pragma: no cover
+        "incomplete gamma continued fraction did not converge; please report the inputs"
+    )
+
+
+# One argument (a p-value of one statistic, the usual call): the same recurrences on Python
+# floats, the same IEEE operations in the same order as the vectorised loops (so the same
+# bits), without the per-term cost of NumPy calls on one-element arrays (measured: chi2_sf
+# of one statistic 170-320 microseconds before, most of it in these loops).
+def _gamma_series_one(a: float, x: float) -> float:
+    """:func:`_gamma_series` for one argument."""
+    term = 1.0 / a
+    total = term
+    ap = a
+    for _ in range(_MAX_TERMS):
+        ap = ap + 1.0
+        term = term * x / ap
+        total = total + term
+        if abs(term) <= abs(total) * _EPS * 0.5:
+            return total
+    raise LintoolsError(  # pragma: no cover
+        "incomplete gamma series did not converge; please report the inputs"
+    )
+
+
+def _gamma_cf_one(a: float, x: float) -> float:
+    """:func:`_gamma_cf` for one argument."""
+    bb = x + 1.0 - a
+    c = 1.0 / _FPMIN
+    d = 1.0 / bb
+    h = d
+    for i in range(1, _MAX_TERMS):
+        an = -i * (i - a)
+        bb = bb + 2.0
+        d = an * d + bb
+        d = _FPMIN if abs(d) < _FPMIN else d
+        c = bb + an / c
+        c = _FPMIN if abs(c) < _FPMIN else c
+        d = 1.0 / d
+        step = d * c
+        h = h * step
+        if abs(step - 1.0) <= 2.0 * _EPS:
+            return h
+    raise LintoolsError(  # pragma: no cover
+        "incomplete gamma continued fraction did not converge; please report the inputs"
+    )
+
+
+def _gamma_both(a: np.ndarray, x: np.ndarray):
+    """(P, Q, prefactor) including the edges x <= 0 and x = inf."""
+    lower = np.zeros_like(x)
+    upper = np.ones_like(x)
+    pref = np.zeros_like(x)
+    top = np.isposinf(x)
+    lower[top], upper[top] = 1.0, 0.0
+    mid = (x > 0) & ~top
+    if mid.any():
+        lower[mid], upper[mid], pref[mid] = _gamma_core(a[mid], x[mid])
+    return np.clip(lower, 0, 1), np.clip(upper, 0, 1), pref
+
+
