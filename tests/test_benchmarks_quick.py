@@ -42,3 +42,19 @@ def test_read_table_benchmark_quick_mode_runs():
     for reader in ("read_table", "numpy.loadtxt", "pandas.read_csv"):
         assert proc.stdout.count(reader) >= 2, proc.stdout
     assert proc.stdout.count("read_table agrees with numpy.loadtxt (every value, exactly): True") == 2, proc.stdout
+
+
+def test_block_passes_benchmark_quick_mode_runs():
+    # the per-pass throughput benchmark of blocked logistic fits in its tiny mode: every
+    # variant fits the same rows and agrees with the in-memory fit (no timing is asserted)
+    proc = subprocess.run(
+        [sys.executable, str(ROOT / "benchmarks" / "block_passes.py"), "--quick"],
+        capture_output=True, text=True, timeout=300,
+    )
+    assert proc.returncode == 0, proc.stderr
+    rows = [line for line in proc.stdout.splitlines()
+            if line.startswith(("memory map ", "in memory ", "memory map, 1 thread ", "in memory, 1 thread "))]
+    assert len(rows) == 4, proc.stdout
+    for row in rows:
+        assert float(row.split()[-1]) >= 10, row  # digits of agreement with lintools.logistic (LRE)
+    assert proc.stdout.count("target >= 0.6") == 2, proc.stdout

@@ -75,8 +75,12 @@ class DaskRunner:
         self.checksums = BlockChecksums()
 
     def reduce(self, kernel: Callable, combine: Callable, args: tuple = (), cargs: tuple = (),
-               labels: Any = "same") -> Any:
-        """One pass: map ``kernel`` over the chunks, combine the results pairwise, compute."""
+               labels: Any = "same", pieces: bool = False) -> Any:
+        """One pass: map ``kernel`` over the chunks, combine the results pairwise, compute.
+
+        ``pieces`` is accepted for the stream runner's sake and changes nothing here: dask's
+        scheduler already maps the chunks on its own threads or workers.
+        """
         if labels != "same":
             self.spec = BlockSpec(self.p, labels, self.spec.weights)
         self.passes += 1

@@ -17,6 +17,7 @@ from ..models.records import LinearFit
 from ..models.least_squares import refuse_degenerate
 from ..models.lsq_record import PathAnswer, Setting, linear_record, residual_degrees
 from ..support.linalg import condition_number, default_rank_tolerance, inverse_upper, solve_lower, solve_upper
+from ..support.threads import with_row_threads
 
 from .stream import _add, _merge_labels, _positive_rows
 from .runner import make_runner
@@ -178,6 +179,7 @@ def _ls_residual_kernel(X: np.ndarray, y: np.ndarray, w: np.ndarray | None, ez: 
 # ---------------------------------------------------------------------------------------
 
 
+@with_row_threads
 def least_squares_blocks(
     source: Callable[[], Any] | None = None,
     *,
@@ -331,7 +333,7 @@ def _refine(run: Any, part: dict, sol: dict, lam1: np.ndarray, intercept: bool) 
     beta, a = sol["beta"], 0.0
     steps, last = 0, math.inf
     while True:
-        res = run.reduce(_ls_residual_kernel, _add, (ez, ew, c_hi, c_lo, a, beta))
+        res = run.reduce(_ls_residual_kernel, _add, (ez, ew, c_hi, c_lo, a, beta), pieces=True)
         rho, gx = float(res["rho"]), res["gx"].astype(float)
         dbeta = sol["solve"](gx - lam1 * beta)
         da = rho / W if intercept else 0.0

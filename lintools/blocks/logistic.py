@@ -11,6 +11,7 @@ from ..support.errors import InputError
 from ..models.records import LogisticFit
 from ..support.scaling import check_l2_scale, scaled_back
 from ..support.validate import check_names
+from ..support.threads import with_row_threads
 from ..models.inference import covariance
 from ..models.driver import DEFAULT_TOL, ETA_LIMIT, check_fit_settings
 from ..models.logistic import BinaryWatch, logistic_record
@@ -111,6 +112,7 @@ class _BlockProblem(_PassProblem):
         return self._remember(z, ev, H, part)
 
 
+@with_row_threads
 def logistic_blocks(
     source: Callable[[], Any] | None = None,
     *,
@@ -238,8 +240,9 @@ class _Coded:
     def __init__(self, run: Any, classes: tuple) -> None:
         self.run, self.classes = run, classes
 
-    def reduce(self, kernel: Callable, combine: Callable, args: tuple = (), cargs: tuple = ()) -> Any:
-        return self.run.reduce(kernel, combine, args, cargs, labels=self.classes)
+    def reduce(self, kernel: Callable, combine: Callable, args: tuple = (), cargs: tuple = (),
+               pieces: bool = False) -> Any:
+        return self.run.reduce(kernel, combine, args, cargs, labels=self.classes, pieces=pieces)
 
 
 def _logistic_record(problem: _BlockProblem, res: Any, V: np.ndarray, W: float, seen: dict, classes: tuple,

@@ -99,7 +99,8 @@ class _PassProblem:
     def _pass(self, z: np.ndarray, step: tuple | None = None) -> dict:
         a, beta = self.centred(z)
         c = self.c if self.intercept else np.zeros(self.p)
-        return self.run.reduce(type(self).kernel, _add, (a, beta, c, 1.0 / self.s, step, self.weight_scale))
+        return self.run.reduce(type(self).kernel, _add, (a, beta, c, 1.0 / self.s, step, self.weight_scale),
+                               pieces=True)
 
     def evaluate(self, z: np.ndarray) -> Evaluation:
         hit = self.cache.get(z.tobytes())

@@ -12,6 +12,7 @@ from ..engine.multinomial import MultinomialLoss
 from ..models.softmax_record import SoftmaxFit
 from ..support.scaling import check_l2_scale
 from ..support.validate import check_names
+from ..support.threads import with_row_threads
 from ..models.driver import (
     DEFAULT_TOL,
     ETA_LIMIT,
@@ -139,10 +140,12 @@ class _Indexed:
         self.run, self.spec = run, ClassIndex(classes)
         self.head = (inverse, len(classes), reference, intercept)
 
-    def reduce(self, kernel: Callable, combine: Callable, args: tuple = (), cargs: tuple = ()) -> Any:
-        return self.run.reduce(kernel, combine, self.head + tuple(args), cargs, labels=self.spec)
+    def reduce(self, kernel: Callable, combine: Callable, args: tuple = (), cargs: tuple = (),
+               pieces: bool = False) -> Any:
+        return self.run.reduce(kernel, combine, self.head + tuple(args), cargs, labels=self.spec, pieces=pieces)
 
 
+@with_row_threads
 def softmax_blocks(
     source: Callable[[], Any] | None = None,
     *,

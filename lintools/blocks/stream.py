@@ -17,6 +17,7 @@ from typing import Any, Callable
 import numpy as np
 
 from ..support.errors import InputError
+from ..support.threads import for_rows
 from ..support.validate import as_matrix, as_vector, check_finite
 from ..models.responses import read_labels
 
@@ -336,6 +337,29 @@ def run_task(kernel: Callable, index: int, item: Any, spec: BlockSpec, args: tup
     return out, {index: pr}
 
 
+#: Rows per piece of a block mapped on the row threads: fixed, so that the pieces, and the
+#: order in which their summaries are added, do not depend on the number of threads.
+PIECE_ROWS = 1 << 16
+
+
+def in_pieces(kernel: Callable, combine: Callable, X: np.ndarray, y: np.ndarray, w: np.ndarray | None,
+              args: tuple, cargs: tuple) -> dict:
+    """``kernel(X, y, w, *args)`` of one block as the ``combine`` of the kernel on consecutive
+    pieces of :data:`PIECE_ROWS` rows, in order, the pieces mapped on the row threads
+    (:func:`lintools.support.threads.for_rows`).  The elementwise work of a pass (the
+    linear predictor, the loss, the weighted design) then runs on every core as it does
+    in an in-memory fit, and one thread or several give the same bits."""
+    n = X.shape[0]
+    if n <= PIECE_ROWS:
+        return kernel(X, y, w, *args)
+    parts = for_rows(lambda lo, hi: kernel(X[lo:hi], y[lo:hi], None if w is None else w[lo:hi], *args),
+                     n, PIECE_ROWS)
+    out = parts[0]
+    for part in parts[1:]:
+        out = combine(out, part, *cargs)
+    return out
+
+
 def combine_task(combine: Callable, a: tuple, b: tuple, *cargs: Any) -> tuple[dict, dict]:
     """``combine`` of two summaries, and the union of their blocks' checksums."""
     return combine(a[0], b[0], *cargs), {**a[1], **b[1]}
@@ -408,8 +432,13 @@ class StreamRunner:
         return iterator
 
     def reduce(self, kernel: Callable, combine: Callable, args: tuple = (), cargs: tuple = (),
-               labels: Any = "same") -> Any:
-        """One pass: check and map every block, reduce pairwise; ``labels`` resets the response kind."""
+               labels: Any = "same", pieces: bool = False) -> Any:
+        """One pass: check and map every block, reduce pairwise; ``labels`` resets the response kind.
+
+        With ``pieces`` the kernel maps each block in pieces of :data:`PIECE_ROWS` rows on the
+        row threads (see :func:`in_pieces`); for kernels whose ``y`` is an array of rows and
+        whose ``combine`` adds summaries of any rows.
+        """
         if labels != "same":
             self.spec = BlockSpec(self.spec.p, labels, self.spec.weights)
         self.passes += 1
@@ -432,7 +461,7 @@ class StreamRunner:
                 rows.append(X.shape[0])
                 self.checksums.compare(index, self.passes, block_print(X, sums, y, w, self.spec),
                                        self.spec, self.names)
-                out = kernel(X, y, w, *args)
+                out = in_pieces(kernel, combine, X, y, w, args, cargs) if pieces else kernel(X, y, w, *args)
                 out["rows"] = X.shape[0]
                 yield out
 
