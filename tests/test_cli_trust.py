@@ -329,6 +329,24 @@ def test_translation_leaves_options_labels_and_paths_alone():
     assert translate("positive='yes' is not one of the labels") == "--positive 'yes' is not one of the labels"
 
 
+
+def test_a_remedy_for_both_readers_names_each_option_once_on_the_command_line(capsys, spector, tmp_path):
+    # a bad cell's message offers the Python argument and the option; the command line keeps
+    # only the option, once (common practice: one remedy, in the reader's own terms)
+    path, d = spector
+    rows = list(csv.reader(path.open()))
+    rows[5][1] = "12..5"  # TUCE
+    bad = tmp_path / "bad.csv"
+    with bad.open("w", newline="") as fh:
+        csv.writer(fh).writerows(rows)
+    code, out, err = cli(capsys, "fit", bad, "--target", "GRADE", "--model", "logistic")
+    assert code == 2 and "line 6" in err and "'12..5'" in err
+    for option in ("--missing-values TOKENS", "--drop-missing", "--categorical TUCE"):
+        assert err.count(option) == 1, err
+    assert "on the command line" not in err and "missing_values" not in err and "categorical=" not in err
+    with pytest.raises(lt.InputError, match=r"missing_values=\[\.\.\.\]; on the command line --missing-values"):
+        lt.read_table(bad, target="GRADE")
+
 # ---------------------------------------------------------------- no tracebacks
 def test_a_closed_pipe_ends_quietly_with_the_commands_own_status(spector):
     path, _ = spector

@@ -88,9 +88,14 @@ def _replace(m: re.Match) -> str:
     return _RULES[i].sub(REMEDY_FLAGS[i][1], m.group(), count=1)
 
 
+#: A remedy written for both readers, ``(python phrase; on the command line --option ...)``
+#: (see :func:`lintools.exchange.csv_columns._both`): the command line keeps the option alone.
+_BOTH = re.compile(r"\(([^()]*?); on the command line ([^()]*)\)")
+
+
 def translate(message: str) -> str:
     """``message`` with the library's Python-argument phrases replaced by command-line options."""
-    return _SCAN.sub(_replace, message)
+    return _SCAN.sub(_replace, _BOTH.sub(r"(\2)", message))
 
 
 def report_text(fit: Any) -> str:

@@ -44,7 +44,9 @@ class Spec:
 
 
 def _both(python: str, cli: str) -> str:
-    return f"{python} / {cli}"
+    """A remedy for both readers of a message: the Python argument, then the command-line
+    option (the command line keeps only the option: :func:`lintools.cli.console.translate`)."""
+    return f"{python}; on the command line {cli}"
 
 
 def _cli_value(text: str) -> str:
@@ -275,7 +277,7 @@ class Columns:
         return (
             f"{self.where!r} line {line}, {spec.label()}: value {shown!r} {reason}; fix or drop that line; if "
             f"{shown!r} marks a missing value, add it to the missing-value tokens "
-            f"({_both('missing_values=[...]', '--missing-values')}); if the column holds labels, declare it "
+            f"({_both('missing_values=[...]', '--missing-values TOKENS')}); if the column holds labels, declare it "
             f"categorical ({_both(f'categorical=[{spec.name!r}]', '--categorical ' + _cli_value(spec.name))})"
         )
 
@@ -292,7 +294,7 @@ class Columns:
             f"{self.where!r} line {line_t}, {spec.label()}: {shown!r} is not a number, but the column holds "
             f"numbers ({others}{col.n_num} are numbers, the first on line {line_n}: {value:.17g}). Fix the "
             f"cell; if {shown!r} marks a missing value, add it to the missing-value tokens "
-            f"({_both('missing_values=[...]', '--missing-values')}) and fill those cells in or drop their lines "
+            f"({_both('missing_values=[...]', '--missing-values TOKENS')}) and fill those cells in or drop their lines "
             f"({_both('drop_missing=True', '--drop-missing')}); if the column holds labels, declare it "
             f"categorical ({declare})"
         )
@@ -312,7 +314,7 @@ class Columns:
             raise InputError(
                 f"{self.where!r}: text column '{name}' has {len(names)} different values in {rows} rows, nearly "
                 f"one per row: it looks like an identifier, not a feature. Exclude it ({exclude}), or name the "
-                f"features to use ({_both('features=[...]', '--features')})"
+                f"features to use ({_both('features=[...]', '--features NAMES')})"
             )
         if len(names) > MAX_LEVELS:
             raise InputError(
