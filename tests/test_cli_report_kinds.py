@@ -195,7 +195,7 @@ def test_softmax_figures_against_scikit_learn(classes):
     for name, e in seg.items():
         m = shifts == name
         assert np.isclose(e["log_loss"], skm.log_loss(y[m], P[m], labels=names), rtol=1e-12)
-    assert set(doc["stability"]["scores"]) == {f"delivered probability of '{c}'" for c in names}
+    assert set(doc["stability"]["scores"]) == {f"probability of '{c}'" for c in names}
 
 
 def test_softmax_out_of_time_against_scikit_learn(classes):

@@ -67,7 +67,7 @@ def binary_parts(args: argparse.Namespace, d: Any, table: Any, X: np.ndarray, ta
                                                                        positive=positive))
     oot = out_of_time_part(args, recent, target, lambda r: binary_sample(
         args, list(r.table.target), rp, r.table.weights, positive, target, charts, "out-of-time ",
-        " (recent sample, out of time)"))
+        " (out of time)"))
     return {**parts, "band_tests": grades, "band_source": band_source, "band_notes": notes, "stability": stab,
             "segments": segs, "out_of_time": oot,
             "band_significance": None if grades is None else 1.0 - grades.level, "positive": str(positive)}

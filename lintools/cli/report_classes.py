@@ -20,7 +20,7 @@ from .report_segments import segment_table, weights_of
 
 def score_name(c: Any) -> str:
     """The name of the delivered probability of class ``c`` among the compared columns."""
-    return f"delivered probability of '{c}'"
+    return f"probability of '{c}'"
 
 
 def _one_class(args: argparse.Namespace, y: list, p: np.ndarray, w: Any, c: Any, notes: list[str]) -> dict[str, Any]:
@@ -116,7 +116,7 @@ def class_parts(args: argparse.Namespace, d: Any, table: Any, X: np.ndarray, tar
                                   "classes' probabilities.")
     oot = out_of_time_part(args, recent, target, lambda r: class_sample(
         args, list(r.table.target), RP, r.table.weights, classes, charts, "out-of-time ",
-        " (recent sample, out of time)"))
+        " (out of time)"))
     return {**parts, "stability": stab, "segments": segs, "out_of_time": oot,
             "class_order": [str(c) for c in classes]}
 

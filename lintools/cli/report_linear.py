@@ -31,7 +31,7 @@ def response_sample(args: argparse.Namespace, y: np.ndarray, pred: np.ndarray, w
     line = attempt(notes, "line of observed on predicted", lambda: response_line(y, pred, weights=w))
     bins = response_bins(y, pred, bins=args.bins, weights=w)
     charts[prefix + "binned response"] = response_bins_chart(
-        bins, f"Mean observed against mean predicted {target}{where}", target)
+        bins, f"Mean residual of {target} by bin of the delivered prediction{where}", target)
     return {"residuals": residual_summary(y, pred, weights=w), "response_line": line, "response_bins": bins,
             "response_notes": notes}
 
@@ -44,6 +44,16 @@ def _numbers(values: Any, target: str, where: str) -> np.ndarray:
     except (TypeError, ValueError):
         raise InputError(f"the column '{target}' of {where} holds text; a least-squares model's response is a "
                          "number") from None
+
+
+def _mean(values: np.ndarray, weights: Any) -> float:
+    """The (case-weighted) mean of a segment's values; refused when its weights are all zero."""
+    from ..support.errors import InputError
+
+    total = float(values.size) if weights is None else float(np.sum(weights))
+    if not total > 0:
+        raise InputError("every row of the segment has case weight 0: it has no mean")
+    return float(values.sum() if weights is None else np.asarray(weights, dtype=float) @ values) / total
 
 
 def linear_parts(args: argparse.Namespace, d: Any, table: Any, X: np.ndarray, target: str, cc: Any,
@@ -65,8 +75,8 @@ def linear_parts(args: argparse.Namespace, d: Any, table: Any, X: np.ndarray, ta
             return residual_summary(y[rows], pred[rows], weights=weights_of(w, rows))
 
         figures = {"weight": lambda r: summary(r).weight,
-                   "mean_observed": lambda r: float(np.average(y[r], weights=weights_of(w, r))),
-                   "mean_predicted": lambda r: float(np.average(pred[r], weights=weights_of(w, r))),
+                   "mean_observed": lambda r: _mean(y[r], weights_of(w, r)),
+                   "mean_predicted": lambda r: _mean(pred[r], weights_of(w, r)),
                    "mean_residual": lambda r: summary(r).mean,
                    "root_mean_square": lambda r: summary(r).root_mean_square,
                    "explained": lambda r: summary(r).explained,
@@ -80,5 +90,5 @@ def linear_parts(args: argparse.Namespace, d: Any, table: Any, X: np.ndarray, ta
                                   f"({args.bins} bins) (common practice); its figures are dominated by chance.")
     oot = out_of_time_part(args, recent, target, lambda r: response_sample(
         args, _numbers(r.table.target, target, "the recent sample"), rp, r.table.weights, target, charts,
-        "out-of-time ", " (recent sample, out of time)"))
+        "out-of-time ", " (out of time)"))
     return {**parts, "stability": stab, "segments": segs, "out_of_time": oot}

@@ -99,8 +99,9 @@ def _pad(lo: float, hi: float, share: float = 0.03) -> tuple[float, float]:
 
 
 def term_words(term: str) -> str:
-    """A coefficient's name as the document prints it (the intercept as a plain word)."""
-    return "intercept" if term == "(intercept)" else term
+    """A coefficient's name as the document prints it (the intercept as a plain word, also
+    in a class's term ``class:(intercept)``)."""
+    return term.replace("(intercept)", "intercept")
 
 
 def _short(text: str, most: int = 36) -> str:

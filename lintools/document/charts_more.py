@@ -28,31 +28,37 @@ def _held(values: np.ndarray, low: np.ndarray, high: np.ndarray) -> tuple[np.nda
 
 
 def response_bins_chart(table: Any, title: str, response: str) -> Chart:
-    """Mean observed against mean predicted response in the bins of a
-    :class:`lintools.metrics.response_checks.ResponseBins` with their Student-t intervals,
-    the line observed = predicted, and below it the rows of each bin (log scale) drawn
-    over the bin's range of predictions."""
+    """The mean residual (mean observed minus mean predicted response) in the bins of a
+    :class:`lintools.metrics.response_checks.ResponseBins`, with the Student-t interval of
+    the mean observed value moved by the bin's mean prediction, against the mean
+    prediction; the line of no bias at 0; below it the rows of each bin (log scale) drawn
+    over the bin's range of predictions.  On the residual scale a bias of a bin shows
+    even when it is small beside the spread of the predictions."""
     mp, mo = np.asarray(table.mean_predicted), np.asarray(table.mean_observed)
     low, high = _held(mo, np.asarray(table.observed_lower), np.asarray(table.observed_upper))
+    gap, low, high = mo - mp, low - mp, high - mp
     lowest, highest = np.asarray(table.lowest), np.asarray(table.highest)
-    span = _pad(float(min(lowest.min(), low.min())), float(max(highest.max(), high.max())), 0.04)
-    equal = Series("observed = predicted", "line", np.array(span), np.array(span), colour="grey", dashed=True)
-    points = Series(f"mean observed, {100 * table.level:g}% Student-t interval", "points", mp, mo, low=low, high=high,
-                    colour="blue", joined=True)
-    upper = Panel("", f"mean observed {response}", span, span, (equal, points))
+    x_span = _pad(float(lowest.min()), float(highest.max()), 0.04)
+    reach = max(float(np.max(np.abs(np.r_[low, high]))), 1e-300)
+    y_span = (-1.15 * reach, 1.15 * reach)
+    level = Series("no bias (mean residual 0)", "line", np.array(x_span), np.zeros(2), colour="grey", dashed=True)
+    points = Series(f"mean residual of the bin, {100 * table.level:g}% Student-t interval", "points", mp, gap,
+                    low=low, high=high, colour="blue", joined=True)
+    upper = Panel("", "mean residual (observed - predicted)", x_span, y_span, (level, points))
     counts = np.asarray(table.rows, dtype=float)
-    least = 0.006 * (span[1] - span[0])  # a bin of tied predictions still shows as a bar
+    least = 0.006 * (x_span[1] - x_span[0])  # a bin of tied predictions still shows as a bar
     mid = (lowest + highest) / 2
     half = np.maximum((highest - lowest) / 2, least)
     floor = 0.5
     bars = Series("rows per bin", "boxes", mid - half, np.full(counts.size, floor), x2=mid + half, y2=counts,
                   colour="grey")
     top = max(float(counts.max()), 1.0)
-    lower = Panel(f"predicted {response} (bins of the table)", "rows (log scale)", span,
+    lower = Panel(f"predicted {response} (bins of the table)", "rows (log scale)", x_span,
                   (floor, 10 ** (math.floor(math.log10(top)) + 1)), (bars,), y_log=True, height=0.4)
     return Chart("binned response", title, (upper, lower),
-                 "Points on the dashed line are predicted without bias in their bin; bars give the rows behind "
-                 "each point and the range of predictions in the bin.")
+                 "Points at 0 are predicted without bias in their bin; an interval that misses 0 marks a bin whose "
+                 "mean the model misses beyond chance. Bars give the rows behind each point and the range of "
+                 "predictions in the bin.")
 
 
 def class_reliability_chart(tables: Sequence[Any], classes: Sequence[str], title: str) -> Chart:

@@ -82,10 +82,10 @@ def _reliability_tables(pg: Page, at: tuple) -> str:
         rows = [[pg.word(str(j + 1), "n"), pg.cell((*r, "edges", j)), pg.cell((*r, "edges", j + 1)),
                  pg.cell((*r, "count", j), "int"), pg.cell((*r, "mean_predicted", j), ".4f"),
                  pg.cell((*r, "observed", j), ".4f"), pg.cell((*r, "observed_lower", j), ".4f"),
-                 pg.cell((*r, "observed_upper", j), ".4f")] for j in range(len(rel["count"]))]
+                 pg.cell((*r, "observed_upper", j), ".4f")] for j in range(len(rel["count"])) if rel["count"][j] > 0]
         out.append(pg.table(["bin", "above", "up to", "rows", "mean forecast", "observed share",
                              f"{pct} low (Wilson)", f"{pct} high (Wilson)"], rows,
-                            f"Reliability of the probability of '{e['class']}'"))
+                            f"Reliability of the probability of '{e['class']}' (bins without rows left out)"))
     return "".join(out)
 
 

@@ -48,14 +48,11 @@ QUANTILES = (0.0, 0.05, 0.25, 0.5, 0.75, 0.95, 1.0)
 
 
 def _pair(y: Any, predicted: Any, weights: Any) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Observed and predicted values (finite, same length) and case weights (some positive)."""
+    """Observed and predicted values (finite, same length: :func:`as_vector` refuses a
+    non-finite value by row) and case weights (some positive)."""
     yv, pv = as_vector(y, "y"), as_vector(predicted, "predicted")
     if yv.shape[0] != pv.shape[0]:
         raise InputError(f"y has {yv.shape[0]} values but predicted has {pv.shape[0]}; pass one prediction per row")
-    for arr, name in ((yv, "y"), (pv, "predicted")):
-        bad = ~np.isfinite(arr)
-        if bad.any():
-            raise InputError(f"{name} row {int(np.argmax(bad))} is not a finite number; drop or fill that row")
     w, _, _ = sample_weights(weights, yv.shape[0], "weights", "y")
     return yv, pv, w
 
