@@ -249,7 +249,9 @@ def test_outputs_are_guarded_before_any_work(written):
     assert (folder / "r.html").read_bytes() == before and not (folder / "x.html").exists()
 
 
-def test_a_model_that_is_not_logistic_is_refused_by_name(written):
+def test_band_tests_are_refused_by_name_for_a_model_without_one_probability(written):
     folder, _, _ = written
-    out = run("report", "demo/fill_deviation.json", "demo/inspection.csv", "--out", "ls.html", cwd=folder)
-    assert out.returncode == 2 and "least-squares model" in out.stderr and "lintools check" in out.stderr
+    out = run("report", "demo/fill_deviation.json", "demo/inspection.csv", "--bands", "5", "--out", "ls.html",
+              cwd=folder)
+    assert out.returncode == 2 and "--bands does not apply to a least-squares model" in out.stderr
+    assert not (folder / "ls.html").exists()

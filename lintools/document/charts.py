@@ -99,8 +99,9 @@ def _pad(lo: float, hi: float, share: float = 0.03) -> tuple[float, float]:
 
 
 def term_words(term: str) -> str:
-    """A coefficient's name as the document prints it (the intercept as a plain word)."""
-    return "intercept" if term == "(intercept)" else term
+    """A coefficient's name as the document prints it (the intercept as a plain word, also
+    in a class's term ``class:(intercept)``)."""
+    return term.replace("(intercept)", "intercept")
 
 
 def _short(text: str, most: int = 36) -> str:
@@ -246,11 +247,14 @@ def stability_bins_chart(record: Any, column: str, title: str) -> Chart:
                  f"Bins of '{column}' from the development sample; a shift shows as bars of unequal length.")
 
 
-def coefficient_chart(comparison: Any, title: str, level: float = 0.95) -> Chart:
+def coefficient_chart(comparison: Any, title: str, level: float = 0.95, *, bars: tuple[Any, Any, Any] | None = None,
+                      interval_words: str | None = None) -> Chart:
     """Delivered against refit coefficients, each in the refit's standard errors: the
-    refit at 0 with its Wald interval at ``level``, the delivered coefficient at
-    (delivered - refit) / refit standard error.  Terms whose difference is not defined
-    (a standard error of 0) are left out of the figure, not out of the table."""
+    refit at 0 with its interval, the delivered coefficient at (delivered - refit) /
+    refit standard error.  The interval is the Wald interval at ``level`` on the normal
+    scale, or ``bars`` (the refit's lower and upper bounds and standard errors, e.g. a
+    Student-t interval for least squares) put on the same scale.  Terms whose difference is not defined (a standard
+    error of 0) are left out of the figure, not out of the table."""
     from ..support import distributions as dist
 
     z = float(dist.normal_quantile(0.5 + level / 2))
@@ -258,12 +262,20 @@ def coefficient_chart(comparison: Any, title: str, level: float = 0.95) -> Chart
     ok = np.isfinite(d)
     names = [term_words(t) for t, good in zip(comparison.terms, ok) if good]
     pos = np.arange(len(names), dtype=float)
-    refit = Series(f"refit, {100 * level:g}% Wald interval", "points", np.zeros(pos.size), pos,
-                   low=np.full(pos.size, -z), high=np.full(pos.size, z), along="x", colour="blue")
+    low, high = np.full(pos.size, -z), np.full(pos.size, z)
+    if bars is not None:
+        with np.errstate(divide="ignore", invalid="ignore"):
+            se = np.asarray(bars[2], dtype=float)
+            refit = np.asarray(comparison.refit, dtype=float)
+            low = ((np.asarray(bars[0], dtype=float) - refit) / se)[ok]
+            high = ((np.asarray(bars[1], dtype=float) - refit) / se)[ok]
+    words = interval_words or f"{100 * level:g}% Wald interval"
+    refit_s = Series(f"refit, {words}", "points", np.zeros(pos.size), pos, low=np.minimum(low, 0.0),
+                     high=np.maximum(high, 0.0), along="x", colour="blue")
     delivered = Series("delivered", "points", d[ok], pos, colour="vermillion", marker="diamond")
-    reach = max(float(np.max(np.abs(d[ok]))) if ok.any() else 0.0, z) * 1.1
+    reach = max(float(np.max(np.abs(d[ok]))) if ok.any() else 0.0, float(np.max(np.abs(np.r_[low, high, z])))) * 1.1
     panel = Panel("delivered minus refit (refit standard errors)", "", (-reach, reach),
-                  (len(names) - 0.5, -0.5), (refit, delivered),
+                  (len(names) - 0.5, -0.5), (refit_s, delivered),
                   y_ticks=tuple((float(i), _short(n)) for i, n in enumerate(names)),
                   height=max(0.45, 0.1 * len(names)))
     return Chart("coefficients", title, (panel,),
