@@ -450,7 +450,8 @@ def _integers(lay: Layout, piece: Piece, plan: Plan, a: np.ndarray, ends: np.nda
     separator stands where that length puts it in every row, the bytes in that span are
     looked at for a decimal mark or an exponent.  Otherwise every cell is cut out.
     """
-    marks = (lay.decimal[0], ord("e"), ord("E"))
+    marks = np.zeros(256, dtype=bool)
+    marks[[lay.decimal[0], ord("e"), ord("E")]] = True
     last = a.size - 1
     for c in plan.whole:
         if c not in piece.numbers:
@@ -476,7 +477,7 @@ def _integers(lay: Layout, piece: Piece, plan: Plan, a: np.ndarray, ends: np.nda
                 marked = False
                 for t in range(int(size.max())):
                     at = np.clip(start[size > t] + t, 0, last)
-                    marked = marked or bool(np.isin(a[at], marks).any())
+                    marked = marked or bool(marks[a[at]].any())
                 piece.integers[c] = not marked
                 continue
         refused = piece.exceptions[c][0] if c in piece.exceptions else np.zeros(0, dtype=np.int64)
