@@ -4,7 +4,7 @@ Rules (the command line uses them through the same function, so they hold there 
 its options are named beside the Python arguments):
 
 * **File.** A regular file of UTF-8 text (a byte-order mark is skipped), read through
-  :func:`lintools.support.files.read_bounded`: at most ``max_bytes`` (default 2 GiB,
+  :class:`lintools.support.files.BoundedFile`: at most ``max_bytes`` (default 2 GiB,
   ``--max-bytes``), counted while reading.  A line longer than ``max_line_bytes``
   (default 1 MiB, ``--max-line-bytes``) or a cell longer than 131072 bytes (or the line
   limit, if smaller) is refused with its line named.  A NUL byte or bytes that are not
@@ -53,16 +53,18 @@ its options are named beside the Python arguments):
   categorical reads numbers as labels too).  The weights column must be numeric.  Extra
   columns are returned as their stripped text.  Unused columns are only split, never
   typed.
-* **Memory and speed.** The file's bytes are held once; its cells are converted about
-  1 MB at a time straight into the arrays returned (numbers into one float64 block, text
-  into small integer codes of its levels).  Peak memory is at most the returned arrays
-  plus 2.5 times the file's size (measured: 1.4 times for a numeric file of 8-byte
-  cells, 1.6 times for one-character numbers, 2.1 times for one-character text; the
-  returned float64 matrix is itself 4 times the file for one-character cells).  Numeric
-  columns are parsed by NumPy's compiled text reader (:func:`numpy.loadtxt`), which on
-  the bytes these columns may hold accepts exactly the grammar above once its result is
-  required to be finite; rows it refuses are found by halving and their cells read one by
-  one, so the errors and values are those of the rules, never of the reader.
+* **Memory and speed.** The file is streamed: only a window of about one chunk (1 MB) of
+  its bytes is held, and its cells are converted a chunk at a time straight into the
+  arrays returned (numbers into one float64 block, text into small integer codes of its
+  levels, a numeric target of small whole numbers into int8 until a value needs more).
+  Peak memory is the returned table plus at most half the file's size (measured with
+  ``benchmarks/read_table.py``: 1.6 times the file for a numeric file of %.6g numbers; 4.33
+  times for one-character cells, where the returned float64 matrix alone is 3.84 times the
+  file and the table 4.16 times).  Numeric columns are parsed by NumPy's compiled text
+  reader (:func:`numpy.loadtxt`), which on the bytes these columns may hold accepts
+  exactly the grammar above once its result is required to be finite; rows it refuses are
+  found by halving and their cells read one by one, so the errors and values are those of
+  the rules, never of the reader.
 """
 
 from __future__ import annotations

@@ -4,7 +4,8 @@ Reading (:func:`read_bounded`) opens the named path without blocking, refuses an
 that is not a regular file (a directory, a FIFO, a device such as ``/dev/zero``, a
 socket), and reads at most ``limit`` bytes *while reading*: the size the system reports is
 never trusted, so a file that grows, or a special file that reports size 0, cannot make
-it read more.
+it read more.  :class:`BoundedFile` makes the same refusals for a file read forward a
+block at a time (a CSV file is streamed, never held whole).
 
 Writing (:func:`write_atomic`) writes to a new temporary file in the target's own folder,
 flushes it to disk and renames it into place, so the target holds either its old bytes or
