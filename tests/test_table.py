@@ -96,3 +96,70 @@ def test_numbers_round_trip_exactly(tmp_path, rows):
     path.write_text(buf.getvalue())
     t = read_table(path, target="r")
     assert np.array_equal(t.X, np.array(rows)[:, :2])
+
+
+def _reference_target(text):
+    """The target column as the standard library's csv module and Python's float read it (ints when
+    every cell is written without a decimal mark or exponent)."""
+    rows = list(csv.reader(io.StringIO(text)))[1:]
+    cells = [r[-1].strip() for r in rows if r]
+    if all(c.lstrip("+-").isdigit() for c in cells):
+        return tuple(int(c) for c in cells)
+    return tuple(float(c) for c in cells)
+
+
+@pytest.mark.parametrize("late", ["-0.0", "2.5", "300", "-129", "1e0", "7", "-0"])
+def test_a_target_of_small_whole_numbers_read_exactly_when_another_value_comes_late(tmp_path, monkeypatch, late):
+    # oracle: the csv module and Python's float (above); the reader holds such a target compactly
+    # (int8) until the first value it cannot hold, which comes here in a later chunk
+    from lintools.exchange import csv_chunks
+
+    monkeypatch.setattr(csv_chunks, "CHUNK", 64)
+    body = "".join(f"{i % 7}.5,{i % 3 - 1}\n" for i in range(200))
+    text = "a,y\n" + body + f"1.5,{late}\n" + "2.5,1\n"
+    t = read_table(_write(tmp_path, text), target="y")
+    want = _reference_target(text)
+    assert t.target == want and [type(v) for v in t.target] == [type(v) for v in want]
+    assert [str(v) for v in t.target] == [str(v) for v in want]  # -0.0 keeps its sign
+    assert t.X[:, 0].tolist() == [float(r.split(",")[0]) for r in text.splitlines()[1:]]
+
+
+def test_a_missing_target_cell_dropped_with_a_compact_target(tmp_path, monkeypatch):
+    # oracle: the csv module and Python's float (above), the line with the missing cell left out
+    from lintools.exchange import csv_chunks
+
+    monkeypatch.setattr(csv_chunks, "CHUNK", 64)
+    lines = [f"{i},{i % 2}" for i in range(60)]
+    lines[37] = "37,NA"
+    text = "a,y\n" + "\n".join(lines) + "\n"
+    t = read_table(_write(tmp_path, text), target="y", drop_missing=True)
+    assert t.dropped == 1 and t.target == tuple(i % 2 for i in range(60) if i != 37)
+    assert t.lines.tolist() == [i + 2 for i in range(60) if i != 37]
+
+
+@pytest.mark.parametrize("chunk", [7, 64, 1 << 20])
+def test_lines_cut_at_any_chunk_mark_and_quoted_records_across_it(tmp_path, monkeypatch, chunk):
+    # oracle: the csv module (RFC 4180 quoting); the file is streamed a chunk at a time, so a
+    # quoted cell holding a line break may cross the chunk mark
+    from lintools.exchange import csv_chunks
+
+    monkeypatch.setattr(csv_chunks, "CHUNK", chunk)
+    rows = [f'{i * 0.25},"note {i}\nsecond line",{i % 2}' if i % 5 == 0 else f"{i * 0.25},plain,{i % 2}"
+            for i in range(40)]
+    text = "a,note,y\n" + "\n".join(rows) + "\n"
+    t = read_table(_write(tmp_path, text), target="y", extra=["note"])
+    ref = list(csv.reader(io.StringIO(text)))[1:]
+    assert t.X[:, 0].tolist() == [float(r[0]) for r in ref]
+    assert t.extra["note"] == tuple(r[1] for r in ref) and t.target == tuple(int(r[2]) for r in ref)
+
+
+def test_a_file_larger_than_the_limit_is_refused_while_it_is_streamed(tmp_path, monkeypatch):
+    # source: the "File" rule of lintools.exchange.csv_table (at most max_bytes, counted while reading)
+    from lintools.exchange import csv_chunks
+
+    monkeypatch.setattr(csv_chunks, "CHUNK", 64)
+    text = "a,y\n" + "".join(f"{i},{i % 2}\n" for i in range(3000))
+    path = _write(tmp_path, text)
+    with pytest.raises(InputError, match="larger than the 5000 bytes allowed"):
+        read_table(path, target="y", max_bytes=5000)
+    assert len(read_table(path, target="y", max_bytes=len(text)).target) == 3000

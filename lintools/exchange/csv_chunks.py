@@ -31,6 +31,7 @@ from numpy.lib.stride_tricks import as_strided
 
 from ..support.csv_cells import STRIP
 from ..support.errors import InputError
+from ..support.files import BoundedFile
 
 __all__ = ["CHUNK", "Layout", "Plan", "Piece", "pieces", "header_record"]
 
@@ -49,7 +50,7 @@ class Layout:
     """What every chunk needs to know about the file."""
 
     where: str
-    raw: bytes
+    src: BoundedFile  # the file, read forward a window at a time
     delimiter: bytes
     names: tuple[str, ...]
     decimal: bytes
@@ -121,7 +122,7 @@ def _nul(lay: Layout, line: int) -> InputError:
 
 # ----------------------------------------------------------------------- records (csv)
 class _Lines:
-    """Physical lines of ``raw`` from ``pos`` as str, for :mod:`csv`, with the bookkeeping
+    """Physical lines of the file from ``pos`` as str, for :mod:`csv`, with the bookkeeping
     of where the current record started and how long it is."""
 
     def __init__(self, lay: Layout, pos: int, line: int) -> None:
@@ -131,10 +132,11 @@ class _Lines:
         self.fresh = True
 
     def __iter__(self) -> Iterator[str]:
-        raw, lay = self.lay.raw, self.lay
-        while self.pos < len(raw):
-            m = _LINE.match(raw, self.pos)
-            chunk = m.group()
+        lay = self.lay
+        while True:
+            chunk = _next_line(lay, self.pos, self.line)
+            if chunk is None:
+                return
             if self.fresh:
                 self.record_line, self.record_bytes, self.fresh = self.line, 0, False
             if len(chunk.rstrip(b"\r\n")) > lay.max_line:
@@ -151,9 +153,23 @@ class _Lines:
                 text = chunk.decode("utf-8")
             except UnicodeDecodeError as exc:
                 raise _bad_text(lay, self.line, chunk[exc.start], exc.start + 1) from None
-            self.pos = m.end()
+            self.pos += len(chunk)
             self.line += 1
             yield text
+
+
+def _next_line(lay: Layout, pos: int, line: int) -> bytearray | None:
+    """The physical line at file position ``pos`` with its line end (None at the end of the file),
+    read onto the window as needed; a line longer than ``max_line`` is refused before it is all read."""
+    src = lay.src
+    while True:
+        off = pos - src.base
+        m = _LINE.match(src.buf, off)
+        if m.end() < len(src.buf) or src.eof:
+            return m.group() if m.end() > off else None
+        if m.end() - off > lay.max_line + 2:
+            raise _too_long(lay, line)
+        src.more()
 
 
 def _records(lay: Layout, pos: int, line: int) -> Iterator[tuple[list[str], int, _Lines]]:
@@ -182,7 +198,7 @@ def header_record(lay: Layout, pos: int) -> tuple[list[str], int, int]:
     """The first record from ``pos``: (fields, position after it, the next line number)."""
     for row, _, src in _records(lay, pos, 1):
         return row, src.pos, src.line
-    return [], len(lay.raw), 1
+    return [], lay.src.end, 1
 
 
 def _blank(fields: list[str]) -> bool:
@@ -224,7 +240,7 @@ def _quoted(lay: Layout, pos: int, line: int, plan: Plan) -> tuple[Piece, int, i
         if src.pos >= stop:
             break
     if src is None:
-        return Piece(lines=np.zeros(0, dtype=np.int64)), len(lay.raw), line
+        return Piece(lines=np.zeros(0, dtype=np.int64)), lay.src.end, line
     return _rows_to_piece(rows, lines, plan), src.pos, src.line
 
 
@@ -434,7 +450,8 @@ def _integers(lay: Layout, piece: Piece, plan: Plan, a: np.ndarray, ends: np.nda
     separator stands where that length puts it in every row, the bytes in that span are
     looked at for a decimal mark or an exponent.  Otherwise every cell is cut out.
     """
-    marks = (lay.decimal[0], ord("e"), ord("E"))
+    marks = np.zeros(256, dtype=bool)
+    marks[[lay.decimal[0], ord("e"), ord("E")]] = True
     last = a.size - 1
     for c in plan.whole:
         if c not in piece.numbers:
@@ -460,7 +477,7 @@ def _integers(lay: Layout, piece: Piece, plan: Plan, a: np.ndarray, ends: np.nda
                 marked = False
                 for t in range(int(size.max())):
                     at = np.clip(start[size > t] + t, 0, last)
-                    marked = marked or bool(np.isin(a[at], marks).any())
+                    marked = marked or bool(marks[a[at]].any())
                 piece.integers[c] = not marked
                 continue
         refused = piece.exceptions[c][0] if c in piece.exceptions else np.zeros(0, dtype=np.int64)
@@ -475,19 +492,37 @@ def _marked(tokens: np.ndarray, decimal: bytes) -> bool:
     return any(m in t for t in tokens.tolist() for m in (decimal, b"e", b"E"))
 
 
+def _chunk_end(lay: Layout, pos: int, line: int, size: int) -> int:
+    """The file position after the first line end at or beyond ``pos + size`` (or the end of
+    the file), read onto the window; the line crossing that mark is refused when too long."""
+    src = lay.src
+    src.fill(pos + size)
+    mark = pos + size
+    found = src.buf.find(b"\n", max(mark - src.base, 0))
+    while found < 0 and not src.eof and src.end - pos <= size + lay.max_line + 1:
+        seen = src.end
+        src.more()
+        found = src.buf.find(b"\n", seen - src.base)
+    end = src.end if found < 0 else src.base + found + 1
+    if end - pos > size + lay.max_line:  # the line crossing the chunk mark may be too long
+        buf, base = src.buf, src.base
+        start = buf.rfind(b"\n", pos - base, mark - base) + 1 or pos - base
+        if end - base - start > lay.max_line + 1:
+            raise _too_long(lay, line + buf.count(b"\n", pos - base, start))
+    return end
+
+
 def pieces(lay: Layout, pos: int, line: int, plan: Callable[[], Plan]) -> Iterator[tuple[Piece, int]]:
-    """The records of ``lay.raw`` from ``pos`` (on line ``line``), a chunk at a time, each
-    with the position after it."""
-    raw = lay.raw
-    size = len(raw)
-    while pos < size:
-        end = raw.find(b"\n", pos + CHUNK)
-        end = size if end < 0 else end + 1
-        if end - pos > CHUNK + lay.max_line:  # the line crossing the chunk mark is too long
-            start = raw.rfind(b"\n", pos, pos + CHUNK) + 1 or pos
-            if end - start > lay.max_line + 1:
-                raise _too_long(lay, line + raw.count(b"\n", pos, start))
-        chunk = raw[pos:end]
+    """The records of the file from ``pos`` (on line ``line``), a chunk at a time, each with
+    the position after it.  Only the current chunk's bytes are held (the window before
+    ``pos`` is dropped as reading goes on)."""
+    src = lay.src
+    while True:
+        src.drop(pos)
+        end = _chunk_end(lay, pos, line, CHUNK)
+        if end <= pos:
+            return
+        chunk = bytes(src.buf[pos - src.base:end - src.base])
         if b'"' in chunk or (b"\r" in chunk and chunk.count(b"\r") != chunk.count(b"\r\n")):
             piece, pos, line = _quoted(lay, pos, line, plan())
             yield piece, pos

@@ -5,12 +5,14 @@ The cells of every used column arrive a chunk at a time (:class:`lintools.exchan
 the features, text as small integer codes of its levels) and, at the end, decides each
 column's type from the whole column and applies the rules stated in
 :mod:`lintools.exchange.csv_table`.  Storage grows in place (``ndarray.resize``) from an estimate of
-the number of rows, so the file's numbers are held once.
+the number of rows, so the file's numbers are held once; a numeric target is held as
+int8 while its values are small whole numbers (widened to float64 at the first other one).
 """
 
 from __future__ import annotations
 
 from dataclasses import dataclass
+from itertools import chain
 from typing import Any
 
 import numpy as np
@@ -82,6 +84,40 @@ def _unique(tokens: np.ndarray) -> tuple[list[bytes], np.ndarray]:
     return [bytes(u) for u in distinct.tolist()], inverse.ravel()
 
 
+def _runs(columns: list[int]) -> list[tuple[int, int, int]]:
+    """``columns`` as runs of consecutive indices: (first, after the last, position of the first)."""
+    runs: list[tuple[int, int, int]] = []
+    for j, c in enumerate(columns):
+        if runs and runs[-1][1] == c:
+            runs[-1] = (runs[-1][0], c + 1, runs[-1][2])
+        else:
+            runs.append((c, c + 1, j))
+    return runs
+
+
+class _Sized:
+    """Python numbers of a sequence of array slices, with their count as the length hint, so that
+    ``tuple`` allocates the result once instead of growing it."""
+
+    def __init__(self, slices: list[np.ndarray], kind: Any, count: int) -> None:
+        self.slices, self.kind, self.count = slices, kind, count
+
+    def __iter__(self) -> Any:
+        return chain.from_iterable(s.astype(self.kind).tolist() for s in self.slices)
+
+    def __length_hint__(self) -> int:
+        return self.count
+
+
+def _small_whole(v: np.ndarray) -> bool:
+    """Whether every value of ``v`` is a whole number in int8's range, and none is -0.0 or NaN."""
+    if v.size == 0:
+        return True
+    if not (-128.0 <= v.min() and v.max() <= 127.0):  # False for NaN too
+        return False
+    return bool(np.array_equal(v, np.trunc(v))) and not bool((np.signbit(v) & (v == 0)).any())
+
+
 class _Col:
     """What is known so far about one used column."""
 
@@ -148,14 +184,15 @@ class Columns:
             self.store.add("missing", np.bool_, False)
         block = [c for c in self.cols if c.spec.role == "feature" and c.numeric]
         self._block_columns = [c.spec.index for c in block]
+        self._runs = _runs(self._block_columns)
         if block:
             self.store.add("block", np.float64, width=len(block))
             for j, c in enumerate(block):
                 c.values, c.slot = "block", j
         for c in self.cols:
             if c.spec.role in ("target", "weights") and not c.spec.categorical:
-                c.values = f"values {c.spec.index}"
-                self.store.add(c.values, np.float64)
+                c.values = f"values {c.spec.index}"  # a target of small whole numbers is held as int8
+                self.store.add(c.values, np.int8 if c.spec.role == "target" else np.float64)
 
     # ------------------------------------------------------------------ filling
     def plan(self) -> Plan:
@@ -173,7 +210,9 @@ class Columns:
         self.store["lines"][r0:r0 + r] = piece.lines
         whole = piece.matrix is not None and bool(self._block_columns)
         if whole:  # the block's rows in one copy
-            np.take(piece.matrix, self._block_columns, axis=1, out=self.store["block"][r0:r0 + r])
+            out = self.store["block"]
+            for lo, hi, at in self._runs:  # slices copy faster than a take
+                out[r0:r0 + r, at:at + hi - lo] = piece.matrix[:, lo:hi]
         for col in self.cols:
             c = col.spec.index
             if c in piece.numbers:
@@ -188,7 +227,7 @@ class Columns:
                             i += 1
                         col.first_num = (int(piece.lines[i]), float(piece.numbers[c][i]))
                     if not (whole and col.values == "block"):
-                        self._values(col)[r0:r0 + r] = piece.numbers[c]
+                        self._put(col, slice(r0, r0 + r), piece.numbers[c])
                 if rows is not None:
                     self._cells(col, piece.lines, r0, rows, toks)
             elif c in piece.tokens:
@@ -200,6 +239,14 @@ class Columns:
     def _values(self, col: _Col) -> np.ndarray:
         arr = self.store[col.values]
         return arr[:, col.slot] if arr.ndim == 2 else arr
+
+    def _put(self, col: _Col, rows: Any, values: np.ndarray) -> None:
+        """Write ``values`` into ``rows`` of the column's numbers, widening an int8 store to float64
+        at the first value it cannot hold exactly (not whole, beyond int8, -0.0 or NaN)."""
+        arr = self.store[col.values]
+        if arr.dtype == np.int8 and not _small_whole(values):
+            arr = self.store.arrays[col.values] = arr.astype(np.float64)
+        (arr[:, col.slot] if arr.ndim == 2 else arr)[rows] = values
 
     def _codes(self, col: _Col) -> np.ndarray:
         if col.codes is None:
@@ -248,7 +295,7 @@ class Columns:
                 i = int(np.flatnonzero(num)[0])
                 col.first_num = (int(lines[at[i]]), float(cells.values[inverse[i]]))
             if col.values is not None:
-                self._values(col)[r0 + at[num]] = cells.values[inverse[num]]
+                self._put(col, r0 + at[num], cells.values[inverse[num]])
         text = kinds == TEXT
         if text.any():
             i = int(np.flatnonzero(text)[0])
@@ -447,6 +494,9 @@ class Columns:
         if col.n_text or col.spec.categorical:
             return self._labels(col, rows)
         v = self._values(col)[:rows]
-        if col.integers and np.all(np.abs(v) < _EXACT_INT):
-            return tuple(v.astype(np.int64).tolist())
-        return tuple(v.tolist())
+        step = 1 << 16  # converted a slice at a time: no full-length temporary beside the tuple
+        if col.integers and max(float(v.max(initial=0)), -float(v.min(initial=0))) < _EXACT_INT:
+            kind = np.int64
+        else:
+            kind = np.float64
+        return tuple(_Sized([v[lo:lo + step] for lo in range(0, rows, step)], kind, rows))

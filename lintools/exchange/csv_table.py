@@ -4,7 +4,7 @@ Rules (the command line uses them through the same function, so they hold there 
 its options are named beside the Python arguments):
 
 * **File.** A regular file of UTF-8 text (a byte-order mark is skipped), read through
-  :func:`lintools.support.files.read_bounded`: at most ``max_bytes`` (default 2 GiB,
+  :class:`lintools.support.files.BoundedFile`: at most ``max_bytes`` (default 2 GiB,
   ``--max-bytes``), counted while reading.  A line longer than ``max_line_bytes``
   (default 1 MiB, ``--max-line-bytes``) or a cell longer than 131072 bytes (or the line
   limit, if smaller) is refused with its line named.  A NUL byte or bytes that are not
@@ -53,16 +53,18 @@ its options are named beside the Python arguments):
   categorical reads numbers as labels too).  The weights column must be numeric.  Extra
   columns are returned as their stripped text.  Unused columns are only split, never
   typed.
-* **Memory and speed.** The file's bytes are held once; its cells are converted about
-  1 MB at a time straight into the arrays returned (numbers into one float64 block, text
-  into small integer codes of its levels).  Peak memory is at most the returned arrays
-  plus 2.5 times the file's size (measured: 1.4 times for a numeric file of 8-byte
-  cells, 1.6 times for one-character numbers, 2.1 times for one-character text; the
-  returned float64 matrix is itself 4 times the file for one-character cells).  Numeric
-  columns are parsed by NumPy's compiled text reader (:func:`numpy.loadtxt`), which on
-  the bytes these columns may hold accepts exactly the grammar above once its result is
-  required to be finite; rows it refuses are found by halving and their cells read one by
-  one, so the errors and values are those of the rules, never of the reader.
+* **Memory and speed.** The file is streamed: only a window of about one chunk (1 MB) of
+  its bytes is held, and its cells are converted a chunk at a time straight into the
+  arrays returned (numbers into one float64 block, text into small integer codes of its
+  levels, a numeric target of small whole numbers into int8 until a value needs more).
+  Peak memory is the returned table plus at most half the file's size (measured with
+  ``benchmarks/read_table.py``: 1.6 times the file for a numeric file of %.6g numbers; 4.33
+  times for one-character cells, where the returned float64 matrix alone is 3.84 times the
+  file and the table 4.16 times).  Numeric columns are parsed by NumPy's compiled text
+  reader (:func:`numpy.loadtxt`), which on the bytes these columns may hold accepts
+  exactly the grammar above once its result is required to be finite; rows it refuses are
+  found by halving and their cells read one by one, so the errors and values are those of
+  the rules, never of the reader.
 """
 
 from __future__ import annotations
@@ -79,7 +81,7 @@ from ..support.csv_cells import STRIP, TEXT, classify, is_number
 from .csv_chunks import Layout, header_record, pieces
 from .csv_columns import MAX_LEVELS, Columns, Spec
 from ..support.errors import InputError
-from ..support.files import file_path, read_bounded
+from ..support.files import BoundedFile, file_path
 from ..support.validate import as_texts, check_flag
 
 __all__ = ["MAX_BYTES", "MAX_FIELD_BYTES", "MAX_LEVELS", "MAX_LINE_BYTES", "MISSING_VALUES", "Table",
@@ -168,12 +170,22 @@ def _missing(value: Iterable[str] | None) -> frozenset[bytes]:
     return frozenset({b""} | {t.strip(STRIP.decode()).encode("utf-8") for t in tokens})
 
 
-def _header(raw: bytes, where: str, delimiter: str | None, decimal: str, max_line: int,
+def _first_line(src: BoundedFile, max_line: int) -> tuple[int, bytes]:
+    """Where the header starts (after a byte-order mark) and its first physical line (at most
+    ``max_line + 2`` bytes of it, read onto the window)."""
+    src.fill(len(_BOM))
+    start = len(_BOM) if src.buf.startswith(_BOM) else 0
+    stop = start + max_line + 2
+    while src.buf.find(b"\n", start, stop) < 0 and src.end < stop and not src.eof:
+        src.more()
+    end = src.buf.find(b"\n", start, stop)
+    return start, bytes(src.buf[start:end if end >= 0 else stop]).split(b"\r", 1)[0]
+
+
+def _header(src: BoundedFile, where: str, delimiter: str | None, decimal: str, max_line: int,
             limit_hint: str) -> tuple[Layout, int, int]:
     """The layout of the file (names, separator) and the position and line number after the header."""
-    start = len(_BOM) if raw.startswith(_BOM) else 0
-    end = raw.find(b"\n", start, start + max_line + 2)
-    first = raw[start:end if end >= 0 else start + max_line + 2].split(b"\r", 1)[0]
+    start, first = _first_line(src, max_line)
     if not first.strip(STRIP):
         raise InputError(f"{where!r} is empty or has an empty first line; a header line is required")
     if delimiter is None:
@@ -193,7 +205,7 @@ def _header(raw: bytes, where: str, delimiter: str | None, decimal: str, max_lin
                 f"{where!r}: the header is separated by {delimiter!r}, which is also the decimal mark asked for; "
                 "a file with decimal commas must use another separator (usually ';')"
             )
-    lay = Layout(where=where, raw=raw, delimiter=delimiter.encode(), names=(), decimal=decimal.encode(),
+    lay = Layout(where=where, src=src, delimiter=delimiter.encode(), names=(), decimal=decimal.encode(),
                  max_line=max_line, max_field=min(MAX_FIELD_BYTES, max_line), line_hint=limit_hint)
     fields, pos, line = header_record(lay, start)
     names = [f.strip(STRIP.decode()) for f in fields]
@@ -239,8 +251,10 @@ def _references(value: Mapping[str, str] | None) -> dict[str, str]:
     return dict(value)
 
 
-def _read(path: str | os.PathLike, delimiter: str | None, decimal: str, max_bytes: object,
+def _open(path: str | os.PathLike, delimiter: str | None, decimal: str, max_bytes: object,
           max_line_bytes: object) -> tuple[Layout, int, int]:
+    """The file opened and its header read: the layout, and the position and line after the header
+    (the caller closes ``layout.src``)."""
     where = file_path(path, "CSV file")
     if not isinstance(decimal, str) or decimal not in (".", ","):
         raise InputError(f"decimal must be '.' or ','; got {decimal!r:.80}")
@@ -249,8 +263,13 @@ def _read(path: str | os.PathLike, delimiter: str | None, decimal: str, max_byte
     max_line = _limit(max_line_bytes, "max_line_bytes")
     if os.path.isdir(where):
         raise InputError(f"{where!r} is a directory; pass the path of a CSV file")
-    raw = read_bounded(where, "CSV file", max_bytes, limit_hint="allow more with max_bytes= / --max-bytes")
-    return _header(raw, where, delimiter, decimal, max_line, "allow more with max_line_bytes= / --max-line-bytes")
+    src = BoundedFile(where, "CSV file", max_bytes, limit_hint="allow more with max_bytes= / --max-bytes")
+    try:
+        return _header(src, where, delimiter, decimal, max_line,
+                       "allow more with max_line_bytes= / --max-line-bytes")
+    except BaseException:
+        src.close()
+        raise
 
 
 def read_header(
@@ -261,8 +280,10 @@ def read_header(
     max_bytes: int = MAX_BYTES,
     max_line_bytes: int = MAX_LINE_BYTES,
 ) -> tuple[str, ...]:
-    """The column names of a CSV file, by the header rules of :func:`read_table`."""
-    return _read(path, delimiter, decimal, max_bytes, max_line_bytes)[0].names
+    """The column names of a CSV file, by the header rules of :func:`read_table` (only the header is read)."""
+    lay = _open(path, delimiter, decimal, max_bytes, max_line_bytes)[0]
+    lay.src.close()
+    return lay.names
 
 
 def read_table(
@@ -326,7 +347,16 @@ def read_table(
     binary-decimal and decimal-binary conversions. AT&T Bell Laboratories Numerical
     Analysis Manuscript 90-10 (the conversion behind Python's ``float`` and NumPy's reader).
     """
-    lay, pos, line = _read(path, delimiter, decimal, max_bytes, max_line_bytes)
+    lay, pos, line = _open(path, delimiter, decimal, max_bytes, max_line_bytes)
+    with lay.src:
+        return _table(lay, pos, line, target, features, weights, extra, drop_missing, reference_levels,
+                      missing_values, categorical, exclude)
+
+
+def _table(lay: Layout, pos: int, line: int, target: str | None, features: Sequence[str] | None,
+           weights: str | None, extra: Sequence[str], drop_missing: bool, reference_levels: Mapping[str, str] | None,
+           missing_values: Iterable[str] | None, categorical: Sequence[str], exclude: Sequence[str]) -> Table:
+    """The rest of :func:`read_table`, the header read."""
     drop_missing = check_flag(drop_missing, "drop_missing")
     cols = _ColumnNames(lay)
     roles = cols.roles(target, weights, extra)
@@ -407,7 +437,7 @@ def _read_columns(lay: Layout, pos: int, line: int, specs: list[Spec], missing: 
     if any(is_number(t, lay.decimal) for t in missing):  # the compiled reader would read such a token
         text_first |= {s.index for s in specs}
     cols = Columns(lay.where, specs, text_first, lay.decimal, missing, drop_missing)
-    size, start = len(lay.raw), pos
+    size, start = max(lay.src.size_hint, pos + 1), pos
     for piece, pos in pieces(lay, pos, line, cols.plan):
         cols.add(piece, int((cols.rows + piece.lines.size) * (size - start) / max(pos - start, 1) * 1.01) + 16)
     return cols
@@ -415,7 +445,8 @@ def _read_columns(lay: Layout, pos: int, line: int, specs: list[Spec], missing: 
 
 def _text_first(lay: Layout, pos: int, specs: list[Spec], missing: frozenset[bytes]) -> set[int]:
     """Columns whose first data cell is text: they are read as tokens from the start."""
-    if pos >= len(lay.raw):
+    lay.src.fill(pos + 1)
+    if pos >= lay.src.end:
         return set()
     try:
         fields, _, _ = header_record(lay, pos)

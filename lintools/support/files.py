@@ -4,7 +4,8 @@ Reading (:func:`read_bounded`) opens the named path without blocking, refuses an
 that is not a regular file (a directory, a FIFO, a device such as ``/dev/zero``, a
 socket), and reads at most ``limit`` bytes *while reading*: the size the system reports is
 never trusted, so a file that grows, or a special file that reports size 0, cannot make
-it read more.
+it read more.  :class:`BoundedFile` makes the same refusals for a file read forward a
+block at a time (a CSV file is streamed, never held whole).
 
 Writing (:func:`write_atomic`) writes to a new temporary file in the target's own folder,
 flushes it to disk and renames it into place, so the target holds either its old bytes or
@@ -28,7 +29,7 @@ from typing import Any, Iterable
 from .errors import InputError
 from .validate import check_flag
 
-__all__ = ["file_path", "read_bounded", "write_atomic", "check_outputs", "same_file"]
+__all__ = ["BoundedFile", "file_path", "read_bounded", "write_atomic", "check_outputs", "same_file"]
 
 _CHUNK = 1 << 20
 
@@ -55,14 +56,8 @@ def _kind(mode: int) -> str:
     return "not a regular file"
 
 
-def read_bounded(path: Any, label: str, limit: int, *, limit_hint: str = "") -> bytearray:
-    """Return the bytes of the regular file ``path`` (a bytearray), at most ``limit`` of them.
-
-    Raises :class:`InputError` (naming ``label``, the path and the remedy) when the path
-    is missing, unreadable, not a regular file, or holds more than ``limit`` bytes;
-    ``limit_hint`` says how to raise the limit (for example the option that sets it).
-    """
-    where = file_path(path, label)
+def _open_regular(where: str, label: str) -> int:
+    """A descriptor of the regular file ``where``, opened without blocking (InputError otherwise)."""
     flags = os.O_RDONLY | getattr(os, "O_NONBLOCK", 0) | getattr(os, "O_NOCTTY", 0) | getattr(os, "O_BINARY", 0)
     try:
         fd = os.open(where, flags)
@@ -72,10 +67,33 @@ def read_bounded(path: Any, label: str, limit: int, *, limit_hint: str = "") -> 
         raise InputError(f"{label} {where!r} cannot be read: {exc.strerror or exc}") from None
     try:
         mode = os.fstat(fd).st_mode
+    except OSError as exc:
+        os.close(fd)
+        raise InputError(f"{label} {where!r} cannot be read: {exc.strerror or exc}") from None
+    if stat.S_ISDIR(mode) or not stat.S_ISREG(mode):
+        os.close(fd)
         if stat.S_ISDIR(mode):
             raise InputError(f"{label} {where!r} is a directory; pass the path of a file")
-        if not stat.S_ISREG(mode):
-            raise InputError(f"{label} {where!r} is {_kind(mode)}; pass the path of a regular file")
+        raise InputError(f"{label} {where!r} is {_kind(mode)}; pass the path of a regular file")
+    return fd
+
+
+def _too_large(label: str, where: str, limit: int, limit_hint: str) -> InputError:
+    hint_text = f" ({limit_hint})" if limit_hint else ""
+    return InputError(f"{label} {where!r} is larger than the {limit} bytes allowed{hint_text}; "
+                      "check that this is the intended file")
+
+
+def read_bounded(path: Any, label: str, limit: int, *, limit_hint: str = "") -> bytearray:
+    """Return the bytes of the regular file ``path`` (a bytearray), at most ``limit`` of them.
+
+    Raises :class:`InputError` (naming ``label``, the path and the remedy) when the path
+    is missing, unreadable, not a regular file, or holds more than ``limit`` bytes;
+    ``limit_hint`` says how to raise the limit (for example the option that sets it).
+    """
+    where = file_path(path, label)
+    fd = _open_regular(where, label)
+    try:
         # one buffer, sized by the reported size and grown if the file grows: the file is
         # held once in memory while reading (the size reported is a hint, never a limit)
         hint = os.fstat(fd).st_size
@@ -84,11 +102,7 @@ def read_bounded(path: Any, label: str, limit: int, *, limit_hint: str = "") -> 
         while True:
             if total == len(buf):
                 if total > limit:
-                    hint_text = f" ({limit_hint})" if limit_hint else ""
-                    raise InputError(
-                        f"{label} {where!r} is larger than the {limit} bytes allowed{hint_text}; "
-                        "check that this is the intended file"
-                    )
+                    raise _too_large(label, where, limit, limit_hint)
                 buf.extend(bytes(min(max(_CHUNK, total), limit + 1 - total)))
             got = os.readv(fd, [memoryview(buf)[total:]])
             if not got:
@@ -100,6 +114,76 @@ def read_bounded(path: Any, label: str, limit: int, *, limit_hint: str = "") -> 
         raise InputError(f"{label} {where!r} cannot be read: {exc.strerror or exc}") from None
     finally:
         os.close(fd)
+
+
+class BoundedFile:
+    """A regular file read forward a block at a time, at most ``limit`` bytes in all.
+
+    The same refusals as :func:`read_bounded` (not a regular file; more than ``limit``
+    bytes, counted while reading), but only a window of the file is held: ``buf`` holds
+    the bytes from file position ``base`` to ``end``; :meth:`more` reads the next block
+    onto it and :meth:`drop` forgets the bytes before a position.  ``size_hint`` is the
+    size the system reported at opening (a hint for estimates, never a limit).  Use it
+    as a context manager, or call :meth:`close`.
+    """
+
+    def __init__(self, path: Any, label: str, limit: int, *, limit_hint: str = "") -> None:
+        self.where = file_path(path, label)
+        self.label, self.limit, self.limit_hint = label, limit, limit_hint
+        self.fd: int | None = _open_regular(self.where, label)
+        try:
+            self.size_hint = max(os.fstat(self.fd).st_size, 0)
+        except OSError as exc:
+            self.close()
+            raise InputError(f"{label} {self.where!r} cannot be read: {exc.strerror or exc}") from None
+        self.buf = bytearray()
+        self.base = 0
+        self.eof = False
+
+    @property
+    def end(self) -> int:
+        """The file position after the last byte read."""
+        return self.base + len(self.buf)
+
+    def more(self, size: int = _CHUNK) -> None:
+        """Read about ``size`` more bytes onto ``buf`` (fewer at the end of the file; then ``eof``)."""
+        if self.eof:
+            return
+        if self.fd is None:
+            raise InputError(f"{self.label} {self.where!r} was closed before it was read to its end")
+        want = min(max(size, _CHUNK), self.limit + 1 - self.end)
+        try:
+            data = os.read(self.fd, want)
+        except OSError as exc:
+            raise InputError(f"{self.label} {self.where!r} cannot be read: {exc.strerror or exc}") from None
+        if not data:
+            self.eof = True
+            return
+        if self.end + len(data) > self.limit:
+            raise _too_large(self.label, self.where, self.limit, self.limit_hint)
+        self.buf += data
+
+    def fill(self, upto: int) -> None:
+        """Read until ``buf`` reaches file position ``upto`` or the end of the file."""
+        while self.end < upto and not self.eof:
+            self.more(upto - self.end)
+
+    def drop(self, pos: int) -> None:
+        """Forget the bytes before file position ``pos``."""
+        if pos > self.base:
+            del self.buf[: pos - self.base]
+            self.base = pos
+
+    def close(self) -> None:
+        if self.fd is not None:
+            os.close(self.fd)
+            self.fd = None
+
+    def __enter__(self) -> "BoundedFile":
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.close()
 
 
 def same_file(a: str, b: str) -> bool:
