@@ -141,6 +141,7 @@ def glm_optimum(X, classes, K, w, intercept, rel=None, rng=None):
 def glm_digits(got: np.ndarray, exact, X, w, intercept, K=1) -> float:
     """Digits of ``got`` (flat, j K + k, intercept first) against the mpmath optimum."""
     with mpmath.workdps(50):
-        err = np.array([float(abs(mpmath.mpf(float(g)) - e)) for g, e in zip(got, exact)])
+        err = np.array([float(abs((g if isinstance(g, mpmath.mpf) else mpmath.mpf(float(g))) - e))
+                        for g, e in zip(got, exact)])
     sv = scale_vector(X, w, intercept, K)
     return digits(err * sv, np.array([float(e) for e in exact]) * sv)
