@@ -73,7 +73,7 @@ UNIT = 2.0**-53
 #: A scaled coefficient below this fraction of the largest is measured against the largest.
 NEAR_ZERO = 1e-3
 #: Rows used for the data term (evenly spaced); the sums are scaled up by n / m.
-SUBSAMPLE_ROWS = 20000
+SUBSAMPLE_ROWS = 2048
 #: Digits of a correctly rounded float64.
 _MAX_DIGITS = -math.log10(UNIT)
 #: Safety factor of the rounding floor of a solver that forms its residual in float64.
@@ -177,11 +177,12 @@ def digits_of(err: np.ndarray, theta: np.ndarray) -> tuple[np.ndarray, np.ndarra
     return np.clip(np.nan_to_num(d, nan=0.0, posinf=_MAX_DIGITS), 0.0, _MAX_DIGITS), near
 
 
-def sensitivity(Z: np.ndarray, sig: np.ndarray, gz: np.ndarray, r: np.ndarray, W: np.ndarray, B: np.ndarray,
-                intercept: bool, tau_w: np.ndarray | None = None, scale: float = 1.0) -> np.ndarray:
-    r"""Variance of the first-order change of each column-scaled coefficient (one output)
-    under independent errors of standard deviation ``sig`` (rows by columns, in the units
-    of ``Z``) in the design and ``tau_w = |psi_y| sd(dy)`` in the response.
+def sensitivity(Z: np.ndarray, gz: np.ndarray, r: np.ndarray, W: np.ndarray, B: np.ndarray, intercept: bool,
+                errors: list[tuple[np.ndarray, np.ndarray | None]], scale: float = 1.0) -> list[np.ndarray]:
+    r"""Variance of the first-order change of each column-scaled coefficient (one output),
+    for each ``(sig, tau_w)`` of ``errors``: independent errors of standard deviation
+    ``sig`` (rows by columns, in the units of ``Z``) in the design and
+    ``tau_w = |psi_y| sd(dy)`` in the response (None: none).
 
     ``Z``: rows of the centred, scaled design (no intercept column); ``gz``: the slopes in
     those coordinates; ``r``, ``W``: the first and second derivative of each row's loss in
@@ -191,18 +192,24 @@ def sensitivity(Z: np.ndarray, sig: np.ndarray, gz: np.ndarray, r: np.ndarray, W
     psi_y dy_i a_i``; its variance is summed as squares of the row terms (never through
     ``H^{-1} Cov(g) H^{-1}``, which cancels catastrophically when ``H`` is ill-conditioned)."""
     off = int(intercept)
-    A = np.hstack([np.ones((Z.shape[0], 1)), Z]) if intercept else Z
-    s2 = sig * sig
-    BA = A @ B.T  # rows: B a_i
     Bs = B[:, off:]  # B e_j for the slopes
-    q = W * W * (s2 @ (gz * gz))
-    if tau_w is not None:
-        q = q + tau_w * tau_w
-    own = (Bs * Bs) @ (s2.T @ (r * r))
-    through = (BA * BA).T @ q
-    P = s2 @ (gz[:, None] * Bs.T)  # (m, p1): sum_j s2_ij gz_j B_kj
-    cross = 2.0 * np.einsum("i,ik,ik->k", r * W, BA, P)
-    return scale * np.clip(own + through + cross, 0.0, None)
+    BA = Z @ Bs.T  # rows: B a_i
+    if intercept:
+        BA += B[:, 0]
+    BA2 = BA * BA
+    rW = r * W
+    out = []
+    for sig, tau_w in errors:
+        s2 = sig * sig
+        q = W * W * (s2 @ (gz * gz))
+        if tau_w is not None:
+            q = q + tau_w * tau_w
+        own = (Bs * Bs) @ (s2.T @ (r * r))
+        through = BA2.T @ q
+        P = s2 @ (gz[:, None] * Bs.T)  # (m, p1): sum_j s2_ij gz_j B_kj
+        cross = 2.0 * ((BA * P).T @ rW)
+        out.append(scale * np.clip(own + through + cross, 0.0, None))
+    return out
 
 
 def accuracy_record(theta: np.ndarray, z: np.ndarray, T: np.ndarray, step_z: np.ndarray, floor_var: np.ndarray, floor: float,

@@ -72,9 +72,12 @@ def binary_accuracy(problem: Any, Xa: np.ndarray, loss: Any, offset: np.ndarray 
     T = column_scaled(c, s, rho, intercept)
     B = T @ Hinv
     scale = n / idx.size
-    floor_var = sensitivity(Z, np.abs(Z) * (UNIT / _ROOT3), gz, r, W, B, intercept, None, scale)
-    sig = np.sqrt((prec.x_relative * Xs) ** 2 + prec.x_absolute ** 2) / (_ROOT3 * s)
-    data_var = sensitivity(Z, sig, gz, r, W, B, intercept, None, scale)
+    if precision is None:  # relative rounding u of the entries as given
+        sig = np.abs(Xs) * (UNIT / _ROOT3 / s)
+    else:
+        sig = np.sqrt((prec.x_relative * Xs) ** 2 + prec.x_absolute ** 2) / (_ROOT3 * s)
+    floor_var, data_var = sensitivity(Z, gz, r, W, B, intercept, [(np.abs(Z) * (UNIT / _ROOT3), None), (sig, None)],
+                                      scale)
     theta = np.concatenate([[b0] if intercept else [], rho * beta])
     step = Hinv @ gradient_z
     to_caller = np.concatenate([[1.0] if intercept else [], 1.0 / rho])

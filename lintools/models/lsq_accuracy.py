@@ -65,14 +65,16 @@ def least_squares_accuracy(Xa: np.ndarray, y1: np.ndarray, w1: np.ndarray | None
     T = column_scaled(xbar, s, rho, intercept)
     B = T @ Hinv
     r, ybar = -ws * e, (float(ws @ ys) / float(ws.sum()) if intercept else 0.0)
+    if precision is None:  # relative rounding u of the entries as given
+        sig, tau = np.abs(Xs) * (UNIT / _ROOT3 / s), ws * np.abs(ys) * (UNIT / _ROOT3)
+    else:
+        ax = np.ldexp(prec.x_absolute, -ex)
+        sig = np.sqrt((prec.x_relative * Xs) ** 2 + ax * ax) / (_ROOT3 * s)
+        ay = math.ldexp(prec.y_absolute, -units.ey)
+        tau = ws * np.sqrt((prec.y_relative * ys) ** 2 + ay * ay) / _ROOT3
     # the solver's floor: rounding u of the centred entries, which is what the residual sees
-    floor_var = sensitivity(Z, np.abs(Z) * (UNIT / _ROOT3), gz, r, ws, B, intercept,
-                            ws * np.abs(ys - ybar) * (UNIT / _ROOT3), scale)
-    ax = np.ldexp(prec.x_absolute, -ex)
-    sig = np.sqrt((prec.x_relative * Xs) ** 2 + ax * ax) / (_ROOT3 * s)
-    ay = math.ldexp(prec.y_absolute, -units.ey)
-    tau = ws * np.sqrt((prec.y_relative * ys) ** 2 + ay * ay) / _ROOT3
-    data_var = sensitivity(Z, sig, gz, r, ws, B, intercept, tau, scale)
+    floor_var, data_var = sensitivity(Z, gz, r, ws, B, intercept, [
+        (np.abs(Z) * (UNIT / _ROOT3), ws * np.abs(ys - ybar) * (UNIT / _ROOT3)), (sig, tau)], scale)
     theta = np.concatenate([[fit.b0] if intercept else [], rho * beta])
     step = np.zeros(p + off) if fit.correction is None else fit.correction
     floor = FLOOR_FACTOR * (EXTENDED_UNIT / UNIT if fit.solver == "qr" else 1.0)
