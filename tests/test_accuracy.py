@@ -160,3 +160,21 @@ def test_record_report_and_model_file(tmp_path):
         acc.data_error[0] = 1.0
     lt.save(fit, tmp_path / "m.json")
     assert lt.load(tmp_path / "m.json").accuracy == acc
+
+
+def test_crosscheck_names_differences_the_data_cannot_resolve():
+    # common practice: a difference below the data's own rounding effect is no disagreement.
+    # Near-exact data (residuals 3e-16) make the standard errors tiny, so the Wald test
+    # rejects differences of one unit in the last place; the data at float64 cannot
+    # resolve them, and the comparison says so.
+    rng = np.random.default_rng(11)
+    X = rng.normal(size=(50, 3))
+    y = X @ np.array([1.5, -2.0, 0.25]) + 0.5 + 3e-16 * rng.normal(size=50)
+    fit = lt.least_squares(X, y)
+    nudged = np.nextafter(fit.coefficients, np.inf)
+    tight = lt.compare_coefficients(fit, nudged, fit.intercept)
+    assert tight.wald_p_value < 0.05
+    assert tight.all_within_data and "within what the data determine" in tight.report()
+    loose = lt.compare_coefficients(fit, fit.coefficients * (1 + 1e-9), fit.intercept)
+    assert not loose.within_data[1:].any()
+    assert "No difference" in loose.report() or "Within what" in loose.report()

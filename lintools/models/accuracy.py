@@ -138,7 +138,7 @@ class Precision:
     x_absolute: np.ndarray
     y_relative: float = UNIT
     y_absolute: float = 0.0
-    what: str = "float64 input (relative rounding 1.1e-16)"
+    what: str = "float64 input, relative rounding 1.1e-16"
 
     @staticmethod
     def float64(p: int) -> "Precision":
