@@ -38,7 +38,14 @@ __all__ = ["binary_accuracy"]
 _ROOT3 = math.sqrt(3.0)
 
 
-def binary_accuracy(problem: Any, Xa: np.ndarray, loss: Any, offset: np.ndarray | None, z: np.ndarray,
+def binary_accuracy(*args: Any, **kwargs: Any) -> Accuracy:
+    """See :func:`_binary_accuracy`; arithmetic warnings of extreme data (an overflow of a squared error)
+    are silent: such a figure shows as 0 digits or the float64 limit."""
+    with np.errstate(all="ignore"):
+        return _binary_accuracy(*args, **kwargs)
+
+
+def _binary_accuracy(problem: Any, Xa: np.ndarray, loss: Any, offset: np.ndarray | None, z: np.ndarray,
                     gradient_z: np.ndarray, V: np.ndarray, terms: tuple[str, ...],
                     precision: Precision | None = None) -> Accuracy:
     """The accuracy of a binary logistic answer ``z`` (the problem's coordinates).

@@ -25,6 +25,8 @@ from __future__ import annotations
 
 import math
 
+from typing import Any
+
 import numpy as np
 
 from .accuracy import FLOOR_FACTOR, UNIT, Accuracy, Precision, accuracy_record, column_scaled, sensitivity, subsample
@@ -39,7 +41,14 @@ EXTENDED_UNIT = float(np.finfo(np.longdouble).eps) / 2
 _ROOT3 = math.sqrt(3.0)
 
 
-def least_squares_accuracy(Xa: np.ndarray, y1: np.ndarray, w1: np.ndarray | None, fit: PathAnswer, units: Units,
+def least_squares_accuracy(*args: Any, **kwargs: Any) -> Accuracy:
+    """See :func:`_least_squares_accuracy`; arithmetic warnings of extreme data (an overflow of a squared error)
+    are silent: such a figure shows as 0 digits or the float64 limit."""
+    with np.errstate(all="ignore"):
+        return _least_squares_accuracy(*args, **kwargs)
+
+
+def _least_squares_accuracy(Xa: np.ndarray, y1: np.ndarray, w1: np.ndarray | None, fit: PathAnswer, units: Units,
                            intercept: bool, W1: float, precision: Precision | None = None) -> Accuracy:
     """The accuracy of a path's answer ``fit`` on the caller's ``Xa`` and the unit ``y1``, ``w1``.
 
