@@ -456,7 +456,7 @@ class LogisticFit(_FitBase):
                     "term".ljust(width) + "from".rjust(15) + "to".rjust(15)]
             for term, (lo, hi) in zip(terms, self.profile_intervals):
                 prof.append(term.ljust(width) + _fmt(lo, 15) + _fmt(hi, 15))
-            closing[-2:-2] = ["", *prof]
+            closing[3:3] = ["", *prof]  # after the coefficient table
         return "\n".join(lines + closing) + "\n"
 
 
