@@ -12,7 +12,7 @@ from .support.errors import (
     LintoolsWarning,
     SeparationError,
 )
-from .models.records import CoefficientTable, Convergence, LinearFit
+from .models.records import Accuracy, CoefficientTable, Convergence, LinearFit
 from .exchange.model_files import load, save
 from .exchange.pmml import DeliveredModel, read_pmml, write_pmml
 from .exchange.csv_table import Table, read_table
@@ -60,6 +60,7 @@ from .splitting.stratified import (
 
 
 __all__ = [
+    "Accuracy",
     "CoefficientTable",
     "Convergence",
     "IllConditionedWarning",

@@ -545,6 +545,7 @@ FOLLOW_UP = {f"{c}.{m}" for c in ("SplitBalance", "BrierScore", "ReliabilityTabl
                                   "HosmerLemeshow", "CoefficientComparison", "ROCArea", "ROCAreaDifference")
              for m in ("report",)} | {f"{c}.to_dict" for c in ("LinearFit", "LogisticFit", "SoftmaxFit")} | {
     "SoftmaxFit.parameter_terms"} | {
+    "Accuracy.report"} | {  # every fit's report() prints it (LinearFit.report, LogisticFit.report)
     "BandTests.report", "BandTests.summary", "BandTests.to_dict", "Collinearity.dependencies", "Collinearity.report",
     "Collinearity.to_dict", "GainsTable.report", "GainsTable.to_dict", "KolmogorovSmirnov.report",
     "KolmogorovSmirnov.to_dict", "PopulationStability.bin_labels", "PopulationStability.report",

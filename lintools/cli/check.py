@@ -260,7 +260,10 @@ def _judge(d: Delivered, fit: Any, X: np.ndarray, labels: list, weights: Any, ar
     y = labels if kind.classifier else np.array(labels, dtype=float)
     cmp = compare_coefficients(fit, coef, intercept, X=X, y=y, weights=weights)
     reasons = []
-    if cmp.wald_p_value < args.significance:
+    if cmp.wald_p_value < args.significance and cmp.all_within_data:
+        extra = "every coefficient difference is within what the data determine at their precision, not a disagreement"
+        note = extra if note is None else f"{note}; {extra}"
+    elif cmp.wald_p_value < args.significance:
         reasons.append(f"the Wald test rejects 'delivered = refit' at significance {args.significance:g} "
                        f"(p-value {p_text(cmp.wald_p_value)})")
     gap = cmp.max_abs_prediction_difference

@@ -63,6 +63,25 @@ class CoefficientComparison:
     score_p_value: float | None
     max_abs_prediction_difference: float | None
     mean_abs_prediction_difference: float | None
+    #: per compared term, the largest difference the data cannot resolve: three times the
+    #: expected change of the refit's coefficient under the rounding of its data, plus the
+    #: refit's estimated solver error (its ``accuracy`` record); None when the refit has none
+    data_resolution: np.ndarray | None = None
+    #: the precision of the data that ``data_resolution`` assumes
+    data_precision: str = ""
+
+    @property
+    def within_data(self) -> np.ndarray | None:
+        """Per compared term: the difference is within what the data determine."""
+        if self.data_resolution is None:
+            return None
+        return np.abs(self.difference) <= self.data_resolution
+
+    @property
+    def all_within_data(self) -> bool:
+        """Every difference is within what the data determine (no disagreement the data could show)."""
+        inside = self.within_data
+        return inside is not None and bool(np.all(inside))
 
     def report(self) -> str:
         """A text table of the per-term differences and the two tests."""
@@ -71,12 +90,16 @@ class CoefficientComparison:
             "term".ljust(w) + "delivered".rjust(15) + "refit".rjust(15) + "difference".rjust(14) + "in SEs".rjust(9),
         ]
         lines.append("-" * len(lines[0]))
+        inside = self.within_data
         for i, t in enumerate(self.terms):
             lines.append(
                 t.ljust(w) + f"{self.delivered[i]:15.7g}{self.refit[i]:15.7g}{self.difference[i]:14.4g}"
-                f"{self.difference_in_se[i]:9.2f}"
+                f"{self.difference_in_se[i]:9.2f}" + ("  within what the data determine" if inside is not None
+                                                        and inside[i] else "")
             )
         lines.append("")
+        if inside is not None:
+            lines.append(self._data_sentence(inside))
         lines.append(
             f"Wald test that the delivered coefficients equal the refit: chi-square {self.wald_statistic:.4g} "
             f"with {self.wald_degrees_of_freedom} degrees of freedom, p-value {p_text(self.wald_p_value)}"
@@ -93,6 +116,18 @@ class CoefficientComparison:
                 f"mean {self.mean_abs_prediction_difference:.4g}"
             )
         return "\n".join(lines)
+
+
+    def _data_sentence(self, inside: np.ndarray) -> str:
+        what = f"the change the rounding of the data ({self.data_precision}) causes, three expected sizes, " \
+               "plus the refit's solver error"
+        if inside.all():
+            return (f"Every difference is within what the data determine ({what}): the data cannot tell the "
+                    "delivered coefficients from the refit, which is not a disagreement")
+        if not inside.any():
+            return f"No difference is within what the data determine ({what})"
+        names = ", ".join(t for t, i in zip(self.terms, inside) if i)
+        return f"Within what the data determine ({what}): {names}"
 
 
 def _numbers(value: Any, name: str, *, vector: bool = False) -> np.ndarray:
@@ -265,6 +300,7 @@ def compare_coefficients(
         raise InputError("y was given without X; the score test needs both")
     with np.errstate(over="ignore"):  # a difference of 1e300 in 1e-10 standard errors is inf: so be it
         in_se = d / se
+    resolution, precision = _resolution(fit, idx)
     return CoefficientComparison(
         terms=terms,
         delivered=theta0[idx],
@@ -278,7 +314,21 @@ def compare_coefficients(
         score_p_value=score_p,
         max_abs_prediction_difference=max_d,
         mean_abs_prediction_difference=mean_d,
+        data_resolution=resolution,
+        data_precision=precision,
     )
+
+
+def _resolution(fit: Any, idx: np.ndarray) -> tuple[np.ndarray | None, str]:
+    """Per compared parameter, the difference the data cannot resolve (None: the refit has no
+    accuracy record, or one of another shape)."""
+    acc = getattr(fit, "accuracy", None)
+    if acc is None:
+        return None, ""
+    data, solver = np.ravel(acc.data_error), np.ravel(acc.solver_error)
+    if data.shape[0] <= int(np.max(idx, initial=-1)):
+        return None, ""
+    return (3.0 * data + solver)[idx], acc.precision
 
 
 def _mean(fit: Any, Xa: np.ndarray, coef: np.ndarray, b: Any) -> np.ndarray:

@@ -44,7 +44,7 @@ import numpy as np
 
 from ..support.categories import CategoricalField
 from ..models.kinds import KINDS
-from ..models.records import CoefficientTable, Convergence
+from ..models.records import Accuracy, CoefficientTable, Convergence
 from ..support.errors import InputError
 from ..support.files import file_path, read_bounded, write_atomic
 from .model_checks import check_record
@@ -157,7 +157,7 @@ def _parse_numbers(raw: bytes, start: int, stop: int) -> Any:
 #: list: a class is readable from a file only when it is named here)
 RECORD_TYPES: dict[str, type] = {
     cls.__name__: cls
-    for cls in (CategoricalField, CoefficientTable, Convergence) + tuple(k.record for k in KINDS.values())
+    for cls in (Accuracy, CategoricalField, CoefficientTable, Convergence) + tuple(k.record for k in KINDS.values())
 }
 
 
@@ -271,7 +271,7 @@ _SIMPLE = {
 }
 #: Record fields added after schema version 1 was first written: a file without them
 #: (written by an earlier lintools) takes their defaults (no categorical fields).
-_ADDED_FIELDS = frozenset({"categorical_fields"})
+_ADDED_FIELDS = frozenset({"categorical_fields", "accuracy"})
 
 
 def _check_type(value: Any, annotation: Any, where: str, ctx: _Context) -> None:

@@ -79,10 +79,11 @@ import numpy as np
 
 from . import lsq_gram as _gram
 from ..support.errors import InputError
+from .lsq_accuracy import least_squares_accuracy
 from .lsq_qr import qr_path
 from .lsq_record import PathAnswer, Setting, linear_record, residual_degrees
 from .lsq_scale import Units, to_caller
-from .records import LinearFit
+from .records import LinearFit, with_accuracy
 from .responses import target_name
 from ..support.threads import whole_blas, with_row_threads
 from ..support.validate import (
@@ -241,7 +242,9 @@ def _fit(
     fit = _solve(Xa, found, y1, w1, n_pos, lam_w, setting, names_t, rank_deficient, residual_df,
                  use_gram and n_obs - k_max > 0, block_rows)
     units = Units(ey, ew, fit.col_exp, names_t, target)
-    return linear_record(fit, units, setting, W1, n_obs, residual_df(fit.rank))
+    record = linear_record(fit, units, setting, W1, n_obs, residual_df(fit.rank))
+    # after the record (which refuses figures beyond float64): the accuracy of a fit that stands
+    return with_accuracy(record, least_squares_accuracy(Xa, y1, w1, fit, units, setting.intercept, W1))
 
 
 def _totals(n: int, w, w1, ew: int, setting: Setting, n_pos: int) -> tuple[float, float, float]:
@@ -323,5 +326,5 @@ def _from_gram(sol) -> PathAnswer:
         beta=sol.beta, b0=sol.intercept, rank=sol.beta.shape[0], s=sol.scale, xbar=sol.mean, G=sol.cov_scaled,
         cond=sol.condition, rss=sol.rss, tss=sol.tss, grad=sol.gradient, lam1=sol.lam_vec, col_exp=sol.col_exp,
         iterations=sol.steps, solver="cholesky", message=message, e=sol.residuals, hat=sol.hat,
-        meat_z=sol.meat_z, leverage_one_row=sol.leverage_one_row, w1=sol.w1,
+        meat_z=sol.meat_z, leverage_one_row=sol.leverage_one_row, w1=sol.w1, correction=sol.last_correction,
     )

@@ -151,6 +151,8 @@ class GramSolution:
     w1: np.ndarray | None
     #: per residual pass: (size of the correction, certificate floor), scaled coordinates
     trace: tuple = ()
+    #: the certificate pass's correction, not applied (centred intercept, scaled slopes)
+    last_correction: np.ndarray | None = None
 
 
 def solve_by_gram(
@@ -234,7 +236,7 @@ def solve_by_gram(
     ref = _refine(passes, mo, fac, lam, intercept, tss, n_pos)
     if ref is None:
         return None
-    beta_k, a_k, steps, size, trace, (rho, gx, rss, e, hat, M, first_one) = ref
+    beta_k, a_k, steps, size, trace, (rho, gx, rss, e, hat, M, first_one), step = ref
     # gradient of the objective in the original coordinates: d/db, d/dbeta
     cross = gx + mo.shift_vec * rho if intercept else gx  # X'W r = Xt'W r + shift * rho
     grad = np.concatenate([[-rho] if intercept else [], -cross + lam * beta_k])
@@ -262,6 +264,7 @@ def solve_by_gram(
         lam_vec=lam,
         w1=w,
         trace=tuple(trace),
+        last_correction=step,
     )
 
 
@@ -390,7 +393,8 @@ def _refine(passes: _Passes, mo: _Moments, fac: _Factor, lam, intercept, tss, n_
     """The corrected step from the start, then residual passes until the correction is
     within the certificate's floor (at most ``MAX_RESIDUAL_PASSES``; None if never).
 
-    Returns ``(beta, a, steps, size, trace, last)`` with ``last`` the last pass's sums."""
+    Returns ``(beta, a, steps, size, trace, last, step)`` with ``last`` the last pass's sums and
+    ``step`` its correction (centred intercept, scaled slopes), which is not applied."""
     W, s, L, dm, sx = mo.W, fac.s, fac.L, mo.dm, mo.sx
     u = UNIT_ROUNDOFF
 
@@ -425,7 +429,8 @@ def _refine(passes: _Passes, mo: _Moments, fac: _Factor, lam, intercept, tss, n_
             return None
         beta_k = beta_k + dbeta
         a_k = a_k + da
-    return beta_k, a_k, steps, size, trace, last
+    step = np.concatenate([[rho / W] if intercept else [], dtheta])  # the correction not applied
+    return beta_k, a_k, steps, size, trace, last, step
 
 
 def _meat_in_z(M: np.ndarray, dm: np.ndarray, s: np.ndarray, intercept: bool) -> np.ndarray:

@@ -45,6 +45,7 @@ _BLOCK_ROWS = 65536
 #: space of the design (unit vectors) is at most this.
 IDENTIFIED_TOL = 1e-6
 _LD = np.longdouble
+_UNIT = float(np.finfo(float).eps) / 2
 
 
 def alias_sentences(aliased: np.ndarray, zero: np.ndarray, names: tuple[str, ...], R: np.ndarray,
@@ -158,13 +159,16 @@ def qr_path(Xa, y1, w1, w_case, lam_w, intercept, names_t, rank_deficient, covar
     full_rank = aliased.size == 0
     identified = None
     if full_rank:
-        beta, a, G, cond, h_q, refine_steps = _solve_full_rank(Q, R, rhs, s, cen, y1, ybar, sw, root, intercept, n)
+        beta, a, G, cond, h_q, refine_steps, last = _solve_full_rank(Q, R, rhs, s, cen, y1, ybar, sw, root,
+                                                                     intercept, n)
+        correction = min(1.0, 8.0 * _UNIT * cond) * np.abs(last)  # the contraction of the refinement
         rank = p
     else:
         beta, G, cond, h_q, rank, identified = _solve_minimum_norm(A[:n], rhs_y, s, ex, centre, intercept, aliased)
         a = dy
         refine_steps = 0
         s = np.ones(p)
+        correction = None
     if full_rank and cond > ILL_CONDITIONED:
         warn_caller(
             f"the scaled design is ill-conditioned (condition number {cond:.3g}); it was solved by "
@@ -200,6 +204,7 @@ def qr_path(Xa, y1, w1, w_case, lam_w, intercept, names_t, rank_deficient, covar
         beta=beta, b0=b0, rank=rank, s=s, xbar=centre, G=G, cond=cond, rss=rss, tss=tss, grad=grad, lam1=lam1,
         col_exp=ex, iterations=1 + refine_steps if full_rank else 1, solver="qr", message=message,
         aliased=aliased, full_rank=full_rank, e=e, hat=hat, meat_z=meat_z, identified=identified, w1=w1,
+        correction=correction,
     )
 
 
@@ -254,7 +259,8 @@ def _solve_full_rank(Q, R, rhs, s, cen, y1, ybar, sw, root, intercept, n):
     The augmented system ``[I M; M' 0] [r; theta] = [c; 0]`` is refined with residuals in
     extended precision; each correction is solved with the QR factors of the centred,
     scaled design, whose intercept column ``sqrt(w)`` is orthogonal to the centred columns.
-    Returns ``(beta, a, ...)`` with the fitted value ``ybar + a + (x - m)' beta``.
+    Returns ``(beta, a, G, cond, h_q, steps, dz)`` with the fitted value ``ybar + a + (x - m)' beta``
+    and ``dz`` the last correction in the centred, scaled coordinates.
     """
     gamma = solve_upper(R, Q.T @ rhs)
     off = int(intercept)
@@ -270,6 +276,7 @@ def _solve_full_rank(Q, R, rhs, s, cen, y1, ybar, sw, root, intercept, n):
     f, g = _extended_residual(cen, y1, ybar, sw, theta, intercept, root, r)
     r = f  # the residual of the QR solution, in extended precision
     steps = 0
+    dz = np.zeros_like(theta)
     for steps in range(1, MAX_REFINE + 1):
         f, g = _extended_residual(cen, y1, ybar, sw, theta, intercept, root, r)
         f64 = f.astype(float)
@@ -297,7 +304,7 @@ def _solve_full_rank(Q, R, rhs, s, cen, y1, ybar, sw, root, intercept, n):
     Rinv = inverse_upper(R)
     G = Rinv @ Rinv.T
     h_q = np.einsum("ij,ij->i", Q[:n], Q[:n])
-    return beta, a, G, condition_number(R), h_q, steps
+    return beta, a, G, condition_number(R), h_q, steps, dz
 
 
 def _solve_minimum_norm(A, rhs_y, s, ex, centre, intercept, aliased):

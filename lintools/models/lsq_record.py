@@ -65,6 +65,9 @@ class PathAnswer:
     identified: np.ndarray | None = None
     #: the weights the path used (None: unit weights)
     w1: np.ndarray | None = None
+    #: the path's estimate of the remaining error at the answer, in the centred, scaled
+    #: coordinates ``z`` (None: not estimated; see :mod:`lintools.models.lsq_accuracy`)
+    correction: np.ndarray | None = None
 
 
 @dataclass(frozen=True)

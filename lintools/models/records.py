@@ -18,13 +18,14 @@ from typing import Any
 
 import numpy as np
 
+from .accuracy import Accuracy
 from ..support import distributions as dist
 from ..support.categories import CategoricalField
 from ..support.errors import InputError
 from ..support.text import UNDEFINED, intercept_label, p_text, section, title
 from ..support.validate import INTERCEPT_NAME, ReadOnlyArrays, as_matrix, scored
 
-__all__ = ["CategoricalField", "Convergence", "CoefficientTable", "LinearFit"]
+__all__ = ["Accuracy", "CategoricalField", "Convergence", "CoefficientTable", "LinearFit", "with_accuracy"]
 
 
 @dataclass(frozen=True)
@@ -208,6 +209,11 @@ def _to_jsonable(value: Any) -> Any:
     return value
 
 
+def with_accuracy(record: Any, accuracy: Accuracy) -> Any:
+    """The record with its :class:`Accuracy` (a new record; the arrays are shared)."""
+    return dataclasses.replace(record, accuracy=accuracy)
+
+
 @dataclass(frozen=True)
 class _FitBase(ReadOnlyArrays):
     """Fields and methods shared by every fit record (its arrays are read-only).
@@ -234,6 +240,9 @@ class _FitBase(ReadOnlyArrays):
     with_intercept: bool
     l2: float
     categorical_fields: tuple[CategoricalField, ...] = ()
+    #: digits of the coefficients to trust (:mod:`lintools.models.accuracy`); None for a
+    #: record read from a file written before it existed
+    accuracy: Accuracy | None = None
 
     kind = "fit"
 
@@ -267,7 +276,10 @@ class _FitBase(ReadOnlyArrays):
     def _closing(self, table: CoefficientTable, stat_label: str, blocks: list[str] | None = None) -> list[str]:
         """The Coefficients section (one table, or ``blocks``) and the Convergence line."""
         body = blocks if blocks is not None else [render_table(table, stat_label)]
-        return ["", "Coefficients", "\n\n".join(body), "", f"Convergence: {self.convergence.message}"]
+        end = [f"Convergence: {self.convergence.message}"]
+        if self.accuracy is not None:
+            end.insert(0, self.accuracy.report())
+        return ["", "Coefficients", "\n\n".join(body), "", *end]
 
     # ----- inference ----------------------------------------------------------------
     def _reference_df(self) -> float | None:
@@ -444,7 +456,7 @@ class LogisticFit(_FitBase):
                     "term".ljust(width) + "from".rjust(15) + "to".rjust(15)]
             for term, (lo, hi) in zip(terms, self.profile_intervals):
                 prof.append(term.ljust(width) + _fmt(lo, 15) + _fmt(hi, 15))
-            closing[-2:-2] = ["", *prof]
+            closing[3:3] = ["", *prof]  # after the coefficient table
         return "\n".join(lines + closing) + "\n"
 
 

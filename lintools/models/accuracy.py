@@ -1,0 +1,242 @@
+r"""How many digits of a fit's coefficients to trust: the solver's and the data's.
+
+Every fit record carries an :class:`Accuracy`.  Both figures are counted in digits (the
+log relative error, LRE) of the worst coefficient, in *column-scaled coordinates*: the
+intercept ``b`` and ``rho_j beta_j`` with ``rho_j`` the weighted root mean square of
+column ``j``.  A coefficient whose scaled size is below ``NEAR_ZERO`` times the largest
+is measured against that largest (the scale of the others); every other one against its
+own size.  Multiplying a column by a constant therefore changes neither figure.
+
+``solver_digits``: how far the computed coefficients are from the exact optimum of the
+data exactly as given.  First-order perturbation theory near a non-degenerate optimum
+(Higham 2002, ch. 20 for least squares; for likelihoods the Newton step as the error
+estimate, Dennis & Schnabel 1996, sec. 5.2): the error is estimated as
+
+.. math::
+
+    |\delta\theta_j| \approx |(T\,d)_j| + \kappa_f \sqrt{(T\,\Sigma_u T^\top)_{jj}}
+    + u\,(|T|\,|z|)_j ,
+
+with ``d`` the correction at the answer in the centred, scaled coordinates ``z`` of the
+solver (the refinement correction of least squares, :math:`H_z^{-1} g_z` for a
+likelihood), ``T`` the map from ``z`` to the column-scaled coordinates, ``u = 2^-53``
+and :math:`\Sigma_u` the covariance of the change of ``z`` when every entry of X (and y)
+carries an independent relative rounding error of size ``u``: a backward-stable solver
+that forms its residual in float64 is as good as the data at ``u`` and no better
+(Higham 2002, sec. 20.1 and 20.5).  Least squares refined in extended precision use
+``u_ext / u`` times that term.
+
+``data_digits``: how many digits the data determine at their stated precision.  With
+``dX``, ``dy`` independent, uniform errors of the stated size (relative ``u`` for float64
+input, or half a unit of the last decimal written in a file), the first-order change of
+the optimum of :math:`\sum_i \ell(y_i, a_i'\theta)` is
+
+.. math::
+
+    H\,\delta\theta = -\Big[\sum_i dA_i\, r_i + \sum_i a_i\big(W_i\, dA_i'\theta
+    + \psi_{y,i}\, dy_i\big)\Big],
+
+``r_i = d\ell/d\eta``, ``W_i = d^2\ell/d\eta^2`` (the weights for least squares),
+``psi_y = d^2\ell/d\eta\,dy`` (``-w_i``; none for labels, which are exact).  Its
+covariance is :math:`H^{-1}(A'\,\mathrm{diag}(q)\,A + D_r + C + C')H^{-1}` with
+``q_i = W_i^2 sum_j sigma_ij^2 theta_j^2 + w_i^2 tau_i^2``,
+``(D_r)_jj = sum_i sigma_ij^2 r_i^2`` and the cross term
+``C_jk = theta_j sum_i sigma_ij^2 r_i W_i a_ik``; its square-root diagonal is the
+expected change, reported per coefficient.  The sums are taken on at most
+``SUBSAMPLE_ROWS`` evenly spaced rows and scaled up, so the cost is ``O(m p^2)``.
+
+References
+----------
+Higham, N. J. (2002). Accuracy and Stability of Numerical Algorithms, 2nd ed. SIAM
+(ch. 20, the least-squares problem: perturbation theory and iterative refinement).
+Dennis, J. E. & Schnabel, R. B. (1996). Numerical Methods for Unconstrained Optimization
+and Nonlinear Equations. SIAM (the Newton step at a non-degenerate minimiser).
+Stewart, G. W. & Sun, J. (1990). Matrix Perturbation Theory. Academic Press (first-order
+expansions of solutions of perturbed systems).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from ..support.text import intercept_label
+from ..support.validate import INTERCEPT_NAME, ReadOnlyArrays
+
+__all__ = ["Accuracy", "NEAR_ZERO", "SUBSAMPLE_ROWS", "UNIT", "Precision", "column_scaled", "digits_of",
+           "sensitivity", "accuracy_record", "subsample"]
+
+#: Unit roundoff of float64.
+UNIT = 2.0**-53
+#: A scaled coefficient below this fraction of the largest is measured against the largest.
+NEAR_ZERO = 1e-3
+#: Rows used for the data term (evenly spaced); the sums are scaled up by n / m.
+SUBSAMPLE_ROWS = 2048
+#: Digits of a correctly rounded float64.
+_MAX_DIGITS = -math.log10(UNIT)
+#: Safety factor of the rounding floor of a solver that forms its residual in float64.
+FLOOR_FACTOR = 4.0
+
+
+@dataclass(frozen=True, eq=False)
+class Accuracy(ReadOnlyArrays):
+    """Digits of a fit's coefficients to trust (see :mod:`lintools.models.accuracy`).
+
+    Attributes
+    ----------
+    solver_digits : float
+        Estimated digits of the worst coefficient that agree with the exact optimum of the
+        data exactly as given.
+    data_digits : float
+        Digits of the worst coefficient that the data determine at their stated precision.
+    solver_worst, data_worst : str
+        The term each figure comes from.
+    solver_relative_to, data_relative_to : str
+        ``"its own size"`` or ``"the scale of the others"`` (a coefficient near zero).
+    precision : str
+        The precision of the data the data figure assumes.
+    solver_error, data_error : ndarray
+        Per term (intercept first, as ``coefficient_table``), in the caller's units: the
+        estimated error of the computed coefficient and the expected change of the
+        coefficient under the data's rounding.
+    sentence : str
+        The two figures in one line.
+    """
+
+    solver_digits: float
+    data_digits: float
+    solver_worst: str
+    data_worst: str
+    solver_relative_to: str
+    data_relative_to: str
+    precision: str
+    solver_error: np.ndarray
+    data_error: np.ndarray
+    sentence: str
+
+    def report(self) -> str:
+        """The two figures in one line."""
+        return self.sentence
+
+    def __eq__(self, other: object) -> bool:
+        if type(other) is not Accuracy:
+            return NotImplemented
+        return all(np.array_equal(a, b) if isinstance(a, np.ndarray) else a == b
+                   for a, b in ((getattr(self, f), getattr(other, f)) for f in self.__dataclass_fields__))
+
+    __hash__ = None  # type: ignore[assignment]
+
+
+@dataclass(frozen=True)
+class Precision:
+    """The rounding of the data: per column of X a relative and an absolute half-width of
+    its rounding interval, and the same for y (None: float64 input, relative ``u``)."""
+
+    x_relative: np.ndarray
+    x_absolute: np.ndarray
+    y_relative: float = UNIT
+    y_absolute: float = 0.0
+    what: str = "float64 input, relative rounding 1.1e-16"
+
+    @staticmethod
+    def float64(p: int) -> "Precision":
+        return Precision(np.full(p, UNIT), np.zeros(p))
+
+
+def subsample(n: int) -> np.ndarray:
+    """At most ``SUBSAMPLE_ROWS`` evenly spaced row indices (all rows when fewer)."""
+    m = min(n, SUBSAMPLE_ROWS)
+    return (np.arange(m, dtype=np.int64) * n) // m
+
+
+def column_scaled(c: np.ndarray, s: np.ndarray, rho: np.ndarray, intercept: bool, K: int = 1) -> np.ndarray:
+    """``T`` with ``theta' = T z``: from centred, scaled coordinates (``z_0 = b + c'beta``,
+    ``z_j = s_j beta_j``) to column-scaled ones (``b``, ``rho_j beta_j``), K outputs
+    interleaved as in the engine (``index = j K + k``)."""
+    p = s.shape[0]
+    off = int(intercept)
+    T = np.zeros((p + off, p + off))
+    T[off:, off:] = np.diag(rho / s)
+    if intercept:
+        T[0, 0] = 1.0
+        T[0, 1:] = -c / s
+    return np.kron(T, np.eye(K)) if K > 1 else T
+
+
+def digits_of(err: np.ndarray, theta: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Per-term digits of ``err`` against ``theta`` (column-scaled), and which terms are
+    measured against the scale of the others (their size below ``NEAR_ZERO`` of it)."""
+    top = float(np.max(np.abs(theta), initial=0.0))
+    near = np.abs(theta) < NEAR_ZERO * top
+    ref = np.where(near, NEAR_ZERO * top, np.abs(theta))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        d = -np.log10(err / ref)
+    d = np.where(ref > 0, d, 0.0)
+    return np.clip(np.nan_to_num(d, nan=0.0, posinf=_MAX_DIGITS), 0.0, _MAX_DIGITS), near
+
+
+def sensitivity(Z: np.ndarray, gz: np.ndarray, r: np.ndarray, W: np.ndarray, B: np.ndarray, intercept: bool,
+                errors: list[tuple[np.ndarray, np.ndarray | None]], scale: float = 1.0) -> list[np.ndarray]:
+    r"""Variance of the first-order change of each column-scaled coefficient (one output),
+    for each ``(sig, tau_w)`` of ``errors``: independent errors of standard deviation
+    ``sig`` (rows by columns, in the units of ``Z``) in the design and
+    ``tau_w = |psi_y| sd(dy)`` in the response (None: none).
+
+    ``Z``: rows of the centred, scaled design (no intercept column); ``gz``: the slopes in
+    those coordinates; ``r``, ``W``: the first and second derivative of each row's loss in
+    eta; ``B = T H_z^{-1}``: the inverse information in ``z`` (intercept first) followed by
+    the map to column-scaled coordinates; ``scale``: the factor from the rows given to all
+    rows.  The change is ``B g`` with ``g = sum_ij dX_ij (r_i e_j + W_i gz_j a_i) + sum_i
+    psi_y dy_i a_i``; its variance is summed as squares of the row terms (never through
+    ``H^{-1} Cov(g) H^{-1}``, which cancels catastrophically when ``H`` is ill-conditioned)."""
+    off = int(intercept)
+    Bs = B[:, off:]  # B e_j for the slopes
+    BA = Z @ Bs.T  # rows: B a_i
+    if intercept:
+        BA += B[:, 0]
+    BA2 = BA * BA
+    rW = r * W
+    out = []
+    for sig, tau_w in errors:
+        s2 = sig * sig
+        q = W * W * (s2 @ (gz * gz))
+        if tau_w is not None:
+            q = q + tau_w * tau_w
+        own = (Bs * Bs) @ (s2.T @ (r * r))
+        through = BA2.T @ q
+        P = s2 @ (gz[:, None] * Bs.T)  # (m, p1): sum_j s2_ij gz_j B_kj
+        cross = 2.0 * ((BA * P).T @ rW)
+        out.append(scale * np.clip(own + through + cross, 0.0, None))
+    return out
+
+
+def accuracy_record(theta: np.ndarray, z: np.ndarray, T: np.ndarray, step_z: np.ndarray, floor_var: np.ndarray, floor: float,
+                    data_var: np.ndarray, to_caller: np.ndarray, terms: tuple[str, ...], precision: str) -> Accuracy:
+    """The :class:`Accuracy` of a fit.
+
+    ``theta``, ``z``: the coefficients in column-scaled and in the solver's coordinates
+    (each stored coefficient carries its rounding, ``u |T| |z|``); ``T``: from ``z`` to ``theta``;
+    ``step_z``: the correction at the answer in ``z``; ``floor_var``: the variances at
+    relative rounding ``u`` (:func:`sensitivity`), times ``floor**2`` for the solver's
+    floor; ``data_var``: the variances at the data's precision; ``to_caller``: per term,
+    the factor from column-scaled coordinates to the caller's units."""
+    solver_err = np.abs(T @ step_z) + floor * np.sqrt(floor_var) + UNIT * (np.abs(T) @ np.abs(z))
+    data_err = np.sqrt(data_var)
+    sd_, s_near = digits_of(solver_err, theta)
+    dd_, d_near = digits_of(data_err, theta)
+    shown = tuple(intercept_label(t for t in terms if t != INTERCEPT_NAME) if t == INTERCEPT_NAME else t
+                  for t in terms)
+    js, jd = int(np.argmin(sd_)), int(np.argmin(dd_))
+    rel = ("its own size", "the scale of the others")
+    s_rel, d_rel = rel[int(s_near[js])], rel[int(d_near[jd])]
+    sentence = (f"Accuracy: about {sd_[js]:.1f} digits agree with the exact optimum of these data (worst: "
+                f"{shown[js]}, relative to {s_rel}); the data determine about {dd_[jd]:.1f} digits at their "
+                f"precision, {precision} (worst: {shown[jd]}, relative to {d_rel})")
+    return Accuracy(
+        solver_digits=float(round(sd_[js], 2)), data_digits=float(round(dd_[jd], 2)),
+        solver_worst=shown[js], data_worst=shown[jd], solver_relative_to=s_rel, data_relative_to=d_rel,
+        precision=precision, solver_error=solver_err * to_caller, data_error=data_err * to_caller,
+        sentence=sentence,
+    )
