@@ -210,11 +210,12 @@ def solve_by_gram(
     else:
         ybar = 0.0
     idx = subsample_rows(n, w, n_pos, max(SUBSAMPLE_ROWS, 4 * (p + 1)))
-    col_exp, inv = _column_units(Xa, idx)
+    Xs = Xa[idx]  # the subsample's rows, copied once for the column units and the start
+    col_exp, inv = _column_units(Xs)
     lam = np.ldexp(lam, -2 * col_exp)  # the ridge on the unit coefficients
     if not np.all(np.isfinite(lam)):
         return None
-    xm, sd, beta0, a0 = subsample_start(Xa, ya, ybar, w, idx, intercept, lam, W_all, inv)
+    xm, sd, beta0, a0 = subsample_start(Xs, ya, ybar, w, idx, intercept, lam, W_all, inv)
     shift = None
     if intercept and np.any(np.abs(xm) > SHIFT_RATIO * sd):
         shift = xm.copy()
@@ -268,11 +269,11 @@ def solve_by_gram(
     )
 
 
-def _column_units(Xa: np.ndarray, idx: np.ndarray) -> tuple[np.ndarray, np.ndarray | None]:
+def _column_units(Xs: np.ndarray) -> tuple[np.ndarray, np.ndarray | None]:
     """Exponents of the powers of two that bring each column's largest ``|x|`` on the
-    subsample within ``2**+-COLUMN_BAND`` (0 for the others), and their inverses (None
-    when no column needs one: the blocks are then read in place)."""
-    _, top = np.frexp(np.max(np.abs(Xa[idx]), axis=0))
+    subsample ``Xs`` within ``2**+-COLUMN_BAND`` (0 for the others), and their inverses
+    (None when no column needs one: the blocks are then read in place)."""
+    _, top = np.frexp(np.max(np.abs(Xs), axis=0))
     col_exp = np.where(np.abs(top - 1) > COLUMN_BAND, top - 1, 0).astype(np.int64)
     return col_exp, (np.ldexp(1.0, -col_exp) if np.any(col_exp) else None)
 

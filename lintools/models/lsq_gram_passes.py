@@ -168,11 +168,11 @@ def subsample_rows(n, w, n_pos, k):
     return rows_pos[np.unique(np.linspace(0, rows_pos.size - 1, min(k, rows_pos.size)).astype(np.intp))]
 
 
-def subsample_start(X, y, ybar, w, idx, intercept, lam, W, inv):
-    """Provisional centre, spread and starting values from the rows ``idx``."""
-    n, p = X.shape
-    k = idx.size
-    Xs, ys = X[idx], y[idx] - ybar
+def subsample_start(Xs, y, ybar, w, idx, intercept, lam, W, inv):
+    """Provisional centre, spread and starting values from the rows ``idx`` (``Xs``: the
+    design's rows ``idx``, not modified)."""
+    k, p = Xs.shape
+    ys = y[idx] - ybar
     if inv is not None:
         Xs = Xs * inv
     ws = np.ones(k) if w is None else w[idx]
