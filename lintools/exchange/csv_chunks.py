@@ -32,7 +32,7 @@ from numpy.lib.stride_tricks import as_strided
 from ..support.csv_cells import STRIP
 from ..support.errors import InputError
 from ..support.files import BoundedFile
-from .csv_whole import WIDTH, starts_of, whole_columns
+from .csv_whole import WIDTH, one_digit_cells, starts_of, whole_columns
 
 __all__ = ["CHUNK", "Layout", "Plan", "Piece", "pieces", "header_record"]
 
@@ -83,7 +83,8 @@ class Piece:
     stripped tokens are given there); ``tokens[c]`` holds every stripped token of column
     ``c``.  ``lines`` is the file line on which each record starts.  ``integers[c]`` says
     whether every cell of column ``c`` in ``numbers`` was written as an integer.
-    ``matrix`` holds every column's values when the whole chunk was read as numbers.
+    ``matrix`` holds every column's values when the whole chunk was read as numbers (float64,
+    or uint8 for one-digit cells: exact either way, cast as the table's block is filled).
     """
 
     lines: np.ndarray
@@ -416,6 +417,13 @@ def _plain(lay: Layout, chunk: bytes, line0: int, plan: Plan) -> tuple[Piece, in
             cells = _Fields(chunk, a, np.flatnonzero((a == lay.delimiter[0]) | (a == 10)), k)
         return cells
 
+    if len(plan.numeric) == k and longest == 2 * k - 1 == int(lengths.min()) and b"\r" not in chunk:
+        digits = one_digit_cells(a, n, k, lay.delimiter[0])  # every line k one-byte cells?
+        if digits is not None:
+            piece = Piece(lines=np.arange(line0, line0 + n, dtype=np.int64),
+                          numbers={c: digits[:, c] for c in range(k)}, matrix=digits,
+                          integers={c: True for c in plan.whole})
+            return piece, n
     tried = False
     if len(plan.numeric) == k > 1 and int(ends[0]) > k * (WIDTH + 1) and chunk.strip(STRIP + b"\n"):
         # numbers longer than whole_columns reads: every line to the compiled reader at once

@@ -18,11 +18,25 @@ from __future__ import annotations
 
 import numpy as np
 
-__all__ = ["WIDTH", "starts_of", "whole_columns"]
+__all__ = ["WIDTH", "one_digit_cells", "starts_of", "whole_columns"]
 
 #: Longest cell (sign included) read here.
 WIDTH = 4
 _TENS = np.array([1, 10, 100, 1000, 10000], dtype=np.int32)
+
+
+def one_digit_cells(a: np.ndarray, rows: int, k: int, separator: int) -> np.ndarray | None:
+    """The (rows, k) values (uint8, exact; copied into the float64 table by the caller, so that
+    no float64 copy of the chunk is made here) of a chunk whose every line is ``k`` cells of
+    one ASCII digit (``2 k`` bytes a line with the separators and the line feed), or None
+    when it is not."""
+    lines = a.reshape(rows, 2 * k)
+    if k > 1 and not bool((lines[:, 1:-1:2] == separator).all()):
+        return None
+    digits = lines[:, 0::2] - np.uint8(48)
+    if int(digits.max(initial=0)) > 9:
+        return None
+    return digits
 
 
 def starts_of(grid: np.ndarray) -> np.ndarray:
