@@ -2,8 +2,10 @@
 
 Three ways through a chunk, all giving the same cells (the tests check this):
 
-* **numbers** (no quote, no lone carriage return): the columns expected to hold numbers
-  go through NumPy's compiled text reader (:func:`numpy.loadtxt`).  On the bytes such a
+* **numbers** (no quote, no lone carriage return): a chunk whose every line is one-digit
+  cells is read as a grid of bytes, and columns whose every cell in the chunk is a sign
+  and a few digits are read from the bytes (:mod:`lintools.exchange.csv_whole`); the other
+  columns expected to hold numbers go through NumPy's compiled text reader (:func:`numpy.loadtxt`).  On the bytes such a
   chunk can hold, it accepts exactly the strict grammar of :mod:`lintools.support.csv_cells` once the
   result is required to be finite and the white space it strips is the reader's own
   (its float conversion is Python's correctly rounded one).  Rows it refuses are found
@@ -565,7 +567,8 @@ def pieces(lay: Layout, pos: int, line: int, plan: Callable[[], Plan]) -> Iterat
         end = _chunk_end(lay, pos, line, CHUNK)
         if end <= pos:
             return
-        chunk = bytes(src.buf[pos - src.base:end - src.base])
+        with memoryview(src.buf) as view:  # one copy of the chunk's bytes
+            chunk = bytes(view[pos - src.base:end - src.base])
         if b'"' in chunk or (b"\r" in chunk and chunk.count(b"\r") != chunk.count(b"\r\n")):
             piece, pos, line = _quoted(lay, pos, line, plan())
             yield piece, pos
