@@ -282,3 +282,12 @@ def test_a_grid_of_one_digit_cells_with_one_other_byte_is_read_by_the_exact_rule
     assert got[0] == kind == "error", got
     found = re.search(r"line (\d+), (?:target )?column '([^']*)'", got[1])
     assert found and (int(found.group(1)), found.group(2)) in expected, (got, expected)
+
+
+def test_a_bad_short_cell_of_a_crlf_file_is_named_with_its_own_text(tmp_path):
+    # source: the "Column types" rule of lintools.exchange.csv_table (the cell's text is named); the
+    # carriage return of a CRLF line end belongs to no cell (RFC 4180 line ends)
+    path = tmp_path / "crlf.csv"
+    path.write_bytes(b"a,b,y\r\n1,2,3\r\n4,5,6\r\n1a,7,1\r\n")
+    with pytest.raises(InputError, match=r"line 4, column 'a': '1a' is not a number"):
+        read_table(path, target="y")

@@ -69,14 +69,12 @@ def whole_columns(a: np.ndarray, grid: np.ndarray, cols: tuple[int, ...],
     cols = tuple(c for c in cols if lo[c] >= 1 and hi[c] <= WIDTH)
     if not cols:
         return (), np.zeros((n, 0))
-    if cols == tuple(range(k)):
-        ends, widths = grid.ravel(), widths.ravel()
-    else:
-        ends, widths = grid[:, cols].ravel(), widths[:, cols].ravel()
+    every = cols == tuple(range(k))
+    ends = (grid.copy() if crlf else grid) if every else grid[:, cols]  # the caller's grid is left as it is
+    widths = widths if every else widths[:, cols]
     if crlf and cols[-1] == k - 1:
-        ends = ends.reshape(n, -1)
-        ends[:, -1] = grid[:, -1] - (a[grid[:, -1] - 1] == 13)
-        ends = ends.ravel()
+        ends[:, -1] -= a[ends[:, -1] - 1] == 13
+    ends, widths = ends.ravel(), widths.ravel()
     values, bad = _read(a, ends, widths, int(hi[list(cols)].max()))
     values = values.reshape(n, len(cols))
     if bad is not None:
