@@ -17,7 +17,7 @@ Two files are written to ``--dir`` and deleted at the end:
 
 Each reader runs in a fresh child process per round, rounds interleaved, so a slow spell
 of a shared machine hits every reader alike; the paired ratio to numpy.loadtxt is taken
-per round.  Reported: median (and best) wall seconds, CPU seconds (the process's own, steadier than
+per round (and to pandas' reader, CPU time).  Reported: median (and best) wall seconds, CPU seconds (the process's own, steadier than
 wall time on a loaded machine), MB/s of file, and the growth of the peak resident set
 while reading (Linux ``VmHWM``, reset just before the read, less the resident set then),
 also as a multiple of the file size.  pandas is timed with its default float parser;
@@ -156,10 +156,11 @@ def measure(label: str, path: Path, target: str, rounds: int) -> None:
                 runs[reader].append(got)
     print(f"\n{label}: {path.name}, {size / MB:.1f} MB, {rounds} rounds (median; best in brackets)")
     head = (f"{'reader':<17}{'wall s':>16}{'CPU s':>16}{'MB/s':>8}{'peak RSS growth MB':>20}{'x file':>8}"
-            f"{'wall / loadtxt':>16}{'CPU / loadtxt':>15}")
+            f"{'wall / loadtxt':>16}{'CPU / loadtxt':>15}{'CPU / pandas':>14}")
     print(head)
     print("-" * len(head))
     base = runs["numpy.loadtxt"]
+    pandas = runs["pandas.read_csv"]
     for reader in READERS:
         r = runs[reader]
         if not r:
@@ -171,8 +172,9 @@ def measure(label: str, path: Path, target: str, rounds: int) -> None:
         rss = statistics.median(x["rss_growth"] for x in r)
         ratio_w = statistics.median(x["wall"] / b["wall"] for x, b in zip(r, base))
         ratio_c = statistics.median(x["cpu"] / b["cpu"] for x, b in zip(r, base))
+        ratio_p = f"{statistics.median(x['cpu'] / b['cpu'] for x, b in zip(r, pandas)):>14.2f}" if pandas else ""
         print(f"{reader:<17}{wall:>8.3f} ({best_wall:.3f}){cpu:>8.3f} ({best_cpu:.3f}){size / MB / wall:>8.1f}"
-              f"{rss / MB:>20.1f}{rss / size:>8.2f}{ratio_w:>16.2f}{ratio_c:>15.2f}")
+              f"{rss / MB:>20.1f}{rss / size:>8.2f}{ratio_w:>16.2f}{ratio_c:>15.2f}{ratio_p}")
     agree = runs["read_table"][0].get("agrees_with_loadtxt")
     print(f"read_table agrees with numpy.loadtxt (every value, exactly): {agree}")
     if not runs["read_table"][0]["exact_rss"]:

@@ -1,6 +1,7 @@
 """The CSV reader: header rules, missing values, text columns, hostile files."""
 
 import csv
+import re
 import io
 
 import numpy as np
@@ -11,6 +12,7 @@ from hypothesis import strategies as st
 
 from lintools import InputError
 from lintools.exchange.csv_table import read_table
+from test_table_battery import reference
 
 
 def _write(tmp_path, text, name="data.csv"):
@@ -163,3 +165,129 @@ def test_a_file_larger_than_the_limit_is_refused_while_it_is_streamed(tmp_path, 
     with pytest.raises(InputError, match="larger than the 5000 bytes allowed"):
         read_table(path, target="y", max_bytes=5000)
     assert len(read_table(path, target="y", max_bytes=len(text)).target) == 3000
+
+
+# ------------------------------------------------------------------ short whole numbers read from the bytes
+SHORT_WHOLE = ["0", "1", "7", "-0", "+0", "-1", "+9", "00", "007", "-12", "+123", "9999", "-999", "0000"]
+SHORT_NEAR = ["12345", "-1234", "1.", ".5", "-.5", "1.0", "1e3", "1e", "e1", "-", "+", "--1", "+-1", "1-", "1+",
+              ".", "1.2.3", " 1", "1 ", "0x1", "1_0", "NA", "nan", "inf", "", "2,5", "\u0661", "1e99", "12%"]
+
+
+@st.composite
+def _short_cells_file(draw):
+    """A CSV text whose columns hold short whole numbers, mostly, and near-numbers: (delimiter, text)."""
+    delimiter = draw(st.sampled_from([",", ";", "\t"]))
+    eol = draw(st.sampled_from(["\n", "\r\n"]))
+    k = draw(st.integers(1, 5))
+    n = draw(st.integers(1, 40))
+    digits_only = draw(st.booleans())  # every cell one digit: the chunk is read as a grid of bytes
+    pools = [draw(st.sampled_from(["whole", "whole", "mixed"])) for _ in range(k)]
+    lines = [delimiter.join([f"c{j}" for j in range(k - 1)] + ["y"])]
+    for _ in range(n):
+        cells = []
+        for pool in pools:
+            near = pool == "mixed" and draw(st.integers(0, 4)) == 0
+            cell = draw(st.sampled_from(SHORT_NEAR if near else SHORT_WHOLE))
+            if digits_only:
+                cell = draw(st.sampled_from(list("0123456789") + ([":", "/", ":", "a", "-", " "] if near else [])))
+            cells.append(f'"{cell}"' if delimiter in cell else cell)
+        line = delimiter.join(cells)
+        if digits_only and k > 1 and draw(st.integers(0, 9)) == 0:  # a separator lost: a ragged line
+            line = line.replace(delimiter, draw(st.sampled_from([".", ":", "0"])), 1)
+        lines.append(line)
+    return delimiter, eol.join(lines) + eol
+
+
+def _outcome(path, **kw):
+    """read_table's table as bytes and tuples, or the text of its InputError."""
+    try:
+        t = read_table(path, target="y", missing_values=(), **kw)
+    except InputError as exc:
+        return "error", str(exc)
+    return "table", (t.names, t.X.shape, t.X.tobytes(), t.target, [type(v) for v in t.target], t.lines.tolist())
+
+
+@settings(max_examples=80, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(case=_short_cells_file(), chunk=st.sampled_from([40, 1 << 20]))
+def test_short_whole_numbers_read_from_the_bytes_agree_with_the_exact_path_and_the_reference(tmp_path, monkeypatch,
+                                                                                            case, chunk):
+    # oracle: the csv module plus a strict regular-expression float parser (reference() of
+    # test_table_battery); and the exact path (cells classified one by one, the compiled reader for the
+    # rest), taken by switching the byte reader of short whole numbers off: same table bit for bit,
+    # or the same error message
+    from lintools.exchange import csv_chunks
+
+    delimiter, text = case
+    monkeypatch.setattr(csv_chunks, "CHUNK", chunk)
+    path = tmp_path / "short.csv"
+    path.write_bytes(text.encode("utf-8"))
+    fast = _outcome(path)
+    with monkeypatch.context() as m:  # undone before the next example
+        m.setattr(csv_chunks, "whole_columns", lambda a, grid, cols, crlf: ((), np.zeros((len(grid), 0))))
+        m.setattr(csv_chunks, "one_digit_cells", lambda a, rows, k, separator: None)
+        exact = _outcome(path)
+    assert fast == exact
+    if fast[0] == "error" and "fields but the header has" in fast[1]:
+        return  # a ragged line (the reference parser takes only files of whole records)
+    kind, expected = reference(text, delimiter, "y")
+    assert fast[0] == kind, (fast, expected)
+    if kind == "table":
+        names, X, y, lines = expected
+        assert fast[1][2] == X.astype(float).tobytes() and fast[1][3] == y and fast[1][5] == lines
+
+
+_CELL = st.one_of(st.from_regex(r"[+-]?[0-9]{1,5}", fullmatch=True), st.from_regex(r"[+-]?[0-9]{1,3}", fullmatch=True),
+                  st.sampled_from(["+", "-", ".", "", "1.", "1e2", " 1", "1 "]), st.text("0123456789+-.eE x:/", max_size=6))
+
+
+@settings(max_examples=300, deadline=None)
+@given(st.lists(st.lists(_CELL, min_size=3, max_size=3), min_size=1, max_size=12), st.booleans())
+def test_the_byte_reader_takes_exactly_the_columns_of_a_sign_and_digits_up_to_four_bytes(rows, crlf):
+    # the grammar (lintools.exchange.csv_table "Numbers", restricted to whole numbers written without
+    # mark or exponent) as a regular expression here, and Python's float for the value (exact for
+    # such short whole numbers); a column is taken only when every one of its cells has that form
+    import re
+
+    from lintools.exchange.csv_whole import WIDTH, whole_columns
+
+    eol = b"\r\n" if crlf else b"\n"
+    chunk = b"".join(b",".join(c.encode() for c in r) + eol for r in rows)
+    a = np.frombuffer(chunk, dtype=np.uint8)
+    grid = np.flatnonzero((a == ord(",")) | (a == 10)).reshape(len(rows), 3)
+    cols, block = whole_columns(a, grid, (0, 1, 2), crlf)
+    for j in range(3):
+        cells = [r[j] for r in rows]
+        ok = all(re.fullmatch(r"[+-]?[0-9]+", c) and len(c) <= WIDTH for c in cells)
+        assert (j in cols) == ok, (cells, cols)
+        if ok:
+            got = block[:, cols.index(j)]
+            assert got.tobytes() == np.array([float(c) for c in cells]).tobytes()  # -0 as -0.0 too
+
+
+@pytest.mark.parametrize("odd", [":", "/", "a", "-", "+", " ", ".", "\x00", "\u00e9"])
+def test_a_grid_of_one_digit_cells_with_one_other_byte_is_read_by_the_exact_rules(tmp_path, odd):
+    # oracle: the csv module plus the strict float parser (reference() of test_table_battery); the
+    # other byte stands in one cell of a file of one-digit cells (the chunk read as a grid of bytes)
+    rng = np.random.default_rng(len(odd) + ord(odd[0]))
+    cells = rng.integers(0, 10, size=(50, 4)).astype(str).astype(object)
+    cells[int(rng.integers(1, 50)), int(rng.integers(0, 4))] = odd
+    text = "a,b,c,y\n" + "".join(",".join(r) + "\n" for r in cells.tolist())
+    path = tmp_path / "grid.csv"
+    path.write_bytes(text.encode("utf-8"))
+    got = _outcome(path)
+    if odd == "\x00":
+        assert got[0] == "error" and "NUL byte" in got[1]
+        return
+    kind, expected = reference(text, ",", "y")
+    assert got[0] == kind == "error", got
+    found = re.search(r"line (\d+), (?:target )?column '([^']*)'", got[1])
+    assert found and (int(found.group(1)), found.group(2)) in expected, (got, expected)
+
+
+def test_a_bad_short_cell_of_a_crlf_file_is_named_with_its_own_text(tmp_path):
+    # source: the "Column types" rule of lintools.exchange.csv_table (the cell's text is named); the
+    # carriage return of a CRLF line end belongs to no cell (RFC 4180 line ends)
+    path = tmp_path / "crlf.csv"
+    path.write_bytes(b"a,b,y\r\n1,2,3\r\n4,5,6\r\n1a,7,1\r\n")
+    with pytest.raises(InputError, match=r"line 4, column 'a': '1a' is not a number"):
+        read_table(path, target="y")

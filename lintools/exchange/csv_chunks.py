@@ -2,8 +2,10 @@
 
 Three ways through a chunk, all giving the same cells (the tests check this):
 
-* **numbers** (no quote, no lone carriage return): the columns expected to hold numbers
-  go through NumPy's compiled text reader (:func:`numpy.loadtxt`).  On the bytes such a
+* **numbers** (no quote, no lone carriage return): a chunk whose every line is one-digit
+  cells is read as a grid of bytes, and columns whose every cell in the chunk is a sign
+  and a few digits are read from the bytes (:mod:`lintools.exchange.csv_whole`); the other
+  columns expected to hold numbers go through NumPy's compiled text reader (:func:`numpy.loadtxt`).  On the bytes such a
   chunk can hold, it accepts exactly the strict grammar of :mod:`lintools.support.csv_cells` once the
   result is required to be finite and the white space it strips is the reader's own
   (its float conversion is Python's correctly rounded one).  Rows it refuses are found
@@ -32,6 +34,7 @@ from numpy.lib.stride_tricks import as_strided
 from ..support.csv_cells import STRIP
 from ..support.errors import InputError
 from ..support.files import BoundedFile
+from .csv_whole import WIDTH, one_digit_cells, starts_of, whole_columns
 
 __all__ = ["CHUNK", "Layout", "Plan", "Piece", "pieces", "header_record"]
 
@@ -82,7 +85,8 @@ class Piece:
     stripped tokens are given there); ``tokens[c]`` holds every stripped token of column
     ``c``.  ``lines`` is the file line on which each record starts.  ``integers[c]`` says
     whether every cell of column ``c`` in ``numbers`` was written as an integer.
-    ``matrix`` holds every column's values when the whole chunk was read as numbers.
+    ``matrix`` holds every column's values when the whole chunk was read as numbers (float64,
+    or uint8 for one-digit cells: exact either way, cast as the table's block is filled).
     """
 
     lines: np.ndarray
@@ -283,8 +287,15 @@ class _Fields:
     def __init__(self, chunk: bytes, a: np.ndarray, bounds: np.ndarray, k: int) -> None:
         self.chunk, self.a, self.bounds, self.k = chunk, a, bounds, k
         self.grid = bounds[: bounds.size - bounds.size % k].reshape(-1, k)  # row i: the ends of its cells
-        self.padded = len(chunk.translate(None, STRIP)) != len(chunk)  # any white space to strip?
+        self._padded: bool | None = None
         self._window: np.ndarray | None = None
+
+    @property
+    def padded(self) -> bool:
+        """Whether the chunk holds any white space to strip."""
+        if self._padded is None:
+            self._padded = len(self.chunk.translate(None, STRIP)) != len(self.chunk)
+        return self._padded
 
     def tokens(self, c: int, rows: np.ndarray | None = None) -> np.ndarray:
         """The stripped cells of column ``c`` (in ``rows``, or every row)."""
@@ -325,11 +336,7 @@ def _suspects(lay: Layout, chunk: bytes, a: np.ndarray, cells: _Fields, cols: tu
     """Rows with a cell of ``cols`` that cannot be a number: empty, or holding a byte no
     number holds (found without parsing, so that the compiled reader is not tried on them)."""
     grid = cells.grid
-    starts = np.empty_like(grid)
-    starts[:, 1:] = grid[:, :-1] + 1
-    starts[0, 0] = 0
-    starts[1:, 0] = grid[:-1, -1] + 1
-    lengths = (grid - starts)[:, cols]
+    lengths = (grid - starts_of(grid))[:, cols]
     bad = (lengths == 0).any(axis=1)
     if chunk.translate(None, _NUMBER_BYTES + lay.delimiter):
         lut = np.ones(256, dtype=bool)
@@ -352,12 +359,13 @@ def _numbers(lay: Layout, chunk: bytes, cols: tuple[int, ...], suspects: Callabl
     ``_SMALL`` rows are then looked at one by one).
     """
     usecols = None if cols == tuple(range(lay.k)) else cols
-    lines = _for_numbers(lay, chunk).split(b"\n")
-    lines.pop()
-    n = len(lines)
-    v = None if tried else _loadtxt(lay, lines, n, usecols, len(cols))
+    text = _for_numbers(lay, chunk)
+    n = text.count(b"\n")
+    v = None if tried else _loadtxt(lay, io.BytesIO(text), n, usecols, len(cols))
     if v is not None:
         return v, np.zeros(0, dtype=np.int64)
+    lines = text.split(b"\n")
+    lines.pop()
     skip = suspects()
     values = np.full((n, len(cols)), np.nan)
     keep = np.ones(n, dtype=bool)
@@ -394,11 +402,15 @@ def _plain(lay: Layout, chunk: bytes, line0: int, plan: Plan) -> tuple[Piece, in
     a = np.frombuffer(chunk, dtype=np.uint8)
     ends = np.flatnonzero(a == 10)
     n, k = ends.size, lay.k
-    lengths = np.diff(ends, prepend=-1) - 1 - (a[ends - 1] == 13)  # without the line end
+    lengths = np.empty_like(ends)
+    lengths[0] = ends[0]
+    np.subtract(ends[1:], ends[:-1], out=lengths[1:])
+    lengths[1:] -= 1
+    if b"\r" in chunk:
+        lengths -= a[ends - 1] == 13  # without the line end
     longest = int(lengths.max())
     if longest > lay.max_line:
         raise _too_long(lay, line0 + int(np.argmax(lengths > lay.max_line)))
-    every = tuple(range(k))
     cells: _Fields | None = None
 
     def fields() -> _Fields:
@@ -407,12 +419,21 @@ def _plain(lay: Layout, chunk: bytes, line0: int, plan: Plan) -> tuple[Piece, in
             cells = _Fields(chunk, a, np.flatnonzero((a == lay.delimiter[0]) | (a == 10)), k)
         return cells
 
+    if len(plan.numeric) == k and longest == 2 * k - 1 == int(lengths.min()) and b"\r" not in chunk:
+        digits = one_digit_cells(a, n, k, lay.delimiter[0])  # every line k one-byte cells?
+        if digits is not None:
+            piece = Piece(lines=np.arange(line0, line0 + n, dtype=np.int64),
+                          numbers={c: digits[:, c] for c in range(k)}, matrix=digits,
+                          integers={c: True for c in plan.whole})
+            return piece, n
     tried = False
-    if plan.numeric == every and k > 1 and chunk.strip(STRIP + b"\n"):  # (NumPy warns on no data)
+    if len(plan.numeric) == k > 1 and int(ends[0]) > k * (WIDTH + 1) and chunk.strip(STRIP + b"\n"):
+        # numbers longer than whole_columns reads: every line to the compiled reader at once
+        # (NumPy warns on a chunk without data)
         v = _loadtxt(lay, io.BytesIO(_for_numbers(lay, chunk)), n, None, k)
         tried = True
         if v is not None and longest <= lay.max_field:
-            piece = Piece(lines=np.arange(line0, line0 + n, dtype=np.int64), numbers={c: v[:, c] for c in every},
+            piece = Piece(lines=np.arange(line0, line0 + n, dtype=np.int64), numbers={c: v[:, c] for c in range(k)},
                           matrix=v)
             _integers(lay, piece, plan, a, ends, fields)
             return piece, n
@@ -427,14 +448,38 @@ def _plain(lay: Layout, chunk: bytes, line0: int, plan: Plan) -> tuple[Piece, in
     for c in plan.tokens:
         piece.tokens[c] = fields().tokens(c)
     if plan.numeric:
-        values, refused = _numbers(lay, chunk, plan.numeric,
-                                   lambda: _suspects(lay, chunk, a, fields(), plan.numeric), tried)
-        for j, c in enumerate(plan.numeric):
-            piece.numbers[c] = values[:, j]
-            if refused.size:
-                piece.exceptions[c] = (refused, fields().tokens(c, refused))
+        _numeric_cells(lay, chunk, a, fields(), plan, piece, tried)
         _integers(lay, piece, plan, a, ends, fields)
     return piece, n
+
+
+def _numeric_cells(lay: Layout, chunk: bytes, a: np.ndarray, cells: _Fields, plan: Plan, piece: Piece,
+                   tried: bool) -> None:
+    """The values of the ``plan.numeric`` columns of a regular chunk into ``piece``: columns of
+    short whole numbers read from the bytes, the others by the compiled reader (``tried``: it
+    refused the whole chunk already)."""
+    n = cells.grid.shape[0]
+    whole, block = (), np.zeros((n, 0))
+    if not tried:
+        whole, block = whole_columns(a, cells.grid, plan.numeric, b"\r" in chunk)
+    rest = tuple(c for c in plan.numeric if c not in whole)
+    values, refused = np.zeros((n, 0)), np.zeros(0, dtype=np.int64)
+    if rest:
+        values, refused = _numbers(lay, chunk, rest, lambda: _suspects(lay, chunk, a, cells, rest), tried)
+    for j, c in enumerate(whole):
+        piece.numbers[c] = block[:, j]
+        piece.integers[c] = True
+    for j, c in enumerate(rest):
+        piece.numbers[c] = values[:, j]
+        if refused.size:
+            piece.exceptions[c] = (refused, cells.tokens(c, refused))
+    if not refused.size and len(plan.numeric) == lay.k:  # every column a number: one block
+        if not whole or not rest:
+            piece.matrix = block if whole else values
+        else:
+            piece.matrix = np.empty((n, lay.k))
+            piece.matrix[:, list(whole)] = block
+            piece.matrix[:, list(rest)] = values
 
 
 _POWERS = 10.0 ** np.arange(1, 17)
@@ -454,7 +499,7 @@ def _integers(lay: Layout, piece: Piece, plan: Plan, a: np.ndarray, ends: np.nda
     marks[[lay.decimal[0], ord("e"), ord("E")]] = True
     last = a.size - 1
     for c in plan.whole:
-        if c not in piece.numbers:
+        if c not in piece.numbers or c in piece.integers:
             continue
         v = np.ascontiguousarray(piece.numbers[c])
         finite = piece.matrix is not None or bool(np.isfinite(v).all())  # NaN marks a refused row
@@ -522,7 +567,8 @@ def pieces(lay: Layout, pos: int, line: int, plan: Callable[[], Plan]) -> Iterat
         end = _chunk_end(lay, pos, line, CHUNK)
         if end <= pos:
             return
-        chunk = bytes(src.buf[pos - src.base:end - src.base])
+        with memoryview(src.buf) as view:  # one copy of the chunk's bytes
+            chunk = bytes(view[pos - src.base:end - src.base])
         if b'"' in chunk or (b"\r" in chunk and chunk.count(b"\r") != chunk.count(b"\r\n")):
             piece, pos, line = _quoted(lay, pos, line, plan())
             yield piece, pos
