@@ -30,6 +30,7 @@ import numpy as np
 from numpy.lib.stride_tricks import as_strided
 
 from ..support.csv_cells import STRIP
+from .csv_decimals import chunk_places
 from ..support.errors import InputError
 from ..support.files import BoundedFile
 
@@ -67,11 +68,13 @@ class Layout:
 class Plan:
     """Which used columns are read as numbers and which as tokens (column indices, sorted);
     ``whole`` are numeric columns whose whole-number values must say whether their cells
-    were written as integers (no decimal mark, no exponent)."""
+    were written as integers (no decimal mark, no exponent); ``places``: find the place of
+    the last written digit of every number cell (:mod:`lintools.exchange.csv_decimals`)."""
 
     numeric: tuple[int, ...]
     tokens: tuple[int, ...]
     whole: tuple[int, ...] = ()
+    places: bool = False
 
 
 @dataclass
@@ -83,6 +86,9 @@ class Piece:
     ``c``.  ``lines`` is the file line on which each record starts.  ``integers[c]`` says
     whether every cell of column ``c`` in ``numbers`` was written as an integer.
     ``matrix`` holds every column's values when the whole chunk was read as numbers.
+    ``places[c]`` (only when the plan asks, and only from the bytes of a plain chunk) holds
+    the place of the last written digit of column ``c``'s cells (meaningless in the rows of
+    ``exceptions[c]``); without it the tokens give them.
     """
 
     lines: np.ndarray
@@ -91,6 +97,7 @@ class Piece:
     matrix: np.ndarray | None = None  # every column's values, when the whole chunk was numbers
     exceptions: dict[int, tuple[np.ndarray, np.ndarray]] = field(default_factory=dict)
     tokens: dict[int, np.ndarray] = field(default_factory=dict)
+    places: dict[int, np.ndarray] = field(default_factory=dict)
 
 
 def _too_long(lay: Layout, line: int) -> InputError:
@@ -415,6 +422,8 @@ def _plain(lay: Layout, chunk: bytes, line0: int, plan: Plan) -> tuple[Piece, in
             piece = Piece(lines=np.arange(line0, line0 + n, dtype=np.int64), numbers={c: v[:, c] for c in every},
                           matrix=v)
             _integers(lay, piece, plan, a, ends, fields)
+            if plan.places:
+                _places(lay, piece, plan, a, True)
             return piece, n
     bounds = fields().bounds
     if k == 1 or bounds.size != n * k or not np.all(a[bounds[k - 1 :: k]] == 10):
@@ -434,7 +443,16 @@ def _plain(lay: Layout, chunk: bytes, line0: int, plan: Plan) -> tuple[Piece, in
             if refused.size:
                 piece.exceptions[c] = (refused, fields().tokens(c, refused))
         _integers(lay, piece, plan, a, ends, fields)
+        if plan.places:
+            _places(lay, piece, plan, a, False)
     return piece, n
+
+
+def _places(lay: Layout, piece: Piece, plan: Plan, a: np.ndarray, numbers_only: bool) -> None:
+    """Fill ``piece.places`` for the numeric columns of a plain chunk of the header's shape."""
+    q = chunk_places(a, lay.delimiter[0], lay.decimal[0], piece.lines.size, lay.k, numbers_only)
+    for c in plan.numeric:
+        piece.places[c] = q[:, c]
 
 
 _POWERS = 10.0 ** np.arange(1, 17)
