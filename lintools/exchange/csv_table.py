@@ -90,7 +90,7 @@ from typing import Iterable, Mapping, Sequence
 
 import numpy as np
 
-from ..models.accuracy import UNIT, Precision
+from ..models.accuracy import UNIT, Precision, half_unit
 from ..support.csv_cells import STRIP, TEXT, classify, is_number
 from .csv_chunks import Layout, header_record, pieces
 from .csv_columns import MAX_LEVELS, Columns, Spec
@@ -180,8 +180,8 @@ class Table:
                 raise InputError(f"data_precision: '{name}' is not a column of X; its columns are "
                                  f"{', '.join(self.names)}")
         dec = self.written_decimals
-        x_abs = np.array([0.5 * 10.0 ** -dec[n] if n in dec else 0.0 for n in names])
-        y_abs = 0.5 * 10.0 ** -dec[target] if target is not None and target in dec else 0.0
+        x_abs = np.array([half_unit(dec[n]) if n in dec else 0.0 for n in names])
+        y_abs = half_unit(dec[target]) if target is not None and target in dec else 0.0
         return Precision(np.full(len(names), UNIT), x_abs, y_absolute=y_abs,
                          what=f"the decimals written in {self.source or 'the file'}")
 
