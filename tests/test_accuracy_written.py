@@ -127,3 +127,37 @@ def test_data_precision_is_checked():
         logistic(X, y, data_precision={"a": 1})
     with pytest.raises(InputError, match=r"x_decimals\[1\] must be a whole number"):
         Precision.written([1, 1.5])
+
+
+def test_check_reports_differences_below_the_written_resolution_as_within_what_the_data_determine(tmp_path):
+    # the resolution is the refit's own record (checked against the Monte Carlo oracles above);
+    # here: check passes the file's decimals to the refit and judges by them
+    import dataclasses
+
+    import lintools as lt
+
+    rng = np.random.default_rng(5)
+    X = rng.normal(size=(200, 2)) * [1.0, 2.0]
+    y = 0.5 + X @ [1.5, -0.8] + 0.05 * rng.normal(size=200)
+    path = tmp_path / "d.csv"
+    _write(path, X, y, lambda v: f"{v:.1f}")
+    t = read_table(path, target="y", written_decimals=True)
+    yv = np.array(t.target, dtype=float)
+    fit = least_squares(t.X, yv, names=t.names, data_precision=t.data_precision(target="y"))
+    at_float64 = least_squares(t.X, yv, names=t.names).accuracy
+    resolution = 3 * fit.accuracy.data_error + fit.accuracy.solver_error
+    move = 0.4 * resolution  # intercept first
+    assert np.all(move > 3 * at_float64.data_error + at_float64.solver_error)  # not within at float64's rounding
+    model = tmp_path / "m.json"
+    lt.save(dataclasses.replace(fit, intercept=fit.intercept + move[0], coefficients=fit.coefficients + move[1:],
+                                target="y"), model)
+    proc = subprocess.run([sys.executable, "-m", "lintools", "check", str(model), str(path), "--json"],
+                          capture_output=True, text=True)
+    doc = json.loads(proc.stdout)
+    assert "the decimals written in d.csv" in doc["comparison"]["data_precision"]
+    assert np.all(np.abs(doc["comparison"]["difference"]) <= doc["comparison"]["data_resolution"])
+    assert doc["refit"]["accuracy"]["data_digits"] == fit.accuracy.data_digits
+    text = subprocess.run([sys.executable, "-m", "lintools", "check", str(model), str(path)],
+                          capture_output=True, text=True).stdout
+    assert "Every difference is within what the data determine" in text
+    assert "Verdict: AGREE" in text, text
