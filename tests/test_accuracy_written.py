@@ -161,3 +161,17 @@ def test_check_reports_differences_below_the_written_resolution_as_within_what_t
                           capture_output=True, text=True).stdout
     assert "Every difference is within what the data determine" in text
     assert "Verdict: AGREE" in text, text
+    # the sign-off document: the refit's accuracy record and the marks, each tied to its twin's value
+    page, twin = tmp_path / "r.html", tmp_path / "r.json"
+    proc = subprocess.run([sys.executable, "-m", "lintools", "report", str(model), str(path), "--out", str(page),
+                           "--quiet"], capture_output=True, text=True)
+    assert proc.returncode == 0, proc.stderr
+    doc, body = json.loads(twin.read_text()), page.read_text()
+    acc = doc["refit"]["accuracy"]
+    assert acc["data_digits"] == fit.accuracy.data_digits and acc["solver_digits"] == fit.accuracy.solver_digits
+    assert doc["comparison_within_data"] == [True, True, True]
+    assert f'data-k="/refit/accuracy/data_digits">{acc["data_digits"]:.2f}<' in body
+    assert f'data-k="/refit/accuracy/solver_digits">{acc["solver_digits"]:.2f}<' in body
+    assert f'data-k="/refit/accuracy/data_worst">{acc["data_worst"]}<' in body
+    assert f'data-k="/refit/accuracy/sentence">{acc["sentence"]}<' in body
+    assert all(f'data-k="/comparison_within_data/{i}">yes<' in body for i in range(3))
