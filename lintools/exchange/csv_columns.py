@@ -220,14 +220,18 @@ class Columns:
         places: dict[int, np.ndarray] = {}
         for col in self.cols:
             c = col.spec.index
-            q = None
-            if self.places and not col.spec.text_only:
-                q = places[c] = (piece.places[c].copy() if c in piece.places
-                                 else np.full(r, NONE, dtype=np.int32))  # filled from the tokens
+            q, rows, toks = None, None, None
             if c in piece.numbers:
                 rows, toks = piece.exceptions.get(c, (None, None))
-                if q is not None and rows is not None:
+            if self.places and not col.spec.text_only:
+                q = piece.places.get(c)
+                if q is None:
+                    q = np.full(r, NONE, dtype=np.int32)  # filled from the tokens
+                elif rows is not None:  # the refused rows' cells are classified apart
+                    q = q.copy()
                     q[rows] = NONE
+                places[c] = q
+            if c in piece.numbers:
                 good = r - (0 if rows is None else rows.size)
                 if good:
                     col.n_num += good

@@ -75,9 +75,9 @@ its options are named beside the Python arguments):
   absolute rounding error of every cell of the column (see
   :mod:`lintools.exchange.csv_decimals`); :meth:`Table.data_precision` turns it into the
   data precision a fit's accuracy record is stated at.  It is found on the bytes each
-  chunk is parsed from (for a numeric file of ``%.6g`` numbers it adds about a tenth to
-  the reading time, measured with ``benchmarks/read_table.py --decimals``), so it is
-  asked for, not done by default.
+  chunk is parsed from (for a numeric file of ``%.6g`` numbers it adds about a third to
+  the reading time, nothing for cells of one-digit integers: the ``read_table+decimals``
+  row of ``benchmarks/read_table.py``), so it is asked for, not done by default.
 """
 
 from __future__ import annotations
