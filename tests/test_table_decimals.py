@@ -135,5 +135,5 @@ def test_indicator_columns_are_exact_and_precision_follows_the_order_asked(tmp_p
     assert prec.y_absolute == 0.05 and "p.csv" in prec.what
     with pytest.raises(InputError, match="written_decimals=True"):
         read_table(path, target="y").data_precision()
-    with pytest.raises(InputError, match="'w' is not a column"):
+    with pytest.raises(InputError, match="'w' is not a column of this table"):
         t.data_precision(["w"])

@@ -174,11 +174,13 @@ class Table:
         if self.written_decimals is None:
             raise InputError("this table was read without its written decimals; read it with "
                              "read_table(..., written_decimals=True)")
-        names = self.names if names is None else tuple(names)
+        names = self.names if names is None else tuple(_names(names, "names", ordered=True))
         for name in names:
             if name not in self.names:
-                raise InputError(f"data_precision: '{name}' is not a column of X; its columns are "
+                raise InputError(f"'{name}' is not a column of this table's X; its columns are "
                                  f"{', '.join(self.names)}")
+        if target is not None and not isinstance(target, str):
+            raise InputError(f"target must be the name (str) of the target column, or None; got {target!r:.80}")
         dec = self.written_decimals
         x_abs = np.array([half_unit(dec[n]) if n in dec else 0.0 for n in names])
         y_abs = half_unit(dec[target]) if target is not None and target in dec else 0.0

@@ -150,17 +150,22 @@ class Precision:
 
     @staticmethod
     def float64(p: int) -> "Precision":
-        return Precision(np.full(p, UNIT), np.zeros(p))
+        """Float64 input of ``p`` columns: relative rounding ``u`` of every entry."""
+        if isinstance(p, (bool, np.timedelta64)) or not isinstance(p, (int, np.integer)) or not 0 <= p < 2**31:
+            raise InputError(f"p must be a whole number of columns from 0 to 2**31 - 1; got {p!r:.80}")
+        return Precision(np.full(int(p), UNIT), np.zeros(int(p)))
 
     @staticmethod
     def written(x_decimals: Any, y_decimals: int | None = None, what: str = "the decimals written") -> "Precision":
         """Data written to ``x_decimals[j]`` decimal places in column ``j`` of X (None: the
         column is exact, an indicator for example) and ``y_decimals`` in y (None: exact or
         labels): an absolute half-unit ``0.5 * 10**-d`` beside float64's relative ``u``."""
+        if not isinstance(what, str):
+            raise InputError(f"what must be a str naming the precision; got {type(what).__name__}")
         def half(d: Any, label: str) -> float:
             if d is None:
                 return 0.0
-            if isinstance(d, bool) or not isinstance(d, (int, np.integer)):
+            if isinstance(d, (bool, np.timedelta64)) or not isinstance(d, (int, np.integer)):
                 raise InputError(f"{label} must be a whole number of decimal places or None; got {d!r:.80}")
             return half_unit(int(d))
         try:
@@ -174,6 +179,8 @@ class Precision:
 
 def half_unit(decimals: int) -> float:
     """Half a unit of the ``decimals``-th decimal place (held at the largest double beyond it)."""
+    if decimals > 400:
+        return 0.0  # below the smallest double
     return 0.5 * 10.0 ** -decimals if decimals > -308 else float(np.finfo(np.float64).max)
 
 
