@@ -44,7 +44,7 @@ ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
 MB = 1 << 20
-READERS = ("read_table", "numpy.loadtxt", "pandas.read_csv")
+READERS = ("read_table", "read_table+decimals", "numpy.loadtxt", "pandas.read_csv")
 
 
 def write_numbers(path: Path, rows: int) -> None:
@@ -105,11 +105,11 @@ def child(reader: str, path: str, target: str, check: bool) -> None:
     """Read ``path`` once with ``reader``; print one JSON line of figures."""
     import resource
 
-    if reader == "read_table":
+    if reader.startswith("read_table"):
         from lintools.exchange.csv_table import read_table
 
-        def read():
-            return read_table(path, target=target)
+        def read():  # "+decimals": with the decimal places written in each column (written_decimals=True)
+            return read_table(path, target=target, written_decimals=reader.endswith("+decimals"))
     elif reader == "numpy.loadtxt":
         def read():
             return np.loadtxt(path, delimiter=",", skiprows=1)
@@ -155,7 +155,7 @@ def measure(label: str, path: Path, target: str, rounds: int) -> None:
             if got is not None:
                 runs[reader].append(got)
     print(f"\n{label}: {path.name}, {size / MB:.1f} MB, {rounds} rounds (median; best in brackets)")
-    head = (f"{'reader':<17}{'wall s':>16}{'CPU s':>16}{'MB/s':>8}{'peak RSS growth MB':>20}{'x file':>8}"
+    head = (f"{'reader':<20}{'wall s':>16}{'CPU s':>16}{'MB/s':>8}{'peak RSS growth MB':>20}{'x file':>8}"
             f"{'wall / loadtxt':>16}{'CPU / loadtxt':>15}{'CPU / pandas':>14}")
     print(head)
     print("-" * len(head))
@@ -164,7 +164,7 @@ def measure(label: str, path: Path, target: str, rounds: int) -> None:
     for reader in READERS:
         r = runs[reader]
         if not r:
-            print(f"{reader:<17}  (not installed: skipped)")
+            print(f"{reader:<20}  (not installed: skipped)")
             continue
         wall = statistics.median(x["wall"] for x in r)
         cpu = statistics.median(x["cpu"] for x in r)
@@ -173,7 +173,7 @@ def measure(label: str, path: Path, target: str, rounds: int) -> None:
         ratio_w = statistics.median(x["wall"] / b["wall"] for x, b in zip(r, base))
         ratio_c = statistics.median(x["cpu"] / b["cpu"] for x, b in zip(r, base))
         ratio_p = f"{statistics.median(x['cpu'] / b['cpu'] for x, b in zip(r, pandas)):>14.2f}" if pandas else ""
-        print(f"{reader:<17}{wall:>8.3f} ({best_wall:.3f}){cpu:>8.3f} ({best_cpu:.3f}){size / MB / wall:>8.1f}"
+        print(f"{reader:<20}{wall:>8.3f} ({best_wall:.3f}){cpu:>8.3f} ({best_cpu:.3f}){size / MB / wall:>8.1f}"
               f"{rss / MB:>20.1f}{rss / size:>8.2f}{ratio_w:>16.2f}{ratio_c:>15.2f}{ratio_p}")
     agree = runs["read_table"][0].get("agrees_with_loadtxt")
     print(f"read_table agrees with numpy.loadtxt (every value, exactly): {agree}")

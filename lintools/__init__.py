@@ -13,6 +13,7 @@ from .support.errors import (
     SeparationError,
 )
 from .models.records import Accuracy, CoefficientTable, Convergence, LinearFit
+from .models.accuracy import Precision
 from .exchange.model_files import load, save
 from .exchange.pmml import DeliveredModel, read_pmml, write_pmml
 from .exchange.csv_table import Table, read_table
@@ -61,6 +62,7 @@ from .splitting.stratified import (
 
 __all__ = [
     "Accuracy",
+    "Precision",
     "CoefficientTable",
     "Convergence",
     "IllConditionedWarning",

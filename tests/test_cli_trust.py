@@ -260,7 +260,10 @@ NOT_RUN = {("blocks/runner.py", "weights"),  # row blocks and dask arrays
            ("exchange/crosscheck.py", "intercept"),  # coefficients given by name: the command line passes an array
            ("engine/losses.py", "model"),  # implied_l2's model is set from the delivered file's kind
            ("support/categories.py", "reference_levels"),  # the command line passes the table's own mapping
-           ("exchange/csv_table.py", "reference_levels")}  # the command line builds it: a dict of str from the model
+           ("exchange/csv_table.py", "reference_levels"),  # the command line builds it: a dict of str from the model
+           # the command line always reads with written_decimals=True and builds data_precision itself
+           ("exchange/csv_table.py", "written_decimals"), ("models/accuracy.py", "data_precision"),
+           ("models/accuracy.py", "written_decimals")}
 
 
 def _library_messages():

@@ -462,6 +462,10 @@ def specs(tmp: Path) -> list[Spec]:
         spec("read_table", lt.read_table, ("path",), args={"path": csv, "target": "y", "weights": None,
                                                             "features": ("x1", "x2", "g"), "reference_levels": {"g": "u"}},
              paths=("path",)),
+        spec("Table.data_precision", lt.read_table(csv, target="y", written_decimals=True).data_precision,
+             args={"names": ("x1", "g=v"), "target": "y"}),
+        spec("Precision.written", lt.Precision.written, ("x_decimals",), args={"x_decimals": [2, 1], "y_decimals": 1}),
+        spec("Precision.float64", lt.Precision.float64, ("p",), args={"p": 2}),
         spec("stratified_holdout", lt.stratified_holdout, ("y",), args={"y": YB, "groups": GROUPS}),
         spec("stratified_folds", lt.stratified_folds, ("y",), args={"y": Y3, "k": 3}),
         spec("stratified_folds[continuous]", lt.stratified_folds, ("y",), args={"y": YL, "k": 3, "continuous_bins": 3}),
@@ -673,6 +677,7 @@ TALLY: dict[str, Tally] = {}
 
 
 SPEC_NAMES = [
+    "Table.data_precision", "Precision.written", "Precision.float64",
     "least_squares", "least_squares[HC3]", "logistic", "logistic[grouped]", "logistic[lbfgs]", "logistic[firth]",
     "softmax", "softmax[symmetric]", "least_squares_blocks", "logistic_blocks", "softmax_blocks",
     "least_squares_blocks[dask]", "logistic_blocks[dask]", "softmax_blocks[dask]", "check_separation",

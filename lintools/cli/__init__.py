@@ -48,6 +48,7 @@ from .common import (
     add_fit_options,
     check_output_paths,
     class_note,
+    precision_words,
     column_list,
     emit_json,
     fit_keywords,
@@ -88,6 +89,7 @@ def _fit_table(table: Any, args: argparse.Namespace, progress: Progress) -> Any:
         positive=lambda: match_label(args.positive, labels(), "--positive") if args.positive is not None else None,
         reference=lambda: _reference(args, labels()),
     )
+    words.update(precision_words(kind, table, table.names, args.target))
     return kind.fit(table.X, y, weights=table.weights, intercept=not args.no_intercept, l2=args.l2,
                     names=table.names, **words)
 
@@ -114,7 +116,7 @@ def _cmd_fit(args: argparse.Namespace) -> int:
                        args.replace)
     table = read_table(
         args.csv, target=args.target, features=column_list(args.features), weights=args.weights,
-        drop_missing=args.drop_missing, **table_options(args, "categorical", "exclude"),
+        drop_missing=args.drop_missing, written_decimals=True, **table_options(args, "categorical", "exclude"),
     )
     fit = _fit_table(table, args, Progress(args.quiet, "fit"))
     if any(f.name == "target" for f in dataclasses.fields(fit)):

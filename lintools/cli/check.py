@@ -37,6 +37,7 @@ from .common import (
     Progress,
     add_fit_options,
     class_note,
+    precision_words,
     emit_json,
     fit_keywords,
     fraction,
@@ -146,13 +147,14 @@ def read_refit_data(args: argparse.Namespace, d: Delivered, *, path: str | None 
         if absent:
             raise InputError(f"the delivered model's input '{absent[0]}' is not a column of {path!r} (its "
                              f"columns: {', '.join(header)}); the refit needs every input the model uses")
-        table, X = read_inputs(path, inputs, table_options(args, "categorical"), target=wanted,
+        table, X = read_inputs(path, inputs, {**table_options(args, "categorical"), "written_decimals": with_target},
+                               target=wanted,
                                weights=args.weights, extra=by, drop_missing=args.drop_missing)
         return table, X, target
     cols = _columns_for(d.names, header, path)
     _refuse_by(args, target, cols)
     kwargs = dict(target=wanted, features=cols, weights=args.weights, extra=by, drop_missing=args.drop_missing,
-                  **table_options(args, "categorical"))
+                  written_decimals=with_target, **table_options(args, "categorical"))
     table = read_table(path, **kwargs)
     if any(n not in d.names for n in table.names):  # a text column whose reference level differs from the delivered model's
         refs = {}
@@ -183,8 +185,9 @@ def _refuse_by(args: argparse.Namespace, target: str, columns: Any) -> None:
 
 
 def _refit(d: Delivered, labels: list, weights: Any, X: np.ndarray, target: str, args: argparse.Namespace,
-           progress: Progress) -> Any:
-    """The refit of the delivered kind of model on ``X`` and the target values ``labels``."""
+           progress: Progress, table: Any = None) -> Any:
+    """The refit of the delivered kind of model on ``X`` and the target values ``labels``;
+    its accuracy record at the decimals written in the file ``table`` was read from."""
     kind = KINDS[d.kind]
     l2 = args.l2 if args.l2 is not None else (d.l2 or 0.0)
     found = sorted(set(labels), key=str) if kind.classifier else []
@@ -203,6 +206,7 @@ def _refit(d: Delivered, labels: list, weights: Any, X: np.ndarray, target: str,
         reference=lambda: (d.reference if d.reference in ("first", None)
                            else match_label(str(d.reference), found, "the model's reference class")),
     )
+    words.update(precision_words(kind, table, d.names, target))
     fit = kind.fit(X, y, weights=weights, intercept=d.intercept is not None, l2=l2, names=d.names, **words)
     return dataclasses.replace(fit, target=target)
 
@@ -306,7 +310,7 @@ def cross_check(args: argparse.Namespace, d: Delivered, table: Any, X: np.ndarra
     labels = list(table.target)
     caught = args.warnings_seen
     since = len(caught)
-    fit = _refit(d, labels, table.weights, X, target, args, Progress(args.quiet, "refit"))
+    fit = _refit(d, labels, table.weights, X, target, args, Progress(args.quiet, "refit"), table)
     chosen = "chosen with --positive" if args.positive is not None else "as in the model file; choose with --positive"
     note_words = class_note(fit, positive_hint=chosen, classes_hint="as in the model file")
     if note_words:
@@ -392,7 +396,8 @@ def _segment_blocks(d: Delivered, fit: Any, table: Any, X: np.ndarray, labels: l
                  "note": None, "reasons": [], "refit_converged": None, "agree": None, "problem": None}
         since = len(caught)
         try:
-            seg_fit = _refit(d, seg_labels, w, X[rows], target, args, Progress(args.quiet, f"refit of {value}"))
+            seg_fit = _refit(d, seg_labels, w, X[rows], target, args, Progress(args.quiet, f"refit of {value}"),
+                             table)
             judged = _judge(d, seg_fit, X[rows], seg_labels, w, args, _iteration_warned(caught, since))
         except (InputError, LintoolsError) as exc:  # e.g. one class only, separation, an aliased column
             block["problem"] = f"not compared: {exc}"

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import argparse
 import dataclasses
+import inspect
 import json
 import math
 import os
@@ -19,6 +20,7 @@ from typing import Any, Callable, Iterable, Sequence
 
 import numpy as np
 
+from ..models.accuracy import Precision
 from ..models.kinds import KINDS, ModelKind
 from ..support.errors import InputError
 from ..support.files import check_outputs
@@ -289,6 +291,19 @@ def fit_keywords(kind: ModelKind, args: argparse.Namespace, progress: Any, *, co
     if "reference" in options:
         words["reference"] = reference()
     return words
+
+
+def precision_words(kind: ModelKind, table: Any, names: Sequence[str], target: str) -> dict:
+    """``{"data_precision": ...}`` for a fit of ``kind`` on the columns ``names`` of a table read
+    with its written decimals: each numeric column at half a unit of its least precise written
+    decimal, indicator columns exact, and the target's rounding for a model of a response;
+    empty when the table has no decimals or the fit takes no ``data_precision``."""
+    dec = getattr(table, "written_decimals", None)
+    if dec is None or "data_precision" not in inspect.signature(kind.fit).parameters:
+        return {}
+    y = None if kind.classifier else dec.get(target)
+    return {"data_precision": Precision.written([dec.get(n) for n in names], y,
+                                                f"the decimals written in {table.source}")}
 
 
 def class_note(fit: Any, *, positive_hint: str, classes_hint: str) -> str | None:

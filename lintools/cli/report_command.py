@@ -126,6 +126,7 @@ def write_report(args: argparse.Namespace) -> dict[str, Any]:
         "data": {"file": args.csv, "rows_read": int(table.lines.size + table.dropped),
                  "rows_used": int(table.lines.size), "dropped_rows": int(table.dropped), "weights": args.weights},
         "refit": fit.to_dict(), "refit_interval": interval, "comparison": cmp,
+        "comparison_within_data": cmp.within_data,
         "implied_l2": cc.implied, "implied_l2_words": cc.implied_text, "comparison_note": cc.note,
         **parts,
         "charts": charts,

@@ -99,10 +99,12 @@ def refit(pg: Page, charts: dict[str, Chart]) -> str:
              pg.cell(("refit_interval", "standard_error", i), ".4g"),
              pg.cell(("refit_interval", "lower", i)), pg.cell(("refit_interval", "upper", i)),
              pg.cell(("comparison", "difference", i), ".4g"),
-             pg.cell(("comparison", "difference_in_se", i), ".2f")] for i, t in enumerate(c["terms"])]
+             pg.cell(("comparison", "difference_in_se", i), ".2f")] + _within(pg, i) for i, t in enumerate(c["terms"])]
     table = pg.table(["term", "delivered", "refit", "refit standard error", f"refit {pct} low", f"refit {pct} high",
-                      "delivered minus refit", "in refit standard errors"], rows,
-                     f"Coefficients, intercept first (Wald intervals of the refit, {ri['distribution']} quantiles)")
+                      "delivered minus refit", "in refit standard errors", "difference the data cannot resolve",
+                      "within what the data determine"], rows,
+                     f"Coefficients, intercept first (Wald intervals of the refit, {ri['distribution']} quantiles)"
+                     + _resolution_words(pg))
     predicts = "response" if pg.get("model", "positive") is None and pg.get("model", "classes") is None \
         else "probability"
     tests = pg.pairs([("Wald test of 'delivered = refit': chi-square", ("comparison", "wald_statistic"), ".4f"),
@@ -123,6 +125,21 @@ def refit(pg: Page, charts: dict[str, Chart]) -> str:
             "<p>The delivered model's kind of model is refitted on the development data, with the delivered terms; "
             "each delivered coefficient is then placed in the refit's standard errors.</p>"
             + figure(charts["coefficients"]) + table + tests + extra + whole)
+
+
+def _within(pg: Page, i: int) -> list[str]:
+    """The resolution of term ``i`` and whether its difference is within it (not defined
+    without the refit's accuracy record)."""
+    if pg.get("comparison_within_data") is None:
+        return [pg.word("not defined", "n"), pg.word("not defined", "n")]
+    return [pg.cell(("comparison", "data_resolution", i), ".3g"), pg.cell(("comparison_within_data", i), "")]
+
+
+def _resolution_words(pg: Page) -> str:
+    if pg.get("comparison_within_data") is None:
+        return ""
+    return ("; the difference the data cannot resolve is three times the expected change of the refit under the "
+            f"rounding of its data ({pg.get('comparison', 'data_precision')}) plus its solver error")
 
 
 def stability(pg: Page, charts: dict[str, Chart]) -> str:
@@ -170,13 +187,26 @@ def out_of_time(pg: Page, body: Any) -> str:
 
 
 def convergence(pg: Page) -> str:
-    """The refit's convergence record."""
+    """The refit's convergence record and its accuracy record (when it has one)."""
     c = ("refit", "convergence")
-    return ('<h2 id="convergence">Convergence of the refit</h2>'
+    return ('<h2 id="convergence">Convergence and accuracy of the refit</h2>'
             + pg.pairs([("converged", (*c, "converged"), ""), ("iterations", (*c, "iterations"), "int"),
                         ("largest gradient per unit case weight at the answer", (*c, "gradient_norm"), ".3g"),
                         ("objective at the answer", (*c, "objective"), ".10g")])
-            + f"<p>{escape(pg.get(*c, 'message'))}</p>")
+            + f"<p>{escape(pg.get(*c, 'message'))}</p>" + _accuracy(pg))
+
+
+def _accuracy(pg: Page) -> str:
+    """The refit's accuracy record: the digits the solver reached and those the data determine."""
+    if pg.get("refit").get("accuracy") is None:
+        return ""
+    a = ("refit", "accuracy")
+    return (pg.pairs([("digits that agree with the exact optimum of these data", (*a, "solver_digits"), ".2f"),
+                      ("worst term", (*a, "solver_worst"), ""), ("measured relative to", (*a, "solver_relative_to"), ""),
+                      ("digits the data determine at their precision", (*a, "data_digits"), ".2f"),
+                      ("precision of the data", (*a, "precision"), ""), ("worst term", (*a, "data_worst"), ""),
+                      ("measured relative to", (*a, "data_relative_to"), "")], "Accuracy of the refit's coefficients")
+            + f'<p>{pg.num((*a, "sentence"), "")}</p>')
 
 
 def audit(pg: Page) -> str:

@@ -32,6 +32,7 @@ import numpy as np
 from numpy.lib.stride_tricks import as_strided
 
 from ..support.csv_cells import STRIP
+from .csv_decimals import chunk_places
 from ..support.errors import InputError
 from ..support.files import BoundedFile
 from .csv_whole import WIDTH, one_digit_cells, starts_of, whole_columns
@@ -70,11 +71,13 @@ class Layout:
 class Plan:
     """Which used columns are read as numbers and which as tokens (column indices, sorted);
     ``whole`` are numeric columns whose whole-number values must say whether their cells
-    were written as integers (no decimal mark, no exponent)."""
+    were written as integers (no decimal mark, no exponent); ``places``: find the place of
+    the last written digit of every number cell (:mod:`lintools.exchange.csv_decimals`)."""
 
     numeric: tuple[int, ...]
     tokens: tuple[int, ...]
     whole: tuple[int, ...] = ()
+    places: bool = False
 
 
 @dataclass
@@ -87,6 +90,9 @@ class Piece:
     whether every cell of column ``c`` in ``numbers`` was written as an integer.
     ``matrix`` holds every column's values when the whole chunk was read as numbers (float64,
     or uint8 for one-digit cells: exact either way, cast as the table's block is filled).
+    ``places[c]`` (only when the plan asks, and only from the bytes of a plain chunk) holds
+    the place of the last written digit of column ``c``'s cells (meaningless in the rows of
+    ``exceptions[c]``); without it the tokens give them.
     """
 
     lines: np.ndarray
@@ -95,6 +101,7 @@ class Piece:
     matrix: np.ndarray | None = None  # every column's values, when the whole chunk was numbers
     exceptions: dict[int, tuple[np.ndarray, np.ndarray]] = field(default_factory=dict)
     tokens: dict[int, np.ndarray] = field(default_factory=dict)
+    places: dict[int, np.ndarray] = field(default_factory=dict)
 
 
 def _too_long(lay: Layout, line: int) -> InputError:
@@ -425,6 +432,8 @@ def _plain(lay: Layout, chunk: bytes, line0: int, plan: Plan) -> tuple[Piece, in
             piece = Piece(lines=np.arange(line0, line0 + n, dtype=np.int64),
                           numbers={c: digits[:, c] for c in range(k)}, matrix=digits,
                           integers={c: True for c in plan.whole})
+            if plan.places:  # a one-digit whole number's last written digit is the units
+                piece.places = {c: np.zeros(n, dtype=np.int32) for c in plan.numeric}
             return piece, n
     tried = False
     if len(plan.numeric) == k > 1 and int(ends[0]) > k * (WIDTH + 1) and chunk.strip(STRIP + b"\n"):
@@ -436,6 +445,8 @@ def _plain(lay: Layout, chunk: bytes, line0: int, plan: Plan) -> tuple[Piece, in
             piece = Piece(lines=np.arange(line0, line0 + n, dtype=np.int64), numbers={c: v[:, c] for c in range(k)},
                           matrix=v)
             _integers(lay, piece, plan, a, ends, fields)
+            if plan.places:
+                _places(lay, piece, plan, a, True)
             return piece, n
     bounds = fields().bounds
     if k == 1 or bounds.size != n * k or not np.all(a[bounds[k - 1 :: k]] == 10):
@@ -450,6 +461,8 @@ def _plain(lay: Layout, chunk: bytes, line0: int, plan: Plan) -> tuple[Piece, in
     if plan.numeric:
         _numeric_cells(lay, chunk, a, fields(), plan, piece, tried)
         _integers(lay, piece, plan, a, ends, fields)
+        if plan.places:
+            _places(lay, piece, plan, a, False)
     return piece, n
 
 
@@ -480,6 +493,13 @@ def _numeric_cells(lay: Layout, chunk: bytes, a: np.ndarray, cells: _Fields, pla
             piece.matrix = np.empty((n, lay.k))
             piece.matrix[:, list(whole)] = block
             piece.matrix[:, list(rest)] = values
+
+
+def _places(lay: Layout, piece: Piece, plan: Plan, a: np.ndarray, numbers_only: bool) -> None:
+    """Fill ``piece.places`` for the numeric columns of a plain chunk of the header's shape."""
+    q = chunk_places(a, lay.delimiter[0], lay.decimal[0], piece.lines.size, lay.k, numbers_only)
+    for c in plan.numeric:
+        piece.places[c] = q[:, c]
 
 
 _POWERS = 10.0 ** np.arange(1, 17)

@@ -19,6 +19,7 @@ import numpy as np
 
 from ..support.csv_cells import BAD, MISS, NUM, TEXT, classify, date_like
 from .csv_chunks import Piece, Plan
+from .csv_decimals import NONE, token_places
 from ..support.errors import InputError
 
 __all__ = ["MAX_LEVELS", "Spec", "Columns"]
@@ -133,6 +134,7 @@ class _Col:
         self.slot = 0
         self.codes: str | None = None
         self.integers = True  # every number written as an integer
+        self.place = NONE  # the place of the coarsest last written digit of its kept numbers
 
 
 class _Store:
@@ -170,8 +172,9 @@ class Columns:
     """The used columns of a CSV file, filled a piece at a time; :meth:`finish` types them."""
 
     def __init__(self, where: str, specs: list[Spec], text_first: set[int], decimal: bytes,
-                 missing: frozenset[bytes], drop_missing: bool) -> None:
+                 missing: frozenset[bytes], drop_missing: bool, places: bool = False) -> None:
         self.where = where
+        self.places = places
         self.decimal = decimal
         self.missing = missing
         self.drop_missing = drop_missing
@@ -198,7 +201,8 @@ class Columns:
     def plan(self) -> Plan:
         return Plan(numeric=tuple(sorted(c.spec.index for c in self.cols if c.numeric)),
                     tokens=tuple(sorted(c.spec.index for c in self.cols if not c.numeric)),
-                    whole=tuple(c.spec.index for c in self.cols if c.numeric and c.spec.role == "target"))
+                    whole=tuple(c.spec.index for c in self.cols if c.numeric and c.spec.role == "target"),
+                    places=self.places)
 
     def add(self, piece: Piece, estimate: int) -> None:
         """Store ``piece``; ``estimate`` is the expected number of rows of the whole file."""
@@ -213,10 +217,21 @@ class Columns:
             out = self.store["block"]
             for lo, hi, at in self._runs:  # slices copy faster than a take
                 out[r0:r0 + r, at:at + hi - lo] = piece.matrix[:, lo:hi]
+        places: dict[int, np.ndarray] = {}
         for col in self.cols:
             c = col.spec.index
+            q, rows, toks = None, None, None
             if c in piece.numbers:
                 rows, toks = piece.exceptions.get(c, (None, None))
+            if self.places and not col.spec.text_only:
+                q = piece.places.get(c)
+                if q is None:
+                    q = np.full(r, NONE, dtype=np.int32)  # filled from the tokens
+                elif rows is not None:  # the refused rows' cells are classified apart
+                    q = q.copy()
+                    q[rows] = NONE
+                places[c] = q
+            if c in piece.numbers:
                 good = r - (0 if rows is None else rows.size)
                 if good:
                     col.n_num += good
@@ -229,12 +244,22 @@ class Columns:
                     if not (whole and col.values == "block"):
                         self._put(col, slice(r0, r0 + r), piece.numbers[c])
                 if rows is not None:
-                    self._cells(col, piece.lines, r0, rows, toks)
+                    self._cells(col, piece.lines, r0, rows, toks, q)
             elif c in piece.tokens:
-                self._cells(col, piece.lines, r0, None, piece.tokens[c])
+                self._cells(col, piece.lines, r0, None, piece.tokens[c], q)
         if self._pending:  # the first problem in the file's order
             raise InputError(min(self._pending)[2])
+        if places:
+            self._coarsest(places, r0, r)
         self.rows += r
+
+    def _coarsest(self, places: dict[int, np.ndarray], r0: int, r: int) -> None:
+        """Each column's coarsest last written digit so far, over the rows kept."""
+        keep = ~self.store["missing"][r0:r0 + r] if self.drop_missing else None
+        for col in self.cols:
+            q = places.get(col.spec.index)
+            if q is not None and col.n_text == 0:
+                col.place = max(col.place, int((q if keep is None else q[keep]).max(initial=NONE)))
 
     def _values(self, col: _Col) -> np.ndarray:
         arr = self.store[col.values]
@@ -262,8 +287,10 @@ class Columns:
             arr = new
         return arr
 
-    def _cells(self, col: _Col, lines: np.ndarray, r0: int, rows: np.ndarray | None, toks: np.ndarray) -> None:
-        """Classify ``toks`` (the stripped cells of ``col`` in ``rows`` of the piece, or all rows)."""
+    def _cells(self, col: _Col, lines: np.ndarray, r0: int, rows: np.ndarray | None, toks: np.ndarray,
+               places: np.ndarray | None = None) -> None:
+        """Classify ``toks`` (the stripped cells of ``col`` in ``rows`` of the piece, or all rows);
+        ``places``: the piece's places of the last written digits of ``col``, filled at its numbers."""
         spec = col.spec
         uniq, inverse = _unique(toks)
         cells = classify(uniq, self.decimal, self.missing, spec.text_only)
@@ -296,6 +323,11 @@ class Columns:
                 col.first_num = (int(lines[at[i]]), float(cells.values[inverse[i]]))
             if col.values is not None:
                 self._put(col, r0 + at[num], cells.values[inverse[num]])
+            if places is not None:
+                found = np.flatnonzero(cells.kinds == NUM)
+                q = np.full(len(uniq), NONE, dtype=np.int32)
+                q[found] = token_places([uniq[u] for u in found.tolist()], self.decimal)
+                places[at[num]] = q[inverse[num]]
         text = kinds == TEXT
         if text.any():
             i = int(np.flatnonzero(text)[0])
@@ -451,6 +483,9 @@ class Columns:
         lines = self.store["lines"][:rows]
         lines.flags.writeable = False
         out["lines"] = lines
+        out["places"] = None if not self.places else {
+            c.spec.name: -c.place for c in self.cols
+            if c.place != NONE and c.n_text == 0 and not c.spec.text_only}
         return out
 
     def _design(self, blocks: list[tuple[_Col, Any]], rows: int) -> tuple[np.ndarray, tuple[str, ...]]:

@@ -71,6 +71,19 @@ its options are named beside the Python arguments):
   their cells read one by one, so the errors and values are those of the rules, never of
   the reader.  A file of numbers with decimals is therefore read at about two thirds of
   that reader's speed (the reader itself plus the checks and the chunking).
+* **Decimals written.** With ``written_decimals=True`` (the command line always asks)
+  the table records, for every numeric column it returns (features that are numbers, a
+  numeric target, the weights), the decimal places of its least precise number as
+  written, over the rows kept: ``f - E`` for a number with ``f`` digits after its
+  decimal mark and exponent ``E`` (``12.5`` -> 1, ``12.50`` -> 2, ``1200`` and ``7`` ->
+  0: an integer's digits count as written, its trailing zeros included; ``1.5e3`` -> -2,
+  ``15e-1`` -> 1).  Half a unit of that place, :math:`\tfrac12 10^{-d}`, bounds the
+  absolute rounding error of every cell of the column (see
+  :mod:`lintools.exchange.csv_decimals`); :meth:`Table.data_precision` turns it into the
+  data precision a fit's accuracy record is stated at.  It is found on the bytes each
+  chunk is parsed from (it multiplies the reading time by about 1.4 for a numeric file of
+  ``%.6g`` numbers and 1.08 for cells of one-digit integers: the ``read_table+decimals``
+  row of ``benchmarks/read_table.py``), so it is asked for, not done by default.
 """
 
 from __future__ import annotations
@@ -83,6 +96,7 @@ from typing import Iterable, Mapping, Sequence
 
 import numpy as np
 
+from ..models.accuracy import UNIT, Precision, half_unit
 from ..support.csv_cells import STRIP, TEXT, classify, is_number
 from .csv_chunks import Layout, header_record, pieces
 from .csv_columns import MAX_LEVELS, Columns, Spec
@@ -131,6 +145,13 @@ class Table:
         Lines dropped because of missing values (only with ``drop_missing=True``).
     delimiter : str
         The separator the file was read with.
+    written_decimals : dict or None
+        With ``written_decimals=True``: for every numeric column returned (by name: the
+        numeric features, a numeric target, the weights) the decimal places of its least
+        precise number as written in the file (negative when its last digit stands left
+        of the units; see the module's rules).  None when not asked for.
+    source : str
+        The file's name (without its folder).
     """
 
     X: np.ndarray
@@ -142,6 +163,35 @@ class Table:
     lines: np.ndarray
     dropped: int
     delimiter: str = ","
+    written_decimals: dict | None = None
+    source: str = ""
+
+    def data_precision(self, names: Sequence[str] | None = None, target: str | None = None) -> Precision:
+        """The precision of the data as written in the file, for a fit's accuracy record
+        (the ``data_precision`` argument of :func:`lintools.least_squares` and
+        :func:`lintools.logistic`).
+
+        Every numeric column of ``names`` (default :attr:`names`, the columns of ``X``)
+        carries an absolute rounding error of half a unit of its :attr:`written_decimals`
+        place beside the relative rounding ``u = 2**-53`` of float64; indicator columns of
+        text levels are exact.  ``target``: the name of the numeric target column, when the
+        target's rounding counts (least squares); its decimals are taken from the table.
+        """
+        if self.written_decimals is None:
+            raise InputError("this table was read without its written decimals; read it with "
+                             "read_table(..., written_decimals=True)")
+        names = self.names if names is None else tuple(_names(names, "names", ordered=True))
+        for name in names:
+            if name not in self.names:
+                raise InputError(f"'{name}' is not a column of this table's X; its columns are "
+                                 f"{', '.join(self.names)}")
+        if target is not None and not isinstance(target, str):
+            raise InputError(f"target must be the name (str) of the target column, or None; got {target!r:.80}")
+        dec = self.written_decimals
+        x_abs = np.array([half_unit(dec[n]) if n in dec else 0.0 for n in names])
+        y_abs = half_unit(dec[target]) if target is not None and target in dec else 0.0
+        return Precision(np.full(len(names), UNIT), x_abs, y_absolute=y_abs,
+                         what=f"the decimals written in {self.source or 'the file'}")
 
 
 def _names(value: Iterable[str] | None, label: str, *, ordered: bool = False) -> list[str]:
@@ -308,6 +358,7 @@ def read_table(
     exclude: Sequence[str] = (),
     max_bytes: int = MAX_BYTES,
     max_line_bytes: int = MAX_LINE_BYTES,
+    written_decimals: bool = False,
 ) -> Table:
     """Read ``path`` and return the target, the feature matrix and the named extra columns.
 
@@ -341,6 +392,9 @@ def read_table(
         Columns left out of the default feature set.
     max_bytes, max_line_bytes : int
         Size limits of the file and of one line.
+    written_decimals : bool
+        Record the decimal places written in every numeric column
+        (:attr:`Table.written_decimals`; default False: it costs reading time).
 
     Returns
     -------
@@ -356,12 +410,13 @@ def read_table(
     lay, pos, line = _open(path, delimiter, decimal, max_bytes, max_line_bytes)
     with lay.src:
         return _table(lay, pos, line, target, features, weights, extra, drop_missing, reference_levels,
-                      missing_values, categorical, exclude)
+                      missing_values, categorical, exclude, check_flag(written_decimals, "written_decimals"))
 
 
 def _table(lay: Layout, pos: int, line: int, target: str | None, features: Sequence[str] | None,
            weights: str | None, extra: Sequence[str], drop_missing: bool, reference_levels: Mapping[str, str] | None,
-           missing_values: Iterable[str] | None, categorical: Sequence[str], exclude: Sequence[str]) -> Table:
+           missing_values: Iterable[str] | None, categorical: Sequence[str], exclude: Sequence[str],
+           places: bool = False) -> Table:
     """The rest of :func:`read_table`, the header read."""
     drop_missing = check_flag(drop_missing, "drop_missing")
     cols = _ColumnNames(lay)
@@ -378,10 +433,11 @@ def _table(lay: Layout, pos: int, line: int, target: str | None, features: Seque
         if name not in feats:
             raise InputError(f"reference level given for '{name}', which is not a feature column")
     specs = [Spec(cols.index[c], c, role, c in declared) for c, role in roles + [(f, "feature") for f in feats]]
-    out = _read_columns(lay, pos, line, specs, _missing(missing_values), drop_missing).finish(refs)
+    out = _read_columns(lay, pos, line, specs, _missing(missing_values), drop_missing, places).finish(refs)
     return Table(X=out["X"], names=out["names"], target=out["target"], weights=out["weights"],
                  extra=out["extra"], reference_levels=out["reference_levels"], lines=out["lines"],
-                 dropped=out["dropped"], delimiter=lay.delimiter.decode())
+                 dropped=out["dropped"], delimiter=lay.delimiter.decode(), written_decimals=out["places"],
+                 source=os.path.basename(lay.where))
 
 
 class _ColumnNames:
@@ -437,12 +493,12 @@ class _ColumnNames:
 
 
 def _read_columns(lay: Layout, pos: int, line: int, specs: list[Spec], missing: frozenset[bytes],
-                  drop_missing: bool) -> Columns:
+                  drop_missing: bool, places: bool = False) -> Columns:
     """The cells of the used columns after the header, converted about 1 MB at a time."""
     text_first = _text_first(lay, pos, specs, missing)
     if any(is_number(t, lay.decimal) for t in missing):  # the compiled reader would read such a token
         text_first |= {s.index for s in specs}
-    cols = Columns(lay.where, specs, text_first, lay.decimal, missing, drop_missing)
+    cols = Columns(lay.where, specs, text_first, lay.decimal, missing, drop_missing, places)
     size, start = max(lay.src.size_hint, pos + 1), pos
     for piece, pos in pieces(lay, pos, line, cols.plan):
         cols.add(piece, int((cols.rows + piece.lines.size) * (size - start) / max(pos - start, 1) * 1.01) + 16)

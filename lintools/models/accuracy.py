@@ -59,14 +59,16 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 
+from ..support.errors import InputError
 from ..support.text import intercept_label
 from ..support.validate import INTERCEPT_NAME, ReadOnlyArrays
 
 __all__ = ["Accuracy", "NEAR_ZERO", "SUBSAMPLE_ROWS", "UNIT", "Precision", "column_scaled", "digits_of",
-           "sensitivity", "accuracy_record", "subsample"]
+           "sensitivity", "accuracy_record", "subsample", "checked_precision", "half_unit"]
 
 #: Unit roundoff of float64.
 UNIT = 2.0**-53
@@ -132,7 +134,13 @@ class Accuracy(ReadOnlyArrays):
 @dataclass(frozen=True)
 class Precision:
     """The rounding of the data: per column of X a relative and an absolute half-width of
-    its rounding interval, and the same for y (None: float64 input, relative ``u``)."""
+    its rounding interval, and the same for y (None: float64 input, relative ``u``).
+
+    A fit takes it as ``data_precision`` and states its ``data_digits`` at it.  Build it
+    from a file with :meth:`lintools.exchange.csv_table.Table.data_precision`, or from the
+    decimal places of each column with :meth:`written`.  ``what`` names it in the record's
+    sentence.
+    """
 
     x_relative: np.ndarray
     x_absolute: np.ndarray
@@ -142,7 +150,61 @@ class Precision:
 
     @staticmethod
     def float64(p: int) -> "Precision":
-        return Precision(np.full(p, UNIT), np.zeros(p))
+        """Float64 input of ``p`` columns: relative rounding ``u`` of every entry."""
+        if isinstance(p, (bool, np.timedelta64)) or not isinstance(p, (int, np.integer)) or not 0 <= p < 2**31:
+            raise InputError(f"p must be a whole number of columns from 0 to 2**31 - 1; got {p!r:.80}")
+        return Precision(np.full(int(p), UNIT), np.zeros(int(p)))
+
+    @staticmethod
+    def written(x_decimals: Any, y_decimals: int | None = None, what: str = "the decimals written") -> "Precision":
+        """Data written to ``x_decimals[j]`` decimal places in column ``j`` of X (None: the
+        column is exact, an indicator for example) and ``y_decimals`` in y (None: exact or
+        labels): an absolute half-unit ``0.5 * 10**-d`` beside float64's relative ``u``."""
+        if not isinstance(what, str):
+            raise InputError(f"what must be a str naming the precision; got {type(what).__name__}")
+        def half(d: Any, label: str) -> float:
+            if d is None:
+                return 0.0
+            if isinstance(d, (bool, np.timedelta64)) or not isinstance(d, (int, np.integer)):
+                raise InputError(f"{label} must be a whole number of decimal places or None; got {d!r:.80}")
+            return half_unit(int(d))
+        try:
+            cols = list(x_decimals)
+        except TypeError:
+            raise InputError(f"x_decimals must be a list with the decimal places of each column of X; got "
+                             f"{type(x_decimals).__name__}") from None
+        x_abs = np.array([half(d, f"x_decimals[{j}]") for j, d in enumerate(cols)], dtype=float)
+        return Precision(np.full(len(cols), UNIT), x_abs, y_absolute=half(y_decimals, "y_decimals"), what=what)
+
+
+def half_unit(decimals: int) -> float:
+    """Half a unit of the ``decimals``-th decimal place (held at the largest double beyond it)."""
+    if decimals > 400:
+        return 0.0  # below the smallest double
+    return 0.5 * 10.0 ** -decimals if decimals > -308 else float(np.finfo(np.float64).max)
+
+
+def checked_precision(value: Any, p: int) -> Precision | None:
+    """The ``data_precision`` argument of a fit, checked against ``p`` columns of X."""
+    if value is None:
+        return None
+    remedy = ("build it with Table.data_precision() after read_table(..., written_decimals=True), or with "
+              "Precision.written([decimals of each column], y_decimals)")
+    if not isinstance(value, Precision):
+        raise InputError(f"data_precision must be a Precision or None; got {type(value).__name__}: {remedy}")
+    for label, arr in (("x_relative", value.x_relative), ("x_absolute", value.x_absolute)):
+        a = np.asarray(arr, dtype=float)
+        if a.shape != (p,):
+            raise InputError(f"data_precision.{label} has shape {a.shape}, but X has {p} columns: {remedy}, "
+                             "with one entry per column of X in its order")
+        if not (np.all(a >= 0) and np.all(a < np.inf)):
+            raise InputError(f"data_precision.{label} must hold finite numbers >= 0: {remedy}")
+    for label, v in (("y_relative", value.y_relative), ("y_absolute", value.y_absolute)):
+        if not (isinstance(v, (int, float, np.floating)) and 0 <= float(v) < math.inf):
+            raise InputError(f"data_precision.{label} must be a finite number >= 0; got {v!r:.80}: {remedy}")
+    if not isinstance(value.what, str):
+        raise InputError(f"data_precision.what must be a str naming the precision; got {value.what!r:.80}")
+    return value
 
 
 def subsample(n: int) -> np.ndarray:

@@ -79,6 +79,7 @@ import numpy as np
 
 from . import lsq_gram as _gram
 from ..support.errors import InputError
+from .accuracy import Precision, checked_precision
 from .lsq_accuracy import least_squares_accuracy
 from .lsq_qr import qr_path
 from .lsq_record import PathAnswer, Setting, linear_record, residual_degrees
@@ -116,6 +117,7 @@ def least_squares(
     weight_type: str = "case",
     rank_deficient: str = "raise",
     diagnostics: bool = False,
+    data_precision: Precision | None = None,
 ) -> LinearFit:
     r"""Fit a linear model by weighted (and optionally ridge-penalised) least squares.
 
@@ -160,6 +162,12 @@ def least_squares(
         coefficients that are not identified.
     diagnostics : bool
         Also compute leverage (hat values) and Cook's distance per row.
+    data_precision : Precision, optional
+        The rounding of the data the record's ``accuracy.data_digits`` is stated at
+        (default: float64 input, relative rounding ``u = 2**-53`` of every entry): for data
+        read from a file, ``table.data_precision()`` of
+        ``read_table(..., written_decimals=True)`` (half a unit of each column's least
+        precise written decimal); or ``Precision.written([...])``. The rounding of y counts too (``y_absolute``).
 
     Returns
     -------
@@ -194,12 +202,14 @@ def least_squares(
     return _fit(
         X, y, weights=weights, intercept=intercept, l2=l2, covariance=covariance, names=names,
         weight_type=weight_type, rank_deficient=rank_deficient, diagnostics=diagnostics,
+        data_precision=data_precision,
     )
 
 
 def _fit(
     X, y, *, weights=None, intercept=True, l2=0.0, covariance="classical", names=None,
     weight_type="case", rank_deficient="raise", diagnostics=False, method="auto", block_rows=None,
+    data_precision=None,
 ):
     """:func:`least_squares` with two switches for tests.
 
@@ -221,6 +231,7 @@ def _fit(
     setting = Setting(check_flag(intercept, "intercept"), lam, covariance, weight_type, diagnostics, w)
     names_t = check_names(names, p, found)
     target = target_name(y)
+    precision = checked_precision(data_precision, p)
 
     pos = None if w is None else w > 0
     n_pos = n if pos is None else int(pos.sum())
@@ -244,7 +255,8 @@ def _fit(
     units = Units(ey, ew, fit.col_exp, names_t, target)
     record = linear_record(fit, units, setting, W1, n_obs, residual_df(fit.rank))
     # after the record (which refuses figures beyond float64): the accuracy of a fit that stands
-    return with_accuracy(record, least_squares_accuracy(Xa, y1, w1, fit, units, setting.intercept, W1))
+    return with_accuracy(record, least_squares_accuracy(Xa, y1, w1, fit, units, setting.intercept, W1,
+                                                          precision))
 
 
 def _totals(n: int, w, w1, ew: int, setting: Setting, n_pos: int) -> tuple[float, float, float]:

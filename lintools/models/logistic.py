@@ -30,6 +30,7 @@ from typing import Any, Callable, Sequence
 import numpy as np
 
 from ..support.errors import InputError, LintoolsWarning, warn_caller
+from .accuracy import Precision, checked_precision
 from .glm_accuracy import binary_accuracy
 from .records import Convergence, LogisticFit, with_accuracy
 from .responses import binary_response, target_name
@@ -143,6 +144,7 @@ def logistic(
     positive: Any = None,
     profile: bool = False,
     profile_level: float = 0.95,
+    data_precision: Precision | None = None,
 ) -> LogisticFit:
     r"""Fit a logistic regression by (penalised) maximum likelihood, or Firth's method.
 
@@ -208,6 +210,12 @@ def logistic(
         ``profile_level``; stored in ``profile_intervals``.
     profile_level : float
         Coverage of the profile intervals (default 0.95).
+    data_precision : Precision, optional
+        The rounding of the data the record's ``accuracy.data_digits`` is stated at
+        (default: float64 input, relative rounding ``u = 2**-53`` of every entry): for data
+        read from a file, ``table.data_precision()`` of
+        ``read_table(..., written_decimals=True)`` (half a unit of each column's least
+        precise written decimal); or ``Precision.written([...])``. The labels are exact (``y_*`` are not used).
 
     Returns
     -------
@@ -240,6 +248,7 @@ def logistic(
     Xa, found = as_matrix(X, "X", check_finite=False)  # checked by the problem's first pass
     n, p = Xa.shape
     names_t = check_names(names, p, found)
+    precision = checked_precision(data_precision, p)
     w = as_weights(weights, n)
     offset_values = None if offset is None else as_offset(offset, n)
     yy, m, classes, positive_class = binary_response(y, trials, positive, n)
@@ -275,7 +284,7 @@ def logistic(
     family = BinaryFamily(Xa, loss, offset_values, names_t, intercept, lam, firth)
     solved = solve_family(family, problem, solver=solver, tol=tol, max_iter=max_iter, on_iteration=on_iteration)
     return _record(family, problem, solved, (tuple(classes), positive_class, target_name(y)), tol, max_iter,
-                   float(profile_level) if profile else None)
+                   float(profile_level) if profile else None, precision)
 
 
 def _null_model(family: BinaryFamily, problem: LinearModelProblem, tol: float, max_iter: int) -> tuple[float, float]:
@@ -300,7 +309,7 @@ def _profile(family: BinaryFamily, problem: LinearModelProblem, z: np.ndarray, s
 
 
 def _record(family: BinaryFamily, problem: LinearModelProblem, solved: Solved, labels: tuple[tuple, Any, Any],
-            tol: float, max_iter: int, level: float | None) -> LogisticFit:
+            tol: float, max_iter: int, level: float | None, precision: Precision | None = None) -> LogisticFit:
     """The :class:`LogisticFit` of a solved binary family; ``labels`` holds the classes, the
     positive class and the target's name; ``level`` the profile level (None: no profile)."""
     loss, V = family.loss, solved.covariance
@@ -322,7 +331,7 @@ def _record(family: BinaryFamily, problem: LinearModelProblem, solved: Solved, l
         grouped=bool(loss.grouped), has_offset=family.offset is not None, target=target,
     )
     return with_accuracy(record, binary_accuracy(problem, family.Xa, loss, family.offset, solved.z,
-                                                 solved.evaluation.gradient, V, family.terms()))
+                                                 solved.evaluation.gradient, V, family.terms(), precision))
 
 
 def logistic_record(problem: Any, z: np.ndarray, V: np.ndarray, convergence: Convergence, measured: Measured,
