@@ -55,8 +55,8 @@ def blocked_binary_accuracy(problem: Any, z: np.ndarray, names: tuple[str, ...],
                                problem.to_original(z)[:, None], terms)
         sm = problem.sample
         eta = linear_predictor(ans, sm["X"], None)[:, 0]
-        r, W = binary_derivatives(eta, sm["y"], _weights(sm, problem.weight_scale))
-        return likelihood_accuracy(ans, sm["X"], r, W, rows, how=HOW)
+        r, W, size = binary_derivatives(eta, sm["y"], _weights(sm, problem.weight_scale))
+        return likelihood_accuracy(ans, sm["X"], r, W, size, rows, how=HOW)
 
 
 def blocked_softmax_accuracy(problem: Any, z: np.ndarray, Vz: np.ndarray, classes: tuple, order: np.ndarray,
@@ -69,8 +69,8 @@ def blocked_softmax_accuracy(problem: Any, z: np.ndarray, Vz: np.ndarray, classe
         sm = problem.sample
         eta = linear_predictor(ans, sm["X"], None)
         icodes = np.argsort(order)[sm["y"].astype(np.intp)]  # sorted-class codes -> internal order
-        r, W = softmax_derivatives(eta, icodes, _weights(sm, problem.weight_scale), ref is not None)
-        return likelihood_accuracy(ans, sm["X"], r, W, rows, how=HOW)
+        r, W, size = softmax_derivatives(eta, icodes, _weights(sm, problem.weight_scale), ref is not None)
+        return likelihood_accuracy(ans, sm["X"], r, W, size, rows, how=HOW)
 
 
 def blocked_least_squares_accuracy(sample: dict, fit: PathAnswer, units: Units, intercept: bool, W1: float,

@@ -352,7 +352,7 @@ def _refine(run: Any, part: dict, sol: dict, lam1: np.ndarray, intercept: bool) 
         dtheta = np.r_[da - float(centre @ dbeta), dbeta][1 - off :]
         size = float(np.max(np.abs(dtheta) / np.maximum(np.abs(theta), np.finfo(float).tiny)))
         if size <= 4 * _EPS or steps == MAX_REFINE or size > 0.5 * last:
-            return beta, a, steps, res, sample, np.abs(np.r_[da, sol["s"] * dbeta][1 - off :])
+            return beta, a, steps, res, sample, np.r_[da, sol["s"] * dbeta][1 - off :]
         beta, a, last = beta + dbeta, a + da, size
         steps += 1
 

@@ -181,8 +181,9 @@ def sensitivity(Z: np.ndarray, gz: np.ndarray, r: np.ndarray, W: np.ndarray, B: 
                 errors: list[tuple[np.ndarray, np.ndarray | None]], scale: float = 1.0) -> list[np.ndarray]:
     r"""Variance of the first-order change of each column-scaled coefficient, for each
     ``(sig, tau_w)`` of ``errors``: independent errors of standard deviation ``sig`` (rows
-    by columns, in the units of ``Z``) in the design and ``tau_w = |psi_y| sd(dy)`` in the
-    response (None: none; one output only).
+    by columns, in the units of ``Z``) in the design and ``tau_w`` in each row's first
+    derivative ``r_i`` ((m,) or (m, K); ``|psi_y| sd(dy)`` for an error of the response;
+    None: none).
 
     ``Z``: rows of the centred, scaled design (no intercept column); ``gz``: the slopes in
     those coordinates, (p,) or (p, K) for K outputs; ``r``, ``W``: the first and second
@@ -212,8 +213,9 @@ def sensitivity(Z: np.ndarray, gz: np.ndarray, r: np.ndarray, W: np.ndarray, B: 
         for j in range(p):
             u = r @ Bl[:, off + j, :].T + np.matmul(BA, WG[:, :, j, None])[:, :, 0]
             var += s2[:, j] @ (u * u)
-        if tau_w is not None:
-            var += (tau_w * tau_w) @ (BA[:, :, 0] * BA[:, :, 0])
+        if tau_w is not None:  # an error of r_i (per output) moves the gradient by a_i times it
+            t2 = np.reshape(tau_w * tau_w, (m, K))
+            var += np.einsum("ipk,ik->p", BA * BA, t2)
         out.append(scale * var)
     return out
 

@@ -10,8 +10,10 @@ coordinates to ``z`` and ``w_s`` the problem's weight scale).
   solver's last evaluation formed there (near a non-degenerate optimum the distance to it
   is ``d`` to second order: Dennis & Schnabel 1996, sec. 5.2), plus the rounding floor of a
   gradient formed in float64 (:func:`lintools.models.accuracy.sensitivity` at relative
-  rounding ``u`` of the centred design, which is what the linear predictor sees) and the
-  rounding of the stored coefficients.
+  rounding ``u`` of the centred design, which is what the linear predictor sees, and
+  rounding ``u`` of each row's derivative ``r_i``, whose terms ``w_i m_i mu_i`` and
+  ``w_i y_i`` are formed in float64 whatever the size of eta) and the rounding of the
+  stored coefficients.
 * Data: the same sensitivity at relative rounding ``u`` of the entries of X as given; the
   labels (and trials) are exact.  ``r_i = w_i (m_i mu_i - y_i)`` and
   ``W_i = w_i m_i mu_i (1 - mu_i)`` on an evenly spaced subsample of the rows.  A Firth fit
@@ -101,14 +103,15 @@ def _binary_accuracy(problem: Any, Xa: np.ndarray, loss: Any, offset: np.ndarray
                            problem.to_original(z)[:, None], tuple(terms))
     idx = subsample(Xa.shape[0])
     eta = linear_predictor(ans, Xa[idx], None if offset is None else offset[idx])[:, 0]
-    r, W = binary_derivatives(eta, loss.y[idx], loss.weights[idx], loss.trials[idx])
-    return likelihood_accuracy(ans, Xa[idx], r, W, Xa.shape[0], precision)
+    r, W, size = binary_derivatives(eta, loss.y[idx], loss.weights[idx], loss.trials[idx])
+    return likelihood_accuracy(ans, Xa[idx], r, W, size, Xa.shape[0], precision)
 
 
-def binary_derivatives(eta: np.ndarray, y: np.ndarray, w: np.ndarray, m: Any = 1.0) -> tuple[np.ndarray, np.ndarray]:
-    """``r_i = w_i (m_i mu_i - y_i)`` and ``W_i = w_i m_i mu_i (1 - mu_i)`` at ``eta``."""
+def binary_derivatives(eta: np.ndarray, y: np.ndarray, w: np.ndarray, m: Any = 1.0) -> tuple:
+    """``r_i = w_i (m_i mu_i - y_i)``, ``W_i = w_i m_i mu_i (1 - mu_i)`` at ``eta`` and the
+    size of the terms of ``r_i``, ``w_i (m_i mu_i + y_i)``."""
     mu = sigmoid(eta)
-    return w * (m * mu - y), w * m * mu * (1.0 - mu)
+    return w * (m * mu - y), w * m * mu * (1.0 - mu), w * (m * mu + y)
 
 
 def linear_predictor(ans: LikelihoodAnswer, Xs: np.ndarray, offset: np.ndarray | None) -> np.ndarray:
@@ -122,11 +125,13 @@ def linear_predictor(ans: LikelihoodAnswer, Xs: np.ndarray, offset: np.ndarray |
     return eta
 
 
-def likelihood_accuracy(ans: LikelihoodAnswer, Xs: np.ndarray, r: np.ndarray, W: np.ndarray, rows: int,
-                        precision: Precision | None = None, how: str = "evenly spaced") -> Accuracy:
+def likelihood_accuracy(ans: LikelihoodAnswer, Xs: np.ndarray, r: np.ndarray, W: np.ndarray, r_size: np.ndarray,
+                        rows: int, precision: Precision | None = None, how: str = "evenly spaced") -> Accuracy:
     """The :class:`Accuracy` of a likelihood answer from a subsample ``Xs`` of the ``rows``
     rows (drawn as ``how`` says) with the derivatives ``r``, ``W`` of each row's loss in eta
-    there ((m,) each for one output, (m, K) and (m, K, K) for K)."""
+    there ((m,) each for one output, (m, K) and (m, K, K) for K) and ``r_size``, the sizes
+    of the terms of ``r`` (shaped as ``r``), whose rounding in float64 is part of the
+    solver's floor."""
     scale = rows / max(Xs.shape[0], 1)
     p = Xs.shape[1]
     intercept, off = ans.intercept, int(ans.intercept)
@@ -147,7 +152,8 @@ def likelihood_accuracy(ans: LikelihoodAnswer, Xs: np.ndarray, r: np.ndarray, W:
     else:
         sig = np.sqrt((prec.x_relative * Xs) ** 2 + prec.x_absolute ** 2) / (_ROOT3 * s)
     floor_var, data_var = sensitivity(Z, gz, r, W, T @ ans.Hinv, intercept,
-                                      [(np.abs(Z) * (UNIT / _ROOT3), None), (sig, None)], scale)
+                                      [(np.abs(Z) * (UNIT / _ROOT3), r_size * (UNIT / _ROOT3)), (sig, None)],
+                                      scale)
     step = ans.Hinv @ ans.gradient
     return accuracy_record(theta, ans.z, T, step, floor_var, FLOOR_FACTOR, data_var, to_caller, ans.terms,
                            prec.what, sample_note(Xs.shape[0], rows, how))

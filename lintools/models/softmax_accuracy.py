@@ -8,7 +8,8 @@ the symmetric form, the K - 1 other than the reference class otherwise), term-ma
 * Solver: the Newton step ``d = H_z^{-1} g_z`` at the answer (in the symmetric form through
   the subspace of intercepts summing to zero: ``H_z^{-1}`` is then ``E (E'HE)^{-1} E'``),
   mapped to the column-scaled coefficients, plus the float64 rounding floor of the
-  gradient and of the stored coefficients (Dennis & Schnabel 1996, sec. 5.2).
+  gradient (rounding ``u`` of the centred design and of each term of ``r_i``) and of the
+  stored coefficients (Dennis & Schnabel 1996, sec. 5.2).
 * Data: the first-order change of the optimum under relative rounding ``u`` of the entries
   of X (the labels are exact), with ``r_i = w_i (mu_i - e_{y_i})`` and ``W_i = w_i
   (diag(mu_i) - mu_i mu_i')`` over the free classes, on an evenly spaced subsample of the
@@ -57,7 +58,8 @@ def softmax_answer(problem: Any, z: np.ndarray, Hinv: np.ndarray, gradient: np.n
 
 def softmax_derivatives(eta: np.ndarray, icodes: np.ndarray, w: np.ndarray, reference: bool) -> tuple:
     """``r`` (m, K') and ``W`` (m, K', K') of the rows' losses at ``eta`` (m, K') over the free
-    classes (``icodes``: the internal class of each row, the reference first)."""
+    classes (``icodes``: the internal class of each row, the reference first), and the size
+    of the terms of ``r``, ``w_i (mu_i + e_{y_i})``."""
     m, Kf = eta.shape
     first = int(reference)
     E = np.hstack([np.zeros((m, 1)), eta]) if reference else eta
@@ -67,7 +69,7 @@ def softmax_derivatives(eta: np.ndarray, icodes: np.ndarray, w: np.ndarray, refe
     r = w[:, None] * (mu - Y[:, first:])
     W = -w[:, None, None] * (mu[:, :, None] * mu[:, None, :])
     W[:, np.arange(Kf), np.arange(Kf)] += w[:, None] * mu
-    return r, W
+    return r, W, w[:, None] * (mu + Y[:, first:])
 
 
 def softmax_accuracy(*args: Any, **kwargs: Any) -> Accuracy:
@@ -86,5 +88,5 @@ def _softmax_accuracy(problem: Any, Xa: np.ndarray, loss: Any, offset: np.ndarra
                          column_rms(problem.c, problem.spread))
     idx = subsample(Xa.shape[0])
     eta = linear_predictor(ans, Xa[idx], None if offset is None else offset[idx])
-    r, W = softmax_derivatives(eta, loss.codes[idx], loss.weights[idx], ref is not None)
-    return likelihood_accuracy(ans, Xa[idx], r, W, Xa.shape[0], precision)
+    r, W, size = softmax_derivatives(eta, loss.codes[idx], loss.weights[idx], ref is not None)
+    return likelihood_accuracy(ans, Xa[idx], r, W, size, Xa.shape[0], precision)
