@@ -56,11 +56,19 @@ def row_keys(X: np.ndarray, y: np.ndarray | None, w: np.ndarray | None) -> np.nd
     return _mix(h + (bits * factors).sum(axis=1, dtype=np.uint64))
 
 
+def _smallest(keys: np.ndarray) -> np.ndarray:
+    """The positions of the ``SAMPLE_ROWS`` smallest keys, in order of position (equal keys
+    are equal rows at the same position of their pieces: which of them is kept does not
+    change the sample)."""
+    if keys.size <= SAMPLE_ROWS:
+        return np.arange(keys.size)
+    return np.sort(np.argpartition(keys, SAMPLE_ROWS - 1)[:SAMPLE_ROWS])
+
+
 def row_sample(X: np.ndarray, y: np.ndarray | None, w: np.ndarray | None) -> dict:
     """The rows of ``(X, y, w)`` with the ``SAMPLE_ROWS`` smallest keys, with their keys."""
     keys = row_keys(X, y, w)
-    keep = np.argsort(keys, kind="stable")[:SAMPLE_ROWS]
-    keep.sort()
+    keep = _smallest(keys)
     return {"key": keys[keep], "X": np.array(X[keep], dtype=float),
             "y": None if y is None else np.array(y, dtype=float)[keep],
             "w": None if w is None else np.array(w, dtype=float)[keep]}
@@ -69,7 +77,7 @@ def row_sample(X: np.ndarray, y: np.ndarray | None, w: np.ndarray | None) -> dic
 def merge_samples(a: dict, b: dict) -> dict:
     """The sample of the union of the rows of two samples (``a``'s rows first)."""
     keys = np.concatenate([a["key"], b["key"]])
-    keep = np.sort(np.argsort(keys, kind="stable")[:SAMPLE_ROWS])
+    keep = _smallest(keys)
     out = {"key": keys[keep], "X": np.vstack([a["X"], b["X"]])[keep]}
     for name in ("y", "w"):
         out[name] = None if a[name] is None else np.concatenate([a[name], b[name]])[keep]

@@ -43,7 +43,10 @@ covariance is :math:`H^{-1}(A'\,\mathrm{diag}(q)\,A + D_r + C + C')H^{-1}` with
 ``(D_r)_jj = sum_i sigma_ij^2 r_i^2`` and the cross term
 ``C_jk = theta_j sum_i sigma_ij^2 r_i W_i a_ik``; its square-root diagonal is the
 expected change, reported per coefficient.  The sums are taken on at most
-``SUBSAMPLE_ROWS`` evenly spaced rows and scaled up, so the cost is ``O(m p^2)``.
+``SUBSAMPLE_ROWS`` evenly spaced rows and scaled up, so the cost is ``O(m p^2)`` (``O(m p^2
+K^2)`` for K outputs); the blocked fits take a uniform sample of as many rows during their
+first evaluation pass (:mod:`lintools.blocks.sample`).  The sentence says when the data term
+is estimated on a sample.
 
 References
 ----------
@@ -206,16 +209,21 @@ def sensitivity(Z: np.ndarray, gz: np.ndarray, r: np.ndarray, W: np.ndarray, B: 
     if intercept:
         BA += Bl[:, 0, :]
     WG = np.matmul(W, gz.T)  # (m, K, p): W_i gz_j
+    Bs = Bl[:, off:, :]
+    var = [np.zeros(P) for _ in errors]
+    step = max(1, (1 << 21) // max(P * p, 1))  # rows at a time: (rows, P, p) within 16 MB
+    for lo in range(0, m, step):
+        rows = slice(lo, lo + step)
+        U = np.matmul(BA[rows], WG[rows])  # (rows, P, p): BA_i W_i gz_j
+        U += np.tensordot(r[rows], Bs, axes=([1], [2]))  # + Bs_j r_i
+        U *= U
+        for v, (sig, _) in zip(var, errors):
+            v += np.einsum("ij,ipj->p", sig[rows] * sig[rows], U)
     out = []
-    for sig, tau_w in errors:
-        s2 = sig * sig
-        var = np.zeros(P)
-        for j in range(p):
-            u = r @ Bl[:, off + j, :].T + np.matmul(BA, WG[:, :, j, None])[:, :, 0]
-            var += s2[:, j] @ (u * u)
+    for v, (_, tau_w) in zip(var, errors):
         if tau_w is not None:  # an error of r_i (per output) moves the gradient by a_i times it
-            t2 = np.reshape(tau_w * tau_w, (m, K))
-            var += np.einsum("ipk,ik->p", BA * BA, t2)
+            v += np.einsum("ipk,ik->p", BA * BA, np.reshape(tau_w * tau_w, (m, K)))
+        var = v
         out.append(scale * var)
     return out
 
