@@ -205,27 +205,24 @@ def sensitivity(Z: np.ndarray, gz: np.ndarray, r: np.ndarray, W: np.ndarray, B: 
     K, off, P = r.shape[1], int(intercept), B.shape[0]
     gz = np.reshape(gz, (p, K))
     Bl = B.reshape(P, p + off, K)
-    BA = np.tensordot(Z, Bl[:, off:, :], axes=([1], [1]))  # (m, P, K): B a_i per output
-    if intercept:
-        BA += Bl[:, 0, :]
-    WG = np.matmul(W, gz.T)  # (m, K, p): W_i gz_j
     Bs = Bl[:, off:, :]
+    WG = np.matmul(W, gz.T)  # (m, K, p): W_i gz_j
     var = [np.zeros(P) for _ in errors]
-    step = max(1, (1 << 21) // max(P * p, 1))  # rows at a time: (rows, P, p) within 16 MB
+    step = max(1, (1 << 17) // max(P * (p + K), 1))  # rows at a time: (rows, P, p + K) within 1 MB
     for lo in range(0, m, step):
         rows = slice(lo, lo + step)
-        U = np.matmul(BA[rows], WG[rows])  # (rows, P, p): BA_i W_i gz_j
+        BA = np.tensordot(Z[rows], Bs, axes=([1], [1]))  # (rows, P, K): B a_i per output
+        if intercept:
+            BA += Bl[:, 0, :]
+        U = np.matmul(BA, WG[rows])  # (rows, P, p): BA_i W_i gz_j
         U += np.tensordot(r[rows], Bs, axes=([1], [2]))  # + Bs_j r_i
         U *= U
-        for v, (sig, _) in zip(var, errors):
+        BA *= BA
+        for v, (sig, tau_w) in zip(var, errors):
             v += np.einsum("ij,ipj->p", sig[rows] * sig[rows], U)
-    out = []
-    for v, (_, tau_w) in zip(var, errors):
-        if tau_w is not None:  # an error of r_i (per output) moves the gradient by a_i times it
-            v += np.einsum("ipk,ik->p", BA * BA, np.reshape(tau_w * tau_w, (m, K)))
-        var = v
-        out.append(scale * var)
-    return out
+            if tau_w is not None:  # an error of r_i (per output) moves the gradient by a_i times it
+                v += np.einsum("ipk,ik->p", BA, np.reshape(tau_w[rows] * tau_w[rows], (-1, K)))
+    return [scale * v for v in var]
 
 
 def sample_note(used: int, rows: int, how: str = "evenly spaced") -> str:
