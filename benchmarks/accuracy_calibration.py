@@ -48,23 +48,27 @@ def ls_case(rng: np.random.Generator, gram: bool = False) -> tuple[float, float,
     return fit.accuracy.solver_digits, truth, est_data, measured
 
 
-def glm_case(rng: np.random.Generator, K: int) -> tuple[float, float, float, float]:
+def glm_case(rng: np.random.Generator, K: int, top: float = 10.0, soft: bool = False) -> tuple[float, float, float, float]:
+    """One logistic (K = 1, not ``soft``) or softmax (K + 1 classes, class 0 the reference)
+    case with scaled condition 10**U(0, top)."""
+    soft = soft or K > 1
     n, p = int(rng.integers(30, 60)), int(rng.integers(1, 4))
-    X = problem(rng, n, p, rng.uniform(0, 10), logscale=2.0)
+    X = problem(rng, n, p, rng.uniform(0, top), logscale=2.0)
     eta = (X / np.std(X, axis=0)) @ rng.normal(scale=0.7, size=(p, K))
     eta = np.column_stack([np.zeros(n), eta])
     cls = np.argmax(eta + rng.gumbel(size=eta.shape), axis=1)
     if len(set(cls)) < K + 1:
-        return glm_case(rng, K)
+        return glm_case(rng, K, top, soft)
     w = np.ones(n)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         try:
-            fit = lt.logistic(X, cls) if K == 1 else lt.softmax(X, cls)
+            fit = lt.softmax(X, cls) if soft else lt.logistic(X, cls)
         except lt.LintoolsError:
-            return glm_case(rng, K)
-    got = np.concatenate([np.ravel(fit.intercept), np.ravel(fit.coefficients)]) if K == 1 else \
-        np.vstack([fit.intercept[None, :], fit.coefficients]).ravel()
+            return glm_case(rng, K, top, soft)
+    # the oracle's layout: term-major (index j K + k), intercept first, the reference class 0 left out
+    got = np.concatenate([np.ravel(fit.intercept), np.ravel(fit.coefficients)]) if not soft else \
+        np.vstack([fit.intercept[None, :], fit.coefficients])[:, 1:].ravel()
     exact = glm_optimum(X, cls, K, w, True)
     truth = glm_digits(got, exact, X, w, True, K)
     moved = glm_optimum(X, cls, K, w, True, rel=2.0**-53, rng=rng)
@@ -96,7 +100,8 @@ def main(argv: list[str] | None = None) -> int:
     if args.kind in ("logistic", "all"):
         summary("logistic", [glm_case(rng, 1) for _ in range(max(1, args.cases // 4))])
     if args.kind in ("softmax", "all"):
-        summary("softmax", [glm_case(rng, 2) for _ in range(max(1, args.cases // 8))])
+        # 2 to 4 classes, scaled condition 1 to 1e12
+        summary("softmax", [glm_case(rng, int(rng.integers(1, 4)), 12.0, True) for _ in range(max(1, args.cases // 8))])
     return 0
 
 

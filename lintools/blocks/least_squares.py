@@ -13,7 +13,7 @@ from ..models.lsq_coordinates import column_floor, ridge_column_norms, two_sum
 from ..models.lsq_qr import ILL_CONDITIONED, alias_sentences
 from ..models.lsq_scale import Units, column_exponents, exponent, to_caller
 from ..support.validate import check_flag, check_names, check_nonnegative, weight_scale
-from ..models.records import LinearFit
+from ..models.records import LinearFit, with_accuracy
 from ..models.least_squares import refuse_degenerate
 from ..models.lsq_record import PathAnswer, Setting, linear_record, residual_degrees
 from ..support.linalg import condition_number, default_rank_tolerance, inverse_upper, solve_lower, solve_upper
@@ -21,6 +21,8 @@ from ..support.threads import with_row_threads
 
 from .stream import _add, _merge_labels, _positive_rows
 from .runner import make_runner
+from .sample import Sampled
+from .accuracy import blocked_least_squares_accuracy
 
 
 #: Corrections of the least-squares answer (each one a pass) before it is accepted.
@@ -268,7 +270,7 @@ def least_squares_blocks(
     centre = c_hi[:p] + c_lo[:p]
 
     sol = _solve_factor(R, W, c_hi, part["lo"][:p], part["hi"][:p], lam1, intercept, names_t, part["n_rows"], units.ex)
-    beta, a, steps, res = _refine(run, part, sol, lam1, intercept)
+    beta, a, steps, res, sample, last = _refine(run, part, sol, lam1, intercept)
     rho, gx = float(res["rho"]), res["gx"].astype(float)
     rss = float(res["rss"])
     tss = float(R[:, p] @ R[:, p])  # about the mean with an intercept, about 0 without
@@ -288,10 +290,12 @@ def least_squares_blocks(
     fit = PathAnswer(
         beta=beta, b0=_intercept(part, a, beta) if intercept else 0.0, rank=p, s=sol["s"],
         xbar=centre if intercept else np.zeros(p), G=sol["G"], cond=sol["cond"], rss=rss, tss=tss, grad=grad,
-        lam1=lam1, col_exp=units.ex, iterations=1 + steps, solver="tsqr", message=message,
+        lam1=lam1, col_exp=units.ex, iterations=1 + steps, solver="tsqr", message=message, correction=last,
     )
     df = residual_degrees(n_obs, p + int(intercept), "case", part["n_pos"])
-    return linear_record(fit, units, Setting(intercept, lam), W, n_obs, df)
+    record = linear_record(fit, units, Setting(intercept, lam), W, n_obs, df)
+    return with_accuracy(record, blocked_least_squares_accuracy(sample, fit, units, intercept, W,
+                                                                int(part["n_rows"])))
 
 
 def _checked_totals(part: dict, p: int, lam: float, intercept: bool) -> tuple[float, np.ndarray]:
@@ -326,14 +330,20 @@ def _refine(run: Any, part: dict, sol: dict, lam1: np.ndarray, intercept: bool) 
     """Residual passes at the answer and corrections until the correction is at the rounding
     level (componentwise on ``(b, beta)``), stops shrinking, or ``MAX_REFINE`` were made.
 
-    Returns ``(beta, a, steps, sums)`` with ``sums`` those of the last pass, at the answer."""
+    Returns ``(beta, a, steps, sums, sample, correction)`` with ``sums`` those of the last
+    pass, at the answer, ``sample`` the rows the first pass sampled (:mod:`lintools.blocks.sample`)
+    and ``correction`` the last pass's correction, not applied, in the centred, scaled
+    coordinates (``(da, s * dbeta)``)."""
     W, ez, ew, c_hi, c_lo = part["W"], part["ez"], part["ew"], part["mean"], part["mean_lo"]
     p, off = c_hi.shape[0] - 1, int(intercept)
     centre = c_hi[:p] + c_lo[:p]
     beta, a = sol["beta"], 0.0
     steps, last = 0, math.inf
+    sample = None
     while True:
-        res = run.reduce(_ls_residual_kernel, _add, (ez, ew, c_hi, c_lo, a, beta), pieces=True)
+        kernel = _ls_residual_kernel if sample is not None else Sampled(_ls_residual_kernel)
+        res = run.reduce(kernel, _add, (ez, ew, c_hi, c_lo, a, beta), pieces=True)
+        sample = res.pop("sample", sample)
         rho, gx = float(res["rho"]), res["gx"].astype(float)
         dbeta = sol["solve"](gx - lam1 * beta)
         da = rho / W if intercept else 0.0
@@ -342,7 +352,7 @@ def _refine(run: Any, part: dict, sol: dict, lam1: np.ndarray, intercept: bool) 
         dtheta = np.r_[da - float(centre @ dbeta), dbeta][1 - off :]
         size = float(np.max(np.abs(dtheta) / np.maximum(np.abs(theta), np.finfo(float).tiny)))
         if size <= 4 * _EPS or steps == MAX_REFINE or size > 0.5 * last:
-            return beta, a, steps, res
+            return beta, a, steps, res, sample, np.r_[da, sol["s"] * dbeta][1 - off :]
         beta, a, last = beta + dbeta, a + da, size
         steps += 1
 

@@ -8,7 +8,7 @@ from typing import Any, Callable, Sequence
 import numpy as np
 
 from ..support.errors import InputError
-from ..models.records import LogisticFit
+from ..models.records import LogisticFit, with_accuracy
 from ..support.scaling import check_l2_scale, scaled_back
 from ..support.validate import check_names
 from ..support.threads import with_row_threads
@@ -20,6 +20,7 @@ from ..engine import Evaluation, IterationRecord
 
 from .stream import _check_two
 from .runner import make_runner
+from .accuracy import blocked_binary_accuracy
 from .least_squares import _ls_factor_kernel, _ls_merge, in_caller_units
 from .passes import _PassProblem, answer, centred_block, centres_and_scales, solve_passes, weights_scale
 
@@ -231,7 +232,8 @@ def logistic_blocks(
         on_iteration=on_iteration, remedies="Remedies: l2 > 0 (a ridge penalty on the slopes), or Firth's method "
         "in memory (lintools.logistic(..., firth=True))",
     )
-    return _logistic_record(problem, res, V, W, seen, classes, lam, intercept, names_t, run.passes)
+    record = _logistic_record(problem, res, V, W, seen, classes, lam, intercept, names_t, run.passes)
+    return with_accuracy(record, blocked_binary_accuracy(problem, res.z, names_t, int(part["n_rows"])))
 
 
 class _Coded:

@@ -22,6 +22,7 @@ from ..engine import Evaluation, SingularMatrixError
 from ..engine.newton import newton
 
 from .stream import _add
+from .sample import Sampled
 
 
 def weights_scale(part: dict) -> float:
@@ -67,6 +68,8 @@ class _PassProblem:
         self.size = self.p1 * K
         self.a_start = a_start
         self.cache: dict[bytes, tuple] = {}
+        #: a sample of the rows (:mod:`lintools.blocks.sample`), taken by the first pass
+        self.sample: dict | None = None
 
     # ---- coordinates ----------------------------------------------------------------
     def coefficients(self, z: np.ndarray) -> tuple[Any, np.ndarray]:
@@ -99,8 +102,11 @@ class _PassProblem:
     def _pass(self, z: np.ndarray, step: tuple | None = None) -> dict:
         a, beta = self.centred(z)
         c = self.c if self.intercept else np.zeros(self.p)
-        return self.run.reduce(type(self).kernel, _add, (a, beta, c, 1.0 / self.s, step, self.weight_scale),
-                               pieces=True)
+        kernel = type(self).kernel if self.sample is not None else Sampled(type(self).kernel)
+        part = self.run.reduce(kernel, _add, (a, beta, c, 1.0 / self.s, step, self.weight_scale), pieces=True)
+        if "sample" in part:
+            self.sample = part.pop("sample")
+        return part
 
     def evaluate(self, z: np.ndarray) -> Evaluation:
         hit = self.cache.get(z.tobytes())

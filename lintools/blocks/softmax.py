@@ -10,6 +10,7 @@ import numpy as np
 from ..support.errors import InputError
 from ..engine.multinomial import MultinomialLoss
 from ..models.softmax_record import SoftmaxFit
+from ..models.records import with_accuracy
 from ..support.scaling import check_l2_scale
 from ..support.validate import check_names
 from ..support.threads import with_row_threads
@@ -31,6 +32,7 @@ from ..engine import AffineProblem, Evaluation, IterationRecord
 
 from .stream import COLLECT_ALL, ClassIndex, _merge_labels
 from .runner import make_runner
+from .accuracy import blocked_softmax_accuracy
 from .logistic import _design_kernel as _binary_design_kernel, merge_design
 from .least_squares import in_caller_units
 from .passes import _PassProblem, answer, centred_block, centres_and_scales, solve_passes, weights_scale
@@ -290,8 +292,10 @@ def softmax_blocks(
         exact="a linear programme", remedies=SEPARATION_REMEDY, lam=lam, tol=tol, max_iter=max_iter,
         on_iteration=on_iteration, target=target, start=start,
     )
-    return _softmax_record(problem, res, z, Vz, order, ref, classes, totals, part["W"], lam, intercept,
-                           names_t, run.passes)
+    record = _softmax_record(problem, res, z, Vz, order, ref, classes, totals, part["W"], lam, intercept,
+                             names_t, run.passes)
+    return with_accuracy(record, blocked_softmax_accuracy(problem, z, Vz, classes, order, ref, names_t,
+                                                          int(part["n_rows"])))
 
 
 def _softmax_record(problem: _SoftmaxBlockProblem, res: Any, z: np.ndarray, Vz: np.ndarray, order: np.ndarray,

@@ -20,6 +20,7 @@ from ..support.errors import InputError
 from ..support.threads import for_rows
 from ..support.validate import as_matrix, as_vector, check_finite
 from ..models.responses import read_labels
+from .sample import merge_samples
 
 
 # ---------------------------------------------------------------------------------------
@@ -512,13 +513,16 @@ def _merge_labels(a: dict, b: dict, keep: int | None = 3) -> dict:
     return _earliest(out, keep)
 
 def _add(a: dict, b: dict) -> dict:
-    """Sum of two partial results (maxima for ``top``, logical and for ``finite``)."""
+    """Sum of two partial results (maxima for ``top``, logical and for ``finite``, the
+    sample of the union for ``sample``: :mod:`lintools.blocks.sample`)."""
     if "finite" in a and not (a["finite"] and b["finite"]):
         return {"finite": False, "change": math.inf}  # a linear predictor overflowed
     out = {}
     for key, value in a.items():
         if key == "top":
             out[key] = max(value, b[key])
+        elif key == "sample":
+            out[key] = merge_samples(value, b[key])
         elif key == "finite":
             out[key] = value and b[key]
         else:

@@ -43,7 +43,10 @@ covariance is :math:`H^{-1}(A'\,\mathrm{diag}(q)\,A + D_r + C + C')H^{-1}` with
 ``(D_r)_jj = sum_i sigma_ij^2 r_i^2`` and the cross term
 ``C_jk = theta_j sum_i sigma_ij^2 r_i W_i a_ik``; its square-root diagonal is the
 expected change, reported per coefficient.  The sums are taken on at most
-``SUBSAMPLE_ROWS`` evenly spaced rows and scaled up, so the cost is ``O(m p^2)``.
+``SUBSAMPLE_ROWS`` evenly spaced rows and scaled up, so the cost is ``O(m p^2)`` (``O(m p^2
+K^2)`` for K outputs); the blocked fits take a uniform sample of as many rows during their
+first evaluation pass (:mod:`lintools.blocks.sample`).  The sentence says when the data term
+is estimated on a sample.
 
 References
 ----------
@@ -68,7 +71,7 @@ from ..support.text import intercept_label
 from ..support.validate import INTERCEPT_NAME, ReadOnlyArrays
 
 __all__ = ["Accuracy", "NEAR_ZERO", "SUBSAMPLE_ROWS", "UNIT", "Precision", "column_scaled", "digits_of",
-           "sensitivity", "accuracy_record", "subsample", "checked_precision", "half_unit"]
+           "sensitivity", "accuracy_record", "subsample", "sample_note", "checked_precision", "half_unit"]
 
 #: Unit roundoff of float64.
 UNIT = 2.0**-53
@@ -241,41 +244,57 @@ def digits_of(err: np.ndarray, theta: np.ndarray) -> tuple[np.ndarray, np.ndarra
 
 def sensitivity(Z: np.ndarray, gz: np.ndarray, r: np.ndarray, W: np.ndarray, B: np.ndarray, intercept: bool,
                 errors: list[tuple[np.ndarray, np.ndarray | None]], scale: float = 1.0) -> list[np.ndarray]:
-    r"""Variance of the first-order change of each column-scaled coefficient (one output),
-    for each ``(sig, tau_w)`` of ``errors``: independent errors of standard deviation
-    ``sig`` (rows by columns, in the units of ``Z``) in the design and
-    ``tau_w = |psi_y| sd(dy)`` in the response (None: none).
+    r"""Variance of the first-order change of each column-scaled coefficient, for each
+    ``(sig, tau_w)`` of ``errors``: independent errors of standard deviation ``sig`` (rows
+    by columns, in the units of ``Z``) in the design and ``tau_w`` in each row's first
+    derivative ``r_i`` ((m,) or (m, K); ``|psi_y| sd(dy)`` for an error of the response;
+    None: none).
 
     ``Z``: rows of the centred, scaled design (no intercept column); ``gz``: the slopes in
-    those coordinates; ``r``, ``W``: the first and second derivative of each row's loss in
-    eta; ``B = T H_z^{-1}``: the inverse information in ``z`` (intercept first) followed by
-    the map to column-scaled coordinates; ``scale``: the factor from the rows given to all
-    rows.  The change is ``B g`` with ``g = sum_ij dX_ij (r_i e_j + W_i gz_j a_i) + sum_i
-    psi_y dy_i a_i``; its variance is summed as squares of the row terms (never through
-    ``H^{-1} Cov(g) H^{-1}``, which cancels catastrophically when ``H`` is ill-conditioned)."""
-    off = int(intercept)
-    Bs = B[:, off:]  # B e_j for the slopes
-    BA = Z @ Bs.T  # rows: B a_i
-    if intercept:
-        BA += B[:, 0]
-    BA2 = BA * BA
-    rW = r * W
-    out = []
-    for sig, tau_w in errors:
-        s2 = sig * sig
-        q = W * W * (s2 @ (gz * gz))
-        if tau_w is not None:
-            q = q + tau_w * tau_w
-        own = (Bs * Bs) @ (s2.T @ (r * r))
-        through = BA2.T @ q
-        P = s2 @ (gz[:, None] * Bs.T)  # (m, p1): sum_j s2_ij gz_j B_kj
-        cross = 2.0 * ((BA * P).T @ rW)
-        out.append(scale * np.clip(own + through + cross, 0.0, None))
-    return out
+    those coordinates, (p,) or (p, K) for K outputs; ``r``, ``W``: the first and second
+    derivative of each row's loss in eta, (m,) and (m,) or (m, K) and (m, K, K); ``B = T
+    H_z^{-1}``: the inverse information in ``z`` (term-major, intercepts first, ``index = j
+    K + k``) followed by any linear map to the reported coordinates; ``scale``: the factor
+    from the rows given to all rows.  An error ``dX_ij`` moves the gradient by
+    ``dX_ij (e_j r_i' + a_i (W_i gz_j)')`` and the coefficients by ``B`` times it, so the
+    variance is ``sum_ij sig_ij^2 (Bs_j r_i + BA_i W_i gz_j)^2`` (``Bs_j`` the columns of
+    ``B`` of term j, ``BA_i = sum_l a_il B_l``), summed as squares of these row terms (never
+    through ``H^{-1} Cov(g) H^{-1}``, which cancels catastrophically when ``H`` is
+    ill-conditioned)."""
+    m, p = Z.shape
+    if np.ndim(r) == 1:
+        r, W = r[:, None], W[:, None, None]
+    K, off, P = r.shape[1], int(intercept), B.shape[0]
+    gz = np.reshape(gz, (p, K))
+    Bl = B.reshape(P, p + off, K)
+    Bs = Bl[:, off:, :]
+    WG = np.matmul(W, gz.T)  # (m, K, p): W_i gz_j
+    var = [np.zeros(P) for _ in errors]
+    step = max(1, (1 << 17) // max(P * (p + K), 1))  # rows at a time: (rows, P, p + K) within 1 MB
+    for lo in range(0, m, step):
+        rows = slice(lo, lo + step)
+        BA = np.tensordot(Z[rows], Bs, axes=([1], [1]))  # (rows, P, K): B a_i per output
+        if intercept:
+            BA += Bl[:, 0, :]
+        U = np.matmul(BA, WG[rows])  # (rows, P, p): BA_i W_i gz_j
+        U += np.tensordot(r[rows], Bs, axes=([1], [2]))  # + Bs_j r_i
+        U *= U
+        BA *= BA
+        for v, (sig, tau_w) in zip(var, errors):
+            v += np.einsum("ij,ipj->p", sig[rows] * sig[rows], U)
+            if tau_w is not None:  # an error of r_i (per output) moves the gradient by a_i times it
+                v += np.einsum("ipk,ik->p", BA, np.reshape(tau_w[rows] * tau_w[rows], (-1, K)))
+    return [scale * v for v in var]
+
+
+def sample_note(used: int, rows: int, how: str = "evenly spaced") -> str:
+    """What the sentence says of a data term estimated on ``used`` of ``rows`` rows ("" when all)."""
+    return "" if used >= rows else f"; the data term is estimated on {used} of the {rows} rows ({how})"
 
 
 def accuracy_record(theta: np.ndarray, z: np.ndarray, T: np.ndarray, step_z: np.ndarray, floor_var: np.ndarray, floor: float,
-                    data_var: np.ndarray, to_caller: np.ndarray, terms: tuple[str, ...], precision: str) -> Accuracy:
+                    data_var: np.ndarray, to_caller: np.ndarray, terms: tuple[str, ...], precision: str,
+                    note: str = "") -> Accuracy:
     """The :class:`Accuracy` of a fit.
 
     ``theta``, ``z``: the coefficients in column-scaled and in the solver's coordinates
@@ -283,7 +302,8 @@ def accuracy_record(theta: np.ndarray, z: np.ndarray, T: np.ndarray, step_z: np.
     ``step_z``: the correction at the answer in ``z``; ``floor_var``: the variances at
     relative rounding ``u`` (:func:`sensitivity`), times ``floor**2`` for the solver's
     floor; ``data_var``: the variances at the data's precision; ``to_caller``: per term,
-    the factor from column-scaled coordinates to the caller's units."""
+    the factor from column-scaled coordinates to the caller's units; ``note`` ends the
+    sentence (:func:`sample_note`)."""
     solver_err = np.abs(T @ step_z) + floor * np.sqrt(floor_var) + UNIT * (np.abs(T) @ np.abs(z))
     data_err = np.sqrt(data_var)
     sd_, s_near = digits_of(solver_err, theta)
@@ -295,7 +315,7 @@ def accuracy_record(theta: np.ndarray, z: np.ndarray, T: np.ndarray, step_z: np.
     s_rel, d_rel = rel[int(s_near[js])], rel[int(d_near[jd])]
     sentence = (f"Accuracy: about {sd_[js]:.1f} digits agree with the exact optimum of these data (worst: "
                 f"{shown[js]}, relative to {s_rel}); the data determine about {dd_[jd]:.1f} digits at their "
-                f"precision, {precision} (worst: {shown[jd]}, relative to {d_rel})")
+                f"precision, {precision} (worst: {shown[jd]}, relative to {d_rel}){note}")
     return Accuracy(
         solver_digits=float(round(sd_[js], 2)), data_digits=float(round(dd_[jd], 2)),
         solver_worst=shown[js], data_worst=shown[jd], solver_relative_to=s_rel, data_relative_to=d_rel,

@@ -9,7 +9,8 @@ Gram matrix, ridge included).
 * Solver: the path's remaining correction at the answer (the Gram path: the last
   correction of its certificate pass, not applied; the QR path: the last refinement
   correction times the contraction ``8 u kappa``), the rounding floor of a residual
-  formed in float64 (Gram path) or in extended precision (QR path: ``u_ext / u`` of it),
+  formed in float64 (Gram path) or in extended precision (QR path, and TSQR over blocks:
+  ``u_ext / u`` of it; TSQR's correction is the last one its residual pass computed, not applied),
   and the rounding of the stored coefficients (Higham 2002, secs. 20.1, 20.5: a backward
   stable solution is as accurate as the data perturbed by ``u``).
 * Data: :func:`lintools.models.accuracy.sensitivity` with ``W_i = w_i``, ``r_i = -w_i e_i``
@@ -29,7 +30,8 @@ from typing import Any
 
 import numpy as np
 
-from .accuracy import FLOOR_FACTOR, UNIT, Accuracy, Precision, accuracy_record, column_scaled, sensitivity, subsample
+from .accuracy import (FLOOR_FACTOR, UNIT, Accuracy, Precision, accuracy_record, column_scaled, sample_note,
+                       sensitivity, subsample)
 from .lsq_record import PathAnswer
 from .lsq_scale import Units
 from ..support.validate import INTERCEPT_NAME
@@ -49,13 +51,17 @@ def least_squares_accuracy(*args: Any, **kwargs: Any) -> Accuracy:
 
 
 def _least_squares_accuracy(Xa: np.ndarray, y1: np.ndarray, w1: np.ndarray | None, fit: PathAnswer, units: Units,
-                           intercept: bool, W1: float, precision: Precision | None = None) -> Accuracy:
+                           intercept: bool, W1: float, precision: Precision | None = None,
+                           sample: tuple[int, str] | None = None) -> Accuracy:
     """The accuracy of a path's answer ``fit`` on the caller's ``Xa`` and the unit ``y1``, ``w1``.
 
-    ``precision``: the rounding of the data (default: float64 input)."""
+    ``precision``: the rounding of the data (default: float64 input); ``sample``: when the
+    rows given are already a sample, the number of all rows and how the sample was drawn
+    (default: all rows are given, and evenly spaced ones are used)."""
     n, p = Xa.shape
     prec = Precision.float64(p) if precision is None else precision
     idx = subsample(n)
+    rows, how = (n, "evenly spaced") if sample is None else sample
     ex = fit.col_exp
     Xs = np.ldexp(Xa[idx], -ex)
     ys = y1[idx]
@@ -69,7 +75,7 @@ def _least_squares_accuracy(Xa: np.ndarray, y1: np.ndarray, w1: np.ndarray | Non
         Hinv[0, 0] = 1.0 / W1
     Hinv[off:, off:] = fit.G
     gz = s * beta
-    scale = n / idx.size
+    scale = rows / idx.size
     rho = np.sqrt(s * s / W1 + xbar * xbar)
     T = column_scaled(xbar, s, rho, intercept)
     B = T @ Hinv
@@ -86,9 +92,10 @@ def _least_squares_accuracy(Xa: np.ndarray, y1: np.ndarray, w1: np.ndarray | Non
         (np.abs(Z) * (UNIT / _ROOT3), ws * np.abs(ys - ybar) * (UNIT / _ROOT3)), (sig, tau)], scale)
     theta = np.concatenate([[fit.b0] if intercept else [], rho * beta])
     step = np.zeros(p + off) if fit.correction is None else fit.correction
-    floor = FLOOR_FACTOR * (EXTENDED_UNIT / UNIT if fit.solver == "qr" else 1.0)
+    floor = FLOOR_FACTOR * (EXTENDED_UNIT / UNIT if fit.solver in ("qr", "tsqr") else 1.0)
     exps = units.theta(intercept)
     to_caller = np.ldexp(np.concatenate([[1.0] if intercept else [], 1.0 / rho]), exps)
     terms = ((INTERCEPT_NAME,) if intercept else ()) + tuple(units.names)
     z = np.concatenate([[fit.b0 + float(xbar @ beta)] if intercept else [], gz])
-    return accuracy_record(theta, z, T, step, floor_var, floor, data_var, to_caller, terms, prec.what)
+    return accuracy_record(theta, z, T, step, floor_var, floor, data_var, to_caller, terms, prec.what,
+                           sample_note(idx.size, rows, how))

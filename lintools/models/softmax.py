@@ -30,7 +30,8 @@ import numpy as np
 
 from ..support.errors import InputError
 from ..engine.multinomial import ROWS, MultinomialLoss
-from .records import Convergence
+from .records import Convergence, with_accuracy
+from .softmax_accuracy import softmax_accuracy
 from .softmax_record import SoftmaxFit
 from .responses import read_labels, target_name
 from ..support.scaling import caller_covariance, check_l2_scale, scaled_back, scaled_case_weights
@@ -338,9 +339,12 @@ def _record(family: SoftmaxFamily, problem: LinearModelProblem, solved: Solved, 
     null_dev = scaled_back(_null_deviance(loss, problem.n, family.offset, family.intercept, tol, max_iter),
                            problem.weight_scale, "null deviance")
     measured = Measured(loglik, dev, n_obs, null_dev, null_dev - dev if family.lam == 0 else float("nan"))
-    return softmax_record(problem, solved.z, solved.covariance, solved.convergence, measured, classes=family.classes,
-                          order=family.order, ref=ref, names=family.names, lam=family.lam, has_offset=has_offset,
-                          target=target)
+    record = softmax_record(problem, solved.z, solved.covariance, solved.convergence, measured,
+                            classes=family.classes, order=family.order, ref=ref, names=family.names, lam=family.lam,
+                            has_offset=has_offset, target=target)
+    return with_accuracy(record, softmax_accuracy(problem, family.Xa, loss, family.offset, solved.z,
+                                                  solved.evaluation.gradient, solved.covariance, family.classes,
+                                                  family.order, ref, family.names))
 
 
 def softmax_record(problem: Any, z: np.ndarray, Vz: np.ndarray, convergence: Convergence, measured: Measured, *,
