@@ -20,7 +20,7 @@ import numpy as np
 import pytest
 
 from _accuracy_oracle import digits, exact_ls, fractions, glm_optimum, scale_vector
-from lintools import InputError, Precision, least_squares, logistic, read_table
+from lintools import InputError, Precision, least_squares, logistic, read_table, softmax
 
 DECIMALS = (2, 1)  # of the two feature columns; the response of least squares gets 1
 
@@ -94,6 +94,38 @@ def test_logistic_data_digits_match_the_change_of_the_mpmath_optimum_at_the_writ
     measured = digits(rms * sv, np.array([float(e) for e in exact]) * sv)
     assert abs(fit.accuracy.data_digits - measured) <= 1.5, (fit.accuracy.data_digits, measured)
     assert fit.accuracy.data_digits < 5
+
+
+def test_softmax_data_digits_match_the_change_of_the_mpmath_optimum_at_the_written_decimals(tmp_path):
+    # oracle: the softmax optimum (reference class first) by Newton in mpmath at 50 digits on
+    # Monte Carlo copies of the written data, every cell moved within half a unit of its decimal
+    rng = np.random.default_rng(11)
+    n = 90
+    X = rng.normal(size=(n, 2)) * [1.0, 2.0]
+    eta = np.column_stack([np.zeros(n), 0.2 + X @ [1.0, -0.5], -0.3 + X @ [-0.7, 0.4]])
+    P = np.exp(eta - eta.max(axis=1, keepdims=True))
+    P /= P.sum(axis=1, keepdims=True)
+    y = np.array([rng.choice(3, p=row) for row in P])
+    path = tmp_path / "s.csv"
+    _write(path, X, y, str)
+    t = read_table(path, target="y", categorical=["y"], written_decimals=True)
+    labels = np.array(t.target)
+    fit = softmax(t.X, labels, names=t.names, data_precision=t.data_precision())
+    at_float64 = softmax(t.X, labels, names=t.names)
+    codes = np.searchsorted(np.array(fit.classes), labels).tolist()
+    w = np.ones(n)
+    exact = glm_optimum(t.X, codes, 2, w, True)
+    changes = []
+    for _ in range(6):
+        h = 0.5 * 10.0 ** -np.array(DECIMALS)
+        moved = glm_optimum(t.X + h * rng.uniform(-1, 1, size=t.X.shape), codes, 2, w, True)
+        changes.append([float(a - b) for a, b in zip(moved, exact)])
+    rms = np.sqrt(np.mean(np.square(changes), axis=0))
+    sv = scale_vector(t.X, w, True, 2)
+    measured = digits(rms * sv, np.array([float(e) for e in exact]) * sv)
+    assert abs(fit.accuracy.data_digits - measured) <= 1.5, (fit.accuracy.data_digits, measured)
+    assert fit.accuracy.data_digits < at_float64.accuracy.data_digits - 8
+    assert "one decimal" not in fit.accuracy.precision and fit.accuracy.precision
 
 
 def test_command_line_fit_states_the_written_decimals_and_matches_the_python_path(tmp_path):

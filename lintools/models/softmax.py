@@ -30,6 +30,7 @@ import numpy as np
 
 from ..support.errors import InputError
 from ..engine.multinomial import ROWS, MultinomialLoss
+from .accuracy import Precision, checked_precision
 from .records import Convergence, with_accuracy
 from .softmax_accuracy import softmax_accuracy
 from .softmax_record import SoftmaxFit
@@ -145,6 +146,7 @@ class SoftmaxFamily:
         self.intercept, self.lam, self.classes, self.order = intercept, lam, classes, order
         self.size = Xa.size * len(classes)
         self.watch = SoftmaxWatch(loss, offset) if lam == 0 else None
+        self.precision: Precision | None = None  # the data's rounding for the accuracy record
 
     def exact_check(self) -> Any:
         return _exact_check(self.Xa, self.order[self.loss.codes], self.classes, self.loss.weights, self.intercept,
@@ -185,6 +187,7 @@ def softmax(
     max_iter: int = 100,
     names: Sequence[str] | None = None,
     on_iteration: Callable[[IterationRecord], Any] | None = None,
+    data_precision: Precision | None = None,
 ) -> SoftmaxFit:
     r"""Fit a softmax (multinomial logistic) regression by (penalised) maximum likelihood.
 
@@ -227,6 +230,12 @@ def softmax(
         Coefficient names (default: DataFrame column labels, else x1..xp).
     on_iteration : callable, optional
         Called with an :class:`lintools.engine.IterationRecord` after each iteration.
+    data_precision : Precision, optional
+        The rounding of the data the record's ``accuracy.data_digits`` is stated at
+        (default: float64 input, relative rounding ``u = 2**-53`` of every entry): for data
+        read from a file, ``table.data_precision()`` of
+        ``read_table(..., written_decimals=True)``; or ``Precision.written([...])``.  The
+        labels are exact.
 
     Returns
     -------
@@ -248,6 +257,7 @@ def softmax(
     Xa, found = as_matrix(X, "X", check_finite=False)  # checked by the problem's first pass
     n, p = Xa.shape
     names_t = check_names(names, p, found)
+    precision = checked_precision(data_precision, p)
     w = as_weights(weights, n)
     classes, codes = read_labels(y, n)
     K = len(classes)
@@ -290,6 +300,7 @@ def softmax(
         target = AffineProblem(problem, np.zeros(problem.size), E)
         start = E.T @ problem.start()
     family = SoftmaxFamily(Xa, loss, off, names_t, intercept, lam, tuple(classes), order)
+    family.precision = precision
     solved = solve_family(family, problem, solver=solver, tol=tol, max_iter=max_iter, on_iteration=on_iteration,
                           target=target, start=start)
     return _record(family, problem, solved, ref, off_full is not None, tol, max_iter, target_name(y))
@@ -344,7 +355,7 @@ def _record(family: SoftmaxFamily, problem: LinearModelProblem, solved: Solved, 
                             has_offset=has_offset, target=target)
     return with_accuracy(record, softmax_accuracy(problem, family.Xa, loss, family.offset, solved.z,
                                                   solved.evaluation.gradient, solved.covariance, family.classes,
-                                                  family.order, ref, family.names))
+                                                  family.order, ref, family.names, family.precision))
 
 
 def softmax_record(problem: Any, z: np.ndarray, Vz: np.ndarray, convergence: Convergence, measured: Measured, *,
