@@ -32,7 +32,7 @@ import math
 
 import numpy as np
 
-from ..support.threads import PassBuffers, add_up, for_rows, scratch
+from ..support.threads import add_up, for_rows, scratch
 from ..support.linalg import transposed_block
 
 __all__ = ["column_moments", "weighted_gram", "uncentred_ok", "UNCENTRED_LIMIT"]
@@ -64,10 +64,10 @@ def column_moments(X: np.ndarray, v: np.ndarray, rows: int, centre: bool) -> tup
     """
     n, p = X.shape
     total = float(v.sum())
-    buffers = PassBuffers(lambda: np.empty((min(rows, n), p)))  # a one-off pass: nothing kept
 
     def part(lo: int, hi: int) -> tuple[np.ndarray, np.ndarray]:
-        D = buffers.get()[: hi - lo]
+        # the thread's Gram buffer (same shape as weighted_gram's): kept, so no fresh pages per fit
+        D = scratch("gram", (hi - lo, p))
         with np.errstate(over="ignore", invalid="ignore"):
             np.multiply(X[lo:hi], X[lo:hi], out=D)
             return transposed_block(v[lo:hi], X[lo:hi]), transposed_block(v[lo:hi], D)

@@ -190,24 +190,30 @@ def sensitivity(Z: np.ndarray, gz: np.ndarray, r: np.ndarray, W: np.ndarray, B: 
     the map to column-scaled coordinates; ``scale``: the factor from the rows given to all
     rows.  The change is ``B g`` with ``g = sum_ij dX_ij (r_i e_j + W_i gz_j a_i) + sum_i
     psi_y dy_i a_i``; its variance is summed as squares of the row terms (never through
-    ``H^{-1} Cov(g) H^{-1}``, which cancels catastrophically when ``H`` is ill-conditioned)."""
+    ``H^{-1} Cov(g) H^{-1}``, which cancels catastrophically when ``H`` is ill-conditioned).
+
+    Each ``sig`` is squared in place (the callers pass temporaries made for this call)."""
     off = int(intercept)
     Bs = B[:, off:]  # B e_j for the slopes
     BA = Z @ Bs.T  # rows: B a_i
     if intercept:
         BA += B[:, 0]
     BA2 = BA * BA
-    rW = r * W
+    rW, rr, WW = r * W, r * r, W * W
+    g2, gB = gz * gz, gz[:, None] * Bs.T
+    own_factor = Bs * Bs
     out = []
-    for sig, tau_w in errors:
-        s2 = sig * sig
-        q = W * W * (s2 @ (gz * gz))
+    P = np.empty(BA.shape)
+    for sig, tau_w in errors:  # in place: few large arrays alive at once (each is fresh memory to touch)
+        s2 = np.square(sig, out=sig)
+        q = WW * (s2 @ g2)
         if tau_w is not None:
             q = q + tau_w * tau_w
-        own = (Bs * Bs) @ (s2.T @ (r * r))
+        own = own_factor @ (s2.T @ rr)
         through = BA2.T @ q
-        P = s2 @ (gz[:, None] * Bs.T)  # (m, p1): sum_j s2_ij gz_j B_kj
-        cross = 2.0 * ((BA * P).T @ rW)
+        np.matmul(s2, gB, out=P)  # (m, p1): sum_j s2_ij gz_j B_kj
+        P *= BA
+        cross = 2.0 * (P.T @ rW)
         out.append(scale * np.clip(own + through + cross, 0.0, None))
     return out
 

@@ -74,17 +74,21 @@ def _binary_accuracy(problem: Any, Xa: np.ndarray, loss: Any, offset: np.ndarray
     w, m, y = loss.weights[idx], loss.trials[idx], loss.y[idx]
     r = w * (m * mu - y)
     W = w * m * mu * (1.0 - mu)
-    Z = (Xs - c) / s
+    Z = np.subtract(Xs, c)
+    Z /= s  # (Xs - c) / s, in place
     gz = z[off:]
     T = column_scaled(c, s, rho, intercept)
     B = T @ Hinv
     scale = n / idx.size
     if precision is None:  # relative rounding u of the entries as given
-        sig = np.abs(Xs) * (UNIT / _ROOT3 / s)
+        sig = np.abs(Xs)
+        sig *= UNIT / _ROOT3 / s
     else:
         sig = np.sqrt((prec.x_relative * Xs) ** 2 + prec.x_absolute ** 2) / (_ROOT3 * s)
-    floor_var, data_var = sensitivity(Z, gz, r, W, B, intercept, [(np.abs(Z) * (UNIT / _ROOT3), None), (sig, None)],
-                                      scale)
+    del Xs
+    floor_sig = np.abs(Z)
+    floor_sig *= UNIT / _ROOT3
+    floor_var, data_var = sensitivity(Z, gz, r, W, B, intercept, [(floor_sig, None), (sig, None)], scale)
     theta = np.concatenate([[b0] if intercept else [], rho * beta])
     step = Hinv @ gradient_z
     to_caller = np.concatenate([[1.0] if intercept else [], 1.0 / rho])
