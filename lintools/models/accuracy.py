@@ -63,6 +63,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..support.text import intercept_label
+from ..support.threads import scratch
 from ..support.validate import INTERCEPT_NAME, ReadOnlyArrays
 
 __all__ = ["Accuracy", "NEAR_ZERO", "SUBSAMPLE_ROWS", "UNIT", "Precision", "column_scaled", "digits_of",
@@ -195,15 +196,16 @@ def sensitivity(Z: np.ndarray, gz: np.ndarray, r: np.ndarray, W: np.ndarray, B: 
     Each ``sig`` is squared in place (the callers pass temporaries made for this call)."""
     off = int(intercept)
     Bs = B[:, off:]  # B e_j for the slopes
-    BA = Z @ Bs.T  # rows: B a_i
+    shape = (Z.shape[0], B.shape[0])  # (the row-sized arrays: buffers the thread keeps)
+    BA = np.matmul(Z, Bs.T, out=scratch("sensitivity BA", shape))  # rows: B a_i
     if intercept:
         BA += B[:, 0]
-    BA2 = BA * BA
+    BA2 = np.multiply(BA, BA, out=scratch("sensitivity BA2", shape))
     rW, rr, WW = r * W, r * r, W * W
     g2, gB = gz * gz, gz[:, None] * Bs.T
     own_factor = Bs * Bs
     out = []
-    P = np.empty(BA.shape)
+    P = scratch("sensitivity P", shape)
     for sig, tau_w in errors:  # in place: few large arrays alive at once (each is fresh memory to touch)
         s2 = np.square(sig, out=sig)
         q = WW * (s2 @ g2)
