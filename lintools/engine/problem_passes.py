@@ -62,7 +62,8 @@ class DesignPasses:
         def part(lo: int, hi: int) -> bool:
             np.multiply(deta[lo:hi], t, out=delta[lo:hi])
             np.add(eta0[lo:hi], delta[lo:hi], out=eta[lo:hi])
-            return bool(np.all(np.isfinite(eta[lo:hi])))
+            # a finite sum has only finite terms; an inf/NaN or an overflowing sum: check each entry
+            return bool(np.isfinite(np.add.reduce(eta[lo:hi]))) or bool(np.all(np.isfinite(eta[lo:hi])))
 
         finite = all(for_rows(part, deta.shape[0], ELEMENT_CHUNK))
         return delta, eta if finite else None
