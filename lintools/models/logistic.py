@@ -267,7 +267,8 @@ def logistic(
         raise InputError(f"y has {which} on the rows with positive weight; a logistic model needs both outcomes")
     if lam == 0:
         check_parameters_and_rows(p + int(intercept), int(np.count_nonzero(v > 0)))
-    loss = BinomialLoss(yy, m if trials is not None else None, w)
+    # unit weights and trials stay implicit: the loss then forms no products with ones
+    loss = BinomialLoss(yy, m if trials is not None else None, w if weights is not None else None)
     problem = checked_problem(Xa, found, names_t, loss, intercept=intercept, l2=lam, offset=offset_values, firth=firth,
                               weight_scale=scale)
     if intercept and p and lam == 0:
