@@ -67,7 +67,7 @@ from ..support.threads import scratch
 from ..support.validate import INTERCEPT_NAME, ReadOnlyArrays
 
 __all__ = ["Accuracy", "NEAR_ZERO", "SUBSAMPLE_ROWS", "UNIT", "Precision", "column_scaled", "digits_of",
-           "sensitivity", "accuracy_record", "subsample"]
+           "sensitivity", "accuracy_record", "subsample", "row_buffer"]
 
 #: Unit roundoff of float64.
 UNIT = 2.0**-53
@@ -152,6 +152,19 @@ def subsample(n: int) -> np.ndarray:
     return (np.arange(m, dtype=np.int64) * n) // m
 
 
+#: Row-sized arrays of the accuracy terms up to this size live in buffers the thread keeps
+#: (a fresh array's pages cost as much as the arithmetic on them); larger ones are made fresh.
+_KEPT_BUFFER_BYTES = 1 << 20
+
+
+def row_buffer(name: str, shape: tuple[int, int]) -> np.ndarray:
+    """An uninitialised float64 array of ``shape``: the calling thread's kept buffer ``name``
+    while it is at most ``_KEPT_BUFFER_BYTES`` (about 60 columns of the subsample), else a fresh one."""
+    if 8 * shape[0] * shape[1] <= _KEPT_BUFFER_BYTES:
+        return scratch(name, shape)
+    return np.empty(shape)
+
+
 def column_scaled(c: np.ndarray, s: np.ndarray, rho: np.ndarray, intercept: bool, K: int = 1) -> np.ndarray:
     """``T`` with ``theta' = T z``: from centred, scaled coordinates (``z_0 = b + c'beta``,
     ``z_j = s_j beta_j``) to column-scaled ones (``b``, ``rho_j beta_j``), K outputs
@@ -197,15 +210,15 @@ def sensitivity(Z: np.ndarray, gz: np.ndarray, r: np.ndarray, W: np.ndarray, B: 
     off = int(intercept)
     Bs = B[:, off:]  # B e_j for the slopes
     shape = (Z.shape[0], B.shape[0])  # (the row-sized arrays: buffers the thread keeps)
-    BA = np.matmul(Z, Bs.T, out=scratch("sensitivity BA", shape))  # rows: B a_i
+    BA = np.matmul(Z, Bs.T, out=row_buffer("sensitivity BA", shape))  # rows: B a_i
     if intercept:
         BA += B[:, 0]
-    BA2 = np.multiply(BA, BA, out=scratch("sensitivity BA2", shape))
+    BA2 = np.multiply(BA, BA, out=row_buffer("sensitivity BA2", shape))
     rW, rr, WW = r * W, r * r, W * W
     g2, gB = gz * gz, gz[:, None] * Bs.T
     own_factor = Bs * Bs
     out = []
-    P = scratch("sensitivity P", shape)
+    P = row_buffer("sensitivity P", shape)
     for sig, tau_w in errors:  # in place: few large arrays alive at once (each is fresh memory to touch)
         s2 = np.square(sig, out=sig)
         q = WW * (s2 @ g2)

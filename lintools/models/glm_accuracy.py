@@ -30,9 +30,9 @@ from typing import Any
 
 import numpy as np
 
-from .accuracy import FLOOR_FACTOR, UNIT, Accuracy, Precision, accuracy_record, column_scaled, sensitivity, subsample
+from .accuracy import (FLOOR_FACTOR, UNIT, Accuracy, Precision, accuracy_record, column_scaled, row_buffer, sensitivity,
+                       subsample)
 from ..support.logistic_function import sigmoid
-from ..support.threads import scratch
 
 __all__ = ["binary_accuracy"]
 
@@ -68,7 +68,7 @@ def _binary_accuracy(problem: Any, Xa: np.ndarray, loss: Any, offset: np.ndarray
     beta = theta_c[off:]
     idx = subsample(n)
     # the row-sized arrays live in buffers the thread keeps (fresh pages cost as much as the arithmetic)
-    Xs = np.take(Xa, idx, axis=0, out=scratch("accuracy rows", (idx.size, p)))
+    Xs = np.take(Xa, idx, axis=0, out=row_buffer("accuracy rows", (idx.size, p)))
     eta = Xs @ beta + b0
     if offset is not None:
         eta = eta + offset[idx]
@@ -76,18 +76,18 @@ def _binary_accuracy(problem: Any, Xa: np.ndarray, loss: Any, offset: np.ndarray
     w, m, y = loss.weights[idx], loss.trials[idx], loss.y[idx]
     r = w * (m * mu - y)
     W = w * m * mu * (1.0 - mu)
-    Z = np.subtract(Xs, c, out=scratch("accuracy centred", Xs.shape))
+    Z = np.subtract(Xs, c, out=row_buffer("accuracy centred", Xs.shape))
     Z /= s  # (Xs - c) / s, in place
     gz = z[off:]
     T = column_scaled(c, s, rho, intercept)
     B = T @ Hinv
     scale = n / idx.size
     if precision is None:  # relative rounding u of the entries as given
-        sig = np.abs(Xs, out=scratch("accuracy data", Xs.shape))
+        sig = np.abs(Xs, out=row_buffer("accuracy data", Xs.shape))
         sig *= UNIT / _ROOT3 / s
     else:
         sig = np.sqrt((prec.x_relative * Xs) ** 2 + prec.x_absolute ** 2) / (_ROOT3 * s)
-    floor_sig = np.abs(Z, out=scratch("accuracy floor", Xs.shape))
+    floor_sig = np.abs(Z, out=row_buffer("accuracy floor", Xs.shape))
     floor_sig *= UNIT / _ROOT3
     floor_var, data_var = sensitivity(Z, gz, r, W, B, intercept, [(floor_sig, None), (sig, None)], scale)
     theta = np.concatenate([[b0] if intercept else [], rho * beta])
