@@ -187,8 +187,8 @@ class BinomialLoss:
         np.expm1(change, out=change)
         change *= q[lo:hi]
         np.log1p(change, out=change)
-        far = np.flatnonzero(np.abs(d) > 1.0)
-        if far.size:  # large moves: the plain difference is accurate relative to them
+        far = np.flatnonzero(np.abs(d) > 1.0) if d.size and (d.max() > 1.0 or d.min() < -1.0) else ()
+        if len(far):  # large moves: the plain difference is accurate relative to them
             u = s[far] * eta[lo:hi][far]
             change[far] = log1pexp(u + s[far] * d[far]) - log1pexp(u)
         return float(self.weights[lo:hi] @ change)

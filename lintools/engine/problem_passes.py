@@ -55,14 +55,17 @@ class DesignPasses:
 
     def _trial(self, line: Any, t: float) -> tuple[np.ndarray, np.ndarray | None]:
         """``(t X d, eta0 + t X d)`` in chunks of rows on the row threads; the second is
-        None when it is not finite somewhere."""
+        None when it is not finite somewhere.  At ``t = 1`` the first is ``X d`` itself (read only)."""
         deta, eta0 = line.deta, line.eta0
-        delta, eta = np.empty(deta.shape), np.empty(deta.shape)
+        whole = t == 1.0
+        delta, eta = deta if whole else np.empty(deta.shape), np.empty(deta.shape)
 
         def part(lo: int, hi: int) -> bool:
-            np.multiply(deta[lo:hi], t, out=delta[lo:hi])
+            if not whole:
+                np.multiply(deta[lo:hi], t, out=delta[lo:hi])
             np.add(eta0[lo:hi], delta[lo:hi], out=eta[lo:hi])
-            return bool(np.all(np.isfinite(eta[lo:hi])))
+            # a finite sum has only finite terms; an inf/NaN or an overflowing sum: check each entry
+            return bool(np.isfinite(np.add.reduce(eta[lo:hi], axis=None))) or bool(np.all(np.isfinite(eta[lo:hi])))
 
         finite = all(for_rows(part, deta.shape[0], ELEMENT_CHUNK))
         return delta, eta if finite else None

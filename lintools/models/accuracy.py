@@ -68,10 +68,12 @@ import numpy as np
 
 from ..support.errors import InputError
 from ..support.text import intercept_label
+from ..support.threads import scratch
 from ..support.validate import INTERCEPT_NAME, ReadOnlyArrays
 
 __all__ = ["Accuracy", "NEAR_ZERO", "SUBSAMPLE_ROWS", "UNIT", "Precision", "column_scaled", "digits_of",
-           "sensitivity", "accuracy_record", "subsample", "sample_note", "checked_precision", "half_unit"]
+           "sensitivity", "accuracy_record", "subsample", "sample_note", "checked_precision", "half_unit",
+           "row_buffer"]
 
 #: Unit roundoff of float64.
 UNIT = 2.0**-53
@@ -214,6 +216,19 @@ def subsample(n: int) -> np.ndarray:
     """At most ``SUBSAMPLE_ROWS`` evenly spaced row indices (all rows when fewer)."""
     m = min(n, SUBSAMPLE_ROWS)
     return (np.arange(m, dtype=np.int64) * n) // m
+
+
+#: Row-sized arrays of the accuracy terms up to this size live in buffers the thread keeps
+#: (a fresh array's pages cost as much as the arithmetic on them); larger ones are made fresh.
+_KEPT_BUFFER_BYTES = 1 << 20
+
+
+def row_buffer(name: str, shape: tuple[int, int]) -> np.ndarray:
+    """An uninitialised float64 array of ``shape``: the calling thread's kept buffer ``name``
+    while it is at most ``_KEPT_BUFFER_BYTES`` (about 60 columns of the subsample), else a fresh one."""
+    if 8 * shape[0] * shape[1] <= _KEPT_BUFFER_BYTES:
+        return scratch(name, shape)
+    return np.empty(shape)
 
 
 def column_scaled(c: np.ndarray, s: np.ndarray, rho: np.ndarray, intercept: bool, K: int = 1) -> np.ndarray:

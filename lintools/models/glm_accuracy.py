@@ -41,11 +41,11 @@ from typing import Any
 
 import numpy as np
 
-from .accuracy import (FLOOR_FACTOR, UNIT, Accuracy, Precision, accuracy_record, column_scaled, sample_note,
-                       sensitivity, subsample)
+from .accuracy import (FLOOR_FACTOR, UNIT, Accuracy, Precision, accuracy_record, column_scaled, row_buffer,
+                       sample_note, sensitivity, subsample)
 from ..support.logistic_function import sigmoid
 
-__all__ = ["LikelihoodAnswer", "binary_accuracy", "binary_derivatives", "linear_predictor", "likelihood_accuracy", "column_rms"]
+__all__ = ["LikelihoodAnswer", "binary_accuracy", "binary_derivatives", "linear_predictor", "likelihood_accuracy", "column_rms", "sample_rows"]
 
 _ROOT3 = math.sqrt(3.0)
 
@@ -102,9 +102,16 @@ def _binary_accuracy(problem: Any, Xa: np.ndarray, loss: Any, offset: np.ndarray
                            bool(problem.intercept), z, (M @ V @ M.T) * problem.weight_scale, gradient_z,
                            problem.to_original(z)[:, None], tuple(terms))
     idx = subsample(Xa.shape[0])
-    eta = linear_predictor(ans, Xa[idx], None if offset is None else offset[idx])[:, 0]
+    Xs = sample_rows(Xa, idx)
+    eta = linear_predictor(ans, Xs, None if offset is None else offset[idx])[:, 0]
     r, W, size = binary_derivatives(eta, loss.y[idx], loss.weights[idx], loss.trials[idx])
-    return likelihood_accuracy(ans, Xa[idx], r, W, size, Xa.shape[0], precision)
+    return likelihood_accuracy(ans, Xs, r, W, size, Xa.shape[0], precision)
+
+
+def sample_rows(Xa: np.ndarray, idx: np.ndarray) -> np.ndarray:
+    """The rows ``idx`` of ``Xa`` in a buffer the thread keeps (at small sizes a fresh
+    array's pages cost as much as the arithmetic on them)."""
+    return np.take(Xa, idx, axis=0, out=row_buffer("accuracy rows", (idx.size, Xa.shape[1])))
 
 
 def binary_derivatives(eta: np.ndarray, y: np.ndarray, w: np.ndarray, m: Any = 1.0) -> tuple:
@@ -145,14 +152,18 @@ def likelihood_accuracy(ans: LikelihoodAnswer, Xs: np.ndarray, r: np.ndarray, W:
     T, theta = R @ T, R @ theta
     if ans.order is not None:
         to_caller = to_caller[ans.order]
-    Z = (Xs - c) / s
+    Z = np.subtract(Xs, c, out=row_buffer("accuracy centred", Xs.shape))
+    Z /= s  # (Xs - c) / s, in a kept buffer
     gz = ans.z.reshape(p + off, K)[off:]
     if precision is None:  # relative rounding u of the entries as given
-        sig = np.abs(Xs) * (UNIT / _ROOT3 / s)
+        sig = np.abs(Xs, out=row_buffer("accuracy data", Xs.shape))
+        sig *= UNIT / _ROOT3 / s
     else:
         sig = np.sqrt((prec.x_relative * Xs) ** 2 + prec.x_absolute ** 2) / (_ROOT3 * s)
+    floor_sig = np.abs(Z, out=row_buffer("accuracy floor", Xs.shape))
+    floor_sig *= UNIT / _ROOT3
     floor_var, data_var = sensitivity(Z, gz, r, W, T @ ans.Hinv, intercept,
-                                      [(np.abs(Z) * (UNIT / _ROOT3), r_size * (UNIT / _ROOT3)), (sig, None)],
+                                      [(floor_sig, r_size * (UNIT / _ROOT3)), (sig, None)],
                                       scale)
     step = ans.Hinv @ ans.gradient
     return accuracy_record(theta, ans.z, T, step, floor_var, FLOOR_FACTOR, data_var, to_caller, ans.terms,

@@ -32,7 +32,7 @@ import numpy as np
 from ..support.errors import InputError, LintoolsWarning, warn_caller
 from .accuracy import Precision, checked_precision
 from .glm_accuracy import binary_accuracy
-from .records import Convergence, LogisticFit, with_accuracy
+from .records import Convergence, LogisticFit
 from .responses import binary_response, target_name
 from ..support.scaling import check_firth_scale, check_l2_scale, scaled_back, scaled_case_weights
 from ..support.threads import ELEMENT_CHUNK, for_rows, with_row_threads
@@ -276,7 +276,8 @@ def logistic(
         raise InputError(f"y has {which} on the rows with positive weight; a logistic model needs both outcomes")
     if lam == 0:
         check_parameters_and_rows(p + int(intercept), int(np.count_nonzero(v > 0)))
-    loss = BinomialLoss(yy, m if trials is not None else None, w)
+    # unit weights and trials stay implicit: the loss then forms no products with ones
+    loss = BinomialLoss(yy, m if trials is not None else None, w if weights is not None else None)
     problem = checked_problem(Xa, found, names_t, loss, intercept=intercept, l2=lam, offset=offset_values, firth=firth,
                               weight_scale=scale)
     if intercept and p and lam == 0:
@@ -323,15 +324,15 @@ def _record(family: BinaryFamily, problem: LinearModelProblem, solved: Solved, l
         lr = null_dev - dev if family.lam == 0 else float("nan")
     bounds = _profile(family, problem, solved.z, se, level, tol, max_iter) if level is not None else None
     classes, positive_class, target = labels
-    record = logistic_record(
+    accuracy = binary_accuracy(problem, family.Xa, loss, family.offset, solved.z, solved.evaluation.gradient, V,
+                               family.terms(), precision)
+    return logistic_record(  # the accuracy as a field: one record built, not two
         problem, solved.z, V, solved.convergence, Measured(loglik, dev, n_obs, null_dev, lr),
         names=family.names, l2=family.lam, classes=classes, positive_class=positive_class,
         penalised_log_likelihood=loss.log_binomial_total() * problem.weight_scale - objective,
         firth=bool(family.firth), profile_intervals=bounds, profile_level=level if level is not None else float("nan"),
-        grouped=bool(loss.grouped), has_offset=family.offset is not None, target=target,
+        grouped=bool(loss.grouped), has_offset=family.offset is not None, target=target, accuracy=accuracy,
     )
-    return with_accuracy(record, binary_accuracy(problem, family.Xa, loss, family.offset, solved.z,
-                                                 solved.evaluation.gradient, V, family.terms(), precision))
 
 
 def logistic_record(problem: Any, z: np.ndarray, V: np.ndarray, convergence: Convergence, measured: Measured,

@@ -213,6 +213,8 @@ def for_rows(fn: Callable[[int, int], Any], n: int, chunk: int) -> list[Any]:
     chunk from a shared counter until none is left (one hand-over per thread and pass,
     not per chunk: about 40 microseconds each were measured).  The first exception stops
     the others at their next chunk and is raised here."""
+    if 0 < n <= chunk:  # one chunk (small problems): no pool, no bookkeeping
+        return [fn(0, n)]
     bounds = [(lo, min(lo + chunk, n)) for lo in range(0, n, chunk)]
     count = min(threads(), len(bounds))
     if count <= 1:
