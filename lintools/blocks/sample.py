@@ -6,10 +6,12 @@ total number of rows and a row's position in the whole are not known to the kern
 sees it, so the sample is a *bottom-k* sample (Cohen & Kaplan 2007): every row gets a
 pseudo-random key from its bits (X, y, weight) and its position within its piece, and the
 ``SAMPLE_ROWS`` rows with the smallest keys are kept.  Keeping the smallest keys of a union
-is the smallest of the parts' smallest, so the sample does not depend on how the rows are
-split into blocks, pieces or threads, or in which order the parts are combined (ties of
-equal keys are broken by that order, which is fixed).  It is a uniform sample without
-replacement for rows of distinct keys.
+is the smallest of the parts' smallest, so the sample does not depend on the number of row
+threads or on the order in which the parts are combined (ties of equal keys are broken by
+that order, which is fixed).  A row's key includes its position within its piece, so a
+different split of the same rows into blocks draws a different sample (measured: data
+digits 15.32, 15.32 and 15.31 for 12 000 rows in blocks of 12 000, 5 000 and 777).  It is
+a uniform sample without replacement for rows of distinct keys.
 
 References
 ----------
