@@ -31,11 +31,7 @@ class _Blocks:
         self.shift = shift
         self.inv = inv
         self.flat = shift is not None and X.flags.c_contiguous
-        self.tile = None
-        if self.flat:  # the shift repeated for a block's rows, in a buffer the thread keeps
-            self.tile = scratch("shift tile", (rows, X.shape[1]))
-            self.tile[:] = shift
-            self.tile = self.tile.reshape(-1)
+        self.tile = _tiled(shift, rows) if self.flat else None
 
     def get(self, lo: int, hi: int, writable: bool) -> np.ndarray:
         """The block of rows ``lo:hi``; a copy goes into a buffer of the calling thread
@@ -55,6 +51,19 @@ class _Blocks:
         else:
             np.subtract(Xb, self.shift, out=out)
         return out
+
+
+def _tiled(v: np.ndarray, rows: int) -> np.ndarray:
+    """``v`` repeated ``rows`` times, flat, in a buffer the thread keeps (filled by doubling
+    copies: a broadcast into narrow rows is slow)."""
+    t = scratch("shift tile", (rows, v.size)).reshape(-1)
+    t[: v.size] = v
+    done = v.size
+    while done < t.size:
+        step = min(done, t.size - done)
+        t[done: done + step] = t[:step]
+        done += step
+    return t
 
 
 def first_pass(X, y, ybar, w, shift, beta0, a0, rows, inv):
