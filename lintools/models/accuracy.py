@@ -291,8 +291,7 @@ def sensitivity(Z: np.ndarray, gz: np.ndarray, r: np.ndarray, W: np.ndarray, B: 
         BA = np.tensordot(Z[rows], Bs, axes=([1], [1]))  # (rows, P, K): B a_i per output
         if intercept:
             BA += Bl[:, 0, :]
-        U = np.matmul(BA, WG[rows])  # (rows, P, p): BA_i W_i gz_j
-        U += np.tensordot(r[rows], Bs, axes=([1], [2]))  # + Bs_j r_i
+        U = _row_terms(BA, WG[rows], r[rows], Bs)
         U *= U
         BA *= BA
         for v, (sig, tau_w) in zip(var, errors):
@@ -334,6 +333,23 @@ def _one_output(Z: np.ndarray, gz: np.ndarray, r: np.ndarray, W: np.ndarray, B: 
         cross = 2.0 * (P.T @ rW)
         out.append(scale * np.clip(own + through + cross, 0.0, None))
     return out
+
+
+def _row_terms(BA: np.ndarray, WG: np.ndarray, r: np.ndarray, Bs: np.ndarray) -> np.ndarray:
+    """``BA_i W_i gz_j + Bs_j r_i`` (rows, P, p) in a buffer the thread keeps.  With one
+    output every term is a single product (a sum of one term, as the matrix products form
+    it), so it is formed as an outer product per row: the same bits, without the batched
+    products' overhead (a zero's sign may differ, which the squaring that follows removes)."""
+    m, P, K = BA.shape
+    U = scratch("sensitivity terms", (m, P, WG.shape[2]))
+    if K > 1:
+        np.matmul(BA, WG, out=U)
+        U += np.tensordot(r, Bs, axes=([1], [2]))
+        return U
+    np.einsum("ip,ij->ipj", BA[:, :, 0], WG[:, 0, :], out=U)
+    V = scratch("sensitivity residual terms", (m, P * U.shape[2]))
+    U += np.dot(r, Bs[:, :, 0].reshape(1, -1), out=V).reshape(U.shape)  # r_i Bs_j: the product tensordot forms
+    return U
 
 
 def sample_note(used: int, rows: int, how: str = "evenly spaced") -> str:

@@ -30,8 +30,8 @@ from typing import Any
 
 import numpy as np
 
-from .accuracy import (FLOOR_FACTOR, UNIT, Accuracy, Precision, accuracy_record, column_scaled, sample_note,
-                       sensitivity, subsample)
+from .accuracy import (FLOOR_FACTOR, UNIT, Accuracy, Precision, accuracy_record, column_scaled, row_buffer,
+                       sample_note, sensitivity, subsample)
 from .lsq_record import PathAnswer
 from .lsq_scale import Units
 from ..support.validate import INTERCEPT_NAME
@@ -63,11 +63,14 @@ def _least_squares_accuracy(Xa: np.ndarray, y1: np.ndarray, w1: np.ndarray | Non
     idx = subsample(n)
     rows, how = (n, "evenly spaced") if sample is None else sample
     ex = fit.col_exp
-    Xs = np.ldexp(Xa[idx], -ex)
+    Xs = np.take(Xa, idx, axis=0, out=row_buffer("accuracy rows", (idx.size, p)))
+    if np.any(ex):
+        np.ldexp(Xs, -ex, out=Xs)
     ys = y1[idx]
     ws = np.ones(idx.size) if w1 is None else w1[idx]
     s, xbar, beta = fit.s, fit.xbar, fit.beta
-    Z = (Xs - xbar) / s
+    Z = np.subtract(Xs, xbar, out=row_buffer("accuracy centred", Xs.shape))
+    Z /= s  # (Xs - xbar) / s
     e = ys - fit.b0 - Xs @ beta
     Hinv = np.zeros((p + int(intercept),) * 2)
     off = int(intercept)
@@ -81,7 +84,8 @@ def _least_squares_accuracy(Xa: np.ndarray, y1: np.ndarray, w1: np.ndarray | Non
     B = T @ Hinv
     r, ybar = -ws * e, (float(ws @ ys) / float(ws.sum()) if intercept else 0.0)
     if precision is None:  # relative rounding u of the entries as given
-        sig, tau = np.abs(Xs) * (UNIT / _ROOT3 / s), ws * np.abs(ys) * (UNIT / _ROOT3)
+        sig, tau = np.abs(Xs, out=row_buffer("accuracy data", Xs.shape)), ws * np.abs(ys) * (UNIT / _ROOT3)
+        sig *= UNIT / _ROOT3 / s
     else:
         ax = np.ldexp(prec.x_absolute, -ex)
         sig = np.sqrt((prec.x_relative * Xs) ** 2 + ax * ax) / (_ROOT3 * s)
@@ -89,7 +93,7 @@ def _least_squares_accuracy(Xa: np.ndarray, y1: np.ndarray, w1: np.ndarray | Non
         tau = ws * np.sqrt((prec.y_relative * ys) ** 2 + ay * ay) / _ROOT3
     # the solver's floor: rounding u of the centred entries, which is what the residual sees
     floor_var, data_var = sensitivity(Z, gz, r, ws, B, intercept, [
-        (np.abs(Z) * (UNIT / _ROOT3), ws * np.abs(ys - ybar) * (UNIT / _ROOT3)), (sig, tau)], scale)
+        (_floor_sig(Z), ws * np.abs(ys - ybar) * (UNIT / _ROOT3)), (sig, tau)], scale)
     theta = np.concatenate([[fit.b0] if intercept else [], rho * beta])
     step = np.zeros(p + off) if fit.correction is None else fit.correction
     floor = FLOOR_FACTOR * (EXTENDED_UNIT / UNIT if fit.solver in ("qr", "tsqr") else 1.0)
@@ -99,3 +103,10 @@ def _least_squares_accuracy(Xa: np.ndarray, y1: np.ndarray, w1: np.ndarray | Non
     z = np.concatenate([[fit.b0 + float(xbar @ beta)] if intercept else [], gz])
     return accuracy_record(theta, z, T, step, floor_var, floor, data_var, to_caller, terms, prec.what,
                            sample_note(idx.size, rows, how))
+
+
+def _floor_sig(Z: np.ndarray) -> np.ndarray:
+    """``|Z| u / sqrt(3)`` (rounding ``u`` of the centred entries) in a buffer the thread keeps."""
+    sig = np.abs(Z, out=row_buffer("accuracy floor", Z.shape))
+    sig *= UNIT / _ROOT3
+    return sig

@@ -81,6 +81,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from .accuracy import row_buffer
 from .lsq_gram_passes import first_pass, residual_pass, subsample_rows, subsample_start
 from ..support.linalg import solve_lower, solve_upper
 
@@ -210,7 +211,8 @@ def solve_by_gram(
     else:
         ybar = 0.0
     idx = subsample_rows(n, w, n_pos, max(SUBSAMPLE_ROWS, 4 * (p + 1)))
-    Xs = Xa[idx]  # the subsample's rows, copied once for the column units and the start
+    # the subsample's rows, copied once (into a buffer the thread keeps) for the column units and the start
+    Xs = np.take(Xa, idx, axis=0, out=row_buffer("subsample rows", (idx.size, p)))
     col_exp, inv = _column_units(Xs)
     lam = np.ldexp(lam, -2 * col_exp)  # the ridge on the unit coefficients
     if not np.all(np.isfinite(lam)):
@@ -273,9 +275,20 @@ def _column_units(Xs: np.ndarray) -> tuple[np.ndarray, np.ndarray | None]:
     """Exponents of the powers of two that bring each column's largest ``|x|`` on the
     subsample ``Xs`` within ``2**+-COLUMN_BAND`` (0 for the others), and their inverses
     (None when no column needs one: the blocks are then read in place)."""
-    _, top = np.frexp(np.max(np.abs(Xs), axis=0))
+    _, top = np.frexp(_largest_abs(Xs))
     col_exp = np.where(np.abs(top - 1) > COLUMN_BAND, top - 1, 0).astype(np.int64)
     return col_exp, (np.ldexp(1.0, -col_exp) if np.any(col_exp) else None)
+
+
+def _largest_abs(Xs: np.ndarray) -> np.ndarray:
+    """Each column's largest ``|x|`` (NaN when it holds one), over groups of rows laid side by
+    side: a maximum is exact in any order, and a narrow column reduction is slow."""
+    k, p = Xs.shape
+    A = np.abs(Xs, out=row_buffer("subsample magnitudes", Xs.shape))
+    g = max(1, 128 // max(p, 1))  # rows side by side
+    whole = (k // g) * g
+    top = A[:whole].reshape(-1, g * p).max(axis=0, initial=0.0).reshape(g, p).max(axis=0)
+    return np.maximum(top, A[whole:].max(axis=0, initial=0.0))
 
 
 @dataclass

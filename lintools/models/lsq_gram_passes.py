@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from .accuracy import row_buffer
 from ..support.linalg import solve_lower, solve_upper
 from ..support.threads import add_up, for_rows, scratch
 
@@ -30,7 +31,7 @@ class _Blocks:
         self.shift = shift
         self.inv = inv
         self.flat = shift is not None and X.flags.c_contiguous
-        self.tile = np.tile(shift, rows) if self.flat else None
+        self.tile = _tiled(shift, rows) if self.flat else None
 
     def get(self, lo: int, hi: int, writable: bool) -> np.ndarray:
         """The block of rows ``lo:hi``; a copy goes into a buffer of the calling thread
@@ -50,6 +51,19 @@ class _Blocks:
         else:
             np.subtract(Xb, self.shift, out=out)
         return out
+
+
+def _tiled(v: np.ndarray, rows: int) -> np.ndarray:
+    """``v`` repeated ``rows`` times, flat, in a buffer the thread keeps (filled by doubling
+    copies: a broadcast into narrow rows is slow)."""
+    t = scratch("shift tile", (rows, v.size)).reshape(-1)
+    t[: v.size] = v
+    done = v.size
+    while done < t.size:
+        step = min(done, t.size - done)
+        t[done: done + step] = t[:step]
+        done += step
+    return t
 
 
 def first_pass(X, y, ybar, w, shift, beta0, a0, rows, inv):
@@ -182,9 +196,13 @@ def subsample_start(Xs, y, ybar, w, idx, intercept, lam, W, inv):
         ym = float(ws @ ys) / Ws
     else:
         xm, ym = np.zeros(p), 0.0
-    A = (Xs - xm) * np.sqrt(ws)[:, None]
+    # rows times sqrt(w_i), which unit weights leave as they are (x * 1 is x)
+    A = np.subtract(Xs, xm, out=row_buffer("subsample centred", Xs.shape))
+    b = ys - ym
+    if w is not None:
+        A *= np.sqrt(ws)[:, None]
+        b *= np.sqrt(ws)
     sd = np.sqrt(np.einsum("ij,ij->j", A, A) / Ws)
-    b = (ys - ym) * np.sqrt(ws)
     beta0 = np.zeros(p)
     if k > p:
         # normal equations on the subsample (only a start; lstsq if they are singular)

@@ -1,0 +1,121 @@
+"""The per-call fixed cost of one ``lintools.least_squares(X, y)``, stage by stage.
+
+Usage::
+
+    OPENBLAS_NUM_THREADS=1 python benchmarks/fixed_cost_lsq.py             # n = 1e4, p = 10, 200 calls
+    python benchmarks/fixed_cost_lsq.py --n 100000 --p 50 --calls 20
+
+The timing wrappers and the way stages are counted (exclusive time, the containers' own
+time as "other" rows, medians over the calls) are those of benchmarks/fixed_cost.py; the
+data are those of benchmarks/problems.py.  The last lines give the median CPU time of a
+plain call and its minor page faults (fresh pages of new temporaries).
+"""
+
+from __future__ import annotations
+
+import argparse
+import gc
+import resource
+import statistics
+import sys
+import time
+from collections import defaultdict
+from pathlib import Path
+from typing import Any, Callable
+
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+
+import lintools as lt  # noqa: E402
+from fixed_cost import _patch, _times, _wrap  # noqa: E402
+from lintools.models import least_squares as front, lsq_gram  # noqa: E402
+from problems import _regression_data  # noqa: E402
+
+STAGES = [
+    ("input checks, units, totals", "checks"),
+    ("Gram: subsample rows, column units", "subsample"),
+    ("Gram: subsample start", "start"),
+    ("Gram: pass 1 (moments, start residual)", "pass1"),
+    ("Gram: scale, Cholesky, conditioning", "factor"),
+    ("Gram: refinement (residual passes)", "refine"),
+    ("Gram: other (covariance, answer)", "gram"),
+    ("record (linear_record)", "record"),
+    ("accuracy record (least_squares_accuracy)", "accuracy"),
+    ("front: other (glue, with_accuracy)", "front"),
+    ("row-thread session", "session"),
+]
+
+
+def instrument() -> Callable[..., Any]:
+    """Put the timing wrappers in place; return the instrumented ``least_squares``."""
+    for name in ("as_matrix", "as_vector", "as_weights", "check_nonnegative", "check_choice", "check_flag",
+                 "check_names", "target_name", "checked_precision", "refuse_degenerate", "_totals"):
+        _patch(front, name, "checks")
+    _patch(front.Units, "response", "checks")
+    _patch(front.Units, "weights", "checks")
+    _patch(lsq_gram, "subsample_rows", "subsample")
+    _patch(lsq_gram, "_column_units", "subsample")
+    _patch(lsq_gram, "subsample_start", "start")
+    _patch(lsq_gram, "_moments", "pass1")
+    _patch(lsq_gram, "_factor", "factor")
+    _patch(lsq_gram, "_refine", "refine")
+    _patch(lsq_gram, "solve_by_gram", "gram", container=True)
+    _patch(front, "linear_record", "record")
+    _patch(front, "least_squares_accuracy", "accuracy")
+    inner = _wrap(lt.least_squares.__wrapped__, "front", container=True)
+    return _wrap(front.with_row_threads(inner), "session", container=True)
+
+
+def main(argv: list[str] | None = None) -> int:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--n", type=int, default=10_000)
+    parser.add_argument("--p", type=int, default=10)
+    parser.add_argument("--calls", type=int, default=200)
+    args = parser.parse_args(argv)
+    d = _regression_data(args.n, args.p)()
+    X, y = d["X"], d["y"]
+    plain = lt.least_squares
+    for _ in range(5):
+        plain(X, y)
+    bare, cpu = [], []
+    for _ in range(args.calls):
+        gc.collect()
+        t0, c0 = time.perf_counter(), time.process_time()
+        fit = plain(X, y)
+        bare.append(time.perf_counter() - t0)
+        cpu.append(time.process_time() - c0)
+    f0 = resource.getrusage(resource.RUSAGE_SELF).ru_minflt
+    for _ in range(args.calls):
+        plain(X, y)
+    faults = (resource.getrusage(resource.RUSAGE_SELF).ru_minflt - f0) / args.calls
+    timed = instrument()
+    for _ in range(5):
+        timed(X, y)
+    per_stage: dict[str, list[float]] = defaultdict(list)
+    totals = []
+    for _ in range(args.calls):
+        gc.collect()
+        _times.clear()
+        t0 = time.perf_counter()
+        timed(X, y)
+        totals.append(time.perf_counter() - t0)
+        for _, key in STAGES:
+            per_stage[key].append(_times.get(key, 0.0))
+        unknown = set(_times) - {key for _, key in STAGES}
+        assert not unknown, unknown
+    whole = statistics.median(totals)
+    print(f"lintools.least_squares at n={args.n}, p={args.p} ({fit.convergence.solver}); median of {args.calls} calls")
+    print(f"{'stage':<48} {'ms':>8} {'share':>7}")
+    for label, key in STAGES:
+        ms = statistics.median(per_stage[key]) * 1e3
+        print(f"{label:<48} {ms:8.3f} {ms / (whole * 1e3):7.1%}")
+    total = sum(statistics.median(per_stage[key]) for _, key in STAGES) * 1e3
+    print(f"{'sum of the stage medians':<48} {total:8.3f}")
+    print(f"{'whole call (median, instrumented)':<48} {whole * 1e3:8.3f}")
+    print(f"{'whole call (median, plain, wall)':<48} {statistics.median(bare) * 1e3:8.3f}")
+    print(f"{'whole call (median, plain, CPU)':<48} {statistics.median(cpu) * 1e3:8.3f}")
+    print(f"{'minor page faults per plain call':<48} {faults:8.1f}")
+    return 0
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())
