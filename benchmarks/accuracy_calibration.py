@@ -77,7 +77,7 @@ def glm_case(rng: np.random.Generator, K: int, top: float = 10.0, soft: bool = F
     return fit.accuracy.solver_digits, truth, est_data, measured
 
 
-def summary(name: str, rows: list[tuple[float, float, float, float]]) -> None:
+def print_shares(name: str, rows: list[tuple[float, float, float, float]]) -> None:
     a = np.array(rows)
     opt = a[:, 0] - a[:, 1]
     dd = a[:, 2] - a[:, 3]
@@ -95,13 +95,13 @@ def main(argv: list[str] | None = None) -> int:
     args = ap.parse_args(argv)
     rng = np.random.default_rng(args.seed)
     if args.kind in ("least_squares", "all"):
-        summary("least squares, QR path", [ls_case(rng) for _ in range(args.cases)])
-        summary("least squares, Gram path", [ls_case(rng, True) for _ in range(max(1, args.cases // 4))])
+        print_shares("least squares, QR path", [ls_case(rng) for _ in range(args.cases)])
+        print_shares("least squares, Gram path", [ls_case(rng, True) for _ in range(max(1, args.cases // 4))])
     if args.kind in ("logistic", "all"):
-        summary("logistic", [glm_case(rng, 1) for _ in range(max(1, args.cases // 4))])
+        print_shares("logistic", [glm_case(rng, 1) for _ in range(max(1, args.cases // 4))])
     if args.kind in ("softmax", "all"):
         # 2 to 4 classes, scaled condition 1 to 1e12
-        summary("softmax", [glm_case(rng, int(rng.integers(1, 4)), 12.0, True) for _ in range(max(1, args.cases // 8))])
+        print_shares("softmax", [glm_case(rng, int(rng.integers(1, 4)), 12.0, True) for _ in range(max(1, args.cases // 8))])
     return 0
 
 

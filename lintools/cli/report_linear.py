@@ -71,15 +71,19 @@ def linear_parts(args: argparse.Namespace, d: Any, table: Any, X: np.ndarray, ta
     stab = None if recent is None else stability_part(args, d, (table, X, {SCORE: pred}), recent, {SCORE: rp}, charts)
     segs = None
     if args.by:
-        def summary(rows: np.ndarray) -> Any:
-            return residual_summary(y[rows], pred[rows], weights=weights_of(w, rows))
+        last: list[Any] = [None, None]  # the segment's rows and their residual figures, computed once
 
-        figures = {"weight": lambda r: summary(r).weight,
+        def residuals_in(rows: np.ndarray) -> Any:
+            if last[0] is not rows:
+                last[:] = [rows, residual_summary(y[rows], pred[rows], weights=weights_of(w, rows))]
+            return last[1]
+
+        figures = {"weight": lambda r: residuals_in(r).weight,
                    "mean_observed": lambda r: _mean(y[r], weights_of(w, r)),
                    "mean_predicted": lambda r: _mean(pred[r], weights_of(w, r)),
-                   "mean_residual": lambda r: summary(r).mean,
-                   "root_mean_square": lambda r: summary(r).root_mean_square,
-                   "explained": lambda r: summary(r).explained,
+                   "mean_residual": lambda r: residuals_in(r).mean,
+                   "root_mean_square": lambda r: residuals_in(r).root_mean_square,
+                   "explained": lambda r: residuals_in(r).explained,
                    "slope": lambda r: response_line(y[r], pred[r], weights=weights_of(w, r)).slope}
         stability = None if recent is None else (lambda r, t: population_stability(
             pred[r], rp[t], bins=args.stability_bins, weights=weights_of(w, r),

@@ -97,7 +97,7 @@ class BandTests(ReadOnlyArrays):
     rejected_holm: tuple[int, int]
     notes: tuple[str, ...]
 
-    def summary(self) -> str:
+    def headline(self) -> str:
         """The counts of rejections, with the word on multiple testing."""
         alpha = 1.0 - self.level
         k = max(self.tested)
@@ -124,7 +124,7 @@ class BandTests(ReadOnlyArrays):
                 + p_text(self.jeffreys_p_value[b]).rjust(12)
                 + f"[{self.jeffreys_lower[b]:.5f}, {self.jeffreys_upper[b]:.5f}]".rjust(26)
             )
-        lines.append(self.summary())
+        lines.append(self.headline())
         lines += [f"Note: {n}" for n in self.notes]
         return "\n".join(lines) + "\n"
 

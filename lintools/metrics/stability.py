@@ -106,7 +106,7 @@ class PopulationStability(ReadOnlyArrays):
             return [(str(c), "") for c in self.categories]
         return [range_words(self.cuts, b) for b in range(self.cuts.size + 1)]
 
-    def summary(self) -> str:
+    def headline(self) -> str:
         """One line: the index, its reading and the reading bands."""
         low, high = READING_BANDS
         return (f"population stability index {self.index:.4f}: {self.reading} (common practice: below {low:g} "
@@ -116,7 +116,7 @@ class PopulationStability(ReadOnlyArrays):
         """The index, its reading and the per-bin table as text."""
         kind = {"quantile": "bins at the weighted quantiles of the expected sample",
                 "edges": "bins at the cut points given", "category": "one bin per category"}[self.binning]
-        first = self.summary()
+        first = self.headline()
         lines = [first[0].upper() + first[1:], f"  {len(self.contribution)} {kind}"]
         cat = self.binning == "category"
         head = ("bin".rjust(4) + ("  category".ljust(22) if cat else "above".rjust(12) + "up to".rjust(12))
