@@ -49,6 +49,14 @@ def _away_from_zero(v: np.ndarray) -> np.ndarray:
     return np.where(np.abs(v) < _FPMIN, _FPMIN, v)
 
 
+def _lentz_step(alpha: np.ndarray, beta: np.ndarray, c: np.ndarray, d: np.ndarray) -> tuple:
+    """One modified-Lentz step of a continued fraction whose next term is ``alpha / (beta + ...)``:
+    the new ``C`` and ``1 / D`` (each guarded away from zero) and the factor ``C / D`` of the value."""
+    d = 1.0 / _away_from_zero(beta + alpha * d)
+    c = _away_from_zero(beta + alpha / c)
+    return c, d, c * d
+
+
 def _retire(done: np.ndarray, out: np.ndarray, value: np.ndarray, state: tuple) -> tuple | None:
     """Write the converged entries of ``value`` to ``out`` at ``state[0]`` (the entries'
     positions) and return the other entries of every array in ``state``, or None when
@@ -177,12 +185,7 @@ def _beta_cf(a, b, x, y, delta):
         )
         beta = np.where(near_one, c_m + y * s_m, 1.0 - x * s_m)
         prev = -t_odd * x  # d_2m+1
-        d = beta + alpha * d
-        d = _away_from_zero(d)
-        c = beta + alpha / c
-        c = _away_from_zero(c)
-        d = 1.0 / d
-        step = c * d
+        c, d, step = _lentz_step(alpha, beta, c, d)
         f = f * step
         done = np.abs(step - 1.0) <= 2.0 * _EPS
         if done.any():
@@ -325,12 +328,7 @@ def _gamma_cf(a, x):
     for i in range(1, _MAX_TERMS):
         an = -i * (i - a)
         bb = bb + 2.0
-        d = an * d + bb
-        d = _away_from_zero(d)
-        c = bb + an / c
-        c = _away_from_zero(c)
-        d = 1.0 / d
-        step = d * c
+        c, d, step = _lentz_step(an, bb, c, d)
         h = h * step
         done = np.abs(step - 1.0) <= 2.0 * _EPS
         if done.any():
