@@ -68,12 +68,11 @@ import numpy as np
 
 from ..support.errors import InputError
 from ..support.text import intercept_label
-from ..support.threads import scratch
+from ..support.threads import row_buffer, scratch
 from ..support.validate import INTERCEPT_NAME, ReadOnlyArrays
 
 __all__ = ["Accuracy", "NEAR_ZERO", "SUBSAMPLE_ROWS", "UNIT", "Precision", "column_scaled", "digits_of",
-           "sensitivity", "accuracy_record", "subsample", "sample_note", "checked_precision", "half_unit",
-           "row_buffer"]
+           "sensitivity", "accuracy_record", "subsample", "sample_note", "checked_precision", "half_unit"]
 
 #: Unit roundoff of float64.
 UNIT = 2.0**-53
@@ -218,19 +217,6 @@ def subsample(n: int) -> np.ndarray:
     return (np.arange(m, dtype=np.int64) * n) // m
 
 
-#: Row-sized arrays of the accuracy terms up to this size live in buffers the thread keeps
-#: (a fresh array's pages cost as much as the arithmetic on them); larger ones are made fresh.
-_KEPT_BUFFER_BYTES = 1 << 20
-
-
-def row_buffer(name: str, shape: tuple[int, int]) -> np.ndarray:
-    """An uninitialised float64 array of ``shape``: the calling thread's kept buffer ``name``
-    while it is at most ``_KEPT_BUFFER_BYTES`` (about 60 columns of the subsample), else a fresh one."""
-    if 8 * shape[0] * shape[1] <= _KEPT_BUFFER_BYTES:
-        return scratch(name, shape)
-    return np.empty(shape)
-
-
 def column_scaled(c: np.ndarray, s: np.ndarray, rho: np.ndarray, intercept: bool, K: int = 1) -> np.ndarray:
     """``T`` with ``theta' = T z``: from centred, scaled coordinates (``z_0 = b + c'beta``,
     ``z_j = s_j beta_j``) to column-scaled ones (``b``, ``rho_j beta_j``), K outputs
@@ -277,8 +263,9 @@ def sensitivity(Z: np.ndarray, gz: np.ndarray, r: np.ndarray, W: np.ndarray, B: 
     through ``H^{-1} Cov(g) H^{-1}``, which cancels catastrophically when ``H`` is
     ill-conditioned)."""
     m, p = Z.shape
-    if np.ndim(r) == 1:
-        return _one_output(Z, np.ravel(gz), r, W, B, intercept, errors, scale)
+    if np.ndim(r) == 1 or r.shape[1] == 1:  # one output, however shaped
+        one = [(sig, None if tau_w is None else np.ravel(tau_w)) for sig, tau_w in errors]
+        return _one_output(Z, np.ravel(gz), np.ravel(r), np.ravel(W), B, intercept, one, scale)
     K, off, P = r.shape[1], int(intercept), B.shape[0]
     gz = np.reshape(gz, (p, K))
     Bl = B.reshape(P, p + off, K)
@@ -336,19 +323,10 @@ def _one_output(Z: np.ndarray, gz: np.ndarray, r: np.ndarray, W: np.ndarray, B: 
 
 
 def _row_terms(BA: np.ndarray, WG: np.ndarray, r: np.ndarray, Bs: np.ndarray) -> np.ndarray:
-    """``BA_i W_i gz_j + Bs_j r_i`` (rows, P, p) in a buffer the thread keeps.  With one
-    output every term is a single product (a sum of one term, as the matrix products form
-    it), so it is formed as an outer product per row: the same bits, without the batched
-    products' overhead (a zero's sign may differ, which the squaring that follows removes)."""
-    m, P, K = BA.shape
-    U = scratch("sensitivity terms", (m, P, WG.shape[2]))
-    if K > 1:
-        np.matmul(BA, WG, out=U)
-        U += np.tensordot(r, Bs, axes=([1], [2]))
-        return U
-    np.einsum("ip,ij->ipj", BA[:, :, 0], WG[:, 0, :], out=U)
-    V = scratch("sensitivity residual terms", (m, P * U.shape[2]))
-    U += np.dot(r, Bs[:, :, 0].reshape(1, -1), out=V).reshape(U.shape)  # r_i Bs_j: the product tensordot forms
+    """``BA_i W_i gz_j + Bs_j r_i`` (rows, P, p) for K > 1 outputs, in a buffer the thread keeps."""
+    m, P, _ = BA.shape
+    U = np.matmul(BA, WG, out=scratch("sensitivity terms", (m, P, WG.shape[2])))
+    U += np.tensordot(r, Bs, axes=([1], [2]))
     return U
 
 

@@ -41,8 +41,9 @@ from typing import Any
 
 import numpy as np
 
-from .accuracy import (FLOOR_FACTOR, UNIT, Accuracy, Precision, accuracy_record, column_scaled, row_buffer,
+from .accuracy import (FLOOR_FACTOR, UNIT, Accuracy, Precision, accuracy_record, column_scaled,
                        sample_note, sensitivity, subsample)
+from ..support.threads import row_buffer
 from ..support.logistic_function import sigmoid
 
 __all__ = ["LikelihoodAnswer", "binary_accuracy", "binary_derivatives", "linear_predictor", "likelihood_accuracy", "column_rms", "sample_rows"]

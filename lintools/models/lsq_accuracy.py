@@ -30,8 +30,9 @@ from typing import Any
 
 import numpy as np
 
-from .accuracy import (FLOOR_FACTOR, UNIT, Accuracy, Precision, accuracy_record, column_scaled, row_buffer,
+from .accuracy import (FLOOR_FACTOR, UNIT, Accuracy, Precision, accuracy_record, column_scaled,
                        sample_note, sensitivity, subsample)
+from ..support.threads import row_buffer
 from .lsq_record import PathAnswer
 from .lsq_scale import Units
 from ..support.validate import INTERCEPT_NAME

@@ -81,9 +81,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .accuracy import row_buffer
 from .lsq_gram_passes import first_pass, residual_pass, subsample_rows, subsample_start
 from ..support.linalg import solve_lower, solve_upper
+from ..support.threads import row_buffer
 
 __all__ = ["GramSolution", "solve_by_gram", "default_block_rows"]
 

@@ -15,9 +15,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from .accuracy import row_buffer
 from ..support.linalg import solve_lower, solve_upper
-from ..support.threads import add_up, for_rows, scratch
+from ..support.threads import add_up, for_rows, row_buffer, scratch
 
 __all__ = ["first_pass", "residual_pass", "subsample_rows", "subsample_start"]
 

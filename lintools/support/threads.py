@@ -46,7 +46,7 @@ import numpy as np
 
 from .errors import InputError
 
-__all__ = ["ELEMENT_CHUNK", "session", "whole_blas", "with_row_threads", "threads", "for_rows", "add_up",
+__all__ = ["ELEMENT_CHUNK", "row_buffer", "session", "whole_blas", "with_row_threads", "threads", "for_rows", "add_up",
            "scratch", "PassBuffers", "env_threads", "MAX_THREADS"]
 
 #: The most row threads ``LINTOOLS_THREADS`` can ask for; larger values are used as this.
@@ -264,10 +264,11 @@ _local = threading.local()
 _KEEP_BYTES = 1 << 24
 
 
-def scratch(name: str, shape: tuple[int, ...], dtype: Any = np.float64) -> np.ndarray:
+def scratch(name: str, shape: tuple[int, ...], dtype: Any = np.float64, keep_bytes: int = _KEEP_BYTES) -> np.ndarray:
     """A buffer of at least ``shape`` kept by the calling thread under ``name`` and reused by
     its next chunks (a fresh allocation per chunk would pay the first touch of its pages
-    every time); the caller slices it to the rows it needs."""
+    every time); the caller slices it to the rows it needs.  A buffer over ``keep_bytes``
+    is made fresh and not kept."""
     store = getattr(_local, "buffers", None)
     if store is None:
         store = _local.buffers = {}
@@ -275,9 +276,21 @@ def scratch(name: str, shape: tuple[int, ...], dtype: Any = np.float64) -> np.nd
     buf = store.get(key)
     if buf is None or buf.shape[0] < shape[0] or buf.shape[1:] != tuple(shape[1:]):
         buf = np.empty(shape, dtype=dtype)
-        if buf.nbytes <= _KEEP_BYTES:
+        if buf.nbytes <= keep_bytes:
             store[key] = buf
     return buf[: shape[0]]
+
+
+#: Row-sized arrays of a fit's sample (the accuracy terms, the Gram start) up to this size
+#: live in buffers the thread keeps (a fresh array's pages cost as much as the arithmetic
+#: on them at small sizes); larger ones are made fresh, so a wide design leaves none behind.
+ROW_BUFFER_BYTES = 1 << 20
+
+
+def row_buffer(name: str, shape: tuple[int, int]) -> np.ndarray:
+    """An uninitialised float64 array of ``shape``: :func:`scratch` kept only up to
+    ``ROW_BUFFER_BYTES`` (about 60 columns of a 2048-row sample)."""
+    return scratch(name, shape, keep_bytes=ROW_BUFFER_BYTES)
 
 
 class PassBuffers:
