@@ -149,33 +149,44 @@ def main(argv: list[str] | None = None) -> int:
         t0 = time.perf_counter()
         fit = plain(X, y)
         bare.append(time.perf_counter() - t0)
-    timed = instrument()
-    for _ in range(3):
+    per_stage, whole = staged(instrument(), X, y, STAGES, args.calls, warmup=3)
+    print(f"lintools.logistic at n={args.n}, p={args.p}: {fit.convergence.iterations} Newton iterations; "
+          f"median of {args.calls} calls")
+    print_stages(STAGES, per_stage, whole)
+    print(f"{'whole call (median, plain)':<48} {statistics.median(bare) * 1e3:8.3f}")
+    return 0
+
+
+def staged(timed: Callable[..., Any], X: np.ndarray, y: np.ndarray, stages: list[tuple[str, str]], calls: int,
+           warmup: int) -> tuple[dict[str, list[float]], float]:
+    """Each stage's exclusive time per call of the instrumented ``timed`` (after ``warmup``
+    calls), and the median time of a whole instrumented call."""
+    for _ in range(warmup):
         timed(X, y)
     per_stage: dict[str, list[float]] = defaultdict(list)
     totals = []
-    for _ in range(args.calls):
+    for _ in range(calls):
         gc.collect()
         _times.clear()
         t0 = time.perf_counter()
         timed(X, y)
         totals.append(time.perf_counter() - t0)
-        for _, key in STAGES:
+        for _, key in stages:
             per_stage[key].append(_times.get(key, 0.0))
-        unknown = set(_times) - {key for _, key in STAGES}
+        unknown = set(_times) - {key for _, key in stages}
         assert not unknown, unknown
-    whole = statistics.median(totals)
-    print(f"lintools.logistic at n={args.n}, p={args.p}: {fit.convergence.iterations} Newton iterations; "
-          f"median of {args.calls} calls")
+    return per_stage, statistics.median(totals)
+
+
+def print_stages(stages: list[tuple[str, str]], per_stage: dict[str, list[float]], whole: float) -> None:
+    """The table of stage medians, their sum and the whole instrumented call."""
     print(f"{'stage':<48} {'ms':>8} {'share':>7}")
-    for label, key in STAGES:
+    for label, key in stages:
         ms = statistics.median(per_stage[key]) * 1e3
         print(f"{label:<48} {ms:8.3f} {ms / (whole * 1e3):7.1%}")
-    total = sum(statistics.median(per_stage[key]) for _, key in STAGES) * 1e3
+    total = sum(statistics.median(per_stage[key]) for _, key in stages) * 1e3
     print(f"{'sum of the stage medians':<48} {total:8.3f}")
     print(f"{'whole call (median, instrumented)':<48} {whole * 1e3:8.3f}")
-    print(f"{'whole call (median, plain)':<48} {statistics.median(bare) * 1e3:8.3f}")
-    return 0
 
 
 if __name__ == "__main__":

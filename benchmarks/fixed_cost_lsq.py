@@ -19,14 +19,13 @@ import resource
 import statistics
 import sys
 import time
-from collections import defaultdict
 from pathlib import Path
 from typing import Any, Callable
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 
 import lintools as lt  # noqa: E402
-from fixed_cost import _patch, _times, _wrap  # noqa: E402
+from fixed_cost import _patch, _wrap, print_stages, staged  # noqa: E402
 from lintools.models import least_squares as front, lsq_gram  # noqa: E402
 from problems import _regression_data  # noqa: E402
 
@@ -87,30 +86,9 @@ def main(argv: list[str] | None = None) -> int:
     for _ in range(args.calls):
         plain(X, y)
     faults = (resource.getrusage(resource.RUSAGE_SELF).ru_minflt - f0) / args.calls
-    timed = instrument()
-    for _ in range(5):
-        timed(X, y)
-    per_stage: dict[str, list[float]] = defaultdict(list)
-    totals = []
-    for _ in range(args.calls):
-        gc.collect()
-        _times.clear()
-        t0 = time.perf_counter()
-        timed(X, y)
-        totals.append(time.perf_counter() - t0)
-        for _, key in STAGES:
-            per_stage[key].append(_times.get(key, 0.0))
-        unknown = set(_times) - {key for _, key in STAGES}
-        assert not unknown, unknown
-    whole = statistics.median(totals)
+    per_stage, whole = staged(instrument(), X, y, STAGES, args.calls, warmup=5)
     print(f"lintools.least_squares at n={args.n}, p={args.p} ({fit.convergence.solver}); median of {args.calls} calls")
-    print(f"{'stage':<48} {'ms':>8} {'share':>7}")
-    for label, key in STAGES:
-        ms = statistics.median(per_stage[key]) * 1e3
-        print(f"{label:<48} {ms:8.3f} {ms / (whole * 1e3):7.1%}")
-    total = sum(statistics.median(per_stage[key]) for _, key in STAGES) * 1e3
-    print(f"{'sum of the stage medians':<48} {total:8.3f}")
-    print(f"{'whole call (median, instrumented)':<48} {whole * 1e3:8.3f}")
+    print_stages(STAGES, per_stage, whole)
     print(f"{'whole call (median, plain, wall)':<48} {statistics.median(bare) * 1e3:8.3f}")
     print(f"{'whole call (median, plain, CPU)':<48} {statistics.median(cpu) * 1e3:8.3f}")
     print(f"{'minor page faults per plain call':<48} {faults:8.1f}")

@@ -29,15 +29,7 @@ import statsmodels.api as sm
 import lintools as lt
 from lintools.cli.demo_data import FEATURES
 from test_cli_report import Strict, test_every_number_on_the_page_is_the_twins_to_the_digits_printed as numbers_match
-from test_cli_report import rows_of, run
-
-
-@pytest.fixture(scope="module")
-def demo(tmp_path_factory):
-    folder = tmp_path_factory.mktemp("report_kinds")
-    proc = run("demo", "--out", "demo", "--quiet", "--rows", "1500", cwd=folder)
-    assert proc.returncode == 0, proc.stderr
-    return folder
+from test_cli_report import demo, rows_of, run  # noqa: F401 (demo: the demo folder fixture)
 
 
 def _report(folder, model, out, *extra, env=None):

@@ -12,7 +12,7 @@ from .charts import Chart, term_words
 from .page import Page, escape
 from .svg import chart_svg
 
-__all__ = ["audit", "convergence", "figure", "heading", "model_data", "out_of_time", "refit", "segments", "stability", "verdicts"]
+__all__ = ["audit", "convergence", "figure", "heading", "kind_sections", "model_data", "out_of_time", "refit", "segments", "stability", "verdicts"]
 
 
 def heading(h: str, key: str, title: str, at: tuple) -> str:
@@ -245,3 +245,16 @@ def segments(pg: Page, columns: Sequence[tuple[str, str, str]]) -> str:
                     + [pg.cell((*key, "stability_index"), ".4f"), pg.word(flag.strip())])
     return (f'<h2 id="segments">Segments of {escape(s["by"])}</h2>'
             f"<p>Every segment is shown; none is dropped. {escape(s['small_rule'])}</p>" + pg.table(head, rows))
+
+
+def kind_sections(pg: Page, charts: dict[str, Chart], body: Any, key: str,
+                  columns: Sequence[tuple[str, str, str]]) -> list[str]:
+    """The sections of a kind, in page order: ``body(pg, charts)`` (its own figures on the
+    development data), stability, out of time (``body`` again on the recent sample when
+    its entry ``key`` is there) and the segments with ``columns``."""
+    def later(p: Page) -> str:
+        if not p.get("out_of_time").get(key):
+            return ""
+        return body(p, charts, ("out_of_time",), "out-of-time ", "h3")
+
+    return [body(pg, charts), stability(pg, charts), out_of_time(pg, later), segments(pg, columns)]

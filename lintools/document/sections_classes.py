@@ -9,7 +9,7 @@ from __future__ import annotations
 
 from .charts import Chart
 from .page import Page, escape
-from .section_parts import figure, heading, out_of_time, segments, stability
+from .section_parts import figure, heading, kind_sections
 
 __all__ = ["sections", "verdict_items"]
 
@@ -102,11 +102,6 @@ def _classes(pg: Page, charts: dict[str, Chart], at: tuple = (), prefix: str = "
 
 def sections(pg: Page, charts: dict[str, Chart]) -> list[str]:
     """The softmax sections, in page order."""
-    def later(p: Page) -> str:
-        if not p.get("out_of_time").get("classes"):
-            return ""
-        return _classes(p, charts, ("out_of_time",), "out-of-time ", "h3")
-
-    return [_classes(pg, charts), stability(pg, charts), out_of_time(pg, later),
-            segments(pg, [("log-loss", "log_loss", ".5f"), ("Brier score", "brier", ".5f"),
-                          ("share whose most probable class occurred", "accuracy", ".4f")])]
+    return kind_sections(pg, charts, _classes, "classes",
+                         [("log-loss", "log_loss", ".5f"), ("Brier score", "brier", ".5f"),
+                          ("share whose most probable class occurred", "accuracy", ".4f")])

@@ -8,7 +8,7 @@ from __future__ import annotations
 
 from .charts import Chart
 from .page import Page, escape
-from .section_parts import figure, heading, out_of_time, segments, stability
+from .section_parts import figure, heading, kind_sections
 
 __all__ = ["sections", "verdict_items"]
 
@@ -95,13 +95,8 @@ def _bins(pg: Page, at: tuple) -> str:
 
 def sections(pg: Page, charts: dict[str, Chart]) -> list[str]:
     """The least-squares sections, in page order."""
-    def later(p: Page) -> str:
-        if not p.get("out_of_time").get("residuals"):
-            return ""
-        return _residuals(p, charts, ("out_of_time",), "out-of-time ", "h3")
-
-    return [_residuals(pg, charts), stability(pg, charts), out_of_time(pg, later),
-            segments(pg, [("case weight", "weight", ".6g"), ("mean observed", "mean_observed", ".5g"),
+    return kind_sections(pg, charts, _residuals, "residuals",
+                         [("case weight", "weight", ".6g"), ("mean observed", "mean_observed", ".5g"),
                           ("mean predicted", "mean_predicted", ".5g"), ("mean residual", "mean_residual", ".4g"),
                           ("root mean square residual", "root_mean_square", ".4g"),
-                          ("share explained", "explained", ".4f"), ("slope of observed on predicted", "slope", ".4f")])]
+                          ("share explained", "explained", ".4f"), ("slope of observed on predicted", "slope", ".4f")])
