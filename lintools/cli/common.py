@@ -9,7 +9,6 @@ from __future__ import annotations
 
 import argparse
 import dataclasses
-import inspect
 import json
 import math
 import os
@@ -297,9 +296,9 @@ def precision_words(kind: ModelKind, table: Any, names: Sequence[str], target: s
     """``{"data_precision": ...}`` for a fit of ``kind`` on the columns ``names`` of a table read
     with its written decimals: each numeric column at half a unit of its least precise written
     decimal, indicator columns exact, and the target's rounding for a model of a response;
-    empty when the table has no decimals or the fit takes no ``data_precision``."""
+    empty when the table has no decimals (every kind's fit takes ``data_precision``)."""
     dec = getattr(table, "written_decimals", None)
-    if dec is None or "data_precision" not in inspect.signature(kind.fit).parameters:
+    if dec is None:
         return {}
     y = None if kind.classifier else dec.get(target)
     return {"data_precision": Precision.written([dec.get(n) for n in names], y,
