@@ -72,7 +72,7 @@ from ..support.threads import row_buffer, scratch
 from ..support.validate import INTERCEPT_NAME, ReadOnlyArrays
 
 __all__ = ["Accuracy", "NEAR_ZERO", "SUBSAMPLE_ROWS", "UNIT", "Precision", "column_scaled", "digits_of",
-           "sensitivity", "accuracy_record", "subsample", "sample_note", "checked_precision", "half_unit"]
+           "sensitivity", "accuracy_record", "subsample", "sample_note", "checked_precision", "half_unit", "rows_of"]
 
 #: Unit roundoff of float64.
 UNIT = 2.0**-53
@@ -215,6 +215,11 @@ def subsample(n: int) -> np.ndarray:
     """At most ``SUBSAMPLE_ROWS`` evenly spaced row indices (all rows when fewer)."""
     m = min(n, SUBSAMPLE_ROWS)
     return (np.arange(m, dtype=np.int64) * n) // m
+
+
+def rows_of(Xa: np.ndarray, idx: np.ndarray) -> np.ndarray:
+    """The rows ``idx`` of ``Xa`` (the subsample), in a buffer the thread keeps."""
+    return np.take(Xa, idx, axis=0, out=row_buffer("accuracy rows", (idx.size, Xa.shape[1])))
 
 
 def column_scaled(c: np.ndarray, s: np.ndarray, rho: np.ndarray, intercept: bool, K: int = 1) -> np.ndarray:

@@ -41,12 +41,12 @@ from typing import Any
 
 import numpy as np
 
-from .accuracy import (FLOOR_FACTOR, UNIT, Accuracy, Precision, accuracy_record, column_scaled,
+from .accuracy import (FLOOR_FACTOR, UNIT, Accuracy, Precision, accuracy_record, column_scaled, rows_of,
                        sample_note, sensitivity, subsample)
 from ..support.threads import row_buffer
 from ..support.logistic_function import sigmoid
 
-__all__ = ["LikelihoodAnswer", "binary_accuracy", "binary_derivatives", "linear_predictor", "likelihood_accuracy", "column_rms", "sample_rows"]
+__all__ = ["LikelihoodAnswer", "binary_accuracy", "binary_derivatives", "linear_predictor", "likelihood_accuracy", "column_rms"]
 
 _ROOT3 = math.sqrt(3.0)
 
@@ -103,16 +103,10 @@ def _binary_accuracy(problem: Any, Xa: np.ndarray, loss: Any, offset: np.ndarray
                            bool(problem.intercept), z, (M @ V @ M.T) * problem.weight_scale, gradient_z,
                            problem.to_original(z)[:, None], tuple(terms))
     idx = subsample(Xa.shape[0])
-    Xs = sample_rows(Xa, idx)
+    Xs = rows_of(Xa, idx)
     eta = linear_predictor(ans, Xs, None if offset is None else offset[idx])[:, 0]
     r, W, size = binary_derivatives(eta, loss.y[idx], loss.weights[idx], loss.trials[idx])
     return likelihood_accuracy(ans, Xs, r, W, size, Xa.shape[0], precision)
-
-
-def sample_rows(Xa: np.ndarray, idx: np.ndarray) -> np.ndarray:
-    """The rows ``idx`` of ``Xa`` in a buffer the thread keeps (at small sizes a fresh
-    array's pages cost as much as the arithmetic on them)."""
-    return np.take(Xa, idx, axis=0, out=row_buffer("accuracy rows", (idx.size, Xa.shape[1])))
 
 
 def binary_derivatives(eta: np.ndarray, y: np.ndarray, w: np.ndarray, m: Any = 1.0) -> tuple:

@@ -30,7 +30,7 @@ from typing import Any
 
 import numpy as np
 
-from .accuracy import (FLOOR_FACTOR, UNIT, Accuracy, Precision, accuracy_record, column_scaled,
+from .accuracy import (FLOOR_FACTOR, UNIT, Accuracy, Precision, accuracy_record, column_scaled, rows_of,
                        sample_note, sensitivity, subsample)
 from ..support.threads import row_buffer
 from .lsq_record import PathAnswer
@@ -64,7 +64,7 @@ def _least_squares_accuracy(Xa: np.ndarray, y1: np.ndarray, w1: np.ndarray | Non
     idx = subsample(n)
     rows, how = (n, "evenly spaced") if sample is None else sample
     ex = fit.col_exp
-    Xs = np.take(Xa, idx, axis=0, out=row_buffer("accuracy rows", (idx.size, p)))
+    Xs = rows_of(Xa, idx)
     if np.any(ex):
         np.ldexp(Xs, -ex, out=Xs)
     ys = y1[idx]

@@ -32,8 +32,8 @@ from typing import Any
 
 import numpy as np
 
-from .accuracy import Accuracy, Precision, subsample
-from .glm_accuracy import LikelihoodAnswer, column_rms, likelihood_accuracy, linear_predictor, sample_rows
+from .accuracy import Accuracy, Precision, rows_of, subsample
+from .glm_accuracy import LikelihoodAnswer, column_rms, likelihood_accuracy, linear_predictor
 from ..engine.multinomial import softmax_parts
 from ..support.text import intercept_label
 
@@ -87,7 +87,7 @@ def _softmax_accuracy(problem: Any, Xa: np.ndarray, loss: Any, offset: np.ndarra
     ans = softmax_answer(problem, z, Vz, gradient_z, classes, order, ref, names,
                          column_rms(problem.c, problem.spread))
     idx = subsample(Xa.shape[0])
-    Xs = sample_rows(Xa, idx)
+    Xs = rows_of(Xa, idx)
     eta = linear_predictor(ans, Xs, None if offset is None else offset[idx])
     r, W, size = softmax_derivatives(eta, loss.codes[idx], loss.weights[idx], ref is not None)
     return likelihood_accuracy(ans, Xs, r, W, size, Xa.shape[0], precision)
