@@ -542,7 +542,7 @@ def specs(tmp: Path) -> list[Spec]:
 
 
 #: methods of records without arguments: called on every record a hostile call returns
-NO_ARGUMENT_METHODS = ("report", "to_dict", "describe", "parameter_terms", "coefficient_table", "summary",
+NO_ARGUMENT_METHODS = ("report", "to_dict", "describe", "parameter_terms", "coefficient_table", "headline",
                        "dependencies", "bin_labels")
 #: covered by the follow-up calls on returned records (argument-free, or with defaults only)
 FOLLOW_UP = {f"{c}.{m}" for c in ("SplitBalance", "BrierScore", "ReliabilityTable", "CalibrationLine",
@@ -550,10 +550,10 @@ FOLLOW_UP = {f"{c}.{m}" for c in ("SplitBalance", "BrierScore", "ReliabilityTabl
              for m in ("report",)} | {f"{c}.to_dict" for c in ("LinearFit", "LogisticFit", "SoftmaxFit")} | {
     "SoftmaxFit.parameter_terms"} | {
     "Accuracy.report"} | {  # every fit's report() prints it (LinearFit.report, LogisticFit.report)
-    "BandTests.report", "BandTests.summary", "BandTests.to_dict", "Collinearity.dependencies", "Collinearity.report",
+    "BandTests.report", "BandTests.headline", "BandTests.to_dict", "Collinearity.dependencies", "Collinearity.report",
     "Collinearity.to_dict", "GainsTable.report", "GainsTable.to_dict", "KolmogorovSmirnov.report",
     "KolmogorovSmirnov.to_dict", "PopulationStability.bin_labels", "PopulationStability.report",
-    "PopulationStability.summary", "PopulationStability.to_dict"}
+    "PopulationStability.headline", "PopulationStability.to_dict"}
 
 
 # ----------------------------------------------------------------- running calls
