@@ -94,7 +94,7 @@ class CoefficientComparison:
         for i, t in enumerate(self.terms):
             lines.append(
                 t.ljust(w) + f"{self.delivered[i]:15.7g}{self.refit[i]:15.7g}{self.difference[i]:14.4g}"
-                f"{self.difference_in_se[i]:9.2f}" + ("  within what the data determine" if inside is not None
+                f"{self.difference_in_se[i]:z9.2f}" + ("  within what the data determine" if inside is not None
                                                         and inside[i] else "")
             )
         lines.append("")
