@@ -10,7 +10,7 @@ Each line is one fit: its name and a SHA-256 of the bytes of its coefficients, i
 standard errors, covariance, log-likelihood, deviance, null deviance, likelihood-ratio
 statistic and p-value, and the convergence fields (converged, iterations, gradient norm,
 objective, message).  The fits cover binary logistic (plain, weights, offsets, ridge, Firth,
-grouped, no intercept, shifted columns), softmax (plain, weights, ridge), and 60,000-row
+grouped, no intercept, shifted columns), softmax (plain, weights, ridge, symmetric ridge), and 60,000-row
 fits that take the engine's shortcuts for large problems (float32 step Hessians, warm
 start, Newton sketch: :class:`lintools.engine.settings.FastPaths`).
 """
@@ -89,6 +89,7 @@ def fits() -> list[tuple[str, Callable[[], Any]]]:
         ("softmax 1e4x10 K=3", lambda: lt.softmax(Xm, ym)),
         ("softmax weights", lambda: lt.softmax(Xm, ym, weights=wm)),
         ("softmax ridge", lambda: lt.softmax(Xm, ym, l2=2.0)),
+        ("softmax symmetric ridge", lambda: lt.softmax(Xm, ym, l2=2.0, reference=None)),
         ("softmax 6e4x8 K=4 fast paths", lambda: lt.softmax(Xm6, ym6)),
     ]
 

@@ -58,3 +58,18 @@ def test_block_passes_benchmark_quick_mode_runs():
     for row in rows:
         assert float(row.split()[-1]) >= 10, row  # digits of agreement with lintools.logistic (LRE)
     assert proc.stdout.count("target >= 0.6") == 2, proc.stdout
+
+
+def test_step_precision_study_quick_mode_runs():
+    # the study of float32 step Hessians below their row threshold in its tiny mode: both
+    # paths fit the same rows, and their coefficients agree within what tol allows
+    proc = subprocess.run(
+        [sys.executable, str(ROOT / "benchmarks" / "step_precision.py"), "--quick"],
+        capture_output=True, text=True, timeout=300,
+    )
+    assert proc.returncode == 0, proc.stderr
+    rows = [line.split() for line in proc.stdout.splitlines()[1:]]
+    assert len(rows) == 2, proc.stdout
+    for row in rows:
+        assert float(row[5]) < 1e-9, row  # the two paths' largest difference, relative
+        assert min(float(row[6]), float(row[7])) >= 10, row  # solver digits of both fits

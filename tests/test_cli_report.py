@@ -9,7 +9,8 @@ development CSV and a drifted recent CSV).  Checked here:
 * self-contained: no script, no ``src``, no link but to its own sections, no URL at all
   (the only ``://`` would be in a file name of the user's);
 * every number printed in an element with a ``data-k`` JSON Pointer (RFC 6901) equals the
-  twin's value at that pointer to the digits printed, and every table cell with a digit
+  twin's value at that pointer to the digits printed (a figure that rounds to zero without
+  a sign), and every table cell with a digit
   carries a pointer (a label cell names a band or a term, not a figure);
 * two runs on the same inputs give byte-identical files except the date line;
 * the twin's numbers equal the library's functions on the same rows (source:
@@ -140,6 +141,8 @@ def test_every_number_on_the_page_is_the_twins_to_the_digits_printed(written):
             continue
         m = NUMBER.match(text)
         assert m, (path, text)
+        # a figure that rounds to zero carries no sign (common practice in printed tables)
+        assert not re.fullmatch(r"-0(\.0*)?(e[-+]?\d+)?", text), (path, text, value)
         mant, exp = m.group(1), int((m.group(2) or "e0")[1:])
         decimals = len(mant.split(".")[1]) if "." in mant else 0
         half_unit = 0.5 * 10.0 ** (exp - decimals)
@@ -255,3 +258,18 @@ def test_band_tests_are_refused_by_name_for_a_model_without_one_probability(writ
               cwd=folder)
     assert out.returncode == 2 and "--bands does not apply to a least-squares model" in out.stderr
     assert not (folder / "ls.html").exists()
+
+
+def test_a_figure_that_rounds_to_zero_prints_without_a_sign():
+    """A difference of -1e-15 standard errors printed to two places reads 0.00, not -0.00: the sign
+    of a value below the printed precision says nothing (common practice in printed tables; Python's
+    'z' format option, PEP 682).  A value that does not round to zero keeps its sign."""
+    from lintools.document.page import number_text
+
+    assert number_text(-1e-15, ".2f") == "0.00"
+    assert number_text(np.float64(-0.004), ".2f") == "0.00"
+    assert number_text(-0.006, ".2f") == "-0.01"
+    assert number_text(-1e-300, ".4g") == "-1e-300"
+    assert number_text(-2.5e-16, ".4g") == "-2.5e-16"
+    assert number_text(np.int64(-3), "int") == "-3"
+    assert number_text(-0.0, "") == "-0.0"  # the shortest exact text keeps what it is given

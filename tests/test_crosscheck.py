@@ -88,3 +88,15 @@ def test_implied_l2_says_when_no_ridge_explains_the_coefficients():
     fit = lt.least_squares(X, y)
     got = implied_l2(X, y, fit.coefficients * np.array([1.0, -1.0, 1.0]), fit.intercept, model="least_squares")
     assert got.residual > 0.1
+
+
+def test_a_difference_that_rounds_to_zero_prints_without_a_sign():
+    # statsmodels' stack-loss data; a delivered model a hair below the refit: its differences
+    # in standard errors (about -1e-13) print as 0.00, not -0.00 (common practice in printed
+    # tables: the sign of a value below the printed precision says nothing)
+    X, y = _stackloss()
+    fit = lt.least_squares(X, y)
+    cmp = compare_coefficients(fit, fit.coefficients * (1 - 1e-13), fit.intercept * (1 - 1e-13))
+    assert np.any(cmp.difference_in_se < 0) and np.max(np.abs(cmp.difference_in_se)) < 0.005
+    text = cmp.report()
+    assert "-0.00" not in text and " 0.00" in text

@@ -23,7 +23,7 @@ from ..models.driver import (
 from ..models.softmax import (
     SEPARATION_REMEDY,
     SoftmaxWatch,
-    intercept_subspace,
+    sum_zero_subspace,
     reference_index,
     softmax_record,
     z_covariance,
@@ -283,8 +283,8 @@ def softmax_blocks(
     problem = _SoftmaxBlockProblem(runner, c, s, intercept, lam, Kf, a_start, scale, part["W"] / scale)
     target: Any = problem
     start = None
-    if ref is None and intercept:
-        E = intercept_subspace(problem)
+    if ref is None:
+        E = sum_zero_subspace(problem)
         target = AffineProblem(problem, np.zeros(problem.size), E)
         start = E.T @ problem.start()
     res, z, Vz = solve_passes(

@@ -78,7 +78,9 @@ def lookup(doc: Any, path: str) -> Any:
 def number_text(value: Any, spec: str, missing: str = "not defined") -> str:
     """A number as the page prints it: ``spec`` is a format spec (``".4f"``; ``""`` the
     shortest text that reads back as the same number), ``"int"``, or ``"p"`` (a p-value
-    to 3 significant digits; an exact 0 says why it is 0).  Text is printed as it is."""
+    to 3 significant digits; an exact 0 says why it is 0).  A rounded number that rounds
+    to zero prints without a sign (``-1e-15`` at ``".2f"`` is ``0.00``): the sign of a
+    difference below the printed precision carries no information.  Text is printed as it is."""
     if value is None or (isinstance(value, float) and not math.isfinite(value)):
         return missing
     if isinstance(value, bool):
@@ -91,6 +93,8 @@ def number_text(value: Any, spec: str, missing: str = "not defined") -> str:
         if value == 0:
             return "0 (below the smallest double)"
         return f"{value:.3g}"
+    if "." in spec and isinstance(value, float):
+        spec = "z" + spec  # a value that rounds to zero prints 0.00, not -0.00 (PEP 682)
     return format(value, spec)
 
 

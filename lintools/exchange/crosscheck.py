@@ -94,7 +94,7 @@ class CoefficientComparison:
         for i, t in enumerate(self.terms):
             lines.append(
                 t.ljust(w) + f"{self.delivered[i]:15.7g}{self.refit[i]:15.7g}{self.difference[i]:14.4g}"
-                f"{self.difference_in_se[i]:9.2f}" + ("  within what the data determine" if inside is not None
+                f"{self.difference_in_se[i]:z9.2f}" + ("  within what the data determine" if inside is not None
                                                         and inside[i] else "")
             )
         lines.append("")
@@ -356,8 +356,14 @@ def _score_statistic(fit, Xa, y, weights, coef, b, idx) -> float:
             raise InputError(SCORE_UNDEFINED.format(
                 why="the information matrix there is singular (a column of X is constant or collinear with "
                     "others on these rows, or the delivered coefficients put every fitted probability at 0 or 1)"))
-        Uq = (U / scale)[idx]
-        stat = float(Uq @ Vs[np.ix_(idx, idx)] @ Uq)
+        # the quadratic form over every entry but the nuisance intercepts (whose score is
+        # 0): the compared ones and, in the symmetric softmax form, the last class's, which
+        # are minus the sum of the others' and are not compared separately
+        keep = np.arange(U.size)
+        if free_intercept:
+            keep = keep[keep % (len(fit.names) + 1) != 0]
+        Uq = (U / scale)[keep]
+        stat = float(Uq @ Vs[np.ix_(keep, keep)] @ Uq)
     if not np.isfinite(stat):
         raise InputError(SCORE_UNDEFINED.format(why="the statistic exceeds the float64 range"))
     return max(stat, 0.0)

@@ -9,9 +9,12 @@ Objective (``w`` case weights, ``l2 >= 0``; intercepts never penalised)
 
 ``reference="first"`` (or a class label) pins that class's column of ``(b, B)`` at zero,
 which makes the estimate identifiable without a penalty; ``reference=None`` is the
-symmetric form, which needs ``l2 > 0`` for the slopes and reports intercepts with mean
-zero (their shared shift does not change any probability; the solver works in the
-subspace orthogonal to it).  The three solvers of :mod:`lintools.engine` are used
+symmetric form, which needs ``l2 > 0`` for the slopes.  Adding one vector to every
+class's column changes no probability, and the penalty is least where each slope's class
+values sum to zero; the intercepts are reported with mean zero.  So every term's class
+values sum to zero in the symmetric form, and the solver works in that subspace
+(:func:`sum_zero_subspace`), where the likelihood, not only the penalty, determines every
+direction.  The three solvers of :mod:`lintools.engine` are used
 unchanged on the multinomial loss of :mod:`lintools.engine.multinomial`.
 
 References
@@ -162,14 +165,21 @@ class SoftmaxFamily:
         return float(np.max(np.abs(problem.eta(-(Vz @ ev.gradient), with_offset=False))))
 
 
-def intercept_subspace(problem: LinearModelProblem) -> np.ndarray:
-    """Basis ``E`` of the z coordinates whose intercepts sum to zero (orthonormal intercept part)."""
-    K, size = problem.K, problem.size
+def sum_zero_subspace(problem: LinearModelProblem) -> np.ndarray:
+    r"""Orthonormal basis ``E`` of the z coordinates in which every term's K class values sum
+    to zero (the symmetric form's identifiable subspace; ``E = I_{p+1} \otimes Q`` with ``Q``
+    an orthonormal basis of the vectors of length K summing to zero).
+
+    Adding one vector to every class's column of ``(b, B)`` changes no probability, and the
+    ridge penalty (slopes only) is least, among all such shifts, where each slope's class
+    values sum to zero; the intercepts are reported with mean zero.  So the symmetric form's
+    answer lies in this subspace exactly, and solving there leaves the likelihood to
+    determine every direction (outside it only the penalty would, ``l2 / s_j^2`` in z, and a
+    gradient test per unit weight could leave an error of ``tol n s_j^2 / l2`` there).
+    """
+    K, p1 = problem.K, problem.p1
     Q, _ = np.linalg.qr(np.column_stack([np.ones(K), np.eye(K)[:, : K - 1]]))
-    E = np.zeros((size, size - 1))
-    E[:K, : K - 1] = Q[:, 1:]
-    E[K:, K - 1 :] = np.eye(size - K)
-    return E
+    return np.kron(np.eye(p1), Q[:, 1:])  # z is term-major: index j K + k
 
 
 @with_row_threads
@@ -213,7 +223,9 @@ def softmax(
         ``l2 = 1/C`` with ``reference=None``).
     reference : "first", a class label, or None
         The class whose column is pinned at zero ("first": the first sorted label), or
-        None for the symmetric form, which needs ``l2 > 0``.
+        None for the symmetric form, which needs ``l2 > 0``: each term's class values
+        then sum to zero, and the standard errors and covariance are those of that
+        sum-to-zero form (the inverse penalised information within it).
     solver : {"newton", "lbfgs", "gradient"}
         As for :func:`lintools.logistic`; first-order solvers usually need a larger
         ``max_iter``.
@@ -295,8 +307,8 @@ def softmax(
         constant_columns(Xa, w > 0, names_t, problem.spread, problem.c)
     target = problem
     start = None
-    if ref is None and intercept:
-        E = intercept_subspace(problem)
+    if ref is None:
+        E = sum_zero_subspace(problem)
         target = AffineProblem(problem, np.zeros(problem.size), E)
         start = E.T @ problem.start()
     family = SoftmaxFamily(Xa, loss, off, names_t, intercept, lam, tuple(classes), order)
@@ -459,7 +471,7 @@ def score_and_information(fit: SoftmaxFit, X: Any, y: Any, weights: Any, coef: A
             base: Any = P
             start = None
             if ref is None:
-                E = intercept_subspace(P)
+                E = sum_zero_subspace(P)
                 base, start = AffineProblem(P, np.zeros(P.size), E), E.T @ P.start()
             r = newton(base, tol=DEFAULT_TOL, max_iter=100, start=start)
             zb = base.embed(r.z) if base is not P else r.z
@@ -502,9 +514,11 @@ def score_and_information(fit: SoftmaxFit, X: Any, y: Any, weights: Any, coef: A
     sel = [internal_col[k] for k in cols]
     Uc = U[:, sel].T.ravel()
     Ic = info[:, sel][:, :, :, sel].transpose(1, 0, 3, 2).reshape(len(sel) * per, len(sel) * per)
-    if ref is None and fit.with_intercept:
-        # the shared shift of the intercepts carries no information and its score is 0:
-        # adding u u' along it makes U' I^-1 U the pseudo-inverse form
-        at = np.arange(K) * per
-        Ic[np.ix_(at, at)] += 1.0 / K
+    if ref is None:
+        # each term's shared shift over the classes carries no information from the data
+        # (only the penalty's, along which the centred score is 0): adding u u' along it
+        # makes U' I^-1 U the pseudo-inverse form
+        for t in range(per):
+            at = np.arange(K) * per + t
+            Ic[np.ix_(at, at)] += 1.0 / K
     return Uc, 0.5 * (Ic + Ic.T)

@@ -6,7 +6,8 @@ the symmetric form, the K - 1 other than the reference class otherwise), term-ma
 (``index = j K' + k``).  As for the binary fit (:mod:`lintools.models.glm_accuracy`):
 
 * Solver: the Newton step ``d = H_z^{-1} g_z`` at the answer (in the symmetric form through
-  the subspace of intercepts summing to zero: ``H_z^{-1}`` is then ``E (E'HE)^{-1} E'``),
+  the subspace where each term's class values sum to zero: ``H_z^{-1}`` is then
+  ``E (E'HE)^{-1} E'``),
   mapped to the column-scaled coefficients, plus the float64 rounding floor of the
   gradient (rounding ``u`` of the centred design and of each term of ``r_i``) and of the
   stored coefficients (Dennis & Schnabel 1996, sec. 5.2).

@@ -29,8 +29,9 @@ class SoftmaxFit(_FitBase):
     ``covariance`` is the inverse (penalised) information of the **free parameters** in
     this order: for each estimated class in ``classes`` order (the reference class
     skipped), its intercept (when fitted) and then its ``p`` slopes.  ``parameter_terms()``
-    names the rows.  In the symmetric form with an intercept the matrix is singular along
-    the shared shift of the intercepts (that direction is not estimated).
+    names the rows.  In the symmetric form every term's class values sum to zero, and the
+    matrix is the inverse penalised information within that subspace: it is singular along
+    each term's shared shift over the classes (those directions are not estimated).
 
     ``null_deviance`` belongs to the intercept-only model (offset and weights kept); the
     likelihood-ratio test against it (``lr_statistic`` on ``lr_degrees_of_freedom`` =
@@ -70,9 +71,10 @@ class SoftmaxFit(_FitBase):
 
     def _free_parameters(self, coef: Any, intercept: Any) -> tuple[np.ndarray, np.ndarray]:
         """Delivered (p, K) slopes and (K,) intercepts as a vector in ``covariance`` order,
-        re-expressed in this fit's parametrisation (reference column subtracted, or the
-        intercepts centred in the symmetric form), and the indices that are compared
-        (the intercepts only when delivered; in the symmetric form all but the last)."""
+        re-expressed in this fit's parametrisation (reference column subtracted, or each
+        term's class values centred in the symmetric form: the same probabilities), and the
+        indices that are compared (the intercepts only when delivered; in the symmetric form
+        every class but the last, whose values are minus the sum of the others')."""
         B = np.asarray(coef, dtype=float)
         K = len(self.classes)
         p = len(self.names)
@@ -84,16 +86,16 @@ class SoftmaxFit(_FitBase):
             ref = self.classes.index(self.reference_class)
             B, b = B - B[:, [ref]], b - b[ref]
         else:
-            b = b - b.mean()
+            B, b = B - B.mean(axis=1, keepdims=True), b - b.mean()
         theta = self._stack(B, b)
         per = p + int(self.with_intercept)
         idx = np.arange(theta.size)
         if self.with_intercept and intercept is None:
             idx = idx[np.arange(theta.size) % per != 0]
-        elif self.with_intercept and self.reference_class is None:
-            # centred intercepts: the last is minus the sum of the others (the covariance is
-            # singular along their shared shift), so it is left out of the comparison
-            idx = idx[idx != (len(self.classes) - 1) * per]
+        if self.reference_class is None:
+            # centred terms: the last class is minus the sum of the others (the covariance is
+            # singular along each term's shared shift), so it is left out of the comparison
+            idx = idx[idx < (K - 1) * per]
         return theta, idx
 
     # ----- evaluation on new rows ---------------------------------------------------------
