@@ -49,7 +49,7 @@ import numpy as np
 
 from ..support.threads import PassBuffers, add_up, for_rows
 
-__all__ = ["MultinomialLoss", "softmax_parts", "ROWS"]
+__all__ = ["MultinomialLoss", "probabilities", "softmax_parts", "ROWS"]
 
 
 #: Rows per block of the elementwise passes: a block's (K, ROWS) buffers stay in cache.
@@ -134,6 +134,22 @@ def softmax_parts(E: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         Q[lo:hi] = _complement(Pb, top).T
         np.log1p(rest, out=lognorm[lo:hi])
     return P, Q, lognorm
+
+
+def probabilities(eta: np.ndarray, reference: bool) -> np.ndarray:
+    """The (n, K) class probabilities at the linear predictor ``eta`` (n, outputs) of the
+    free columns (``reference``: the first class pinned at zero before them), a block of
+    rows at a time: only the exponentials and their totals are formed."""
+    first = int(reference)
+    n = eta.shape[0]
+    K = eta.shape[1] + first
+    out = np.empty((n, K))
+    blk = _Block(K, max(1, min(ROWS, n)))
+    for lo in range(0, n, ROWS):
+        S, _ = blk.shifted(eta[lo : lo + ROWS].T, first)
+        np.exp(S, out=S)
+        out[lo : lo + ROWS] = (S / np.add.reduce(S, axis=0)).T
+    return out
 
 
 class MultinomialLoss:
@@ -390,13 +406,7 @@ class MultinomialLoss:
 
     def mean(self, eta: np.ndarray) -> np.ndarray:
         """Class probabilities, (n, K)."""
-        E2 = _as_2d(eta)
-        out = np.empty((E2.shape[0], self.K))
-        for lo, hi, blk in self._blocks(E2.shape[0]):
-            S, _ = blk.shifted(E2[lo:hi].T, self._first)
-            total, _ = blk.normalise(S)
-            out[lo:hi] = (S / total).T
-        return out
+        return probabilities(_as_2d(eta), self.reference)
 
     def gradient(self, eta: np.ndarray) -> np.ndarray:
         """``w (pi - onehot)`` in the free columns; the own-class entry is ``-w (1 - pi_c)``."""

@@ -286,10 +286,12 @@ def sensitivity(Z: np.ndarray, gz: np.ndarray, r: np.ndarray, W: np.ndarray, B: 
         U = _row_terms(BA, WG[rows], r[rows], Bs)
         U *= U
         BA *= BA
+        BA2 = np.ascontiguousarray(BA.transpose(1, 0, 2)).reshape(P, -1)  # (P, rows K): BA_i^2 as one matrix
         for v, (sig, tau_w) in zip(var, errors):
             v += np.einsum("ij,ipj->p", sig[rows] * sig[rows], U)
             if tau_w is not None:  # an error of r_i (per output) moves the gradient by a_i times it
-                v += np.einsum("ipk,ik->p", BA, np.reshape(tau_w[rows] * tau_w[rows], (-1, K)))
+                t = np.reshape(tau_w[rows], (-1, K))
+                v += BA2 @ (t * t).ravel()
     return [scale * v for v in var]
 
 

@@ -35,7 +35,7 @@ import numpy as np
 
 from .accuracy import Accuracy, Precision, rows_of, subsample
 from .glm_accuracy import LikelihoodAnswer, column_rms, likelihood_accuracy, linear_predictor
-from ..engine.multinomial import softmax_parts
+from ..engine.multinomial import probabilities
 from ..support.text import intercept_label
 
 __all__ = ["softmax_accuracy", "softmax_answer", "softmax_derivatives"]
@@ -63,14 +63,22 @@ def softmax_derivatives(eta: np.ndarray, icodes: np.ndarray, w: np.ndarray, refe
     of the terms of ``r``, ``w_i (mu_i + e_{y_i})``."""
     m, Kf = eta.shape
     first = int(reference)
-    E = np.hstack([np.zeros((m, 1)), eta]) if reference else eta
-    mu = softmax_parts(E)[0][:, first:]
+    mu = probabilities(eta, reference)[:, first:]
     Y = np.zeros((m, Kf + first))
     Y[np.arange(m), icodes] = 1.0
-    r = w[:, None] * (mu - Y[:, first:])
-    W = -w[:, None, None] * (mu[:, :, None] * mu[:, None, :])
-    W[:, np.arange(Kf), np.arange(Kf)] += w[:, None] * mu
-    return r, W, w[:, None] * (mu + Y[:, first:])
+    Y = Y[:, first:]
+    wc = w[:, None]
+    r = wc * (mu - Y)
+    W = np.empty((m, Kf, Kf))
+    nw = -w
+    for k in range(Kf):  # -w mu_k mu_l, and w mu_k on the diagonal: pair by pair (K is small)
+        for l in range(Kf):
+            np.multiply(mu[:, k], mu[:, l], out=W[:, k, l])
+            W[:, k, l] *= nw
+        W[:, k, k] += w * mu[:, k]
+    Y += mu
+    Y *= wc
+    return r, W, Y
 
 
 def softmax_accuracy(*args: Any, **kwargs: Any) -> Accuracy:
