@@ -211,8 +211,9 @@ def solve_by_gram(
     else:
         ybar = 0.0
     idx = subsample_rows(n, w, n_pos, max(SUBSAMPLE_ROWS, 4 * (p + 1)))
-    # the subsample's rows, copied once (into a buffer the thread keeps) for the column units and the start
-    Xs = np.take(Xa, idx, axis=0, out=row_buffer("subsample rows", (idx.size, p)))
+    # the subsample's rows, copied once (into a buffer the thread keeps) for the column units and the start;
+    # mode="clip" (the indices are in range): with the default "raise" NumPy takes into a temporary first
+    Xs = np.take(Xa, idx, axis=0, out=row_buffer("subsample rows", (idx.size, p)), mode="clip")
     col_exp, inv = _column_units(Xs)
     lam = np.ldexp(lam, -2 * col_exp)  # the ridge on the unit coefficients
     if not np.all(np.isfinite(lam)):

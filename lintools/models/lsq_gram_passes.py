@@ -16,7 +16,7 @@ from __future__ import annotations
 import numpy as np
 
 from ..support.linalg import solve_lower, solve_upper
-from ..support.threads import add_up, for_rows, row_buffer, scratch
+from ..support.threads import add_up, for_rows, scratch
 
 __all__ = ["first_pass", "residual_pass", "subsample_rows", "subsample_start"]
 
@@ -183,11 +183,12 @@ def subsample_rows(n, w, n_pos, k):
 
 def subsample_start(Xs, y, ybar, w, idx, intercept, lam, W, inv):
     """Provisional centre, spread and starting values from the rows ``idx`` (``Xs``: the
-    design's rows ``idx``, not modified)."""
+    design's rows ``idx`` in a buffer of the caller's, which is overwritten: scaled,
+    centred and weighted in place, as a copy would be but without its fresh pages)."""
     k, p = Xs.shape
     ys = y[idx] - ybar
     if inv is not None:
-        Xs = Xs * inv
+        np.multiply(Xs, inv, out=Xs)
     ws = np.ones(k) if w is None else w[idx]
     Ws = float(ws.sum())
     if intercept:
@@ -196,7 +197,7 @@ def subsample_start(Xs, y, ybar, w, idx, intercept, lam, W, inv):
     else:
         xm, ym = np.zeros(p), 0.0
     # rows times sqrt(w_i), which unit weights leave as they are (x * 1 is x)
-    A = np.subtract(Xs, xm, out=row_buffer("subsample centred", Xs.shape))
+    A = np.subtract(Xs, xm, out=Xs)
     b = ys - ym
     if w is not None:
         A *= np.sqrt(ws)[:, None]

@@ -163,6 +163,8 @@ def _beta_cf(a, b, x, y, delta):
     Returns :math:`1/T`.
     """
     n = a.size
+    if n == 1:
+        return np.array([_beta_cf_one(float(a[0]), float(b[0]), float(x[0]), float(y[0]), float(delta[0]))])
     out = np.empty(n)
     idx = np.arange(n)
     near_one = x > 0.5
@@ -381,6 +383,41 @@ def _gamma_cf_one(a: float, x: float) -> float:
             return h
     raise LintoolsError(  # pragma: no cover
         "incomplete gamma continued fraction did not converge; please report the inputs"
+    )
+
+
+def _beta_cf_one(a: float, b: float, x: float, y: float, delta: float) -> float:
+    """:func:`_beta_cf` for one argument."""
+    f = (1.0 - delta) / (a + 1.0)
+    f = _FPMIN if abs(f) < _FPMIN else f
+    c, d = f, 0.0
+    prev = -((a + b) / (a + 1.0)) * x  # d_1
+    for m in range(1, _MAX_TERMS):
+        a2m = a + 2.0 * m
+        t_odd = ((a + m) / a2m) * ((a + b + m) / (a2m + 1.0))
+        t_even = (m / (a2m - 1.0)) * ((b - m) / a2m)
+        alpha = -prev * (t_even * x)
+        s_m = t_odd - t_even
+        if x > 0.5:
+            c_m = (
+                (2.0 * m + 1.0 - b) * (a / a2m) / (a2m + 1.0)
+                + (m / a2m) * ((3.0 * m + 2.0 - b) / (a2m + 1.0))
+                + t_even
+            )
+            beta = c_m + y * s_m
+        else:
+            beta = 1.0 - x * s_m
+        prev = -t_odd * x  # d_2m+1
+        d = beta + alpha * d
+        d = 1.0 / (_FPMIN if abs(d) < _FPMIN else d)
+        c = beta + alpha / c
+        c = _FPMIN if abs(c) < _FPMIN else c
+        step = c * d
+        f = f * step
+        if abs(step - 1.0) <= 2.0 * _EPS:
+            return 1.0 / f if f else math.copysign(math.inf, f)
+    raise LintoolsError(  # pragma: no cover - the fraction converges for every a, b > 0
+        "incomplete beta continued fraction did not converge; please report the inputs"
     )
 
 
