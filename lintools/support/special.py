@@ -104,20 +104,26 @@ def _stirling_rest(z: np.ndarray) -> np.ndarray:
     below; either way the absolute error is a few units of 1e-16.
     """
     z = np.asarray(z, dtype=float)
+    if z.size == 1 and z.item() >= 10.0:  # one argument: the series on a Python float (same bits)
+        return np.full(z.shape, _stirling_series(z.item()))
     out = np.empty_like(z)
     big = z >= 10.0
     if big.any():
-        zb = z[big]
-        r = (1.0 / zb) ** 2
-        acc = np.zeros_like(zb)
-        for c in reversed(_STIRLING):
-            acc = acc * r + c
-        out[big] = acc / zb
+        out[big] = _stirling_series(z[big])
     if (~big).any():
         zs = z[~big]
         lg = np.array([math.lgamma(v) for v in zs])
         out[~big] = lg - ((zs - 0.5) * np.log(zs) - zs + 0.5 * _LOG_2PI)
     return out
+
+
+def _stirling_series(zb):
+    """Stirling's series for ``z >= 10`` (an array, or one Python float)."""
+    r = (1.0 / zb) ** 2
+    acc = 0.0
+    for c in reversed(_STIRLING):
+        acc = acc * r + c
+    return acc / zb
 
 
 def _log1pmx_neg(u: np.ndarray) -> np.ndarray:
@@ -127,21 +133,27 @@ def _log1pmx_neg(u: np.ndarray) -> np.ndarray:
     :math:`g = u s - 2 \sum_{k\ge1} s^{2k+1}/(2k+1)`, is used (|s| <= 1/3).
     """
     u = np.asarray(u, dtype=float)
+    if u.size == 1 and abs(u.item()) < 1.0:  # one argument: the series on a Python float (same bits)
+        return np.full(u.shape, _log1pmx_series(u.item()))
     out = np.empty_like(u)
     near = np.abs(u) < 1.0
     if near.any():
-        un = u[near]
-        s = un / (2.0 + un)
-        s2 = s * s
-        acc = np.zeros_like(s)
-        for k in range(20, 0, -1):
-            acc = acc * s2 + 1.0 / (2 * k + 1)
-        out[near] = un * s - 2.0 * s * s2 * acc
+        out[near] = _log1pmx_series(u[near])
     far = ~near
     if far.any():
         with np.errstate(divide="ignore"):
             out[far] = u[far] - np.log1p(u[far])
     return out
+
+
+def _log1pmx_series(un):
+    """The series of :func:`_log1pmx_neg` for ``|u| < 1`` (an array, or one Python float)."""
+    s = un / (2.0 + un)
+    s2 = s * s
+    acc = 0.0
+    for k in range(20, 0, -1):
+        acc = acc * s2 + 1.0 / (2 * k + 1)
+    return un * s - 2.0 * s * s2 * acc
 
 
 # ------------------------------------------------------------- incomplete beta
