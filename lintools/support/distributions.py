@@ -84,7 +84,8 @@ import numpy as np
 from numpy.typing import ArrayLike
 
 from .errors import InputError, LintoolsError
-from .special import MAX_SHAPE, _beta_core, _gamma_both, _pair_from_ratio, _ratio, _two_prod
+from .special import MAX_SHAPE, _beta_core, _pair_from_ratio, _ratio, _two_prod
+from .special_gamma import _gamma_both
 
 __all__ = [
     "normal_sf",
