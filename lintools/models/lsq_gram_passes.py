@@ -18,19 +18,20 @@ import numpy as np
 from ..support.linalg import solve_lower, solve_upper
 from ..support.threads import add_up, for_rows, scratch
 
-__all__ = ["first_pass", "residual_pass", "subsample_rows", "subsample_start"]
+__all__ = ["first_pass", "residual_pass", "shift_tile", "subsample_rows", "subsample_start"]
 
 
 class _Blocks:
     """Row blocks of ``X * inv - shift`` as views (no scale, no shift) or in one reusable
     buffer; ``inv`` (powers of two, exact) is None unless a column needs rescaling."""
 
-    def __init__(self, X: np.ndarray, shift: np.ndarray | None, rows: int, inv: np.ndarray | None = None):
+    def __init__(self, X: np.ndarray, shift: np.ndarray | None, rows: int, inv: np.ndarray | None = None,
+                 tile: np.ndarray | None = None):
         self.X = X
         self.shift = shift
         self.inv = inv
         self.flat = shift is not None and X.flags.c_contiguous
-        self.tile = _tiled(shift, rows) if self.flat else None
+        self.tile = (tile if tile is not None else _tiled(shift, rows)) if self.flat else None
 
     def get(self, lo: int, hi: int, writable: bool) -> np.ndarray:
         """The block of rows ``lo:hi``; a copy goes into a buffer of the calling thread
@@ -52,6 +53,13 @@ class _Blocks:
         return out
 
 
+def shift_tile(X: np.ndarray, shift: np.ndarray | None, rows: int) -> np.ndarray | None:
+    """The tile of ``shift`` that the passes over ``X`` in blocks of ``rows`` subtract (None when
+    they need none), to be built once for every pass about that centre; it lives in a buffer of
+    the calling thread until the next tile is built there."""
+    return _tiled(shift, rows) if shift is not None and X.flags.c_contiguous else None
+
+
 def _tiled(v: np.ndarray, rows: int) -> np.ndarray:
     """``v`` repeated ``rows`` times, flat, in a buffer the thread keeps (filled by doubling
     copies: a broadcast into narrow rows is slow)."""
@@ -65,13 +73,13 @@ def _tiled(v: np.ndarray, rows: int) -> np.ndarray:
     return t
 
 
-def first_pass(X, y, ybar, w, shift, beta0, a0, rows, inv):
+def first_pass(X, y, ybar, w, shift, beta0, a0, rows, inv, tile=None):
     """Pass 1: moments of the shifted columns, of ``yt``, and of the start's residual
     (block by block on the row threads, the block sums added in row order).  The products
     ``v' Z`` stay with the BLAS: the correction steps need their accuracy (NumPy's sum of
     products here cost the weighted benchmark a digit, measured 12.0 -> 11.0)."""
     n, p = X.shape
-    blocks = _Blocks(X, shift, rows, inv)
+    blocks = _Blocks(X, shift, rows, inv, tile)
     ones = np.ones(rows) if w is None else None  # ones @ Z: faster than Z.sum(axis=0)
 
     def part(lo: int, hi: int) -> tuple:
@@ -96,16 +104,17 @@ def first_pass(X, y, ybar, w, shift, beta0, a0, rows, inv):
     return float(W), sx, S, float(rho), gx, float(rss), float(ty), float(tyy)
 
 
-def residual_pass(X, y, ybar, w, shift, beta, a, rows, *, keep_residuals, lev, meat, inv=None, case_weights=None):
+def residual_pass(X, y, ybar, w, shift, beta, a, rows, *, keep_residuals, lev, meat, inv=None, case_weights=None,
+                  tile=None):
     """Residual of ``(a, beta)``: its weighted sum, cross products and square; options.
 
     ``lev`` = (K, km, Winv) gives the leverage ``w_i |K xt_i - km|^2 + w_i Winv``;
     ``meat`` = (kind, weight_type) accumulates ``[1, xt]' diag(m) [1, xt]``; the leverage
     of one copy of a case-weighted row divides by its weight in ``case_weights`` (the
-    caller's, whatever the scale of ``w``).
+    caller's, whatever the scale of ``w``); ``tile``: :func:`shift_tile` of ``shift`` (None: built here).
     """
     n, p = X.shape
-    blocks = _Blocks(X, shift, rows, inv)
+    blocks = _Blocks(X, shift, rows, inv, tile)
     e = np.empty(n) if keep_residuals else None
     hat = np.empty(n) if lev is not None else None
 
