@@ -430,3 +430,19 @@ def test_column_units_agree_with_the_exact_column_maxima(exps, rows, seed):
     expected = np.where(np.abs(top - 1) > _gram.COLUMN_BAND, top - 1, 0)
     assert np.array_equal(col_exp, expected)
     assert (inv is None) == (not np.any(expected))
+
+
+def test_a_block_handed_out_to_be_written_on_is_never_served_again():
+    # invariant of the Gram path's blocks (lintools.models.lsq_gram_passes.Blocks): every block read
+    # is X - shift exactly, whether it is copied afresh or served again from the pass before,
+    # even after a copy was handed out for writing (pass 1 weights its block in place)
+    passes = importlib.import_module("lintools.models.lsq_gram_passes")
+    rng = np.random.default_rng(4)
+    X = rng.normal(size=(300, 3)) + 5.0
+    shift = X[:7].mean(axis=0)
+    blocks = passes.Blocks(X, shift, 300)
+    first = blocks.get(0, 300, writable=False).copy()
+    assert np.array_equal(first, X - shift)
+    assert np.array_equal(blocks.get(0, 300, writable=False), first)  # served again
+    blocks.get(0, 300, writable=True)[:] *= 2.0  # written on by its user
+    assert np.array_equal(blocks.get(0, 300, writable=False), first)

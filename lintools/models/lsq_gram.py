@@ -81,7 +81,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .lsq_gram_passes import first_pass, residual_pass, shift_tile, subsample_rows, subsample_start
+from .lsq_gram_passes import Blocks, first_pass, residual_pass, subsample_rows, subsample_start
 from ..support.linalg import solve_lower, solve_upper
 from ..support.threads import row_buffer
 
@@ -238,7 +238,7 @@ def solve_by_gram(
         K = Linv / fac.s  # K xt = L^-1 D^-1 xt
         lev = (K, K @ mo.dm if intercept else None, 1.0 / mo.W if intercept else 0.0)
     meat = (covariance, weight_type) if covariance != "classical" else None
-    passes = _Passes(Xa, ya, ybar, w, mo.shift, rows, diagnostics, lev, meat, inv, case_weights, mo.tile)
+    passes = _Passes(Xa, ya, ybar, w, mo.shift, rows, diagnostics, lev, meat, inv, case_weights, mo.blocks)
     ref = _refine(passes, mo, fac, lam, intercept, tss, n_pos)
     if ref is None:
         return None
@@ -322,7 +322,7 @@ class _Moments:
     dm: np.ndarray
     C: np.ndarray
     diagC: np.ndarray
-    tile: np.ndarray | None
+    blocks: Blocks
 
 
 def _moments(Xa, ya, ybar, w, shift, beta0, a0, intercept, rows, inv) -> _Moments | None:
@@ -333,8 +333,8 @@ def _moments(Xa, ya, ybar, w, shift, beta0, a0, intercept, rows, inv) -> _Moment
     for attempt in range(2):
         # the start is a0 + x'beta0 = (a0 + shift'beta0) + (x - shift)'beta0
         a_start = a0 + (float(shift @ beta0) if shift is not None else 0.0) if intercept else 0.0
-        tile = shift_tile(Xa, shift, rows)  # built once for pass 1 and the residual passes about this centre
-        W, sx, S, rho, gx, _, ty, tyy = first_pass(Xa, ya, ybar, w, shift, beta0, a_start, rows, inv, tile)
+        blocks = Blocks(Xa, shift, rows, inv)  # for pass 1 and the residual passes about this centre
+        W, sx, S, rho, gx, _, ty, tyy = first_pass(Xa, ya, ybar, w, shift, beta0, a_start, rows, inv, blocks)
         shift_vec = np.zeros(p) if shift is None else shift
         if not intercept:
             dm = np.zeros(p)
@@ -352,7 +352,7 @@ def _moments(Xa, ya, ybar, w, shift, beta0, a0, intercept, rows, inv) -> _Moment
         shift = shift_vec + dm
     if not (np.all(np.isfinite(S)) and np.all(np.isfinite(sx)) and np.all(np.isfinite(gx))):
         return None  # overflow of huge entries: the QR path scales before it multiplies
-    return _Moments(shift, shift_vec, beta0, a_start, W, sx, rho, gx, ty, tyy, dm, C, diagC, tile)
+    return _Moments(shift, shift_vec, beta0, a_start, W, sx, rho, gx, ty, tyy, dm, C, diagC, blocks)
 
 
 @dataclass
@@ -410,12 +410,12 @@ class _Passes:
     meat: tuple | None
     inv: np.ndarray | None
     case_weights: np.ndarray | None
-    tile: np.ndarray | None
+    blocks: Blocks
 
     def at(self, beta: np.ndarray, a: float) -> tuple:
         return residual_pass(self.X, self.y, self.ybar, self.w, self.shift, beta, a, self.rows,
                               keep_residuals=self.keep_residuals, lev=self.lev, meat=self.meat, inv=self.inv,
-                              case_weights=self.case_weights, tile=self.tile)
+                              case_weights=self.case_weights, blocks=self.blocks)
 
 
 def _refine(passes: _Passes, mo: _Moments, fac: _Factor, lam, intercept, tss, n_pos) -> tuple | None:
