@@ -8,7 +8,11 @@ Usage::
 The timing wrappers and the way stages are counted (exclusive time, the containers' own
 time as "other" rows, medians over the calls) are those of benchmarks/fixed_cost.py; the
 data are those of benchmarks/problems.py.  The last lines give the median CPU time of a
-plain call and its minor page faults (fresh pages of new temporaries).
+plain call and its minor page faults (fresh pages of new temporaries), then the floor: the
+work no least-squares fit with inference can skip, timed in plain NumPy on the same data
+(the Gram matrix ``X'X`` by the BLAS's symmetric rank-k update, the cross products ``X'1``
+and ``X'y``, the Cholesky factor, one residual pass ``r = y - X b`` with ``X'r``, and the
+covariance ``(L L')^-1`` from the factor), and ``numpy.linalg.lstsq`` on ``[1, X]``.
 """
 
 from __future__ import annotations
@@ -23,6 +27,8 @@ from pathlib import Path
 from typing import Any, Callable
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
+
+import numpy as np  # noqa: E402
 
 import lintools as lt  # noqa: E402
 from fixed_cost import _patch, _wrap, print_stages, staged  # noqa: E402
@@ -64,6 +70,38 @@ def instrument() -> Callable[..., Any]:
     return _wrap(front.with_row_threads(inner), "session", container=True)
 
 
+def _median_ms(fn: Callable[[], Any], calls: int) -> float:
+    for _ in range(3):
+        fn()
+    times = []
+    for _ in range(calls):
+        t0 = time.perf_counter()
+        fn()
+        times.append(time.perf_counter() - t0)
+    return statistics.median(times) * 1e3
+
+
+def floor(X: Any, y: Any, calls: int) -> list[tuple[str, float]]:
+    """The unavoidable work of a fit with inference, piece by piece (median ms), in plain NumPy."""
+    n, p = X.shape
+    ones = np.ones(n)
+    G = X.T @ X
+    L = np.linalg.cholesky(G)
+    b = np.linalg.solve(G, X.T @ y)
+    pieces = [
+        ("Gram X'X (dsyrk)", lambda: X.T @ X),
+        ("cross products X'1, X'y", lambda: (ones @ X, y @ X)),
+        ("Cholesky", lambda: np.linalg.cholesky(G)),
+        ("residual pass y - X b, X'r", lambda: (y - X @ b) @ X),
+        ("covariance (L L')^-1 from the factor", lambda: (lambda Li: Li.T @ Li)(np.linalg.inv(L))),
+    ]
+    rows = [(label, _median_ms(fn, calls)) for label, fn in pieces]
+    rows.append(("floor: sum of the above", sum(ms for _, ms in rows)))
+    A = np.column_stack([ones, X])
+    rows.append(("numpy.linalg.lstsq on [1, X]", _median_ms(lambda: np.linalg.lstsq(A, y, rcond=None), max(5, calls // 5))))
+    return rows
+
+
 def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--n", type=int, default=10_000)
@@ -92,6 +130,8 @@ def main(argv: list[str] | None = None) -> int:
     print(f"{'whole call (median, plain, wall)':<48} {statistics.median(bare) * 1e3:8.3f}")
     print(f"{'whole call (median, plain, CPU)':<48} {statistics.median(cpu) * 1e3:8.3f}")
     print(f"{'minor page faults per plain call':<48} {faults:8.1f}")
+    for label, ms in floor(X, y, args.calls):
+        print(f"{label:<48} {ms:8.3f}")
     return 0
 
 

@@ -514,3 +514,19 @@ def test_t_sf_symmetry_and_monotone(t, ldf):
     df = math.exp(ldf)
     assert abs(t_sf(-t, df) + t_sf(t, df) - 1.0) <= 4e-16
     assert t_sf(t, df) >= t_sf(t + 0.5, df)
+
+
+@settings(max_examples=60, deadline=None)
+@given(lf=st.floats(-6.0, 6.0), d1=st.integers(1, 300), ld2=st.floats(0.0, math.log(1e6)),
+       lx=st.floats(-30.0, 0.0), la=st.floats(math.log(0.2), math.log(1e5)), lb=st.floats(math.log(0.2), math.log(1e5)))
+def test_one_argument_gives_the_bits_of_the_vectorised_loop(lf, d1, ld2, lx, la, lb):
+    # invariant: a tail probability does not depend on the other entries computed beside it, so one
+    # statistic (the Python-float loop of the continued fraction) gives the same bits as the same
+    # statistic in an array (the vectorised loop)
+    f, d2 = math.exp(lf), math.floor(math.exp(ld2)) + 1.0
+    one, many = f_sf(f, float(d1), d2), f_sf(np.array([f, 2.0 * f]), np.array([float(d1), 3.0]), np.array([d2, 7.0]))
+    assert float(one).hex() == float(many[0]).hex()
+    x, a, b = math.exp(lx), math.exp(la), math.exp(lb)
+    one = regularized_beta(x, a, b)
+    many = regularized_beta(np.array([x, 0.5]), np.array([a, 2.0]), np.array([b, 3.0]))
+    assert float(one).hex() == float(many[0]).hex()

@@ -414,3 +414,35 @@ def test_a_non_finite_entry_in_a_large_design_is_named(bad, weighted):
     w = rng.uniform(0.5, 2.0, size=30_000) if weighted else None
     with pytest.raises(lt.InputError, match=r"X has a non-finite value \((nan|inf|-inf)\) at row 12345, column 2"):
         lt.least_squares(X, y, weights=w)
+
+
+@settings(max_examples=80, deadline=None)
+@given(exps=st.lists(st.integers(-1074, 1023), min_size=1, max_size=6), rows=st.integers(1, 300),
+       seed=st.integers(0, 2**16))
+def test_column_units_agree_with_the_exact_column_maxima(exps, rows, seed):
+    # invariant (the definition in lintools.models.lsq_gram): a column's unit exponent is that of
+    # its largest |x| when it lies beyond 2**+-COLUMN_BAND, else 0, whatever shortcut finds it;
+    # magnitudes from the smallest subnormal to the largest double, the edges of the band included
+    rng = np.random.default_rng(seed)
+    Xs = rng.uniform(-1.0, 1.0, size=(rows, len(exps))) * np.ldexp(1.0, exps)
+    col_exp, inv = _gram._column_units(Xs.copy())
+    _, top = np.frexp(np.max(np.abs(Xs), axis=0))
+    expected = np.where(np.abs(top - 1) > _gram.COLUMN_BAND, top - 1, 0)
+    assert np.array_equal(col_exp, expected)
+    assert (inv is None) == (not np.any(expected))
+
+
+def test_a_block_handed_out_to_be_written_on_is_never_served_again():
+    # invariant of the Gram path's blocks (lintools.models.lsq_gram_passes.Blocks): every block read
+    # is X - shift exactly, whether it is copied afresh or served again from the pass before,
+    # even after a copy was handed out for writing (pass 1 weights its block in place)
+    passes = importlib.import_module("lintools.models.lsq_gram_passes")
+    rng = np.random.default_rng(4)
+    X = rng.normal(size=(300, 3)) + 5.0
+    shift = X[:7].mean(axis=0)
+    blocks = passes.Blocks(X, shift, 300)
+    first = blocks.get(0, 300, writable=False).copy()
+    assert np.array_equal(first, X - shift)
+    assert np.array_equal(blocks.get(0, 300, writable=False), first)  # served again
+    blocks.get(0, 300, writable=True)[:] *= 2.0  # written on by its user
+    assert np.array_equal(blocks.get(0, 300, writable=False), first)

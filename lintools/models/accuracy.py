@@ -218,8 +218,9 @@ def subsample(n: int) -> np.ndarray:
 
 
 def rows_of(Xa: np.ndarray, idx: np.ndarray) -> np.ndarray:
-    """The rows ``idx`` of ``Xa`` (the subsample), in a buffer the thread keeps."""
-    return np.take(Xa, idx, axis=0, out=row_buffer("accuracy rows", (idx.size, Xa.shape[1])))
+    """The rows ``idx`` of ``Xa`` (the subsample), in a buffer the thread keeps (``idx`` in range: with
+    ``mode="raise"``, the default, NumPy would take into a temporary and copy it over)."""
+    return np.take(Xa, idx, axis=0, out=row_buffer("accuracy rows", (idx.size, Xa.shape[1])), mode="clip")
 
 
 def column_scaled(c: np.ndarray, s: np.ndarray, rho: np.ndarray, intercept: bool, K: int = 1) -> np.ndarray:

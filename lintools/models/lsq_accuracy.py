@@ -70,9 +70,10 @@ def _least_squares_accuracy(Xa: np.ndarray, y1: np.ndarray, w1: np.ndarray | Non
     ys = y1[idx]
     ws = np.ones(idx.size) if w1 is None else w1[idx]
     s, xbar, beta = fit.s, fit.xbar, fit.beta
-    Z = np.subtract(Xs, xbar, out=row_buffer("accuracy centred", Xs.shape))
-    Z /= s  # (Xs - xbar) / s
     e = ys - fit.b0 - Xs @ beta
+    sig, tau = _data_rounding(Xs, ys, ws, s, prec, ex, units.ey, precision is None)
+    Z = np.subtract(Xs, xbar, out=Xs)  # the rows are not needed as given from here on: centred in place
+    Z /= s  # (Xs - xbar) / s
     Hinv = np.zeros((p + int(intercept),) * 2)
     off = int(intercept)
     if intercept:
@@ -84,14 +85,6 @@ def _least_squares_accuracy(Xa: np.ndarray, y1: np.ndarray, w1: np.ndarray | Non
     T = column_scaled(xbar, s, rho, intercept)
     B = T @ Hinv
     r, ybar = -ws * e, (float(ws @ ys) / float(ws.sum()) if intercept else 0.0)
-    if precision is None:  # relative rounding u of the entries as given
-        sig, tau = np.abs(Xs, out=row_buffer("accuracy data", Xs.shape)), ws * np.abs(ys) * (UNIT / _ROOT3)
-        sig *= UNIT / _ROOT3 / s
-    else:
-        ax = np.ldexp(prec.x_absolute, -ex)
-        sig = np.sqrt((prec.x_relative * Xs) ** 2 + ax * ax) / (_ROOT3 * s)
-        ay = math.ldexp(prec.y_absolute, -units.ey)
-        tau = ws * np.sqrt((prec.y_relative * ys) ** 2 + ay * ay) / _ROOT3
     # the solver's floor: rounding u of the centred entries, which is what the residual sees
     floor_var, data_var = sensitivity(Z, gz, r, ws, B, intercept, [
         (_floor_sig(Z), ws * np.abs(ys - ybar) * (UNIT / _ROOT3)), (sig, tau)], scale)
@@ -104,6 +97,21 @@ def _least_squares_accuracy(Xa: np.ndarray, y1: np.ndarray, w1: np.ndarray | Non
     z = np.concatenate([[fit.b0 + float(xbar @ beta)] if intercept else [], gz])
     return accuracy_record(theta, z, T, step, floor_var, floor, data_var, to_caller, terms, prec.what,
                            sample_note(idx.size, rows, how))
+
+
+def _data_rounding(Xs: np.ndarray, ys: np.ndarray, ws: np.ndarray, s: np.ndarray, prec: Precision, ex: np.ndarray,
+                   ey: int, as_given: bool) -> tuple[np.ndarray, np.ndarray]:
+    """The standard deviations of the data's rounding: ``sig`` of the entries of ``Xs`` (in the
+    units of the scaled columns) and ``tau`` of the weighted response, at ``prec`` (``as_given``:
+    float64 input, relative rounding ``u`` of the entries as given)."""
+    if as_given:
+        sig = np.abs(Xs, out=row_buffer("accuracy data", Xs.shape))
+        sig *= UNIT / _ROOT3 / s
+        return sig, ws * np.abs(ys) * (UNIT / _ROOT3)
+    ax = np.ldexp(prec.x_absolute, -ex)
+    sig = np.sqrt((prec.x_relative * Xs) ** 2 + ax * ax) / (_ROOT3 * s)
+    ay = math.ldexp(prec.y_absolute, -ey)
+    return sig, ws * np.sqrt((prec.y_relative * ys) ** 2 + ay * ay) / _ROOT3
 
 
 def _floor_sig(Z: np.ndarray) -> np.ndarray:

@@ -81,7 +81,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .lsq_gram_passes import first_pass, residual_pass, subsample_rows, subsample_start
+from .lsq_gram_passes import Blocks, first_pass, residual_pass, subsample_rows, subsample_start
 from ..support.linalg import solve_lower, solve_upper
 from ..support.threads import row_buffer
 
@@ -113,6 +113,8 @@ COLUMN_BAND = 400
 #: Rows in the subsample that gives the starting values and the provisional centre.
 SUBSAMPLE_ROWS = 8192
 _BLOCK_BYTES = 1 << 20
+#: Sums of squares of a subsample column that put its largest |x| inside the column band.
+_INSIDE = (2.0**-700, 2.0**700)
 
 
 def default_block_rows(n: int, p: int) -> int:
@@ -211,8 +213,9 @@ def solve_by_gram(
     else:
         ybar = 0.0
     idx = subsample_rows(n, w, n_pos, max(SUBSAMPLE_ROWS, 4 * (p + 1)))
-    # the subsample's rows, copied once (into a buffer the thread keeps) for the column units and the start
-    Xs = np.take(Xa, idx, axis=0, out=row_buffer("subsample rows", (idx.size, p)))
+    # the subsample's rows, copied once (into a buffer the thread keeps) for the column units and the start;
+    # mode="clip" (the indices are in range): with the default "raise" NumPy takes into a temporary first
+    Xs = np.take(Xa, idx, axis=0, out=row_buffer("subsample rows", (idx.size, p)), mode="clip")
     col_exp, inv = _column_units(Xs)
     lam = np.ldexp(lam, -2 * col_exp)  # the ridge on the unit coefficients
     if not np.all(np.isfinite(lam)):
@@ -235,7 +238,7 @@ def solve_by_gram(
         K = Linv / fac.s  # K xt = L^-1 D^-1 xt
         lev = (K, K @ mo.dm if intercept else None, 1.0 / mo.W if intercept else 0.0)
     meat = (covariance, weight_type) if covariance != "classical" else None
-    passes = _Passes(Xa, ya, ybar, w, mo.shift, rows, diagnostics, lev, meat, inv, case_weights)
+    passes = _Passes(Xa, ya, ybar, w, mo.shift, rows, diagnostics, lev, meat, inv, case_weights, mo.blocks)
     ref = _refine(passes, mo, fac, lam, intercept, tss, n_pos)
     if ref is None:
         return None
@@ -274,7 +277,16 @@ def solve_by_gram(
 def _column_units(Xs: np.ndarray) -> tuple[np.ndarray, np.ndarray | None]:
     """Exponents of the powers of two that bring each column's largest ``|x|`` on the
     subsample ``Xs`` within ``2**+-COLUMN_BAND`` (0 for the others), and their inverses
-    (None when no column needs one: the blocks are then read in place)."""
+    (None when no column needs one: the blocks are then read in place).
+
+    First a cheap test that settles the usual case: a column's sum of squares ``q`` bounds
+    its largest ``|x|`` = ``M`` by ``M**2 <= q <= k M**2`` (``k`` rows; rounding and squares
+    that underflow change ``q`` by far less than the margins), so ``2**-700 <= q <= 2**700``
+    puts ``M`` within ``2**-351 / sqrt(k) .. 2**350``, inside the band; a NaN, an inf, an
+    overflowing square or a column near an edge gets the exact maxima."""
+    q = np.einsum("ij,ij->j", Xs, Xs)
+    if Xs.shape[0] < 2**80 and np.all((q >= _INSIDE[0]) & (q <= _INSIDE[1])):
+        return np.zeros(Xs.shape[1], dtype=np.int64), None
     _, top = np.frexp(_largest_abs(Xs))
     col_exp = np.where(np.abs(top - 1) > COLUMN_BAND, top - 1, 0).astype(np.int64)
     return col_exp, (np.ldexp(1.0, -col_exp) if np.any(col_exp) else None)
@@ -310,6 +322,7 @@ class _Moments:
     dm: np.ndarray
     C: np.ndarray
     diagC: np.ndarray
+    blocks: Blocks
 
 
 def _moments(Xa, ya, ybar, w, shift, beta0, a0, intercept, rows, inv) -> _Moments | None:
@@ -320,7 +333,8 @@ def _moments(Xa, ya, ybar, w, shift, beta0, a0, intercept, rows, inv) -> _Moment
     for attempt in range(2):
         # the start is a0 + x'beta0 = (a0 + shift'beta0) + (x - shift)'beta0
         a_start = a0 + (float(shift @ beta0) if shift is not None else 0.0) if intercept else 0.0
-        W, sx, S, rho, gx, _, ty, tyy = first_pass(Xa, ya, ybar, w, shift, beta0, a_start, rows, inv)
+        blocks = Blocks(Xa, shift, rows, inv)  # for pass 1 and the residual passes about this centre
+        W, sx, S, rho, gx, _, ty, tyy = first_pass(Xa, ya, ybar, w, shift, beta0, a_start, rows, inv, blocks)
         shift_vec = np.zeros(p) if shift is None else shift
         if not intercept:
             dm = np.zeros(p)
@@ -338,7 +352,7 @@ def _moments(Xa, ya, ybar, w, shift, beta0, a0, intercept, rows, inv) -> _Moment
         shift = shift_vec + dm
     if not (np.all(np.isfinite(S)) and np.all(np.isfinite(sx)) and np.all(np.isfinite(gx))):
         return None  # overflow of huge entries: the QR path scales before it multiplies
-    return _Moments(shift, shift_vec, beta0, a_start, W, sx, rho, gx, ty, tyy, dm, C, diagC)
+    return _Moments(shift, shift_vec, beta0, a_start, W, sx, rho, gx, ty, tyy, dm, C, diagC, blocks)
 
 
 @dataclass
@@ -396,11 +410,12 @@ class _Passes:
     meat: tuple | None
     inv: np.ndarray | None
     case_weights: np.ndarray | None
+    blocks: Blocks
 
     def at(self, beta: np.ndarray, a: float) -> tuple:
         return residual_pass(self.X, self.y, self.ybar, self.w, self.shift, beta, a, self.rows,
                               keep_residuals=self.keep_residuals, lev=self.lev, meat=self.meat, inv=self.inv,
-                              case_weights=self.case_weights)
+                              case_weights=self.case_weights, blocks=self.blocks)
 
 
 def _refine(passes: _Passes, mo: _Moments, fac: _Factor, lam, intercept, tss, n_pos) -> tuple | None:

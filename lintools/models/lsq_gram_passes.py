@@ -13,17 +13,24 @@ that gives the provisional centre and the start (:func:`subsample_rows`,
 
 from __future__ import annotations
 
+import threading
+
 import numpy as np
 
 from ..support.linalg import solve_lower, solve_upper
-from ..support.threads import add_up, for_rows, row_buffer, scratch
+from ..support.threads import add_up, for_rows, scratch
 
-__all__ = ["first_pass", "residual_pass", "subsample_rows", "subsample_start"]
+__all__ = ["Blocks", "first_pass", "residual_pass", "subsample_rows", "subsample_start"]
 
 
-class _Blocks:
+class Blocks:
     """Row blocks of ``X * inv - shift`` as views (no scale, no shift) or in one reusable
-    buffer; ``inv`` (powers of two, exact) is None unless a column needs rescaling."""
+    buffer per thread; ``inv`` (powers of two, exact) is None unless a column needs rescaling.
+
+    One object serves every pass about the same centre: the tile of the shift is built once,
+    and a thread that is handed the same block again (the one block of a small problem, in
+    pass 1 and then in a residual pass) gets the copy it made, unless the copy was handed
+    out to be written on."""
 
     def __init__(self, X: np.ndarray, shift: np.ndarray | None, rows: int, inv: np.ndarray | None = None):
         self.X = X
@@ -31,6 +38,7 @@ class _Blocks:
         self.inv = inv
         self.flat = shift is not None and X.flags.c_contiguous
         self.tile = _tiled(shift, rows) if self.flat else None
+        self._last: tuple | None = None  # (thread, lo, hi, block) of the last read-only copy
 
     def get(self, lo: int, hi: int, writable: bool) -> np.ndarray:
         """The block of rows ``lo:hi``; a copy goes into a buffer of the calling thread
@@ -38,6 +46,10 @@ class _Blocks:
         Xb = self.X[lo:hi]
         if self.shift is None and self.inv is None and not writable:
             return Xb
+        me = threading.get_ident()
+        last = self._last
+        if not writable and last is not None and last[:3] == (me, lo, hi):
+            return last[3]
         out = scratch("shifted", (hi - lo, self.X.shape[1]))
         if self.inv is not None:
             np.multiply(Xb, self.inv, out=out)
@@ -49,6 +61,8 @@ class _Blocks:
             np.subtract(Xb.reshape(-1), self.tile[: out.size], out=out.reshape(-1))
         else:
             np.subtract(Xb, self.shift, out=out)
+        # this thread's buffer now holds this block; a writable one is about to change
+        self._last = None if writable else (me, lo, hi, out)
         return out
 
 
@@ -65,13 +79,13 @@ def _tiled(v: np.ndarray, rows: int) -> np.ndarray:
     return t
 
 
-def first_pass(X, y, ybar, w, shift, beta0, a0, rows, inv):
+def first_pass(X, y, ybar, w, shift, beta0, a0, rows, inv, blocks=None):
     """Pass 1: moments of the shifted columns, of ``yt``, and of the start's residual
     (block by block on the row threads, the block sums added in row order).  The products
     ``v' Z`` stay with the BLAS: the correction steps need their accuracy (NumPy's sum of
     products here cost the weighted benchmark a digit, measured 12.0 -> 11.0)."""
     n, p = X.shape
-    blocks = _Blocks(X, shift, rows, inv)
+    blocks = blocks or Blocks(X, shift, rows, inv)
     ones = np.ones(rows) if w is None else None  # ones @ Z: faster than Z.sum(axis=0)
 
     def part(lo: int, hi: int) -> tuple:
@@ -96,16 +110,18 @@ def first_pass(X, y, ybar, w, shift, beta0, a0, rows, inv):
     return float(W), sx, S, float(rho), gx, float(rss), float(ty), float(tyy)
 
 
-def residual_pass(X, y, ybar, w, shift, beta, a, rows, *, keep_residuals, lev, meat, inv=None, case_weights=None):
+def residual_pass(X, y, ybar, w, shift, beta, a, rows, *, keep_residuals, lev, meat, inv=None, case_weights=None,
+                  blocks=None):
     """Residual of ``(a, beta)``: its weighted sum, cross products and square; options.
 
     ``lev`` = (K, km, Winv) gives the leverage ``w_i |K xt_i - km|^2 + w_i Winv``;
     ``meat`` = (kind, weight_type) accumulates ``[1, xt]' diag(m) [1, xt]``; the leverage
     of one copy of a case-weighted row divides by its weight in ``case_weights`` (the
-    caller's, whatever the scale of ``w``).
+    caller's, whatever the scale of ``w``); ``blocks``: the :class:`Blocks` of pass 1 about the same
+    centre (None: made here).
     """
     n, p = X.shape
-    blocks = _Blocks(X, shift, rows, inv)
+    blocks = blocks or Blocks(X, shift, rows, inv)
     e = np.empty(n) if keep_residuals else None
     hat = np.empty(n) if lev is not None else None
 
@@ -183,11 +199,12 @@ def subsample_rows(n, w, n_pos, k):
 
 def subsample_start(Xs, y, ybar, w, idx, intercept, lam, W, inv):
     """Provisional centre, spread and starting values from the rows ``idx`` (``Xs``: the
-    design's rows ``idx``, not modified)."""
+    design's rows ``idx`` in a buffer of the caller's, which is overwritten: scaled,
+    centred and weighted in place, as a copy would be but without its fresh pages)."""
     k, p = Xs.shape
     ys = y[idx] - ybar
     if inv is not None:
-        Xs = Xs * inv
+        np.multiply(Xs, inv, out=Xs)
     ws = np.ones(k) if w is None else w[idx]
     Ws = float(ws.sum())
     if intercept:
@@ -196,7 +213,7 @@ def subsample_start(Xs, y, ybar, w, idx, intercept, lam, W, inv):
     else:
         xm, ym = np.zeros(p), 0.0
     # rows times sqrt(w_i), which unit weights leave as they are (x * 1 is x)
-    A = np.subtract(Xs, xm, out=row_buffer("subsample centred", Xs.shape))
+    A = np.subtract(Xs, xm, out=Xs)
     b = ys - ym
     if w is not None:
         A *= np.sqrt(ws)[:, None]

@@ -84,7 +84,8 @@ import numpy as np
 from numpy.typing import ArrayLike
 
 from .errors import InputError, LintoolsError
-from .special import MAX_SHAPE, _beta_core, _gamma_both, _pair_from_ratio, _ratio, _two_prod
+from .special import MAX_SHAPE, _beta_core, _pair_from_ratio, _ratio, _two_prod
+from .special_gamma import _gamma_both
 
 __all__ = [
     "normal_sf",
@@ -199,6 +200,11 @@ def _broadcast(caller: str, **arrays: np.ndarray) -> list[np.ndarray]:
             f"{_law(caller)}: arguments cannot be broadcast together ({shapes}); "
             "pass arrays of matching shapes or scalars."
         ) from None
+
+
+def _plain_scalars(*values: object) -> bool:
+    """Whether every value is a Python float (the one-statistic call of a fit record)."""
+    return all(type(v) is float for v in values)
 
 
 def _finish(out: np.ndarray) -> np.ndarray | float:
@@ -713,6 +719,9 @@ def f_sf(f: ArrayLike, d1: ArrayLike, d2: ArrayLike) -> np.ndarray | float:
     ----------
     Abramowitz & Stegun (1964) 26.6.2; Press et al. (2007) 6.14.11.
     """
+    if _plain_scalars(f, d1, d2) and 0.0 < f < math.inf and 0.0 < d1 < math.inf and 0.0 < d2 < math.inf \
+            and min(d1, d2) <= 2 * MAX_SHAPE:  # one statistic (the usual call): what the checks below let through
+        return np.clip(_f_tail(np.array([f]), np.array([d1]), np.array([d2])), 0.0, 1.0)[0]
     caller = "f_sf"
     fv = _as_array(f, "f", caller)
     av = _as_array(d1, "d1", caller)
