@@ -9,9 +9,13 @@ BLAS held to one thread meanwhile, so the two kinds of threads do not compete fo
 cores (an idle OpenBLAS thread keeps spinning for a while after each call).
 
 * :func:`session` (a context manager; the fits enter it) sets NumPy's OpenBLAS to one
-  thread and restores the caller's setting on exit.  The number of row threads is the
-  BLAS thread count found on entry, at most the CPUs this process may use; the
-  environment variable ``LINTOOLS_THREADS`` overrides it (``1`` turns the pool off): a
+  thread and restores the caller's setting on exit.  The number of row threads starts
+  as the BLAS thread count found on entry, at most the CPUs this process may use; a
+  likelihood fit then settles it by its size (:func:`settle`, before its first pass):
+  one row thread when it has fewer than :data:`FEW_PARAMETERS` coefficients, where the
+  elementwise work of a chunk, dispatched from Python under the interpreter lock, weighs
+  more than its products and a second thread mostly waits for the lock.  The
+  environment variable ``LINTOOLS_THREADS`` overrides both (``1`` turns the pool off): a
   whole number from 1 up, written in ASCII digits, of which at most :data:`MAX_THREADS`
   are used; anything else (``0``, ``-2``, ``two``, ``1.5``) is an :class:`InputError`,
   whatever the BLAS.
@@ -21,7 +25,10 @@ cores (an idle OpenBLAS thread keeps spinning for a while after each call).
   (other BLAS builds, unusual layouts) everything runs on the calling thread and the BLAS
   is left alone.  One session at a time: a fit started on another thread meanwhile waits
   for the running one (each already uses all the cores it may), so concurrent calls give
-  the same digits as calls one after another.
+  the same digits as calls one after another.  One row thread with the BLAS at its own
+  thread count instead is not an option: a threaded BLAS splits some products otherwise
+  (other bits) and was slower for the small products of a chunk (see
+  ``benchmarks/row_threads.py``).
 * :func:`for_rows` runs ``fn(lo, hi)`` over consecutive chunks of rows and returns the
   results **in chunk order**.  The chunks do not depend on the number of threads, and the
   callers add the partial results in that order, so one thread and several give
@@ -46,17 +53,20 @@ import numpy as np
 
 from .errors import InputError
 
-__all__ = ["ELEMENT_CHUNK", "row_buffer", "session", "whole_blas", "with_row_threads", "threads", "for_rows", "add_up",
+__all__ = ["ELEMENT_CHUNK", "row_buffer", "session", "settle", "FEW_PARAMETERS", "whole_blas", "with_row_threads", "threads", "for_rows", "add_up",
            "scratch", "PassBuffers", "env_threads", "MAX_THREADS"]
 
 #: The most row threads ``LINTOOLS_THREADS`` can ask for; larger values are used as this.
 MAX_THREADS = 64
 
+#: A fit with fewer coefficients than this runs its passes on one row thread (see :func:`settle`).
+FEW_PARAMETERS = 44
+
 #: Entries per chunk of an elementwise pass over the rows (128 KB of float64 per array).
 ELEMENT_CHUNK = 1 << 14
 
 _lock = threading.Lock()
-_state: dict[str, Any] = {"owner": None, "threads": 1, "restore": None}
+_state: dict[str, Any] = {"owner": None, "threads": 1, "restore": None, "entry": 1, "asked": False}
 _pool: dict[int, ThreadPoolExecutor] = {}
 _control: list[Any] = []  # [(set, get)] or [None] once looked up
 
@@ -69,7 +79,7 @@ def _after_fork_in_child() -> None:
     _lock = threading.Lock()
     _pool.clear()
     restore = _state["restore"]
-    _state.update(owner=None, threads=1, restore=None)
+    _state.update(owner=None, threads=1, restore=None, entry=1, asked=False)
     if restore is not None and _control and _control[0] is not None:
         _control[0][0](restore)
 
@@ -158,7 +168,11 @@ def session() -> Iterator[int]:
     """Run the enclosed fit with row threads (see the module doc); yields their number."""
     me = threading.get_ident()
     if _state["owner"] == me:  # nested: the outer session already holds everything
-        yield _state["threads"]
+        held = _state["threads"]
+        try:
+            yield held
+        finally:
+            _state["threads"] = held  # an inner fit's choice (see settle) ends with it
         return
     asked = env_threads()  # a bad setting is refused whatever the BLAS
     _lock.acquire()  # a fit on another thread meanwhile waits for this one (see the module doc)
@@ -172,13 +186,13 @@ def session() -> Iterator[int]:
             if before != 1:
                 setter(1)
                 restore = before
-        _state.update(owner=me, threads=count, restore=restore)
+        _state.update(owner=me, threads=count, restore=restore, entry=count, asked=asked is not None)
         try:
             yield count
         finally:
             if restore is not None:
                 control[0](restore)
-            _state.update(owner=None, threads=1, restore=None)
+            _state.update(owner=None, threads=1, restore=None, entry=1, asked=False)
     finally:
         _lock.release()
 
@@ -198,6 +212,21 @@ def whole_blas() -> Iterator[None]:
         yield
     finally:
         control[0](1)
+
+
+def settle(parameters: int) -> int:
+    """Inside a session of the calling thread: the row threads of the fit whose problem has
+    ``parameters`` coefficients (terms times free outputs), to be called before its first
+    pass over the rows; returns the count the passes will use (1 outside a session).
+
+    Below :data:`FEW_PARAMETERS` one row thread, else the count found on entry; a count
+    set by ``LINTOOLS_THREADS`` is kept either way.  The chunks, and so every bit of the
+    result, are the same whatever is chosen."""
+    if _state["owner"] != threading.get_ident():
+        return 1
+    if not _state["asked"]:
+        _state["threads"] = 1 if parameters < FEW_PARAMETERS else _state["entry"]
+    return _state["threads"]
 
 
 def threads() -> int:
