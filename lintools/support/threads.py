@@ -11,10 +11,13 @@ cores (an idle OpenBLAS thread keeps spinning for a while after each call).
 * :func:`session` (a context manager; the fits enter it) sets NumPy's OpenBLAS to one
   thread and restores the caller's setting on exit.  The number of row threads starts
   as the BLAS thread count found on entry, at most the CPUs this process may use; a
-  likelihood fit then settles it by its size (:func:`settle`, before its first pass):
-  one row thread when it has fewer than :data:`FEW_PARAMETERS` coefficients, where the
-  elementwise work of a chunk, dispatched from Python under the interpreter lock, weighs
-  more than its products and a second thread mostly waits for the lock.  The
+  logistic or softmax fit in memory then settles it by its size (:func:`settle`, before
+  its first pass): one row thread when it has fewer than :data:`FEW_PARAMETERS`
+  coefficients, where the elementwise work of a chunk, dispatched from Python under the
+  interpreter lock, weighs more than its products and a second thread mostly waits for
+  the lock.  Least squares and the fits over blocks keep the count found on entry (least
+  squares passes are products over 1 MiB blocks: one row thread over two measured 0.91 to
+  1.08 at p 5 to 20 and 1.40 at p 50, 1e5 rows).  The
   environment variable ``LINTOOLS_THREADS`` overrides both (``1`` turns the pool off): a
   whole number from 1 up, written in ASCII digits, of which at most :data:`MAX_THREADS`
   are used; anything else (``0``, ``-2``, ``two``, ``1.5``) is an :class:`InputError`,
@@ -60,6 +63,23 @@ __all__ = ["ELEMENT_CHUNK", "row_buffer", "session", "settle", "FEW_PARAMETERS",
 MAX_THREADS = 64
 
 #: A fit with fewer coefficients than this runs its passes on one row thread (see :func:`settle`).
+#: Measured on 2 cores by ``benchmarks/row_threads.py`` (median over interleaved rounds of the
+#: paired wall ratio, one row thread over two; below 1: one thread is faster), coefficients
+#: ``(p + 1)(K - 1)`` for softmax and ``p + 1`` for logistic:
+#:
+#: * fewer than 44: softmax 12 (p 5, K 3): 0.76 at 1e4 rows, 0.95 at 1e5, 0.81 at 1e6; 22
+#:   (p 10, K 3): 0.76 / 0.95, earlier 0.78 / 0.81 / 0.88 at 1e4 / 1e5 / 1e6; 24 (p 5, K 5):
+#:   0.95 / 0.94; 42 (p 20, K 3): 0.96 / 0.83; logistic 6 to 21 (p 5 to 20): 0.91 to 0.94 at
+#:   1e5, 0.87 to 0.98 at 1e6;
+#: * 44 and more: softmax 44 (p 10, K 5): 1.10 at 1e4; 54 (p 5, K 10): 1.20; 84 (p 20, K 5):
+#:   1.13, earlier 1.21 at 1e5; 99 (p 10, K 10): 1.30; 189 (p 20, K 10): 1.40, earlier 1.42
+#:   at 1e5; logistic 51 (p 50): 1.35 at 1e5, 1.32 at 1e6 (earlier 1.64 at 1e6).
+#:
+#: The work of a chunk's products grows with the coefficients, that of its elementwise steps
+#: (many short NumPy calls, each taking the interpreter lock back) with the outputs only, so
+#: few coefficients leave a second thread waiting for the lock.  The machine was shared:
+#: with another process on one core, softmax at 1e5 rows with 44 to 99 coefficients gave
+#: 0.92 to 0.97 (no thread gains when a core is taken).
 FEW_PARAMETERS = 44
 
 #: Entries per chunk of an elementwise pass over the rows (128 KB of float64 per array).
