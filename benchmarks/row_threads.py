@@ -21,8 +21,9 @@ n x p (x K classes for softmax).  Settings of the row threads, per call:
 Each round runs every setting once in turn (interleaved, so a slow spell of the shared
 machine hits them alike); the table shows the median wall and CPU (``time.process_time``)
 milliseconds over the rounds, and the median over the rounds of the paired ratio of each
-setting's wall time to that of ``2``.  ``bits`` says whether each setting's coefficients,
-intercept and covariance are byte-identical to those of ``2``.  Nothing is asserted.
+setting's wall time to that of ``2`` (of the first setting when ``2`` is not run); ``=``
+or ``DIFF`` says whether each setting's coefficients, intercept and covariance are
+byte-identical to those of that setting.  Nothing is asserted.
 """
 
 from __future__ import annotations
@@ -72,6 +73,11 @@ def _bits(fit: Any) -> bytes:
                     for name in ("coefficients", "intercept", "covariance"))
 
 
+def _base(settings: tuple[str, ...]) -> str:
+    """The setting the ratios and the bits are taken against."""
+    return "2" if "2" in settings else settings[0]
+
+
 def measure(fit: Callable[[], Any], settings: tuple[str, ...], rounds: int) -> dict[str, dict[str, Any]]:
     """Per setting: median wall and CPU ms, median paired wall ratio to ``2``, same bits as ``2``."""
     bits = {s: _bits(_call(s, fit)) for s in settings}  # also the warm-up
@@ -84,7 +90,7 @@ def measure(fit: Callable[[], Any], settings: tuple[str, ...], rounds: int) -> d
             _call(s, fit)
             wall[s].append(time.perf_counter() - t0)
             cpu[s].append(time.process_time() - c0)
-    base = "2" if "2" in settings else settings[0]
+    base = _base(settings)
     return {s: {"wall": statistics.median(wall[s]) * 1e3, "cpu": statistics.median(cpu[s]) * 1e3,
                 "ratio": statistics.median(a / b for a, b in zip(wall[s], wall[base])),
                 "same": bits[s] == bits[base]} for s in settings}
@@ -130,8 +136,9 @@ def main(argv: list[str] | None = None) -> int:
     if args.quick:
         ns, ps, ks, rounds = [3000], [5], [3], 2
     settings = tuple(args.settings.split(","))
+    base = _base(settings)
     print(f"row threads: {os.cpu_count()} CPUs, median of {rounds} interleaved rounds; "
-          "wall ms / CPU ms / paired wall ratio to '2' / same bits as '2'")
+          f"wall ms / CPU ms / paired wall ratio to '{base}' / same bits as '{base}'")
     print(f"{'kind':<14} {'n':>8} {'p':>3} {'K':>3}  " + "  ".join(f"{s:>28}" for s in settings))
     for kind, size, fit in cells(args.kinds.split(","), ns, ps, ks):
         res = measure(fit, settings, rounds)

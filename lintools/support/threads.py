@@ -29,9 +29,10 @@ cores (an idle OpenBLAS thread keeps spinning for a while after each call).
   is left alone.  One session at a time: a fit started on another thread meanwhile waits
   for the running one (each already uses all the cores it may), so concurrent calls give
   the same digits as calls one after another.  One row thread with the BLAS at its own
-  thread count instead is not an option: a threaded BLAS splits some products otherwise
-  (other bits) and was slower for the small products of a chunk (see
-  ``benchmarks/row_threads.py``).
+  thread count instead is not an option: a threaded BLAS splits the larger products
+  otherwise (other bits: softmax and logistic at 1e5 rows, p 5 to 10), and it was 1.7 to
+  7.5 times slower on the small products of the chunks (one row thread with the BLAS at
+  one thread as the base; ``benchmarks/row_threads.py``).
 * :func:`for_rows` runs ``fn(lo, hi)`` over consecutive chunks of rows and returns the
   results **in chunk order**.  The chunks do not depend on the number of threads, and the
   callers add the partial results in that order, so one thread and several give
