@@ -65,24 +65,26 @@ __all__ = ["ELEMENT_CHUNK", "row_buffer", "session", "settle", "FEW_PARAMETERS",
 MAX_THREADS = 64
 
 #: A fit with fewer coefficients than this runs its passes on one row thread (see :func:`settle`).
-#: Measured on 2 cores by ``benchmarks/row_threads.py`` (median over interleaved rounds of the
-#: paired wall ratio, one row thread over two; below 1: one thread is faster), coefficients
-#: ``(p + 1)(K - 1)`` for softmax and ``p + 1`` for logistic:
+#: Measured on 2 cores by ``benchmarks/row_threads.py`` (median over 5 to 9 interleaved rounds
+#: of the paired wall ratio, one row thread over two; below 1: one thread is faster), with
+#: ``(p + 1)(K - 1)`` coefficients for softmax and ``p + 1`` for logistic:
 #:
-#: * fewer than 44: softmax 12 (p 5, K 3): 0.76 at 1e4 rows, 0.95 at 1e5, 0.81 at 1e6; 22
-#:   (p 10, K 3): 0.76 / 0.95, earlier 0.78 / 0.81 / 0.88 at 1e4 / 1e5 / 1e6; 24 (p 5, K 5):
-#:   0.95 / 0.94; 42 (p 20, K 3): 0.96 / 0.83; logistic 6 to 21 (p 5 to 20): 0.91 to 0.94 at
-#:   1e5, 0.87 to 0.98 at 1e6;
-#: * 44 and more: softmax 44 (p 10, K 5): 1.10 at 1e4; 54 (p 5, K 10): 1.20; 84 (p 20, K 5):
-#:   1.13, earlier 1.21 at 1e5; 99 (p 10, K 10): 1.30; 189 (p 20, K 10): 1.40, earlier 1.42
-#:   at 1e5; logistic 51 (p 50): 1.35 at 1e5, 1.32 at 1e6 (earlier 1.64 at 1e6).
+#: * fewer than 50: softmax 12 (p 5, K 3): 0.76 at 1e4 rows, 0.92 and 0.95 at 1e5, 0.81 at
+#:   1e6; 22 (p 10, K 3): 0.76 at 1e4, 0.95 and 0.97 at 1e5 (earlier 0.78 / 0.81 / 0.88 at
+#:   1e4 / 1e5 / 1e6); 24 (p 5, K 5): 0.95 at 1e4, 0.94 at 1e5; 42 (p 20, K 3): 0.96 at 1e4,
+#:   0.83 and 0.97 at 1e5; 44 (p 10, K 5): 1.10 at 1e4 but 0.95 and 0.96 at 1e5; logistic 6
+#:   to 21 (p 5 to 20): 0.91 to 0.94 at 1e5, 0.87 to 0.98 at 1e6;
+#: * 50 and more: softmax 54 (p 5, K 10): 1.20 at 1e4, 1.17 at 1e5; 84 (p 20, K 5): 1.13 at
+#:   1e4, 1.17 (earlier 1.21) at 1e5; 99 (p 10, K 10): 1.30 at 1e4; 189 (p 20, K 10): 1.40 at
+#:   1e4 (earlier 1.42 at 1e5); logistic 51 (p 50): 1.35 and 0.98 at 1e5, 1.32 (earlier
+#:   1.64) at 1e6.
 #:
 #: The work of a chunk's products grows with the coefficients, that of its elementwise steps
 #: (many short NumPy calls, each taking the interpreter lock back) with the outputs only, so
-#: few coefficients leave a second thread waiting for the lock.  The machine was shared:
-#: with another process on one core, softmax at 1e5 rows with 44 to 99 coefficients gave
-#: 0.92 to 0.97 (no thread gains when a core is taken).
-FEW_PARAMETERS = 44
+#: with few coefficients the two threads mostly take turns with the lock (their CPU time
+#: was then no more than the wall time).  The machine was shared: runs with another process
+#: on one core gave 0.92 to 1.00 for softmax at 1e5 rows with 54 to 99 coefficients.
+FEW_PARAMETERS = 50
 
 #: Entries per chunk of an elementwise pass over the rows (128 KB of float64 per array).
 ELEMENT_CHUNK = 1 << 14
