@@ -290,34 +290,38 @@ def test_settle_picks_one_row_thread_for_few_coefficients(two_blas_threads, monk
     few, many = _threads.FEW_PARAMETERS - 1, _threads.FEW_PARAMETERS
     with _threads.session() as count:
         assert count == 2
-        assert _threads.settle(few) == 1 and _threads.threads() == 1
-        assert _threads.settle(many) == 2 and _threads.threads() == 2
-        _threads.settle(few)
+        assert _threads.settle(few, 2) == 1 and _threads.threads() == 1
+        assert _threads.settle(many, 2) == 2 and _threads.threads() == 2
+        assert _threads.settle(few, 1) == 2  # one output (binary logistic): the count found on entry
+        _threads.settle(few, 2)
         with _threads.session():  # an inner fit's choice ends with it
-            assert _threads.settle(many) == 2
+            assert _threads.settle(many, 2) == 2
         assert _threads.threads() == 1
-    assert _threads.settle(many) == 1  # outside a session: the calling thread only
+    assert _threads.settle(many, 2) == 1  # outside a session: the calling thread only
     monkeypatch.setenv("LINTOOLS_THREADS", "2")  # the user's count is kept either way
     with _threads.session():
-        assert _threads.settle(few) == 2
+        assert _threads.settle(few, 2) == 2
     monkeypatch.setenv("LINTOOLS_THREADS", "1")
     with _threads.session():
-        assert _threads.settle(many) == 1
+        assert _threads.settle(many, 2) == 1
 
 
-@pytest.mark.parametrize("p, K, pool", [(5, 3, False), (20, 5, True)])
+@pytest.mark.parametrize("p, K, pool", [(5, 3, False), (20, 5, True), (5, 2, True)])
 def test_fits_choose_their_row_threads_and_keep_their_bits(two_blas_threads, monkeypatch, p, K, pool):
     # softmax with reference class: (p + 1) (K - 1) coefficients, 12 (below FEW_PARAMETERS:
-    # one row thread, no pool is made) or 84 (two row threads); 20,000 rows are several
-    # chunks of every pass.  The same bits as either count set by LINTOOLS_THREADS.
-    assert ((p + 1) * (K - 1) >= _threads.FEW_PARAMETERS) == pool
+    # one row thread, no pool is made) or 84 (two row threads); K = 2 is a binary logistic
+    # fit (one output: two row threads at any size).  20,000 rows are several chunks of
+    # every pass.  The same bits as either count set by LINTOOLS_THREADS.
+    if K > 2:
+        assert ((p + 1) * (K - 1) >= _threads.FEW_PARAMETERS) == pool
     X, y = _classes(20_000, p, K, seed=5)
+    fit = lt.softmax if K > 2 else lt.logistic
     monkeypatch.setattr(_threads, "_pool", {})
-    auto = lt.softmax(X, y)
+    auto = fit(X, y)
     assert bool(_threads._pool) == pool
     for count in ("1", "2"):
         monkeypatch.setenv("LINTOOLS_THREADS", count)
-        fixed = lt.softmax(X, y)
+        fixed = fit(X, y)
         np.testing.assert_array_equal(auto.coefficients, fixed.coefficients)
         np.testing.assert_array_equal(auto.covariance, fixed.covariance)
         assert auto.log_likelihood == fixed.log_likelihood

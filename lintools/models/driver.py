@@ -166,7 +166,8 @@ def checked_problem(Xa: np.ndarray, found: Any, names: tuple[str, ...], loss: An
     A column whose spread float64 cannot standardise is refused naming it (``names``).
     The row threads of the fit are settled here, before its first pass, by its number of
     coefficients (:func:`lintools.support.threads.settle`)."""
-    settle((Xa.shape[1] + bool(settings.get("intercept", True))) * int(loss.outputs))
+    outputs = int(loss.outputs)
+    settle((Xa.shape[1] + bool(settings.get("intercept", True))) * outputs, outputs)
     try:
         return LinearModelProblem(Xa, loss, **settings)
     except NonFiniteDesign:

@@ -11,11 +11,12 @@ cores (an idle OpenBLAS thread keeps spinning for a while after each call).
 * :func:`session` (a context manager; the fits enter it) sets NumPy's OpenBLAS to one
   thread and restores the caller's setting on exit.  The number of row threads starts
   as the BLAS thread count found on entry, at most the CPUs this process may use; a
-  logistic or softmax fit in memory then settles it by its size (:func:`settle`, before
-  its first pass): one row thread when it has fewer than :data:`FEW_PARAMETERS`
-  coefficients, where the elementwise work of a chunk, dispatched from Python under the
-  interpreter lock, weighs more than its products and a second thread mostly waits for
-  the lock.  Least squares and the fits over blocks keep the count found on entry (least
+  softmax fit in memory then settles it by its size (:func:`settle`, before its first
+  pass): one row thread when it has fewer than :data:`FEW_PARAMETERS` coefficients, where
+  the elementwise work of a chunk, dispatched from Python under the interpreter lock,
+  weighs more than its products and a second thread mostly waits for the lock.  Binary
+  logistic fits (one output, larger chunks), least squares and the fits over blocks keep
+  the count found on entry (least
   squares passes are products over 1 MiB blocks: the wall time of one row thread over
   that of two measured 0.91 to 1.02 at p 5 to 20 and 1.40 at p 50 on 1e5 rows, 0.94 to
   1.08 at p 5 to 50 on 1e6 rows: nothing to gain from one thread).  The
@@ -64,20 +65,24 @@ __all__ = ["ELEMENT_CHUNK", "row_buffer", "session", "settle", "FEW_PARAMETERS",
 #: The most row threads ``LINTOOLS_THREADS`` can ask for; larger values are used as this.
 MAX_THREADS = 64
 
-#: A fit with fewer coefficients than this runs its passes on one row thread (see :func:`settle`).
-#: Measured on 2 cores by ``benchmarks/row_threads.py`` (median over 5 to 9 interleaved rounds
-#: of the paired wall ratio, one row thread over two; below 1: one thread is faster), with
-#: ``(p + 1)(K - 1)`` coefficients for softmax and ``p + 1`` for logistic:
+#: A fit of several outputs with fewer coefficients than this runs its passes on one row
+#: thread (see :func:`settle`).  Measured on 2 cores by ``benchmarks/row_threads.py`` (median
+#: over 5 to 9 interleaved rounds of the paired wall ratio, one row thread over two; below 1:
+#: one thread is faster), with ``(p + 1)(K - 1)`` coefficients for softmax:
 #:
 #: * fewer than 50: softmax 12 (p 5, K 3): 0.76 at 1e4 rows, 0.92 and 0.95 at 1e5, 0.81 at
 #:   1e6; 22 (p 10, K 3): 0.76 at 1e4, 0.95 and 0.97 at 1e5 (earlier 0.78 / 0.81 / 0.88 at
 #:   1e4 / 1e5 / 1e6); 24 (p 5, K 5): 0.95 at 1e4, 0.94 at 1e5; 42 (p 20, K 3): 0.96 at 1e4,
-#:   0.83 and 0.97 at 1e5; 44 (p 10, K 5): 1.10 at 1e4 but 0.95 and 0.96 at 1e5; logistic 6
-#:   to 21 (p 5 to 20): 0.91 to 0.94 at 1e5, 0.87 to 0.98 at 1e6;
-#: * 50 and more: softmax 54 (p 5, K 10): 1.20 at 1e4, 1.17 at 1e5; 84 (p 20, K 5): 1.13 at
-#:   1e4, 1.17 (earlier 1.21) at 1e5; 99 (p 10, K 10): 1.30 at 1e4; 189 (p 20, K 10): 1.40 at
-#:   1e4 (earlier 1.42 at 1e5); logistic 51 (p 50): 1.35 and 0.98 at 1e5, 1.32 (earlier
-#:   1.64) at 1e6.
+#:   0.83 and 0.97 at 1e5; 44 (p 10, K 5): 1.10 at 1e4 but 0.95 and 0.96 at 1e5;
+#: * 50 and more: 54 (p 5, K 10): 1.20 at 1e4, 1.17 at 1e5; 84 (p 20, K 5): 1.13 at 1e4,
+#:   1.17 (earlier 1.21) at 1e5; 99 (p 10, K 10): 1.30 at 1e4; 189 (p 20, K 10): 1.40 at 1e4
+#:   (earlier 1.42 at 1e5).
+#:
+#: Binary logistic fits (one output) keep the count found on entry whatever their size: with
+#: p 5 to 20 one row thread over two measured 0.96 to 1.17 at 1e5 rows and 0.98 to 1.38 at
+#: 1e6 on a quiet machine (0.87 to 0.98 with another process on a core): nothing to gain
+#: from one thread and up to a third to lose (their chunks are 16384 rows, four times
+#: softmax's, and a row's elementwise work is one output's).  p 50: 1.32 at 1e6 (earlier 1.64).
 #:
 #: The work of a chunk's products grows with the coefficients, that of its elementwise steps
 #: (many short NumPy calls, each taking the interpreter lock back) with the outputs only, so
@@ -238,18 +243,20 @@ def whole_blas() -> Iterator[None]:
         control[0](1)
 
 
-def settle(parameters: int) -> int:
+def settle(parameters: int, outputs: int) -> int:
     """Inside a session of the calling thread: the row threads of the fit whose problem has
-    ``parameters`` coefficients (terms times free outputs), to be called before its first
-    pass over the rows; returns the count the passes will use (1 outside a session).
+    ``parameters`` coefficients (terms times ``outputs``, its free outputs), to be called
+    before its first pass over the rows; returns the count the passes will use (1 outside
+    a session).
 
-    Below :data:`FEW_PARAMETERS` one row thread, else the count found on entry; a count
-    set by ``LINTOOLS_THREADS`` is kept either way.  The chunks, and so every bit of the
+    One row thread for several outputs and fewer than :data:`FEW_PARAMETERS`
+    coefficients, else the count found on entry; a count set by ``LINTOOLS_THREADS`` is
+    kept either way.  The chunks, and so every bit of the
     result, are the same whatever is chosen."""
     if _state["owner"] != threading.get_ident():
         return 1
     if not _state["asked"]:
-        _state["threads"] = 1 if parameters < FEW_PARAMETERS else _state["entry"]
+        _state["threads"] = 1 if outputs > 1 and parameters < FEW_PARAMETERS else _state["entry"]
     return _state["threads"]
 
 
