@@ -16,11 +16,11 @@ cores (an idle OpenBLAS thread keeps spinning for a while after each call).
   the elementwise work of a chunk, dispatched from Python under the interpreter lock,
   weighs more than its products and a second thread mostly waits for the lock.  Binary
   logistic fits (one output, larger chunks), least squares and the fits over blocks keep
-  the count found on entry (least
-  squares passes are products over 1 MiB blocks: the wall time of one row thread over
-  that of two measured 0.91 to 1.02 at p 5 to 20 and 1.40 at p 50 on 1e5 rows, 0.94 to
-  1.08 at p 5 to 50 on 1e6 rows: nothing to gain from one thread).  The
-  environment variable ``LINTOOLS_THREADS`` overrides both (``1`` turns the pool off): a
+  the count found on entry (least squares passes are products over 1 MiB blocks: the
+  wall time of one row thread over that of two measured 0.91 to 1.02 at p 5 to 20 and
+  1.40 at p 50 on 1e5 rows, 0.94 to 1.08 at p 5 to 50 on 1e6 rows: nothing to gain from
+  one thread).  The environment variable ``LINTOOLS_THREADS`` overrides both (``1``
+  turns the pool off): a
   whole number from 1 up, written in ASCII digits, of which at most :data:`MAX_THREADS`
   are used; anything else (``0``, ``-2``, ``two``, ``1.5``) is an :class:`InputError`,
   whatever the BLAS.
