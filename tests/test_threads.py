@@ -267,3 +267,61 @@ def test_threaded_softmax_equals_serial_and_statsmodels(monkeypatch):
     np.testing.assert_allclose(two.intercept[1:], params[0], rtol=1e-8, atol=1e-11)
     np.testing.assert_allclose(two.coefficients[:, 1:], params[1:], rtol=1e-8, atol=1e-11)
     np.testing.assert_allclose(two.standard_errors[:, 1:], np.asarray(ref.bse)[1:], rtol=1e-7)
+
+
+@pytest.fixture
+def two_blas_threads(monkeypatch):
+    """The BLAS at two threads on entry to a session, with two CPUs allowed (the machine's
+    count does not decide the test); LINTOOLS_THREADS unset, so the library chooses."""
+    control = _threads._lookup()
+    if control is None:
+        if _openblas():
+            pytest.fail("NumPy's OpenBLAS has no thread control found: the row threads are off")
+        pytest.skip("not an OpenBLAS build: one row thread always (the documented fallback)")
+    monkeypatch.delenv("LINTOOLS_THREADS", raising=False)
+    monkeypatch.setattr(_threads, "_cpus", lambda: 2)
+    before = control[1]()
+    control[0](2)
+    yield
+    control[0](before)
+
+
+def test_settle_picks_one_row_thread_for_few_coefficients(two_blas_threads, monkeypatch):
+    few, many = _threads.FEW_PARAMETERS - 1, _threads.FEW_PARAMETERS
+    with _threads.session() as count:
+        assert count == 2
+        assert _threads.settle(few, 2) == 1 and _threads.threads() == 1
+        assert _threads.settle(many, 2) == 2 and _threads.threads() == 2
+        assert _threads.settle(few, 1) == 2  # one output (binary logistic): the count found on entry
+        _threads.settle(few, 2)
+        with _threads.session():  # an inner fit's choice ends with it
+            assert _threads.settle(many, 2) == 2
+        assert _threads.threads() == 1
+    assert _threads.settle(many, 2) == 1  # outside a session: the calling thread only
+    monkeypatch.setenv("LINTOOLS_THREADS", "2")  # the user's count is kept either way
+    with _threads.session():
+        assert _threads.settle(few, 2) == 2
+    monkeypatch.setenv("LINTOOLS_THREADS", "1")
+    with _threads.session():
+        assert _threads.settle(many, 2) == 1
+
+
+@pytest.mark.parametrize("p, K, pool", [(5, 3, False), (20, 5, True), (5, 2, True)])
+def test_fits_choose_their_row_threads_and_keep_their_bits(two_blas_threads, monkeypatch, p, K, pool):
+    # softmax with reference class: (p + 1) (K - 1) coefficients, 12 (below FEW_PARAMETERS:
+    # one row thread, no pool is made) or 84 (two row threads); K = 2 is a binary logistic
+    # fit (one output: two row threads at any size).  20,000 rows are several chunks of
+    # every pass.  The same bits as either count set by LINTOOLS_THREADS.
+    if K > 2:
+        assert ((p + 1) * (K - 1) >= _threads.FEW_PARAMETERS) == pool
+    X, y = _classes(20_000, p, K, seed=5)
+    fit = lt.softmax if K > 2 else lt.logistic
+    monkeypatch.setattr(_threads, "_pool", {})
+    auto = fit(X, y)
+    assert bool(_threads._pool) == pool
+    for count in ("1", "2"):
+        monkeypatch.setenv("LINTOOLS_THREADS", count)
+        fixed = fit(X, y)
+        np.testing.assert_array_equal(auto.coefficients, fixed.coefficients)
+        np.testing.assert_array_equal(auto.covariance, fixed.covariance)
+        assert auto.log_likelihood == fixed.log_likelihood

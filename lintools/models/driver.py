@@ -44,6 +44,7 @@ from ..support.errors import (
 )
 from ..support.linalg import default_rank_tolerance, dependency_sentence
 from ..support.scaling import check_solver, scaled_back, wide_column_error
+from ..support.threads import settle
 from ..support.validate import check_finite, check_flag, check_nonnegative, check_positive_int
 from ..engine import (
     SOLVERS,
@@ -162,7 +163,11 @@ def checked_problem(Xa: np.ndarray, found: Any, names: tuple[str, ...], loss: An
                     **settings: Any) -> LinearModelProblem:
     """The fit's problem; its first pass over ``Xa`` (the column moments) doubles as the
     finiteness check of the design, and a NaN or infinity is then named by row and column.
-    A column whose spread float64 cannot standardise is refused naming it (``names``)."""
+    A column whose spread float64 cannot standardise is refused naming it (``names``).
+    The row threads of the fit are settled here, before its first pass, by its number of
+    coefficients (:func:`lintools.support.threads.settle`)."""
+    outputs = int(loss.outputs)
+    settle((Xa.shape[1] + bool(settings.get("intercept", True))) * outputs, outputs)
     try:
         return LinearModelProblem(Xa, loss, **settings)
     except NonFiniteDesign:

@@ -9,9 +9,18 @@ BLAS held to one thread meanwhile, so the two kinds of threads do not compete fo
 cores (an idle OpenBLAS thread keeps spinning for a while after each call).
 
 * :func:`session` (a context manager; the fits enter it) sets NumPy's OpenBLAS to one
-  thread and restores the caller's setting on exit.  The number of row threads is the
-  BLAS thread count found on entry, at most the CPUs this process may use; the
-  environment variable ``LINTOOLS_THREADS`` overrides it (``1`` turns the pool off): a
+  thread and restores the caller's setting on exit.  The number of row threads starts
+  as the BLAS thread count found on entry, at most the CPUs this process may use; a
+  softmax fit in memory then settles it by its size (:func:`settle`, before its first
+  pass): one row thread when it has fewer than :data:`FEW_PARAMETERS` coefficients, where
+  the elementwise work of a chunk, dispatched from Python under the interpreter lock,
+  weighs more than its products and a second thread mostly waits for the lock.  Binary
+  logistic fits (one output, larger chunks), least squares and the fits over blocks keep
+  the count found on entry (least squares passes are products over 1 MiB blocks: the
+  wall time of one row thread over that of two measured 0.91 to 1.02 at p 5 to 20 and
+  1.40 at p 50 on 1e5 rows, 0.94 to 1.08 at p 5 to 50 on 1e6 rows: nothing to gain from
+  one thread).  The environment variable ``LINTOOLS_THREADS`` overrides both (``1``
+  turns the pool off): a
   whole number from 1 up, written in ASCII digits, of which at most :data:`MAX_THREADS`
   are used; anything else (``0``, ``-2``, ``two``, ``1.5``) is an :class:`InputError`,
   whatever the BLAS.
@@ -21,7 +30,11 @@ cores (an idle OpenBLAS thread keeps spinning for a while after each call).
   (other BLAS builds, unusual layouts) everything runs on the calling thread and the BLAS
   is left alone.  One session at a time: a fit started on another thread meanwhile waits
   for the running one (each already uses all the cores it may), so concurrent calls give
-  the same digits as calls one after another.
+  the same digits as calls one after another.  One row thread with the BLAS at its own
+  thread count instead is not an option: a threaded BLAS splits the larger products
+  otherwise (other bits: softmax and logistic at 1e5 rows, p 5 to 10), and it was 1.7 to
+  7.5 times slower on the small products of the chunks (one row thread with the BLAS at
+  one thread as the base; ``benchmarks/row_threads.py``).
 * :func:`for_rows` runs ``fn(lo, hi)`` over consecutive chunks of rows and returns the
   results **in chunk order**.  The chunks do not depend on the number of threads, and the
   callers add the partial results in that order, so one thread and several give
@@ -46,17 +59,43 @@ import numpy as np
 
 from .errors import InputError
 
-__all__ = ["ELEMENT_CHUNK", "row_buffer", "session", "whole_blas", "with_row_threads", "threads", "for_rows", "add_up",
-           "scratch", "PassBuffers", "env_threads", "MAX_THREADS"]
+__all__ = ["ELEMENT_CHUNK", "row_buffer", "session", "settle", "FEW_PARAMETERS", "whole_blas", "with_row_threads",
+           "threads", "for_rows", "add_up", "scratch", "PassBuffers", "env_threads", "MAX_THREADS"]
 
 #: The most row threads ``LINTOOLS_THREADS`` can ask for; larger values are used as this.
 MAX_THREADS = 64
+
+#: A fit of several outputs with fewer coefficients than this runs its passes on one row
+#: thread (see :func:`settle`).  Measured on 2 cores by ``benchmarks/row_threads.py`` (median
+#: over 5 to 9 interleaved rounds of the paired wall ratio, one row thread over two; below 1:
+#: one thread is faster), with ``(p + 1)(K - 1)`` coefficients for softmax:
+#:
+#: * fewer than 50: softmax 12 (p 5, K 3): 0.76 at 1e4 rows, 0.92 and 0.95 at 1e5, 0.81 at
+#:   1e6; 22 (p 10, K 3): 0.76 at 1e4, 0.95 and 0.97 at 1e5 (earlier 0.78 / 0.81 / 0.88 at
+#:   1e4 / 1e5 / 1e6); 24 (p 5, K 5): 0.95 at 1e4, 0.94 at 1e5; 42 (p 20, K 3): 0.96 at 1e4,
+#:   0.83 and 0.97 at 1e5; 44 (p 10, K 5): 1.10 at 1e4 but 0.95 and 0.96 at 1e5;
+#: * 50 and more: 54 (p 5, K 10): 1.20 at 1e4, 1.17 at 1e5; 84 (p 20, K 5): 1.13 at 1e4,
+#:   1.17 (earlier 1.21) at 1e5; 99 (p 10, K 10): 1.30 at 1e4; 189 (p 20, K 10): 1.40 at 1e4
+#:   (earlier 1.42 at 1e5).
+#:
+#: Binary logistic fits (one output) keep the count found on entry whatever their size: with
+#: p 5 to 20 one row thread over two measured 0.96 to 1.17 at 1e5 rows and 0.98 to 1.38 at
+#: 1e6 on a quiet machine (0.87 to 0.98 with another process on a core): nothing to gain
+#: from one thread and up to a third to lose (their chunks are 16384 rows, four times
+#: softmax's, and a row's elementwise work is one output's).  p 50: 1.32 at 1e6 (earlier 1.64).
+#:
+#: The work of a chunk's products grows with the coefficients, that of its elementwise steps
+#: (many short NumPy calls, each taking the interpreter lock back) with the outputs only, so
+#: with few coefficients the two threads mostly take turns with the lock (their CPU time
+#: was then no more than the wall time).  The machine was shared: runs with another process
+#: on one core gave 0.92 to 1.00 for softmax at 1e5 rows with 54 to 99 coefficients.
+FEW_PARAMETERS = 50
 
 #: Entries per chunk of an elementwise pass over the rows (128 KB of float64 per array).
 ELEMENT_CHUNK = 1 << 14
 
 _lock = threading.Lock()
-_state: dict[str, Any] = {"owner": None, "threads": 1, "restore": None}
+_state: dict[str, Any] = {"owner": None, "threads": 1, "restore": None, "entry": 1, "asked": False}
 _pool: dict[int, ThreadPoolExecutor] = {}
 _control: list[Any] = []  # [(set, get)] or [None] once looked up
 
@@ -69,7 +108,7 @@ def _after_fork_in_child() -> None:
     _lock = threading.Lock()
     _pool.clear()
     restore = _state["restore"]
-    _state.update(owner=None, threads=1, restore=None)
+    _state.update(owner=None, threads=1, restore=None, entry=1, asked=False)
     if restore is not None and _control and _control[0] is not None:
         _control[0][0](restore)
 
@@ -158,7 +197,11 @@ def session() -> Iterator[int]:
     """Run the enclosed fit with row threads (see the module doc); yields their number."""
     me = threading.get_ident()
     if _state["owner"] == me:  # nested: the outer session already holds everything
-        yield _state["threads"]
+        held = _state["threads"]
+        try:
+            yield held
+        finally:
+            _state["threads"] = held  # an inner fit's choice (see settle) ends with it
         return
     asked = env_threads()  # a bad setting is refused whatever the BLAS
     _lock.acquire()  # a fit on another thread meanwhile waits for this one (see the module doc)
@@ -172,13 +215,13 @@ def session() -> Iterator[int]:
             if before != 1:
                 setter(1)
                 restore = before
-        _state.update(owner=me, threads=count, restore=restore)
+        _state.update(owner=me, threads=count, restore=restore, entry=count, asked=asked is not None)
         try:
             yield count
         finally:
             if restore is not None:
                 control[0](restore)
-            _state.update(owner=None, threads=1, restore=None)
+            _state.update(owner=None, threads=1, restore=None, entry=1, asked=False)
     finally:
         _lock.release()
 
@@ -198,6 +241,23 @@ def whole_blas() -> Iterator[None]:
         yield
     finally:
         control[0](1)
+
+
+def settle(parameters: int, outputs: int) -> int:
+    """Inside a session of the calling thread: the row threads of the fit whose problem has
+    ``parameters`` coefficients (terms times ``outputs``, its free outputs), to be called
+    before its first pass over the rows; returns the count the passes will use (1 outside
+    a session).
+
+    One row thread for several outputs and fewer than :data:`FEW_PARAMETERS`
+    coefficients, else the count found on entry; a count set by ``LINTOOLS_THREADS`` is
+    kept either way.  The chunks, and so every bit of the
+    result, are the same whatever is chosen."""
+    if _state["owner"] != threading.get_ident():
+        return 1
+    if not _state["asked"]:
+        _state["threads"] = 1 if outputs > 1 and parameters < FEW_PARAMETERS else _state["entry"]
+    return _state["threads"]
 
 
 def threads() -> int:
