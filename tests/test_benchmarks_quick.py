@@ -73,3 +73,19 @@ def test_step_precision_study_quick_mode_runs():
     for row in rows:
         assert float(row[5]) < 1e-9, row  # the two paths' largest difference, relative
         assert min(float(row[6]), float(row[7])) >= 10, row  # solver digits of both fits
+
+
+def test_row_threads_benchmark_quick_mode_runs():
+    # the row-thread grid in its tiny mode: every setting (the rule, 1, 2, and 1 with the
+    # BLAS's own threads) fits the same rows; the rule and a fixed count give the bits of
+    # two row threads ('=' in each setting's last column; no timing is asserted)
+    proc = subprocess.run(
+        [sys.executable, str(ROOT / "benchmarks" / "row_threads.py"), "--quick"],
+        capture_output=True, text=True, timeout=300,
+    )
+    assert proc.returncode == 0, proc.stderr
+    rows = [line.split() for line in proc.stdout.splitlines() if line.startswith(("softmax", "logistic", "least_squares"))]
+    assert len(rows) == 3, proc.stdout
+    for row in rows:
+        marks = [v for v in row if v in ("=", "DIFF")]
+        assert len(marks) == 4 and marks[:3] == ["=", "=", "="], row  # '1+blas' may differ
