@@ -188,9 +188,9 @@ def softmax_blocks(
         Ridge strength on the slopes.
     reference : "first", a class label, or None
         The class whose column of ``(b, B)`` is pinned at zero ("first": the first sorted
-        label), or None for the symmetric form, which needs ``l2 > 0`` and reports
-        intercepts with mean zero (the solver works in the subspace orthogonal to their
-        shared shift, as :func:`lintools.softmax` does).
+        label), or None for the symmetric form, which needs ``l2 > 0``; each term's class
+        values then sum to zero (the solver works in that subspace, as
+        :func:`lintools.softmax` does).
     tol : float
         Stop when the max-abs gradient of the objective per unit of total case weight,
         with respect to the intercepts and the coefficients of the standardised, centred

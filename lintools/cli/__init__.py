@@ -204,7 +204,7 @@ def build_parser() -> argparse.ArgumentParser:
     fit.add_argument("--reference",
                      help="softmax: the class whose coefficients are pinned at zero (default: first, the smallest)")
     fit.add_argument("--symmetric", action="store_true",
-                     help="softmax: no class pinned at zero, intercepts with mean zero (needs --l2 above 0)")
+                     help="softmax: no class pinned at zero, each term's class values summing to zero (needs --l2 above 0)")
     fit.add_argument("--save", metavar="JSON", help="write the fitted model to this JSON model file")
     fit.add_argument("--save-pmml", metavar="PMML", help="write the fitted model to this PMML 4.4 file")
     fit.add_argument("--replace", action="store_true", help="replace existing --save and --save-pmml files")

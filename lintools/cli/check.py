@@ -229,7 +229,7 @@ def _softmax_delivered(d: Delivered, fit: Any) -> tuple[np.ndarray, Any, str | N
     """Delivered softmax columns in the refit's class order.
 
     The comparison itself re-expresses them in the refit's parametrisation (reference
-    column subtracted, or intercepts centred), which leaves the probabilities unchanged.
+    column subtracted, or each term centred over the classes), which leaves the probabilities unchanged.
     """
     B = np.asarray(d.coefficients, dtype=float)
     b = None if d.intercept is None else np.asarray(d.intercept, dtype=float)

@@ -315,7 +315,7 @@ def class_note(fit: Any, *, positive_hint: str, classes_hint: str) -> str | None
     if kind.per_class:
         quoted = ", ".join(f"'{c!s}'" for c in fit.classes)
         ref = (f"the coefficients of class '{fit.reference_class!s}' are pinned at zero"
-               if fit.reference_class is not None else "symmetric form, intercepts with mean zero")
+               if fit.reference_class is not None else "symmetric form, each term's class values summing to zero")
         return f"modelling the probabilities of classes {quoted}; {ref} ({classes_hint})"
     other = [c for c in fit.classes if c != fit.positive_class]
     against = f" against '{other[0]!s}'" if other else ""

@@ -137,7 +137,7 @@ class SoftmaxFit(_FitBase):
         per estimated class), Convergence."""
         table = self.coefficient_table(level)
         ref = (f"{self.reference_class!s} (its coefficients are 0)" if self.reference_class is not None
-               else "none: symmetric form, every class has coefficients, intercepts centred")
+               else "none: symmetric form, every class has coefficients, each term centred over the classes")
         data = [("observations", f"{self.n_observations:g}"), ("parameters", f"{len(table.terms)}"),
                 ("classes", f"{len(self.classes)}: {', '.join(str(c) for c in self.classes)}"),
                 ("reference class", ref)] + ([("offset", "used")] if self.has_offset else [])
