@@ -446,3 +446,15 @@ def test_a_block_handed_out_to_be_written_on_is_never_served_again():
     assert np.array_equal(blocks.get(0, 300, writable=False), first)  # served again
     blocks.get(0, 300, writable=True)[:] *= 2.0  # written on by its user
     assert np.array_equal(blocks.get(0, 300, writable=False), first)
+
+
+def test_a_block_overwritten_by_another_pass_is_formed_afresh():
+    # invariant: two Blocks objects on one thread share its buffer; a block is served again only
+    # while that buffer still holds it (here another object's block was copied over it)
+    passes = importlib.import_module("lintools.models.lsq_gram_passes")
+    rng = np.random.default_rng(5)
+    X, Y = rng.normal(size=(200, 3)) + 5.0, rng.normal(size=(200, 3)) - 9.0
+    a, b = passes.Blocks(X, X[:5].mean(axis=0), 200), passes.Blocks(Y, Y[:5].mean(axis=0), 200)
+    first = a.get(0, 200, writable=False).copy()
+    b.get(0, 200, writable=False)  # the thread's buffer now holds b's block
+    assert np.array_equal(a.get(0, 200, writable=False), first)

@@ -23,6 +23,12 @@ from ..support.threads import add_up, for_rows, scratch
 __all__ = ["Blocks", "first_pass", "residual_pass", "subsample_rows", "subsample_start"]
 
 
+#: Per thread, what its "shifted" buffer holds: (the Blocks, lo, hi, the block) of a read-only
+#: copy, or None.  Kept here, not on the object, since every Blocks of the thread writes into
+#: the same buffer: a copy is served again only while no other block has been written over it.
+_HELD: dict[int, tuple | None] = {}
+
+
 class Blocks:
     """Row blocks of ``X * inv - shift`` as views (no scale, no shift) or in one reusable
     buffer per thread; ``inv`` (powers of two, exact) is None unless a column needs rescaling.
@@ -38,7 +44,6 @@ class Blocks:
         self.inv = inv
         self.flat = shift is not None and X.flags.c_contiguous
         self.tile = _tiled(shift, rows) if self.flat else None
-        self._last: tuple | None = None  # (thread, lo, hi, block) of the last read-only copy
 
     def get(self, lo: int, hi: int, writable: bool) -> np.ndarray:
         """The block of rows ``lo:hi``; a copy goes into a buffer of the calling thread
@@ -47,9 +52,9 @@ class Blocks:
         if self.shift is None and self.inv is None and not writable:
             return Xb
         me = threading.get_ident()
-        last = self._last
-        if not writable and last is not None and last[:3] == (me, lo, hi):
-            return last[3]
+        held = _HELD.get(me)
+        if not writable and held is not None and held[0] is self and held[1:3] == (lo, hi):
+            return held[3]
         out = scratch("shifted", (hi - lo, self.X.shape[1]))
         if self.inv is not None:
             np.multiply(Xb, self.inv, out=out)
@@ -61,8 +66,8 @@ class Blocks:
             np.subtract(Xb.reshape(-1), self.tile[: out.size], out=out.reshape(-1))
         else:
             np.subtract(Xb, self.shift, out=out)
-        # this thread's buffer now holds this block; a writable one is about to change
-        self._last = None if writable else (me, lo, hi, out)
+        # this thread's buffer now holds this block (of this object); a writable one is about to change
+        _HELD[me] = None if writable else (self, lo, hi, out)
         return out
 
 
