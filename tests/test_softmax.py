@@ -130,6 +130,10 @@ def test_symmetric_form_is_the_reference_form_centred(anes, anes_oracle):
     assert _rel(P, ref @ C) < 1e-8
     assert _rel(_stacked(f, "intercept_standard_error", "standard_errors"), se) < 1e-7
     assert np.max(np.abs(P.sum(axis=1))) < 1e-13 * np.max(np.abs(P))  # every term sums to zero
+    # the same likelihood with the same number of free parameters: the same AIC and BIC
+    ref_fit = softmax(X, y, names=ANES_COLUMNS)
+    assert f.aic == pytest.approx(ref_fit.aic, rel=1e-9) and f.bic == pytest.approx(ref_fit.bic, rel=1e-9)
+    assert ref_fit.aic == pytest.approx(anes_oracle.aic, rel=1e-9)
 
 
 def test_symmetric_form_holds_its_digits_with_columns_far_apart_in_scale(anes):

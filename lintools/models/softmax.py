@@ -383,7 +383,7 @@ def softmax_record(problem: Any, z: np.ndarray, Vz: np.ndarray, convergence: Con
     intercept = problem.intercept
     K, Kf, p1 = len(classes), problem.K, problem.p1
     full_t, full_se, Vc = _caller_parameters(problem, z, Vz, classes, order, ref, names)
-    k_free = p1 * Kf - (1 if (ref is None and intercept) else 0)
+    k_free = p1 * (K - 1)  # in the symmetric form each term's K values sum to zero: K - 1 free
     loglik, n_obs = measured.log_likelihood, measured.n_observations
     return SoftmaxFit(
         coefficients=full_t[int(intercept):],
