@@ -138,14 +138,16 @@ class SoftmaxFit(_FitBase):
         table = self.coefficient_table(level)
         ref = (f"{self.reference_class!s} (its coefficients are 0)" if self.reference_class is not None
                else "none: symmetric form, every class has coefficients, each term centred over the classes")
-        data = [("observations", f"{self.n_observations:g}"), ("parameters", f"{len(table.terms)}"),
+        per = len(self.names) + int(self.with_intercept)
+        shown = f"{len(table.terms)}" if self.reference_class is not None else \
+            f"{len(table.terms)} ({per * (len(self.classes) - 1)} free: each term's class values sum to zero)"
+        data = [("observations", f"{self.n_observations:g}"), ("parameters", shown),
                 ("classes", f"{len(self.classes)}: {', '.join(str(c) for c in self.classes)}"),
                 ("reference class", ref)] + ([("offset", "used")] if self.has_offset else [])
         estimation = [("method", "maximum likelihood")] + ([("ridge penalty l2", f"{self.l2:g}")] if self.l2 else [])
         fit = self._likelihood_rows(10)
         fit[-2:-2] = [("deviance", f"{self.deviance:.10g}"),
                       ("deviance of the intercept-only model", f"{self.null_deviance:.10g}")]
-        per = len(self.names) + int(self.with_intercept)
         blocks = []
         for j, k in enumerate(self._free_columns()):
             sl = slice(j * per, (j + 1) * per)
