@@ -106,6 +106,15 @@ def instrument() -> Callable[..., Any]:
     _patch(logistic_module, "_null_model", "null")
     _patch(logistic_module, "logistic_record", "record")
     _patch(logistic_module.BinaryFamily, "covariance", "covariance")
+    instrument_engine("one")
+    inner = _wrap(lt.logistic.__wrapped__, "front", container=True)
+    session = logistic_module.with_row_threads(inner)
+    return _wrap(session, "session", container=True)
+
+
+def instrument_engine(variant: str) -> None:
+    """The wrappers of the stages every likelihood fit shares: the driver, the Newton loop and
+    the problem's passes (``variant``: the problem's, "one" or "several" outputs)."""
     _patch(driver, "final_evaluation", "final_ev")
     _patch(driver, "_final_check", "final_check")
     _patch(driver, "convergence_record", "convergence")
@@ -114,14 +123,33 @@ def instrument() -> Callable[..., Any]:
     for name, stage in (("cholesky", "cholesky"), ("solve_factored", "cholesky"), ("report_step", "watch"),
                         ("finish", "newton")):
         _patch(newton_module, name, stage)
-    cls = LinearModelProblem.variants["one"]
+    cls = LinearModelProblem.variants[variant]
     for name, stage in (("evaluate", "evaluate"), ("hessian", "hessian"), ("step_hessian", "hessian"),
                         ("line", "line"), ("start", "start")):
         _patch(cls, name, stage)
     _patch(problem_line._Line, "change", "line")
-    inner = _wrap(lt.logistic.__wrapped__, "front", container=True)
-    session = logistic_module.with_row_threads(inner)
-    return _wrap(session, "session", container=True)
+
+
+def plain_calls(fit: Callable[..., Any], X: np.ndarray, y: np.ndarray, calls: int,
+                warmup: int) -> tuple[Any, list[float], list[float]]:
+    """The last result of ``calls`` plain calls of ``fit(X, y)`` (after ``warmup``), and each
+    call's wall and CPU seconds."""
+    for _ in range(warmup):
+        fit(X, y)
+    wall, cpu = [], []
+    for _ in range(calls):
+        gc.collect()
+        t0, c0 = time.perf_counter(), time.process_time()
+        result = fit(X, y)
+        wall.append(time.perf_counter() - t0)
+        cpu.append(time.process_time() - c0)
+    return result, wall, cpu
+
+
+def print_plain(wall: list[float], cpu: list[float]) -> None:
+    """The median wall and CPU time of a plain call, below the stage table."""
+    print(f"{'whole call (median, plain, wall)':<48} {statistics.median(wall) * 1e3:8.3f}")
+    print(f"{'whole call (median, plain, CPU)':<48} {statistics.median(cpu) * 1e3:8.3f}")
 
 
 def data(n: int, p: int, seed: int = 2) -> tuple[np.ndarray, np.ndarray]:
@@ -140,20 +168,12 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--calls", type=int, default=30)
     args = parser.parse_args(argv)
     X, y = data(args.n, args.p)
-    plain = lt.logistic
-    for _ in range(3):
-        plain(X, y)
-    bare = []
-    for _ in range(args.calls):
-        gc.collect()
-        t0 = time.perf_counter()
-        fit = plain(X, y)
-        bare.append(time.perf_counter() - t0)
+    fit, wall, cpu = plain_calls(lt.logistic, X, y, args.calls, warmup=3)
     per_stage, whole = staged(instrument(), X, y, STAGES, args.calls, warmup=3)
     print(f"lintools.logistic at n={args.n}, p={args.p}: {fit.convergence.iterations} Newton iterations; "
           f"median of {args.calls} calls")
     print_stages(STAGES, per_stage, whole)
-    print(f"{'whole call (median, plain)':<48} {statistics.median(bare) * 1e3:8.3f}")
+    print_plain(wall, cpu)
     return 0
 
 

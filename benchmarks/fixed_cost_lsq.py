@@ -18,7 +18,6 @@ covariance ``(L L')^-1`` from the factor), and ``numpy.linalg.lstsq`` on ``[1, X
 from __future__ import annotations
 
 import argparse
-import gc
 import resource
 import statistics
 import sys
@@ -31,7 +30,7 @@ sys.path.insert(0, str(Path(__file__).resolve().parent))
 import numpy as np  # noqa: E402
 
 import lintools as lt  # noqa: E402
-from fixed_cost import _patch, _wrap, print_stages, staged  # noqa: E402
+from fixed_cost import _patch, _wrap, plain_calls, print_plain, print_stages, staged  # noqa: E402
 from lintools.models import least_squares as front, lsq_gram  # noqa: E402
 from problems import _regression_data  # noqa: E402
 
@@ -110,25 +109,15 @@ def main(argv: list[str] | None = None) -> int:
     args = parser.parse_args(argv)
     d = _regression_data(args.n, args.p)()
     X, y = d["X"], d["y"]
-    plain = lt.least_squares
-    for _ in range(5):
-        plain(X, y)
-    bare, cpu = [], []
-    for _ in range(args.calls):
-        gc.collect()
-        t0, c0 = time.perf_counter(), time.process_time()
-        fit = plain(X, y)
-        bare.append(time.perf_counter() - t0)
-        cpu.append(time.process_time() - c0)
+    fit, wall, cpu = plain_calls(lt.least_squares, X, y, args.calls, warmup=5)
     f0 = resource.getrusage(resource.RUSAGE_SELF).ru_minflt
     for _ in range(args.calls):
-        plain(X, y)
+        lt.least_squares(X, y)
     faults = (resource.getrusage(resource.RUSAGE_SELF).ru_minflt - f0) / args.calls
     per_stage, whole = staged(instrument(), X, y, STAGES, args.calls, warmup=5)
     print(f"lintools.least_squares at n={args.n}, p={args.p} ({fit.convergence.solver}); median of {args.calls} calls")
     print_stages(STAGES, per_stage, whole)
-    print(f"{'whole call (median, plain, wall)':<48} {statistics.median(bare) * 1e3:8.3f}")
-    print(f"{'whole call (median, plain, CPU)':<48} {statistics.median(cpu) * 1e3:8.3f}")
+    print_plain(wall, cpu)
     print(f"{'minor page faults per plain call':<48} {faults:8.1f}")
     for label, ms in floor(X, y, args.calls):
         print(f"{label:<48} {ms:8.3f}")

@@ -14,21 +14,17 @@ and CPU time of a plain call (no wrappers).
 from __future__ import annotations
 
 import argparse
-import gc
-import statistics
 import sys
-import time
 from pathlib import Path
 from typing import Any, Callable
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 
 import lintools as lt  # noqa: E402
-from fixed_cost import _patch, _wrap, print_stages, staged  # noqa: E402
-from lintools.engine import newton as newton_module, problem_line  # noqa: E402
-from lintools.engine.problem_base import LinearModelProblem  # noqa: E402
+from fixed_cost import (_patch, _wrap, instrument_engine, plain_calls, print_plain,  # noqa: E402
+                        print_stages, staged)
 from lintools.engine import problem_base  # noqa: E402
-from lintools.models import driver, glm_accuracy, softmax as front, softmax_accuracy  # noqa: E402
+from lintools.models import glm_accuracy, softmax as front, softmax_accuracy  # noqa: E402
 from problems_softmax import softmax_data  # noqa: E402
 
 STAGES = [
@@ -81,19 +77,7 @@ def instrument() -> Callable[..., Any]:
     _patch(softmax_accuracy, "softmax_derivatives", "acc_deriv")
     _patch(glm_accuracy, "sensitivity", "acc_sens")
     _patch(front.SoftmaxFamily, "covariance", "covariance")
-    _patch(driver, "final_evaluation", "final_ev")
-    _patch(driver, "_final_check", "final_check")
-    _patch(driver, "convergence_record", "convergence")
-    _patch(driver, "solve", "driver", container=True)
-    _patch(newton_module, "newton", "newton", container=True)  # solve() imports it when it runs
-    for name, stage in (("cholesky", "cholesky"), ("solve_factored", "cholesky"), ("report_step", "watch"),
-                        ("finish", "newton")):
-        _patch(newton_module, name, stage)
-    cls = LinearModelProblem.variants["several"]
-    for name, stage in (("evaluate", "evaluate"), ("hessian", "hessian"), ("step_hessian", "hessian"),
-                        ("line", "line"), ("start", "start")):
-        _patch(cls, name, stage)
-    _patch(problem_line._Line, "change", "line")
+    instrument_engine("several")
     inner = _wrap(lt.softmax.__wrapped__, "front", container=True)
     return _wrap(front.with_row_threads(inner), "session", container=True)
 
@@ -107,22 +91,12 @@ def main(argv: list[str] | None = None) -> int:
     args = parser.parse_args(argv)
     d = softmax_data(args.n, args.p, args.K)()
     X, y = d["X"], d["y"]
-    plain = lt.softmax
-    for _ in range(5):
-        plain(X, y)
-    bare, cpu = [], []
-    for _ in range(args.calls):
-        gc.collect()
-        t0, c0 = time.perf_counter(), time.process_time()
-        fit = plain(X, y)
-        bare.append(time.perf_counter() - t0)
-        cpu.append(time.process_time() - c0)
+    fit, wall, cpu = plain_calls(lt.softmax, X, y, args.calls, warmup=5)
     per_stage, whole = staged(instrument(), X, y, STAGES, args.calls, warmup=5)
     print(f"lintools.softmax at n={args.n}, p={args.p}, K={args.K}: {fit.convergence.iterations} Newton "
           f"iterations; median of {args.calls} calls")
     print_stages(STAGES, per_stage, whole)
-    print(f"{'whole call (median, plain, wall)':<48} {statistics.median(bare) * 1e3:8.3f}")
-    print(f"{'whole call (median, plain, CPU)':<48} {statistics.median(cpu) * 1e3:8.3f}")
+    print_plain(wall, cpu)
     return 0
 
 
