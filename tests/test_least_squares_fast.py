@@ -458,3 +458,20 @@ def test_a_block_overwritten_by_another_pass_is_formed_afresh():
     first = a.get(0, 200, writable=False).copy()
     b.get(0, 200, writable=False)  # the thread's buffer now holds b's block
     assert np.array_equal(a.get(0, 200, writable=False), first)
+
+
+def test_the_gram_path_keeps_no_reference_to_the_callers_design():
+    # invariant (nothing lost, reads bounded): after the fit returns, nothing of the library holds
+    # the caller's X (the blocks' record of what a thread's buffer holds names its object by a
+    # serial number, not by the object, which holds X)
+    import gc
+    import weakref
+
+    rng = np.random.default_rng(6)
+    X = rng.normal(size=(10_000, 10)) + 2.0
+    y = X @ rng.normal(size=10) + rng.normal(size=10_000)
+    ref = weakref.ref(X)
+    assert lt.least_squares(X, y).convergence.solver == "cholesky"
+    del X
+    gc.collect()
+    assert ref() is None

@@ -13,6 +13,7 @@ that gives the provisional centre and the start (:func:`subsample_rows`,
 
 from __future__ import annotations
 
+import itertools
 import threading
 
 import numpy as np
@@ -23,10 +24,12 @@ from ..support.threads import add_up, for_rows, scratch
 __all__ = ["Blocks", "first_pass", "residual_pass", "subsample_rows", "subsample_start"]
 
 
-#: Per thread, what its "shifted" buffer holds: (the Blocks, lo, hi, the block) of a read-only
-#: copy, or None.  Kept here, not on the object, since every Blocks of the thread writes into
-#: the same buffer: a copy is served again only while no other block has been written over it.
+#: Per thread, what its "shifted" buffer holds: (the Blocks' serial number, lo, hi, the block)
+#: of a read-only copy, or None.  Kept here, not on the object, since every Blocks of the
+#: thread writes into the same buffer: a copy is served again only while no other block has
+#: been written over it.  A serial number, not the object, so the caller's X is not kept alive.
 _HELD: dict[int, tuple | None] = {}
+_SERIAL = itertools.count()
 
 
 class Blocks:
@@ -44,6 +47,7 @@ class Blocks:
         self.inv = inv
         self.flat = shift is not None and X.flags.c_contiguous
         self.tile = _tiled(shift, rows) if self.flat else None
+        self.serial = next(_SERIAL)
 
     def get(self, lo: int, hi: int, writable: bool) -> np.ndarray:
         """The block of rows ``lo:hi``; a copy goes into a buffer of the calling thread
@@ -53,7 +57,7 @@ class Blocks:
             return Xb
         me = threading.get_ident()
         held = _HELD.get(me)
-        if not writable and held is not None and held[0] is self and held[1:3] == (lo, hi):
+        if not writable and held is not None and held[:3] == (self.serial, lo, hi):
             return held[3]
         out = scratch("shifted", (hi - lo, self.X.shape[1]))
         if self.inv is not None:
@@ -67,7 +71,7 @@ class Blocks:
         else:
             np.subtract(Xb, self.shift, out=out)
         # this thread's buffer now holds this block (of this object); a writable one is about to change
-        _HELD[me] = None if writable else (self, lo, hi, out)
+        _HELD[me] = None if writable else (self.serial, lo, hi, out)
         return out
 
 
@@ -90,7 +94,7 @@ def first_pass(X, y, ybar, w, shift, beta0, a0, rows, inv, blocks=None):
     ``v' Z`` stay with the BLAS: the correction steps need their accuracy (NumPy's sum of
     products here cost the weighted benchmark a digit, measured 12.0 -> 11.0)."""
     n, p = X.shape
-    blocks = blocks or Blocks(X, shift, rows, inv)
+    blocks = blocks if blocks is not None else Blocks(X, shift, rows, inv)
     ones = np.ones(rows) if w is None else None  # ones @ Z: faster than Z.sum(axis=0)
 
     def part(lo: int, hi: int) -> tuple:
@@ -126,7 +130,7 @@ def residual_pass(X, y, ybar, w, shift, beta, a, rows, *, keep_residuals, lev, m
     centre (None: made here).
     """
     n, p = X.shape
-    blocks = blocks or Blocks(X, shift, rows, inv)
+    blocks = blocks if blocks is not None else Blocks(X, shift, rows, inv)
     e = np.empty(n) if keep_residuals else None
     hat = np.empty(n) if lev is not None else None
 
